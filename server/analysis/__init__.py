@@ -1,0 +1,1 @@
+"""Pure analyses: numpy/pandas in, frozen dataclass out. No database, no web."""

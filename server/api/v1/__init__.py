@@ -1,0 +1,9 @@
+"""JSON API, version 1. Routers are thin: parse, call one service, answer with a Read model."""
+
+from fastapi import APIRouter
+
+from . import compounds, scaffolds
+
+router = APIRouter(prefix="/api/v1")
+router.include_router(compounds.router)
+router.include_router(scaffolds.router)

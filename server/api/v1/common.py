@@ -1,0 +1,26 @@
+"""Shared response documentation for the API routers."""
+
+from __future__ import annotations
+
+from pydantic import BaseModel
+
+
+class ErrorOut(BaseModel):
+    detail: str
+    field: str | None = None
+    line: int | None = None
+    column: str | None = None
+
+
+class DuplicateOut(BaseModel):
+    detail: str
+    existing: str
+
+
+AUTH_ERRORS = {
+    401: {"model": ErrorOut, "description": "no or an invalid token/session"},
+    403: {"model": ErrorOut, "description": "the caller's role or token scope does not allow this"},
+}
+INPUT_ERRORS = {422: {"model": ErrorOut, "description": "bad input; `detail` says what and where"}}
+NOT_FOUND = {404: {"model": ErrorOut, "description": "no such thing"}}
+DUPLICATE = {409: {"model": DuplicateOut, "description": "exists already; `existing` names it"}}

@@ -1,0 +1,106 @@
+"""Compounds and batches."""
+
+from __future__ import annotations
+
+from fastapi import APIRouter, Query, Response
+from fastapi.responses import Response as RawResponse
+
+from ...deps import Reader, SessionDep, SettingsDep, Writer
+from ...models import BatchCreate, BatchRead, CompoundCreate, CompoundPage, CompoundRead, CompoundUpdate
+from ...services import registry
+from ...services.errors import NotFound
+from .common import AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND
+
+router = APIRouter(tags=["compounds"])
+
+
+
+@router.post(
+    "/compounds", status_code=201, response_model=CompoundRead, responses={**AUTH_ERRORS, **INPUT_ERRORS, **DUPLICATE}
+)
+def create_compound(data: CompoundCreate, session: SessionDep, settings: SettingsDep, actor: Writer) -> CompoundRead:
+    """Register a compound from a SMILES or MOL block, or from a scaffold plus a side chain."""
+    compound = registry.register_compound(session=session, settings=settings, data=data, actor=actor.label)
+    return registry.compound_read(session, compound, see_structure=True)
+
+
+@router.get("/compounds", response_model=CompoundPage, responses=AUTH_ERRORS)
+def list_compounds(
+    session: SessionDep,
+    actor: Reader,
+    limit: int = Query(50, ge=1, le=500),
+    offset: int = Query(0, ge=0),
+    include_archived: bool = False,
+) -> CompoundPage:
+    rows, total = registry.list_compounds(session, limit=limit, offset=offset, include_archived=include_archived)
+    items = [registry.compound_read(session, c, see_structure=actor.can_see_embargoed) for c in rows]
+    return CompoundPage(items=items, total=total)
+
+
+@router.get("/compounds/{code}", response_model=CompoundRead, responses={**AUTH_ERRORS, **NOT_FOUND})
+def get_compound(code: str, session: SessionDep, actor: Reader) -> CompoundRead:
+    compound = registry.get_compound(session, code)
+    return registry.compound_read(session, compound, see_structure=actor.can_see_embargoed)
+
+
+@router.patch(
+    "/compounds/{code}", response_model=CompoundRead, responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS}
+)
+def patch_compound(code: str, data: CompoundUpdate, session: SessionDep, actor: Writer) -> CompoundRead:
+    """Change label, notes, scaffold or embargo. Structures are immutable: register a new compound instead."""
+    compound = registry.get_compound(session, code)
+    compound = registry.update_compound(session=session, compound=compound, data=data, actor=actor.label)
+    return registry.compound_read(session, compound, see_structure=True)
+
+
+@router.post("/compounds/{code}/archive", response_model=CompoundRead, responses={**AUTH_ERRORS, **NOT_FOUND})
+def archive_compound(code: str, session: SessionDep, actor: Writer) -> CompoundRead:
+    """Archive (nothing is deleted); the code stays taken and the compound can be restored."""
+    compound = registry.set_compound_archived(
+        session=session, compound=registry.get_compound(session, code), archived=True, actor=actor.label
+    )
+    return registry.compound_read(session, compound, see_structure=True)
+
+
+@router.post("/compounds/{code}/restore", response_model=CompoundRead, responses={**AUTH_ERRORS, **NOT_FOUND})
+def restore_compound(code: str, session: SessionDep, actor: Writer) -> CompoundRead:
+    compound = registry.set_compound_archived(
+        session=session, compound=registry.get_compound(session, code), archived=False, actor=actor.label
+    )
+    return registry.compound_read(session, compound, see_structure=True)
+
+
+@router.get(
+    "/compounds/{code}/structure.svg",
+    responses={**AUTH_ERRORS, **NOT_FOUND, 200: {"content": {"image/svg+xml": {}}}},
+    response_class=RawResponse,
+)
+def compound_svg(code: str, session: SessionDep, actor: Reader, thumbnail: bool = False) -> Response:
+    compound = registry.get_compound(session, code)
+    if compound.embargoed and not actor.can_see_embargoed:
+        raise NotFound(f"no drawing for {code}")
+    svg = registry.structure_svg(compound, thumbnail=thumbnail)
+    return Response(svg, media_type="image/svg+xml", headers={"Cache-Control": "private, max-age=3600"})
+
+
+@router.post(
+    "/compounds/{code}/batches",
+    status_code=201,
+    response_model=BatchRead,
+    responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS},
+)
+def create_batch(code: str, data: BatchCreate, session: SessionDep, actor: Writer) -> BatchRead:
+    compound = registry.get_compound(session, code)
+    batch = registry.add_batch(session=session, compound=compound, data=data, actor=actor.label)
+    return registry.batch_read(session, batch)
+
+
+@router.get("/compounds/{code}/batches", response_model=list[BatchRead], responses={**AUTH_ERRORS, **NOT_FOUND})
+def list_batches(code: str, session: SessionDep, actor: Reader) -> list[BatchRead]:
+    compound = registry.get_compound(session, code)
+    return [registry.batch_read(session, b) for b in registry.batches_of(session, compound)]
+
+
+@router.get("/batches/{code}", response_model=BatchRead, responses={**AUTH_ERRORS, **NOT_FOUND})
+def get_batch(code: str, session: SessionDep, actor: Reader) -> BatchRead:
+    return registry.batch_read(session, registry.get_batch(session, code))

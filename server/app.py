@@ -1,0 +1,152 @@
+"""The application factory. Nothing happens at import time: ``create_app(settings)`` builds it."""
+
+from __future__ import annotations
+
+from contextlib import asynccontextmanager
+from pathlib import Path
+from urllib.parse import quote
+
+import plotly
+from fastapi import FastAPI, Request
+from fastapi.exceptions import RequestValidationError
+from fastapi.responses import FileResponse, JSONResponse, RedirectResponse, Response
+from fastapi.staticfiles import StaticFiles
+from fastapi.templating import Jinja2Templates
+from sqlalchemy.exc import OperationalError
+from starlette.exceptions import HTTPException as StarletteHTTPException
+from starlette.middleware.sessions import SessionMiddleware
+
+from . import __version__
+from .db import make_engine
+from .errors import InputError
+from .services.errors import Duplicate, Forbidden, NotFound
+from .settings import PROJECT_ROOT, Settings, get_settings
+from .web import pages
+from .web.render import render
+
+PLOTLY_JS = Path(plotly.__file__).parent / "package_data" / "plotly.min.js"
+PLOTLY_VERSION = plotly.__version__
+
+CSP = (
+    "default-src 'self'; script-src 'self'; style-src 'self' 'unsafe-inline'; img-src 'self' data:; "
+    "object-src 'none'; base-uri 'self'; frame-ancestors 'none'; form-action 'self'"
+)
+
+
+def _is_api(request: Request) -> bool:
+    return request.url.path.startswith("/api/")
+
+
+def _error(request: Request, status: int, detail: str, extra: dict | None = None) -> Response:
+    if _is_api(request):
+        return JSONResponse({"detail": detail, **(extra or {})}, status_code=status)
+    return render(request, "pages/error.html", {"status": status, "detail": detail}, status_code=status)
+
+
+def _install_error_handlers(app: FastAPI) -> None:
+    @app.exception_handler(InputError)
+    async def input_error(request: Request, exc: InputError) -> Response:
+        return _error(request, 422, str(exc), {k: v for k, v in exc.to_dict().items() if k != "detail"})
+
+    @app.exception_handler(NotFound)
+    async def not_found(request: Request, exc: NotFound) -> Response:
+        return _error(request, 404, str(exc))
+
+    @app.exception_handler(Duplicate)
+    async def duplicate(request: Request, exc: Duplicate) -> Response:
+        return _error(request, 409, str(exc), {"existing": exc.existing})
+
+    @app.exception_handler(Forbidden)
+    async def forbidden(request: Request, exc: Forbidden) -> Response:
+        return _error(request, 403, str(exc))
+
+    @app.exception_handler(RequestValidationError)
+    async def validation(request: Request, exc: RequestValidationError) -> Response:
+        parts = []
+        for err in exc.errors():
+            loc = [str(p) for p in err.get("loc", ()) if p not in ("body", "query", "path")]
+            parts.append(f"{'.'.join(loc) or 'body'}: {err.get('msg')}")
+        return _error(request, 422, "; ".join(parts), {"errors": jsonable_errors(exc)})
+
+    @app.exception_handler(OperationalError)
+    async def db_down(request: Request, exc: OperationalError) -> Response:
+        return _error(request, 503, "the database is busy or unreachable; try again in a moment")
+
+    @app.exception_handler(pages.LoginRequired)
+    async def login_required(request: Request, exc: pages.LoginRequired) -> Response:
+        return RedirectResponse(f"/login?next={quote(exc.next_url)}", status_code=303)
+
+    @app.exception_handler(pages.PageForbidden)
+    async def page_forbidden(request: Request, exc: pages.PageForbidden) -> Response:
+        return _error(request, 403, exc.message)
+
+    @app.exception_handler(StarletteHTTPException)
+    async def http_error(request: Request, exc: StarletteHTTPException) -> Response:
+        resp = _error(request, exc.status_code, str(exc.detail))
+        for key, value in (exc.headers or {}).items():
+            resp.headers[key] = value
+        return resp
+
+
+def jsonable_errors(exc: RequestValidationError) -> list[dict]:
+    return [{"loc": [str(p) for p in e.get("loc", ())], "msg": str(e.get("msg")), "type": str(e.get("type"))}
+            for e in exc.errors()]
+
+
+def create_app(settings: Settings | None = None) -> FastAPI:
+    settings = settings or get_settings()
+    engine = make_engine(settings.database_url)
+
+    @asynccontextmanager
+    async def lifespan(app: FastAPI):
+        yield
+        engine.dispose()
+
+    app = FastAPI(
+        title="Remanence",
+        version=__version__,
+        summary="Registry and dashboard for molecular-ferroelectric campaigns.",
+        lifespan=lifespan,
+    )
+    app.state.settings = settings
+    app.state.engine = engine
+    templates = Jinja2Templates(directory=str(PROJECT_ROOT / "templates"))
+    templates.env.globals.update(version=__version__, plotly_version=PLOTLY_VERSION)
+    app.state.templates = templates
+
+    @app.middleware("http")
+    async def security_headers(request: Request, call_next):
+        response = await call_next(request)
+        response.headers.setdefault("Content-Security-Policy", CSP)
+        response.headers.setdefault("X-Content-Type-Options", "nosniff")
+        response.headers.setdefault("X-Frame-Options", "DENY")
+        response.headers.setdefault("Referrer-Policy", "same-origin")
+        return response
+
+    app.add_middleware(
+        SessionMiddleware,
+        secret_key=settings.secret_key,
+        session_cookie="remanence_session",
+        max_age=int(settings.session_hours * 3600),
+        same_site="lax",
+        https_only=settings.cookie_secure,
+    )
+    _install_error_handlers(app)
+
+    from .api.v1 import router as api_router
+
+    app.include_router(api_router)
+    app.include_router(pages.router)
+    app.mount("/static", StaticFiles(directory=str(PROJECT_ROOT / "static")), name="static")
+
+    @app.get(f"/assets/plotly-{PLOTLY_VERSION}.min.js", include_in_schema=False)
+    def plotly_js() -> FileResponse:
+        # Served from the installed plotly package: no CDN, no internet at run time.
+        return FileResponse(PLOTLY_JS, media_type="text/javascript",
+                            headers={"Cache-Control": "public, max-age=31536000, immutable"})
+
+    @app.get("/healthz", include_in_schema=False)
+    def healthz() -> dict:
+        return {"ok": True, "version": __version__}
+
+    return app

@@ -1,0 +1,1 @@
+"""Chemistry with RDKit: identity, side chains, scaffolds, drawings, geometry."""

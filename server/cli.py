@@ -1,0 +1,220 @@
+"""The ``remanence`` command.
+
+    remanence init                         create or upgrade the database (runs the migrations)
+    remanence serve [--host H] [--port P]  serve the web app and API
+    remanence demo [--load-only]           fresh demo database, then serve it
+    remanence user add NAME --role R       add an account (password from a prompt or --password-stdin)
+    remanence token create --name N --scope S [--kinds K,...]
+                                           create an API token; prints it alone on the last line
+    remanence token revoke ID              revoke a token at once
+    remanence settings                     list the settings, their environment variables and values
+"""
+
+from __future__ import annotations
+
+import argparse
+import getpass
+import os
+import shutil
+import sys
+from typing import Sequence
+
+from sqlmodel import Session
+
+from .settings import SETTINGS, Settings
+
+
+def _settings() -> Settings:
+    return Settings.from_env()
+
+
+def cmd_init(args: argparse.Namespace) -> int:
+    from .db import upgrade
+
+    settings = _settings()
+    upgrade(settings.database_url)
+    print(f"database ready: {_display_url(settings.database_url)}")
+    return 0
+
+
+def _display_url(url: str) -> str:
+    from sqlalchemy.engine import make_url
+
+    return make_url(url).render_as_string(hide_password=True)
+
+
+def cmd_serve(args: argparse.Namespace) -> int:
+    import uvicorn
+
+    from .app import create_app
+    from .db import upgrade
+
+    settings = _settings()
+    upgrade(settings.database_url)
+    app = create_app(settings)
+    print(f"Remanence at http://{args.host}:{args.port}", flush=True)
+    uvicorn.run(app, host=args.host, port=args.port, log_level=args.log_level, workers=1)
+    return 0
+
+
+DEMO_USER = "demo"
+DEMO_PASSWORD = "bowl-inversion"
+
+
+def cmd_demo(args: argparse.Namespace) -> int:
+    from sqlmodel import select
+
+    from .db import make_engine, upgrade
+    from .models import User
+    from .services import accounts
+
+    settings = _settings()
+    if settings.is_sqlite and not os.environ.get("REMANENCE_DATABASE_URL"):
+        # The demo gets a database of its own, made fresh each time.
+        demo_dir = settings.data_dir / "demo"
+        shutil.rmtree(demo_dir, ignore_errors=True)
+        demo_dir.mkdir(parents=True)
+        os.environ["REMANENCE_DATABASE_URL"] = f"sqlite:///{demo_dir / 'remanence-demo.db'}"
+        settings = _settings()
+    upgrade(settings.database_url)
+    engine = make_engine(settings.database_url)
+    with Session(engine) as session:
+        if not session.exec(select(User).where(User.username == DEMO_USER)).first():
+            accounts.create_user(session=session, username=DEMO_USER, password=DEMO_PASSWORD, role="admin",
+                                 actor="cli:demo")
+    from seed_demo import load as demo_load
+
+    demo_load.load(settings)
+    engine.dispose()
+    print(f"demo database: {_display_url(settings.database_url)}")
+    print(f"demo login: user '{DEMO_USER}', password '{DEMO_PASSWORD}'")
+    if args.load_only:
+        return 0
+    args.host = args.host or "127.0.0.1"
+    return cmd_serve(args)
+
+
+def _read_password(args: argparse.Namespace) -> str:
+    if args.password_stdin:
+        return sys.stdin.readline().rstrip("\n")
+    first = getpass.getpass("password: ")
+    if first != getpass.getpass("again: "):
+        raise SystemExit("the two passwords differ")
+    return first
+
+
+def cmd_user_add(args: argparse.Namespace) -> int:
+    from .db import make_engine
+    from .errors import InputError
+    from .services import accounts
+    from .services.errors import Duplicate
+
+    settings = _settings()
+    engine = make_engine(settings.database_url)
+    password = _read_password(args)
+    try:
+        with Session(engine) as session:
+            user = accounts.create_user(session=session, username=args.name, password=password, role=args.role,
+                                        actor="cli")
+    except (InputError, Duplicate) as exc:
+        print(f"error: {exc}", file=sys.stderr)
+        return 2
+    print(f"user {user.username} added with role {user.role}")
+    return 0
+
+
+def cmd_token_create(args: argparse.Namespace) -> int:
+    from .db import make_engine
+    from .errors import InputError
+    from .services import accounts
+
+    settings = _settings()
+    kinds = [k.strip() for k in args.kinds.split(",") if k.strip()] if args.kinds else None
+    with Session(make_engine(settings.database_url)) as session:
+        try:
+            token, secret = accounts.create_token(session=session, name=args.name, scope=args.scope, kinds=kinds,
+                                                  actor="cli")
+        except InputError as exc:
+            print(f"error: {exc}", file=sys.stderr)
+            return 2
+    print(f"token {token.id} '{token.name}' scope {token.scope}" + (f" kinds {','.join(kinds)}" if kinds else ""))
+    print("shown once; store it on the instrument PC now:")
+    print(secret)
+    return 0
+
+
+def cmd_token_revoke(args: argparse.Namespace) -> int:
+    from .db import make_engine
+    from .services import accounts
+    from .services.errors import NotFound
+
+    with Session(make_engine(_settings().database_url)) as session:
+        try:
+            token = accounts.revoke_token(session=session, token_id=args.id, actor="cli")
+        except NotFound as exc:
+            print(f"error: {exc}", file=sys.stderr)
+            return 2
+    print(f"token {token.id} '{token.name}' revoked")
+    return 0
+
+
+def cmd_settings(args: argparse.Namespace) -> int:
+    settings = _settings()
+    for s in SETTINGS:
+        value = getattr(settings, s.name)
+        if s.name == "secret_key":
+            value = "(set)" if value else "(unset)"
+        elif s.name == "database_url":
+            value = _display_url(value)
+        print(f"{s.env}={value}\n    {s.help}")
+    return 0
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(prog="remanence", description="Registry and dashboard for molecular-ferroelectric campaigns.")
+    sub = parser.add_subparsers(dest="command", required=True)
+
+    sub.add_parser("init", help="create or upgrade the database").set_defaults(func=cmd_init)
+
+    def serve_args(p: argparse.ArgumentParser) -> None:
+        p.add_argument("--host", default="127.0.0.1")
+        p.add_argument("--port", type=int, default=8000)
+        p.add_argument("--log-level", default="info")
+
+    p = sub.add_parser("serve", help="serve the web app and API")
+    serve_args(p)
+    p.set_defaults(func=cmd_serve)
+
+    p = sub.add_parser("demo", help="fresh demo database, then serve it")
+    serve_args(p)
+    p.add_argument("--load-only", action="store_true", help="load the demo scenario and exit")
+    p.set_defaults(func=cmd_demo)
+
+    user = sub.add_parser("user", help="accounts").add_subparsers(dest="user_command", required=True)
+    p = user.add_parser("add", help="add an account")
+    p.add_argument("name")
+    p.add_argument("--role", choices=["admin", "member", "viewer"], default="member")
+    p.add_argument("--password-stdin", action="store_true", help="read the password from standard input")
+    p.set_defaults(func=cmd_user_add)
+
+    token = sub.add_parser("token", help="API tokens").add_subparsers(dest="token_command", required=True)
+    p = token.add_parser("create", help="create a token (shown once)")
+    p.add_argument("--name", required=True)
+    p.add_argument("--scope", choices=["upload", "write", "read"], required=True)
+    p.add_argument("--kinds", help="upload tokens: comma-separated measurement kinds allowed")
+    p.set_defaults(func=cmd_token_create)
+    p = token.add_parser("revoke", help="revoke a token")
+    p.add_argument("id", type=int)
+    p.set_defaults(func=cmd_token_revoke)
+
+    sub.add_parser("settings", help="list settings").set_defaults(func=cmd_settings)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    args = build_parser().parse_args(argv)
+    return int(args.func(args) or 0)
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

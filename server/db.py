@@ -1,0 +1,62 @@
+"""Database engines and migrations.
+
+One engine per :class:`~server.settings.Settings`, made by :func:`make_engine` and kept on
+the app (never a module-level global), so each test can have its own database.
+SQLite runs in WAL mode with a busy timeout and enforced foreign keys; PostgreSQL
+through psycopg 3. The schema is only ever created by Alembic (:func:`upgrade`).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from alembic import command
+from alembic.config import Config
+from sqlalchemy import event
+from sqlalchemy.engine import Engine, make_url
+from sqlmodel import create_engine
+
+from .settings import PROJECT_ROOT
+
+SQLITE_BUSY_TIMEOUT_MS = 15_000
+
+
+def make_engine(database_url: str, *, echo: bool = False) -> Engine:
+    url = make_url(database_url)
+    if url.get_backend_name() == "sqlite":
+        if url.database and url.database != ":memory:":
+            Path(url.database).parent.mkdir(parents=True, exist_ok=True)
+        engine = create_engine(
+            database_url,
+            echo=echo,
+            connect_args={"check_same_thread": False, "timeout": SQLITE_BUSY_TIMEOUT_MS / 1000},
+        )
+
+        @event.listens_for(engine, "connect")
+        def _sqlite_pragmas(dbapi_conn, _record):  # noqa: ANN001 - DB-API objects
+            cur = dbapi_conn.cursor()
+            cur.execute("PRAGMA journal_mode=WAL")
+            cur.execute(f"PRAGMA busy_timeout={SQLITE_BUSY_TIMEOUT_MS}")
+            cur.execute("PRAGMA foreign_keys=ON")
+            cur.execute("PRAGMA synchronous=NORMAL")
+            cur.close()
+
+        return engine
+    return create_engine(database_url, echo=echo, pool_pre_ping=True, pool_size=10, max_overflow=10)
+
+
+def alembic_config(database_url: str) -> Config:
+    """Alembic configuration pointing at this project's migrations and the given database."""
+    cfg = Config()
+    cfg.set_main_option("script_location", str(PROJECT_ROOT / "migrations"))
+    cfg.set_main_option("sqlalchemy.url", database_url.replace("%", "%%"))
+    cfg.attributes["configure_logger"] = False
+    return cfg
+
+
+def upgrade(database_url: str, revision: str = "head") -> None:
+    """Create or upgrade the schema by running the migrations."""
+    url = make_url(database_url)
+    if url.get_backend_name() == "sqlite" and url.database and url.database != ":memory:":
+        Path(url.database).parent.mkdir(parents=True, exist_ok=True)
+    command.upgrade(alembic_config(database_url), revision)

@@ -1,0 +1,61 @@
+"""Errors a user can act on.
+
+Every error raised from ingest, chemistry or analysis code is an :class:`InputError`
+(or a subclass) carrying a message written for a chemist, plus where the problem is:
+a form/JSON ``field``, a file ``line`` (1-based, as an editor shows it) or a ``column``.
+The API turns them into 422 responses; nothing is stored when one is raised.
+"""
+
+from __future__ import annotations
+
+
+class RemanenceError(Exception):
+    """Base class of the project's own errors."""
+
+
+class InputError(RemanenceError):
+    """Bad input from a user or an instrument file (HTTP 422)."""
+
+    def __init__(
+        self,
+        message: str,
+        *,
+        field: str | None = None,
+        line: int | None = None,
+        column: str | None = None,
+    ) -> None:
+        self.message = message
+        self.field = field
+        self.line = line
+        self.column = column
+        super().__init__(str(self))
+
+    def __str__(self) -> str:
+        where = []
+        if self.field is not None:
+            where.append(f"field '{self.field}'")
+        if self.line is not None:
+            where.append(f"line {self.line}")
+        if self.column is not None:
+            where.append(f"column '{self.column}'")
+        return f"{', '.join(where)}: {self.message}" if where else self.message
+
+    def to_dict(self) -> dict:
+        out: dict = {"detail": str(self)}
+        for key in ("field", "line", "column"):
+            value = getattr(self, key)
+            if value is not None:
+                out[key] = value
+        return out
+
+
+class ChemistryError(InputError):
+    """A structure RDKit cannot accept (parse, valence, empty input)."""
+
+
+class IngestError(InputError):
+    """An instrument file that cannot be read into a table."""
+
+
+class AnalysisError(InputError):
+    """Data that were read but cannot be analysed (too few points, no zero crossing...)."""

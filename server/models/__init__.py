@@ -1,0 +1,35 @@
+"""SQLModel tables by area. Importing this package registers every table on ``SQLModel.metadata``."""
+
+from sqlmodel import SQLModel
+
+from .accounts import ROLES, SCOPES, ApiToken, User
+from .audit import AuditEvent
+from .jobs import JOB_STATES, Job
+from .measurements import BarrierEstimate, CrystalPhase, Measurement, RawFile
+from .registry import (
+    BATCH_STATES,
+    Batch,
+    BatchCreate,
+    BatchRead,
+    Compound,
+    CompoundCreate,
+    CompoundPage,
+    CompoundRead,
+    CompoundUpdate,
+    Scaffold,
+    ScaffoldCreate,
+    ScaffoldRead,
+    SideChainRead,
+    SideChainSpec,
+)
+from .types import UTCDateTime, utcnow
+
+metadata = SQLModel.metadata
+
+__all__ = [
+    "ApiToken", "AuditEvent", "BATCH_STATES", "BarrierEstimate", "Batch", "BatchCreate", "BatchRead", "Compound",
+    "CompoundCreate", "CompoundPage", "CompoundRead", "CompoundUpdate", "CrystalPhase", "ScaffoldCreate",
+    "ScaffoldRead", "SideChainRead", "SideChainSpec",
+    "JOB_STATES", "Job", "Measurement", "ROLES", "RawFile", "SCOPES", "Scaffold", "UTCDateTime", "User",
+    "metadata", "utcnow",
+]

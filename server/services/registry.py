@@ -1,0 +1,301 @@
+"""Registering compounds, scaffolds and batches."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import lru_cache
+from typing import Optional
+
+from rdkit import Chem
+from sqlalchemy import func
+from sqlalchemy.exc import IntegrityError
+from sqlmodel import Session, select
+
+from ..chem import draw, identity, scaffold as scaffolds, sidechains
+from ..errors import ChemistryError, InputError
+from ..models import (
+    BATCH_STATES,
+    Batch,
+    BatchCreate,
+    BatchRead,
+    Compound,
+    CompoundCreate,
+    CompoundRead,
+    CompoundUpdate,
+    Measurement,
+    Scaffold,
+    ScaffoldCreate,
+    ScaffoldRead,
+    utcnow,
+)
+from ..settings import Settings
+from . import audit
+from .errors import Duplicate, NotFound
+
+
+@dataclass(frozen=True)
+class Preview:
+    """What the registration form shows while a chemist types."""
+
+    identity: identity.Identity
+    side_chains: list[sidechains.SideChain]
+    summary: str
+    svg: str
+    existing: Optional[str]  # code of a registered compound with the same InChIKey
+
+
+def resolve_structure(*, session: Session, data: CompoundCreate) -> str:
+    """The structure text to register: the given SMILES/MOL block, or one built from a scaffold."""
+    if data.smiles and data.smiles.strip():
+        return data.smiles
+    if data.scaffold and data.side_chain:
+        sc = get_scaffold(session, data.scaffold)
+        return scaffolds.build_from_scaffold(
+            sc.smiles, data.side_chain.kind, data.side_chain.carbons, data.side_chain.branched_form
+        )
+    raise ChemistryError("give a SMILES or MOL block, or a scaffold with a side chain", field="smiles")
+
+
+def preview(*, session: Session, text: str) -> Preview:
+    mol = identity.parse_structure(text)
+    ident = identity.identify(mol)
+    chains = sidechains.perceive_side_chains(mol)
+    existing = session.exec(select(Compound.code).where(Compound.inchikey == ident.inchikey)).first()
+    return Preview(
+        identity=ident,
+        side_chains=chains,
+        summary=sidechains.describe_side_chains(chains),
+        svg=draw.depict_svg(mol),
+        existing=existing,
+    )
+
+
+def _next_number(session: Session) -> int:
+    return (session.exec(select(func.max(Compound.number))).one() or 0) + 1
+
+
+def format_code(settings: Settings, number: int) -> str:
+    return f"{settings.code_prefix}-{number:0{settings.code_digits}d}"
+
+
+def register_compound(*, session: Session, settings: Settings, data: CompoundCreate, actor: str) -> Compound:
+    """Parse, identify and store a new compound; refuse a molecule that is registered already."""
+    text = resolve_structure(session=session, data=data)
+    mol = identity.parse_structure(text)
+    ident = identity.identify(mol)
+    existing = session.exec(select(Compound).where(Compound.inchikey == ident.inchikey)).first()
+    if existing is not None:
+        raise Duplicate(f"this molecule is registered already as {existing.code}", existing=existing.code)
+    scaffold_id = get_scaffold(session, data.scaffold).id if data.scaffold else None
+    chains = sidechains.perceive_side_chains(mol)
+    for attempt in range(5):
+        number = _next_number(session)
+        compound = Compound(
+            number=number,
+            code=format_code(settings, number),
+            label=data.label.strip(),
+            smiles=ident.smiles,
+            inchi=ident.inchi,
+            inchikey=ident.inchikey,
+            formula=ident.formula,
+            mw=ident.mw,
+            exact_mass=ident.exact_mass,
+            heavy_atoms=ident.heavy_atoms,
+            side_chains=[c.to_dict() for c in chains],
+            side_chain_summary=sidechains.describe_side_chains(chains),
+            scaffold_id=scaffold_id,
+            notes=data.notes,
+            embargoed=data.embargoed,
+            created_by=actor,
+        )
+        session.add(compound)
+        try:
+            session.flush()
+        except IntegrityError:
+            # Another process took the number (or registered the same molecule) meanwhile.
+            session.rollback()
+            dup = session.exec(select(Compound).where(Compound.inchikey == ident.inchikey)).first()
+            if dup is not None:
+                raise Duplicate(f"this molecule is registered already as {dup.code}", existing=dup.code) from None
+            continue
+        audit.record(
+            session, actor=actor, action="compound.create", entity="compound", code=compound.code,
+            compound_id=compound.id, after=audit.snapshot(compound),
+        )
+        session.commit()
+        session.refresh(compound)
+        return compound
+    raise RuntimeError("could not allocate a compound number after 5 attempts")
+
+
+def get_compound(session: Session, code: str) -> Compound:
+    compound = session.exec(select(Compound).where(Compound.code == code)).first()
+    if compound is None:
+        raise NotFound(f"no compound {code}")
+    return compound
+
+
+def get_scaffold(session: Session, code: str) -> Scaffold:
+    sc = session.exec(select(Scaffold).where(Scaffold.code == code)).first()
+    if sc is None:
+        raise InputError(f"no scaffold {code!r}", field="scaffold")
+    return sc
+
+
+def update_compound(*, session: Session, compound: Compound, data: CompoundUpdate, actor: str) -> Compound:
+    before = audit.snapshot(compound)
+    changes = data.model_dump(exclude_unset=True)
+    if "scaffold" in changes:
+        code = changes.pop("scaffold")
+        compound.scaffold_id = get_scaffold(session, code).id if code else None
+    for key, value in changes.items():
+        if value is not None:
+            setattr(compound, key, value.strip() if isinstance(value, str) else value)
+    compound.updated_at = utcnow()
+    session.add(compound)
+    audit.record(session, actor=actor, action="compound.update", entity="compound", code=compound.code,
+                 compound_id=compound.id, before=before, after=audit.snapshot(compound))
+    session.commit()
+    session.refresh(compound)
+    return compound
+
+
+def set_compound_archived(*, session: Session, compound: Compound, archived: bool, actor: str) -> Compound:
+    before = audit.snapshot(compound)
+    compound.archived = archived
+    compound.updated_at = utcnow()
+    session.add(compound)
+    audit.record(session, actor=actor, action="compound.archive" if archived else "compound.restore",
+                 entity="compound", code=compound.code, compound_id=compound.id, before=before,
+                 after=audit.snapshot(compound))
+    session.commit()
+    session.refresh(compound)
+    return compound
+
+
+def add_batch(*, session: Session, compound: Compound, data: BatchCreate, actor: str) -> Batch:
+    if data.state not in BATCH_STATES:
+        raise InputError(f"state must be one of {', '.join(BATCH_STATES)}", field="state")
+    for attempt in range(5):
+        seq = (session.exec(select(func.max(Batch.seq)).where(Batch.compound_id == compound.id)).one() or 0) + 1
+        batch = Batch(
+            code=f"{compound.code}-B{seq:02d}",
+            compound_id=compound.id,
+            seq=seq,
+            made_on=data.made_on,
+            chemist=data.chemist.strip(),
+            scale_mg=data.scale_mg,
+            yield_pct=data.yield_pct,
+            purity_pct=data.purity_pct,
+            state=data.state,
+            notes=data.notes,
+            created_by=actor,
+        )
+        session.add(batch)
+        try:
+            session.flush()
+        except IntegrityError:
+            session.rollback()
+            continue
+        audit.record(session, actor=actor, action="batch.create", entity="batch", code=batch.code,
+                     compound_id=compound.id, after=audit.snapshot(batch))
+        session.commit()
+        session.refresh(batch)
+        return batch
+    raise RuntimeError("could not allocate a batch number after 5 attempts")
+
+
+def get_batch(session: Session, code: str) -> Batch:
+    batch = session.exec(select(Batch).where(Batch.code == code)).first()
+    if batch is None:
+        raise NotFound(f"no batch {code}")
+    return batch
+
+
+def create_scaffold(*, session: Session, data: ScaffoldCreate, actor: str) -> Scaffold:
+    info = scaffolds.validate_scaffold(data.smiles)
+    code = data.code.strip()
+    if session.exec(select(Scaffold).where(Scaffold.code == code)).first():
+        raise Duplicate(f"scaffold {code} exists already", existing=code)
+    sc = Scaffold(
+        code=code,
+        name=data.name.strip(),
+        smiles=info.smiles,
+        bridge=info.bridge or "",
+        attachment_points=info.attachment_points,
+        core_formula=info.core_formula,
+        notes=data.notes,
+    )
+    session.add(sc)
+    session.flush()
+    audit.record(session, actor=actor, action="scaffold.create", entity="scaffold", code=sc.code, after=audit.snapshot(sc))
+    session.commit()
+    session.refresh(sc)
+    return sc
+
+
+# --- reading -----------------------------------------------------------------------------------
+
+
+def compound_read(session: Session, compound: Compound, *, see_structure: bool) -> CompoundRead:
+    """The API shape of a compound; structures are withheld when embargoed and the caller may not see them."""
+    hide = compound.embargoed and not see_structure
+    scaffold_code = session.get(Scaffold, compound.scaffold_id).code if compound.scaffold_id else None
+    n_batches = session.exec(select(func.count()).select_from(Batch).where(Batch.compound_id == compound.id)).one()
+    return CompoundRead(
+        code=compound.code,
+        label=compound.label,
+        smiles=None if hide else compound.smiles,
+        inchi=None if hide else compound.inchi,
+        inchikey=None if hide else compound.inchikey,
+        formula=None if hide else compound.formula,
+        mw=None if hide else compound.mw,
+        exact_mass=None if hide else compound.exact_mass,
+        side_chains=[] if hide else compound.side_chains,
+        side_chain_summary="" if hide else compound.side_chain_summary,
+        scaffold=scaffold_code,
+        notes=compound.notes,
+        embargoed=compound.embargoed,
+        archived=compound.archived,
+        batches=n_batches,
+        created_at=compound.created_at,
+        created_by=compound.created_by,
+    )
+
+
+def batch_read(session: Session, batch: Batch) -> BatchRead:
+    compound = session.get(Compound, batch.compound_id)
+    n = session.exec(select(func.count()).select_from(Measurement).where(Measurement.batch_id == batch.id)).one()
+    return BatchRead(**batch.model_dump(exclude={"id", "compound_id", "created_by"}), compound=compound.code, measurements=n)
+
+
+def scaffold_read(session: Session, sc: Scaffold) -> ScaffoldRead:
+    n = session.exec(select(func.count()).select_from(Compound).where(Compound.scaffold_id == sc.id)).one()
+    return ScaffoldRead(**sc.model_dump(exclude={"id", "created_at"}), compounds=n)
+
+
+def list_compounds(
+    session: Session, *, limit: int = 50, offset: int = 0, include_archived: bool = False
+) -> tuple[list[Compound], int]:
+    query = select(Compound)
+    count = select(func.count()).select_from(Compound)
+    if not include_archived:
+        query = query.where(Compound.archived == False)  # noqa: E712 - SQL expression
+        count = count.where(Compound.archived == False)  # noqa: E712
+    rows = session.exec(query.order_by(Compound.number.desc()).offset(offset).limit(limit)).all()
+    return list(rows), session.exec(count).one()
+
+
+@lru_cache(maxsize=4096)
+def _svg_for(smiles: str, thumbnail: bool) -> str:
+    mol = Chem.MolFromSmiles(smiles)
+    return draw.thumbnail_svg(mol) if thumbnail else draw.depict_svg(mol)
+
+
+def structure_svg(compound: Compound, *, thumbnail: bool = False) -> str:
+    """The 2D drawing; made once per structure and size, then served from the cache."""
+    return _svg_for(compound.smiles, thumbnail)
+
+
+def batches_of(session: Session, compound: Compound) -> list[Batch]:
+    return list(session.exec(select(Batch).where(Batch.compound_id == compound.id).order_by(Batch.seq)).all())

@@ -1,0 +1,131 @@
+"""Typed settings, read from the environment, each with a default and help text.
+
+The table :data:`SETTINGS` is the single registry: ``Settings.from_env()`` reads it,
+``remanence settings`` prints it, and a test checks that the README documents every
+entry. Nothing here runs at import time; :func:`get_settings` caches one instance and
+tests build their own with :meth:`Settings.from_env` (or ``dataclasses.replace``).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import os
+import secrets
+from dataclasses import dataclass, field
+from functools import lru_cache
+from pathlib import Path
+from typing import Any, Mapping
+
+PROJECT_ROOT = Path(__file__).resolve().parent.parent
+
+
+def _bool(text: str) -> bool:
+    value = text.strip().lower()
+    if value in {"1", "true", "yes", "on"}:
+        return True
+    if value in {"0", "false", "no", "off", ""}:
+        return False
+    raise ValueError(f"expected true or false, got {text!r}")
+
+
+@dataclass(frozen=True)
+class Setting:
+    name: str  # attribute on Settings
+    env: str
+    help: str
+    parse: Any = str
+
+
+SETTINGS: tuple[Setting, ...] = (
+    Setting("data_dir", "REMANENCE_DATA_DIR", "Folder for the default SQLite database and the generated secret key.", Path),
+    Setting(
+        "database_url",
+        "REMANENCE_DATABASE_URL",
+        "SQLAlchemy URL of the database; default a SQLite file in the data folder. "
+        "PostgreSQL: postgresql+psycopg://user@host:5432/dbname.",
+    ),
+    Setting(
+        "secret_key",
+        "REMANENCE_SECRET_KEY",
+        "Key that signs session cookies; generated into the data folder on first run when unset.",
+    ),
+    Setting("code_prefix", "REMANENCE_CODE_PREFIX", "Prefix of compound registry codes (e.g. RMN gives RMN-00042)."),
+    Setting("code_digits", "REMANENCE_CODE_DIGITS", "Zero-padded digits in compound codes.", int),
+    Setting(
+        "public_status",
+        "REMANENCE_PUBLIC_STATUS",
+        "Show the group status page to visitors who are not logged in (embargoed compounds show only their code).",
+        _bool,
+    ),
+    Setting("max_upload_mb", "REMANENCE_MAX_UPLOAD_MB", "Largest instrument file accepted, in MiB.", float),
+    Setting(
+        "embedded_worker",
+        "REMANENCE_EMBEDDED_WORKER",
+        "Run one background worker inside `remanence serve` (the embedded default); set false when separate "
+        "`remanence worker` processes run.",
+        _bool,
+    ),
+    Setting("cookie_secure", "REMANENCE_COOKIE_SECURE", "Send the session cookie over HTTPS only.", _bool),
+    Setting("session_hours", "REMANENCE_SESSION_HOURS", "How long a login lasts, in hours.", float),
+)
+
+
+@dataclass(frozen=True)
+class Settings:
+    data_dir: Path = field(default_factory=lambda: Path.cwd() / "var")
+    database_url: str = ""
+    secret_key: str = ""
+    code_prefix: str = "RMN"
+    code_digits: int = 5
+    public_status: bool = False
+    max_upload_mb: float = 50.0
+    embedded_worker: bool = True
+    cookie_secure: bool = False
+    session_hours: float = 12.0
+
+    @classmethod
+    def from_env(cls, environ: Mapping[str, str] | None = None, **overrides: Any) -> "Settings":
+        """Read every setting from ``environ`` (default ``os.environ``); ``overrides`` win."""
+        env = os.environ if environ is None else environ
+        values: dict[str, Any] = {}
+        for s in SETTINGS:
+            if s.env in env and env[s.env] != "":
+                try:
+                    values[s.name] = s.parse(env[s.env])
+                except ValueError as exc:
+                    raise ValueError(f"{s.env}: {exc}") from None
+        values.update(overrides)
+        return cls(**values).resolved()
+
+    def resolved(self) -> "Settings":
+        """Fill in the derived defaults: database URL in the data folder, and the secret key."""
+        data_dir = Path(self.data_dir)
+        url = self.database_url or f"sqlite:///{data_dir / 'remanence.db'}"
+        key = self.secret_key or _stored_secret(data_dir)
+        return dataclasses.replace(self, data_dir=data_dir, database_url=url, secret_key=key)
+
+    @property
+    def is_sqlite(self) -> bool:
+        return self.database_url.startswith("sqlite")
+
+    @property
+    def max_upload_bytes(self) -> int:
+        return int(self.max_upload_mb * 1024 * 1024)
+
+
+def _stored_secret(data_dir: Path) -> str:
+    """Read the generated secret key, creating it (mode 600) on first run."""
+    path = data_dir / "secret_key"
+    if path.exists():
+        return path.read_text().strip()
+    data_dir.mkdir(parents=True, exist_ok=True)
+    key = secrets.token_urlsafe(48)
+    fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+    with os.fdopen(fd, "w") as fh:
+        fh.write(key + "\n")
+    return key
+
+
+@lru_cache(maxsize=1)
+def get_settings() -> Settings:
+    return Settings.from_env()

@@ -1,0 +1,50 @@
+"""Page or fragment: the one place that looks at HX-Request.
+
+A page template extends ``base.html`` and includes its partials; an htmx request for the
+same view gets only the named partial. ``Vary: HX-Request`` keeps caches from mixing them.
+"""
+
+from __future__ import annotations
+
+from typing import Any, Optional
+
+from fastapi import Request
+from fastapi.responses import HTMLResponse, RedirectResponse
+
+from ..deps import is_htmx
+from ..security import new_csrf_token
+
+
+def csrf_token(request: Request) -> str:
+    token = request.session.get("csrf")
+    if not token:
+        token = new_csrf_token()
+        request.session["csrf"] = token
+    return token
+
+
+def render(
+    request: Request,
+    template: str,
+    context: Optional[dict[str, Any]] = None,
+    *,
+    partial: Optional[str] = None,
+    status_code: int = 200,
+    actor: Any = None,
+) -> HTMLResponse:
+    templates = request.app.state.templates
+    ctx = {"actor": actor, "csrf_token": csrf_token(request), "settings": request.app.state.settings}
+    ctx.update(context or {})
+    name = partial if (partial and is_htmx(request)) else template
+    response = templates.TemplateResponse(request, name, ctx, status_code=status_code)
+    response.headers["Vary"] = "HX-Request"
+    return response
+
+
+def redirect(url: str, request: Request | None = None) -> RedirectResponse:
+    """303 after a successful POST; for htmx, HX-Redirect so the whole page moves."""
+    if request is not None and is_htmx(request):
+        resp = RedirectResponse(url, status_code=303)
+        resp.headers["HX-Redirect"] = url
+        return resp
+    return RedirectResponse(url, status_code=303)

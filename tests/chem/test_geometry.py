@@ -1,0 +1,55 @@
+"""core_atoms on the parent bowls: hub and rim as the geometry module defines them.
+
+Expected atoms are found here from RDKit ring membership and hydrogen counts, independently
+of the geometry code: hub atoms are the six atoms shared by three rings (central benzene,
+one benzo ring, one bridge ring); rim atoms are the one-ring core carbons that carry H or
+a substituent.
+"""
+
+from __future__ import annotations
+
+import pytest
+from rdkit import Chem
+
+from server.chem.geometry import core_atoms
+from server.chem.scaffold import PARENT_BOWLS, build_from_scaffold
+
+
+def parent(bridge: str) -> Chem.Mol:
+    smiles = PARENT_BOWLS[bridge]
+    for n in range(1, 7):
+        smiles = smiles.replace(f"[*:{n}]", "[H]")
+    return Chem.MolFromSmiles(smiles)
+
+
+@pytest.mark.parametrize("bridge", ["CH2", "S", "Se"])
+def test_hub_is_the_central_benzene(bridge):
+    mol = parent(bridge)
+    ring_info = mol.GetRingInfo()
+    three_ring_atoms = {a.GetIdx() for a in mol.GetAtoms() if ring_info.NumAtomRings(a.GetIdx()) == 3}
+    found = core_atoms(mol)
+    assert found is not None
+    assert set(found.hub) == three_ring_atoms
+    assert len(found.core) == mol.GetNumAtoms()  # every atom of the parent is in the ring system
+
+
+@pytest.mark.parametrize("bridge, n_rim", [("S", 6), ("Se", 6), ("CH2", 6)])
+def test_rim_atoms(bridge, n_rim):
+    mol = parent(bridge)
+    aromatic_ch = {a.GetIdx() for a in mol.GetAtoms() if a.GetIsAromatic() and a.GetTotalNumHs() == 1}
+    found = core_atoms(mol)
+    assert aromatic_ch == set(found.rim)
+    assert len(aromatic_ch) == 6
+    # Bridge atoms (the CH2 carbons, S, Se in the five-membered rings) are never rim atoms,
+    # so all three bowls measure depth on the same six peripheral carbons.
+    assert len(found.rim) == n_rim
+
+
+def test_rim_of_a_substituted_bowl_is_where_the_chains_sit():
+    mol = Chem.MolFromSmiles(build_from_scaffold(PARENT_BOWLS["Se"], "alkoxy", 4))
+    found = core_atoms(mol)
+    oxygen_bearing = {
+        a.GetIdx() for a in mol.GetAtoms()
+        if a.GetIsAromatic() and any(n.GetSymbol() == "O" for n in a.GetNeighbors())
+    }
+    assert set(found.rim) == oxygen_bearing

@@ -1,0 +1,49 @@
+"""The remanence command, run in-process against a fresh database (SQLite and PostgreSQL)."""
+
+from __future__ import annotations
+
+import io
+
+import pytest
+from sqlmodel import Session, select
+
+from server.cli import main
+from server.db import make_engine
+from server.models import ApiToken, User
+from server.security import hash_token, verify_password
+
+
+@pytest.fixture
+def env(monkeypatch, settings):
+    monkeypatch.setenv("REMANENCE_DATABASE_URL", settings.database_url)
+    monkeypatch.setenv("REMANENCE_DATA_DIR", str(settings.data_dir))
+    return settings
+
+
+def test_init_user_and_token(env, monkeypatch, capsys):
+    assert main(["init"]) == 0
+    monkeypatch.setattr("sys.stdin", io.StringIO("a-long-password\n"))
+    assert main(["user", "add", "lena", "--role", "admin", "--password-stdin"]) == 0
+    assert main(["token", "create", "--name", "dsc-pc", "--scope", "upload", "--kinds", "dsc"]) == 0
+    out = capsys.readouterr().out.strip().splitlines()
+    secret = out[-1]
+    assert secret.startswith("rmn_") and " " not in secret
+    engine = make_engine(env.database_url)
+    with Session(engine) as s:
+        user = s.exec(select(User).where(User.username == "lena")).one()
+        assert user.role == "admin" and verify_password(user.password_hash, "a-long-password")
+        assert "a-long-password" not in user.password_hash
+        token = s.exec(select(ApiToken)).one()
+        assert token.token_hash == hash_token(secret) and secret not in token.token_hash
+        assert (token.scope, token.kinds) == ("upload", ["dsc"])
+    assert main(["token", "revoke", str(token.id)]) == 0
+    with Session(engine) as s:
+        assert s.get(ApiToken, token.id).revoked_at is not None
+    engine.dispose()
+
+
+def test_bad_cli_input_is_refused(env, monkeypatch, capsys):
+    monkeypatch.setattr("sys.stdin", io.StringIO("short\n"))
+    assert main(["user", "add", "kim", "--password-stdin"]) == 2
+    assert "at least 8" in capsys.readouterr().err
+    assert main(["token", "create", "--name", "x", "--scope", "read", "--kinds", "dsc"]) == 2

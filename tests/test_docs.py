@@ -1,0 +1,34 @@
+"""The README documents every setting and every CLI command (STYLE.md, example 7)."""
+
+from __future__ import annotations
+
+from server.cli import build_parser
+from server.settings import PROJECT_ROOT, SETTINGS
+
+README = (PROJECT_ROOT / "README.md").read_text()
+
+
+def _commands(parser, prefix="remanence"):
+    for action in parser._subparsers._group_actions if parser._subparsers else []:
+        for name, sub in action.choices.items():
+            if sub._subparsers:
+                yield from _commands(sub, f"{prefix} {name}")
+            else:
+                yield f"{prefix} {name}"
+
+
+def test_every_setting_is_in_the_readme():
+    missing = [s.env for s in SETTINGS if f"`{s.env}`" not in README]
+    assert not missing, f"README lacks settings: {missing}"
+
+
+def test_every_command_is_in_the_readme():
+    commands = list(_commands(build_parser()))
+    assert "remanence token create" in commands
+    missing = [c for c in commands if f"`{c}" not in README]
+    assert not missing, f"README lacks commands: {missing}"
+
+
+def test_readme_opens_with_the_two_commands():
+    head = README.split("## ", 1)[0]
+    assert "make demo" in head and "make test" in head

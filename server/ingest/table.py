@@ -1,0 +1,677 @@
+"""Read instrument files (CSV, TSV, XLSX) into canonical tables.
+
+The upload format (shared data contract): optional leading ``# key: value`` lines
+(metadata) and plain ``#`` comments, one header row naming each column as
+``name (unit)``, then numeric rows. :func:`read_table` returns a :class:`ParsedTable`
+whose ``frame`` has canonical column names (``E_kV_cm``, ``T_K`` ...) holding values
+converted to canonical units with pint.
+
+Errors are :class:`~server.errors.IngestError` with the 1-based file line (for XLSX:
+the spreadsheet row) and the column header as written, so a chemist can open the
+file and fix the cell.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import re
+import warnings
+import zipfile
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from server.errors import IngestError
+from server.ingest.columns import BY_NAME, ColumnSpec, convert_to_canonical, parse_headers
+
+BINARY_MESSAGE = "this looks like a binary file, not a CSV/TSV/XLSX table"
+NO_HEADER_MESSAGE = "no header row: the first row must name each column as 'name (unit)'"
+
+# An XLSX holds compressed XML; refuse archives that would unpack to more than this.
+MAX_XLSX_UNCOMPRESSED_BYTES = 512 * 1024 * 1024
+# Share of control characters above which decoded "text" is taken for binary data.
+MAX_CONTROL_SHARE = 0.01
+
+_SIGNATURES: tuple[tuple[bytes, str], ...] = (
+    (b"\x89PNG", "a PNG image"),
+    (b"\xff\xd8\xff", "a JPEG image"),
+    (b"GIF8", "a GIF image"),
+    (b"%PDF", "a PDF document"),
+    (b"\x1f\x8b", "a gzip archive"),
+    (b"BZh", "a bzip2 archive"),
+    (b"7z\xbc\xaf", "a 7-zip archive"),
+    (b"\xfd7zXZ", "an xz archive"),
+    (b"Rar!", "a RAR archive"),
+    (b"\xd0\xcf\x11\xe0", "an old-style Excel .xls (or other OLE) file: save it as .xlsx or CSV"),
+    (b"\x7fELF", "a program"),
+    (b"MZ", "a Windows program"),
+    (b"II*\x00", "a TIFF image"),
+    (b"MM\x00*", "a TIFF image"),
+)
+_ZIP_MAGIC = (b"PK\x03\x04", b"PK\x05\x06")
+# What zipfile raises on a damaged archive (NotImplementedError: unknown zip version).
+_ZIP_ERRORS = (zipfile.BadZipFile, zipfile.LargeZipFile, OSError, ValueError, EOFError, NotImplementedError)
+
+_NUMBER_RE = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
+_META_RE = re.compile(r"\s*([^:]{1,80}?)\s*:\s*(.*?)\s*")
+_DELIMITERS = ("\t", ";", ",")
+# A blank (whitespace-only) or '#' line anywhere in the data part.
+_SKIP_LINE_RE = re.compile(r"^\s*(?:#|$)", re.MULTILINE)
+_SNIFF_ROWS = 20
+
+
+@dataclass(frozen=True, eq=False)
+class ParsedTable:
+    """An instrument file read into canonical columns.
+
+    Attributes
+    ----------
+    frame : pandas.DataFrame
+        Canonical columns (``E_kV_cm``, ``P_uC_cm2``, ...) in file order, float64,
+        in canonical units.
+    metadata : dict[str, str]
+        ``# key: value`` lines; keys lower-cased with surrounding space removed.
+    source_columns : dict[str, str]
+        Canonical name -> header as written in the file.
+    first_data_line : int
+        1-based file line (XLSX: row) of the first data row.
+    n_rows : int
+        Number of data rows.
+    format : str
+        ``"csv"``, ``"tsv"`` or ``"xlsx"``.
+    source_units : dict[str, str]
+        Canonical name -> unit the file used (pint spelling), e.g. ``"degree_Celsius"``.
+    notes : tuple[str, ...]
+        What the reader did that a person may want to know (decimal commas, encoding).
+    """
+
+    frame: pd.DataFrame
+    metadata: dict[str, str]
+    source_columns: dict[str, str]
+    first_data_line: int
+    n_rows: int
+    format: str
+    source_units: dict[str, str] = field(default_factory=dict)
+    notes: tuple[str, ...] = ()
+
+
+# --------------------------------------------------------------------------- detection
+
+
+def _binary_error(what: str | None = None) -> IngestError:
+    if what:
+        return IngestError(f"{BINARY_MESSAGE} (it is {what})")
+    return IngestError(BINARY_MESSAGE)
+
+
+_CONTROL_RE = re.compile("[\x01-\x08\x0b\x0e-\x1f\x7f-\x9f]")
+
+
+def _control_share(text: str) -> float:
+    """Share of C0 controls (except tab, LF, CR, FF), DEL and C1 controls: what binary decodes to."""
+    if not text:
+        return 0.0
+    return len(_CONTROL_RE.findall(text)) / len(text)
+
+
+def _decode(raw: bytes) -> tuple[str, list[str]]:
+    """Bytes -> text, refusing binaries; returns the text and notes on the encoding."""
+    notes: list[str] = []
+    if raw[:2] in (b"\xff\xfe", b"\xfe\xff"):
+        try:
+            text = raw.decode("utf-16")
+        except UnicodeDecodeError as exc:
+            raise _binary_error() from exc
+        notes.append("read as UTF-16 text")
+    else:
+        for magic, what in _SIGNATURES:
+            if raw.startswith(magic):
+                raise _binary_error(what)
+        if b"\x00" in raw:
+            raise _binary_error()
+        try:
+            text = raw.decode("utf-8-sig")
+        except UnicodeDecodeError:
+            try:
+                text = raw.decode("cp1252")
+                notes.append("not UTF-8: read as Windows-1252 text")
+            except UnicodeDecodeError:
+                text = raw.decode("latin-1")
+                notes.append("not UTF-8: read as Latin-1 text")
+    if "\x00" in text or _control_share(text) > MAX_CONTROL_SHARE:
+        raise _binary_error()
+    return text.lstrip("\ufeff"), notes
+
+
+# --------------------------------------------------------------------------- preamble
+
+
+def _parse_meta_line(body: str) -> tuple[str, str] | None:
+    """``"# key: value"`` (without the '#') -> (key, value); None for a plain comment."""
+    m = _META_RE.fullmatch(body)
+    if m is None:
+        return None
+    key = re.sub(r"\s+", " ", m.group(1)).strip().lower()
+    if not key:
+        return None
+    return key, m.group(2)
+
+
+def _add_meta(metadata: dict[str, str], meta_lines: dict[str, int], key: str, value: str, line: int) -> None:
+    if key in metadata and metadata[key] != value:
+        raise IngestError(
+            f"metadata key '{key}' is given twice with different values "
+            f"(lines {meta_lines[key]} and {line}); keep one",
+            line=line,
+        )
+    metadata[key] = value
+    meta_lines[key] = line
+
+
+def _comment_body(stripped: str, pad: str = "") -> str:
+    """Text of a '#' line without the '#' and without the quotes and the run of empty
+    trailing cells (``pad``, e.g. ``",,"``) that a spreadsheet adds when it saves as CSV."""
+    if pad and stripped.endswith(pad):
+        stripped = stripped[: -len(pad)].rstrip()
+    if stripped.startswith('"#'):
+        first = next(csv.reader([stripped]), [stripped])
+        stripped = first[0] if first else stripped
+    return stripped[1:].strip()
+
+
+def _looks_numeric(cells: Sequence[str]) -> bool:
+    filled = [c for c in cells if c]
+    if not filled:
+        return False
+    numeric = sum(1 for c in filled if _NUMBER_RE.fullmatch(c) or c.lower() in {"nan", "inf", "-inf", "+inf"})
+    return 2 * numeric >= len(filled)
+
+
+# --------------------------------------------------------------------------- shared checks
+
+
+def _named_width(headers: Sequence[str], line: int) -> int:
+    """Number of named columns; empty names are allowed only at the end (trailing separators)."""
+    width = len(headers)
+    while width and not headers[width - 1]:
+        width -= 1
+    for i, h in enumerate(headers[:width]):
+        if not h:
+            raise IngestError(
+                f"column {i + 1} has no name; name each column as 'name (unit)'",
+                line=line,
+                column=f"column {i + 1}",
+            )
+    if width == 0:
+        raise IngestError(NO_HEADER_MESSAGE, line=line)
+    return width
+
+
+def _cell_error(text: str, line: int, column: str) -> IngestError:
+    if not text:
+        return IngestError("empty cell: every row needs a number in every column", line=line, column=column)
+    shown = text if len(text) <= 40 else text[:37] + "..."
+    if _NUMBER_RE.fullmatch(text):
+        return IngestError(f"'{shown}' is too large for a double-precision number", line=line, column=column)
+    if text.strip().lower().lstrip("+-") in {"nan", "inf", "infinity", "na", "n/a", "null", "none"}:
+        return IngestError(
+            f"'{shown}' is not a number (NaN and infinity are not accepted)", line=line, column=column
+        )
+    return IngestError(f"'{shown}' is not a number", line=line, column=column)
+
+
+def _build(
+    specs: list[ColumnSpec],
+    values: np.ndarray,
+    linenos: Sequence[int],
+    cell_text: Callable[[int, int], str],
+    *,
+    metadata: dict[str, str],
+    fmt: str,
+    notes: list[str],
+) -> ParsedTable:
+    """Check finiteness, convert to canonical units and assemble the ParsedTable."""
+    bad = ~np.isfinite(values)
+    if bad.any():
+        r, c = np.argwhere(bad)[0]
+        raise _cell_error(cell_text(int(r), int(c)), linenos[r], specs[c].header)
+    columns: dict[str, np.ndarray] = {}
+    for j, spec in enumerate(specs):
+        with np.errstate(over="ignore", invalid="ignore"):
+            try:
+                converted = np.asarray(convert_to_canonical(values[:, j], spec), dtype=np.float64)
+            except OverflowError as exc:
+                raise IngestError(
+                    f"the unit '{spec.unit:~P}' cannot be converted to {spec.quantity.unit} in floating point",
+                    line=linenos[0],
+                    column=spec.header,
+                ) from exc
+        overflow = ~np.isfinite(converted)
+        if overflow.any():
+            r = int(np.argmax(overflow))
+            raise IngestError(
+                f"'{cell_text(r, j)}' {spec.unit:~P} is out of range once converted to {spec.quantity.unit}",
+                line=linenos[r],
+                column=spec.header,
+            )
+        if spec.quantity.temperature:
+            below = converted < 0
+            if below.any():
+                r = int(np.argmax(below))
+                raise IngestError(
+                    f"'{cell_text(r, j)}' is below absolute zero; check the unit in the header",
+                    line=linenos[r],
+                    column=spec.header,
+                )
+        columns[spec.canonical] = converted
+    frame = pd.DataFrame(columns)
+    return ParsedTable(
+        frame=frame,
+        metadata=metadata,
+        source_columns={s.canonical: s.header for s in specs},
+        first_data_line=int(linenos[0]),
+        n_rows=len(frame),
+        format=fmt,
+        source_units={s.canonical: str(s.unit) for s in specs},
+        notes=tuple(notes),
+    )
+
+
+# --------------------------------------------------------------------------- text
+
+
+def _split_cells(line: str, delimiter: str) -> list[str]:
+    return [c.strip() for c in line.split(delimiter)]
+
+
+def _sniff_delimiter(header: str, sample: Sequence[str]) -> str:
+    """Pick tab, semicolon or comma: the one that splits the header and every sampled row alike."""
+    best, best_n = ",", 1
+    for d in _DELIMITERS:
+        n = header.count(d)
+        if n == 0:
+            continue
+        if all(row.replace('"', "").count(d) == n for row in sample):
+            return d
+        if n + 1 > best_n:
+            best, best_n = d, n + 1
+    return best
+
+
+def _read_text(text: str, notes: list[str]) -> ParsedTable:
+    lines = text.replace("\r\n", "\n").replace("\r", "\n").split("\n")
+    comments: list[tuple[int, str]] = []  # (line number, '#' line) before the header
+    header_idx: int | None = None
+    for i, line in enumerate(lines):
+        stripped = line.strip()
+        if not stripped:
+            continue
+        if stripped.startswith("#") or stripped.startswith('"#'):
+            comments.append((i + 1, stripped))
+            continue
+        header_idx = i
+        break
+    if header_idx is None:
+        if any(_parse_meta_line(_comment_body(c)) for _, c in comments):
+            raise IngestError("the file has metadata lines but no table: add a header row and data rows")
+        if comments:
+            raise IngestError("the file has only comment lines and no table")
+        raise IngestError("the file is empty")
+
+    header_line = lines[header_idx].strip(" ")
+    header_no = header_idx + 1
+    body = lines[header_idx + 1 :]
+    while body and not body[-1].strip():
+        body.pop()
+    sample = [line for line in body[: 5 * _SNIFF_ROWS] if line.strip() and not line.lstrip().startswith("#")]
+    delimiter = _sniff_delimiter(header_line, sample[:_SNIFF_ROWS])
+    fmt = "tsv" if delimiter == "\t" else "csv"
+    try:
+        headers = [h.strip() for h in next(csv.reader([header_line], delimiter=delimiter))]
+    except (csv.Error, StopIteration) as exc:
+        raise IngestError(f"the header row cannot be split into columns ({exc})", line=header_no) from exc
+    if _looks_numeric(headers):
+        raise IngestError(NO_HEADER_MESSAGE, line=header_no)
+    width = _named_width(headers, header_no)
+    specs = parse_headers(headers[:width], line=header_no)
+
+    metadata: dict[str, str] = {}
+    meta_lines: dict[str, int] = {}
+    pad = delimiter * (len(headers) - 1)
+    for no, comment in comments:
+        parsed_meta = _parse_meta_line(_comment_body(comment, pad))
+        if parsed_meta is not None:
+            _add_meta(metadata, meta_lines, parsed_meta[0], parsed_meta[1], no)
+
+    # A spreadsheet's trailing rows of bare separators (",,") are not data.
+    while body and not body[-1].replace(delimiter, "").strip():
+        body.pop()
+    body_text = "\n".join(body)
+    data: list[str]
+    linenos: Sequence[int]
+    if _SKIP_LINE_RE.search(body_text) is None:
+        # Fast path: no blank or comment line among the data, every line is a row.
+        data, linenos = body, range(header_no + 1, header_no + 1 + len(body))
+    else:
+        keep = [j for j, line in enumerate(body) if line.strip() and not line.lstrip().startswith("#")]
+        data = [body[j] for j in keep]
+        linenos = [header_no + 1 + j for j in keep]
+        body_text = "\n".join(data)
+    if not data:
+        raise IngestError("the file has a header row but no data rows below it", line=header_no)
+
+    if '"' in body_text:
+        body_text = body_text.replace('"', "")
+        data = body_text.split("\n")
+    if delimiter == ";" and "," in body_text:
+        body_text = body_text.replace(",", ".")
+        data = body_text.split("\n")
+        notes.append("decimal commas read as decimal points (semicolon-separated file)")
+
+    n_fields = len(headers)
+    expected = n_fields - 1
+
+    def count_error() -> IngestError | None:
+        for line, no in zip(data, linenos):
+            got = line.count(delimiter) + 1
+            if got != n_fields:
+                return IngestError(
+                    f"this row has {got} field{'s' if got != 1 else ''} but the header has {n_fields} columns",
+                    line=no,
+                )
+        return None
+
+    # One count over the text; only when it disagrees are the lines counted one by one.
+    if body_text.count(delimiter) != expected * len(data):
+        err = count_error()
+        if err is not None:
+            raise err
+
+    def cell_text(r: int, c: int) -> str:
+        return _split_cells(data[r], delimiter)[c]
+
+    def locate(exc: Exception) -> IngestError:
+        err = count_error()
+        if err is not None:
+            return err
+        for r, line in enumerate(data):
+            for c, cell in enumerate(_split_cells(line, delimiter)):
+                column = headers[c] if c < width else f"column {c + 1}"
+                if c >= width:
+                    if cell:
+                        return IngestError(
+                            f"'{cell}' is in a column that has no header", line=linenos[r], column=column
+                        )
+                    continue
+                if not _NUMBER_RE.fullmatch(cell):
+                    return _cell_error(cell, linenos[r], column)
+        return IngestError(f"the data rows could not be read as numbers ({exc})", line=linenos[0])
+
+    try:
+        with warnings.catch_warnings():
+            # Rows too long are found by count_error(); pandas' own warning is noise here.
+            warnings.simplefilter("ignore", pd.errors.ParserWarning)
+            parsed = pd.read_csv(
+                io.StringIO(body_text),
+                sep=delimiter,
+                header=None,
+                names=list(range(n_fields)),
+                index_col=False,
+                dtype=np.float64,
+                engine="c",
+                quoting=csv.QUOTE_NONE,
+                skip_blank_lines=False,
+                low_memory=False,
+            )
+    except (ValueError, OverflowError) as exc:  # pandas ParserError is a ValueError
+        raise locate(exc) from exc
+    values = parsed.to_numpy(dtype=np.float64)
+    if values.shape != (len(data), n_fields):
+        raise locate(ValueError(f"read {values.shape[0]} rows from {len(data)} lines"))
+    if not np.isfinite(values[:, :width]).all():
+        # A short row reads as NaN: report it as a short row, not as an empty cell.
+        err = count_error()
+        if err is not None:
+            raise err
+    if width < n_fields:
+        extra = ~np.isnan(values[:, width:])
+        if extra.any():
+            r, c = np.argwhere(extra)[0]
+            raise IngestError(
+                f"'{cell_text(int(r), int(c) + width)}' is in a column that has no header",
+                line=linenos[r],
+                column=f"column {int(c) + width + 1}",
+            )
+        values = values[:, :width]
+    return _build(specs, values, linenos, cell_text, metadata=metadata, fmt=fmt, notes=notes)
+
+
+# --------------------------------------------------------------------------- xlsx
+
+
+def _cell_str(value: Any) -> str:
+    if value is None:
+        return ""
+    if isinstance(value, float) and value.is_integer():
+        return str(int(value))
+    return str(value).strip()
+
+
+def _read_xlsx(raw: bytes, notes: list[str]) -> ParsedTable:
+    import openpyxl  # imported here: only XLSX uploads pay for it
+
+    try:
+        with zipfile.ZipFile(io.BytesIO(raw)) as archive:
+            names = set(archive.namelist())
+            unpacked = sum(info.file_size for info in archive.infolist())
+    except _ZIP_ERRORS as exc:
+        raise IngestError(f"this file starts like an XLSX workbook but is damaged ({exc})") from exc
+    if "xl/workbook.xml" not in names:
+        raise IngestError(
+            "this is a zip archive but not an XLSX workbook (is it .ods or .docx?); save it as .xlsx or CSV"
+        )
+    if unpacked > MAX_XLSX_UNCOMPRESSED_BYTES:
+        raise IngestError("this workbook unpacks to more than 512 MB; export the sheet as CSV")
+    try:
+        wb = openpyxl.load_workbook(io.BytesIO(raw), read_only=True, data_only=True)
+    except Exception as exc:  # openpyxl raises many types on malformed workbooks; re-raised as IngestError
+        raise IngestError(f"this XLSX workbook cannot be opened ({type(exc).__name__}: {exc})") from exc
+    try:
+        if not wb.worksheets:
+            raise IngestError("the workbook has no worksheet")
+        ws = wb.worksheets[0]
+        if len(wb.worksheets) > 1:
+            notes.append(f"read the first worksheet ('{ws.title}') of {len(wb.worksheets)}")
+        try:
+            rows = [tuple(r) for r in ws.iter_rows(values_only=True)]
+        except Exception as exc:  # malformed sheet XML; re-raised as IngestError
+            raise IngestError(f"the first worksheet cannot be read ({type(exc).__name__}: {exc})") from exc
+    finally:
+        wb.close()
+    return _rows_to_table(rows, notes)
+
+
+def _rows_to_table(rows: list[tuple[Any, ...]], notes: list[str]) -> ParsedTable:
+    metadata: dict[str, str] = {}
+    meta_lines: dict[str, int] = {}
+
+    def blank(row: tuple[Any, ...]) -> bool:
+        return all(_cell_str(v) == "" for v in row)
+
+    def comment(row: tuple[Any, ...]) -> bool:
+        first = next((v for v in row if _cell_str(v) != ""), None)
+        return isinstance(first, str) and first.strip().startswith("#")
+
+    header_idx: int | None = None
+    for i, row in enumerate(rows):
+        if blank(row):
+            continue
+        if comment(row):
+            joined = " ".join(_cell_str(v) for v in row if _cell_str(v) != "")
+            parsed = _parse_meta_line(joined.strip()[1:])
+            if parsed is not None:
+                _add_meta(metadata, meta_lines, parsed[0], parsed[1], i + 1)
+            continue
+        header_idx = i
+        break
+    if header_idx is None:
+        if metadata:
+            raise IngestError("the worksheet has metadata rows but no table: add a header row and data rows")
+        raise IngestError("the first worksheet is empty")
+    header_no = header_idx + 1
+    headers = [_cell_str(v) for v in rows[header_idx]]
+    if _looks_numeric(headers):
+        raise IngestError(NO_HEADER_MESSAGE, line=header_no)
+    width = _named_width(headers, header_no)
+    specs = parse_headers(headers[:width], line=header_no)
+
+    data: list[tuple[Any, ...]] = []
+    linenos: list[int] = []
+    for i in range(header_idx + 1, len(rows)):
+        row = rows[i]
+        if blank(row) or comment(row):
+            continue
+        data.append(row)
+        linenos.append(i + 1)
+    if not data:
+        raise IngestError("the worksheet has a header row but no data rows below it", line=header_no)
+
+    values = np.empty((len(data), width), dtype=np.float64)
+    for r, row in enumerate(data):
+        for c, v in enumerate(row):
+            if c >= width:
+                if _cell_str(v) != "":
+                    raise IngestError(
+                        f"'{_cell_str(v)}' is in a column that has no header",
+                        line=linenos[r],
+                        column=f"column {c + 1}",
+                    )
+                continue
+            if isinstance(v, (int, float)) and not isinstance(v, bool):
+                values[r, c] = float(v)
+            elif isinstance(v, str) and _NUMBER_RE.fullmatch(v.strip()):
+                values[r, c] = float(v.strip())
+            else:
+                raise _cell_error(_cell_str(v), linenos[r], specs[c].header)
+        for c in range(len(row), width):
+            raise _cell_error("", linenos[r], specs[c].header)
+
+    def cell_text(r: int, c: int) -> str:
+        row = data[r]
+        return _cell_str(row[c]) if c < len(row) else ""
+
+    return _build(specs, values, linenos, cell_text, metadata=metadata, fmt="xlsx", notes=notes)
+
+
+# --------------------------------------------------------------------------- public
+
+
+def read_table(raw: bytes, *, filename: str | None = None) -> ParsedTable:
+    """Read an instrument file (CSV, TSV or XLSX bytes) into canonical columns.
+
+    Parameters
+    ----------
+    raw : bytes
+        The whole file as uploaded (never re-read from disk).
+    filename : str, optional
+        The upload's name; used only to say what went wrong (an ``.xlsx`` that is
+        not a workbook). The content decides the format.
+
+    Returns
+    -------
+    ParsedTable
+
+    Raises
+    ------
+    IngestError
+        Binary or damaged file, missing header, unknown column or unit, a cell that
+        is not a finite number (with its line and column), ragged rows, no data.
+
+    Notes
+    -----
+    Text is UTF-8 (with or without BOM), UTF-16 with BOM, or else Windows-1252/Latin-1.
+    The delimiter is the one of tab, semicolon, comma that splits the header and the
+    first rows into the same number of fields. In semicolon-separated files decimal
+    commas are accepted (common on European instrument PCs) and a note says so.
+    Blank lines and ``#`` comment lines are skipped anywhere; ``# key: value`` lines
+    before the header are metadata. Offset units (degC) are converted with pint's
+    offset arithmetic; temperatures below absolute zero are refused.
+    """
+    raw = bytes(raw)
+    notes: list[str] = []
+    if not raw.strip():
+        raise IngestError("the file is empty")
+    if raw.startswith(_ZIP_MAGIC):
+        return _read_xlsx(raw, notes)
+    if filename and filename.lower().endswith((".xlsx", ".xlsm")):
+        try:
+            raw.decode("utf-8")
+        except UnicodeDecodeError:
+            raise IngestError(
+                f"'{filename}' is named like an XLSX workbook but is not one; save it again as .xlsx or CSV"
+            ) from None
+        notes.append(f"'{filename}' is named .xlsx but holds text: read as CSV/TSV")
+    text, enc_notes = _decode(raw)
+    notes.extend(enc_notes)
+    return _read_text(text, notes)
+
+
+def _header_for(column: Any) -> str:
+    name = str(column)
+    q = BY_NAME.get(name)
+    return q.header if q is not None else name
+
+
+def _check_writable(frame: pd.DataFrame, metadata: Mapping[str, Any] | None) -> list[str]:
+    lines = []
+    for key, value in (metadata or {}).items():
+        key_s, value_s = str(key).strip(), str(value).strip()
+        if not key_s or ":" in key_s or "\n" in key_s or "\r" in key_s:
+            raise ValueError(f"metadata key {key!r} cannot be written as '# key: value'")
+        if "\n" in value_s or "\r" in value_s:
+            raise ValueError(f"metadata value for {key!r} has a line break")
+        lines.append(f"# {key_s}: {value_s}")
+    for name in frame.columns:
+        col = frame[name]
+        if pd.api.types.is_numeric_dtype(col) and not np.isfinite(col.to_numpy(dtype=np.float64)).all():
+            raise ValueError(f"column {name!r} holds NaN or infinity; an instrument file cannot carry them")
+    return lines
+
+
+def to_csv_bytes(frame: pd.DataFrame, metadata: Mapping[str, Any] | None = None) -> bytes:
+    """Write ``# key: value`` lines, then the frame as CSV (UTF-8).
+
+    Column names are the headers (``"E (kV/cm)"``); canonical names (``E_kV_cm``) are
+    written as their headers so a frame from :func:`read_table` reads back the same.
+    Floats are written with Python's shortest repr, which reads back bit-exact.
+    """
+    lines = _check_writable(frame, metadata)
+    out = io.StringIO()
+    for line in lines:
+        if line.endswith((",", ";", "\t")):
+            # Quoted, so the reader does not take the end for a spreadsheet's empty cells.
+            line = '"' + line.replace('"', '""') + '"'
+        out.write(line + "\n")
+    frame.to_csv(out, index=False, header=[_header_for(c) for c in frame.columns], lineterminator="\n")
+    return out.getvalue().encode("utf-8")
+
+
+def to_xlsx_bytes(frame: pd.DataFrame, metadata: Mapping[str, Any] | None = None) -> bytes:
+    """Write the same layout as :func:`to_csv_bytes` into the first sheet of an XLSX workbook."""
+    import openpyxl
+
+    lines = _check_writable(frame, metadata)
+    wb = openpyxl.Workbook(write_only=True)
+    ws = wb.create_sheet("data")
+    for line in lines:
+        ws.append([line])
+    ws.append([_header_for(c) for c in frame.columns])
+    for row in frame.itertuples(index=False, name=None):
+        ws.append([v.item() if isinstance(v, np.generic) else v for v in row])
+    out = io.BytesIO()
+    wb.save(out)
+    return out.getvalue()

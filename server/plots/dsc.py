@@ -1,0 +1,119 @@
+"""Figure for DSC: heat flow (W/g, endothermic up) against T with baselines, onsets and integrated areas."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import plotly.graph_objects as go
+
+from server.analysis.dsc import DscResult, analyse_dsc
+from server.plots import PALETTE, SERIES, base_layout
+
+X_T = "T (K)"
+Y_HF = "heat flow (W/g), endo up"
+
+
+def _rgba(hex_colour: str, alpha: float) -> str:
+    h = hex_colour.lstrip("#")
+    r, g, b = (int(h[i : i + 2], 16) for i in (0, 2, 4))
+    return f"rgba({r},{g},{b},{alpha})"
+
+
+def dsc_figure(result: DscResult, frame: pd.DataFrame | None = None, *, title: str | None = None) -> go.Figure:
+    """Heat flow against temperature with each peak's baseline, shaded area, onset tangent and dH.
+
+    Parameters
+    ----------
+    result : DscResult
+        From :func:`server.analysis.dsc.analyse_dsc`.
+    frame : pandas.DataFrame, optional
+        The canonical frame the result came from; needed only when ``result`` carries no
+        ``curves`` (e.g. rebuilt elsewhere): the trace is then analysed again with the
+        result's mass, rate and sign convention.
+    title : str, optional
+        Figure title.
+
+    Notes
+    -----
+    The signal is drawn with endothermic effects up, whatever the file's convention.
+    """
+    curves = result.curves
+    if curves is None:
+        if frame is None:
+            raise ValueError("the result carries no curves: pass the frame it came from")
+        curves = analyse_dsc(
+            frame, mass_mg=result.mass_mg, rate_K_min=result.rate_K_min, endo=result.endo,
+            molar_mass_g_mol=result.molar_mass_g_mol,
+        ).curves
+    fig = go.Figure()
+    for k, seg in enumerate(curves["segments"]):
+        colour = SERIES[k % len(SERIES)]
+        fig.add_trace(
+            go.Scatter(
+                x=seg["t_K"], y=seg["heat_flow_W_g"], mode="lines",
+                name=f"segment {seg['index']} ({seg['direction']})", line=dict(color=colour, width=1.5),
+                hovertemplate="T = %{x:.2f} K<br>heat flow = %{y:.4g} W/g<extra></extra>",
+            )
+        )
+    for j, pk in enumerate(curves["peaks"]):
+        colour = SERIES[pk["segment"] % len(SERIES)]
+        tw, sig, base = np.asarray(pk["t_K"]), np.asarray(pk["heat_flow_W_g"]), np.asarray(pk["baseline_W_g"])
+        dh = pk["dh_J_g"]
+        text = f"ΔH = {dh:.4g} J/g ({'endo' if dh > 0 else 'exo'})<br>peak {pk['peak_K']:.2f} K"
+        onset = pk["onset"]
+        if onset is not None:
+            text += f"<br>onset {onset['t_K']:.2f} K"
+        fig.add_trace(
+            go.Scatter(
+                x=np.concatenate([tw, tw[::-1]]), y=np.concatenate([sig, base[::-1]]),
+                fill="toself", fillcolor=_rgba(colour, 0.25), line=dict(width=0), mode="lines",
+                name=f"ΔH = {dh:.3g} J/g", legendgroup=f"peak{j}", hoveron="fills", text=text,
+                hoverinfo="text",
+            )
+        )
+        fig.add_trace(
+            go.Scatter(
+                x=tw, y=base, mode="lines", name="baseline", legendgroup=f"peak{j}", showlegend=False,
+                line=dict(color=PALETTE["black"], width=1, dash="dash"), hoverinfo="skip",
+            )
+        )
+        fig.add_trace(
+            go.Scatter(
+                x=[pk["peak_K"]], y=[pk["peak_W_g"]], mode="markers", name="peak", legendgroup=f"peak{j}",
+                showlegend=False, marker=dict(symbol="triangle-up" if dh > 0 else "triangle-down", size=9,
+                                              color=colour), hovertext=[text], hoverinfo="text",
+            )
+        )
+        if onset is not None:
+            t_on, y_on = onset["t_K"], onset["heat_flow_W_g"]
+            t_tp, y_tp = onset["tangent_point_K"], onset["tangent_point_W_g"]
+            # Tangent drawn from the onset a little past the tangent point; baseline drawn back from the onset.
+            t_end = t_on + 1.3 * (t_tp - t_on)
+            span = 0.5 * abs(t_tp - t_on) + 0.02 * abs(tw[-1] - tw[0])
+            t_pre = t_on - span * np.sign(t_tp - t_on)
+            fig.add_trace(
+                go.Scatter(
+                    x=[t_on, t_end], y=[y_on, y_on + onset["tangent_slope_W_gK"] * (t_end - t_on)],
+                    mode="lines", name="onset tangent", legendgroup=f"peak{j}", showlegend=False,
+                    line=dict(color=PALETTE["vermillion"], width=1), hoverinfo="skip",
+                )
+            )
+            fig.add_trace(
+                go.Scatter(
+                    x=[t_pre, t_on], y=[onset["baseline_slope_W_gK"] * t_pre + onset["baseline_intercept_W_g"], y_on],
+                    mode="lines", name="pre-transition baseline", legendgroup=f"peak{j}", showlegend=False,
+                    line=dict(color=PALETTE["vermillion"], width=1, dash="dot"), hoverinfo="skip",
+                )
+            )
+            fig.add_trace(
+                go.Scatter(
+                    x=[t_on, t_tp], y=[y_on, y_tp], mode="markers", name="onset", legendgroup=f"peak{j}",
+                    showlegend=False, marker=dict(symbol=["x", "circle-open"], size=9, color=PALETTE["vermillion"]),
+                    hovertext=[f"extrapolated onset {t_on:.2f} K", f"steepest point {t_tp:.2f} K"],
+                    hoverinfo="text",
+                )
+            )
+    base_layout(fig, x_title=X_T, y_title=Y_HF, title=title)
+    if title:  # room for the title above the legend row
+        fig.update_layout(margin=dict(t=90), title=dict(y=0.99, yanchor="top"))
+    return fig

@@ -21,6 +21,8 @@ from .db import make_engine
 from .errors import InputError
 from .services.errors import Duplicate, Forbidden, NotFound
 from .settings import PROJECT_ROOT, Settings, get_settings
+from .web import format as format_filters
+from .web import measurements as measurement_pages
 from .web import pages
 from .web.render import render
 
@@ -112,6 +114,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.state.engine = engine
     templates = Jinja2Templates(directory=str(PROJECT_ROOT / "templates"))
     templates.env.globals.update(version=__version__, plotly_version=PLOTLY_VERSION)
+    format_filters.install(templates.env)
     app.state.templates = templates
 
     @app.middleware("http")
@@ -137,6 +140,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
 
     app.include_router(api_router)
     app.include_router(pages.router)
+    app.include_router(measurement_pages.router)
     app.mount("/static", StaticFiles(directory=str(PROJECT_ROOT / "static")), name="static")
 
     @app.get(f"/assets/plotly-{PLOTLY_VERSION}.min.js", include_in_schema=False)

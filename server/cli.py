@@ -7,6 +7,7 @@
     remanence token create --name N --scope S [--kinds K,...]
                                            create an API token; prints it alone on the last line
     remanence token revoke ID              revoke a token at once
+    remanence reanalyze [--kind K]         recompute stored measurements from their raw files
     remanence settings                     list the settings, their environment variables and values
 """
 
@@ -158,6 +159,22 @@ def cmd_token_revoke(args: argparse.Namespace) -> int:
     return 0
 
 
+def cmd_reanalyze(args: argparse.Namespace) -> int:
+    from .db import make_engine
+    from .services.measurements import reanalyse
+
+    with Session(make_engine(_settings().database_url)) as session:
+        changes = reanalyse(session=session, kind=args.kind)
+    for ch in changes:
+        if ch.error:
+            print(f"measurement {ch.measurement_id} ({ch.kind}): cannot re-analyse: {ch.error}")
+            continue
+        moved = ", ".join(f"{k}: {a!r} -> {b!r}" for k, (a, b) in list(ch.changed.items())[:6]) or "no value moved"
+        print(f"measurement {ch.measurement_id} ({ch.kind}) {ch.old_version} -> {ch.new_version}: {moved}")
+    print(f"{len(changes)} measurement(s) changed")
+    return 1 if any(ch.error for ch in changes) else 0
+
+
 def cmd_settings(args: argparse.Namespace) -> int:
     settings = _settings()
     for s in SETTINGS:
@@ -206,6 +223,10 @@ def build_parser() -> argparse.ArgumentParser:
     p = token.add_parser("revoke", help="revoke a token")
     p.add_argument("id", type=int)
     p.set_defaults(func=cmd_token_revoke)
+
+    p = sub.add_parser("reanalyze", help="recompute every stored measurement from its raw file")
+    p.add_argument("--kind", help="only measurements of this kind")
+    p.set_defaults(func=cmd_reanalyze)
 
     sub.add_parser("settings", help="list settings").set_defaults(func=cmd_settings)
     return parser

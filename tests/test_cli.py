@@ -47,3 +47,21 @@ def test_bad_cli_input_is_refused(env, monkeypatch, capsys):
     assert main(["user", "add", "kim", "--password-stdin"]) == 2
     assert "at least 8" in capsys.readouterr().err
     assert main(["token", "create", "--name", "x", "--scope", "read", "--kinds", "dsc"]) == 2
+
+
+def test_reanalyze_command(env, client, session, capsys):
+    from tests.api.test_measurements import loop_bytes
+    from tests.factories import bearer, make_token
+
+    h = bearer(make_token(session, scope="write"))
+    client.post("/api/v1/compounds", json={"smiles": "CCO"}, headers=h)
+    client.post("/api/v1/compounds/RMN-00001/batches", json={}, headers=h)
+    mid = client.post("/api/v1/batches/RMN-00001-B01/measurements", data={"kind": "pe_loop"},
+                      files={"file": ("l.csv", loop_bytes())}, headers=h).json()["id"]
+    m = session.get(__import__("server.models", fromlist=["Measurement"]).Measurement, mid)
+    m.analysis_version = "hysteresis/0.1"
+    session.add(m)
+    session.commit()
+    assert main(["reanalyze", "--kind", "pe_loop"]) == 0
+    out = capsys.readouterr().out
+    assert f"measurement {mid} (pe_loop) hysteresis/0.1 -> hysteresis/1.0" in out and "1 measurement(s) changed" in out

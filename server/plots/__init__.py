@@ -36,3 +36,8 @@ def base_layout(fig: go.Figure, *, x_title: str, y_title: str, title: str | None
     fig.update_xaxes(title_text=x_title, showgrid=True, gridcolor="#e5e5e5", zeroline=True, zerolinecolor="#bbbbbb")
     fig.update_yaxes(title_text=y_title, showgrid=True, gridcolor="#e5e5e5", zeroline=True, zerolinecolor="#bbbbbb")
     return fig
+
+
+def figure_json(fig: go.Figure) -> str:
+    """The figure as JSON safe to place inside a ``<script type="application/json">`` block."""
+    return fig.to_json().replace("<", "\\u003c").replace(">", "\\u003e").replace("&", "\\u0026")

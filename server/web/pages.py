@@ -16,7 +16,9 @@ from ..chem import scaffold as chem_scaffold
 from ..deps import Actor, OptionalActor, SessionDep, SettingsDep, check_csrf
 from ..errors import InputError
 from ..models import BATCH_STATES, BatchCreate, CompoundCreate, CompoundUpdate, Scaffold, ScaffoldCreate, SideChainSpec
-from ..services import accounts, registry
+from ..plots import figure_json, summary
+from ..services import accounts, measurements, registry
+from ..services.kinds import KINDS
 from ..services.errors import Duplicate
 from ..security import same_token
 from .render import redirect, render
@@ -212,8 +214,13 @@ def compound_page(code: str, request: Request, session: SessionDep, actor: PageA
     compound = registry.get_compound(session, code)
     read = registry.compound_read(session, compound, see_structure=actor.can_see_embargoed)
     batches = [registry.batch_read(session, b) for b in registry.batches_of(session, compound)]
+    rows, _ = measurements.list_measurements(session, compound=compound.code, limit=1000)
+    items = [measurements.measurement_read(session, m) for m in rows]
+    fig = summary.switching_vs_temperature(items)
     return render(request, "pages/compound.html",
-                  {"c": read, "batches": batches, "scaffolds": _scaffolds(session)}, actor=actor)
+                  {"c": read, "batches": batches, "scaffolds": _scaffolds(session), "measurements": items,
+                   "summary_figure": figure_json(fig) if fig else None,
+                   "transitions": summary.transitions_table(items), "kinds": KINDS}, actor=actor)
 
 
 @router.post("/compounds/{code}/edit")

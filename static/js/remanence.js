@@ -4,3 +4,27 @@ document.addEventListener("htmx:configRequest", function (evt) {
   var meta = document.querySelector('meta[name="csrf-token"]');
   if (meta) { evt.detail.headers["X-CSRF-Token"] = meta.content; }
 });
+
+// Upload forms: a progress bar while the file travels, and a drop zone around the file input.
+document.addEventListener("htmx:xhr:progress", function (evt) {
+  var form = evt.target.closest ? evt.target.closest("form[data-progress]") : null;
+  if (!form || !evt.detail.lengthComputable) { return; }
+  var bar = document.getElementById(form.dataset.progress);
+  if (bar) { bar.hidden = false; bar.value = Math.round((evt.detail.loaded / evt.detail.total) * 100); }
+});
+document.addEventListener("dragover", function (evt) {
+  var zone = evt.target.closest && evt.target.closest(".dropzone");
+  if (zone) { evt.preventDefault(); zone.classList.add("over"); }
+});
+document.addEventListener("dragleave", function (evt) {
+  var zone = evt.target.closest && evt.target.closest(".dropzone");
+  if (zone) { zone.classList.remove("over"); }
+});
+document.addEventListener("drop", function (evt) {
+  var zone = evt.target.closest && evt.target.closest(".dropzone");
+  if (!zone) { return; }
+  evt.preventDefault();
+  zone.classList.remove("over");
+  var input = zone.querySelector('input[type="file"]');
+  if (input && evt.dataTransfer && evt.dataTransfer.files.length) { input.files = evt.dataTransfer.files; }
+});

@@ -25,7 +25,6 @@ Run the slow tests one at a time with OMP_NUM_THREADS=1 on shared machines.
 from __future__ import annotations
 
 import json
-import time
 
 import numpy as np
 import pytest
@@ -245,11 +244,9 @@ def test_reported_structures_reproduce_the_barrier(parents):
 
 
 @pytest.mark.slow
-def test_methyl_truncated_hexa_alkoxy_bowl_within_a_minute():
-    t0 = time.perf_counter()
+def test_methyl_truncated_hexa_alkoxy_bowl():
+    # Its speed (about 15 s on one core) is measured by bench/bench_estimate.py, not asserted here.
     r = estimate_barrier(CH2_BOWL_RIM.format(R="OCCCCCCCCCCCC"))
-    elapsed = time.perf_counter() - t0
-    assert elapsed < 60.0
     assert "truncated" in r.model
     assert r.smiles_used == _canon(CH2_BOWL_RIM.format(R="OC"))
     assert r.atoms == 57

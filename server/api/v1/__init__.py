@@ -2,8 +2,9 @@
 
 from fastapi import APIRouter
 
-from . import compounds, scaffolds
+from . import compounds, measurements, scaffolds
 
 router = APIRouter(prefix="/api/v1")
 router.include_router(compounds.router)
 router.include_router(scaffolds.router)
+router.include_router(measurements.router)

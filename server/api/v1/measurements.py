@@ -1,0 +1,121 @@
+"""Instrument uploads and the measurements derived from them."""
+
+from __future__ import annotations
+
+from typing import Annotated, Any, Optional
+
+from fastapi import APIRouter, File, Form, HTTPException, Query, UploadFile
+from fastapi.responses import JSONResponse, Response
+from pydantic import BaseModel
+
+from ...deps import Reader, SessionDep, SettingsDep, Uploader
+from ...models import RawFile
+from ...services import measurements, registry
+from .common import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND, ErrorOut
+
+router = APIRouter(tags=["measurements"])
+
+
+class MeasurementOut(BaseModel):
+    id: int
+    kind: str
+    batch: str
+    compound: str
+    sha256: str
+    filename: str
+    size: int
+    results: dict[str, Any]
+    verdict: Optional[str]
+    flags: list[dict[str, str]]
+    analysis_version: str
+    method: str
+    conditions: dict[str, Any]
+    temperature_K: Optional[float]
+    instrument: str
+    operator: str
+    notes: str
+    created_at: str
+    created_by: str
+
+
+class MeasurementPage(BaseModel):
+    items: list[MeasurementOut]
+    total: int
+
+
+def read_upload(file: UploadFile, limit: int) -> bytes:
+    """The uploaded bytes, refusing more than ``limit`` without reading further."""
+    data = file.file.read(limit + 1)
+    if len(data) > limit:
+        raise HTTPException(413, f"the file is larger than the limit of {limit / 1048576:.0f} MiB")
+    return data
+
+
+@router.post(
+    "/batches/{batch_code}/measurements",
+    status_code=201,
+    response_model=MeasurementOut,
+    responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS, 200: {"model": MeasurementOut, "description": "the same bytes were stored already for this batch"},
+               413: {"model": ErrorOut, "description": "file too large"}},
+)
+def upload(
+    batch_code: str,
+    session: SessionDep,
+    settings: SettingsDep,
+    actor: Uploader,
+    kind: Annotated[str, Form(description="pe_loop, pund, dielectric, dsc, nmr_rates or crystal")],
+    file: Annotated[UploadFile, File(description="the instrument's raw file (CSV, TSV, XLSX or CIF)")],
+    area: Annotated[Optional[str], Form(description="electrode area, e.g. '0.785 mm^2'")] = None,
+    thickness: Annotated[Optional[str], Form(description="sample thickness, e.g. '150 um'")] = None,
+    mass: Annotated[Optional[str], Form(description="DSC sample mass, e.g. '4.2 mg'")] = None,
+    rate: Annotated[Optional[str], Form(description="DSC rate, e.g. '10 K/min'")] = None,
+    temperature: Annotated[Optional[str], Form(description="measurement temperature, e.g. '300 K' or '25 degC'")] = None,
+    frequency: Annotated[Optional[str], Form(description="drive frequency, e.g. '100 Hz'")] = None,
+    instrument: Annotated[Optional[str], Form(max_length=120)] = None,
+    operator: Annotated[Optional[str], Form(max_length=120)] = None,
+    notes: Annotated[Optional[str], Form(max_length=20000)] = None,
+    endo: Annotated[Optional[str], Form(description="DSC sign convention: up or down")] = None,
+):
+    """Post a raw instrument file to a batch; it is stored unchanged and analysed at once."""
+    batch = registry.get_batch(session, batch_code)
+    raw = read_upload(file, settings.max_upload_bytes)
+    form = {"area": area, "thickness": thickness, "mass": mass, "rate": rate, "temperature": temperature,
+            "frequency": frequency, "instrument": instrument, "operator": operator, "notes": notes, "endo": endo}
+    m, created = measurements.upload_measurement(
+        session=session, batch=batch, kind_name=kind, raw=raw, filename=file.filename, form=form,
+        actor=actor.label, allowed_kinds=actor.kinds if actor.scope == "upload" else None,
+    )
+    body = measurements.measurement_read(session, m)
+    return JSONResponse(body, status_code=201 if created else 200)
+
+
+@router.get("/measurements", response_model=MeasurementPage, responses=AUTH_ERRORS)
+def list_measurements(
+    session: SessionDep,
+    actor: Reader,
+    batch: Optional[str] = None,
+    compound: Optional[str] = None,
+    kind: Optional[str] = None,
+    limit: int = Query(100, ge=1, le=1000),
+    offset: int = Query(0, ge=0),
+) -> MeasurementPage:
+    rows, total = measurements.list_measurements(session, batch=batch, compound=compound, kind=kind, limit=limit,
+                                                 offset=offset)
+    return MeasurementPage(items=[measurements.measurement_read(session, m) for m in rows], total=total)
+
+
+@router.get("/measurements/{measurement_id}", response_model=MeasurementOut, responses={**AUTH_ERRORS, **NOT_FOUND})
+def get_measurement(measurement_id: int, session: SessionDep, actor: Reader):
+    return measurements.measurement_read(session, measurements.get_measurement(session, measurement_id))
+
+
+@router.get("/measurements/{measurement_id}/raw", responses={**AUTH_ERRORS, **NOT_FOUND})
+def get_raw(measurement_id: int, session: SessionDep, actor: Reader) -> Response:
+    """The stored bytes, exactly as uploaded; the checksum travels in the headers."""
+    m = measurements.get_measurement(session, measurement_id)
+    raw = session.get(RawFile, m.raw_file_id)
+    name = raw.filename or f"measurement-{m.id}.txt"
+    safe = "".join(ch for ch in name if ch.isalnum() or ch in "._-") or f"measurement-{m.id}"
+    return Response(raw.data, media_type="application/octet-stream",
+                    headers={"Content-Disposition": f'attachment; filename="{safe}"',
+                             "X-Content-SHA256": raw.sha256})

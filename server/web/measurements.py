@@ -1,0 +1,104 @@
+"""Pages for uploads and measurements."""
+
+from __future__ import annotations
+
+from typing import Annotated, Optional
+
+from fastapi import APIRouter, File, Form, Request, UploadFile
+from fastapi.responses import HTMLResponse
+from sqlmodel import Session
+
+from ..api.v1.measurements import read_upload
+from ..deps import SessionDep, SettingsDep
+from ..errors import InputError
+from ..models import Batch, Compound, Measurement
+from ..plots import figure_json
+from ..services import measurements, registry
+from ..services.errors import Forbidden
+from ..services.kinds import KINDS
+from .pages import PageActor, PageWriter
+from .render import redirect, render
+
+router = APIRouter(include_in_schema=False)
+
+FIELDS = measurements.FORM_FIELDS
+
+
+def _upload_context(batch: Batch, compound: Compound, form: dict, error: Optional[str] = None) -> dict:
+    return {"batch": batch, "c": compound, "kinds": KINDS, "form": form, "error": error}
+
+
+@router.get("/batches/{code}/upload", response_class=HTMLResponse)
+def upload_form(code: str, request: Request, session: SessionDep, actor: PageWriter, kind: str = "pe_loop"):
+    batch = registry.get_batch(session, code)
+    compound = session.get(Compound, batch.compound_id)
+    return render(request, "pages/upload.html", _upload_context(batch, compound, {"kind": kind}), actor=actor)
+
+
+@router.post("/batches/{code}/upload", response_class=HTMLResponse)
+def upload(
+    code: str,
+    request: Request,
+    session: SessionDep,
+    settings: SettingsDep,
+    actor: PageWriter,
+    file: Annotated[UploadFile, File()],
+    kind: Annotated[str, Form()] = "",
+    area: Annotated[str, Form()] = "",
+    thickness: Annotated[str, Form()] = "",
+    mass: Annotated[str, Form()] = "",
+    rate: Annotated[str, Form()] = "",
+    temperature: Annotated[str, Form()] = "",
+    frequency: Annotated[str, Form()] = "",
+    instrument: Annotated[str, Form()] = "",
+    operator: Annotated[str, Form()] = "",
+    notes: Annotated[str, Form()] = "",
+    endo: Annotated[str, Form()] = "",
+):
+    batch = registry.get_batch(session, code)
+    compound = session.get(Compound, batch.compound_id)
+    form = {"kind": kind, "area": area, "thickness": thickness, "mass": mass, "rate": rate,
+            "temperature": temperature, "frequency": frequency, "instrument": instrument, "operator": operator,
+            "notes": notes, "endo": endo}
+    try:
+        raw = read_upload(file, settings.max_upload_bytes)
+        m, _ = measurements.upload_measurement(
+            session=session, batch=batch, kind_name=kind, raw=raw, filename=file.filename,
+            form={k: (v or None) for k, v in form.items() if k != "kind"}, actor=actor.label,
+        )
+    except (InputError, Forbidden) as exc:
+        return render(request, "pages/upload.html", _upload_context(batch, compound, form, str(exc)),
+                      partial="partials/upload_form.html", status_code=422, actor=actor)
+    return redirect(f"/measurements/{m.id}", request)
+
+
+def measurement_figure(session: Session, m: Measurement) -> Optional[str]:
+    kind = KINDS.get(m.kind)
+    if kind is None or kind.figure is None:
+        return None
+    key = (m.id, m.sha256, m.analysis_version, repr(sorted(m.conditions.items())))
+    cached = _FIGURES.get(key)
+    if cached is None:
+        done = measurements.reanalyse_one(session, m)
+        cached = figure_json(kind.figure(done.parsed, done.result))
+        if len(_FIGURES) > 64:
+            _FIGURES.pop(next(iter(_FIGURES)))
+        _FIGURES[key] = cached
+    return cached
+
+
+_FIGURES: dict[tuple, str] = {}
+
+
+@router.get("/measurements/{measurement_id}", response_class=HTMLResponse)
+def measurement_page(measurement_id: int, request: Request, session: SessionDep, actor: PageActor):
+    m = measurements.get_measurement(session, measurement_id)
+    info = measurements.measurement_read(session, m)
+    kind = KINDS.get(m.kind)
+    try:
+        fig = measurement_figure(session, m)
+        fig_error = None
+    except InputError as exc:
+        fig, fig_error = None, str(exc)
+    return render(request, "pages/measurement.html",
+                  {"m": info, "kind": kind, "figure": fig, "figure_error": fig_error}, actor=actor)

@@ -1,0 +1,73 @@
+"""Upload form, measurement page and the compound summary (SQLite and PostgreSQL)."""
+
+from __future__ import annotations
+
+import json
+
+from sqlmodel import select
+
+from server.ingest.table import to_csv_bytes
+from server.models import Measurement
+from server.synth.ferro import miller_loop
+from tests.factories import login_as, soup
+
+
+def _compound_with_batch(client, csrf):
+    client.post("/compounds/new", data={"smiles": "CCCCCCCCOc1ccccc1", "csrf_token": csrf})
+    client.post("/compounds/RMN-00001/batches/new", data={"state": "made", "csrf_token": csrf})
+    return "RMN-00001-B01"
+
+
+def _loop(t_K: float, pr: float, ec: float) -> bytes:
+    return to_csv_bytes(miller_loop(1.25 * pr, pr, ec, 6 * ec), {"temperature": f"{t_K} K"})
+
+
+def test_upload_form_then_measurement_page(client, session):
+    csrf = login_as(client, session)
+    batch = _compound_with_batch(client, csrf)
+    form = soup(client.get(f"/batches/{batch}/upload").text)
+    assert form.find("aside", class_="caution") is not None  # high-voltage caution
+    assert {o["value"] for o in form.select("select[name=kind] option")} >= {"pe_loop", "pund", "dielectric", "dsc"}
+
+    r = client.post(f"/batches/{batch}/upload", data={"kind": "pe_loop", "csrf_token": csrf},
+                    files={"file": ("loop.csv", _loop(300, 8, 50))}, follow_redirects=False)
+    assert r.status_code == 303
+    page = soup(client.get(r.headers["location"]).text)
+    fig = json.loads(page.find("script", attrs={"type": "application/json"}).string)
+    assert fig["layout"]["xaxis"]["title"]["text"] == "E (kV/cm)"
+    rows = {tr.th.text: tr.find("td").text for tr in page.select("table.results tr")}
+    assert abs(float(rows["Pr"]) - 8.0) < 0.16
+    assert "IEEE Std 180" in page.find("h2", string="How it was analysed").find_next("p").text
+    assert page.find("a", string="Raw file")["href"].endswith("/raw")
+
+
+def test_upload_errors_show_inline_and_store_nothing(client, session):
+    csrf = login_as(client, session)
+    batch = _compound_with_batch(client, csrf)
+    r = client.post(f"/batches/{batch}/upload", data={"kind": "pe_loop", "csrf_token": csrf},
+                    files={"file": ("bad.csv", b"E (kV/cm),P (uC/cm^2)\n1,x\n")},
+                    headers={"HX-Request": "true", "X-CSRF-Token": csrf})
+    assert r.status_code == 422
+    frag = soup(r.text)
+    assert frag.find("html") is None and "line 2" in frag.find(role="alert").text
+    assert session.exec(select(Measurement)).all() == []
+
+
+def test_viewer_cannot_upload(client, session):
+    login_as(client, session, role="viewer")
+    r = client.get("/batches/NONE-B01/upload")
+    assert r.status_code == 403
+
+
+def test_compound_page_summarises_loops_against_temperature(client, session):
+    csrf = login_as(client, session)
+    batch = _compound_with_batch(client, csrf)
+    for t, pr, ec in ((280, 9.0, 60), (300, 8.0, 50), (320, 6.5, 38)):
+        client.post(f"/batches/{batch}/upload", data={"kind": "pe_loop", "csrf_token": csrf},
+                    files={"file": (f"loop{t}.csv", _loop(t, pr, ec))})
+    page = soup(client.get("/compounds/RMN-00001").text)
+    assert len(page.select("#measurements tbody tr")) == 3
+    fig = json.loads(page.find("script", id="summary-figure").string)
+    xs = fig["data"][0]["x"]
+    assert xs == [280, 300, 320]
+    assert fig["layout"]["xaxis"]["title"]["text"] == "T (K)"

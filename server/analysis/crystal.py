@@ -1,0 +1,915 @@
+"""Single-crystal structures (CIF): symmetry class, density, bowl depth and columnar stacking.
+
+A CIF is read with gemmi; the space group is classified from its symmetry operations,
+the molecule is rebuilt from covalent radii, and the bowl core (definitions in
+:mod:`server.chem.geometry`) gives the bowl depth and the way neighbouring bowls stack.
+
+Symmetry classes follow International Tables for Crystallography, Vol. A
+(ed. M. I. Aroyo, 6th ed., Wiley 2016, DOI 10.1107/97809553602060000114):
+
+* **polar**: the point group is one of the ten polar classes 1, 2, m, mm2, 4, 4mm, 3, 3m,
+  6, 6mm (a direction is left unchanged by every operation, so a spontaneous polarisation
+  is allowed; only these classes can be pyro- or ferroelectric);
+* **centrosymmetric**: the point group is one of the eleven Laue classes -1, 2/m, mmm, 4/m,
+  4/mmm, -3, -3m, 6/m, 6/mmm, m-3, m-3m;
+* **chiral** (Sohncke group): all operations are proper (det R = +1), so the group can hold
+  a single enantiomer.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from dataclasses import dataclass, field, replace
+from itertools import product
+from typing import Any
+
+import gemmi
+import numpy as np
+from rdkit import Chem
+
+from server.analysis.common import Flag, jsonable
+from server.chem import geometry
+from server.errors import AnalysisError
+
+METHOD = (
+    "Space group read with gemmi and classified by point group (International Tables for "
+    "Crystallography Vol. A: 10 polar, 11 centrosymmetric classes; Sohncke groups have only "
+    "proper operations); density Z M / (N_A V); molecule rebuilt from covalent radii "
+    "(Cordero et al., Dalton Trans. 2008, 2832) + 0.4 A; bowl depth and column stacking "
+    "from the core centroid and bowl axis of the symmetry mates."
+)
+VERSION = "crystal/1.0"
+
+#: Avogadro constant, CODATA 2018 (exact), 1/mol.
+N_A_PER_MOL = 6.02214076e23
+#: 1 A^3 in cm^3.
+A3_TO_CM3 = 1e-24
+
+#: The ten polar crystal classes (ITA Vol. A, Table 3.2.3.1; Hermann-Mauguin, as gemmi spells them).
+POLAR_POINT_GROUPS = frozenset({"1", "2", "m", "mm2", "4", "4mm", "3", "3m", "6", "6mm"})
+#: The eleven centrosymmetric (Laue) classes.
+CENTROSYMMETRIC_POINT_GROUPS = frozenset(
+    {"-1", "2/m", "mmm", "4/m", "4/mmm", "-3", "-3m", "6/m", "6/mmm", "m-3", "m-3m"}
+)
+
+#: Bond when d < r_cov(i) + r_cov(j) + tolerance (common practice; 0.4 A is the usual default
+#: of crystallographic display programs, from memory). Radii: Cordero et al. 2008 (via RDKit).
+BOND_TOLERANCE_A = 0.4
+#: A neighbour stacks in the same column when its core centroid lies within ~37 degrees of the
+#: bowl axis (|cos| > 0.8) and closer than STACK_MAX_A (our choice, see Notes of analyse_cif).
+STACK_COS_MIN = 0.8
+STACK_MAX_A = 8.0
+#: Below this bowl depth the core counts as planar and has no direction (our choice: well
+#: above the ~0.01 A precision of a routine structure).
+FLAT_CORE_A = 0.1
+#: Shell for the fraction of neighbours pointing the same way.
+NEIGHBOUR_SHELL_A = 10.0
+#: Relative difference that flags computed vs reported density (common practice: 2 %).
+DENSITY_TOLERANCE = 0.02
+#: Largest molecule we grow before calling the structure polymeric.
+MAX_MOLECULE_ATOMS = 2000
+
+_SG_HM_TAGS = ("_space_group_name_H-M_alt", "_symmetry_space_group_name_H-M")
+_SG_HALL_TAGS = ("_space_group_name_Hall", "_symmetry_space_group_name_Hall")
+_SG_NUMBER_TAGS = ("_space_group_IT_number", "_symmetry_Int_Tables_number")
+_SYMOP_TAGS = ("_space_group_symop_operation_xyz", "_symmetry_equiv_pos_as_xyz")
+_CELL_TAGS = (
+    "_cell_length_a",
+    "_cell_length_b",
+    "_cell_length_c",
+    "_cell_angle_alpha",
+    "_cell_angle_beta",
+    "_cell_angle_gamma",
+)
+
+
+# --------------------------------------------------------------------------------------
+# space-group classification
+
+
+@dataclass(frozen=True)
+class SpaceGroupClass:
+    """Symmetry class of a space group (ITA Vol. A)."""
+
+    polar: bool
+    centrosymmetric: bool
+    chiral: bool
+    point_group: str
+
+
+def rotation_matrices(sg: gemmi.SpaceGroup) -> list[np.ndarray]:
+    """Rotation parts (integer 3x3 matrices, fractional basis) of all operations of ``sg``."""
+    mats = []
+    for op in sg.operations():
+        mats.append(np.array(op.rot, dtype=float) / op.DEN)
+    return mats
+
+
+def classify_space_group(sg: gemmi.SpaceGroup) -> SpaceGroupClass:
+    """Polar / centrosymmetric / Sohncke class of a gemmi space group.
+
+    Parameters
+    ----------
+    sg : gemmi.SpaceGroup
+        Any tabulated setting.
+
+    Returns
+    -------
+    SpaceGroupClass
+        ``polar`` and ``centrosymmetric`` from the Hermann-Mauguin point group against the
+        lists of ten polar and eleven centrosymmetric classes; ``chiral`` (Sohncke) when every
+        rotation part has determinant +1.
+
+    References
+    ----------
+    International Tables for Crystallography, Vol. A (2016), Section 3.2 (crystal classes),
+    DOI 10.1107/97809553602060000114. Counts over the 230 types: 68 polar, 92
+    centrosymmetric, 65 Sohncke.
+    """
+    pg = sg.point_group_hm()
+    chiral = all(np.linalg.det(r) > 0 for r in rotation_matrices(sg))
+    return SpaceGroupClass(
+        polar=pg in POLAR_POINT_GROUPS,
+        centrosymmetric=pg in CENTROSYMMETRIC_POINT_GROUPS,
+        chiral=chiral,
+        point_group=pg,
+    )
+
+
+def find_space_group(name: str) -> gemmi.SpaceGroup | None:
+    """Look up a Hermann-Mauguin symbol, accepting the ``P2_1/c`` subscript spelling."""
+    cleaned = name.strip().replace("_", "")
+    if not cleaned:
+        return None
+    return gemmi.find_spacegroup_by_name(cleaned)
+
+
+# --------------------------------------------------------------------------------------
+# formulae
+
+
+_FORMULA_TOKEN = re.compile(r"([A-Z][a-z]?)(\d+(?:\.\d+)?|\.\d+)?")
+
+
+def parse_formula(text: str, *, what: str = "formula") -> dict[str, float]:
+    """Element counts of a formula such as ``"C21 H12"``, ``"C21H12"`` or ``"C22 H14 Cl2"``.
+
+    Charges (``+``, ``2-``) and spaces are ignored; an unknown element symbol raises
+    :class:`AnalysisError`.
+    """
+    body = re.sub(r"\d*[+-]+\d*\s*$", "", text.strip())
+    counts: dict[str, float] = {}
+    pos = 0
+    body = body.replace(" ", "")
+    while pos < len(body):
+        m = _FORMULA_TOKEN.match(body, pos)
+        if not m or m.end() == pos:
+            raise AnalysisError(f"{what} '{text}' cannot be read near '{body[pos:]}'")
+        symbol, number = m.group(1), m.group(2)
+        if gemmi.Element(symbol).atomic_number == 0:
+            raise AnalysisError(f"{what} '{text}': '{symbol}' is not an element symbol")
+        counts[symbol] = counts.get(symbol, 0.0) + (float(number) if number else 1.0)
+        pos = m.end()
+    if not counts:
+        raise AnalysisError(f"{what} '{text}' has no elements")
+    return counts
+
+
+def hill_formula(counts: dict[str, float], sep: str = " ") -> str:
+    """Hill order: C, then H, then the rest alphabetically (all alphabetical without C)."""
+    keys = sorted(counts)
+    if "C" in counts:
+        keys = ["C"] + (["H"] if "H" in counts else []) + [k for k in keys if k not in ("C", "H")]
+    parts = []
+    for k in keys:
+        n = counts[k]
+        if abs(n) < 1e-9:
+            continue
+        num = "" if abs(n - 1) < 1e-9 else (f"{n:g}")
+        parts.append(f"{k}{num}")
+    return sep.join(parts)
+
+
+def molar_mass_from_counts(counts: dict[str, float]) -> float:
+    """Molar mass (g/mol) from RDKit's periodic table (IUPAC conventional atomic weights)."""
+    table = Chem.GetPeriodicTable()
+    return float(sum(table.GetAtomicWeight(el) * n for el, n in counts.items()))
+
+
+def _same_counts(a: dict[str, float], b: dict[str, float], tol: float = 1e-6) -> bool:
+    keys = set(a) | set(b)
+    return all(abs(a.get(k, 0.0) - b.get(k, 0.0)) <= tol for k in keys)
+
+
+# --------------------------------------------------------------------------------------
+# result
+
+
+@dataclass(frozen=True)
+class CrystalResult:
+    """What a CIF says about polarity, packing and consistency with the registry."""
+
+    data_block: str
+    space_group: str
+    space_group_xhm: str
+    space_group_number: int
+    point_group: str
+    crystal_system: str
+    polar: bool
+    centrosymmetric: bool
+    chiral: bool
+    z: int | None
+    cell: dict[str, float]
+    density_g_cm3: float | None
+    density_cif_g_cm3: float | None
+    molar_mass_g_mol: float | None
+    temperature_K: float | None
+    r1: float | None
+    formula_cif: str | None
+    bowl_depth_A: float | None = None
+    stacking_distance_A: float | None = None
+    column_axis: str | None = None
+    column_axis_angle_deg: float | None = None
+    column_polar: bool | None = None
+    neighbours_same_direction: float | None = None
+    flags: tuple[Flag, ...] = field(default_factory=tuple)
+
+    @property
+    def verdict(self) -> str:
+        """``"polar"``, ``"centrosymmetric"`` or ``"non_polar_acentric"``."""
+        if self.centrosymmetric:
+            return "centrosymmetric"
+        if self.polar:
+            return "polar"
+        return "non_polar_acentric"
+
+    def to_dict(self) -> dict[str, Any]:
+        out = {
+            "data_block": self.data_block,
+            "space_group": self.space_group,
+            "space_group_xhm": self.space_group_xhm,
+            "space_group_number": self.space_group_number,
+            "point_group": self.point_group,
+            "crystal_system": self.crystal_system,
+            "polar": self.polar,
+            "centrosymmetric": self.centrosymmetric,
+            "chiral": self.chiral,
+            "z": self.z,
+            "cell": dict(self.cell),
+            "density_g_cm3": self.density_g_cm3,
+            "density_cif_g_cm3": self.density_cif_g_cm3,
+            "molar_mass_g_mol": self.molar_mass_g_mol,
+            "temperature_K": self.temperature_K,
+            "r1": self.r1,
+            "formula_cif": self.formula_cif,
+            "bowl_depth_A": self.bowl_depth_A,
+            "stacking_distance_A": self.stacking_distance_A,
+            "column_axis": self.column_axis,
+            "column_axis_angle_deg": self.column_axis_angle_deg,
+            "column_polar": self.column_polar,
+            "neighbours_same_direction": self.neighbours_same_direction,
+            "verdict": self.verdict,
+            "flags": [f.to_dict() for f in self.flags],
+        }
+        return jsonable(out)
+
+
+# --------------------------------------------------------------------------------------
+# CIF reading helpers
+
+
+def _read_document(raw: bytes) -> gemmi.cif.Document:
+    if not raw or not raw.strip():
+        raise AnalysisError("the CIF file is empty")
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        # CIF 1.1 is ASCII; old files carry Latin-1 text fields (e.g. an angstrom sign).
+        text = raw.decode("latin-1")
+    if "\x00" in text:
+        raise AnalysisError("the file is binary (contains NUL bytes), not a CIF text file")
+    try:
+        return gemmi.cif.read_string(text)
+    except (ValueError, RuntimeError) as exc:
+        msg = str(exc)
+        m = re.match(r"^[^:]*:(\d+):(?:\d+(?:\(\d+\))?:)?\s*(.*)$", msg)
+        line = int(m.group(1)) if m else None
+        detail = m.group(2) if m else msg
+        raise AnalysisError(f"not a CIF gemmi can read: {detail}", line=line) from exc
+
+
+def _value(block: gemmi.cif.Block, tags: tuple[str, ...] | str) -> str | None:
+    for tag in (tags,) if isinstance(tags, str) else tags:
+        v = block.find_value(tag)
+        if v is not None:
+            s = gemmi.cif.as_string(v).strip()
+            if s not in ("", "?", "."):
+                return s
+    return None
+
+
+def _number(block: gemmi.cif.Block, tags: tuple[str, ...] | str) -> float | None:
+    for tag in (tags,) if isinstance(tags, str) else tags:
+        v = block.find_value(tag)
+        if v is None or gemmi.cif.is_null(v):
+            continue
+        x = gemmi.cif.as_number(v)
+        if not math.isfinite(x):
+            raise AnalysisError(f"{tag} = '{v}' is not a number", field="cif")
+        return float(x)
+    return None
+
+
+def _loop_values(block: gemmi.cif.Block, tags: tuple[str, ...]) -> list[str]:
+    for tag in tags:
+        col = block.find_values(tag)
+        if len(col) > 0:
+            return [gemmi.cif.as_string(v) for v in col]
+    return []
+
+
+def _pick_block(doc: gemmi.cif.Document) -> gemmi.cif.Block:
+    for block in doc:
+        if block.find_value("_cell_length_a") is not None and len(block.find_values("_atom_site_fract_x")) > 0:
+            return block
+    names = ", ".join(b.name for b in doc) or "none"
+    raise AnalysisError(
+        "no data block has both a unit cell (_cell_length_a ...) and fractional atom sites "
+        f"(_atom_site_fract_x ...); blocks found: {names}"
+    )
+
+
+def _space_group(block: gemmi.cif.Block) -> tuple[gemmi.SpaceGroup, list[Flag]]:
+    """The space group, preferring the listed operations (they are what was refined)."""
+    flags: list[Flag] = []
+    triplets = _loop_values(block, _SYMOP_TAGS)
+    hm = _value(block, _SG_HM_TAGS)
+    hall = _value(block, _SG_HALL_TAGS)
+    number = _number(block, _SG_NUMBER_TAGS)
+    from_ops = None
+    if triplets:
+        try:
+            ops = gemmi.GroupOps([gemmi.Op(t) for t in triplets])
+        except (ValueError, RuntimeError) as exc:
+            raise AnalysisError(f"symmetry operations cannot be read: {exc}", field="cif") from exc
+        from_ops = gemmi.find_spacegroup_by_ops(ops)
+    from_hm = None
+    if hm:
+        from_hm = find_space_group(hm)
+    from_hall = None
+    if hall:
+        try:
+            from_hall = gemmi.find_spacegroup_by_ops(gemmi.symops_from_hall(hall))
+        except (ValueError, RuntimeError) as exc:
+            flags.append(Flag("hall_unreadable", f"Hall symbol '{hall}' cannot be read ({exc}); not used"))
+    from_number = None
+    if number is not None:
+        if not (1 <= number <= 230 and float(number).is_integer()):
+            raise AnalysisError(f"space-group number {number:g} is not between 1 and 230", field="cif")
+        from_number = gemmi.find_spacegroup_by_number(int(number))
+
+    if not (triplets or hm or hall or number is not None):
+        raise AnalysisError(
+            "the CIF gives no space group: add _space_group_name_H-M_alt (or "
+            "_symmetry_space_group_name_H-M), the symmetry operations "
+            "(_space_group_symop_operation_xyz) or _space_group_IT_number"
+        )
+    sg = from_ops or from_hall or from_hm or from_number
+    if sg is None:
+        raise AnalysisError(
+            "the space group given in the CIF is not recognised "
+            f"(H-M '{hm}', Hall '{hall}', {len(triplets)} symmetry operations)",
+            field="cif",
+        )
+    others = [g for g in (from_ops, from_hall, from_hm, from_number) if g is not None]
+    if any(g.number != sg.number for g in others):
+        flags.append(
+            Flag(
+                "space_group_inconsistent",
+                "the space-group symbol, number and symmetry operations in the CIF disagree; "
+                f"using {sg.short_name()} (No. {sg.number}) from the "
+                + ("symmetry operations" if from_ops else "first readable item"),
+            )
+        )
+    if triplets and from_ops is None:
+        flags.append(
+            Flag(
+                "symops_untabulated",
+                "the listed symmetry operations match no tabulated setting; the space group "
+                f"was taken from the symbol instead ({sg.short_name()})",
+            )
+        )
+    return sg, flags
+
+
+@dataclass
+class _CellAtom:
+    site: int
+    element: str
+    frac: np.ndarray
+    occ: float
+
+
+def _op_matrices(sg: gemmi.SpaceGroup) -> list[tuple[np.ndarray, np.ndarray]]:
+    out = []
+    for op in sg.operations():
+        out.append((np.array(op.rot, dtype=float) / op.DEN, np.array(op.tran, dtype=float) / op.DEN))
+    return out
+
+
+def _expand(
+    sites: list[gemmi.SmallStructure.Site], ops: list[tuple[np.ndarray, np.ndarray]], orth: np.ndarray
+) -> list[_CellAtom]:
+    """All atoms in the unit cell (fractional coordinates wrapped to [0, 1)), special positions merged."""
+    atoms: list[_CellAtom] = []
+    for k, site in enumerate(sites):
+        f0 = np.array([site.fract.x, site.fract.y, site.fract.z])
+        images: list[np.ndarray] = []
+        for rot, tran in ops:
+            f = rot @ f0 + tran
+            f = f - np.floor(f + 1e-9)
+            if any(np.linalg.norm(orth @ ((f - g) - np.round(f - g))) < 0.1 for g in images):
+                continue
+            images.append(f)
+        for f in images:
+            atoms.append(_CellAtom(site=k, element=site.element.name, frac=f, occ=float(site.occ)))
+    return atoms
+
+
+@dataclass
+class _Molecule:
+    elements: list[str]
+    cart: np.ndarray
+    bonds: list[tuple[int, int]]
+    cell_indices: list[int]
+    polymeric: bool
+
+
+def _grow_molecule(seed: int, atoms: list[_CellAtom], orth: np.ndarray) -> _Molecule:
+    """Breadth-first search over bonded atoms and their lattice images, starting at ``seed``."""
+    table = Chem.GetPeriodicTable()
+    frac = np.array([a.frac for a in atoms])
+    radii = np.array([table.GetRcovalent(a.element) for a in atoms])
+    shifts = np.array(list(product((-1, 0, 1), repeat=3)), dtype=float)
+    placed: dict[int, np.ndarray] = {seed: frac[seed].copy()}
+    order = [seed]
+    bonds: set[tuple[int, int]] = set()
+    polymeric = False
+    queue = [seed]
+    while queue:
+        i = queue.pop(0)
+        p = placed[i]
+        d = frac - p
+        d -= np.round(d)
+        # all 27 images around the nearest one, so short cell edges cannot hide a bond
+        cand = p[None, None, :] + d[:, None, :] + shifts[None, :, :]
+        dist = np.linalg.norm((cand - p) @ orth.T, axis=2)
+        limit = (radii + radii[i] + BOND_TOLERANCE_A)[:, None]
+        hits = np.argwhere((dist < limit) & (dist > 0.1))
+        for j, s in hits:
+            q = cand[j, s]
+            if j in placed:
+                if np.linalg.norm(orth @ (placed[j] - q)) > 0.1:
+                    polymeric = True
+                    continue
+            else:
+                if len(placed) >= MAX_MOLECULE_ATOMS:
+                    polymeric = True
+                    continue
+                placed[j] = q
+                order.append(j)
+                queue.append(j)
+            a, b = sorted((order.index(i), order.index(j)))
+            bonds.add((a, b))
+    cart = np.array([orth @ placed[j] for j in order])
+    return _Molecule(
+        elements=[atoms[j].element for j in order],
+        cart=cart,
+        bonds=sorted(bonds),
+        cell_indices=order,
+        polymeric=polymeric,
+    )
+
+
+def _rdkit_graph(mol: _Molecule) -> Chem.Mol:
+    """Connectivity-only RDKit molecule (single bonds) for ring perception."""
+    has_h = any(el == "H" for el in mol.elements)
+    rw = Chem.RWMol()
+    for el in mol.elements:
+        atom = Chem.Atom(el)
+        atom.SetNoImplicit(True)
+        rw.AddAtom(atom)
+    for a, b in mol.bonds:
+        rw.AddBond(int(a), int(b), Chem.BondType.SINGLE)
+    if not has_h:
+        # Hydrogens not modelled: give carbons with fewer than three neighbours a hydrogen
+        # count so geometry.core_atoms can still tell rim CH positions.
+        for atom in rw.GetAtoms():
+            if atom.GetAtomicNum() == 6 and atom.GetDegree() < 4:
+                atom.SetNumExplicitHs(4 - atom.GetDegree())
+    rw.UpdatePropertyCache(strict=False)
+    Chem.GetSymmSSSR(rw)
+    return rw.GetMol()
+
+
+def _lattice_direction(vec_frac: np.ndarray, orth: np.ndarray) -> tuple[str, float]:
+    """Closest lattice direction [uvw] (|u|,|v|,|w| <= 3) to a fractional vector, with the angle."""
+    target = orth @ vec_frac
+    target = target / np.linalg.norm(target)
+    best = None
+    for uvw in product(range(-3, 4), repeat=3):
+        if uvw == (0, 0, 0) or math.gcd(math.gcd(abs(uvw[0]), abs(uvw[1])), abs(uvw[2])) != 1:
+            continue
+        first = next(c for c in uvw if c != 0)
+        if first < 0:
+            continue
+        v = orth @ np.array(uvw, dtype=float)
+        cos = abs(float(np.dot(v, target) / np.linalg.norm(v)))
+        key = (round(cos, 6), -sum(abs(c) for c in uvw))
+        if best is None or key > best[0]:
+            best = (key, uvw, cos)
+    assert best is not None
+    _, uvw, cos = best
+    names = {(1, 0, 0): "a", (0, 1, 0): "b", (0, 0, 1): "c"}
+    name = names.get(uvw, "[" + " ".join(str(c) for c in uvw) + "]")
+    return name, math.degrees(math.acos(min(1.0, cos)))
+
+
+@dataclass(frozen=True)
+class _BowlPacking:
+    bowl_depth_A: float
+    stacking_distance_A: float | None
+    column_axis: str | None
+    column_axis_angle_deg: float | None
+    column_polar: bool | None
+    neighbours_same_direction: float | None
+
+
+def _bowl_packing(
+    coords_A: np.ndarray,
+    core: geometry.CoreAtoms,
+    ops: list[tuple[np.ndarray, np.ndarray]],
+    orth: np.ndarray,
+) -> _BowlPacking:
+    frac_m = np.linalg.inv(orth)
+    core_xyz = coords_A[list(core.core)]
+    centre_cart = core_xyz.mean(axis=0)
+    centre = frac_m @ centre_cart
+    axis = geometry.bowl_axis(coords_A, core)
+    depth = geometry.bowl_depth_A(coords_A, core)
+
+    # enough lattice translations to cover the neighbour shell along each axis
+    spacing = 1.0 / np.linalg.norm(frac_m, axis=1)  # interplanar distances d_100, d_010, d_001
+    reach = max(NEIGHBOUR_SHELL_A, STACK_MAX_A)
+    n = [int(math.ceil(reach / s)) + 1 for s in spacing]
+    translations = np.array(
+        list(product(range(-n[0], n[0] + 1), range(-n[1], n[1] + 1), range(-n[2], n[2] + 1))), dtype=float
+    )
+    vecs, axes = [], []
+    for rot, tran in ops:
+        img = rot @ centre + tran
+        rot_cart = orth @ rot @ frac_m
+        img_axis = rot_cart @ axis
+        d_frac = img[None, :] + translations - centre[None, :]
+        vecs.append(d_frac)
+        axes.append(np.repeat(img_axis[None, :], len(translations), axis=0))
+    d_frac = np.concatenate(vecs)
+    n_axes = np.concatenate(axes)
+    d_cart = d_frac @ orth.T
+    dist = np.linalg.norm(d_cart, axis=1)
+    others = dist > 0.5  # drop the molecule itself (and itself again on a special position)
+    shell = others & (dist <= NEIGHBOUR_SHELL_A)
+    same = n_axes @ axis > 0
+    fraction = float(np.mean(same[shell])) if np.any(shell) else None
+    with np.errstate(invalid="ignore", divide="ignore"):
+        cos = np.abs(d_cart @ axis) / dist
+    stack = others & (dist <= STACK_MAX_A) & (cos > STACK_COS_MIN)
+    if not np.any(stack):
+        return _BowlPacking(depth, None, None, None, None, fraction)
+    k = int(np.flatnonzero(stack)[np.argmin(dist[stack])])
+    name, angle = _lattice_direction(d_frac[k], orth)
+    return _BowlPacking(
+        bowl_depth_A=depth,
+        stacking_distance_A=float(dist[k]),
+        column_axis=name,
+        column_axis_angle_deg=angle,
+        column_polar=bool(n_axes[k] @ axis > 0),
+        neighbours_same_direction=fraction,
+    )
+
+
+# --------------------------------------------------------------------------------------
+# main entry
+
+
+def analyse_cif(
+    raw: bytes,
+    *,
+    formula: str | None = None,
+    molar_mass_g_mol: float | None = None,
+    core_smiles: str | None = None,
+) -> CrystalResult:
+    """Read a small-molecule CIF and report symmetry class, density, bowl depth and stacking.
+
+    Parameters
+    ----------
+    raw : bytes
+        The CIF file.
+    formula : str, optional
+        Registered molecular formula (e.g. ``"C21H12"``), compared with _chemical_formula_sum.
+    molar_mass_g_mol : float, optional
+        Registered molar mass (g/mol); used for the density when given, else the CIF formula.
+    core_smiles : str, optional
+        SMILES of the registered bowl core; the crystal's core ring system must have the same
+        number of atoms.
+
+    Returns
+    -------
+    CrystalResult
+        Contract keys: space_group, space_group_number, point_group, crystal_system, polar,
+        centrosymmetric, chiral, z, cell {a, b, c (A), alpha, beta, gamma (deg), volume (A^3)},
+        density_g_cm3, density_cif_g_cm3, temperature_K, r1, formula_cif, data_block,
+        bowl_depth_A, stacking_distance_A, column_axis, column_polar,
+        neighbours_same_direction, flags, verdict.
+
+    Raises
+    ------
+    AnalysisError
+        A file gemmi cannot parse (with its line), no block with cell and atoms, no space
+        group, a bad cell.
+
+    Notes
+    -----
+    * Classification: :func:`classify_space_group` (ITA Vol. A).
+    * Density: rho = Z M / (N_A V), V from the cell (gemmi), N_A from CODATA 2018; compared
+      with _exptl_crystal_density_diffrn (flag above 2 %, common practice).
+    * Molecule: atoms of the asymmetric unit (main disorder component) are expanded with the
+      space-group operations, then grown breadth-first over lattice images, bonding pairs
+      closer than the sum of covalent radii (Cordero et al., Dalton Trans. 2008, 2832,
+      DOI 10.1039/b801115j) + 0.4 A. The core and bowl depth come from
+      :mod:`server.chem.geometry`, so they match the computed estimate.
+    * Stacking: the core centroid and bowl axis are mapped by every operation (the axis with
+      the Cartesian rotation part, so inversions and mirrors flip it) and by lattice
+      translations. The column neighbour is the nearest image within 8 A whose centroid
+      vector makes less than ~37 degrees with the bowl axis (|cos| > 0.8; our choice, wide
+      enough for slipped stacks). ``column_polar`` is True when that neighbour's axis points
+      the same way (dot > 0): head-to-tail. ``neighbours_same_direction`` is the fraction of
+      all images with centroids within 10 A whose axes point the same way.
+    """
+    if molar_mass_g_mol is not None and not (math.isfinite(molar_mass_g_mol) and molar_mass_g_mol > 0):
+        raise AnalysisError(f"molar mass {molar_mass_g_mol} g/mol is not a positive number", field="molar_mass")
+    doc = _read_document(raw)
+    block = _pick_block(doc)
+    flags: list[Flag] = []
+
+    for tag in _CELL_TAGS:
+        if _number(block, tag) is None:
+            raise AnalysisError(f"the cell is incomplete: {tag} is missing", field="cif")
+    sg, sg_flags = _space_group(block)
+    flags.extend(sg_flags)
+    try:
+        small = gemmi.make_small_structure_from_block(block)
+    except (ValueError, RuntimeError) as exc:
+        raise AnalysisError(f"gemmi cannot build the structure: {exc}", field="cif") from exc
+    cell = small.cell
+    if not (cell.volume > 0 and math.isfinite(cell.volume)):
+        raise AnalysisError("the cell parameters give no positive volume", field="cif")
+    cls = classify_space_group(sg)
+    orth = np.array(cell.orth.mat.tolist())
+    ops = _op_matrices(sg)
+
+    # atoms: main disorder component only
+    sites = list(small.sites)
+    if not sites:
+        raise AnalysisError("the CIF lists no atom sites", field="cif")
+    groups = sorted({s.disorder_group for s in sites if s.disorder_group > 0})
+    if groups:
+        flags.append(
+            Flag("disorder", f"disorder groups {groups} present; geometry uses group {groups[0]} and ordered atoms")
+        )
+        sites = [s for s in sites if s.disorder_group <= 0 or s.disorder_group == groups[0]]
+    unknown = sorted({s.type_symbol for s in sites if s.element.atomic_number == 0})
+    if unknown:
+        raise AnalysisError(f"atom sites with unknown element types: {', '.join(unknown)}", field="cif")
+    cell_atoms = _expand(sites, ops, orth)
+
+    # formulae
+    formula_cif_text = _value(block, "_chemical_formula_sum")
+    counts_cif = parse_formula(formula_cif_text, what="_chemical_formula_sum") if formula_cif_text else None
+    counts_reg = parse_formula(formula, what="registered formula") if formula else None
+    if counts_cif and counts_reg and not _same_counts(counts_cif, counts_reg):
+        flags.append(Flag("formula_mismatch", _formula_mismatch_message(counts_cif, counts_reg)))
+    counts_unit = counts_cif or counts_reg
+
+    # Z
+    z_value = _number(block, "_cell_formula_units_Z")
+    z: int | None
+    if z_value is not None:
+        if z_value <= 0 or not float(z_value).is_integer():
+            raise AnalysisError(f"_cell_formula_units_Z = {z_value:g} is not a positive integer", field="cif")
+        z = int(z_value)
+    else:
+        z = _estimate_z(cell_atoms, counts_unit, orth)
+        flags.append(
+            Flag(
+                "z_estimated",
+                "_cell_formula_units_Z is missing; Z = "
+                + (f"{z} estimated from the atoms in the cell" if z else "unknown (could not be estimated)"),
+            )
+        )
+
+    # cell content vs Z x formula
+    if counts_unit and z:
+        msg = _content_mismatch(cell_atoms, counts_unit, z)
+        if msg:
+            flags.append(Flag("cell_content_mismatch", msg))
+
+    # density
+    mass = molar_mass_g_mol if molar_mass_g_mol is not None else (
+        molar_mass_from_counts(counts_cif) if counts_cif else None
+    )
+    density = z * mass / (N_A_PER_MOL * cell.volume * A3_TO_CM3) if (z and mass) else None
+    density_cif = _number(block, "_exptl_crystal_density_diffrn")
+    if density is None:
+        flags.append(Flag("no_density", "density not computed: Z or the formula/molar mass is missing"))
+    elif density_cif is not None and abs(density - density_cif) > DENSITY_TOLERANCE * density_cif:
+        flags.append(
+            Flag(
+                "density_mismatch",
+                f"computed density {density:.3f} g/cm3 differs from the CIF's {density_cif:.3f} g/cm3 by more "
+                "than 2 %: check Z, the formula (solvent?) and the cell",
+            )
+        )
+
+    temperature = _number(block, ("_diffrn_ambient_temperature", "_cell_measurement_temperature"))
+    if temperature is not None and temperature <= 0:
+        raise AnalysisError(f"temperature {temperature:g} K is not positive", field="cif")
+    if temperature is None:
+        flags.append(Flag("no_temperature", "the CIF gives no measurement temperature"))
+    r1 = _number(block, ("_refine_ls_R_factor_gt", "_refine_ls_R_factor_obs"))
+
+    packing = _analyse_molecules(sites, cell_atoms, ops, orth, core_smiles, flags)
+
+    return CrystalResult(
+        data_block=block.name,
+        space_group=sg.short_name(),
+        space_group_xhm=sg.xhm(),
+        space_group_number=sg.number,
+        point_group=cls.point_group,
+        crystal_system=sg.crystal_system_str(),
+        polar=cls.polar,
+        centrosymmetric=cls.centrosymmetric,
+        chiral=cls.chiral,
+        z=z,
+        cell={
+            "a": cell.a,
+            "b": cell.b,
+            "c": cell.c,
+            "alpha": cell.alpha,
+            "beta": cell.beta,
+            "gamma": cell.gamma,
+            "volume": cell.volume,
+        },
+        density_g_cm3=density,
+        density_cif_g_cm3=density_cif,
+        molar_mass_g_mol=mass,
+        temperature_K=temperature,
+        r1=r1,
+        formula_cif=hill_formula(counts_cif) if counts_cif else None,
+        bowl_depth_A=packing.bowl_depth_A if packing else None,
+        stacking_distance_A=packing.stacking_distance_A if packing else None,
+        column_axis=packing.column_axis if packing else None,
+        column_axis_angle_deg=packing.column_axis_angle_deg if packing else None,
+        column_polar=packing.column_polar if packing else None,
+        neighbours_same_direction=packing.neighbours_same_direction if packing else None,
+        flags=tuple(flags),
+    )
+
+
+def _formula_mismatch_message(cif: dict[str, float], reg: dict[str, float]) -> str:
+    base = f"CIF formula {hill_formula(cif)} differs from the registered {hill_formula(reg)}"
+    ratios = {cif.get(k, 0.0) / reg[k] for k in reg if reg[k]} if set(cif) == set(reg) else set()
+    if len(ratios) == 1:
+        (k,) = ratios
+        if k > 1 and abs(k - round(k)) < 1e-6:
+            return base + f": the CIF formula unit holds {round(k)} molecules (Z' > 1 formula unit?)"
+    diff = {k: cif.get(k, 0.0) - reg.get(k, 0.0) for k in set(cif) | set(reg)}
+    extra = {k: v for k, v in diff.items() if v > 1e-6}
+    missing = {k: -v for k, v in diff.items() if v < -1e-6}
+    if extra and not missing:
+        return base + (
+            f": the crystal has {hill_formula(extra)} more per formula unit; a solvate (solvent in the "
+            "lattice) or a salt/co-crystal is the common reason"
+        )
+    if missing and not extra:
+        return base + f": the CIF lacks {hill_formula(missing)}; unmodelled atoms or a different compound?"
+    return base + ": a different compound, a solvate or a salt; check the sample"
+
+
+def _cell_counts(cell_atoms: list[_CellAtom]) -> dict[str, float]:
+    counts: dict[str, float] = {}
+    for a in cell_atoms:
+        counts[a.element] = counts.get(a.element, 0.0) + a.occ
+    return counts
+
+
+def _estimate_z(cell_atoms: list[_CellAtom], counts: dict[str, float] | None, orth: np.ndarray) -> int | None:
+    """Z from atoms in the cell / atoms in the formula, else the number of molecules in the cell."""
+    if counts:
+        heavy_cell = sum(v for k, v in _cell_counts(cell_atoms).items() if k != "H")
+        heavy_unit = sum(v for k, v in counts.items() if k != "H")
+        if heavy_unit > 0:
+            ratio = heavy_cell / heavy_unit
+            if ratio >= 0.5 and abs(ratio - round(ratio)) < 0.1:
+                return int(round(ratio))
+            return None
+    seen: set[int] = set()
+    n = 0
+    for i in range(len(cell_atoms)):
+        if i in seen:
+            continue
+        mol = _grow_molecule(i, cell_atoms, orth)
+        seen.update(mol.cell_indices)
+        n += 1
+    return n or None
+
+
+def _content_mismatch(cell_atoms: list[_CellAtom], counts: dict[str, float], z: int) -> str | None:
+    have = _cell_counts(cell_atoms)
+    want = {k: v * z for k, v in counts.items()}
+    diffs = {k: have.get(k, 0.0) - want.get(k, 0.0) for k in set(have) | set(want)}
+    bad = {k: v for k, v in diffs.items() if abs(v) > 0.5}
+    if not bad:
+        return None
+    parts = ", ".join(f"{k} {have.get(k, 0.0):g} vs {want.get(k, 0.0):g}" for k in sorted(bad))
+    msg = f"atoms in the cell disagree with Z x formula ({z} x {hill_formula(counts)}): {parts}"
+    if set(bad) == {"H"} and bad["H"] < 0:
+        msg += "; hydrogen atoms may not be modelled"
+    return msg
+
+
+def _analyse_molecules(
+    sites: list[gemmi.SmallStructure.Site],
+    cell_atoms: list[_CellAtom],
+    ops: list[tuple[np.ndarray, np.ndarray]],
+    orth: np.ndarray,
+    core_smiles: str | None,
+    flags: list[Flag],
+) -> _BowlPacking | None:
+    # seed molecules at the identity image of each asymmetric-unit site until all are covered
+    first_image = {}
+    for idx, a in enumerate(cell_atoms):
+        first_image.setdefault(a.site, idx)
+    covered: set[int] = set()
+    best: tuple[int, Chem.Mol, np.ndarray, geometry.CoreAtoms] | None = None
+    n_cores = 0
+    for k in range(len(sites)):
+        if k in covered:
+            continue
+        mol = _grow_molecule(first_image[k], cell_atoms, orth)
+        covered.update(cell_atoms[j].site for j in mol.cell_indices)
+        if mol.polymeric:
+            flags.append(Flag("polymeric", "atoms bond to their own lattice images: a network, not molecules"))
+            continue
+        rd = _rdkit_graph(mol)
+        core = geometry.core_atoms(rd)
+        if core is None or not core.rim:
+            continue
+        n_cores += 1
+        if best is None or len(core.core) > best[0]:
+            best = (len(core.core), rd, mol.cart, core)
+    if best is None:
+        flags.append(
+            Flag("no_bowl_core", "no fused ring system of two or more rings (bowl core) found in the structure")
+        )
+        return None
+    if n_cores > 1:
+        flags.append(
+            Flag("several_molecules", f"{n_cores} independent molecules with a core; the largest core is analysed")
+        )
+    _, rd, cart, core = best
+    if core_smiles:
+        ref = Chem.MolFromSmiles(core_smiles)
+        if ref is None:
+            raise AnalysisError(f"core SMILES '{core_smiles}' cannot be parsed", field="core_smiles")
+        ref_core = geometry.core_atoms(ref)
+        if ref_core is None or len(ref_core.core) != len(core.core):
+            flags.append(
+                Flag(
+                    "core_mismatch",
+                    f"the crystal's core ring system has {len(core.core)} atoms, the registered core "
+                    f"{len(ref_core.core) if ref_core else 0}",
+                )
+            )
+    packing = _bowl_packing(cart, core, ops, orth)
+    if packing.bowl_depth_A < FLAT_CORE_A:
+        flags.append(
+            Flag(
+                "flat_core",
+                f"bowl depth {packing.bowl_depth_A:.3f} A is below {FLAT_CORE_A} A: the core is planar, so the "
+                "bowl direction and the column polarity are undefined",
+            )
+        )
+        packing = replace(packing, column_polar=None, neighbours_same_direction=None)
+    return packing

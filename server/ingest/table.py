@@ -62,6 +62,7 @@ _DELIMITERS = ("\t", ";", ",")
 # A blank (whitespace-only) or '#' line anywhere in the data part.
 _SKIP_LINE_RE = re.compile(r"^\s*(?:#|$)", re.MULTILINE)
 _SNIFF_ROWS = 20
+_SEP_LINE_RE = re.compile(r"sep=[,;\t]", re.IGNORECASE)
 
 
 @dataclass(frozen=True, eq=False)
@@ -306,8 +307,13 @@ def _read_text(text: str, notes: list[str]) -> ParsedTable:
     lines = text.replace("\r\n", "\n").replace("\r", "\n").split("\n")
     comments: list[tuple[int, str]] = []  # (line number, '#' line) before the header
     header_idx: int | None = None
+    forced: str | None = None  # delimiter named by an Excel "sep=;" line
     for i, line in enumerate(lines):
-        stripped = line.strip()
+        stripped = line.strip(" ")
+        if forced is None and not comments and _SEP_LINE_RE.fullmatch(stripped):
+            forced = stripped[4]
+            continue
+        stripped = stripped.strip()
         if not stripped:
             continue
         if stripped.startswith("#") or stripped.startswith('"#'):
@@ -328,7 +334,7 @@ def _read_text(text: str, notes: list[str]) -> ParsedTable:
     while body and not body[-1].strip():
         body.pop()
     sample = [line for line in body[: 5 * _SNIFF_ROWS] if line.strip() and not line.lstrip().startswith("#")]
-    delimiter = _sniff_delimiter(header_line, sample[:_SNIFF_ROWS])
+    delimiter = forced or _sniff_delimiter(header_line, sample[:_SNIFF_ROWS])
     fmt = "tsv" if delimiter == "\t" else "csv"
     try:
         headers = [h.strip() for h in next(csv.reader([header_line], delimiter=delimiter))]
@@ -552,7 +558,10 @@ def _rows_to_table(rows: list[tuple[Any, ...]], notes: list[str]) -> ParsedTable
                     )
                 continue
             if isinstance(v, (int, float)) and not isinstance(v, bool):
-                values[r, c] = float(v)
+                try:
+                    values[r, c] = float(v)
+                except OverflowError:  # an integer cell beyond the double range
+                    raise _cell_error(_cell_str(v), linenos[r], specs[c].header) from None
             elif isinstance(v, str) and _NUMBER_RE.fullmatch(v.strip()):
                 values[r, c] = float(v.strip())
             else:

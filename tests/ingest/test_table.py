@@ -20,6 +20,7 @@ import pytest
 from server.errors import IngestError
 from server.ingest.columns import BY_NAME, QUANTITIES, parse_header, parse_headers
 from server.ingest.table import BINARY_MESSAGE, NO_HEADER_MESSAGE, read_table, to_csv_bytes, to_xlsx_bytes
+from server.ingest.units import Q_, ureg
 
 
 def one_column(header: str, value: str) -> float:
@@ -136,6 +137,22 @@ def test_duplicate_quantity() -> None:
     assert "appears twice" in err.message
 
 
+# --------------------------------------------------------------------------- units
+
+
+@pytest.mark.parametrize("text", ["uC", "kV/cm", "mm^2", "degC", "K/min", "mW", "W/g", "pF", "1/s", "Hz"])
+def test_shared_registry_parses(text: str) -> None:
+    assert isinstance(ureg.parse_units(text), type(ureg.parse_units("m")))
+
+
+def test_shared_registry_quantities() -> None:
+    # SI Brochure 9th ed.: 1 uC/cm^2 = 0.01 C/m^2; 25 degC = 298.15 K (2.3.1).
+    assert Q_(1, "uC/cm^2").to("C/m^2").magnitude == pytest.approx(0.01, rel=1e-12)
+    assert Q_(25, "degC").to("K").magnitude == pytest.approx(298.15, rel=1e-12)
+    assert Q_(1, "kV/cm").to("V/m").magnitude == pytest.approx(1e5, rel=1e-12)
+    assert Q_(1, "mW") + Q_(1, "W/g") * Q_(1, "mg") == Q_(2, "mW")  # one registry, quantities mix
+
+
 # --------------------------------------------------------------------------- conversions
 
 
@@ -230,6 +247,13 @@ def test_tsv_and_crlf() -> None:
     assert parsed.frame.to_numpy().tolist() == [[1.0, 2.0], [3.0, 4.0]]
 
 
+def test_excel_sep_line() -> None:
+    # Excel writes "sep=;" as the first line when asked to; it names the delimiter.
+    parsed = read_table(b"sep=;\n# area: 1 mm^2\nE (kV/cm);P (uC/cm^2)\n1;2\n")
+    assert parsed.frame.to_numpy().tolist() == [[1.0, 2.0]]
+    assert parsed.metadata == {"area": "1 mm^2"} and parsed.first_data_line == 4
+
+
 def test_old_mac_line_endings() -> None:
     parsed = read_table(b"E (kV/cm),P (uC/cm^2)\r1,2\r3,4\r")
     assert parsed.n_rows == 2
@@ -289,6 +313,7 @@ def test_trailing_separator_rows_and_columns() -> None:
         (b"E (kV/cm),P (uC/cm^2)\n1,2\n3,0x10\n", 3, "P (uC/cm^2)", "'0x10' is not a number"),
         (b"T (K)\n300\n-1\n", 3, "T (K)", "below absolute zero"),
         (b"T (degC)\n20\n-300\n", 3, "T (degC)", "below absolute zero"),
+        (b"heat_flow (MW)\n1\n1e300\n", 3, "heat_flow (MW)", "out of range once converted to mW"),
         (b"E (kV/cm),P (uC/cm^2),\n1,2,\n3,4,7\n", 3, "column 3", "no header"),
         (b"E (kV/cm),,P (uC/cm^2)\n1,2,3\n", 1, "column 2", "column 2 has no name"),
     ],
@@ -421,12 +446,23 @@ def test_xlsx_basic_with_leading_empty_rows() -> None:
         ([["E (kV/cm)", "P (uC/cm^2)"], [1, 2], [3, True]], 3, "P (uC/cm^2)", "'True' is not a number"),
         ([["E (kV/cm)", "P (uC/cm^2)"], [1, 2, 9]], 2, "column 3", "no header"),
         ([["# a: b"], ["E (kV/cm)", "Z (m)"], [1, 2]], 2, "Z (m)", "unknown column"),
+        ([["E (kV/cm)"], [1], ["1e400"]], 3, "E (kV/cm)", "too large for a double"),
+        ([["T (K)"], [1], [-5]], 3, "T (K)", "below absolute zero"),
     ],
 )
 def test_xlsx_errors(rows, line, column, fragment) -> None:
     err = ingest_error(_workbook(rows))
     assert (err.line, err.column) == (line, column)
     assert fragment in err.message
+
+
+def test_xlsx_integer_beyond_double() -> None:
+    # openpyxl reads an integer cell as a Python int, which can exceed the double range.
+    from server.ingest.table import _rows_to_table
+
+    with pytest.raises(IngestError, match="too large") as info:
+        _rows_to_table([("E (kV/cm)",), (1,), (10**400,)], [])
+    assert (info.value.line, info.value.column) == (3, "E (kV/cm)")
 
 
 def test_xlsx_missing_header_and_empty() -> None:

@@ -48,6 +48,15 @@ class Compound(SQLModel, table=True):
     created_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
     updated_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
     created_by: str = Field(default="", max_length=120)
+    # The evidence-based verdict (server.analysis.verdict), recomputed whenever evidence changes.
+    verdict_code: str = Field(default="untested", max_length=40, index=True)
+    verdict: Optional[dict[str, Any]] = Field(default=None, sa_type=sa.JSON)
+    verdict_at: Optional[datetime] = Field(default=None, sa_type=UTCDateTime)
+    # A reviewed override by a person with the right role; the computed verdict stays beside it.
+    override_code: Optional[str] = Field(default=None, max_length=40)
+    override_reason: str = Field(default="", sa_type=sa.Text)
+    override_by: str = Field(default="", max_length=120)
+    override_at: Optional[datetime] = Field(default=None, sa_type=UTCDateTime)
 
 
 class Batch(SQLModel, table=True):

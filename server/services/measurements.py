@@ -20,7 +20,7 @@ from ..analysis.common import jsonable
 from ..errors import InputError
 from ..ingest.conditions import Conditions, parse_conditions
 from ..models import Batch, Compound, Measurement, RawFile, utcnow
-from . import audit
+from . import audit, barriers, verdicts
 from .errors import Forbidden, NotFound
 from .kinds import KINDS, Context, Kind
 
@@ -136,6 +136,11 @@ def upload_measurement(
         if again is None:
             raise
         return again, False
+    if kind.name == "nmr_rates":
+        barriers.barrier_from_rate_table(session, compound=compound, measurement=m, fit=done.result, actor=actor)
+    if kind.name == "crystal":
+        verdicts.record_crystal_phase(session, compound=compound, batch=batch, measurement=m)
+    verdicts.recompute(session, compound)
     audit.record(session, actor=actor, action="measurement.create", entity="measurement", code=str(m.id),
                  compound_id=compound.id, after={k: v for k, v in audit.snapshot(m).items() if k != "results"})
     session.commit()
@@ -229,6 +234,7 @@ def reanalyse(*, session: Session, kind: str | None = None, actor: str = "cli:re
         get_kind(kind)
         query = query.where(Measurement.kind == kind)
     changes = []
+    touched: set[int] = set()
     for m in session.exec(query).all():
         try:
             done = reanalyse_one(session, m)
@@ -249,6 +255,9 @@ def reanalyse(*, session: Session, kind: str | None = None, actor: str = "cli:re
             audit.record(session, actor=actor, action="measurement.reanalyse", entity="measurement", code=str(m.id),
                          before=before, after={"results": m.results, "verdict": m.verdict,
                                                "analysis_version": m.analysis_version})
+            touched.add(session.get(Batch, m.batch_id).compound_id)
+    for compound_id in sorted(touched):
+        verdicts.recompute(session, session.get(Compound, compound_id))
     session.commit()
     return changes
 

@@ -29,7 +29,7 @@ from ..models import (
     utcnow,
 )
 from ..settings import Settings
-from . import audit
+from . import audit, verdicts
 from .errors import Duplicate, NotFound
 
 
@@ -260,6 +260,8 @@ def compound_read(session: Session, compound: Compound, *, see_structure: bool) 
         batches=n_batches,
         created_at=compound.created_at,
         created_by=compound.created_by,
+        verdict=compound.override_code or compound.verdict_code,
+        verdict_evidence=verdicts.verdict_read(compound),
     )
 
 

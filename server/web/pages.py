@@ -19,6 +19,7 @@ from ..models import BATCH_STATES, BatchCreate, CompoundCreate, CompoundUpdate, 
 from ..plots import figure_json, summary
 from ..services import accounts, measurements, registry
 from ..services.kinds import KINDS
+from ..analysis.verdict import LABELS as VERDICT_LABELS
 from ..services.errors import Duplicate
 from ..security import same_token
 from .render import redirect, render
@@ -217,10 +218,15 @@ def compound_page(code: str, request: Request, session: SessionDep, actor: PageA
     rows, _ = measurements.list_measurements(session, compound=compound.code, limit=1000)
     items = [measurements.measurement_read(session, m) for m in rows]
     fig = summary.switching_vs_temperature(items)
+    from .science import barrier_rows  # late: science imports this module
+
     return render(request, "pages/compound.html",
                   {"c": read, "batches": batches, "scaffolds": _scaffolds(session), "measurements": items,
                    "summary_figure": figure_json(fig) if fig else None,
-                   "transitions": summary.transitions_table(items), "kinds": KINDS}, actor=actor)
+                   "transitions": summary.transitions_table(items), "kinds": KINDS,
+                   "barriers": barrier_rows(session, compound, t_K=298.15, frequency_Hz=1000.0),
+                   "t": "298.15 K", "f": "1 kHz", "t_K": 298.15, "f_Hz": 1000.0, "rate_error": None,
+                   "verdict_labels": VERDICT_LABELS}, actor=actor)
 
 
 @router.post("/compounds/{code}/edit")

@@ -5,9 +5,11 @@ from __future__ import annotations
 from fastapi import APIRouter, Query, Response
 from fastapi.responses import Response as RawResponse
 
-from ...deps import Reader, SessionDep, SettingsDep, Writer
+from pydantic import BaseModel, Field
+
+from ...deps import Admin, Reader, SessionDep, SettingsDep, Writer
 from ...models import BatchCreate, BatchRead, CompoundCreate, CompoundPage, CompoundRead, CompoundUpdate
-from ...services import registry
+from ...services import registry, verdicts
 from ...services.errors import NotFound
 from .common import AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND
 
@@ -104,3 +106,24 @@ def list_batches(code: str, session: SessionDep, actor: Reader) -> list[BatchRea
 @router.get("/batches/{code}", response_model=BatchRead, responses={**AUTH_ERRORS, **NOT_FOUND})
 def get_batch(code: str, session: SessionDep, actor: Reader) -> BatchRead:
     return registry.batch_read(session, registry.get_batch(session, code))
+
+
+class OverrideIn(BaseModel):
+    code: str = Field(description="a verdict code, e.g. proven_ferroelectric")
+    reason: str = Field(min_length=1, max_length=4000)
+
+
+@router.post("/compounds/{code}/verdict/override", response_model=CompoundRead,
+             responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS})
+def override_verdict(code: str, data: OverrideIn, session: SessionDep, actor: Admin) -> CompoundRead:
+    """A reviewed verdict (admins); the computed verdict stays visible beside it in `verdict_evidence`."""
+    compound = verdicts.set_override(session=session, compound=registry.get_compound(session, code), code=data.code,
+                                     reason=data.reason, actor=actor.label)
+    return registry.compound_read(session, compound, see_structure=True)
+
+
+@router.post("/compounds/{code}/verdict/clear", response_model=CompoundRead, responses={**AUTH_ERRORS, **NOT_FOUND})
+def clear_override(code: str, session: SessionDep, actor: Admin) -> CompoundRead:
+    compound = verdicts.set_override(session=session, compound=registry.get_compound(session, code), code=None,
+                                     reason="", actor=actor.label)
+    return registry.compound_read(session, compound, see_structure=True)

@@ -1,0 +1,127 @@
+"""Inversion barriers: measured (coalescence, Eyring fits of rate tables), imported, computed."""
+
+from __future__ import annotations
+
+from typing import Any, Literal, Optional, Union
+
+from pydantic import BaseModel, Field
+from sqlmodel import Session, select
+
+from ..analysis import kinetics
+from ..analysis.common import jsonable
+from ..errors import InputError
+from ..models import BarrierEstimate, Compound, Measurement
+from . import audit
+from .errors import NotFound
+
+MEASURED_METHODS = ("coalescence", "eyring")
+
+
+class CoalescenceIn(BaseModel):
+    method: Literal["coalescence"]
+    tc_K: float = Field(description="coalescence temperature, K")
+    dnu_Hz: float = Field(description="peak separation in the slow-exchange limit, Hz")
+    tc_err_K: Optional[float] = None
+    dnu_err_Hz: Optional[float] = None
+    notes: str = ""
+
+
+class EyringIn(BaseModel):
+    method: Literal["eyring"]
+    points: list[tuple[float, float]] = Field(description="[[T (K), k (1/s)], ...], at least three")
+    notes: str = ""
+
+
+class ImportedIn(BaseModel):
+    method: Literal["imported"]
+    dg_kcal_mol: float
+    level_of_theory: str = Field(min_length=1, max_length=200)
+    notes: str = ""
+
+
+BarrierIn = Union[CoalescenceIn, EyringIn, ImportedIn]
+
+
+def add_barrier(*, session: Session, compound: Compound, data: BarrierIn, actor: str) -> BarrierEstimate:
+    """Compute and store a barrier from a coalescence point, rate points or an outside value."""
+    if isinstance(data, CoalescenceIn):
+        r = kinetics.coalescence(data.tc_K, data.dnu_Hz, tc_err_K=data.tc_err_K, dnu_err_Hz=data.dnu_err_Hz)
+        row = BarrierEstimate(compound_id=compound.id, method="coalescence", dg_kcal_mol=r.dg_kcal_mol,
+                              dg_err_kcal_mol=r.dg_err_kcal_mol, t_K=r.tc_K, results=jsonable(r.to_dict()),
+                              model="Gutowsky-Holm coalescence", analysis_version=kinetics.VERSION)
+    elif isinstance(data, EyringIn):
+        if len(data.points) < 3:
+            raise InputError("an Eyring fit needs at least three (T, k) points", field="points")
+        t, k = zip(*data.points)
+        r = kinetics.eyring_fit(list(t), list(k))
+        row = _eyring_row(compound, r)
+    else:
+        r = kinetics.imported_barrier(data.dg_kcal_mol, data.level_of_theory, data.notes or None)
+        row = BarrierEstimate(compound_id=compound.id, method="imported", dg_kcal_mol=r.dg_kcal_mol,
+                              results=jsonable(r.to_dict()), model=data.level_of_theory,
+                              analysis_version=kinetics.VERSION)
+    row.notes = data.notes
+    row.created_by = actor
+    session.add(row)
+    session.flush()
+    audit.record(session, actor=actor, action="barrier.create", entity="barrier", code=str(row.id),
+                 compound_id=compound.id, after=audit.snapshot(row))
+    session.commit()
+    session.refresh(row)
+    return row
+
+
+def _eyring_row(compound: Compound, fit: kinetics.EyringFit, measurement_id: Optional[int] = None) -> BarrierEstimate:
+    return BarrierEstimate(compound_id=compound.id, method="eyring", dg_kcal_mol=fit.dg298_kcal_mol,
+                           dg_err_kcal_mol=fit.dg298_err_kcal_mol, t_K=298.15, results=jsonable(fit.to_dict()),
+                           model="Eyring fit of ln(k/T) on 1/T", measurement_id=measurement_id,
+                           analysis_version=kinetics.VERSION)
+
+
+def barrier_from_rate_table(session: Session, *, compound: Compound, measurement: Measurement, fit, actor: str) -> BarrierEstimate:
+    """An uploaded rate table (kind nmr_rates) also lands in the compound's barrier table."""
+    row = _eyring_row(compound, fit, measurement_id=measurement.id)
+    row.created_by = actor
+    session.add(row)
+    return row
+
+
+def list_barriers(session: Session, compound: Compound) -> list[BarrierEstimate]:
+    return list(session.exec(select(BarrierEstimate).where(BarrierEstimate.compound_id == compound.id,
+                                                           BarrierEstimate.archived == False)  # noqa: E712
+                             .order_by(BarrierEstimate.id)).all())
+
+
+def get_barrier(session: Session, barrier_id: int) -> BarrierEstimate:
+    row = session.get(BarrierEstimate, barrier_id)
+    if row is None:
+        raise NotFound(f"no barrier {barrier_id}")
+    return row
+
+
+def barrier_read(session: Session, row: BarrierEstimate) -> dict[str, Any]:
+    compound = session.get(Compound, row.compound_id)
+    return {
+        "id": row.id,
+        "compound": compound.code,
+        "method": row.method,
+        "measured": row.method in MEASURED_METHODS,
+        "dg_kcal_mol": row.dg_kcal_mol,
+        "dg_err_kcal_mol": row.dg_err_kcal_mol,
+        "t_K": row.t_K,
+        "model": row.model,
+        "results": row.results,
+        "measurement": row.measurement_id,
+        "job": row.job_id,
+        "analysis_version": row.analysis_version,
+        "notes": row.notes,
+        "created_at": row.created_at.isoformat(),
+        "created_by": row.created_by,
+    }
+
+
+def rates(row: BarrierEstimate, *, t_K: float, frequency_Hz: Optional[float]) -> dict[str, Any]:
+    """Inversion rate and half-life at t_K, and whether inversion keeps up with a field of frequency_Hz."""
+    if row.dg_kcal_mol is None:
+        raise InputError("this barrier has no value", field="barrier")
+    return jsonable(kinetics.rate_summary(row.dg_kcal_mol, t_K, frequency_Hz).to_dict())

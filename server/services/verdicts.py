@@ -1,0 +1,101 @@
+"""The compound verdict: built from all its evidence, stored with its inputs, overridable with a reason."""
+
+from __future__ import annotations
+
+from typing import Any, Optional
+
+from sqlmodel import Session, select
+
+from ..analysis import verdict as rules
+from ..analysis.common import Flag, jsonable
+from ..errors import InputError
+from ..models import Batch, Compound, CrystalPhase, Measurement, utcnow
+from . import audit
+
+EVIDENCE_KINDS = ("pe_loop", "pund", "dielectric", "dsc", "crystal")
+
+
+def _details(m: Measurement) -> dict[str, Any]:
+    r = m.results or {}
+    if m.kind == "dielectric":
+        return {"t_peak_K": r.get("t_peak_K")} if r.get("t_peak_K") is not None else {}
+    if m.kind == "dsc":
+        return {"peak_K": [p["peak_K"] for p in r.get("peaks") or [] if p.get("peak_K") is not None]}
+    if m.kind == "crystal":
+        return {"space_group": r.get("space_group")}
+    return {}
+
+
+def _temperature(m: Measurement) -> Optional[float]:
+    if m.kind == "crystal":
+        return (m.results or {}).get("temperature_K") or m.temperature_K
+    return m.temperature_K
+
+
+def evidence_for(session: Session, compound: Compound) -> list[rules.Evidence]:
+    rows = session.exec(
+        select(Measurement).join(Batch, Batch.id == Measurement.batch_id)
+        .where(Batch.compound_id == compound.id, Measurement.archived == False,  # noqa: E712
+               Measurement.kind.in_(EVIDENCE_KINDS))
+        .order_by(Measurement.id)
+    ).all()
+    return [
+        rules.Evidence(kind=m.kind, measurement_id=m.id, verdict=m.verdict or "", temperature_K=_temperature(m),
+                       details=_details(m), flags=tuple(Flag(f["code"], f["message"]) for f in m.flags or []))
+        for m in rows
+    ]
+
+
+def recompute(session: Session, compound: Compound) -> rules.CompoundVerdict:
+    """Decide again from the current evidence and store it on the compound (the caller commits)."""
+    decision = rules.decide(evidence_for(session, compound))
+    compound.verdict_code = decision.code
+    compound.verdict = jsonable(decision.to_dict())
+    compound.verdict_at = utcnow()
+    session.add(compound)
+    return decision
+
+
+def effective_code(compound: Compound) -> str:
+    return compound.override_code or compound.verdict_code
+
+
+def set_override(*, session: Session, compound: Compound, code: Optional[str], reason: str, actor: str) -> Compound:
+    """A reviewed override (code None clears it); the computed verdict stays stored beside it."""
+    if code is not None:
+        if code not in rules.LABELS:
+            raise InputError(f"unknown verdict {code!r}; use one of {', '.join(rules.LABELS)}", field="code")
+        if not reason.strip():
+            raise InputError("an override needs a reason", field="reason")
+    before = {"override_code": compound.override_code, "override_reason": compound.override_reason}
+    compound.override_code = code
+    compound.override_reason = reason.strip() if code else ""
+    compound.override_by = actor if code else ""
+    compound.override_at = utcnow() if code else None
+    session.add(compound)
+    audit.record(session, actor=actor, action="verdict.override" if code else "verdict.clear_override",
+                 entity="compound", code=compound.code, compound_id=compound.id, before=before,
+                 after={"override_code": code, "override_reason": compound.override_reason})
+    session.commit()
+    session.refresh(compound)
+    return compound
+
+
+def verdict_read(compound: Compound) -> dict[str, Any]:
+    computed = compound.verdict or {"code": compound.verdict_code, "label": rules.LABELS.get(compound.verdict_code, "")}
+    out: dict[str, Any] = {"computed": computed, "override": None}
+    if compound.override_code:
+        out["override"] = {"code": compound.override_code, "label": rules.LABELS.get(compound.override_code, ""),
+                           "reason": compound.override_reason, "by": compound.override_by,
+                           "at": compound.override_at.isoformat() if compound.override_at else None}
+    return out
+
+
+def record_crystal_phase(session: Session, *, compound: Compound, batch: Batch, measurement: Measurement) -> CrystalPhase:
+    r = measurement.results
+    phase = CrystalPhase(compound_id=compound.id, batch_id=batch.id, measurement_id=measurement.id,
+                         space_group=r.get("space_group") or "", space_group_number=r.get("space_group_number"),
+                         polar=r.get("polar"), centrosymmetric=r.get("centrosymmetric"),
+                         temperature_K=r.get("temperature_K"), results=r)
+    session.add(phase)
+    return phase

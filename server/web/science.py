@@ -1,0 +1,95 @@
+"""Compound-page science: barriers (entry, rates at a chosen T and f) and verdict overrides."""
+
+from __future__ import annotations
+
+from typing import Optional
+from urllib.parse import quote
+
+from fastapi import APIRouter, Request
+from fastapi.responses import HTMLResponse
+
+from ..analysis.kinetics import rate_summary
+from ..deps import SessionDep
+from ..errors import InputError
+from ..ingest.conditions import parse_quantity
+from ..services import barriers, registry, verdicts
+from .pages import PageActor, PageForbidden, PageWriter
+from .render import redirect, render
+
+router = APIRouter(include_in_schema=False)
+
+
+def barrier_rows(session, compound, *, t_K: float, frequency_Hz: Optional[float]) -> list[dict]:  # noqa: ANN001
+    """Each barrier with its inversion rate at t_K (and whether it keeps up with frequency_Hz)."""
+    rows = []
+    for b in barriers.list_barriers(session, compound):
+        row = barriers.barrier_read(session, b)
+        row["rate"] = rate_summary(b.dg_kcal_mol, t_K, frequency_Hz).to_dict() if b.dg_kcal_mol is not None else None
+        rows.append(row)
+    return rows
+
+
+def _conditions(t: str, f: str) -> tuple[float, Optional[float]]:
+    t_K = parse_quantity(t or "298.15 K", field="t", unit="K", example="300 K or 25 degC", temperature=True)
+    f_Hz = parse_quantity(f, field="f", unit="Hz", example="1 kHz") if f and f.strip() else None
+    return t_K, f_Hz
+
+
+@router.get("/compounds/{code}/rates", response_class=HTMLResponse)
+def rates_partial(code: str, request: Request, session: SessionDep, actor: PageActor, t: str = "298.15 K",
+                  f: str = "1 kHz"):
+    compound = registry.get_compound(session, code)
+    error = None
+    try:
+        t_K, f_Hz = _conditions(t, f)
+    except InputError as exc:
+        error, t_K, f_Hz = str(exc), 298.15, None
+    return render(request, "partials/barriers.html",
+                  {"c": compound, "barriers": barrier_rows(session, compound, t_K=t_K, frequency_Hz=f_Hz),
+                   "t": t, "f": f, "t_K": t_K, "f_Hz": f_Hz, "rate_error": error}, actor=actor)
+
+
+@router.post("/compounds/{code}/barriers", response_class=HTMLResponse)
+async def add_barrier(code: str, request: Request, session: SessionDep, actor: PageWriter):
+    compound = registry.get_compound(session, code)
+    form = await request.form()
+    method = str(form.get("method", ""))
+    try:
+        if method == "coalescence":
+            data = barriers.CoalescenceIn(
+                method="coalescence",
+                tc_K=parse_quantity(str(form.get("tc", "")), field="tc", unit="K", example="253 K or -20 degC",
+                                    temperature=True),
+                dnu_Hz=parse_quantity(str(form.get("dnu", "")), field="dnu", unit="Hz", example="85 Hz"),
+                notes=str(form.get("notes", "")))
+        elif method == "imported":
+            try:
+                dg = float(str(form.get("dg_kcal_mol", "")))
+            except ValueError:
+                raise InputError("give the barrier as a number in kcal/mol", field="dg_kcal_mol") from None
+            level = str(form.get("level_of_theory", "")).strip()
+            if not level:
+                raise InputError("name the level of theory or the source", field="level_of_theory")
+            data = barriers.ImportedIn(method="imported", dg_kcal_mol=dg, level_of_theory=level,
+                                       notes=str(form.get("notes", "")))
+        else:
+            raise InputError("choose coalescence or imported", field="method")
+        barriers.add_barrier(session=session, compound=compound, data=data, actor=actor.label)
+    except InputError as exc:
+        return render(request, "pages/error.html", {"status": 422, "detail": str(exc)}, status_code=422, actor=actor)
+    return redirect(f"/compounds/{quote(code)}#barriers", request)
+
+
+@router.post("/compounds/{code}/verdict", response_class=HTMLResponse)
+async def override(code: str, request: Request, session: SessionDep, actor: PageWriter):
+    if not actor.is_admin:
+        raise PageForbidden("Only an admin may override a verdict.")
+    compound = registry.get_compound(session, code)
+    form = await request.form()
+    new = str(form.get("code", "")) or None
+    try:
+        verdicts.set_override(session=session, compound=compound, code=new, reason=str(form.get("reason", "")),
+                              actor=actor.label)
+    except InputError as exc:
+        return render(request, "pages/error.html", {"status": 422, "detail": str(exc)}, status_code=422, actor=actor)
+    return redirect(f"/compounds/{quote(code)}#verdict", request)

@@ -1,0 +1,99 @@
+"""Crystal uploads and the evidence-based compound verdict over the API (SQLite and PostgreSQL)."""
+
+from __future__ import annotations
+
+import pytest
+from sqlmodel import select
+
+from server.chem.scaffold import PARENT_BOWLS
+from server.ingest.table import to_csv_bytes
+from server.models import CrystalPhase
+from server.synth.cif import bowl_crystal_cif
+from server.synth.ferro import leaky_capacitor, miller_loop
+from tests.factories import bearer, login_as, make_token
+
+# The CH2-bridged parent bowl, C21H12, with H at every rim position.
+PARENT = "C1c2ccc3Cc4ccc5Cc6ccc1c7c6c5c4c3c27"
+
+
+@pytest.fixture
+def h(client, session):
+    headers = bearer(make_token(session, scope="write"))
+    assert client.post("/api/v1/compounds", json={"smiles": PARENT}, headers=headers).status_code == 201
+    client.post("/api/v1/compounds/RMN-00001/batches", json={}, headers=headers)
+    return headers
+
+
+def upload(client, h, kind, raw, name, **fields):
+    r = client.post("/api/v1/batches/RMN-00001-B01/measurements", data={"kind": kind, **fields},
+                    files={"file": (name, raw)}, headers=h)
+    assert r.status_code == 201, r.text
+    return r.json()
+
+
+def verdict(client, h):
+    return client.get("/api/v1/compounds/RMN-00001", headers=h).json()
+
+
+def test_untested_then_switching_then_proven(client, session, h):
+    assert verdict(client, h)["verdict"] == "untested"
+    upload(client, h, "pe_loop", to_csv_bytes(miller_loop(10, 8, 50, 300)), "loop.csv", temperature="300 K")
+    assert verdict(client, h)["verdict"] == "switching_phase_unknown"
+    cif = bowl_crystal_cif(PARENT, "P2_1", head_to_tail=True, temperature_K=300.0)
+    m = upload(client, h, "crystal", cif, "bowl.cif")
+    # P2_1 is polar (one of the ten polar classes, point group 2; International Tables Vol. A).
+    assert m["results"]["polar"] is True and m["verdict"] == "polar"
+    assert m["results"]["column_polar"] is True
+    body = verdict(client, h)
+    assert body["verdict"] == "proven_ferroelectric"
+    used = {u["measurement_id"] for u in body["verdict_evidence"]["computed"]["used"]}
+    assert m["id"] in used and len(used) == 2
+    phase = session.exec(select(CrystalPhase)).one()
+    assert phase.space_group_number == 4 and phase.polar is True
+
+
+def test_centrosymmetric_with_switching_is_conflicting(client, h):
+    upload(client, h, "pe_loop", to_csv_bytes(miller_loop(10, 8, 50, 300)), "loop.csv", temperature="150 K")
+    upload(client, h, "crystal", bowl_crystal_cif(PARENT, "P2_1/c", head_to_tail=False, temperature_K=150.0), "c.cif")
+    body = verdict(client, h)
+    assert body["verdict"] == "conflicting"
+    assert body["verdict_evidence"]["computed"]["conflicts"]
+
+
+def test_leaky_loop_and_centrosymmetric_is_nonpolar(client, h):
+    upload(client, h, "pe_loop", to_csv_bytes(leaky_capacitor(10, 1, 100, frequency_Hz=100)), "leak.csv",
+           temperature="150 K")
+    upload(client, h, "crystal", bowl_crystal_cif(PARENT, "P-1", head_to_tail=False, temperature_K=150.0), "c.cif")
+    assert verdict(client, h)["verdict"] == "nonpolar"
+
+
+def test_cif_formula_mismatch_is_flagged(client, session):
+    headers = bearer(make_token(session, scope="write"))
+    client.post("/api/v1/compounds", json={"smiles": "c1ccc2ccccc2c1"}, headers=headers)  # naphthalene, C10H8
+    client.post("/api/v1/compounds/RMN-00001/batches", json={}, headers=headers)
+    m = upload(client, headers, "crystal", bowl_crystal_cif(PARENT, "P2_1", head_to_tail=True), "x.cif")
+    assert "formula_mismatch" in {f["code"] for f in m["flags"]}
+
+
+def test_unreadable_cif_is_422(client, session, h):
+    r = client.post("/api/v1/batches/RMN-00001-B01/measurements", data={"kind": "crystal"},
+                    files={"file": ("x.cif", b"data_x\n_cell_length_a 5\n")}, headers=h)
+    assert r.status_code == 422
+    assert session.exec(select(CrystalPhase)).all() == []
+
+
+def test_override_needs_admin_and_keeps_computed(client, session, h):
+    upload(client, h, "pe_loop", to_csv_bytes(miller_loop(10, 8, 50, 300)), "loop.csv", temperature="300 K")
+    body = {"code": "proven_ferroelectric", "reason": "polar phase seen by powder SHG in the group's notebook"}
+    assert client.post("/api/v1/compounds/RMN-00001/verdict/override", json=body, headers=h).status_code == 403
+    csrf = login_as(client, session, role="admin")
+    r = client.post("/api/v1/compounds/RMN-00001/verdict/override", json=body, headers={"X-CSRF-Token": csrf})
+    assert r.status_code == 200, r.text
+    assert r.json()["verdict"] == "proven_ferroelectric"
+    assert r.json()["verdict_evidence"]["computed"]["code"] == "switching_phase_unknown"
+    assert r.json()["verdict_evidence"]["override"]["reason"].startswith("polar phase")
+    bad = client.post("/api/v1/compounds/RMN-00001/verdict/override", json={"code": "great", "reason": "x"},
+                      headers={"X-CSRF-Token": csrf})
+    assert bad.status_code == 422
+    cleared = client.post("/api/v1/compounds/RMN-00001/verdict/clear", headers={"X-CSRF-Token": csrf}).json()
+    assert cleared["verdict"] == "switching_phase_unknown"

@@ -24,6 +24,7 @@ from .settings import PROJECT_ROOT, Settings, get_settings
 from .web import format as format_filters
 from .web import measurements as measurement_pages
 from .web import pages
+from .web import campaign as campaign_pages
 from .web import science as science_pages
 from .web.render import render
 
@@ -102,7 +103,17 @@ def create_app(settings: Settings | None = None) -> FastAPI:
 
     @asynccontextmanager
     async def lifespan(app: FastAPI):
+        # The embedded default: one worker thread inside the server, so a laptop needs nothing else.
+        embedded = None
+        if settings.embedded_worker:
+            from .jobs.worker import start_embedded
+
+            embedded = start_embedded(app, settings)
         yield
+        if embedded is not None:
+            from .jobs.worker import stop_embedded
+
+            stop_embedded(*embedded, timeout_s=10)
         engine.dispose()
 
     app = FastAPI(
@@ -143,6 +154,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(pages.router)
     app.include_router(measurement_pages.router)
     app.include_router(science_pages.router)
+    app.include_router(campaign_pages.router)
     app.mount("/static", StaticFiles(directory=str(PROJECT_ROOT / "static")), name="static")
 
     @app.get(f"/assets/plotly-{PLOTLY_VERSION}.min.js", include_in_schema=False)

@@ -8,6 +8,7 @@
                                            create an API token; prints it alone on the last line
     remanence token revoke ID              revoke a token at once
     remanence reanalyze [--kind K]         recompute stored measurements from their raw files
+    remanence worker [--name N] [--once]   run background jobs against the configured database
     remanence settings                     list the settings, their environment variables and values
 """
 
@@ -32,8 +33,16 @@ def _settings() -> Settings:
 def cmd_init(args: argparse.Namespace) -> int:
     from .db import upgrade
 
+    from .db import make_engine
+    from .services import stats
+
     settings = _settings()
     upgrade(settings.database_url)
+    engine = make_engine(settings.database_url)
+    with Session(engine) as session:
+        if stats.missing(session):
+            print(f"rebuilt the figures of {stats.refresh_all(session)} compound(s)")
+    engine.dispose()
     print(f"database ready: {_display_url(settings.database_url)}")
     return 0
 
@@ -175,6 +184,17 @@ def cmd_reanalyze(args: argparse.Namespace) -> int:
     return 1 if any(ch.error for ch in changes) else 0
 
 
+def cmd_worker(args: argparse.Namespace) -> int:
+    from .db import upgrade
+    from .jobs.worker import run_worker
+
+    settings = _settings()
+    upgrade(settings.database_url)
+    n = run_worker(settings, name=args.name, once=args.once)
+    print(f"worker stopped after {n} job(s)")
+    return 0
+
+
 def cmd_settings(args: argparse.Namespace) -> int:
     settings = _settings()
     for s in SETTINGS:
@@ -227,6 +247,11 @@ def build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("reanalyze", help="recompute every stored measurement from its raw file")
     p.add_argument("--kind", help="only measurements of this kind")
     p.set_defaults(func=cmd_reanalyze)
+
+    p = sub.add_parser("worker", help="run background jobs (computed estimates) until stopped")
+    p.add_argument("--name", help="worker name shown on the queue page (default host:pid)")
+    p.add_argument("--once", action="store_true", help="run at most one job, then exit")
+    p.set_defaults(func=cmd_worker)
 
     sub.add_parser("settings", help="list settings").set_defaults(func=cmd_settings)
     return parser

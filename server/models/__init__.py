@@ -22,14 +22,16 @@ from .registry import (
     SideChainRead,
     SideChainSpec,
 )
+from .site import SiteSetting
+from .stats import CompoundSideChain, CompoundStats
 from .types import UTCDateTime, utcnow
 
 metadata = SQLModel.metadata
 
 __all__ = [
-    "ApiToken", "AuditEvent", "BATCH_STATES", "BarrierEstimate", "Batch", "BatchCreate", "BatchRead", "Compound",
+    "ApiToken", "AuditEvent", "CompoundSideChain", "CompoundStats", "BATCH_STATES", "BarrierEstimate", "Batch", "BatchCreate", "BatchRead", "Compound",
     "CompoundCreate", "CompoundPage", "CompoundRead", "CompoundUpdate", "CrystalPhase", "ScaffoldCreate",
-    "ScaffoldRead", "SideChainRead", "SideChainSpec",
+    "ScaffoldRead", "SiteSetting", "SideChainRead", "SideChainSpec",
     "JOB_STATES", "Job", "Measurement", "ROLES", "RawFile", "SCOPES", "Scaffold", "UTCDateTime", "User",
     "metadata", "utcnow",
 ]

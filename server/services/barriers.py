@@ -11,10 +11,10 @@ from ..analysis import kinetics
 from ..analysis.common import jsonable
 from ..errors import InputError
 from ..models import BarrierEstimate, Compound, Measurement
-from . import audit
+from . import audit, stats
+from .stats import MEASURED_METHODS
 from .errors import NotFound
 
-MEASURED_METHODS = ("coalescence", "eyring")
 
 
 class CoalescenceIn(BaseModel):
@@ -66,6 +66,7 @@ def add_barrier(*, session: Session, compound: Compound, data: BarrierIn, actor:
     session.flush()
     audit.record(session, actor=actor, action="barrier.create", entity="barrier", code=str(row.id),
                  compound_id=compound.id, after=audit.snapshot(row))
+    stats.refresh(session, compound)
     session.commit()
     session.refresh(row)
     return row
@@ -125,3 +126,42 @@ def rates(row: BarrierEstimate, *, t_K: float, frequency_Hz: Optional[float]) ->
     if row.dg_kcal_mol is None:
         raise InputError("this barrier has no value", field="barrier")
     return jsonable(kinetics.rate_summary(row.dg_kcal_mol, t_K, frequency_Hz).to_dict())
+
+
+def _latest(rows: list[BarrierEstimate], methods: tuple[str, ...]) -> Optional[BarrierEstimate]:
+    chosen = [r for r in rows if r.method in methods and r.dg_kcal_mol is not None and not r.archived]
+    return chosen[-1] if chosen else None
+
+
+def calibration_pairs(session: Session) -> list[dict[str, Any]]:
+    """Per compound, its latest measured barrier (dynamic NMR) and latest GFN2-xTB estimate."""
+    rows = session.exec(select(BarrierEstimate).order_by(BarrierEstimate.id)).all()
+    by_compound: dict[int, list[BarrierEstimate]] = {}
+    for r in rows:
+        by_compound.setdefault(r.compound_id, []).append(r)
+    pairs = []
+    for cid, items in by_compound.items():
+        m, c = _latest(items, MEASURED_METHODS), _latest(items, ("gfn2-xtb",))
+        if m and c:
+            compound = session.get(Compound, cid)
+            if compound.archived:
+                continue
+            pairs.append({"code": compound.code, "measured": m.dg_kcal_mol, "computed": c.dg_kcal_mol,
+                          "measured_method": m.method})
+    return sorted(pairs, key=lambda p: p["code"])
+
+
+def calibrated_estimates(session: Session, cal) -> list[dict[str, Any]]:  # noqa: ANN001 - a Calibration
+    """Every compound's latest computed barrier beside its calibrated value and 95 % prediction interval."""
+    rows = session.exec(select(BarrierEstimate).where(BarrierEstimate.method == "gfn2-xtb",
+                                                      BarrierEstimate.archived == False)  # noqa: E712
+                        .order_by(BarrierEstimate.id)).all()
+    latest: dict[int, BarrierEstimate] = {r.compound_id: r for r in rows if r.dg_kcal_mol is not None}
+    out = []
+    for cid, r in sorted(latest.items()):
+        compound = session.get(Compound, cid)
+        item = {"code": compound.code, "computed": r.dg_kcal_mol, "calibrated": None, "lower": None, "upper": None}
+        if cal.ok:
+            item["calibrated"], item["lower"], item["upper"] = cal.predict(r.dg_kcal_mol)
+        out.append(item)
+    return out

@@ -20,7 +20,7 @@ from ..analysis.common import jsonable
 from ..errors import InputError
 from ..ingest.conditions import Conditions, parse_conditions
 from ..models import Batch, Compound, Measurement, RawFile, utcnow
-from . import audit, barriers, verdicts
+from . import audit, barriers, stats, verdicts
 from .errors import Forbidden, NotFound
 from .kinds import KINDS, Context, Kind
 
@@ -141,6 +141,7 @@ def upload_measurement(
     if kind.name == "crystal":
         verdicts.record_crystal_phase(session, compound=compound, batch=batch, measurement=m)
     verdicts.recompute(session, compound)
+    stats.refresh(session, compound)
     audit.record(session, actor=actor, action="measurement.create", entity="measurement", code=str(m.id),
                  compound_id=compound.id, after={k: v for k, v in audit.snapshot(m).items() if k != "results"})
     session.commit()
@@ -258,6 +259,7 @@ def reanalyse(*, session: Session, kind: str | None = None, actor: str = "cli:re
             touched.add(session.get(Batch, m.batch_id).compound_id)
     for compound_id in sorted(touched):
         verdicts.recompute(session, session.get(Compound, compound_id))
+        stats.refresh(session, session.get(Compound, compound_id))
     session.commit()
     return changes
 

@@ -29,7 +29,7 @@ from ..models import (
     utcnow,
 )
 from ..settings import Settings
-from . import audit, verdicts
+from . import audit, search, stats, verdicts
 from .errors import Duplicate, NotFound
 
 
@@ -118,10 +118,12 @@ def register_compound(*, session: Session, settings: Settings, data: CompoundCre
             if dup is not None:
                 raise Duplicate(f"this molecule is registered already as {dup.code}", existing=dup.code) from None
             continue
+        search.index_compound(session, compound)
         audit.record(
             session, actor=actor, action="compound.create", entity="compound", code=compound.code,
             compound_id=compound.id, after=audit.snapshot(compound),
         )
+        stats.refresh(session, compound)
         session.commit()
         session.refresh(compound)
         return compound
@@ -155,6 +157,7 @@ def update_compound(*, session: Session, compound: Compound, data: CompoundUpdat
     session.add(compound)
     audit.record(session, actor=actor, action="compound.update", entity="compound", code=compound.code,
                  compound_id=compound.id, before=before, after=audit.snapshot(compound))
+    stats.refresh(session, compound)
     session.commit()
     session.refresh(compound)
     return compound
@@ -168,6 +171,7 @@ def set_compound_archived(*, session: Session, compound: Compound, archived: boo
     audit.record(session, actor=actor, action="compound.archive" if archived else "compound.restore",
                  entity="compound", code=compound.code, compound_id=compound.id, before=before,
                  after=audit.snapshot(compound))
+    stats.refresh(session, compound)
     session.commit()
     session.refresh(compound)
     return compound
@@ -199,6 +203,7 @@ def add_batch(*, session: Session, compound: Compound, data: BatchCreate, actor:
             continue
         audit.record(session, actor=actor, action="batch.create", entity="batch", code=batch.code,
                      compound_id=compound.id, after=audit.snapshot(batch))
+        stats.refresh(session, compound)
         session.commit()
         session.refresh(batch)
         return batch

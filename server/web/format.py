@@ -67,7 +67,7 @@ def scalar_items(results: dict[str, Any]) -> list[tuple[str, str, Any]]:
     """(label, unit, value) for the scalar results, in the analysis's own order."""
     out = []
     for key, value in results.items():
-        if isinstance(value, (int, float, str, bool)) or value is None:
+        if isinstance(value, (int, float, str, bool)):
             if key in ("verdict", "source"):
                 continue
             label, unit = split_key(key)

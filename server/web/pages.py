@@ -8,7 +8,7 @@ from typing import Annotated, Optional
 from urllib.parse import quote
 
 from fastapi import APIRouter, Depends, Form, Query, Request
-from fastapi.responses import HTMLResponse, RedirectResponse
+from fastapi.responses import HTMLResponse, RedirectResponse, Response
 from pydantic import ValidationError
 from sqlmodel import select
 
@@ -17,7 +17,8 @@ from ..deps import Actor, OptionalActor, SessionDep, SettingsDep, check_csrf
 from ..errors import InputError
 from ..models import BATCH_STATES, BatchCreate, CompoundCreate, CompoundUpdate, Scaffold, ScaffoldCreate, SideChainSpec
 from ..plots import figure_json, summary
-from ..services import accounts, measurements, registry
+from ..jobs import queue
+from ..services import accounts, estimates, measurements, registry, views
 from ..services.kinds import KINDS
 from ..analysis.verdict import LABELS as VERDICT_LABELS
 from ..services.errors import Duplicate
@@ -114,15 +115,32 @@ def home() -> RedirectResponse:
 
 
 @router.get("/compounds", response_class=HTMLResponse)
-def compound_list(request: Request, session: SessionDep, actor: PageActor, page: int = Query(1, ge=1)):
-    rows, total = registry.list_compounds(session, limit=PAGE_SIZE, offset=(page - 1) * PAGE_SIZE)
-    items = [registry.compound_read(session, c, see_structure=actor.can_see_embargoed) for c in rows]
-    pages = max(1, math.ceil(total / PAGE_SIZE))
+def compound_list(request: Request, session: SessionDep, actor: PageActor):
+    """The registry table: filters, sort and page live in the query string, so every view is a link."""
+    error = None
+    try:
+        q = views.parse_view(request.query_params)
+        result = views.query_view(session, q)
+    except InputError as exc:
+        error, q = str(exc), views.ViewQuery()
+        result = views.query_view(session, q)
     return render(
         request, "pages/compounds.html",
-        {"items": items, "total": total, "page": page, "pages": pages},
+        {"result": result, "q": q, "error": error, "choices": views.filter_choices(session), "sorts": views.SORTS,
+         "verdict_labels": VERDICT_LABELS, "link": q.link()},
         partial="partials/compound_table.html", actor=actor,
     )
+
+
+@router.get("/compounds/export.{fmt}")
+def compound_export(fmt: str, request: Request, session: SessionDep, actor: PageActor):
+    """The current view (all pages) as CSV or XLSX, units in the column headers."""
+    q = views.parse_view(request.query_params)
+    frame = views.export_frame(views.query_view(session, q, paged=False),
+                               hide_structures_of_embargoed=not actor.can_see_embargoed)
+    body, media = views.export_bytes(frame, fmt)
+    return Response(body, media_type=media,
+                    headers={"Content-Disposition": f'attachment; filename="remanence-compounds.{fmt}"'})
 
 
 def _scaffolds(session) -> list[Scaffold]:  # noqa: ANN001
@@ -226,7 +244,11 @@ def compound_page(code: str, request: Request, session: SessionDep, actor: PageA
                    "transitions": summary.transitions_table(items), "kinds": KINDS,
                    "barriers": barrier_rows(session, compound, t_K=298.15, frequency_Hz=1000.0),
                    "t": "298.15 K", "f": "1 kHz", "t_K": 298.15, "f_Hz": 1000.0, "rate_error": None,
-                   "verdict_labels": VERDICT_LABELS}, actor=actor)
+                   "verdict_labels": VERDICT_LABELS,
+                   "estimates": estimates.estimates_of(session, compound),
+                   "active_jobs": [queue.job_read(j, session=session) for j in queue.list_jobs(
+                       session, compound_id=compound.id, limit=5)[0] if j.state in ("queued", "running")]},
+                  actor=actor)
 
 
 @router.post("/compounds/{code}/edit")

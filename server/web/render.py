@@ -9,7 +9,7 @@ from __future__ import annotations
 from typing import Any, Optional
 
 from fastapi import Request
-from fastapi.responses import HTMLResponse, RedirectResponse
+from fastapi.responses import HTMLResponse, RedirectResponse, Response
 
 from ..deps import is_htmx
 from ..security import new_csrf_token
@@ -41,10 +41,9 @@ def render(
     return response
 
 
-def redirect(url: str, request: Request | None = None) -> RedirectResponse:
-    """303 after a successful POST; for htmx, HX-Redirect so the whole page moves."""
+def redirect(url: str, request: Request | None = None) -> Response:
+    """303 after a successful POST; for htmx, a 200 carrying HX-Redirect so the whole page moves
+    (a 3xx would be followed by the browser before htmx could see the header)."""
     if request is not None and is_htmx(request):
-        resp = RedirectResponse(url, status_code=303)
-        resp.headers["HX-Redirect"] = url
-        return resp
+        return Response(status_code=200, headers={"HX-Redirect": url})
     return RedirectResponse(url, status_code=303)

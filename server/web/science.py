@@ -12,7 +12,16 @@ from ..analysis.kinetics import rate_summary
 from ..deps import SessionDep
 from ..errors import InputError
 from ..ingest.conditions import parse_quantity
-from ..services import barriers, registry, verdicts
+from sqlmodel import select
+
+from ..analysis.calibration import calibrate
+from ..deps import is_htmx
+from ..jobs import queue
+from ..models import Compound, Scaffold
+from ..plots import figure_json
+from ..plots.kinetics import calibration_figure
+from ..services import barriers, estimates, registry, verdicts
+from ..services.errors import NotFound
 from .pages import PageActor, PageForbidden, PageWriter
 from .render import redirect, render
 
@@ -93,3 +102,87 @@ async def override(code: str, request: Request, session: SessionDep, actor: Page
     except InputError as exc:
         return render(request, "pages/error.html", {"status": 422, "detail": str(exc)}, status_code=422, actor=actor)
     return redirect(f"/compounds/{quote(code)}#verdict", request)
+
+
+# --- computed estimates and the queue ----------------------------------------------------------
+
+
+def _job_context(session, job) -> dict:  # noqa: ANN001
+    return {"job": queue.job_read(job, session=session)}
+
+
+@router.post("/compounds/{code}/estimate", response_class=HTMLResponse)
+async def queue_estimate(code: str, request: Request, session: SessionDep, actor: PageWriter):
+    compound = registry.get_compound(session, code)
+    form = await request.form()
+    try:
+        job = estimates.queue_estimate(session=session, compound=compound,
+                                       truncate_side_chains=form.get("full_chains") != "on", actor=actor.label)
+    except InputError as exc:
+        return render(request, "partials/job.html", {"job": None, "error": str(exc)}, status_code=422, actor=actor)
+    if is_htmx(request):
+        return render(request, "partials/job.html", _job_context(session, job), actor=actor)
+    return redirect(f"/compounds/{quote(code)}#estimates", request)
+
+
+@router.get("/jobs/{job_id}/panel", response_class=HTMLResponse)
+def job_panel(job_id: int, request: Request, session: SessionDep, actor: PageActor):
+    """The job's status; while queued or running it polls itself, so the bar advances without a reload."""
+    return render(request, "partials/job.html", _job_context(session, queue.get_job(session, job_id)), actor=actor)
+
+
+@router.post("/jobs/{job_id}/cancel", response_class=HTMLResponse)
+async def cancel_job(job_id: int, request: Request, session: SessionDep, actor: PageWriter):
+    try:
+        job = queue.cancel(session, job_id, actor=actor.label)
+    except InputError as exc:
+        return render(request, "pages/error.html", {"status": 422, "detail": str(exc)}, status_code=422, actor=actor)
+    if is_htmx(request):
+        return render(request, "partials/job.html", _job_context(session, job), actor=actor)
+    return redirect("/queue", request)
+
+
+@router.get("/queue", response_class=HTMLResponse)
+def queue_page(request: Request, session: SessionDep, actor: PageActor):
+    return render(request, "pages/queue.html",
+                  {"summary": estimates.queue_summary(session), "scaffolds": _all_scaffolds(session), "error": None},
+                  partial="partials/queue_body.html", actor=actor)
+
+
+@router.post("/queue", response_class=HTMLResponse)
+async def queue_many(request: Request, session: SessionDep, actor: PageWriter):
+    form = await request.form()
+    codes = [c.strip() for c in str(form.get("codes", "")).replace(",", " ").split() if c.strip()]
+    scaffold = str(form.get("scaffold", "")).strip()
+    try:
+        if codes:
+            compounds = [registry.get_compound(session, c) for c in codes]
+        elif scaffold:
+            sc = registry.get_scaffold(session, scaffold)
+            compounds = list(session.exec(select(Compound).where(Compound.scaffold_id == sc.id,
+                                                                 Compound.archived == False)  # noqa: E712
+                                          .order_by(Compound.number)).all())
+        else:
+            raise InputError("choose a scaffold or list compound codes", field="codes")
+        estimates.queue_estimates(session=session, compounds=compounds,
+                                  truncate_side_chains=form.get("full_chains") != "on", actor=actor.label)
+    except (InputError, NotFound) as exc:
+        return render(request, "pages/queue.html",
+                      {"summary": estimates.queue_summary(session), "scaffolds": _all_scaffolds(session),
+                       "error": str(exc)}, status_code=422, actor=actor)
+    return redirect("/queue", request)
+
+
+def _all_scaffolds(session):  # noqa: ANN001
+    return list(session.exec(select(Scaffold).order_by(Scaffold.code)).all())
+
+
+@router.get("/calibration", response_class=HTMLResponse)
+def calibration_page(request: Request, session: SessionDep, actor: PageActor):
+    """Measured against computed barriers across compounds, with the fit and its prediction band."""
+    pairs = barriers.calibration_pairs(session)
+    cal = calibrate([p["measured"] for p in pairs], [p["computed"] for p in pairs], labels=[p["code"] for p in pairs])
+    fig = figure_json(calibration_figure(cal, [p["code"] for p in pairs])) if pairs else None
+    predictions = barriers.calibrated_estimates(session, cal)
+    return render(request, "pages/calibration.html",
+                  {"cal": cal, "pairs": pairs, "figure": fig, "predictions": predictions}, actor=actor)

@@ -2,10 +2,11 @@
 
 from fastapi import APIRouter
 
-from . import barriers, compounds, measurements, scaffolds
+from . import barriers, compounds, jobs, measurements, scaffolds
 
 router = APIRouter(prefix="/api/v1")
 router.include_router(compounds.router)
 router.include_router(scaffolds.router)
 router.include_router(measurements.router)
 router.include_router(barriers.router)
+router.include_router(jobs.router)

@@ -2,14 +2,17 @@
 
 from __future__ import annotations
 
-from fastapi import APIRouter, Query, Response
+from dataclasses import replace
+
+from fastapi import APIRouter, Query, Request, Response
 from fastapi.responses import Response as RawResponse
 
 from pydantic import BaseModel, Field
 
 from ...deps import Admin, Reader, SessionDep, SettingsDep, Writer
 from ...models import BatchCreate, BatchRead, CompoundCreate, CompoundPage, CompoundRead, CompoundUpdate
-from ...services import registry, verdicts
+from ...errors import InputError
+from ...services import registry, verdicts, views
 from ...services.errors import NotFound
 from .common import AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND
 
@@ -26,17 +29,43 @@ def create_compound(data: CompoundCreate, session: SessionDep, settings: Setting
     return registry.compound_read(session, compound, see_structure=True)
 
 
-@router.get("/compounds", response_model=CompoundPage, responses=AUTH_ERRORS)
+@router.get("/compounds", response_model=CompoundPage, responses={**AUTH_ERRORS, **INPUT_ERRORS})
 def list_compounds(
+    request: Request,
     session: SessionDep,
     actor: Reader,
     limit: int = Query(50, ge=1, le=500),
     offset: int = Query(0, ge=0),
     include_archived: bool = False,
 ) -> CompoundPage:
-    rows, total = registry.list_compounds(session, limit=limit, offset=offset, include_archived=include_archived)
-    items = [registry.compound_read(session, c, see_structure=actor.can_see_embargoed) for c in rows]
-    return CompoundPage(items=items, total=total)
+    """Compounds, newest first, with the same filters as the registry table (`scaffold`, `chain_kind`,
+    `c_min`, `c_max`, `branched`, `batch_state`, `verdict`, `polar`, `barrier_min`, `barrier_max`,
+    `barrier_source`, `has`, `made_from`, `made_to`, `q`, `sort`, `dir`, `substructure`, `similar`)."""
+    q = views.parse_view(request.query_params, max_size=500)
+    if include_archived:
+        q = replace(q, values={**q.values, "archived": True})
+    if offset % limit == 0:
+        result = views.query_view(session, replace(q, page=offset // limit + 1, size=limit))
+        rows = result.rows
+    else:
+        result = views.query_view(session, q, paged=False)
+        rows = result.rows[offset: offset + limit]
+    items = [registry.compound_read(session, r.compound, see_structure=actor.can_see_embargoed) for r in rows]
+    return CompoundPage(items=items, total=result.total)
+
+
+@router.get("/search", responses={**AUTH_ERRORS, **INPUT_ERRORS})
+def search_structures(request: Request, session: SessionDep, actor: Reader) -> dict:
+    """Structure search: `substructure` (SMARTS or SMILES) or `similar` (SMILES) with `threshold`
+    (Tanimoto on Morgan radius-2 fingerprints), combinable with the compound filters.
+    Answers `{"items": [{"code", "similarity"?}], "total"}`, most similar first."""
+    q = views.parse_view(request.query_params, max_size=1000)
+    if not (q.substructure or q.similar):
+        raise InputError("give substructure=SMARTS or similar=SMILES", field="substructure")
+    result = views.query_view(session, replace(q, sort="code", descending=True), paged=False)
+    rows = [r for r in result.rows if actor.can_see_embargoed or not r.compound.embargoed]
+    items = [{"code": r.compound.code, **({"similarity": r.similarity} if q.similar else {})} for r in rows]
+    return {"items": items, "total": len(items)}
 
 
 @router.get("/compounds/{code}", response_model=CompoundRead, responses={**AUTH_ERRORS, **NOT_FOUND})

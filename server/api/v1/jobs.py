@@ -1,0 +1,86 @@
+"""Computed estimates as background jobs, and the job queue."""
+
+from __future__ import annotations
+
+from typing import Any, Optional
+
+from fastapi import APIRouter, Query
+from pydantic import BaseModel, Field
+from sqlmodel import select
+
+from ...deps import Reader, SessionDep, Writer
+from ...errors import InputError
+from ...jobs import queue
+from ...models import Compound
+from ...services import estimates, registry
+from .common import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND
+
+router = APIRouter(tags=["estimates and jobs"])
+
+
+class EstimateIn(BaseModel):
+    truncate_side_chains: bool = Field(True, description="replace side chains by methyl (OMe/SMe/Me) for speed")
+
+
+class BulkEstimateIn(EstimateIn):
+    compounds: Optional[list[str]] = Field(None, description="compound codes")
+    scaffold: Optional[str] = Field(None, description="every live compound of this scaffold")
+
+
+def _visible_job(job: dict[str, Any], actor) -> dict[str, Any]:  # noqa: ANN001
+    """Drop the truncated structure from results for callers who may not see embargoed structures."""
+    if not actor.can_see_embargoed and isinstance(job.get("result"), dict):
+        job = {**job, "result": {k: v for k, v in job["result"].items() if k != "smiles_used"}}
+    return job
+
+
+@router.post("/compounds/{code}/estimates", status_code=202, responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS})
+def queue_estimate(code: str, session: SessionDep, actor: Writer, data: Optional[EstimateIn] = None) -> dict[str, Any]:
+    """Queue a GFN2-xTB estimate of the barrier, bowl depth and dipole; answers the job to poll."""
+    data = data or EstimateIn()
+    compound = registry.get_compound(session, code)
+    job = estimates.queue_estimate(session=session, compound=compound, truncate_side_chains=data.truncate_side_chains,
+                                   actor=actor.label)
+    return {"job": job.id, **queue.job_read(job, session=session)}
+
+
+@router.post("/estimates", status_code=202, responses={**AUTH_ERRORS, **INPUT_ERRORS})
+def queue_many(data: BulkEstimateIn, session: SessionDep, actor: Writer) -> dict[str, Any]:
+    """Queue estimates for many compounds at once: a list of codes, or every compound of a scaffold."""
+    if data.compounds:
+        compounds = [registry.get_compound(session, c) for c in data.compounds]
+    elif data.scaffold:
+        sc = registry.get_scaffold(session, data.scaffold)
+        compounds = list(session.exec(select(Compound).where(Compound.scaffold_id == sc.id,
+                                                             Compound.archived == False)  # noqa: E712
+                                      .order_by(Compound.number)).all())
+    else:
+        raise InputError("give compounds (codes) or a scaffold", field="compounds")
+    jobs = estimates.queue_estimates(session=session, compounds=compounds,
+                                     truncate_side_chains=data.truncate_side_chains, actor=actor.label)
+    return {"items": queue.jobs_read(session, jobs), "total": len(jobs)}
+
+
+@router.get("/jobs", responses=AUTH_ERRORS)
+def list_jobs(session: SessionDep, actor: Reader, state: Optional[str] = None, kind: Optional[str] = None,
+              compound: Optional[str] = None, limit: int = Query(50, ge=1, le=500),
+              offset: int = Query(0, ge=0)) -> dict[str, Any]:
+    cid = registry.get_compound(session, compound).id if compound else None
+    jobs, total = queue.list_jobs(session, state=state, kind=kind, compound_id=cid, limit=limit, offset=offset)
+    return {"items": [_visible_job(j, actor) for j in queue.jobs_read(session, jobs)], "total": total}
+
+
+@router.get("/jobs/summary", responses=AUTH_ERRORS)
+def jobs_summary(session: SessionDep, actor: Reader) -> dict[str, Any]:
+    return estimates.queue_summary(session)
+
+
+@router.get("/jobs/{job_id}", responses={**AUTH_ERRORS, **NOT_FOUND})
+def get_job(job_id: int, session: SessionDep, actor: Reader) -> dict[str, Any]:
+    """`state` is queued, running, done, failed or cancelled; `result` holds the estimate keys when done."""
+    return _visible_job(queue.job_read(queue.get_job(session, job_id), session=session), actor)
+
+
+@router.post("/jobs/{job_id}/cancel", responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS})
+def cancel_job(job_id: int, session: SessionDep, actor: Writer) -> dict[str, Any]:
+    return queue.job_read(queue.cancel(session, job_id, actor=actor.label), session=session)

@@ -1,0 +1,168 @@
+"""Structure-property explorer and side-chain outcome map, built on the registry view."""
+
+from __future__ import annotations
+
+from collections import Counter, defaultdict
+from dataclasses import dataclass
+from typing import Any, Callable, Optional
+
+from sqlmodel import Session, select
+
+from ..analysis.verdict import LABELS as VERDICT_LABELS
+from ..errors import InputError
+from ..models import Batch, Measurement
+from .views import ViewQuery, ViewRow, query_view
+
+
+def _stat(name: str) -> Callable[[ViewRow], Optional[float]]:
+    return lambda r: getattr(r.stats, name) if r.stats is not None else None
+
+
+@dataclass(frozen=True)
+class Property:
+    key: str
+    label: str
+    unit: str
+    get: Callable[[ViewRow], Optional[float]]
+    temperature_dependent: bool = False  # Pr, Ec: at their maximum, or at a chosen temperature
+
+    @property
+    def title(self) -> str:
+        return f"{self.label} ({self.unit})" if self.unit else self.label
+
+
+PROPERTIES: dict[str, Property] = {p.key: p for p in (
+    Property("carbons", "side-chain carbons", "", _stat("chain_carbons")),
+    Property("chain_count", "side chains per molecule", "", _stat("chain_count")),
+    Property("mw", "molar mass", "g/mol", lambda r: r.compound.mw),
+    Property("barrier_measured", "barrier, measured", "kcal/mol", _stat("barrier_measured_kcal_mol")),
+    Property("barrier_computed", "barrier, computed", "kcal/mol", _stat("barrier_computed_kcal_mol")),
+    Property("bowl_depth", "bowl depth", "Å", _stat("bowl_depth_A")),
+    Property("dipole", "dipole moment", "D", _stat("dipole_D")),
+    Property("pr", "Pr", "µC/cm²", _stat("pr_max_uC_cm2"), temperature_dependent=True),
+    Property("ec", "Ec", "kV/cm", _stat("ec_kV_cm"), temperature_dependent=True),
+    Property("ps", "Ps", "µC/cm²", _stat("ps_uC_cm2"), temperature_dependent=True),
+    Property("t_peak", "permittivity peak temperature", "K", _stat("t_peak_K")),
+    Property("eps_peak", "permittivity peak", "", _stat("eps_peak")),
+    Property("curie_constant", "Curie constant", "K", _stat("curie_constant_K")),
+    Property("dsc_t", "DSC transition temperature", "K", _stat("dsc_t_K")),
+    Property("dsc_ds", "transition entropy", "J/(mol K)", _stat("dsc_ds_J_molK")),
+    Property("n_states", "Boltzmann states N", "", _stat("dsc_n_states")),
+    Property("yield", "best yield", "%", _stat("yield_best_pct")),
+    Property("purity", "best purity", "%", _stat("purity_best_pct")),
+)}
+
+GROUPINGS: dict[str, tuple[str, Callable[[ViewRow], str]]] = {
+    "verdict": ("verdict", lambda r: VERDICT_LABELS.get(r.verdict, r.verdict)),
+    "scaffold": ("scaffold", lambda r: r.scaffold or "no scaffold"),
+    "bridge": ("bridge", lambda r: r.bridge or "unknown bridge"),
+    "chain_kind": ("side-chain kind", lambda r: (r.stats.chain_kind if r.stats and r.stats.chain_kind else "none")),
+}
+
+LOOP_KEYS = {"pr": "pr_uC_cm2", "ec": "ec_kV_cm", "ps": "ps_uC_cm2"}
+SAME_T_K = 5.0  # a loop within 5 K of the chosen temperature counts as "at" it (common practice)
+
+
+@dataclass(frozen=True)
+class Point:
+    code: str
+    label: str
+    x: float
+    y: float
+    group: str
+
+
+def _loops_at(session: Session, compound_ids: list[int], t_K: float) -> dict[int, dict[str, Any]]:
+    """The ferroelectric loop closest to t_K (within SAME_T_K) per compound."""
+    rows = session.exec(
+        select(Batch.compound_id, Measurement.temperature_K, Measurement.results)
+        .join(Batch, Batch.id == Measurement.batch_id)
+        .where(Measurement.kind == "pe_loop", Measurement.verdict == "ferroelectric",
+               Measurement.archived == False, Batch.compound_id.in_(compound_ids),  # noqa: E712
+               Measurement.temperature_K.is_not(None),
+               Measurement.temperature_K >= t_K - SAME_T_K, Measurement.temperature_K <= t_K + SAME_T_K)
+    ).all()
+    best: dict[int, tuple[float, dict]] = {}
+    for cid, t, results in rows:
+        d = abs(t - t_K)
+        if cid not in best or d < best[cid][0]:
+            best[cid] = (d, results)
+    return {cid: r for cid, (_, r) in best.items()}
+
+
+def explore(session: Session, view: ViewQuery, *, x: str, y: str, group: str = "verdict",
+            t_K: Optional[float] = None) -> list[Point]:
+    """Points (x, y) for every compound in the view that has both values."""
+    for name, key in (("x", x), ("y", y)):
+        if key not in PROPERTIES:
+            raise InputError(f"unknown property {key!r}; use one of {', '.join(PROPERTIES)}", field=name)
+    if group not in GROUPINGS:
+        raise InputError(f"group by one of {', '.join(GROUPINGS)}", field="group")
+    rows = query_view(session, view, paged=False).rows
+    at: dict[int, dict[str, Any]] = {}
+    if t_K is not None and (PROPERTIES[x].temperature_dependent or PROPERTIES[y].temperature_dependent):
+        at = _loops_at(session, [r.compound.id for r in rows], t_K)
+
+    def value(key: str, r: ViewRow) -> Optional[float]:
+        prop = PROPERTIES[key]
+        if t_K is not None and prop.temperature_dependent:
+            return at.get(r.compound.id, {}).get(LOOP_KEYS[key])
+        return prop.get(r)
+
+    points = []
+    for r in rows:
+        vx, vy = value(x, r), value(y, r)
+        if vx is None or vy is None:
+            continue
+        points.append(Point(code=r.compound.code, label=r.compound.label, x=float(vx), y=float(vy),
+                            group=GROUPINGS[group][1](r)))
+    return points
+
+
+# --- side-chain outcome map ----------------------------------------------------------------------
+
+# Best outcome first: the colour of a cell is the best verdict any of its derivatives reached.
+OUTCOME_ORDER = ("proven_ferroelectric", "switching_phase_unknown", "polar_unswitched", "transition_only",
+                 "conflicting", "no_switching_seen", "nonpolar", "untested")
+
+
+@dataclass(frozen=True)
+class Cell:
+    counts: dict[str, int]
+    best: str
+    link: str
+
+    @property
+    def total(self) -> int:
+        return sum(self.counts.values())
+
+
+@dataclass(frozen=True)
+class OutcomeMap:
+    rows: list[tuple[str, int, bool]]  # (kind, carbons, branched)
+    columns: list[str]
+    cells: dict[tuple[tuple[str, int, bool], str], Cell]
+    by: str
+
+
+def outcome_map(session: Session, view: ViewQuery, *, by: str = "scaffold") -> OutcomeMap:
+    if by not in ("scaffold", "bridge"):
+        raise InputError("columns are by scaffold or by bridge", field="by")
+    rows = query_view(session, view, paged=False).rows
+    counts: dict[tuple, Counter] = defaultdict(Counter)
+    for r in rows:
+        if r.stats is None or not r.stats.chain_kind:
+            continue
+        key = (r.stats.chain_kind, r.stats.chain_carbons, bool(r.stats.chain_branched))
+        column = (r.scaffold if by == "scaffold" else r.bridge) or "none"
+        counts[(key, column)][r.verdict] += 1
+    row_keys = sorted({k for k, _ in counts}, key=lambda k: (k[0], k[1], k[2]))
+    columns = sorted({c for _, c in counts})
+    cells = {}
+    for (key, column), counter in counts.items():
+        best = next(code for code in OUTCOME_ORDER if counter.get(code))
+        params = {"chain_kind": key[0], "c_min": key[1], "c_max": key[1], "branched": "yes" if key[2] else "no",
+                  **({"scaffold": column} if by == "scaffold" else {"bridge": column})}
+        cells[(key, column)] = Cell(counts=dict(counter), best=best,
+                                    link=view.link(**params, page=None))
+    return OutcomeMap(rows=row_keys, columns=columns, cells=cells, by=by)

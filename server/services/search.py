@@ -1,0 +1,333 @@
+"""Structure search over the registry: substructure (SMARTS/SMILES) and similarity (Tanimoto).
+
+Two back ends give the same answers (tests/services/test_search.py checks it):
+
+* **cartridge** - PostgreSQL with the RDKit cartridge (``CREATE EXTENSION rdkit``) and the
+  table ``compound_structure (compound_id, m mol, mfp bfp)`` made by migration 0002, with
+  GiST indexes on ``m`` and ``mfp``. Queries are bound parameters, never pasted into SQL:
+  ``m @> qmol_from_smarts(:q)`` or ``m @> mol_from_smiles(:q)`` and
+  ``tanimoto_sml(morganbv_fp(mol_from_smiles(:q), 2), mfp) >= :t``.
+* **in-process** - SQLite, and PostgreSQL without a working cartridge (migration 0002
+  skips the table then, with a warning): one :class:`~server.chem.search.StructureIndex`
+  per engine, built lazily from the compound table, brought up to date before each search
+  (so compounds registered by other processes are found) and updated on registration.
+
+Which one a database uses: :func:`backend`. Fingerprints are Morgan radius 2 with
+``MORGAN_FP_SIZE`` (512) bits in both; on the cartridge every transaction that computes one
+pins ``rdkit.morgan_fp_size`` to that number with ``set_config(..., true)``, so a changed
+database default cannot make the two back ends disagree.
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+import threading
+import weakref
+from collections.abc import Collection
+from dataclasses import asdict, dataclass
+from typing import Optional
+
+from sqlalchemy import event, func, text
+from sqlalchemy.engine import Connection, Engine
+from sqlmodel import Session, select
+
+from ..chem.search import MORGAN_FP_SIZE, MORGAN_RADIUS, Query, StructureIndex, read_query
+from ..errors import InputError
+from ..models import Compound
+
+__all__ = ["STRUCTURE_TABLE", "Hit", "backend", "search", "index_compound", "structure_index"]
+
+log = logging.getLogger("remanence.search")
+
+STRUCTURE_TABLE = "compound_structure"  # cartridge-only; migrations/env.py keeps autogenerate off it
+CARTRIDGE = "cartridge"
+IN_PROCESS = "in-process"
+
+# The GiST screen for `%` runs at a threshold this much below the asked one; the exact
+# `tanimoto_sml(...) >= :t` filter then decides, so a rounding in the index's bounds can
+# never drop a molecule the in-process index keeps.
+_SCREEN_SLACK = 1e-6
+_CHUNK = 900  # ids per IN (...) list (SQLite's historical limit on bound parameters is 999)
+
+_lock = threading.Lock()
+_indexes: "weakref.WeakKeyDictionary[Engine, StructureIndex]" = weakref.WeakKeyDictionary()
+_backends: "weakref.WeakKeyDictionary[Engine, str]" = weakref.WeakKeyDictionary()
+_PENDING = "remanence.search.pending"
+_HOOKED = "remanence.search.hooked"
+
+
+@dataclass(frozen=True)
+class Hit:
+    """One compound found. ``similarity`` (Tanimoto, 0-1) is None for a substructure-only search."""
+
+    compound_id: int
+    code: str
+    similarity: Optional[float]
+
+    def to_dict(self) -> dict:
+        return asdict(self)
+
+
+def _engine(session: Session) -> Engine:
+    bind = session.get_bind()
+    return bind.engine if isinstance(bind, Connection) else bind
+
+
+def backend(session: Session) -> str:
+    """``"cartridge"`` or ``"in-process"`` for the session's database (found once per engine)."""
+    engine = _engine(session)
+    with _lock:
+        known = _backends.get(engine)
+    if known is not None:
+        return known
+    chosen = IN_PROCESS
+    if engine.dialect.name == "postgresql":
+        ready = session.execute(
+            text(
+                "SELECT to_regclass(:table) IS NOT NULL "
+                "AND EXISTS (SELECT 1 FROM pg_extension WHERE extname = 'rdkit')"
+            ),
+            {"table": STRUCTURE_TABLE},
+        ).scalar_one()
+        if ready:
+            chosen = CARTRIDGE
+        else:
+            log.warning(
+                "PostgreSQL without the RDKit cartridge (extension rdkit or table %s missing): "
+                "structure search runs in process", STRUCTURE_TABLE,
+            )
+    with _lock:
+        _backends[engine] = chosen
+    return chosen
+
+
+# --- in-process index --------------------------------------------------------------------------
+
+
+def _index_for(engine: Engine) -> StructureIndex:
+    with _lock:
+        index = _indexes.get(engine)
+        if index is None:
+            index = _indexes[engine] = StructureIndex()
+        return index
+
+
+def structure_index(session: Session) -> StructureIndex:
+    """The engine's in-process index, brought up to date with the compound table.
+
+    Compounds are never deleted and their structures never change, so the index is current
+    when it holds exactly the table's ids; the check is one ``count``/``max`` query, and a
+    difference (first use, another process registered, a registration rolled back) loads
+    or drops only the ids that differ.
+    """
+    index = _index_for(_engine(session))
+    count, max_id = session.exec(select(func.count(Compound.id), func.max(Compound.id))).one()
+    if count == len(index) and max_id == index.max_id():
+        return index
+    db_ids = set(session.exec(select(Compound.id)).all())
+    held = index.ids()
+    for gone in held - db_ids:
+        index.remove(gone)
+    missing = sorted(db_ids - held)
+    for start in range(0, len(missing), _CHUNK):
+        chunk = missing[start:start + _CHUNK]
+        index.add_many(session.exec(select(Compound.id, Compound.smiles).where(Compound.id.in_(chunk))).all())
+    if missing:
+        log.info("structure index: %d compounds added (%d held)", len(missing), len(index))
+    return index
+
+
+def _apply_pending(session: Session) -> None:
+    for engine, compound_id, smiles in session.info.pop(_PENDING, []):
+        _index_for(engine).add(compound_id, smiles)
+
+
+def _drop_pending(session: Session) -> None:
+    session.info.pop(_PENDING, None)
+
+
+# --- registration hook -------------------------------------------------------------------------
+
+
+def _pin_morgan_size(session: Session) -> None:
+    session.execute(text("SELECT set_config('rdkit.morgan_fp_size', :n, true)"), {"n": str(MORGAN_FP_SIZE)})
+
+
+def index_compound(session: Session, compound: Compound) -> None:
+    """Make a newly flushed compound searchable, in the caller's transaction.
+
+    Cartridge: inserts (or refreshes) its ``compound_structure`` row. In process: the
+    structure enters the engine's index when the transaction commits (and is dropped if it
+    rolls back), so a failed registration never leaves a ghost in the index.
+    """
+    if compound.id is None:
+        raise ValueError("index_compound needs a flushed compound (with an id)")
+    if backend(session) == CARTRIDGE:
+        _pin_morgan_size(session)
+        unreadable = session.execute(
+            text(
+                f"INSERT INTO {STRUCTURE_TABLE} (compound_id, m, mfp) "
+                f"SELECT :id, s.m, morganbv_fp(s.m, {MORGAN_RADIUS}) "
+                "FROM (SELECT mol_from_smiles(CAST(:smiles AS text)) AS m) AS s "
+                "ON CONFLICT (compound_id) DO UPDATE SET m = EXCLUDED.m, mfp = EXCLUDED.mfp "
+                "RETURNING m IS NULL"
+            ),
+            {"id": compound.id, "smiles": compound.smiles},
+        ).scalar_one()
+        if unreadable:
+            # Registered by the Python RDKit but not readable by the cartridge's (older) RDKit.
+            log.warning("the RDKit cartridge could not read %s (%s): it will not be found by structure search",
+                        compound.code, compound.smiles)
+        return
+    session.info.setdefault(_PENDING, []).append((_engine(session), compound.id, compound.smiles))
+    if not session.info.get(_HOOKED):
+        event.listen(session, "after_commit", _apply_pending)
+        event.listen(session, "after_rollback", _drop_pending)
+        session.info[_HOOKED] = True
+
+
+# --- search ------------------------------------------------------------------------------------
+
+
+def _check_threshold(threshold: float) -> float:
+    if isinstance(threshold, bool) or not isinstance(threshold, (int, float)) or not math.isfinite(threshold):
+        raise InputError(f"the similarity threshold must be a number between 0 and 1, not {threshold!r}",
+                         field="threshold")
+    if not 0 < threshold <= 1:
+        raise InputError(
+            f"the similarity threshold must be above 0 and at most 1 (Tanimoto); got {threshold:g}",
+            field="threshold",
+        )
+    return float(threshold)
+
+
+def _given(value: str | None) -> bool:
+    return value is not None and bool(value.strip())
+
+
+def search(
+    session: Session,
+    *,
+    substructure: str | None = None,
+    similar: str | None = None,
+    threshold: float = 0.7,
+    candidate_ids: Collection[int] | None = None,
+    include_archived: bool = False,
+    include_embargoed: bool = True,
+) -> list[Hit]:
+    """Compounds that contain a substructure and/or resemble a structure.
+
+    Parameters
+    ----------
+    session : Session
+    substructure : str, optional
+        SMARTS, or SMILES (see :func:`server.chem.search.read_query`). Blank counts as not given.
+    similar : str, optional
+        SMILES (or MOL block) to compare with: Morgan radius-2, 512-bit fingerprints,
+        Tanimoto similarity (Rogers & Hahn 2010, DOI 10.1021/ci100050t; Willett et al.
+        1998, DOI 10.1021/ci9800211).
+    threshold : float
+        Lowest Tanimoto similarity kept, in (0, 1]; used with ``similar``.
+    candidate_ids : collection of int, optional
+        Search only these compound ids (e.g. the result of a property filter).
+    include_archived : bool
+        Archived compounds are left out unless True.
+    include_embargoed : bool
+        Pass False for a caller who may not see embargoed structures: a structure search
+        would otherwise reveal them.
+
+    Returns
+    -------
+    list of Hit
+        With ``similar``: by similarity (highest first), then id. Otherwise by id
+        (registration order). Both filters given: compounds that pass both.
+
+    Raises
+    ------
+    InputError
+        ``field="threshold"`` outside (0, 1]; ``field="substructure"`` when neither query
+        is given. ChemistryError (an InputError) ``field="substructure"`` or
+        ``field="similar"`` for a query RDKit cannot read.
+    """
+    t = _check_threshold(threshold)
+    if not _given(substructure) and not _given(similar):
+        raise InputError("give a substructure (SMARTS or SMILES) or a structure to compare with (similar)",
+                         field="substructure")
+    sub_q = read_query(substructure, kind="substructure") if _given(substructure) else None
+    sim_q = read_query(similar, kind="similarity") if _given(similar) else None
+    if candidate_ids is not None:
+        candidate_ids = {int(i) for i in candidate_ids}
+        if not candidate_ids:
+            return []
+    if backend(session) == CARTRIDGE:
+        return _search_cartridge(session, sub_q, sim_q, t, candidate_ids, include_archived, include_embargoed)
+    return _search_in_process(session, sub_q, sim_q, t, candidate_ids, include_archived, include_embargoed)
+
+
+def _search_cartridge(session, sub_q: Query | None, sim_q: Query | None, t: float, candidate_ids,
+                      include_archived: bool, include_embargoed: bool) -> list[Hit]:
+    params: dict = {}
+    where: list[str] = []
+    sim_column = "NULL"
+    order = "c.id"
+    if sub_q is not None:
+        reader = "qmol_from_smarts(CAST(:sub AS cstring))" if sub_q.language == "smarts" \
+            else "mol_from_smiles(CAST(:sub AS text))"
+        where.append(f"s.m @> {reader}")
+        params["sub"] = sub_q.text
+    if sim_q is not None:
+        _pin_morgan_size(session)
+        session.execute(text("SELECT set_config('rdkit.tanimoto_threshold', :g, true)"),
+                        {"g": repr(max(0.0, t - _SCREEN_SLACK))})
+        query_fp = f"morganbv_fp(mol_from_smiles(CAST(:sim AS text)), {MORGAN_RADIUS})"
+        sim_column = f"tanimoto_sml({query_fp}, s.mfp)"
+        where.append(f"s.mfp % {query_fp}")  # GiST-indexed screen at the slackened threshold
+        where.append(f"{sim_column} >= CAST(:t AS double precision)")
+        params.update(sim=sim_q.text, t=t)
+        order = "similarity DESC, c.id"
+    if not include_archived:
+        where.append("NOT c.archived")
+    if not include_embargoed:
+        where.append("NOT c.embargoed")
+    if candidate_ids is not None:
+        where.append("c.id = ANY(:ids)")
+        params["ids"] = sorted(candidate_ids)
+    sql = (
+        f"SELECT c.id, c.code, {sim_column} AS similarity "
+        f"FROM {STRUCTURE_TABLE} AS s JOIN compound AS c ON c.id = s.compound_id "
+        f"WHERE {' AND '.join(where)} ORDER BY {order}"
+    )
+    rows = session.execute(text(sql), params).all()
+    return [Hit(compound_id=r[0], code=r[1], similarity=None if r[2] is None else float(r[2])) for r in rows]
+
+
+def _search_in_process(session, sub_q: Query | None, sim_q: Query | None, t: float, candidate_ids,
+                       include_archived: bool, include_embargoed: bool) -> list[Hit]:
+    index = structure_index(session)
+    candidates = candidate_ids
+    found: list[tuple[int, Optional[float]]] = []
+    if sub_q is not None:
+        candidates = index.substructure(sub_q.mol, candidates)
+        found = [(i, None) for i in candidates]
+    if sim_q is not None:
+        found = index.similar(sim_q.mol, t, candidates)
+    ids = [i for i, _ in found]
+    info: dict[int, tuple[str, bool, bool]] = {}
+    for start in range(0, len(ids), _CHUNK):
+        chunk = ids[start:start + _CHUNK]
+        rows = session.exec(
+            select(Compound.id, Compound.code, Compound.archived, Compound.embargoed).where(Compound.id.in_(chunk))
+        ).all()
+        info.update({r[0]: (r[1], r[2], r[3]) for r in rows})
+    hits = []
+    for compound_id, sim in found:
+        if compound_id not in info:
+            # Committed by another session after this transaction's snapshot (the index is shared):
+            # not visible here yet, so not an answer of this transaction.
+            continue
+        code, archived, embargoed = info[compound_id]
+        if (archived and not include_archived) or (embargoed and not include_embargoed):
+            continue
+        hits.append(Hit(compound_id=compound_id, code=code, similarity=sim))
+    return hits

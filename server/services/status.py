@@ -1,0 +1,128 @@
+"""The group status page: campaign progress, this week's arrivals, hits, the job queue, review items.
+
+What a visitor without a login sees is built here, not filtered in a template: embargoed
+compounds appear as their code alone (no label, structure, SMILES, InChI or formula).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from datetime import timedelta
+from typing import Any
+
+from sqlalchemy import func
+from sqlmodel import Session, select
+
+from ..analysis.verdict import LABELS as VERDICT_LABELS
+from ..models import (
+    AuditEvent,
+    BarrierEstimate,
+    Batch,
+    Compound,
+    CompoundStats,
+    Job,
+    Measurement,
+    SiteSetting,
+    utcnow,
+)
+from ..settings import Settings
+from . import audit
+
+PUBLIC_KEY = "public_status"
+HIT_VERDICTS = ("proven_ferroelectric", "switching_phase_unknown")
+
+
+def public_status_enabled(session: Session, settings: Settings) -> bool:
+    """The environment setting, unless an admin has switched it in the app."""
+    row = session.get(SiteSetting, PUBLIC_KEY)
+    return bool(row.value) if row is not None else settings.public_status
+
+
+def set_public_status(*, session: Session, enabled: bool, actor: str) -> None:
+    row = session.get(SiteSetting, PUBLIC_KEY) or SiteSetting(key=PUBLIC_KEY)
+    before = row.value
+    row.value, row.updated_by, row.updated_at = enabled, actor, utcnow()
+    session.add(row)
+    audit.record(session, actor=actor, action="site.public_status", entity="site", code=PUBLIC_KEY,
+                 before={"value": before}, after={"value": enabled})
+    session.commit()
+
+
+@dataclass(frozen=True)
+class CompoundRef:
+    code: str
+    label: str  # empty for embargoed compounds seen from outside
+    verdict: str
+    show_structure: bool
+
+
+def _ref(c: Compound, *, see_embargoed: bool) -> CompoundRef:
+    visible = see_embargoed or not c.embargoed
+    return CompoundRef(code=c.code, label=c.label if visible else "", verdict=c.override_code or c.verdict_code,
+                       show_structure=visible)
+
+
+def summary(session: Session, *, see_embargoed: bool, days: int = 7) -> dict[str, Any]:
+    live = Compound.archived == False  # noqa: E712 - SQL expression
+    registered = session.exec(select(func.count()).select_from(Compound).where(live)).one()
+    made = session.exec(select(func.count(func.distinct(Batch.compound_id)))
+                        .join(Compound, Compound.id == Batch.compound_id)
+                        .where(live, Batch.state.in_(("made", "impure", "used_up")))).one()
+    characterised = session.exec(select(func.count()).select_from(CompoundStats).join(
+        Compound, Compound.id == CompoundStats.compound_id).where(live, CompoundStats.n_measurements > 0)).one()
+    switching_tested = session.exec(select(func.count()).select_from(CompoundStats).join(
+        Compound, Compound.id == CompoundStats.compound_id).where(
+        live, (CompoundStats.kinds.like("%,pe_loop,%")) | (CompoundStats.kinds.like("%,pund,%")))).one()
+    verdict_reached = session.exec(select(func.count()).select_from(Compound).where(
+        live, func.coalesce(Compound.override_code, Compound.verdict_code) != "untested")).one()
+    since = utcnow() - timedelta(days=days)
+    week = {
+        "compounds": session.exec(select(func.count()).select_from(Compound).where(Compound.created_at >= since)).one(),
+        "batches": session.exec(select(func.count()).select_from(Batch).where(Batch.created_at >= since)).one(),
+        "uploads": session.exec(select(func.count()).select_from(Measurement).where(
+            Measurement.created_at >= since)).one(),
+        "estimates": session.exec(select(func.count()).select_from(BarrierEstimate).where(
+            BarrierEstimate.method == "gfn2-xtb", BarrierEstimate.created_at >= since)).one(),
+    }
+    new_compounds = [_ref(c, see_embargoed=see_embargoed) for c in session.exec(
+        select(Compound).where(live, Compound.created_at >= since).order_by(Compound.number.desc()).limit(12)).all()]
+    hits = session.exec(
+        select(Compound, CompoundStats).join(CompoundStats, CompoundStats.compound_id == Compound.id, isouter=True)
+        .where(live, func.coalesce(Compound.override_code, Compound.verdict_code).in_(HIT_VERDICTS))
+        .order_by(CompoundStats.pr_max_uC_cm2.desc().nulls_last(), Compound.number.desc()).limit(12)).all()
+    review = [_ref(c, see_embargoed=see_embargoed) for c in session.exec(
+        select(Compound).where(live, Compound.verdict_code == "conflicting", Compound.override_code.is_(None))
+        .order_by(Compound.number.desc()).limit(20)).all()]
+    flagged = session.exec(select(func.count()).select_from(Measurement).where(
+        Measurement.archived == False, Measurement.verdict == "inconclusive")).one()  # noqa: E712
+    jobs = {state: n for state, n in session.exec(select(Job.state, func.count()).group_by(Job.state)).all()}
+    running = session.exec(select(Job).where(Job.state.in_(("running", "queued"))).order_by(Job.id).limit(10)).all()
+    running_rows = []
+    for j in running:
+        c = session.get(Compound, j.compound_id) if j.compound_id else None
+        running_rows.append({"id": j.id, "state": j.state, "progress": j.progress, "message": j.message,
+                             "compound": _ref(c, see_embargoed=see_embargoed) if c else None})
+    last = session.exec(select(func.max(AuditEvent.at))).one()
+    by_verdict = dict(session.exec(select(func.coalesce(Compound.override_code, Compound.verdict_code), func.count())
+                                   .where(live).group_by(func.coalesce(Compound.override_code,
+                                                                       Compound.verdict_code))).all())
+    return {
+        "progress": [("registered", registered), ("made", made), ("characterised", characterised),
+                     ("switching tested", switching_tested), ("verdict reached", verdict_reached)],
+        "week": week,
+        "days": days,
+        "new_compounds": new_compounds,
+        "hits": [(_ref(c, see_embargoed=see_embargoed), s) for c, s in hits],
+        "review": review,
+        "inconclusive_measurements": flagged,
+        "jobs": jobs,
+        "running": running_rows,
+        "by_verdict": [(code, VERDICT_LABELS[code], by_verdict.get(code, 0)) for code in VERDICT_LABELS],
+        "last_updated": last,
+    }
+
+
+def timeline(session: Session, compound: Compound, *, limit: int = 200) -> list[AuditEvent]:
+    return list(session.exec(select(AuditEvent).where(AuditEvent.compound_id == compound.id)
+                             .order_by(AuditEvent.at.desc(), AuditEvent.id.desc()).limit(limit)).all())
+

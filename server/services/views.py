@@ -1,0 +1,374 @@
+"""The registry view: filters, sorting and paging as a declarative table, bound parameters only.
+
+Every filter is a row of :data:`FILTERS` (query-string name, label, how its value parses,
+how it becomes a SQL condition). The web table, the JSON API, the exports and the
+explorer all call :func:`query_view` with the same query string, so a link reproduces
+the view everywhere. Values are never pasted into SQL: each condition is built with
+SQLAlchemy expressions, whose literals travel as bound parameters.
+"""
+
+from __future__ import annotations
+
+import io
+from dataclasses import dataclass, field
+from datetime import date, datetime, time, timedelta, timezone
+from typing import Any, Callable, Mapping, Optional, Sequence
+
+import pandas as pd
+from sqlalchemy import and_, exists, func, or_
+from sqlalchemy.sql.elements import ColumnElement
+from sqlmodel import Session, select
+
+from ..analysis.verdict import LABELS as VERDICT_LABELS
+from ..errors import InputError
+from ..models import BATCH_STATES, Compound, CompoundSideChain, CompoundStats, Scaffold
+from .kinds import KINDS
+
+VerdictCol = func.coalesce(Compound.override_code, Compound.verdict_code)
+
+
+def _escape_like(text: str) -> str:
+    return text.replace("\\", "\\\\").replace("%", "\\%").replace("_", "\\_")
+
+
+def _int(name: str, text: str) -> int:
+    try:
+        return int(text)
+    except ValueError:
+        raise InputError(f"{text!r} is not a whole number", field=name) from None
+
+
+def _float(name: str, text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise InputError(f"{text!r} is not a number", field=name) from None
+    if value != value or value in (float("inf"), float("-inf")):
+        raise InputError(f"{text!r} is not a finite number", field=name)
+    return value
+
+
+def _bool(name: str, text: str) -> bool:
+    if text in ("yes", "true", "1"):
+        return True
+    if text in ("no", "false", "0"):
+        return False
+    raise InputError(f"{text!r}: use yes or no", field=name)
+
+
+def _date(name: str, text: str) -> date:
+    try:
+        return date.fromisoformat(text)
+    except ValueError:
+        raise InputError(f"{text!r} is not a date (YYYY-MM-DD)", field=name) from None
+
+
+def _choice(choices: Callable[[], Sequence[str]]):
+    def parse(name: str, text: str) -> str:
+        allowed = list(choices())
+        if text not in allowed:
+            raise InputError(f"{text!r} is not one of {', '.join(allowed)}", field=name)
+        return text
+
+    return parse
+
+
+@dataclass(frozen=True)
+class Filter:
+    name: str
+    label: str
+    parse: Callable[[str, str], Any]
+    condition: Optional[Callable[[Any, Mapping[str, Any]], ColumnElement]] = None  # None: handled elsewhere
+    multi: bool = False
+    help: str = ""
+
+
+def _chain_exists(values: Mapping[str, Any]) -> Optional[ColumnElement]:
+    """One EXISTS over the side chains, so kind, carbon range and branching refer to the same chain."""
+    conds = []
+    if "chain_kind" in values:
+        conds.append(CompoundSideChain.kind == values["chain_kind"])
+    if "c_min" in values:
+        conds.append(CompoundSideChain.carbons >= values["c_min"])
+    if "c_max" in values:
+        conds.append(CompoundSideChain.carbons <= values["c_max"])
+    if "branched" in values:
+        conds.append(CompoundSideChain.branched == values["branched"])
+    if not conds:
+        return None
+    return exists().where(CompoundSideChain.compound_id == Compound.id, *conds)
+
+
+def _barrier_col(values: Mapping[str, Any]):
+    src = values.get("barrier_source", "measured")
+    return CompoundStats.barrier_computed_kcal_mol if src == "computed" else CompoundStats.barrier_measured_kcal_mol
+
+
+def _start_of(d: date) -> datetime:
+    return datetime.combine(d, time.min, tzinfo=timezone.utc)
+
+
+def _text(value: str, _: Mapping[str, Any]) -> ColumnElement:
+    pattern = f"%{_escape_like(value)}%"
+    return or_(Compound.code.ilike(pattern, escape="\\"), Compound.label.ilike(pattern, escape="\\"),
+               Compound.notes.ilike(pattern, escape="\\"))
+
+
+FILTERS: tuple[Filter, ...] = (
+    Filter("q", "Text", lambda n, t: t, _text, help="code, label or notes contain"),
+    Filter("scaffold", "Scaffold", lambda n, t: t, lambda v, _: Scaffold.code == v),
+    Filter("bridge", "Bridge", lambda n, t: t, lambda v, _: Scaffold.bridge == v),
+    Filter("chain_kind", "Side-chain kind", _choice(lambda: ("alkoxy", "alkylthio", "alkyl", "other"))),
+    Filter("c_min", "Carbons from", _int),
+    Filter("c_max", "Carbons to", _int),
+    Filter("branched", "Branched", _bool),
+    Filter("batch_state", "Batch state", _choice(lambda: BATCH_STATES),
+           lambda v, _: CompoundStats.batch_states.like(f"%,{v},%")),
+    Filter("verdict", "Verdict", _choice(lambda: tuple(VERDICT_LABELS)), lambda v, _: VerdictCol.in_(v), multi=True),
+    Filter("polar", "Polar phase", _choice(lambda: ("yes", "no", "unknown")),
+           lambda v, _: {"yes": CompoundStats.polar_phase.is_(True), "no": CompoundStats.polar_phase.is_(False),
+                         "unknown": CompoundStats.polar_phase.is_(None)}[v]),
+    Filter("barrier_source", "Barrier from", _choice(lambda: ("measured", "computed"))),
+    Filter("barrier_min", "Barrier from (kcal/mol)", _float, lambda v, vals: _barrier_col(vals) >= v),
+    Filter("barrier_max", "Barrier to (kcal/mol)", _float, lambda v, vals: _barrier_col(vals) <= v),
+    Filter("has", "Has measurement", _choice(lambda: tuple(KINDS)),
+           lambda v, _: and_(*[CompoundStats.kinds.like(f"%,{k},%") for k in v]), multi=True),
+    Filter("made_from", "Registered from", _date, lambda v, _: Compound.created_at >= _start_of(v)),
+    Filter("made_to", "Registered to", _date, lambda v, _: Compound.created_at < _start_of(v) + timedelta(days=1)),
+    Filter("archived", "Include archived", _bool),
+)
+FILTER_BY_NAME = {f.name: f for f in FILTERS}
+
+# Sortable columns: query-string name -> (label, unit, SQL expression)
+SORTS: dict[str, tuple[str, str, Any]] = {
+    "code": ("Code", "", Compound.number),
+    "label": ("Label", "", Compound.label),
+    "mw": ("Molar mass", "g/mol", Compound.mw),
+    "scaffold": ("Scaffold", "", Scaffold.code),
+    "carbons": ("Chain carbons", "", CompoundStats.chain_carbons),
+    "batches": ("Batches", "", CompoundStats.n_batches),
+    "measurements": ("Measurements", "", CompoundStats.n_measurements),
+    "barrier": ("Barrier, measured", "kcal/mol", CompoundStats.barrier_measured_kcal_mol),
+    "barrier_computed": ("Barrier, computed", "kcal/mol", CompoundStats.barrier_computed_kcal_mol),
+    "pr": ("Pr", "µC/cm²", CompoundStats.pr_max_uC_cm2),
+    "ec": ("Ec", "kV/cm", CompoundStats.ec_kV_cm),
+    "t_peak": ("ε′ peak T", "K", CompoundStats.t_peak_K),
+    "verdict": ("Verdict", "", VerdictCol),
+    "created": ("Registered", "", Compound.created_at),
+    "activity": ("Last activity", "", CompoundStats.last_activity_at),
+}
+
+
+@dataclass(frozen=True)
+class ViewQuery:
+    """A parsed query string: filter values, sort, page."""
+
+    values: dict[str, Any] = field(default_factory=dict)
+    sort: str = "code"
+    descending: bool = True
+    page: int = 1
+    size: int = 50
+    substructure: Optional[str] = None
+    similar: Optional[str] = None
+    threshold: float = 0.7
+
+    def link(self, **changes: Any) -> str:
+        """The query string of this view with some parameters changed (None removes one)."""
+        params = self.params()
+        for key, value in changes.items():
+            if value is None:
+                params.pop(key, None)
+            else:
+                params[key] = value
+        from urllib.parse import urlencode
+
+        return urlencode(params, doseq=True)
+
+    def params(self) -> dict[str, Any]:
+        out: dict[str, Any] = {}
+        for name, value in self.values.items():
+            f = FILTER_BY_NAME[name]
+            if f.multi:
+                out[name] = list(value)
+            elif isinstance(value, bool):
+                out[name] = "yes" if value else "no"
+            else:
+                out[name] = str(value)
+        if self.substructure:
+            out["substructure"] = self.substructure
+        if self.similar:
+            out["similar"] = self.similar
+            out["threshold"] = str(self.threshold)
+        if self.sort != "code" or not self.descending:
+            out["sort"] = self.sort
+            out["dir"] = "desc" if self.descending else "asc"
+        if self.page != 1:
+            out["page"] = str(self.page)
+        if self.size != 50:
+            out["size"] = str(self.size)
+        return out
+
+
+def parse_view(params: Any, *, max_size: int = 500) -> ViewQuery:
+    """Parse a query string (Starlette QueryParams or a mapping of lists/strings)."""
+
+    def getlist(name: str) -> list[str]:
+        if hasattr(params, "getlist"):
+            return [v for v in params.getlist(name) if v != ""]
+        raw = params.get(name)
+        if raw is None or raw == "":
+            return []
+        return [v for v in (raw if isinstance(raw, (list, tuple)) else [raw]) if v != ""]
+
+    values: dict[str, Any] = {}
+    for f in FILTERS:
+        raw = [v.strip() for v in getlist(f.name) if v.strip()]
+        if not raw:
+            continue
+        values[f.name] = tuple(f.parse(f.name, v) for v in raw) if f.multi else f.parse(f.name, raw[-1])
+    sort = (getlist("sort") or ["code"])[-1]
+    if sort not in SORTS:
+        raise InputError(f"cannot sort by {sort!r}; use one of {', '.join(SORTS)}", field="sort")
+    direction = (getlist("dir") or ["desc"])[-1]
+    if direction not in ("asc", "desc"):
+        raise InputError("dir is asc or desc", field="dir")
+    page = _int("page", (getlist("page") or ["1"])[-1])
+    size = _int("size", (getlist("size") or ["50"])[-1])
+    if page < 1 or not 1 <= size <= max_size:
+        raise InputError(f"page starts at 1 and size is 1-{max_size}", field="page" if page < 1 else "size")
+    sub = (getlist("substructure") or [None])[-1]
+    sim = (getlist("similar") or [None])[-1]
+    threshold = _float("threshold", (getlist("threshold") or ["0.7"])[-1])
+    return ViewQuery(values=values, sort=sort, descending=direction == "desc", page=page, size=size,
+                     substructure=sub, similar=sim, threshold=threshold)
+
+
+@dataclass(frozen=True)
+class ViewRow:
+    compound: Compound
+    stats: Optional[CompoundStats]
+    scaffold: Optional[str]
+    bridge: Optional[str] = None
+    similarity: Optional[float] = None
+
+    @property
+    def verdict(self) -> str:
+        return self.compound.override_code or self.compound.verdict_code
+
+
+@dataclass(frozen=True)
+class ViewResult:
+    rows: list[ViewRow]
+    total: int
+    query: ViewQuery
+
+    @property
+    def pages(self) -> int:
+        return max(1, -(-self.total // self.query.size))
+
+
+def _conditions(q: ViewQuery) -> list[ColumnElement]:
+    conds: list[ColumnElement] = []
+    if not q.values.get("archived"):
+        conds.append(Compound.archived == False)  # noqa: E712 - SQL expression
+    for f in FILTERS:
+        if f.name in q.values and f.condition is not None:
+            conds.append(f.condition(q.values[f.name], q.values))
+    chain = _chain_exists(q.values)
+    if chain is not None:
+        conds.append(chain)
+    return conds
+
+
+def query_view(session: Session, q: ViewQuery, *, paged: bool = True) -> ViewResult:
+    """The rows of a view; structure search (if asked) narrows the candidates first."""
+    similarity: dict[int, float] = {}
+    conds = _conditions(q)
+    if q.substructure or q.similar:
+        from . import search
+
+        hits = search.search(session, substructure=q.substructure, similar=q.similar, threshold=q.threshold,
+                             include_archived=bool(q.values.get("archived")))
+        ids = [h.compound_id for h in hits]
+        similarity = {h.compound_id: h.similarity for h in hits if h.similarity is not None}
+        conds.append(Compound.id.in_(ids) if ids else Compound.id == -1)
+    base = (select(Compound, CompoundStats, Scaffold.code, Scaffold.bridge)
+            .join(CompoundStats, CompoundStats.compound_id == Compound.id, isouter=True)
+            .join(Scaffold, Scaffold.id == Compound.scaffold_id, isouter=True)
+            .where(*conds))
+    count = (select(func.count()).select_from(Compound)
+             .join(CompoundStats, CompoundStats.compound_id == Compound.id, isouter=True)
+             .join(Scaffold, Scaffold.id == Compound.scaffold_id, isouter=True)
+             .where(*conds))
+    total = session.exec(count).one()
+    expr = SORTS[q.sort][2]
+    order = [expr.desc().nulls_last() if q.descending else expr.asc().nulls_last(), Compound.number.desc()]
+    if q.similar and q.sort == "code" and q.descending:
+        order = [Compound.number.desc()]  # re-ordered by similarity below
+    stmt = base.order_by(*order)
+    if paged and not (q.similar and q.sort == "code"):
+        stmt = stmt.offset((q.page - 1) * q.size).limit(q.size)
+    rows = [ViewRow(c, s, code, bridge, similarity.get(c.id)) for c, s, code, bridge in session.exec(stmt).all()]
+    if q.similar and q.sort == "code":
+        rows.sort(key=lambda r: (-(r.similarity or 0.0), -r.compound.number))
+        if paged:
+            rows = rows[(q.page - 1) * q.size: q.page * q.size]
+    return ViewResult(rows=rows, total=total, query=q)
+
+
+EXPORT_COLUMNS: tuple[tuple[str, Callable[[ViewRow], Any]], ...] = (
+    ("code", lambda r: r.compound.code),
+    ("label", lambda r: r.compound.label),
+    ("scaffold", lambda r: r.scaffold or ""),
+    ("smiles", lambda r: r.compound.smiles),
+    ("inchikey", lambda r: r.compound.inchikey),
+    ("formula", lambda r: r.compound.formula),
+    ("molar mass (g/mol)", lambda r: r.compound.mw),
+    ("side chains", lambda r: r.compound.side_chain_summary),
+    ("chain carbons", lambda r: r.stats.chain_carbons if r.stats else None),
+    ("verdict", lambda r: r.verdict),
+    ("batches", lambda r: r.stats.n_batches if r.stats else 0),
+    ("measurements", lambda r: r.stats.n_measurements if r.stats else 0),
+    ("barrier measured (kcal/mol)", lambda r: r.stats.barrier_measured_kcal_mol if r.stats else None),
+    ("barrier computed (kcal/mol)", lambda r: r.stats.barrier_computed_kcal_mol if r.stats else None),
+    ("bowl depth (A)", lambda r: r.stats.bowl_depth_A if r.stats else None),
+    ("Pr (uC/cm^2)", lambda r: r.stats.pr_max_uC_cm2 if r.stats else None),
+    ("Ec (kV/cm)", lambda r: r.stats.ec_kV_cm if r.stats else None),
+    ("permittivity peak T (K)", lambda r: r.stats.t_peak_K if r.stats else None),
+    ("Curie constant (K)", lambda r: r.stats.curie_constant_K if r.stats else None),
+    ("DSC transition T (K)", lambda r: r.stats.dsc_t_K if r.stats else None),
+    ("polar phase", lambda r: r.stats.polar_phase if r.stats else None),
+    ("registered (UTC)", lambda r: r.compound.created_at.strftime("%Y-%m-%d %H:%M")),
+)
+
+
+def export_frame(result: ViewResult, *, hide_structures_of_embargoed: bool) -> pd.DataFrame:
+    records = []
+    for r in result.rows:
+        rec = {name: get(r) for name, get in EXPORT_COLUMNS}
+        if hide_structures_of_embargoed and r.compound.embargoed:
+            rec.update({"smiles": None, "inchikey": None, "formula": None, "molar mass (g/mol)": None,
+                        "side chains": None})
+        records.append(rec)
+    return pd.DataFrame.from_records(records, columns=[name for name, _ in EXPORT_COLUMNS])
+
+
+def export_bytes(frame: pd.DataFrame, fmt: str) -> tuple[bytes, str]:
+    if fmt == "csv":
+        return frame.to_csv(index=False).encode("utf-8"), "text/csv; charset=utf-8"
+    if fmt == "xlsx":
+        buf = io.BytesIO()
+        frame.to_excel(buf, index=False, sheet_name="compounds")
+        return buf.getvalue(), "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"
+    raise InputError("export as csv or xlsx", field="format")
+
+
+def filter_choices(session: Session) -> dict[str, list[str]]:
+    return {
+        "scaffold": list(session.exec(select(Scaffold.code).order_by(Scaffold.code)).all()),
+        "bridge": sorted({b for b in session.exec(select(Scaffold.bridge)).all() if b}),
+        "chain_kind": ["alkoxy", "alkylthio", "alkyl", "other"],
+        "batch_state": list(BATCH_STATES),
+        "verdict": list(VERDICT_LABELS),
+        "has": list(KINDS),
+    }

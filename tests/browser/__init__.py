@@ -1,0 +1,1 @@
+"""Browser tests: Debian's chromium driven through Playwright against a live uvicorn server."""

@@ -1,0 +1,234 @@
+"""In-process structure search against brute force: every molecule matched or compared one by one.
+
+The references are independent of the code under test: substructure hits come from
+``Chem.MolFromSmarts``/``MolFromSmiles`` + ``HasSubstructMatch`` on every molecule (no
+screen), similarities from RDKit's legacy Morgan implementation
+(``rdMolDescriptors.GetMorganFingerprintAsBitVect``, not the generator the module uses) and
+``DataStructs.TanimotoSimilarity`` pair by pair.
+"""
+
+from __future__ import annotations
+
+import pytest
+from rdkit import Chem, DataStructs, rdBase
+from rdkit.Chem import rdMolDescriptors
+
+from server.chem.scaffold import PARENT_BOWLS, attach_side_chains, build_from_scaffold
+from server.chem.search import (
+    MORGAN_FP_SIZE,
+    StructureIndex,
+    fingerprint,
+    parse_query,
+    read_query,
+)
+from server.errors import ChemistryError
+
+SIMPLE_AROMATICS = [
+    "c1ccccc1",  # benzene
+    "Cc1ccccc1",  # toluene
+    "Oc1ccccc1",  # phenol
+    "COc1ccccc1",  # anisole
+    "CCCCCCOc1ccc(O)cc1",  # 4-hexyloxyphenol
+    "COc1cc(OC)cc(OC)c1",  # 1,3,5-trimethoxybenzene
+    "c1ccc2ccccc2c1",  # naphthalene
+    "c1ccsc1",  # thiophene
+    "c1cc[se]c1",  # selenophene
+    "c1ccc2c(c1)sc1ccccc12",  # dibenzothiophene
+    "c1ccc2c(c1)c1ccccc1c1ccccc21",  # triphenylene
+    "c1ccncc1",  # pyridine
+    "c1ccc(-c2ccccc2)cc1",  # biphenyl
+    "c1ccc2c(c1)Cc1ccccc12",  # fluorene
+    "c1ccc2c(c1)[nH]c1ccccc12",  # carbazole
+    "OC(=O)c1ccccc1",  # benzoic acid
+    "Nc1ccccc1",  # aniline
+    "Clc1ccccc1",  # chlorobenzene
+    "O=[N+]([O-])c1ccccc1",  # nitrobenzene
+]
+
+CHAINS = [("alkoxy", 1, None), ("alkoxy", 4, None), ("alkoxy", 8, None), ("alkylthio", 2, None),
+          ("alkyl", 6, None), ("alkoxy", None, "2-ethylhexyl")]
+
+
+def bowl_set() -> list[str]:
+    """Parent bowls (H at every rim position) and six-fold substituted derivatives: 21 molecules."""
+    out = []
+    for bridge, scaffold in PARENT_BOWLS.items():
+        out.append(attach_side_chains(scaffold, {n: "[*:1][H]" for n in range(1, 7)}))
+        out += [build_from_scaffold(scaffold, kind, n, form) for kind, n, form in CHAINS]
+    return out
+
+
+MOLECULES = bowl_set() + SIMPLE_AROMATICS  # 40 structures
+IDS = list(range(101, 101 + len(MOLECULES)))  # not 0-based, to catch position/id mix-ups
+
+SMARTS_QUERIES = [
+    "c1ccccc1",
+    "[OX2][CH2][CH2]",  # alkoxy chains of two carbons or more
+    "[#34]",  # selenium
+    "c1ccsc1",  # aromatic thiophene ring
+    "c-[OX2]-[CH3]",  # aryl methyl ether
+    "[CH2;R]",  # ring CH2 (the CH2 bridge, fluorene)
+    "[#6;R]~[#16;R]",
+    "[$(c[OH])]",  # ring carbon bearing OH
+    "CCCCCCCC",  # eight aliphatic carbons in a row
+    "[SX2]([#6])[CH2][CH3]",  # ethylthio
+    "[N+](=O)[O-]",
+    "*~*",  # every molecule with a bond
+]
+
+
+@pytest.fixture(scope="module")
+def index() -> StructureIndex:
+    idx = StructureIndex()
+    for i, smi in zip(IDS, MOLECULES):
+        idx.add(i, smi)
+    return idx
+
+
+def brute_substructure(query: Chem.Mol, ids=None) -> list[int]:
+    keep = set(IDS if ids is None else ids)
+    return [i for i, s in zip(IDS, MOLECULES) if i in keep and Chem.MolFromSmiles(s).HasSubstructMatch(query)]
+
+
+def legacy_fp(smiles: str):
+    with rdBase.BlockLogs():  # the legacy call logs a deprecation notice
+        return rdMolDescriptors.GetMorganFingerprintAsBitVect(Chem.MolFromSmiles(smiles), 2, nBits=512)
+
+
+def brute_similar(query_smiles: str, threshold: float, ids=None) -> dict[int, float]:
+    keep = set(IDS if ids is None else ids)
+    q = legacy_fp(query_smiles)
+    sims = {i: DataStructs.TanimotoSimilarity(q, legacy_fp(s)) for i, s in zip(IDS, MOLECULES) if i in keep}
+    return {i: v for i, v in sims.items() if v >= threshold}
+
+
+def test_set_is_about_forty_distinct_molecules():
+    assert len(MOLECULES) == 40
+    assert len({Chem.MolToInchiKey(Chem.MolFromSmiles(s)) for s in MOLECULES}) == 40
+
+
+@pytest.mark.parametrize("smarts", SMARTS_QUERIES)
+def test_substructure_equals_brute_force(index, smarts):
+    assert read_query(smarts).language == "smarts"
+    expected = brute_substructure(Chem.MolFromSmarts(smarts))
+    assert index.substructure(parse_query(smarts)) == expected
+
+
+def test_selenium_query_finds_exactly_the_se_bowls_and_selenophene(index):
+    # By construction: 7 Se-bridged bowls (parent + 6 derivatives) and selenophene.
+    expected = {i for i, s in zip(IDS, MOLECULES) if "se" in s.lower()}
+    hits = index.substructure(parse_query("[#34]"))
+    assert len(hits) == 8
+    assert set(hits) == expected
+
+
+def test_kekule_smiles_is_read_as_smiles_and_finds_aromatic_rings(index):
+    query = read_query("C1=CC=CC=C1")
+    assert query.language == "smiles"
+    hits = index.substructure(query.mol)
+    # Every molecule of the set has a benzene ring except thiophene, selenophene and pyridine.
+    no_benzene = {"c1ccsc1", "c1cc[se]c1", "c1ccncc1"}
+    assert set(hits) == {i for i, s in zip(IDS, MOLECULES) if s not in no_benzene}
+    assert hits == brute_substructure(Chem.MolFromSmiles("C1=CC=CC=C1"))
+
+
+def test_candidates_restrict_the_substructure_search(index):
+    subset = IDS[::3]
+    query = parse_query("c1ccccc1")
+    assert index.substructure(query, candidates=subset) == brute_substructure(query, subset)
+    assert index.substructure(query, candidates=[]) == []
+    assert index.substructure(query, candidates=[999_999]) == []
+
+
+@pytest.mark.parametrize("query_smiles", [MOLECULES[1], MOLECULES[9], "COc1ccccc1", "CCCCCCOc1ccc(O)cc1"])
+@pytest.mark.parametrize("threshold", [0.2, 0.5, 0.8])
+def test_similarity_equals_brute_force(index, query_smiles, threshold):
+    expected = brute_similar(query_smiles, threshold)
+    got = index.similar(parse_query(query_smiles, kind="similarity"), threshold)
+    assert {i for i, _ in got} == set(expected)
+    for i, sim in got:
+        assert sim == pytest.approx(expected[i], abs=1e-12)
+    # Highest similarity first, ties by id.
+    assert got == sorted(got, key=lambda h: (-h[1], h[0]))
+
+
+def test_similarity_with_candidates_and_self_match(index):
+    query = MOLECULES[4]
+    subset = IDS[:10]
+    got = index.similar(parse_query(query, kind="similarity"), 0.3, candidates=subset)
+    assert {i for i, _ in got} == set(brute_similar(query, 0.3, subset))
+    # A molecule compared with itself: Tanimoto 1 (definition of the coefficient).
+    assert got[0] == (IDS[4], 1.0)
+
+
+def test_fingerprint_matches_the_legacy_implementation_bit_for_bit():
+    assert MORGAN_FP_SIZE == 512  # the cartridge default rdkit.morgan_fp_size (see tests/services)
+    for smi in MOLECULES:
+        ours = fingerprint(Chem.MolFromSmiles(smi))
+        assert ours.GetNumBits() == 512
+        assert list(ours.GetOnBits()) == list(legacy_fp(smi).GetOnBits())
+
+
+def test_benzene_has_one_identifier_per_radius():
+    # Morgan/ECFP (Rogers & Hahn 2010): all six benzene atoms are equivalent, so iterations 0, 1
+    # and 2 give one distinct identifier each: 3 on-bits at radius 2 (reasoned from the algorithm).
+    assert fingerprint(Chem.MolFromSmiles("c1ccccc1")).GetNumOnBits() == 3
+    # Cyclohexane's atoms carry two hydrogens and single bonds: no identifier in common -> Tanimoto 0.
+    a = fingerprint(Chem.MolFromSmiles("c1ccccc1"))
+    b = fingerprint(Chem.MolFromSmiles("C1CCCCC1"))
+    assert DataStructs.TanimotoSimilarity(a, b) == 0.0
+
+
+def test_remove_and_replace():
+    idx = StructureIndex()
+    idx.add(1, "c1ccccc1")
+    idx.add(2, "CCO")
+    idx.add(3, "Oc1ccccc1")
+    benzene = parse_query("c1ccccc1")
+    assert idx.substructure(benzene) == [1, 3]
+    idx.remove(1)
+    assert idx.substructure(benzene) == [3]
+    assert len(idx) == 2 and 1 not in idx
+    idx.remove(1)  # absent: nothing happens
+    idx.add(2, "c1ccccc1C")  # replaces the structure of id 2
+    assert idx.substructure(benzene) == [2, 3]
+    assert len(idx) == 2
+
+
+def test_index_grows_past_its_first_block():
+    idx = StructureIndex()
+    for i in range(150):
+        idx.add(i, "C" * (1 + i % 20) + "O")
+    hits = idx.substructure(parse_query("CCCCCCCCCCCCCCCCCCCCO"))  # only the 20-carbon alcohols
+    assert hits == [i for i in range(150) if i % 20 == 19]
+
+
+@pytest.mark.parametrize(
+    "text, fragment",
+    [
+        ("c1ccc(", "neither a valid SMARTS"),
+        ("[C", "neither a valid SMARTS"),
+        ("", "no substructure"),
+        ("c1ccccc1 benzene", "without spaces"),
+    ],
+)
+def test_invalid_substructure_gives_clear_error(text, fragment):
+    with pytest.raises(ChemistryError) as err:
+        parse_query(text)
+    assert err.value.field == "substructure"
+    assert fragment.lower() in err.value.message.lower()
+
+
+def test_invalid_similarity_query_names_the_field():
+    with pytest.raises(ChemistryError) as err:
+        parse_query("C1CC", kind="similarity")
+    assert err.value.field == "similar"
+    assert "ring" in err.value.message.lower()
+    with pytest.raises(ChemistryError) as err:
+        parse_query("[C[C]", kind="similarity")
+    assert err.value.field == "similar"
+
+
+def test_unknown_kind_is_a_programming_error():
+    with pytest.raises(ValueError):
+        parse_query("c1ccccc1", kind="exact")

@@ -1,0 +1,236 @@
+"""Structure search through the service, on SQLite (in-process index) and PostgreSQL (RDKit cartridge).
+
+Compounds are registered through the JSON API, as a chemist would. Expected answers come
+from brute force outside the code under test: ``HasSubstructMatch`` on every registered
+molecule and ``DataStructs.TanimotoSimilarity`` of RDKit's legacy Morgan implementation
+(``rdMolDescriptors.GetMorganFingerprintAsBitVect``, radius 2, 512 bits) for every pair.
+The last test registers the same 40 molecules in both back ends and compares the answers.
+"""
+
+from __future__ import annotations
+
+import math
+import shutil
+
+import pytest
+import sqlalchemy as sa
+from fastapi.testclient import TestClient
+from rdkit import Chem, DataStructs, rdBase
+from rdkit.Chem import rdMolDescriptors
+from sqlmodel import Session, select
+
+from server.app import create_app
+from server.chem.search import MORGAN_FP_SIZE, fingerprint
+from server.errors import ChemistryError, InputError
+from server.models import Compound
+from server.services import search as structure_search
+from server.settings import Settings
+from tests.chem.test_search import MOLECULES, SMARTS_QUERIES
+from tests.conftest import _empty_pg
+from tests.factories import bearer, make_token
+
+# A smaller set for the per-back-end tests: 4 bowls of each bridge kind and 6 simple aromatics.
+SMALL = [m for i, m in enumerate(MOLECULES[:21]) if i % 7 in (0, 1, 3, 6)] + MOLECULES[21:27]
+QUERIES = ["c1ccccc1", "[#34]", "c1ccsc1", "[OX2][CH2][CH2]", "[CH2;R]", "C1=CC=CC=C1", "*~*"]
+SIMILAR = [(MOLECULES[1], 0.5), (MOLECULES[8], 0.3), ("COc1ccccc1", 0.25), ("c1ccccc1", 1.0)]
+
+
+def legacy_fp(smiles: str):
+    with rdBase.BlockLogs():  # the legacy call logs a deprecation notice
+        return rdMolDescriptors.GetMorganFingerprintAsBitVect(Chem.MolFromSmiles(smiles), 2, nBits=512)
+
+
+def register(client, token_headers, smiles_list) -> dict[str, str]:
+    codes = {}
+    for smi in smiles_list:
+        r = client.post("/api/v1/compounds", json={"smiles": smi}, headers=token_headers)
+        assert r.status_code == 201, r.text
+        codes[r.json()["code"]] = r.json()["smiles"]
+    return codes
+
+
+def stored(session: Session) -> list[Compound]:
+    session.expire_all()
+    return list(session.exec(select(Compound).order_by(Compound.id)).all())
+
+
+def brute_sub(compounds, text: str, *, kekule_smiles: bool = False) -> list[int]:
+    q = Chem.MolFromSmiles(text) if kekule_smiles else Chem.MolFromSmarts(text)
+    return [c.id for c in compounds if Chem.MolFromSmiles(c.smiles).HasSubstructMatch(q)]
+
+
+def brute_sim(compounds, smiles: str, threshold: float) -> list[tuple[int, float]]:
+    q = legacy_fp(smiles)
+    pairs = [(c.id, DataStructs.TanimotoSimilarity(q, legacy_fp(c.smiles))) for c in compounds]
+    return sorted([p for p in pairs if p[1] >= threshold], key=lambda p: (-p[1], p[0]))
+
+
+@pytest.fixture
+def writer(session):
+    return bearer(make_token(session, scope="write"))
+
+
+@pytest.fixture
+def small_set(client, writer, session):
+    register(client, writer, SMALL)
+    return stored(session)
+
+
+def test_backend_is_the_cartridge_on_postgresql(session, small_set):
+    name = session.get_bind().dialect.name
+    expected = "cartridge" if name == "postgresql" else "in-process"
+    assert structure_search.backend(session) == expected
+    if name == "postgresql":
+        # The cartridge default that MORGAN_FP_SIZE must equal (RDKit cartridge docs: 512), read on a
+        # fresh connection once the library is loaded (its GUCs exist only from then on).
+        with session.get_bind().engine.connect() as conn:
+            conn.execute(sa.text("SELECT rdkit_version()"))
+            assert conn.execute(sa.text("SHOW rdkit.morgan_fp_size")).scalar_one() == str(MORGAN_FP_SIZE)
+        rows = session.execute(sa.text(
+            "SELECT compound_id, bfp_to_binary_text(mfp) FROM compound_structure ORDER BY compound_id"
+        )).all()
+        assert [r[0] for r in rows] == [c.id for c in small_set]  # every registration indexed
+        for (compound_id, bits), c in zip(rows, small_set):
+            # The cartridge's fingerprint of each compound, bit for bit the in-process one.
+            assert bytes(bits) == DataStructs.BitVectToBinaryText(fingerprint(Chem.MolFromSmiles(c.smiles)))
+
+
+def test_substructure_and_similarity_equal_brute_force(session, small_set):
+    codes = {c.id: c.code for c in small_set}
+    for query in QUERIES:
+        hits = structure_search.search(session, substructure=query)
+        expected = brute_sub(small_set, query, kekule_smiles=query.startswith("C1="))
+        assert [h.compound_id for h in hits] == expected, query
+        assert [h.code for h in hits] == [codes[i] for i in expected]
+        assert all(h.similarity is None for h in hits)
+    for query, threshold in SIMILAR:
+        hits = structure_search.search(session, similar=query, threshold=threshold)
+        expected = brute_sim(small_set, query, threshold)
+        assert [h.compound_id for h in hits] == [i for i, _ in expected], (query, threshold)
+        for hit, (_, sim) in zip(hits, expected):
+            assert hit.similarity == pytest.approx(sim, abs=1e-9)
+    # Both filters: compounds with sulfur, by similarity to an S-bridged bowl.
+    hits = structure_search.search(session, substructure="[#16]", similar=MOLECULES[8], threshold=0.2)
+    with_s = set(brute_sub(small_set, "[#16]"))
+    expected = [p for p in brute_sim(small_set, MOLECULES[8], 0.2) if p[0] in with_s]
+    assert [h.compound_id for h in hits] == [i for i, _ in expected]
+    assert len(expected) >= 3  # the combined check has something to compare
+
+
+def test_archived_compounds_are_left_out_by_default(client, writer, session, small_set):
+    benzene_ring = brute_sub(small_set, "c1ccccc1")
+    gone = next(c for c in small_set if c.id == benzene_ring[0])
+    assert client.post(f"/api/v1/compounds/{gone.code}/archive", headers=writer).status_code == 200
+    session.expire_all()
+    ids = [h.compound_id for h in structure_search.search(session, substructure="c1ccccc1")]
+    assert ids == benzene_ring[1:]
+    ids = [h.compound_id for h in structure_search.search(session, substructure="c1ccccc1", include_archived=True)]
+    assert ids == benzene_ring
+    sim = structure_search.search(session, similar=gone.smiles, threshold=1.0)
+    assert sim == []
+
+
+def test_candidate_ids_restrict_the_result(session, small_set):
+    subset = [c.id for c in small_set[::2]]
+    hits = structure_search.search(session, substructure="c1ccccc1", candidate_ids=subset)
+    assert [h.compound_id for h in hits] == [i for i in brute_sub(small_set, "c1ccccc1") if i in subset]
+    hits = structure_search.search(session, similar=MOLECULES[1], threshold=0.3, candidate_ids=subset)
+    assert [h.compound_id for h in hits] == [i for i, _ in brute_sim(small_set, MOLECULES[1], 0.3) if i in subset]
+    assert structure_search.search(session, substructure="c1ccccc1", candidate_ids=[]) == []
+
+
+def test_embargoed_compounds_can_be_left_out(client, writer, session):
+    r = client.post("/api/v1/compounds", json={"smiles": "c1cc[se]c1", "embargoed": True}, headers=writer)
+    assert r.status_code == 201, r.text
+    assert [h.code for h in structure_search.search(session, substructure="[#34]")] == [r.json()["code"]]
+    assert structure_search.search(session, substructure="[#34]", include_embargoed=False) == []
+
+
+def test_a_new_registration_is_found_at_once(client, writer, session, small_set):
+    assert structure_search.search(session, substructure="[N+](=O)[O-]") == []  # builds/uses the index
+    code = next(iter(register(client, writer, ["O=[N+]([O-])c1ccccc1"])))
+    session.expire_all()
+    assert [h.code for h in structure_search.search(session, substructure="[N+](=O)[O-]")] == [code]
+    assert [h.code for h in structure_search.search(session, similar="O=[N+]([O-])c1ccccc1", threshold=1.0)] == [code]
+
+
+BAD_QUERIES = [
+    ({"substructure": "c1ccc("}, "substructure", "neither a valid SMARTS"),
+    ({"substructure": "[C"}, "substructure", "neither a valid SMARTS"),
+    ({"similar": "C1CC"}, "similar", "ring"),
+    ({}, "substructure", "give a substructure"),
+    ({"substructure": "  "}, "substructure", "give a substructure"),
+    ({"similar": "c1ccccc1", "threshold": 0}, "threshold", "above 0"),
+    ({"similar": "c1ccccc1", "threshold": 1.5}, "threshold", "at most 1"),
+    ({"similar": "c1ccccc1", "threshold": math.nan}, "threshold", "number"),
+    ({"similar": "c1ccccc1", "threshold": True}, "threshold", "number"),
+]
+
+
+def test_bad_queries_give_clear_errors(session):
+    for kwargs, field, fragment in BAD_QUERIES:
+        with pytest.raises(InputError) as err:
+            structure_search.search(session, **kwargs)
+        assert err.value.field == field, kwargs
+        assert fragment.lower() in err.value.message.lower(), kwargs
+        if field in ("substructure", "similar") and "give" not in fragment:
+            assert isinstance(err.value, ChemistryError)
+
+
+def test_threshold_of_one_is_allowed(session, small_set):
+    hits = structure_search.search(session, similar=small_set[0].smiles, threshold=1.0)
+    assert [h.compound_id for h in hits] == [small_set[0].id]
+    assert hits[0].similarity == 1.0
+
+
+# --- the two back ends on the same data -------------------------------------------------------
+
+
+def _app_for(url: str, data_dir):
+    settings = Settings(data_dir=data_dir, database_url=url, secret_key="test-secret-key-not-for-production",
+                        embedded_worker=False).resolved()
+    return create_app(settings)
+
+
+def _answers(app) -> dict:
+    """Every query's answer keyed by compound code (ids may differ between databases)."""
+    out = {}
+    with Session(app.state.engine) as s:
+        for q in SMARTS_QUERIES + ["C1=CC=CC=C1"]:
+            out[("sub", q)] = [(h.code, None) for h in structure_search.search(s, substructure=q)]
+        for smi in MOLECULES[::4] + ["COc1ccccc1"]:
+            for t in (0.15, 0.4, 0.7):
+                out[("sim", smi, t)] = [(h.code, h.similarity) for h in structure_search.search(s, similar=smi,
+                                                                                                 threshold=t)]
+        out["backend"] = structure_search.backend(s)
+    return out
+
+
+@pytest.mark.pg
+@pytest.mark.parametrize("pair", [pytest.param(("sqlite", "postgresql"), id="sqlite-vs-postgresql")])
+def test_sqlite_and_postgresql_give_identical_answers(pair, tmp_path, sqlite_template, pg_database):
+    sqlite_path = tmp_path / "same.db"
+    shutil.copyfile(sqlite_template, sqlite_path)
+    _empty_pg(pg_database)
+    answers = []
+    for url, sub in ((f"sqlite:///{sqlite_path}", "a"), (pg_database, "b")):
+        app = _app_for(url, tmp_path / sub)
+        try:
+            with TestClient(app) as client, Session(app.state.engine) as s:
+                register(client, bearer(make_token(s, scope="write")), MOLECULES)
+            answers.append(_answers(app))
+        finally:
+            app.state.engine.dispose()
+    lite, pg = answers
+    assert (lite.pop("backend"), pg.pop("backend")) == ("in-process", "cartridge")
+    assert lite.keys() == pg.keys()
+    assert any(len(v) > 3 for v in lite.values())  # the comparison is not between empty answers
+    for key in lite:
+        assert [code for code, _ in lite[key]] == [code for code, _ in pg[key]], key
+        for (_, a), (_, b) in zip(lite[key], pg[key]):
+            if a is None or b is None:
+                assert a is b is None, key
+            else:
+                # Both back ends compute the same bits and the same integer ratio, so the Tanimoto
+                # values must agree to 1e-9 (in practice they are identical doubles).
+                assert abs(a - b) <= 1e-9, key

@@ -121,6 +121,9 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         version=__version__,
         summary="Registry and dashboard for molecular-ferroelectric campaigns.",
         lifespan=lifespan,
+        # Starlette's body limit: refuses by Content-Length, else counts the body as it streams, so an
+        # oversized upload is never read whole. Room is left for the multipart envelope and form fields.
+        max_body_size=settings.max_upload_bytes + 64 * 1024,
     )
     app.state.settings = settings
     app.state.engine = engine

@@ -13,6 +13,7 @@ PostgreSQL: one database per test session, migrated once, emptied before each te
 from __future__ import annotations
 
 import os
+import re
 import shutil
 import uuid
 from pathlib import Path
@@ -138,10 +139,12 @@ _pg_outcomes = {"passed": 0, "skipped": 0}
 
 
 def pytest_runtest_logreport(report):
-    if "postgresql" in report.nodeid and report.when == "call":
-        if report.passed:
-            _pg_outcomes["passed"] += 1
-    if "postgresql" in report.nodeid and report.skipped:
+    # PostgreSQL runs are the db_url fixture's "postgresql" parameter, e.g. test_x[postgresql].
+    if not re.search(r"[\[-]postgresql[\]-]", report.nodeid):
+        return
+    if report.when == "call" and report.passed:
+        _pg_outcomes["passed"] += 1
+    if report.skipped:
         _pg_outcomes["skipped"] += 1
 
 

@@ -42,7 +42,8 @@ def explorer_figure(points, *, x_title: str, y_title: str, with_trend: bool = Fa
             a, b, r2 = fit
             xs = np.linspace(min(p.x for p in pts), max(p.x for p in pts), 20)
             fig.add_trace(go.Scatter(x=xs, y=a + b * xs, mode="lines", line=dict(color=colour, dash="dot"),
-                                     name=f"{g}: y = {a:.3g} + {b:.3g} x, r² = {r2:.2f}", hoverinfo="skip"))
+                                     name=f"{g}: y = {a:.3g} {'+' if b >= 0 else '−'} {abs(b):.3g} x, r² = {r2:.2f}",
+                                     hoverinfo="skip"))
     base_layout(fig, x_title=x_title, y_title=y_title)
     fig.update_layout(meta={"click_to_compound": True}, height=560)
     return fig

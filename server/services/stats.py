@@ -69,9 +69,11 @@ def refresh(session: Session, compound: Compound) -> CompoundStats:
     stats.t_peak_K = last_diel.get("t_peak_K")
     stats.eps_peak = last_diel.get("eps_peak")
     stats.curie_constant_K = last_diel.get("curie_constant_K")
-    # The lowest-temperature DSC peak: in this campaign the solid-solid transition comes before melting.
-    peaks = sorted((p for m in ms if m.kind == "dsc" for p in m.results.get("peaks") or [] if p.get("peak_K")),
-                   key=lambda p: p["peak_K"])
+    # The lowest-temperature DSC peak that is not melting (see verdicts.MELTING_DS_J_MOLK).
+    from .verdicts import _looks_like_melting
+
+    peaks = sorted((p for m in ms if m.kind == "dsc" for p in m.results.get("peaks") or []
+                    if p.get("peak_K") and not _looks_like_melting(p)), key=lambda p: p["peak_K"])
     first: dict[str, Any] = peaks[0] if peaks else {}
     stats.dsc_t_K, stats.dsc_ds_J_molK, stats.dsc_n_states = first.get("peak_K"), first.get("ds_J_molK"), first.get("n_states")
 

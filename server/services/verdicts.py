@@ -20,10 +20,23 @@ def _details(m: Measurement) -> dict[str, Any]:
     if m.kind == "dielectric":
         return {"t_peak_K": r.get("t_peak_K")} if r.get("t_peak_K") is not None else {}
     if m.kind == "dsc":
-        return {"peak_K": [p["peak_K"] for p in r.get("peaks") or [] if p.get("peak_K") is not None]}
+        return {"peak_K": [p["peak_K"] for p in r.get("peaks") or [] if p.get("peak_K") is not None
+                           and not _looks_like_melting(p)]}
     if m.kind == "crystal":
         return {"space_group": r.get("space_group")}
     return {}
+
+
+# Walden's rule: entropies of fusion of rigid organic molecules are about 56 J/(mol K) (P. Walden,
+# Z. Elektrochem. 14, 713 (1908); memory), while order-disorder solid-solid transitions of a dipole
+# with a few orientations have R ln 2 to R ln 4, i.e. 6-12 J/(mol K). A DSC peak above 40 J/(mol K) is
+# taken as melting (common practice) and is not evidence of a ferroelectric phase transition.
+MELTING_DS_J_MOLK = 40.0
+
+
+def _looks_like_melting(peak: dict[str, Any]) -> bool:
+    ds = peak.get("ds_J_molK")
+    return ds is not None and abs(ds) > MELTING_DS_J_MOLK
 
 
 def _temperature(m: Measurement) -> Optional[float]:

@@ -75,7 +75,21 @@ def scalar_items(results: dict[str, Any]) -> list[tuple[str, str, Any]]:
     return out
 
 
+# Short names for tables and map cells; the full sentences (analysis.verdict.LABELS) go in legends and titles.
+VERDICT_SHORT = {
+    "proven_ferroelectric": "ferroelectric",
+    "switching_phase_unknown": "switches, phase unknown",
+    "polar_unswitched": "polar, not switched",
+    "nonpolar": "non-polar",
+    "transition_only": "transition only",
+    "no_switching_seen": "no switching seen",
+    "conflicting": "conflicting",
+    "untested": "untested",
+}
+
+
 def install(env) -> None:  # noqa: ANN001 - a jinja2 Environment
     env.filters["number"] = number
     env.filters["scalar_items"] = scalar_items
     env.globals["split_key"] = split_key
+    env.globals["verdict_short"] = VERDICT_SHORT

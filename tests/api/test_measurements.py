@@ -181,3 +181,29 @@ def test_reanalysis_reuses_form_conditions(client, session, batch, uploader):
     assert r.status_code == 201, r.text
     assert r.json()["conditions"]["sources"]["area"] == "form"
     assert reanalyse(session=session) == []
+
+
+def test_oversized_body_refused_while_streaming(settings, batch, uploader):
+    # Content-Length over the limit: refused before the body is read.
+    import dataclasses
+
+    from fastapi.testclient import TestClient
+
+    from server.app import create_app
+
+    client = TestClient(create_app(dataclasses.replace(settings, max_upload_mb=0.05)))
+    big = b"E (kV/cm),P (uC/cm^2)\n" + b"1.0,2.0\n" * 40000  # ~320 kB
+    r = post(client, batch, "pe_loop", big, uploader)
+    assert r.status_code == 413
+
+    # Chunked (no Content-Length): counted as it streams and refused once past the limit.
+    def chunks():
+        yield b"--b\r\nContent-Disposition: form-data; name=\"kind\"\r\n\r\npe_loop\r\n"
+        yield b"--b\r\nContent-Disposition: form-data; name=\"file\"; filename=\"x.csv\"\r\n\r\n"
+        for _ in range(100):
+            yield b"1.0,2.0\n" * 1000
+        yield b"\r\n--b--\r\n"
+
+    r = client.post(f"/api/v1/batches/{batch}/measurements", content=chunks(),
+                    headers={**uploader, "Content-Type": "multipart/form-data; boundary=b"})
+    assert r.status_code == 413

@@ -97,3 +97,19 @@ def test_override_needs_admin_and_keeps_computed(client, session, h):
     assert bad.status_code == 422
     cleared = client.post("/api/v1/compounds/RMN-00001/verdict/clear", headers={"X-CSRF-Token": csrf}).json()
     assert cleared["verdict"] == "switching_phase_unknown"
+
+
+def test_melting_is_not_a_phase_transition(client, h):
+    from server.synth.dsc import dsc_trace
+
+    # Melting with dS far above R ln 2: the parent C21H12 (264.3 g/mol) at 420 K with 100 J/g gives
+    # dS = 100 x 264.3 / 420 = 62.9 J/(mol K) (by hand), near Walden's rule, so no transition evidence.
+    melt = dsc_trace([{"t_K": 420.0, "dh_J_g": 100.0, "width_K": 1.5, "kind": "melting"}], t_start_K=330,
+                     t_end_K=450, rate_K_min=10, mass_mg=4.0)
+    upload(client, h, "dsc", to_csv_bytes(melt), "melt.csv", mass="4 mg", rate="10 K/min")
+    assert verdict(client, h)["verdict"] == "untested"
+    # A solid-solid peak with dS = R ln 2: 5.763 J/(mol K) x 300 K / 264.3 g/mol = 6.54 J/g (by hand).
+    solid = dsc_trace([{"t_K": 300.0, "dh_J_g": 6.54, "width_K": 4.0, "kind": "gaussian"}], t_start_K=250,
+                      t_end_K=350, rate_K_min=10, mass_mg=4.0)
+    upload(client, h, "dsc", to_csv_bytes(solid), "solid.csv", mass="4 mg", rate="10 K/min")
+    assert verdict(client, h)["verdict"] == "transition_only"

@@ -47,7 +47,8 @@ def read_upload(file: UploadFile, limit: int) -> bytes:
     """The uploaded bytes, refusing more than ``limit`` without reading further."""
     data = file.file.read(limit + 1)
     if len(data) > limit:
-        raise HTTPException(413, f"the file is larger than the limit of {limit / 1048576:.0f} MiB")
+        raise HTTPException(413, f"the file is larger than the limit of {limit / 1048576:.3g} MiB "
+                                 "(REMANENCE_MAX_UPLOAD_MB)")
     return data
 
 

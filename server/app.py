@@ -24,6 +24,7 @@ from .settings import PROJECT_ROOT, Settings, get_settings
 from .web import format as format_filters
 from .web import measurements as measurement_pages
 from .web import pages
+from .web import admin as admin_pages
 from .web import campaign as campaign_pages
 from .web import science as science_pages
 from .web.render import render
@@ -158,6 +159,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(measurement_pages.router)
     app.include_router(science_pages.router)
     app.include_router(campaign_pages.router)
+    app.include_router(admin_pages.router)
     app.mount("/static", StaticFiles(directory=str(PROJECT_ROOT / "static")), name="static")
 
     @app.get(f"/assets/plotly-{PLOTLY_VERSION}.min.js", include_in_schema=False)

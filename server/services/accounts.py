@@ -103,3 +103,37 @@ def revoke_token(*, session: Session, token_id: int, actor: str) -> ApiToken:
         session.commit()
         session.refresh(token)
     return token
+
+
+def set_active(*, session: Session, username: str, active: bool, actor: str) -> User:
+    user = session.exec(select(User).where(User.username == username)).first()
+    if user is None:
+        raise NotFound(f"no user {username}")
+    before = {"active": user.active}
+    user.active = active
+    session.add(user)
+    audit.record(session, actor=actor, action="user.activate" if active else "user.deactivate", entity="user",
+                 code=username, before=before, after={"active": active})
+    session.commit()
+    session.refresh(user)
+    return user
+
+
+def user_read(user: User) -> dict:
+    return {"username": user.username, "role": user.role, "active": user.active,
+            "created_at": user.created_at.isoformat(), "locked": bool(user.locked_until and user.locked_until > utcnow())}
+
+
+def token_read(token: ApiToken) -> dict:
+    return {"id": token.id, "name": token.name, "prefix": token.prefix, "scope": token.scope, "kinds": token.kinds,
+            "created_by": token.created_by, "created_at": token.created_at.isoformat(),
+            "last_used_at": token.last_used_at.isoformat() if token.last_used_at else None,
+            "revoked_at": token.revoked_at.isoformat() if token.revoked_at else None}
+
+
+def list_users(session: Session) -> list[User]:
+    return list(session.exec(select(User).order_by(User.username)).all())
+
+
+def list_tokens(session: Session) -> list[ApiToken]:
+    return list(session.exec(select(ApiToken).order_by(ApiToken.id.desc())).all())

@@ -287,6 +287,23 @@ def measurement_read(session: Session, m: Measurement) -> dict[str, Any]:
         "instrument": m.instrument,
         "operator": m.operator,
         "notes": m.notes,
+        "archived": m.archived,
         "created_at": m.created_at.isoformat(),
         "created_by": m.created_by,
     }
+
+
+def set_archived(*, session: Session, measurement: Measurement, archived: bool, actor: str) -> Measurement:
+    """Archive or restore a measurement; the raw file stays, the verdict and figures are recomputed."""
+    measurement.archived = archived
+    session.add(measurement)
+    batch = session.get(Batch, measurement.batch_id)
+    compound = session.get(Compound, batch.compound_id)
+    audit.record(session, actor=actor, action="measurement.archive" if archived else "measurement.restore",
+                 entity="measurement", code=str(measurement.id), compound_id=compound.id,
+                 before={"archived": not archived}, after={"archived": archived})
+    verdicts.recompute(session, compound)
+    stats.refresh(session, compound)
+    session.commit()
+    session.refresh(measurement)
+    return measurement

@@ -306,3 +306,16 @@ def structure_svg(compound: Compound, *, thumbnail: bool = False) -> str:
 
 def batches_of(session: Session, compound: Compound) -> list[Batch]:
     return list(session.exec(select(Batch).where(Batch.compound_id == compound.id).order_by(Batch.seq)).all())
+
+
+def set_batch_archived(*, session: Session, batch: Batch, archived: bool, actor: str) -> Batch:
+    before = audit.snapshot(batch)
+    batch.archived = archived
+    session.add(batch)
+    compound = session.get(Compound, batch.compound_id)
+    audit.record(session, actor=actor, action="batch.archive" if archived else "batch.restore", entity="batch",
+                 code=batch.code, compound_id=compound.id, before=before, after=audit.snapshot(batch))
+    stats.refresh(session, compound)
+    session.commit()
+    session.refresh(batch)
+    return batch

@@ -132,6 +132,20 @@ def list_batches(code: str, session: SessionDep, actor: Reader) -> list[BatchRea
     return [registry.batch_read(session, b) for b in registry.batches_of(session, compound)]
 
 
+@router.post("/batches/{code}/archive", response_model=BatchRead, responses={**AUTH_ERRORS, **NOT_FOUND})
+def archive_batch(code: str, session: SessionDep, actor: Writer) -> BatchRead:
+    batch = registry.set_batch_archived(session=session, batch=registry.get_batch(session, code), archived=True,
+                                        actor=actor.label)
+    return registry.batch_read(session, batch)
+
+
+@router.post("/batches/{code}/restore", response_model=BatchRead, responses={**AUTH_ERRORS, **NOT_FOUND})
+def restore_batch(code: str, session: SessionDep, actor: Writer) -> BatchRead:
+    batch = registry.set_batch_archived(session=session, batch=registry.get_batch(session, code), archived=False,
+                                        actor=actor.label)
+    return registry.batch_read(session, batch)
+
+
 @router.get("/batches/{code}", response_model=BatchRead, responses={**AUTH_ERRORS, **NOT_FOUND})
 def get_batch(code: str, session: SessionDep, actor: Reader) -> BatchRead:
     return registry.batch_read(session, registry.get_batch(session, code))

@@ -8,7 +8,7 @@ from fastapi import APIRouter, File, Form, HTTPException, Query, UploadFile
 from fastapi.responses import JSONResponse, Response
 from pydantic import BaseModel
 
-from ...deps import Reader, SessionDep, SettingsDep, Uploader
+from ...deps import Reader, SessionDep, SettingsDep, Uploader, Writer
 from ...models import RawFile
 from ...services import measurements, registry
 from .common import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND, ErrorOut
@@ -34,6 +34,7 @@ class MeasurementOut(BaseModel):
     instrument: str
     operator: str
     notes: str
+    archived: bool = False
     created_at: str
     created_by: str
 
@@ -120,3 +121,20 @@ def get_raw(measurement_id: int, session: SessionDep, actor: Reader) -> Response
     return Response(raw.data, media_type="application/octet-stream",
                     headers={"Content-Disposition": f'attachment; filename="{safe}"',
                              "X-Content-SHA256": raw.sha256})
+
+
+@router.post("/measurements/{measurement_id}/archive", response_model=MeasurementOut,
+             responses={**AUTH_ERRORS, **NOT_FOUND})
+def archive_measurement(measurement_id: int, session: SessionDep, actor: Writer):
+    """Archive a measurement (its raw file is kept); the compound's verdict no longer uses it."""
+    m = measurements.set_archived(session=session, measurement=measurements.get_measurement(session, measurement_id),
+                                  archived=True, actor=actor.label)
+    return measurements.measurement_read(session, m)
+
+
+@router.post("/measurements/{measurement_id}/restore", response_model=MeasurementOut,
+             responses={**AUTH_ERRORS, **NOT_FOUND})
+def restore_measurement(measurement_id: int, session: SessionDep, actor: Writer):
+    m = measurements.set_archived(session=session, measurement=measurements.get_measurement(session, measurement_id),
+                                  archived=False, actor=actor.label)
+    return measurements.measurement_read(session, m)

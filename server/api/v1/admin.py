@@ -1,0 +1,69 @@
+"""Accounts and instrument tokens (admins only)."""
+
+from __future__ import annotations
+
+from typing import Any, Optional
+
+from fastapi import APIRouter
+from pydantic import BaseModel, Field
+
+from ...deps import Admin, SessionDep
+from ...services import accounts
+from .common import AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND
+
+router = APIRouter(tags=["admin"])
+
+
+class UserIn(BaseModel):
+    username: str = Field(min_length=1, max_length=80)
+    password: str = Field(min_length=8, max_length=1000)
+    role: str = Field("member", description="admin, member or viewer")
+
+
+class TokenIn(BaseModel):
+    name: str = Field(min_length=1, max_length=120, description="e.g. the instrument PC it belongs to")
+    scope: str = Field(description="upload, write or read")
+    kinds: Optional[list[str]] = Field(None, description="upload tokens: the measurement kinds allowed")
+
+
+@router.get("/users", responses=AUTH_ERRORS)
+def list_users(session: SessionDep, actor: Admin) -> dict[str, Any]:
+    items = [accounts.user_read(u) for u in accounts.list_users(session)]
+    return {"items": items, "total": len(items)}
+
+
+@router.post("/users", status_code=201, responses={**AUTH_ERRORS, **INPUT_ERRORS, **DUPLICATE})
+def add_user(data: UserIn, session: SessionDep, actor: Admin) -> dict[str, Any]:
+    user = accounts.create_user(session=session, username=data.username, password=data.password, role=data.role,
+                                actor=actor.label)
+    return accounts.user_read(user)
+
+
+@router.post("/users/{username}/deactivate", responses={**AUTH_ERRORS, **NOT_FOUND})
+def deactivate_user(username: str, session: SessionDep, actor: Admin) -> dict[str, Any]:
+    return accounts.user_read(accounts.set_active(session=session, username=username, active=False, actor=actor.label))
+
+
+@router.get("/tokens", responses=AUTH_ERRORS)
+def list_tokens(session: SessionDep, actor: Admin) -> dict[str, Any]:
+    items = [accounts.token_read(t) for t in accounts.list_tokens(session)]
+    return {"items": items, "total": len(items)}
+
+
+@router.post("/tokens", status_code=201, responses={**AUTH_ERRORS, **INPUT_ERRORS})
+def create_token(data: TokenIn, session: SessionDep, actor: Admin) -> dict[str, Any]:
+    """The secret is in `token`, shown this once; only its hash is stored."""
+    from ...services.kinds import KINDS
+    from ...errors import InputError
+
+    for k in data.kinds or []:
+        if k not in KINDS:
+            raise InputError(f"unknown kind {k!r}; use {', '.join(KINDS)}", field="kinds")
+    token, secret = accounts.create_token(session=session, name=data.name, scope=data.scope, kinds=data.kinds,
+                                          actor=actor.label)
+    return {**accounts.token_read(token), "token": secret}
+
+
+@router.post("/tokens/{token_id}/revoke", responses={**AUTH_ERRORS, **NOT_FOUND})
+def revoke_token(token_id: int, session: SessionDep, actor: Admin) -> dict[str, Any]:
+    return accounts.token_read(accounts.revoke_token(session=session, token_id=token_id, actor=actor.label))

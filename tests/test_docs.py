@@ -32,3 +32,10 @@ def test_every_command_is_in_the_readme():
 def test_readme_opens_with_the_two_commands():
     head = README.split("## ", 1)[0]
     assert "make demo" in head and "make test" in head
+
+
+def test_every_upload_kind_is_in_the_readme():
+    from server.services.kinds import KINDS
+
+    missing = [k for k in KINDS if f"| `{k}` |" not in README]
+    assert not missing, f"README lacks upload kinds: {missing}"

@@ -59,6 +59,16 @@ def evidence_for(session: Session, compound: Compound) -> list[rules.Evidence]:
     ]
 
 
+def batch_verdicts(session: Session, compound: Compound) -> dict[int, rules.CompoundVerdict]:
+    """The verdict each batch's own evidence supports (computed on the fly, not stored)."""
+    by_batch: dict[int, list[rules.Evidence]] = {}
+    ids = {m.id: m.batch_id for m in session.exec(
+        select(Measurement).join(Batch, Batch.id == Measurement.batch_id).where(Batch.compound_id == compound.id))}
+    for ev in evidence_for(session, compound):
+        by_batch.setdefault(ids[ev.measurement_id], []).append(ev)
+    return {bid: rules.decide(evs) for bid, evs in by_batch.items()}
+
+
 def recompute(session: Session, compound: Compound) -> rules.CompoundVerdict:
     """Decide again from the current evidence and store it on the compound (the caller commits)."""
     decision = rules.decide(evidence_for(session, compound))

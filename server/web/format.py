@@ -39,8 +39,14 @@ LABELS = {
 }
 
 
+# Unit cell keys from the crystal analysis (lengths in Å, angles in degrees, volume in Å³).
+CELL_UNITS = {"a": "Å", "b": "Å", "c": "Å", "alpha": "°", "beta": "°", "gamma": "°", "volume": "Å³"}
+
+
 def split_key(key: str) -> tuple[str, str]:
     """('pr_pos_uC_cm2') -> ('Pr+', 'µC/cm²'); keys without a unit suffix keep an empty unit."""
+    if key in CELL_UNITS:
+        return key, CELL_UNITS[key]
     for suffix, unit in UNIT_SUFFIXES:
         if key.endswith(suffix) and len(key) > len(suffix):
             base = key[: -len(suffix)]

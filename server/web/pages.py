@@ -18,7 +18,7 @@ from ..errors import InputError
 from ..models import BATCH_STATES, BatchCreate, CompoundCreate, CompoundUpdate, Scaffold, ScaffoldCreate, SideChainSpec
 from ..plots import figure_json, summary
 from ..jobs import queue
-from ..services import accounts, estimates, measurements, registry, views
+from ..services import accounts, barriers, estimates, measurements, registry, verdicts, views
 from ..services.kinds import KINDS
 from ..analysis.verdict import LABELS as VERDICT_LABELS
 from ..services.errors import Duplicate
@@ -232,7 +232,10 @@ async def compound_create(request: Request, session: SessionDep, settings: Setti
 def compound_page(code: str, request: Request, session: SessionDep, actor: PageActor):
     compound = registry.get_compound(session, code)
     read = registry.compound_read(session, compound, see_structure=actor.can_see_embargoed)
-    batches = [registry.batch_read(session, b) for b in registry.batches_of(session, compound)]
+    batch_rows = registry.batches_of(session, compound)
+    per_batch = verdicts.batch_verdicts(session, compound)
+    batches = [registry.batch_read(session, b) for b in batch_rows]
+    batch_verdicts = {b.code: per_batch[row.id].code for b, row in zip(batches, batch_rows) if row.id in per_batch}
     rows, _ = measurements.list_measurements(session, compound=compound.code, limit=1000)
     items = [measurements.measurement_read(session, m) for m in rows]
     fig = summary.switching_vs_temperature(items)
@@ -246,9 +249,20 @@ def compound_page(code: str, request: Request, session: SessionDep, actor: PageA
                    "t": "298.15 K", "f": "1 kHz", "t_K": 298.15, "f_Hz": 1000.0, "rate_error": None,
                    "verdict_labels": VERDICT_LABELS,
                    "estimates": estimates.estimates_of(session, compound),
+                   "batch_verdicts": batch_verdicts,
+                   "calibrated": _calibrated(session),
                    "active_jobs": [queue.job_read(j, session=session) for j in queue.list_jobs(
                        session, compound_id=compound.id, limit=5)[0] if j.state in ("queued", "running")]},
                   actor=actor)
+
+
+def _calibrated(session):  # noqa: ANN001
+    """The current calibration (measured = a + b computed), or None with fewer than three pairs."""
+    from ..analysis.calibration import calibrate
+
+    pairs = barriers.calibration_pairs(session)
+    cal = calibrate([p["measured"] for p in pairs], [p["computed"] for p in pairs])
+    return cal if cal.ok else None
 
 
 @router.post("/compounds/{code}/edit")

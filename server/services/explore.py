@@ -161,7 +161,7 @@ def outcome_map(session: Session, view: ViewQuery, *, by: str = "scaffold") -> O
     cells = {}
     for (key, column), counter in counts.items():
         best = next(code for code in OUTCOME_ORDER if counter.get(code))
-        params = {"chain_kind": key[0], "c_min": key[1], "c_max": key[1], "branched": "yes" if key[2] else "no",
+        params = {"main_kind": key[0], "main_c": key[1], "main_branched": "yes" if key[2] else "no",
                   **({"scaffold": column} if by == "scaffold" else {"bridge": column})}
         cells[(key, column)] = Cell(counts=dict(counter), best=best,
                                     link=view.link(**params, page=None))

@@ -122,6 +122,11 @@ FILTERS: tuple[Filter, ...] = (
     Filter("c_min", "Carbons from", _int),
     Filter("c_max", "Carbons to", _int),
     Filter("branched", "Branched", _bool),
+    # The molecule's most frequent side chain (what the outcome map groups by).
+    Filter("main_kind", "Main side-chain kind", _choice(lambda: ("alkoxy", "alkylthio", "alkyl", "other")),
+           lambda v, _: CompoundStats.chain_kind == v),
+    Filter("main_c", "Main side-chain carbons", _int, lambda v, _: CompoundStats.chain_carbons == v),
+    Filter("main_branched", "Main side chain branched", _bool, lambda v, _: CompoundStats.chain_branched == v),
     Filter("batch_state", "Batch state", _choice(lambda: BATCH_STATES),
            lambda v, _: CompoundStats.batch_states.like(f"%,{v},%")),
     Filter("verdict", "Verdict", _choice(lambda: tuple(VERDICT_LABELS)), lambda v, _: VerdictCol.in_(v), multi=True),

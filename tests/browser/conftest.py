@@ -35,8 +35,8 @@ from sqlalchemy.engine import Engine
 from sqlmodel import Session
 
 from server.db import upgrade
-from server.models import BatchCreate, CompoundCreate, ScaffoldCreate
-from server.services import accounts, measurements, registry
+from server.models import BatchCreate, CompoundCreate, ScaffoldCreate, SideChainSpec
+from server.services import accounts, barriers, measurements, registry, status
 from server.settings import Settings
 from tests.factories import PASSWORD
 
@@ -159,11 +159,38 @@ class LiveServer:
                                               actor="browser-test")
         return secret
 
-    def compound(self, smiles: str, label: str = "") -> str:
+    def compound(self, smiles: str, label: str = "", *, scaffold: Optional[str] = None, notes: str = "",
+                 embargoed: bool = False) -> str:
+        """Register a compound from a SMILES (optionally filed under ``scaffold``); returns its code."""
         with self.session() as s:
             c = registry.register_compound(session=s, settings=self.settings,
-                                           data=CompoundCreate(smiles=smiles, label=label), actor="browser-test")
+                                           data=CompoundCreate(smiles=smiles, label=label, scaffold=scaffold,
+                                                               notes=notes, embargoed=embargoed),
+                                           actor="browser-test")
             return c.code
+
+    def built(self, scaffold: str, kind: str, carbons: int, label: str = "", *, notes: str = "",
+              embargoed: bool = False) -> str:
+        """Register ``scaffold`` with a linear ``kind`` chain of ``carbons`` at every attachment point."""
+        with self.session() as s:
+            c = registry.register_compound(
+                session=s, settings=self.settings,
+                data=CompoundCreate(scaffold=scaffold, side_chain=SideChainSpec(kind=kind, carbons=carbons),
+                                    label=label, notes=notes, embargoed=embargoed),
+                actor="browser-test")
+            return c.code
+
+    def coalescence(self, compound_code: str, tc_K: float, dnu_Hz: float) -> float:
+        """Add a measured (coalescence) barrier through the service; returns dG in kcal/mol."""
+        with self.session() as s:
+            row = barriers.add_barrier(session=s, compound=registry.get_compound(s, compound_code),
+                                       data=barriers.CoalescenceIn(method="coalescence", tc_K=tc_K, dnu_Hz=dnu_Hz),
+                                       actor="browser-test")
+            return row.dg_kcal_mol
+
+    def public_status(self, enabled: bool) -> None:
+        with self.session() as s:
+            status.set_public_status(session=s, enabled=enabled, actor="browser-test")
 
     def batch(self, compound_code: str, **fields) -> str:
         with self.session() as s:

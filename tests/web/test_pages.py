@@ -126,3 +126,22 @@ def test_security_headers(client):
     assert r.headers["x-frame-options"] == "DENY" and r.headers["x-content-type-options"] == "nosniff"
     cookie = r.headers.get("set-cookie", "")
     assert "httponly" in cookie.lower() and "samesite=lax" in cookie.lower()
+
+
+def test_login_is_throttled_after_repeated_failures(client, session):
+    make_user(session, name="rosa")
+    token = csrf_of(client.get("/login").text)
+    for _ in range(5):
+        client.post("/login", data={"username": "rosa", "password": "wrong-guess", "csrf_token": token})
+    # Locked for a few minutes now: even the right password is refused.
+    r = client.post("/login", data={"username": "rosa", "password": PASSWORD, "csrf_token": token},
+                    follow_redirects=False)
+    assert r.status_code == 401
+    from sqlmodel import select as _select
+
+    from server.models import User
+
+    user = session.exec(_select(User).where(User.username == "rosa")).one()
+    session.refresh(user)
+    assert user.locked_until is not None
+    assert user.password_hash.startswith("$argon2id$")  # Argon2id, RFC 9106

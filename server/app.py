@@ -12,6 +12,7 @@ from fastapi.exceptions import RequestValidationError
 from fastapi.responses import FileResponse, JSONResponse, RedirectResponse, Response
 from fastapi.staticfiles import StaticFiles
 from fastapi.templating import Jinja2Templates
+from sqlalchemy import text
 from sqlalchemy.exc import OperationalError
 from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.middleware.sessions import SessionMiddleware
@@ -100,7 +101,7 @@ def jsonable_errors(exc: RequestValidationError) -> list[dict]:
 
 def create_app(settings: Settings | None = None) -> FastAPI:
     settings = settings or get_settings()
-    engine = make_engine(settings.database_url)
+    engine = make_engine(settings.database_url, busy_ms=settings.sqlite_busy_ms)
 
     @asynccontextmanager
     async def lifespan(app: FastAPI):
@@ -169,7 +170,14 @@ def create_app(settings: Settings | None = None) -> FastAPI:
                             headers={"Cache-Control": "public, max-age=31536000, immutable"})
 
     @app.get("/healthz", include_in_schema=False)
-    def healthz() -> dict:
-        return {"ok": True, "version": __version__}
+    def healthz() -> Response:
+        """200 when the app can reach its database, 503 when it cannot (for load balancers and monitors)."""
+        try:
+            with engine.connect() as conn:
+                conn.execute(text("SELECT 1"))
+        except OperationalError:
+            return JSONResponse({"ok": False, "version": __version__, "detail": "database unreachable"},
+                                status_code=503)
+        return JSONResponse({"ok": True, "version": __version__})
 
     return app

@@ -21,7 +21,7 @@ from .settings import PROJECT_ROOT
 SQLITE_BUSY_TIMEOUT_MS = 15_000
 
 
-def make_engine(database_url: str, *, echo: bool = False) -> Engine:
+def make_engine(database_url: str, *, echo: bool = False, busy_ms: int = SQLITE_BUSY_TIMEOUT_MS) -> Engine:
     url = make_url(database_url)
     if url.get_backend_name() == "sqlite":
         if url.database and url.database != ":memory:":
@@ -29,14 +29,14 @@ def make_engine(database_url: str, *, echo: bool = False) -> Engine:
         engine = create_engine(
             database_url,
             echo=echo,
-            connect_args={"check_same_thread": False, "timeout": SQLITE_BUSY_TIMEOUT_MS / 1000},
+            connect_args={"check_same_thread": False, "timeout": busy_ms / 1000},
         )
 
         @event.listens_for(engine, "connect")
         def _sqlite_pragmas(dbapi_conn, _record):  # noqa: ANN001 - DB-API objects
             cur = dbapi_conn.cursor()
             cur.execute("PRAGMA journal_mode=WAL")
-            cur.execute(f"PRAGMA busy_timeout={SQLITE_BUSY_TIMEOUT_MS}")
+            cur.execute(f"PRAGMA busy_timeout={int(busy_ms)}")
             cur.execute("PRAGMA foreign_keys=ON")
             cur.execute("PRAGMA synchronous=NORMAL")
             cur.close()

@@ -18,7 +18,7 @@ from collections.abc import Iterator
 from dataclasses import dataclass
 from typing import Annotated, Optional
 
-from fastapi import Depends, HTTPException, Request
+from fastapi import Depends, HTTPException, Path, Query, Request
 from sqlmodel import Session, select
 
 from .models import ApiToken, User, utcnow
@@ -82,9 +82,13 @@ def _token_actor(session: Session, raw: str) -> Actor:
     token = session.exec(select(ApiToken).where(ApiToken.token_hash == hash_token(raw))).first()
     if token is None or token.revoked_at is not None:
         raise HTTPException(401, "invalid or revoked token", headers={"WWW-Authenticate": "Bearer"})
-    token.last_used_at = utcnow()
-    session.add(token)
-    session.commit()
+    now = utcnow()
+    # last_used_at is for people ("when did this PC last post?"): a minute's resolution is enough, and it
+    # keeps reads from writing on every request.
+    if token.last_used_at is None or (now - token.last_used_at).total_seconds() > 60:
+        token.last_used_at = now
+        session.add(token)
+        session.commit()
     return Actor(
         kind="token",
         name=token.name,
@@ -171,3 +175,10 @@ def is_htmx(request: Request) -> bool:
 
 
 HtmxRequest = Annotated[bool, Depends(is_htmx)]
+
+
+# Row ids and offsets fit a 32-bit signed integer on every back end; larger numbers are refused as
+# input errors (422) before they reach the database, which would raise instead of answering "not found".
+MAX_ID = 2_147_483_647
+RowId = Annotated[int, Path(ge=1, le=MAX_ID, description="row id")]
+Offset = Annotated[int, Query(ge=0, le=MAX_ID, description="rows to skip")]

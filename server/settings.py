@@ -67,6 +67,12 @@ SETTINGS: tuple[Setting, ...] = (
     ),
     Setting("cookie_secure", "REMANENCE_COOKIE_SECURE", "Send the session cookie over HTTPS only.", _bool),
     Setting("session_hours", "REMANENCE_SESSION_HOURS", "How long a login lasts, in hours.", float),
+    Setting(
+        "sqlite_busy_ms",
+        "REMANENCE_SQLITE_BUSY_MS",
+        "SQLite only: how long a request waits for another writer before answering 503, in milliseconds.",
+        int,
+    ),
 )
 
 
@@ -82,6 +88,7 @@ class Settings:
     embedded_worker: bool = True
     cookie_secure: bool = False
     session_hours: float = 12.0
+    sqlite_busy_ms: int = 15_000
 
     @classmethod
     def from_env(cls, environ: Mapping[str, str] | None = None, **overrides: Any) -> "Settings":

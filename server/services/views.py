@@ -241,6 +241,8 @@ def parse_view(params: Any, *, max_size: int = 500) -> ViewQuery:
     size = _int("size", (getlist("size") or ["50"])[-1])
     if page < 1 or not 1 <= size <= max_size:
         raise InputError(f"page starts at 1 and size is 1-{max_size}", field="page" if page < 1 else "size")
+    if page * size > 2_147_483_647:
+        raise InputError("that page is far past the last one", field="page")
     sub = (getlist("substructure") or [None])[-1]
     sim = (getlist("similar") or [None])[-1]
     threshold = _float("threshold", (getlist("threshold") or ["0.7"])[-1])
@@ -285,15 +287,19 @@ def _conditions(q: ViewQuery) -> list[ColumnElement]:
     return conds
 
 
-def query_view(session: Session, q: ViewQuery, *, paged: bool = True) -> ViewResult:
-    """The rows of a view; structure search (if asked) narrows the candidates first."""
+def query_view(session: Session, q: ViewQuery, *, paged: bool = True, see_embargoed: bool = True) -> ViewResult:
+    """The rows of a view; structure search (if asked) narrows the candidates first.
+
+    A caller who may not see embargoed structures never gets an embargoed compound from a
+    structure query: otherwise its code in the answer would tell which fragments it contains.
+    """
     similarity: dict[int, float] = {}
     conds = _conditions(q)
     if q.substructure or q.similar:
         from . import search
 
         hits = search.search(session, substructure=q.substructure, similar=q.similar, threshold=q.threshold,
-                             include_archived=bool(q.values.get("archived")))
+                             include_archived=bool(q.values.get("archived")), include_embargoed=see_embargoed)
         ids = [h.compound_id for h in hits]
         similarity = {h.compound_id: h.similarity for h in hits if h.similarity is not None}
         conds.append(Compound.id.in_(ids) if ids else Compound.id == -1)

@@ -5,7 +5,7 @@ from __future__ import annotations
 from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse
 
-from ..deps import SessionDep
+from ..deps import RowId, SessionDep
 from ..errors import InputError
 from ..services import accounts
 from ..services.errors import Duplicate, NotFound
@@ -71,7 +71,7 @@ async def create_token(request: Request, session: SessionDep, actor: PageWriter)
 
 
 @router.post("/admin/tokens/{token_id}/revoke", response_class=HTMLResponse)
-async def revoke(token_id: int, request: Request, session: SessionDep, actor: PageWriter):
+async def revoke(token_id: RowId, request: Request, session: SessionDep, actor: PageWriter):
     _admin(actor)
     try:
         accounts.revoke_token(session=session, token_id=token_id, actor=actor.label)

@@ -9,7 +9,7 @@ from fastapi.responses import HTMLResponse
 from sqlmodel import Session
 
 from ..api.v1.measurements import read_upload
-from ..deps import SessionDep, SettingsDep
+from ..deps import RowId, SessionDep, SettingsDep
 from ..errors import InputError
 from ..models import Batch, Compound, Measurement
 from ..plots import figure_json
@@ -91,7 +91,7 @@ _FIGURES: dict[tuple, str] = {}
 
 
 @router.get("/measurements/{measurement_id}", response_class=HTMLResponse)
-def measurement_page(measurement_id: int, request: Request, session: SessionDep, actor: PageActor):
+def measurement_page(measurement_id: RowId, request: Request, session: SessionDep, actor: PageActor):
     m = measurements.get_measurement(session, measurement_id)
     info = measurements.measurement_read(session, m)
     kind = KINDS.get(m.kind)

@@ -2,12 +2,11 @@
 
 from __future__ import annotations
 
-import math
 from datetime import date
 from typing import Annotated, Optional
 from urllib.parse import quote
 
-from fastapi import APIRouter, Depends, Form, Query, Request
+from fastapi import APIRouter, Depends, Form, Request
 from fastapi.responses import HTMLResponse, RedirectResponse, Response
 from pydantic import ValidationError
 from sqlmodel import select
@@ -120,7 +119,7 @@ def compound_list(request: Request, session: SessionDep, actor: PageActor):
     error = None
     try:
         q = views.parse_view(request.query_params)
-        result = views.query_view(session, q)
+        result = views.query_view(session, q, see_embargoed=actor.can_see_embargoed)
     except InputError as exc:
         error, q = str(exc), views.ViewQuery()
         result = views.query_view(session, q)
@@ -136,7 +135,7 @@ def compound_list(request: Request, session: SessionDep, actor: PageActor):
 def compound_export(fmt: str, request: Request, session: SessionDep, actor: PageActor):
     """The current view (all pages) as CSV or XLSX, units in the column headers."""
     q = views.parse_view(request.query_params)
-    frame = views.export_frame(views.query_view(session, q, paged=False),
+    frame = views.export_frame(views.query_view(session, q, paged=False, see_embargoed=actor.can_see_embargoed),
                                hide_structures_of_embargoed=not actor.can_see_embargoed)
     body, media = views.export_bytes(frame, fmt)
     return Response(body, media_type=media,

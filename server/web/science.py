@@ -9,7 +9,7 @@ from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse
 
 from ..analysis.kinetics import rate_summary
-from ..deps import SessionDep
+from ..deps import RowId, SessionDep
 from ..errors import InputError
 from ..ingest.conditions import parse_quantity
 from sqlmodel import select
@@ -126,13 +126,13 @@ async def queue_estimate(code: str, request: Request, session: SessionDep, actor
 
 
 @router.get("/jobs/{job_id}/panel", response_class=HTMLResponse)
-def job_panel(job_id: int, request: Request, session: SessionDep, actor: PageActor):
+def job_panel(job_id: RowId, request: Request, session: SessionDep, actor: PageActor):
     """The job's status; while queued or running it polls itself, so the bar advances without a reload."""
     return render(request, "partials/job.html", _job_context(session, queue.get_job(session, job_id)), actor=actor)
 
 
 @router.post("/jobs/{job_id}/cancel", response_class=HTMLResponse)
-async def cancel_job(job_id: int, request: Request, session: SessionDep, actor: PageWriter):
+async def cancel_job(job_id: RowId, request: Request, session: SessionDep, actor: PageWriter):
     try:
         job = queue.cancel(session, job_id, actor=actor.label)
     except InputError as exc:

@@ -7,7 +7,7 @@ from typing import Any, Optional
 from fastapi import APIRouter
 from pydantic import BaseModel, Field
 
-from ...deps import Admin, SessionDep
+from ...deps import Admin, RowId, SessionDep
 from ...services import accounts
 from .common import AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND
 
@@ -65,5 +65,5 @@ def create_token(data: TokenIn, session: SessionDep, actor: Admin) -> dict[str, 
 
 
 @router.post("/tokens/{token_id}/revoke", responses={**AUTH_ERRORS, **NOT_FOUND})
-def revoke_token(token_id: int, session: SessionDep, actor: Admin) -> dict[str, Any]:
+def revoke_token(token_id: RowId, session: SessionDep, actor: Admin) -> dict[str, Any]:
     return accounts.token_read(accounts.revoke_token(session=session, token_id=token_id, actor=actor.label))

@@ -6,7 +6,7 @@ from typing import Annotated, Any, Optional
 
 from fastapi import APIRouter, Body, Query
 
-from ...deps import Reader, SessionDep, Writer
+from ...deps import Reader, RowId, SessionDep, Writer
 from ...services import barriers, registry
 from .common import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND
 
@@ -38,7 +38,7 @@ def list_barriers(code: str, session: SessionDep, actor: Reader) -> dict[str, An
 
 @router.get("/barriers/{barrier_id}/rate", responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS})
 def barrier_rate(
-    barrier_id: int,
+    barrier_id: RowId,
     session: SessionDep,
     actor: Reader,
     t_K: float = Query(298.15, description="temperature, K"),

@@ -9,7 +9,7 @@ from fastapi.responses import Response as RawResponse
 
 from pydantic import BaseModel, Field
 
-from ...deps import Admin, Reader, SessionDep, SettingsDep, Writer
+from ...deps import Admin, Offset, Reader, SessionDep, SettingsDep, Writer
 from ...models import BatchCreate, BatchRead, CompoundCreate, CompoundPage, CompoundRead, CompoundUpdate
 from ...errors import InputError
 from ...services import registry, verdicts, views
@@ -35,7 +35,7 @@ def list_compounds(
     session: SessionDep,
     actor: Reader,
     limit: int = Query(50, ge=1, le=500),
-    offset: int = Query(0, ge=0),
+    offset: Offset = 0,
     include_archived: bool = False,
 ) -> CompoundPage:
     """Compounds, newest first, with the same filters as the registry table (`scaffold`, `chain_kind`,
@@ -45,10 +45,11 @@ def list_compounds(
     if include_archived:
         q = replace(q, values={**q.values, "archived": True})
     if offset % limit == 0:
-        result = views.query_view(session, replace(q, page=offset // limit + 1, size=limit))
+        result = views.query_view(session, replace(q, page=offset // limit + 1, size=limit),
+                                  see_embargoed=actor.can_see_embargoed)
         rows = result.rows
     else:
-        result = views.query_view(session, q, paged=False)
+        result = views.query_view(session, q, paged=False, see_embargoed=actor.can_see_embargoed)
         rows = result.rows[offset: offset + limit]
     items = [registry.compound_read(session, r.compound, see_structure=actor.can_see_embargoed) for r in rows]
     return CompoundPage(items=items, total=result.total)
@@ -62,7 +63,8 @@ def search_structures(request: Request, session: SessionDep, actor: Reader) -> d
     q = views.parse_view(request.query_params, max_size=1000)
     if not (q.substructure or q.similar):
         raise InputError("give substructure=SMARTS or similar=SMILES", field="substructure")
-    result = views.query_view(session, replace(q, sort="code", descending=True), paged=False)
+    result = views.query_view(session, replace(q, sort="code", descending=True), paged=False,
+                              see_embargoed=actor.can_see_embargoed)
     rows = [r for r in result.rows if actor.can_see_embargoed or not r.compound.embargoed]
     items = [{"code": r.compound.code, **({"similarity": r.similarity} if q.similar else {})} for r in rows]
     return {"items": items, "total": len(items)}

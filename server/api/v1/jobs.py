@@ -8,7 +8,7 @@ from fastapi import APIRouter, Query
 from pydantic import BaseModel, Field
 from sqlmodel import select
 
-from ...deps import Reader, SessionDep, Writer
+from ...deps import Offset, Reader, RowId, SessionDep, Writer
 from ...errors import InputError
 from ...jobs import queue
 from ...models import Compound
@@ -64,7 +64,7 @@ def queue_many(data: BulkEstimateIn, session: SessionDep, actor: Writer) -> dict
 @router.get("/jobs", responses=AUTH_ERRORS)
 def list_jobs(session: SessionDep, actor: Reader, state: Optional[str] = None, kind: Optional[str] = None,
               compound: Optional[str] = None, limit: int = Query(50, ge=1, le=500),
-              offset: int = Query(0, ge=0)) -> dict[str, Any]:
+              offset: Offset = 0) -> dict[str, Any]:
     cid = registry.get_compound(session, compound).id if compound else None
     jobs, total = queue.list_jobs(session, state=state, kind=kind, compound_id=cid, limit=limit, offset=offset)
     return {"items": [_visible_job(j, actor) for j in queue.jobs_read(session, jobs)], "total": total}
@@ -76,11 +76,11 @@ def jobs_summary(session: SessionDep, actor: Reader) -> dict[str, Any]:
 
 
 @router.get("/jobs/{job_id}", responses={**AUTH_ERRORS, **NOT_FOUND})
-def get_job(job_id: int, session: SessionDep, actor: Reader) -> dict[str, Any]:
+def get_job(job_id: RowId, session: SessionDep, actor: Reader) -> dict[str, Any]:
     """`state` is queued, running, done, failed or cancelled; `result` holds the estimate keys when done."""
     return _visible_job(queue.job_read(queue.get_job(session, job_id), session=session), actor)
 
 
 @router.post("/jobs/{job_id}/cancel", responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS})
-def cancel_job(job_id: int, session: SessionDep, actor: Writer) -> dict[str, Any]:
+def cancel_job(job_id: RowId, session: SessionDep, actor: Writer) -> dict[str, Any]:
     return queue.job_read(queue.cancel(session, job_id, actor=actor.label), session=session)

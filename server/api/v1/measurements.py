@@ -8,7 +8,7 @@ from fastapi import APIRouter, File, Form, HTTPException, Query, UploadFile
 from fastapi.responses import JSONResponse, Response
 from pydantic import BaseModel
 
-from ...deps import Reader, SessionDep, SettingsDep, Uploader, Writer
+from ...deps import Offset, Reader, RowId, SessionDep, SettingsDep, Uploader, Writer
 from ...models import RawFile
 from ...services import measurements, registry
 from .common import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND, ErrorOut
@@ -99,7 +99,7 @@ def list_measurements(
     compound: Optional[str] = None,
     kind: Optional[str] = None,
     limit: int = Query(100, ge=1, le=1000),
-    offset: int = Query(0, ge=0),
+    offset: Offset = 0,
 ) -> MeasurementPage:
     rows, total = measurements.list_measurements(session, batch=batch, compound=compound, kind=kind, limit=limit,
                                                  offset=offset)
@@ -107,12 +107,12 @@ def list_measurements(
 
 
 @router.get("/measurements/{measurement_id}", response_model=MeasurementOut, responses={**AUTH_ERRORS, **NOT_FOUND})
-def get_measurement(measurement_id: int, session: SessionDep, actor: Reader):
+def get_measurement(measurement_id: RowId, session: SessionDep, actor: Reader):
     return measurements.measurement_read(session, measurements.get_measurement(session, measurement_id))
 
 
 @router.get("/measurements/{measurement_id}/raw", responses={**AUTH_ERRORS, **NOT_FOUND})
-def get_raw(measurement_id: int, session: SessionDep, actor: Reader) -> Response:
+def get_raw(measurement_id: RowId, session: SessionDep, actor: Reader) -> Response:
     """The stored bytes, exactly as uploaded; the checksum travels in the headers."""
     m = measurements.get_measurement(session, measurement_id)
     raw = session.get(RawFile, m.raw_file_id)
@@ -125,7 +125,7 @@ def get_raw(measurement_id: int, session: SessionDep, actor: Reader) -> Response
 
 @router.post("/measurements/{measurement_id}/archive", response_model=MeasurementOut,
              responses={**AUTH_ERRORS, **NOT_FOUND})
-def archive_measurement(measurement_id: int, session: SessionDep, actor: Writer):
+def archive_measurement(measurement_id: RowId, session: SessionDep, actor: Writer):
     """Archive a measurement (its raw file is kept); the compound's verdict no longer uses it."""
     m = measurements.set_archived(session=session, measurement=measurements.get_measurement(session, measurement_id),
                                   archived=True, actor=actor.label)
@@ -134,7 +134,7 @@ def archive_measurement(measurement_id: int, session: SessionDep, actor: Writer)
 
 @router.post("/measurements/{measurement_id}/restore", response_model=MeasurementOut,
              responses={**AUTH_ERRORS, **NOT_FOUND})
-def restore_measurement(measurement_id: int, session: SessionDep, actor: Writer):
+def restore_measurement(measurement_id: RowId, session: SessionDep, actor: Writer):
     m = measurements.set_archived(session=session, measurement=measurements.get_measurement(session, measurement_id),
                                   archived=False, actor=actor.label)
     return measurements.measurement_read(session, m)

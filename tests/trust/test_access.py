@@ -1,0 +1,246 @@
+"""Access control against the access table in ``server/deps.py``, over every write endpoint of the API.
+
+The write endpoints are read from the app's own OpenAPI schema (every POST/PATCH/PUT/DELETE), so a
+new endpoint is covered the day it appears. For each one:
+
+* anonymous -> 401; read token -> 403; viewer session -> 403 (even with a valid CSRF token);
+* upload token -> 403, except the measurement upload (allowed, for its kinds only);
+* member or admin session without the CSRF header -> 403;
+* positive controls: a write token, a member and an admin session (with CSRF) are not refused
+  (member and write token refused only by the admin-only endpoints), and nothing answers 5xx.
+
+Plus: revoked tokens stop at once; upload tokens never see embargoed structures (API, drawing,
+structure search, HTML page). Runs on SQLite and PostgreSQL through the ``client``/``session`` fixtures.
+"""
+
+from __future__ import annotations
+
+import re
+
+import pytest
+from fastapi.testclient import TestClient
+from sqlmodel import select
+
+from server.ingest.table import to_csv_bytes
+from server.models import ApiToken
+from server.services import accounts
+from server.synth.dsc import dsc_trace
+from tests.factories import bearer, login_as, make_token, make_user, soup
+
+from .conftest import loop_bytes
+
+WRITE_METHODS = ("post", "patch", "put", "delete")
+UPLOAD = ("post", "/api/v1/batches/{batch_code}/measurements")
+# Admin-only (the Admin dependency of deps.py): a member or a write token is refused there too, with
+# require_admin's own message. These are known to be admin-only; others are found by that message.
+ADMIN_ONLY = {("post", "/api/v1/compounds/{code}/verdict/override"), ("post", "/api/v1/compounds/{code}/verdict/clear")}
+ADMIN_DETAIL = "only an admin may do this"
+
+PLAIN = "COc1c(OC)c(OC)c(OC)c(OC)c1OC"  # invented hexa-methoxy benzene (C12H18O6)
+SECRET = "CSc1c(SC)c(SC)c(SC)c(SC)c1SC"  # invented hexa-methylthio benzene, registered under embargo
+
+
+def write_operations(app) -> list[tuple[str, str]]:
+    ops = []
+    for path, item in app.openapi()["paths"].items():
+        for method in item:
+            if method in WRITE_METHODS:
+                ops.append((method, path))
+    return sorted(ops)
+
+
+@pytest.fixture
+def world(app, client, session):
+    """A compound, a batch and a job to aim at, and one client per kind of caller."""
+    writer = bearer(make_token(session, scope="write", name="registrar"))
+    r = client.post("/api/v1/compounds", json={"smiles": PLAIN}, headers=writer)
+    assert r.status_code == 201, r.text
+    code = r.json()["code"]
+    r = client.post(f"/api/v1/compounds/{code}/batches", json={"chemist": "lab"}, headers=writer)
+    assert r.status_code == 201, r.text
+    batch = r.json()["code"]
+    job = client.post(f"/api/v1/compounds/{code}/estimates", json={}, headers=writer)
+    assert job.status_code == 202, job.text
+    m = client.post(f"/api/v1/batches/{batch}/measurements", data={"kind": "pe_loop"},
+                    files={"file": ("m.csv", loop_bytes(77), "text/csv")}, headers=writer)
+    assert m.status_code == 201, m.text
+    # Sacrificial targets for the admin endpoints, so the positive controls revoke nothing we use.
+    make_user(session, name="spare-user", role="viewer")
+    spare, _ = accounts.create_token(session=session, name="spare-pc", scope="read", actor="test")
+
+    sessions = {}
+    for role in ("viewer", "member", "admin"):
+        c = TestClient(app)
+        c.__enter__()
+        sessions[role] = (c, login_as(c, session, role=role, name=f"{role}-x"))
+    yield {
+        "params": {"code": code, "batch_code": batch, "job_id": job.json()["job"], "measurement_id": m.json()["id"],
+                   "username": "spare-user", "token_id": spare.id},
+        "code": code,
+        "batch": batch,
+        "tokens": {scope: bearer(make_token(session, scope=scope, name=f"{scope}-pc")) for scope in
+                   ("read", "upload", "write")},
+        "dsc_only": bearer(make_token(session, scope="upload", name="dsc-pc", kinds=["dsc"])),
+        "sessions": sessions,
+    }
+    for c, _ in sessions.values():
+        c.__exit__(None, None, None)
+
+
+def call(c: TestClient, method: str, path: str, params: dict, headers: dict | None = None, kind: str = "pe_loop"):
+    # /batches/{code}/... names a batch by `code`; everywhere else `code` is a compound.
+    values = {**params, "code": params["batch_code"]} if path.startswith("/api/v1/batches/{code}") else params
+    url = re.sub(r"\{(\w+)\}", lambda m: str(values[m.group(1)]), path)
+    if (method, path) == UPLOAD:
+        return c.request(method.upper(), url, data={"kind": kind},
+                         files={"file": ("loop.csv", loop_bytes(len(url) + hash(kind) % 50), "text/csv")},
+                         headers=headers or {})
+    return c.request(method.upper(), url, json={}, headers=headers or {})
+
+
+def test_schema_lists_the_write_endpoints(app):
+    ops = write_operations(app)
+    # A guard against a matrix that silently iterates over nothing.
+    assert UPLOAD in ops and ADMIN_ONLY <= set(ops) and len(ops) >= 10, ops
+
+
+def test_denied_callers_over_every_write_endpoint(app, client, world):
+    params, tokens, sessions = world["params"], world["tokens"], world["sessions"]
+    anon = TestClient(app)
+    failures = []
+
+    def expect(who, status, r, method, path, detail_has=None):
+        if r.status_code != status or (detail_has and detail_has not in r.text):
+            failures.append(f"{who:>22} {method.upper():5} {path}: {r.status_code} {r.text[:160]}")
+
+    for method, path in write_operations(app):
+        expect("anonymous", 401, call(anon, method, path, params), method, path)
+        expect("read token", 403, call(client, method, path, params, tokens["read"]), method, path)
+        viewer, viewer_csrf = sessions["viewer"]
+        expect("viewer session", 403, call(viewer, method, path, params, {"X-CSRF-Token": viewer_csrf}), method, path)
+        if (method, path) != UPLOAD:
+            expect("upload token", 403, call(client, method, path, params, tokens["upload"]), method, path)
+        for role in ("member", "admin"):
+            c, _ = sessions[role]
+            needs = "CSRF" if role == "admin" else None
+            expect(f"{role} without CSRF", 403, call(c, method, path, params), method, path, needs)
+        # A made-up bearer token is refused before anything else, whatever the cookie says.
+        member, member_csrf = sessions["member"]
+        expect("bogus token + cookie", 401,
+               call(member, method, path, params, {"Authorization": "Bearer not-a-token", "X-CSRF-Token": member_csrf}),
+               method, path)
+    assert not failures, "access table violated:\n" + "\n".join(failures)
+    anon.close()
+
+
+def test_allowed_callers_are_not_refused(app, client, world):
+    """Positive controls for the matrix above: the same requests from callers the table allows.
+
+    An admin session (with CSRF) is refused nowhere. A member session and a write token are refused
+    only by admin-only endpoints, with require_admin's message; the known admin-only ones must be
+    among them. Nothing answers 5xx.
+    """
+    params, tokens, sessions = world["params"], world["tokens"], world["sessions"]
+    failures, admin_only = [], set()
+    for method, path in write_operations(app):
+        callers = [("member session", sessions["member"][0], {"X-CSRF-Token": sessions["member"][1]}),
+                   ("write token", client, tokens["write"]),
+                   ("admin session", sessions["admin"][0], {"X-CSRF-Token": sessions["admin"][1]})]
+        for who, c, headers in callers:
+            r = call(c, method, path, params, headers)
+            if who != "admin session" and r.status_code == 403 and r.json().get("detail") == ADMIN_DETAIL:
+                admin_only.add((method, path, who))
+                continue
+            if r.status_code in (401, 403) or r.status_code >= 500:
+                failures.append(f"{who:>15} {method.upper():5} {path}: {r.status_code} {r.text[:160]}")
+    for method, path in ADMIN_ONLY:
+        for who in ("member session", "write token"):
+            if (method, path, who) not in admin_only:
+                failures.append(f"{who} was not refused by admin-only {method.upper()} {path}")
+    assert not failures, "\n".join(failures)
+    print("\nadmin-only write endpoints:", sorted({f"{m.upper()} {p}" for m, p, _ in admin_only}))
+
+
+def test_upload_token_only_uploads_its_kinds(client, world):
+    params, tokens = world["params"], world["tokens"]
+    ok = call(client, *UPLOAD, params, tokens["upload"])
+    assert ok.status_code == 201, ok.text
+
+    refused = call(client, *UPLOAD, params, world["dsc_only"], kind="pe_loop")
+    assert refused.status_code == 403 and "dsc" in refused.json()["detail"], refused.text
+    # The same token may upload what it is for (a DSC melting peak, server.synth.dsc).
+    trace = dsc_trace([{"kind": "melting", "t_K": 400.0, "dh_J_g": 80.0, "width_K": 1.5}], t_start_K=330,
+                      t_end_K=450, rate_K_min=10.0, mass_mg=5.0)
+    r = client.post(f"/api/v1/batches/{world['batch']}/measurements", data={"kind": "dsc", "mass": "5 mg"},
+                    files={"file": ("dsc.csv", to_csv_bytes(trace), "text/csv")}, headers=world["dsc_only"])
+    assert r.status_code == 201, r.text
+
+
+def test_revoked_token_is_refused_at_once(client, session):
+    secret = make_token(session, scope="write", name="doomed-pc")
+    assert client.get("/api/v1/compounds", headers=bearer(secret)).status_code == 200
+    assert client.post("/api/v1/compounds", json={"smiles": PLAIN}, headers=bearer(secret)).status_code == 201
+    row = session.exec(select(ApiToken).where(ApiToken.name == "doomed-pc")).one()
+    accounts.revoke_token(session=session, token_id=row.id, actor="test")
+    # No cache, no grace period: the very next request with it is refused, reads and writes alike.
+    assert client.get("/api/v1/compounds", headers=bearer(secret)).status_code == 401
+    r = client.post("/api/v1/compounds", json={"smiles": SECRET}, headers=bearer(secret))
+    assert r.status_code == 401 and "revoked" in r.json()["detail"]
+
+
+@pytest.fixture
+def embargoed(client, session):
+    writer = bearer(make_token(session, scope="write", name="registrar2"))
+    r = client.post("/api/v1/compounds", json={"smiles": SECRET, "embargoed": True}, headers=writer)
+    assert r.status_code == 201, r.text
+    return r.json()
+
+
+def test_upload_token_cannot_read_embargoed_structures(client, session, embargoed):
+    code = embargoed["code"]
+    up = bearer(make_token(session, scope="upload", name="instrument-pc"))
+    reader = bearer(make_token(session, scope="read", name="reader-pc"))
+
+    body = client.get(f"/api/v1/compounds/{code}", headers=up).json()
+    assert {k: body[k] for k in ("smiles", "inchi", "inchikey", "formula")} == dict.fromkeys(
+        ("smiles", "inchi", "inchikey", "formula"))
+    assert body["mw"] is None and body["exact_mass"] is None and body["side_chains"] == []
+    listed = {c["code"]: c for c in client.get("/api/v1/compounds", headers=up).json()["items"]}
+    assert listed[code]["smiles"] is None and listed[code]["inchikey"] is None
+    assert client.get(f"/api/v1/compounds/{code}/structure.svg", headers=up).status_code == 404
+    assert client.get(f"/api/v1/compounds/{code}/structure.svg?thumbnail=true", headers=up).status_code == 404
+
+    # A structure search must not answer "yes, an embargoed compound has this fragment".
+    for query in ({"substructure": "CSc1ccccc1"}, {"similar": SECRET, "threshold": "0.3"}):
+        found = client.get("/api/v1/search", params=query, headers=up)
+        assert found.status_code == 200, found.text
+        assert code not in {i["code"] for i in found.json()["items"]}
+
+    # The HTML page, reached with the same token, withholds the structure too.
+    page = soup(client.get(f"/compounds/{code}", headers=up).text)
+    assert SECRET not in page.get_text() and embargoed["inchikey"] not in page.get_text()
+
+    # Positive control: a read token sees it all (so the checks above can fail).
+    seen = client.get(f"/api/v1/compounds/{code}", headers=reader).json()
+    assert seen["smiles"] and seen["inchikey"] == embargoed["inchikey"]
+    assert client.get(f"/api/v1/compounds/{code}/structure.svg", headers=reader).status_code == 200
+    hits = client.get("/api/v1/search", params={"substructure": "CSc1ccccc1"}, headers=reader).json()
+    assert code in {i["code"] for i in hits["items"]}
+
+
+@pytest.mark.parametrize("where", ["/api/v1/compounds", "/compounds", "/compounds/export.csv"])
+def test_upload_token_cannot_probe_embargoed_structures_through_the_list_filter(client, session, embargoed, where):
+    """The compound list takes the same `substructure`/`similar` filters as /search; it must not be an oracle."""
+    code = embargoed["code"]
+    up = bearer(make_token(session, scope="upload", name="instrument-pc2"))
+    r = client.get(where, params={"substructure": "CSc1ccccc1"}, headers=up)
+    assert r.status_code == 200, r.text
+    if where.startswith("/api/"):
+        found = code in {c["code"] for c in r.json()["items"]}
+    elif where.endswith(".csv"):
+        found = code in r.text
+    else:
+        found = code in {a.get_text(strip=True) for a in soup(r.text).select("table a")}
+    # Control: the same filter with a fragment the compound lacks must not list it either way.
+    assert code not in client.get(where, params={"substructure": "c1ccncc1"}, headers=up).text
+    assert not found, f"{where}: an upload token learns that embargoed {code} contains the fragment"

@@ -29,6 +29,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import scipy
 import scipy.constants as sc
+from ..chem.identity import quiet_rdkit
 from rdkit import Chem, rdBase
 from rdkit import __version__ as rdkit_version
 from rdkit.Chem import AllChem
@@ -564,7 +565,7 @@ def estimate_barrier(
     params.randomSeed = int(seed)
     params.pruneRmsThresh = 0.5  # rigid parents give one conformer
     flags: list[Flag] = []
-    with rdBase.BlockLogs():  # UFF typer warnings for Se etc. are not the user's business
+    with quiet_rdkit():  # UFF typer warnings for Se etc. are not the user's business
         conf_ids = list(AllChem.EmbedMultipleConfs(mol_h, numConfs=int(conformers), params=params))
         if not conf_ids:
             params.useRandomCoords = True

@@ -26,6 +26,8 @@ from __future__ import annotations
 import re
 from collections import Counter
 from collections.abc import Iterator
+import logging
+import threading
 from contextlib import contextmanager
 from dataclasses import asdict, dataclass
 
@@ -83,15 +85,73 @@ class Identity:
 # --------------------------------------------------------------------------- parsing
 
 
+# RDKit's own log redirection (BlockLogs, CaptureErrorLog) is process-global C++ state: two threads
+# entering and leaving it out of order leave the logger pointing at a freed stream, and the next RDKit
+# message crashes the process (seen as a segmentation fault with requests served from a thread pool).
+# So RDKit logs once, for the whole process, into Python's logging module, and each thread collects
+# only its own messages there. Nothing is printed to stderr.
+_LOG_SETUP_LOCK = threading.Lock()
+_LOG_READY = False
+_LOCAL = threading.local()
+_log = logging.getLogger("remanence.rdkit")
+
+
+class _ThreadCapture(logging.Handler):
+    def emit(self, record: logging.LogRecord) -> None:
+        stack = getattr(_LOCAL, "stack", None)
+        message = record.getMessage()
+        if stack:
+            stack[-1].append(message)
+        else:
+            _log.debug("rdkit: %s", message)
+
+
+def _route_rdkit_logs() -> None:
+    global _LOG_READY
+    if _LOG_READY:
+        return
+    with _LOG_SETUP_LOCK:
+        if not _LOG_READY:
+            rdBase.LogToPythonLogger()
+            logger = logging.getLogger("rdkit")
+            logger.handlers[:] = [_ThreadCapture()]
+            logger.setLevel(logging.DEBUG)
+            logger.propagate = False
+            _LOG_READY = True
+
+
+class RdkitMessages:
+    """What RDKit logged in this thread during a ``captured_rdkit_log`` block."""
+
+    def __init__(self) -> None:
+        self.lines: list[str] = []
+
+    @property
+    def messages(self) -> str:
+        return "\n".join(self.lines)
+
+
 @contextmanager
-def captured_rdkit_log() -> Iterator[rdBase.CaptureErrorLog]:
-    """Capture RDKit's error log and keep its warnings off the server's stderr.
+def captured_rdkit_log() -> Iterator[RdkitMessages]:
+    """Collect RDKit's messages from this thread (thread-safe; nothing goes to stderr).
 
     The errors are turned into ChemistryError messages by the callers, so nothing is lost.
     """
-    with rdBase.BlockLogs():
-        with rdBase.CaptureErrorLog() as capture:
-            yield capture
+    _route_rdkit_logs()
+    capture = RdkitMessages()
+    stack = _LOCAL.__dict__.setdefault("stack", [])
+    stack.append(capture.lines)
+    try:
+        yield capture
+    finally:
+        stack.pop()
+
+
+@contextmanager
+def quiet_rdkit() -> Iterator[None]:
+    """Keep RDKit's warnings off stderr for a block (thread-safe)."""
+    with captured_rdkit_log():
+        yield
 
 
 def _rdkit_messages(captured: str) -> list[str]:

@@ -10,6 +10,7 @@ screen), similarities from RDKit's legacy Morgan implementation
 from __future__ import annotations
 
 import pytest
+from server.chem.identity import quiet_rdkit
 from rdkit import Chem, DataStructs, rdBase
 from rdkit.Chem import rdMolDescriptors
 
@@ -91,7 +92,7 @@ def brute_substructure(query: Chem.Mol, ids=None) -> list[int]:
 
 
 def legacy_fp(smiles: str):
-    with rdBase.BlockLogs():  # the legacy call logs a deprecation notice
+    with quiet_rdkit():  # the legacy call logs a deprecation notice
         return rdMolDescriptors.GetMorganFingerprintAsBitVect(Chem.MolFromSmiles(smiles), 2, nBits=512)
 
 

@@ -15,6 +15,7 @@ import shutil
 import pytest
 import sqlalchemy as sa
 from fastapi.testclient import TestClient
+from server.chem.identity import quiet_rdkit
 from rdkit import Chem, DataStructs, rdBase
 from rdkit.Chem import rdMolDescriptors
 from sqlmodel import Session, select
@@ -36,7 +37,7 @@ SIMILAR = [(MOLECULES[1], 0.5), (MOLECULES[8], 0.3), ("COc1ccccc1", 0.25), ("c1c
 
 
 def legacy_fp(smiles: str):
-    with rdBase.BlockLogs():  # the legacy call logs a deprecation notice
+    with quiet_rdkit():  # the legacy call logs a deprecation notice
         return rdMolDescriptors.GetMorganFingerprintAsBitVect(Chem.MolFromSmiles(smiles), 2, nBits=512)
 
 

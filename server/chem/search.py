@@ -208,10 +208,10 @@ def _query_pattern_words(query: Chem.Mol) -> np.ndarray:
 class StructureIndex:
     """In-memory structures of one registry, for substructure and similarity search.
 
-    Each entry keeps the molecule as an RDKit binary pickle (rebuilt only for the
-    candidates that pass the screen, which keeps 10^5 molecules in a few hundred MB), a
-    2048-bit pattern fingerprint (as a row of a numpy array for the screen) and the
-    Morgan bit vector. Thread-safe: one lock around every read and write.
+    Each entry keeps the parsed RDKit molecule (so a confirmed hit costs one
+    ``HasSubstructMatch`` and no re-parsing; see bench/bench_search.py for what this buys and
+    costs in memory), a 2048-bit pattern fingerprint (as a row of a numpy array for the
+    screen) and the Morgan bit vector. Thread-safe: one lock around every read and write.
     """
 
     _WORDS = PATTERN_FP_SIZE // 64
@@ -220,7 +220,7 @@ class StructureIndex:
         self._lock = threading.RLock()
         self._ids: list[int] = []
         self._pos: dict[int, int] = {}
-        self._pickles: list[bytes] = []
+        self._mols: list[Chem.Mol] = []
         self._morgan: list[DataStructs.ExplicitBitVect] = []
         self._pattern = np.zeros((0, self._WORDS), dtype=np.uint64)
 
@@ -251,7 +251,6 @@ class StructureIndex:
         mol = _smiles(smiles)
         if mol is None:
             raise ChemistryError(f"compound {compound_id}: stored SMILES '{smiles}' cannot be read", field="smiles")
-        pickle = mol.ToBinary()
         morgan = fingerprint(mol)
         words = _pattern_words(mol)
         with self._lock:
@@ -264,10 +263,10 @@ class StructureIndex:
                     self._pattern = grown
                 self._pos[compound_id] = at
                 self._ids.append(compound_id)
-                self._pickles.append(pickle)
+                self._mols.append(mol)
                 self._morgan.append(morgan)
             else:
-                self._pickles[at] = pickle
+                self._mols[at] = mol
                 self._morgan[at] = morgan
             self._pattern[at] = words
 
@@ -285,12 +284,12 @@ class StructureIndex:
             if at != last:
                 moved = self._ids[last]
                 self._ids[at] = moved
-                self._pickles[at] = self._pickles[last]
+                self._mols[at] = self._mols[last]
                 self._morgan[at] = self._morgan[last]
                 self._pattern[at] = self._pattern[last]
                 self._pos[moved] = at
             self._ids.pop()
-            self._pickles.pop()
+            self._mols.pop()
             self._morgan.pop()
             self._pattern[last] = 0
 
@@ -316,7 +315,7 @@ class StructureIndex:
             hits = [
                 self._ids[at]
                 for at in passed
-                if Chem.Mol(self._pickles[at]).HasSubstructMatch(query, useChirality=False)
+                if self._mols[at].HasSubstructMatch(query, useChirality=False)
             ]
         return sorted(hits)
 

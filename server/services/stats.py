@@ -55,6 +55,7 @@ def refresh(session: Session, compound: Compound) -> CompoundStats:
     ms = session.exec(
         select(Measurement).join(Batch, Batch.id == Measurement.batch_id)
         .where(Batch.compound_id == cid, Measurement.archived == False)  # noqa: E712
+        .order_by(Measurement.id)
     ).all()
     stats.n_measurements = len(ms)
     kinds = sorted({m.kind for m in ms})

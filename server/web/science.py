@@ -17,12 +17,12 @@ from sqlmodel import select
 from ..analysis.calibration import calibrate
 from ..deps import is_htmx
 from ..jobs import queue
-from ..models import Compound, Scaffold
+from ..models import Compound
 from ..plots import figure_json
 from ..plots.kinetics import calibration_figure
 from ..services import barriers, estimates, registry, verdicts
 from ..services.errors import NotFound
-from .pages import PageActor, PageForbidden, PageWriter
+from .pages import PageActor, PageForbidden, PageWriter, _scaffolds
 from .render import redirect, render
 
 router = APIRouter(include_in_schema=False)
@@ -145,7 +145,7 @@ async def cancel_job(job_id: RowId, request: Request, session: SessionDep, actor
 @router.get("/queue", response_class=HTMLResponse)
 def queue_page(request: Request, session: SessionDep, actor: PageActor):
     return render(request, "pages/queue.html",
-                  {"summary": estimates.queue_summary(session), "scaffolds": _all_scaffolds(session), "error": None},
+                  {"summary": estimates.queue_summary(session), "scaffolds": _scaffolds(session), "error": None},
                   partial="partials/queue_body.html", actor=actor)
 
 
@@ -168,13 +168,9 @@ async def queue_many(request: Request, session: SessionDep, actor: PageWriter):
                                   truncate_side_chains=form.get("full_chains") != "on", actor=actor.label)
     except (InputError, NotFound) as exc:
         return render(request, "pages/queue.html",
-                      {"summary": estimates.queue_summary(session), "scaffolds": _all_scaffolds(session),
+                      {"summary": estimates.queue_summary(session), "scaffolds": _scaffolds(session),
                        "error": str(exc)}, status_code=422, actor=actor)
     return redirect("/queue", request)
-
-
-def _all_scaffolds(session):  # noqa: ANN001
-    return list(session.exec(select(Scaffold).order_by(Scaffold.code)).all())
 
 
 @router.get("/calibration", response_class=HTMLResponse)

@@ -26,6 +26,7 @@ from .web import format as format_filters
 from .web import measurements as measurement_pages
 from .web import pages
 from .web import admin as admin_pages
+from .web import auth as auth_pages
 from .web import campaign as campaign_pages
 from .web import science as science_pages
 from .web.render import render
@@ -156,6 +157,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     from .api.v1 import router as api_router
 
     app.include_router(api_router)
+    app.include_router(auth_pages.router)
     app.include_router(pages.router)
     app.include_router(measurement_pages.router)
     app.include_router(science_pages.router)

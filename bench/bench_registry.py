@@ -41,7 +41,7 @@ from sqlmodel import Session
 
 from server.analysis.verdict import LABELS as VERDICT_LABELS
 from server.db import make_engine
-from server.deps import Actor
+from server.access import Actor
 from server.services import views
 from server.settings import PROJECT_ROOT
 from server.web import format as format_filters
@@ -135,13 +135,13 @@ def direct_renderer(database_url: str):
     def render() -> str:
         with Session(engine) as session:
             q = views.parse_view(QUERY)
-            result = views.query_view(session, q)
+            result = views.query_view(session, q, actor=actor)
             return template.render(result=result, q=q, error=None, sorts=views.SORTS, verdict_labels=VERDICT_LABELS,
                                    link=q.link(), actor=actor, csrf_token="")
 
     def query_only() -> views.ViewResult:
         with Session(engine) as session:
-            return views.query_view(session, views.parse_view(QUERY))
+            return views.query_view(session, views.parse_view(QUERY), actor=actor)
 
     fixed = query_only()
 

@@ -20,15 +20,17 @@ from starlette.middleware.sessions import SessionMiddleware
 from . import __version__
 from .db import make_engine
 from .errors import InputError
-from .services.errors import Duplicate, Forbidden, NotFound
+from .access import NotLoggedIn, Refused, may_see_structure
+from .services.errors import Duplicate, Forbidden, NotFound, TooLarge
 from .settings import PROJECT_ROOT, Settings, get_settings
 from .web import format as format_filters
-from .web import measurements as measurement_pages
-from .web import pages
 from .web import admin as admin_pages
 from .web import auth as auth_pages
+from .web import batches as batch_pages
 from .web import campaign as campaign_pages
-from .web import science as science_pages
+from .web import compounds as compound_pages
+from .web import measurements as measurement_pages
+from .web import scaffolds as scaffold_pages
 from .web.render import render
 
 PLOTLY_JS = Path(plotly.__file__).parent / "package_data" / "plotly.min.js"
@@ -79,12 +81,16 @@ def _install_error_handlers(app: FastAPI) -> None:
     async def db_down(request: Request, exc: OperationalError) -> Response:
         return _error(request, 503, "the database is busy or unreachable; try again in a moment")
 
-    @app.exception_handler(pages.LoginRequired)
-    async def login_required(request: Request, exc: pages.LoginRequired) -> Response:
+    @app.exception_handler(TooLarge)
+    async def too_large(request: Request, exc: TooLarge) -> Response:
+        return _error(request, 413, str(exc))
+
+    @app.exception_handler(NotLoggedIn)
+    async def login_required(request: Request, exc: NotLoggedIn) -> Response:
         return RedirectResponse(f"/login?next={quote(exc.next_url)}", status_code=303)
 
-    @app.exception_handler(pages.PageForbidden)
-    async def page_forbidden(request: Request, exc: pages.PageForbidden) -> Response:
+    @app.exception_handler(Refused)
+    async def page_forbidden(request: Request, exc: Refused) -> Response:
         return _error(request, 403, exc.message)
 
     @app.exception_handler(StarletteHTTPException)
@@ -131,7 +137,8 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.state.settings = settings
     app.state.engine = engine
     templates = Jinja2Templates(directory=str(PROJECT_ROOT / "templates"))
-    templates.env.globals.update(version=__version__, plotly_version=PLOTLY_VERSION)
+    templates.env.globals.update(version=__version__, plotly_version=PLOTLY_VERSION,
+                                 may_see_structure=may_see_structure)
     format_filters.install(templates.env)
     app.state.templates = templates
 
@@ -157,12 +164,9 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     from .api.v1 import router as api_router
 
     app.include_router(api_router)
-    app.include_router(auth_pages.router)
-    app.include_router(pages.router)
-    app.include_router(measurement_pages.router)
-    app.include_router(science_pages.router)
-    app.include_router(campaign_pages.router)
-    app.include_router(admin_pages.router)
+    for pages in (auth_pages, compound_pages, batch_pages, scaffold_pages, measurement_pages, campaign_pages,
+                  admin_pages):
+        app.include_router(pages.router)
     app.mount("/static", StaticFiles(directory=str(PROJECT_ROOT / "static")), name="static")
 
     @app.get(f"/assets/plotly-{PLOTLY_VERSION}.min.js", include_in_schema=False)

@@ -1,26 +1,20 @@
-"""FastAPI dependencies as ``Annotated`` aliases: database session, the calling actor, scopes.
+"""FastAPI dependencies as ``Annotated`` aliases: database session, the calling actor, what it needs.
 
-Who may do what (one table, enforced here and nowhere else):
-
-| actor                  | read | see embargoed structures | upload measurements | other writes | admin |
-|------------------------|------|--------------------------|---------------------|--------------|-------|
-| user, role viewer      | yes  | yes                      | no                  | no           | no    |
-| user, role member      | yes  | yes                      | yes                 | yes          | no    |
-| user, role admin       | yes  | yes                      | yes                 | yes          | yes   |
-| token, scope read      | yes  | yes                      | no                  | no           | no    |
-| token, scope upload    | yes  | no                       | yes (its kinds)     | no           | no    |
-| token, scope write     | yes  | yes                      | yes                 | yes          | no    |
+Who may do what is decided in ``server/access.py`` (the access table is there); the dependencies
+here find the caller (token or session cookie), check CSRF, and turn the access module's answer
+into a 401/403 for the API or a login redirect/403 page for the web.
 """
 
 from __future__ import annotations
 
 from collections.abc import Iterator
-from dataclasses import dataclass
 from typing import Annotated, Optional
 
 from fastapi import Depends, HTTPException, Path, Query, Request
 from sqlmodel import Session, select
 
+from . import access
+from .access import Actor
 from .models import ApiToken, User, utcnow
 from .security import hash_token, same_token
 from .settings import Settings
@@ -39,43 +33,6 @@ def get_session(request: Request) -> Iterator[Session]:
 
 
 SessionDep = Annotated[Session, Depends(get_session)]
-
-
-@dataclass(frozen=True)
-class Actor:
-    kind: str  # "user" | "token"
-    name: str
-    role: Optional[str] = None
-    scope: Optional[str] = None
-    kinds: Optional[tuple[str, ...]] = None
-    user_id: Optional[int] = None
-    token_id: Optional[int] = None
-    via_cookie: bool = False
-
-    @property
-    def label(self) -> str:
-        if self.kind == "user":
-            return f"user:{self.name}"
-        return f"token:{self.token_id} ({self.name})"
-
-    @property
-    def can_write(self) -> bool:
-        return self.role in ("admin", "member") or self.scope == "write"
-
-    @property
-    def is_admin(self) -> bool:
-        return self.role == "admin"
-
-    @property
-    def can_see_embargoed(self) -> bool:
-        return self.kind == "user" or self.scope in ("read", "write")
-
-    def can_upload(self, kind: str | None = None) -> bool:
-        if self.can_write:
-            return True
-        if self.scope == "upload":
-            return self.kinds is None or kind is None or kind in self.kinds
-        return False
 
 
 def _token_actor(session: Session, raw: str) -> Actor:
@@ -100,6 +57,12 @@ def _token_actor(session: Session, raw: str) -> Actor:
 
 def optional_actor(request: Request, session: SessionDep) -> Optional[Actor]:
     """The caller: a bearer token, else the logged-in user of the session cookie, else None."""
+    actor = _find_actor(request, session)
+    request.state.actor = actor
+    return actor
+
+
+def _find_actor(request: Request, session: Session) -> Optional[Actor]:
     auth = request.headers.get("authorization", "")
     if auth:
         scheme, _, raw = auth.partition(" ")
@@ -119,6 +82,19 @@ def optional_actor(request: Request, session: SessionDep) -> Optional[Actor]:
 OptionalActor = Annotated[Optional[Actor], Depends(optional_actor)]
 
 
+def current_actor(request: Request) -> Optional[Actor]:
+    """The caller, for code outside a route's dependencies (error pages): the actor the route
+    resolved, else found now from the request's token or cookie (a bad token counts as nobody)."""
+    if "actor" in request.state._state:
+        return request.state.actor
+    try:
+        with Session(request.app.state.engine) as session:
+            return optional_actor(request, session)
+    except HTTPException:
+        request.state.actor = None
+        return None
+
+
 async def check_csrf(request: Request, actor: Optional[Actor]) -> None:
     """Unsafe requests authenticated by the session cookie must echo the session's CSRF token,
     in the ``X-CSRF-Token`` header (htmx, scripts) or the ``csrf_token`` form field (plain forms)."""
@@ -135,33 +111,29 @@ async def check_csrf(request: Request, actor: Optional[Actor]) -> None:
 
 
 def require_reader(request: Request, actor: OptionalActor) -> Actor:
-    if actor is None:
+    if not access.allows(actor, access.READ):
         raise HTTPException(401, "log in or send a token", headers={"WWW-Authenticate": "Bearer"})
     return actor
 
 
-async def require_writer(request: Request, actor: OptionalActor) -> Actor:
+async def _require(request: Request, actor: Optional[Actor], need: str) -> Actor:
     actor = require_reader(request, actor)
-    if not actor.can_write:
-        raise HTTPException(403, f"{actor.label} may not change the registry (needs a member account or a write token)")
+    if not access.allows(actor, need):
+        raise HTTPException(403, access.API_REFUSALS[need].format(label=actor.label))
     await check_csrf(request, actor)
     return actor
+
+
+async def require_writer(request: Request, actor: OptionalActor) -> Actor:
+    return await _require(request, actor, access.WRITE)
 
 
 async def require_uploader(request: Request, actor: OptionalActor) -> Actor:
-    actor = require_reader(request, actor)
-    if not actor.can_upload():
-        raise HTTPException(403, f"{actor.label} may not upload measurements")
-    await check_csrf(request, actor)
-    return actor
+    return await _require(request, actor, access.UPLOAD)
 
 
 async def require_admin(request: Request, actor: OptionalActor) -> Actor:
-    actor = require_reader(request, actor)
-    if not actor.is_admin:
-        raise HTTPException(403, "only an admin may do this")
-    await check_csrf(request, actor)
-    return actor
+    return await _require(request, actor, access.ADMIN)
 
 
 Reader = Annotated[Actor, Depends(require_reader)]
@@ -170,11 +142,35 @@ Uploader = Annotated[Actor, Depends(require_uploader)]
 Admin = Annotated[Actor, Depends(require_admin)]
 
 
-def is_htmx(request: Request) -> bool:
-    return request.headers.get("hx-request") == "true" and request.headers.get("hx-boosted") != "true"
+# --- pages: the same decisions, answered for people ---------------------------------------------
 
 
-HtmxRequest = Annotated[bool, Depends(is_htmx)]
+def page_actor(request: Request, actor: OptionalActor) -> Actor:
+    """A logged-in caller (or a token) for a page; nobody -> the login form, then back here."""
+    if not access.allows(actor, access.READ):
+        raise access.NotLoggedIn(request.url.path + (f"?{request.url.query}" if request.url.query else ""))
+    return actor
+
+
+async def _page_require(request: Request, actor: Actor, need: str) -> Actor:
+    if not access.allows(actor, need):
+        raise access.Refused(access.PAGE_REFUSALS[need])
+    await check_csrf(request, actor)
+    return actor
+
+
+async def page_writer(request: Request, actor: Annotated[Actor, Depends(page_actor)]) -> Actor:
+    return await _page_require(request, actor, access.WRITE)
+
+
+async def page_admin(request: Request, actor: Annotated[Actor, Depends(page_actor)]) -> Actor:
+    """An admin, for a page (GET) or a form post (POST, with its CSRF token)."""
+    return await _page_require(request, actor, access.ADMIN)
+
+
+PageActor = Annotated[Actor, Depends(page_actor)]
+PageWriter = Annotated[Actor, Depends(page_writer)]
+PageAdmin = Annotated[Actor, Depends(page_admin)]
 
 
 # Row ids and offsets fit a 32-bit signed integer on every back end; larger numbers are refused as

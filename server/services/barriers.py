@@ -8,9 +8,12 @@ from pydantic import BaseModel, Field
 from sqlmodel import Session, select
 
 from ..analysis import kinetics
+from ..analysis.calibration import calibrate
 from ..analysis.common import jsonable
 from ..errors import InputError
 from ..models import BarrierEstimate, Compound, Measurement
+from ..plots import figure_json
+from ..plots.kinetics import calibration_figure
 from . import audit, stats
 from .stats import MEASURED_METHODS
 from .errors import NotFound
@@ -165,3 +168,33 @@ def calibrated_estimates(session: Session, cal) -> list[dict[str, Any]]:  # noqa
             item["calibrated"], item["lower"], item["upper"] = cal.predict(r.dg_kcal_mol)
         out.append(item)
     return out
+
+
+def barrier_rows(session: Session, compound: Compound, *, t_K: float,
+                 frequency_Hz: Optional[float]) -> list[dict[str, Any]]:
+    """Each barrier of ``compound`` with its inversion rate at ``t_K`` (Eyring equation, see
+    ``analysis.kinetics.rate_summary``) and whether it keeps up with ``frequency_Hz``."""
+    rows = []
+    for b in list_barriers(session, compound):
+        row = barrier_read(session, b)
+        row["rate"] = (kinetics.rate_summary(b.dg_kcal_mol, t_K, frequency_Hz).to_dict()
+                       if b.dg_kcal_mol is not None else None)
+        rows.append(row)
+    return rows
+
+
+def current_calibration(session: Session):  # noqa: ANN201 - a Calibration or None
+    """The current calibration (measured = a + b computed), or None with fewer than three pairs."""
+    pairs = calibration_pairs(session)
+    cal = calibrate([p["measured"] for p in pairs], [p["computed"] for p in pairs])
+    return cal if cal.ok else None
+
+
+def calibration_view(session: Session) -> dict[str, Any]:
+    """The calibration page's data: pairs, the fit with its prediction band (as a figure) and the
+    calibrated estimates of compounds without a measured barrier."""
+    pairs = calibration_pairs(session)
+    codes = [p["code"] for p in pairs]
+    cal = calibrate([p["measured"] for p in pairs], [p["computed"] for p in pairs], labels=codes)
+    fig = figure_json(calibration_figure(cal, codes)) if pairs else None
+    return {"cal": cal, "pairs": pairs, "figure": fig, "predictions": calibrated_estimates(session, cal)}

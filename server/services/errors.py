@@ -19,3 +19,7 @@ class Duplicate(RemanenceError):
 
 class Forbidden(RemanenceError):
     """403 raised from a service (e.g. an upload token limited to other kinds)."""
+
+
+class TooLarge(RemanenceError):
+    """413: the request's file is larger than the configured limit (the message names the limit)."""

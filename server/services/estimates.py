@@ -24,6 +24,7 @@ from ..errors import AnalysisError, ChemistryError, InputError
 from ..jobs import queue
 from ..models import JOB_STATES, BarrierEstimate, Compound, Job
 from . import audit, stats
+from .registry import get_scaffold
 
 KIND = "xtb_estimate"
 METHOD = "gfn2-xtb"
@@ -150,6 +151,14 @@ def store_estimate(session: Session, *, job: Job, estimate_dict: dict[str, Any])
                  code=str(row.id), compound_id=job.compound_id, after=audit.snapshot(row))
     stats.refresh(session, session.get(Compound, job.compound_id))
     return row
+
+
+def live_compounds_of_scaffold(session: Session, scaffold_code: str) -> list[Compound]:
+    """Every compound of a scaffold that is not archived, oldest first (a bulk estimate's targets)."""
+    sc = get_scaffold(session, scaffold_code)
+    return list(session.exec(select(Compound).where(Compound.scaffold_id == sc.id,
+                                                     Compound.archived == False)  # noqa: E712
+                              .order_by(Compound.number)).all())
 
 
 def estimates_of(session: Session, compound: Compound) -> list[BarrierEstimate]:

@@ -8,6 +8,7 @@ from typing import Any, Callable, Optional
 
 from sqlmodel import Session, select
 
+from ..access import Actor
 from ..analysis.verdict import LABELS as VERDICT_LABELS
 from ..errors import InputError
 from ..models import Batch, Measurement
@@ -90,15 +91,16 @@ def _loops_at(session: Session, compound_ids: list[int], t_K: float) -> dict[int
     return {cid: r for cid, (_, r) in best.items()}
 
 
-def explore(session: Session, view: ViewQuery, *, x: str, y: str, group: str = "verdict",
+def explore(session: Session, view: ViewQuery, *, actor: Optional[Actor], x: str, y: str, group: str = "verdict",
             t_K: Optional[float] = None) -> list[Point]:
-    """Points (x, y) for every compound in the view that has both values."""
+    """Points (x, y) for every compound in the view that has both values and whose structure
+    ``actor`` may see (the axes are derived from structures)."""
     for name, key in (("x", x), ("y", y)):
         if key not in PROPERTIES:
             raise InputError(f"unknown property {key!r}; use one of {', '.join(PROPERTIES)}", field=name)
     if group not in GROUPINGS:
         raise InputError(f"group by one of {', '.join(GROUPINGS)}", field="group")
-    rows = query_view(session, view, paged=False).rows
+    rows = query_view(session, view, actor=actor, paged=False, structures_only=True).rows
     at: dict[int, dict[str, Any]] = {}
     if t_K is not None and (PROPERTIES[x].temperature_dependent or PROPERTIES[y].temperature_dependent):
         at = _loops_at(session, [r.compound.id for r in rows], t_K)
@@ -145,10 +147,11 @@ class OutcomeMap:
     by: str
 
 
-def outcome_map(session: Session, view: ViewQuery, *, by: str = "scaffold") -> OutcomeMap:
+def outcome_map(session: Session, view: ViewQuery, *, actor: Optional[Actor], by: str = "scaffold") -> OutcomeMap:
+    """Verdict counts per side chain and scaffold (or bridge), over compounds ``actor`` may see."""
     if by not in ("scaffold", "bridge"):
         raise InputError("columns are by scaffold or by bridge", field="by")
-    rows = query_view(session, view, paged=False).rows
+    rows = query_view(session, view, actor=actor, paged=False, structures_only=True).rows
     counts: dict[tuple, Counter] = defaultdict(Counter)
     for r in rows:
         if r.stats is None or not r.stats.chain_kind:

@@ -20,8 +20,9 @@ from ..analysis.common import jsonable
 from ..errors import InputError
 from ..ingest.conditions import Conditions, parse_conditions
 from ..models import Batch, Compound, Measurement, RawFile, utcnow
+from ..plots import figure_json
 from . import audit, barriers, stats, verdicts
-from .errors import Forbidden, NotFound
+from .errors import Forbidden, NotFound, TooLarge
 from .kinds import KINDS, Context, Kind
 
 FORM_FIELDS = ("area", "thickness", "mass", "rate", "temperature", "frequency", "instrument", "operator", "notes", "endo")
@@ -307,3 +308,32 @@ def set_archived(*, session: Session, measurement: Measurement, archived: bool, 
     session.commit()
     session.refresh(measurement)
     return measurement
+
+
+def read_upload(file: Any, limit: int) -> bytes:
+    """The uploaded bytes of ``file`` (an upload with a ``.file``), refusing more than ``limit``
+    bytes without reading further."""
+    data = file.file.read(limit + 1)
+    if len(data) > limit:
+        raise TooLarge(f"the file is larger than the limit of {limit / 1048576:.3g} MiB (REMANENCE_MAX_UPLOAD_MB)")
+    return data
+
+
+def measurement_figure(session: Session, m: Measurement) -> Optional[str]:
+    """The measurement's figure as Plotly JSON (re-analysed from its raw file), cached per file,
+    analysis version and conditions; None for kinds without a figure."""
+    kind = KINDS.get(m.kind)
+    if kind is None or kind.figure is None:
+        return None
+    key = (m.id, m.sha256, m.analysis_version, repr(sorted(m.conditions.items())))
+    cached = _FIGURES.get(key)
+    if cached is None:
+        done = reanalyse_one(session, m)
+        cached = figure_json(kind.figure(done.parsed, done.result))
+        if len(_FIGURES) > 64:
+            _FIGURES.pop(next(iter(_FIGURES)))
+        _FIGURES[key] = cached
+    return cached
+
+
+_FIGURES: dict[tuple, str] = {}

@@ -28,6 +28,7 @@ from ..models import (
     ScaffoldRead,
     utcnow,
 )
+from ..access import Actor, may_see_structure
 from ..settings import Settings
 from . import audit, search, stats, verdicts
 from .errors import Duplicate, NotFound
@@ -210,6 +211,16 @@ def add_batch(*, session: Session, compound: Compound, data: BatchCreate, actor:
     raise RuntimeError("could not allocate a batch number after 5 attempts")
 
 
+def compound_of(session: Session, batch: Batch) -> Compound:
+    """The compound a batch was made of."""
+    return session.get(Compound, batch.compound_id)
+
+
+def list_scaffolds(session: Session) -> list[Scaffold]:
+    """Every scaffold, by code (the choices of the registration and edit forms)."""
+    return list(session.exec(select(Scaffold).order_by(Scaffold.code)).all())
+
+
 def get_batch(session: Session, code: str) -> Batch:
     batch = session.exec(select(Batch).where(Batch.code == code)).first()
     if batch is None:
@@ -242,14 +253,15 @@ def create_scaffold(*, session: Session, data: ScaffoldCreate, actor: str) -> Sc
 # --- reading -----------------------------------------------------------------------------------
 
 
-def compound_read(session: Session, compound: Compound, *, see_structure: bool) -> CompoundRead:
-    """The API shape of a compound; structures are withheld when embargoed and the caller may not see them."""
-    hide = compound.embargoed and not see_structure
+def compound_read(session: Session, compound: Compound, *, actor: Optional[Actor]) -> CompoundRead:
+    """The API shape of a compound, as ``actor`` may see it (``server/access.py``): for an embargoed
+    compound and a caller who may not see it, structure, label and notes are withheld."""
+    hide = not may_see_structure(actor, compound)
     scaffold_code = session.get(Scaffold, compound.scaffold_id).code if compound.scaffold_id else None
     n_batches = session.exec(select(func.count()).select_from(Batch).where(Batch.compound_id == compound.id)).one()
     return CompoundRead(
         code=compound.code,
-        label=compound.label,
+        label="" if hide else compound.label,
         smiles=None if hide else compound.smiles,
         inchi=None if hide else compound.inchi,
         inchikey=None if hide else compound.inchikey,
@@ -259,7 +271,7 @@ def compound_read(session: Session, compound: Compound, *, see_structure: bool) 
         side_chains=[] if hide else compound.side_chains,
         side_chain_summary="" if hide else compound.side_chain_summary,
         scaffold=scaffold_code,
-        notes=compound.notes,
+        notes="" if hide else compound.notes,
         embargoed=compound.embargoed,
         archived=compound.archived,
         batches=n_batches,

@@ -8,11 +8,12 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from datetime import timedelta
-from typing import Any
+from typing import Any, Optional
 
 from sqlalchemy import func
 from sqlmodel import Session, select
 
+from ..access import Actor, may_see_structure
 from ..analysis.verdict import LABELS as VERDICT_LABELS
 from ..models import (
     AuditEvent,
@@ -56,13 +57,13 @@ class CompoundRef:
     show_structure: bool
 
 
-def _ref(c: Compound, *, see_embargoed: bool) -> CompoundRef:
-    visible = see_embargoed or not c.embargoed
+def _ref(c: Compound, *, actor: Optional[Actor]) -> CompoundRef:
+    visible = may_see_structure(actor, c)
     return CompoundRef(code=c.code, label=c.label if visible else "", verdict=c.override_code or c.verdict_code,
                        show_structure=visible)
 
 
-def summary(session: Session, *, see_embargoed: bool, days: int = 7) -> dict[str, Any]:
+def summary(session: Session, *, actor: Optional[Actor], days: int = 7) -> dict[str, Any]:
     live = Compound.archived == False  # noqa: E712 - SQL expression
     registered = session.exec(select(func.count()).select_from(Compound).where(live)).one()
     made = session.exec(select(func.count(func.distinct(Batch.compound_id)))
@@ -84,13 +85,13 @@ def summary(session: Session, *, see_embargoed: bool, days: int = 7) -> dict[str
         "estimates": session.exec(select(func.count()).select_from(BarrierEstimate).where(
             BarrierEstimate.method == "gfn2-xtb", BarrierEstimate.created_at >= since)).one(),
     }
-    new_compounds = [_ref(c, see_embargoed=see_embargoed) for c in session.exec(
+    new_compounds = [_ref(c, actor=actor) for c in session.exec(
         select(Compound).where(live, Compound.created_at >= since).order_by(Compound.number.desc()).limit(12)).all()]
     hits = session.exec(
         select(Compound, CompoundStats).join(CompoundStats, CompoundStats.compound_id == Compound.id, isouter=True)
         .where(live, func.coalesce(Compound.override_code, Compound.verdict_code).in_(HIT_VERDICTS))
         .order_by(CompoundStats.pr_max_uC_cm2.desc().nulls_last(), Compound.number.desc()).limit(12)).all()
-    review = [_ref(c, see_embargoed=see_embargoed) for c in session.exec(
+    review = [_ref(c, actor=actor) for c in session.exec(
         select(Compound).where(live, Compound.verdict_code == "conflicting", Compound.override_code.is_(None))
         .order_by(Compound.number.desc()).limit(20)).all()]
     flagged = session.exec(select(func.count()).select_from(Measurement).where(
@@ -101,7 +102,7 @@ def summary(session: Session, *, see_embargoed: bool, days: int = 7) -> dict[str
     for j in running:
         c = session.get(Compound, j.compound_id) if j.compound_id else None
         running_rows.append({"id": j.id, "state": j.state, "progress": j.progress, "message": j.message,
-                             "compound": _ref(c, see_embargoed=see_embargoed) if c else None})
+                             "compound": _ref(c, actor=actor) if c else None})
     last = session.exec(select(func.max(AuditEvent.at))).one()
     by_verdict = dict(session.exec(select(func.coalesce(Compound.override_code, Compound.verdict_code), func.count())
                                    .where(live).group_by(func.coalesce(Compound.override_code,
@@ -112,7 +113,7 @@ def summary(session: Session, *, see_embargoed: bool, days: int = 7) -> dict[str
         "week": week,
         "days": days,
         "new_compounds": new_compounds,
-        "hits": [(_ref(c, see_embargoed=see_embargoed), s) for c, s in hits],
+        "hits": [(_ref(c, actor=actor), s) for c, s in hits],
         "review": review,
         "inconclusive_measurements": flagged,
         "jobs": jobs,

@@ -19,6 +19,8 @@ from sqlalchemy import and_, exists, func, or_
 from sqlalchemy.sql.elements import ColumnElement
 from sqlmodel import Session, select
 
+from .. import access
+from ..access import Actor
 from ..analysis.verdict import LABELS as VERDICT_LABELS
 from ..errors import InputError
 from ..models import BATCH_STATES, Compound, CompoundSideChain, CompoundStats, Scaffold
@@ -287,11 +289,14 @@ def _conditions(q: ViewQuery) -> list[ColumnElement]:
     return conds
 
 
-def query_view(session: Session, q: ViewQuery, *, paged: bool = True, see_embargoed: bool = True) -> ViewResult:
-    """The rows of a view; structure search (if asked) narrows the candidates first.
+def query_view(session: Session, q: ViewQuery, *, actor: Optional[Actor], paged: bool = True,
+               structures_only: bool = False) -> ViewResult:
+    """The rows of a view as ``actor`` may see them; structure search (if asked) narrows the candidates first.
 
     A caller who may not see embargoed structures never gets an embargoed compound from a
-    structure query: otherwise its code in the answer would tell which fragments it contains.
+    structure query (``access.structure_visible``): otherwise its code in the answer would tell
+    which fragments it contains. ``structures_only`` applies the same condition to every view
+    (plots and maps of structure-derived properties).
     """
     similarity: dict[int, float] = {}
     conds = _conditions(q)
@@ -299,10 +304,13 @@ def query_view(session: Session, q: ViewQuery, *, paged: bool = True, see_embarg
         from . import search
 
         hits = search.search(session, substructure=q.substructure, similar=q.similar, threshold=q.threshold,
-                             include_archived=bool(q.values.get("archived")), include_embargoed=see_embargoed)
+                             include_archived=bool(q.values.get("archived")),
+                             include_embargoed=access.sees_embargoed(actor))
         ids = [h.compound_id for h in hits]
         similarity = {h.compound_id: h.similarity for h in hits if h.similarity is not None}
         conds.append(Compound.id.in_(ids) if ids else Compound.id == -1)
+    if structures_only or q.substructure or q.similar:
+        conds.append(access.structure_visible(actor))
     base = (select(Compound, CompoundStats, Scaffold.code, Scaffold.bridge)
             .join(CompoundStats, CompoundStats.compound_id == Compound.id, isouter=True)
             .join(Scaffold, Scaffold.id == Compound.scaffold_id, isouter=True)
@@ -353,13 +361,14 @@ EXPORT_COLUMNS: tuple[tuple[str, Callable[[ViewRow], Any]], ...] = (
 )
 
 
-def export_frame(result: ViewResult, *, hide_structures_of_embargoed: bool) -> pd.DataFrame:
+def export_frame(result: ViewResult, *, actor: Optional[Actor]) -> pd.DataFrame:
+    """The rows as a table; what ``actor`` may not see of an embargoed compound is left empty."""
     records = []
     for r in result.rows:
         rec = {name: get(r) for name, get in EXPORT_COLUMNS}
-        if hide_structures_of_embargoed and r.compound.embargoed:
-            rec.update({"smiles": None, "inchikey": None, "formula": None, "molar mass (g/mol)": None,
-                        "side chains": None})
+        if not access.may_see_structure(actor, r.compound):
+            rec.update({"label": None, "smiles": None, "inchikey": None, "formula": None,
+                        "molar mass (g/mol)": None, "side chains": None})
         records.append(rec)
     return pd.DataFrame.from_records(records, columns=[name for name, _ in EXPORT_COLUMNS])
 

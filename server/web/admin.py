@@ -5,20 +5,14 @@ from __future__ import annotations
 from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse
 
-from ..deps import RowId, SessionDep
+from ..deps import PageAdmin, RowId, SessionDep
 from ..errors import InputError
 from ..services import accounts
 from ..services.errors import Duplicate, NotFound
 from ..services.kinds import KINDS
-from .pages import PageActor, PageForbidden, PageWriter
 from .render import redirect, render
 
 router = APIRouter(include_in_schema=False)
-
-
-def _admin(actor) -> None:  # noqa: ANN001
-    if not actor.is_admin:
-        raise PageForbidden("Only an admin manages accounts and tokens.")
 
 
 def _page(request, session, actor, *, error=None, new_token=None, status_code=200):  # noqa: ANN001
@@ -28,14 +22,12 @@ def _page(request, session, actor, *, error=None, new_token=None, status_code=20
 
 
 @router.get("/admin", response_class=HTMLResponse)
-def admin_page(request: Request, session: SessionDep, actor: PageActor):
-    _admin(actor)
+def admin_page(request: Request, session: SessionDep, actor: PageAdmin):
     return _page(request, session, actor)
 
 
 @router.post("/admin/users", response_class=HTMLResponse)
-async def add_user(request: Request, session: SessionDep, actor: PageWriter):
-    _admin(actor)
+async def add_user(request: Request, session: SessionDep, actor: PageAdmin):
     form = await request.form()
     try:
         accounts.create_user(session=session, username=str(form.get("username", "")),
@@ -47,8 +39,7 @@ async def add_user(request: Request, session: SessionDep, actor: PageWriter):
 
 
 @router.post("/admin/users/{username}/deactivate", response_class=HTMLResponse)
-async def deactivate(username: str, request: Request, session: SessionDep, actor: PageWriter):
-    _admin(actor)
+async def deactivate(username: str, request: Request, session: SessionDep, actor: PageAdmin):
     try:
         accounts.set_active(session=session, username=username, active=False, actor=actor.label)
     except NotFound as exc:
@@ -57,8 +48,7 @@ async def deactivate(username: str, request: Request, session: SessionDep, actor
 
 
 @router.post("/admin/tokens", response_class=HTMLResponse)
-async def create_token(request: Request, session: SessionDep, actor: PageWriter):
-    _admin(actor)
+async def create_token(request: Request, session: SessionDep, actor: PageAdmin):
     form = await request.form()
     kinds = [k for k in form.getlist("kinds") if isinstance(k, str) and k in KINDS] or None
     try:
@@ -71,8 +61,7 @@ async def create_token(request: Request, session: SessionDep, actor: PageWriter)
 
 
 @router.post("/admin/tokens/{token_id}/revoke", response_class=HTMLResponse)
-async def revoke(token_id: RowId, request: Request, session: SessionDep, actor: PageWriter):
-    _admin(actor)
+async def revoke(token_id: RowId, request: Request, session: SessionDep, actor: PageAdmin):
     try:
         accounts.revoke_token(session=session, token_id=token_id, actor=actor.label)
     except NotFound as exc:

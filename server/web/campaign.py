@@ -1,4 +1,5 @@
-"""Campaign-level pages: structure-property explorer, side-chain outcome map, status page, timelines."""
+"""Campaign-level pages: structure-property explorer, side-chain outcome map, status page, the
+barrier calibration, and the estimate queue with its job panels."""
 
 from __future__ import annotations
 
@@ -8,14 +9,16 @@ from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse
 
 from ..analysis.verdict import LABELS as VERDICT_LABELS
-from ..deps import OptionalActor, SessionDep, SettingsDep, check_csrf
+from .. import access
+from ..deps import OptionalActor, PageActor, PageAdmin, PageWriter, RowId, SessionDep, SettingsDep
 from ..errors import InputError
 from ..ingest.conditions import parse_quantity
 from ..plots import figure_json
 from ..plots.explorer import explorer_figure
-from ..services import explore, registry, status, views
-from .pages import LoginRequired, PageActor, PageForbidden
-from .render import redirect, render
+from ..jobs import queue
+from ..services import barriers, estimates, explore, registry, status, views
+from ..services.errors import NotFound
+from .render import fragment_or_redirect, redirect, render
 
 router = APIRouter(include_in_schema=False)
 
@@ -30,7 +33,7 @@ def explorer(request: Request, session: SessionDep, actor: PageActor, x: str = "
         q = views.parse_view(request.query_params)
         if t.strip():
             t_K = parse_quantity(t, field="t", unit="K", example="300 K or 25 degC", temperature=True)
-        points = explore.explore(session, q, x=x, y=y, group=group, t_K=t_K)
+        points = explore.explore(session, q, actor=actor, x=x, y=y, group=group, t_K=t_K)
         n = len(points)
         xt, yt = explore.PROPERTIES[x].title, explore.PROPERTIES[y].title
         if t_K is not None:
@@ -52,7 +55,7 @@ def outcomes(request: Request, session: SessionDep, actor: PageActor, by: str = 
     error, omap = None, None
     try:
         q = views.parse_view(request.query_params)
-        omap = explore.outcome_map(session, q, by=by)
+        omap = explore.outcome_map(session, q, actor=actor, by=by)
     except InputError as exc:
         error = str(exc)
     return render(request, "pages/outcomes.html",
@@ -65,25 +68,71 @@ def status_page(request: Request, session: SessionDep, settings: SettingsDep, ac
     """The group status page; public when the admin (or REMANENCE_PUBLIC_STATUS) says so."""
     public = status.public_status_enabled(session, settings)
     if actor is None and not public:
-        raise LoginRequired("/status")
-    data = status.summary(session, see_embargoed=actor is not None and actor.can_see_embargoed)
+        raise access.NotLoggedIn("/status")
+    data = status.summary(session, actor=actor)
     return render(request, "pages/status.html", {"s": data, "public": public, "labels": VERDICT_LABELS},
                   partial="partials/status_body.html", actor=actor)
 
 
 @router.post("/status/public")
-async def toggle_public(request: Request, session: SessionDep, actor: PageActor):
-    if not actor.is_admin:
-        raise PageForbidden("Only an admin may publish the status page.")
-    await check_csrf(request, actor)
+async def toggle_public(request: Request, session: SessionDep, actor: PageAdmin):
     form = await request.form()
     status.set_public_status(session=session, enabled=form.get("enabled") == "on", actor=actor.label)
     return redirect("/status", request)
 
 
-@router.get("/compounds/{code}/timeline", response_class=HTMLResponse)
-def timeline(code: str, request: Request, session: SessionDep, actor: PageActor):
-    compound = registry.get_compound(session, code)
-    events = status.timeline(session, compound)
-    return render(request, "pages/timeline.html", {"c": compound, "events": events},
-                  partial="partials/timeline.html", actor=actor)
+@router.get("/calibration", response_class=HTMLResponse)
+def calibration_page(request: Request, session: SessionDep, actor: PageActor):
+    """Measured against computed barriers across compounds, with the fit and its prediction band."""
+    return render(request, "pages/calibration.html", barriers.calibration_view(session), actor=actor)
+
+
+# --- computed estimates and the queue ----------------------------------------------------------
+
+
+def _job_context(session, job) -> dict:  # noqa: ANN001
+    return {"job": queue.job_read(job, session=session)}
+
+
+@router.get("/jobs/{job_id}/panel", response_class=HTMLResponse)
+def job_panel(job_id: RowId, request: Request, session: SessionDep, actor: PageActor):
+    """The job's status; while queued or running it polls itself, so the bar advances without a reload."""
+    return render(request, "partials/job.html", _job_context(session, queue.get_job(session, job_id)), actor=actor)
+
+
+@router.post("/jobs/{job_id}/cancel", response_class=HTMLResponse)
+async def cancel_job(job_id: RowId, request: Request, session: SessionDep, actor: PageWriter):
+    try:
+        job = queue.cancel(session, job_id, actor=actor.label)
+    except InputError as exc:
+        return render(request, "pages/error.html", {"status": 422, "detail": str(exc)}, status_code=422, actor=actor)
+    return fragment_or_redirect(request, "partials/job.html", _job_context(session, job), "/queue", actor=actor)
+
+
+@router.get("/queue", response_class=HTMLResponse)
+def queue_page(request: Request, session: SessionDep, actor: PageActor):
+    return render(request, "pages/queue.html",
+                  {"summary": estimates.queue_summary(session), "scaffolds": registry.list_scaffolds(session),
+                   "error": None},
+                  partial="partials/queue_body.html", actor=actor)
+
+
+@router.post("/queue", response_class=HTMLResponse)
+async def queue_many(request: Request, session: SessionDep, actor: PageWriter):
+    form = await request.form()
+    codes = [c.strip() for c in str(form.get("codes", "")).replace(",", " ").split() if c.strip()]
+    scaffold = str(form.get("scaffold", "")).strip()
+    try:
+        if codes:
+            compounds = [registry.get_compound(session, c) for c in codes]
+        elif scaffold:
+            compounds = estimates.live_compounds_of_scaffold(session, scaffold)
+        else:
+            raise InputError("choose a scaffold or list compound codes", field="codes")
+        estimates.queue_estimates(session=session, compounds=compounds,
+                                  truncate_side_chains=form.get("full_chains") != "on", actor=actor.label)
+    except (InputError, NotFound) as exc:
+        return render(request, "pages/queue.html",
+                      {"summary": estimates.queue_summary(session), "scaffolds": registry.list_scaffolds(session),
+                       "error": str(exc)}, status_code=422, actor=actor)
+    return redirect("/queue", request)

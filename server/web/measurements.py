@@ -1,4 +1,4 @@
-"""Pages for uploads and measurements."""
+"""Measurement pages: the upload form of a batch and the page of one measurement."""
 
 from __future__ import annotations
 
@@ -6,17 +6,12 @@ from typing import Annotated, Optional
 
 from fastapi import APIRouter, File, Form, Request, UploadFile
 from fastapi.responses import HTMLResponse
-from sqlmodel import Session
-
-from ..api.v1.measurements import read_upload
-from ..deps import RowId, SessionDep, SettingsDep
+from ..deps import PageActor, PageWriter, RowId, SessionDep, SettingsDep
 from ..errors import InputError
-from ..models import Batch, Compound, Measurement
-from ..plots import figure_json
+from ..models import Batch, Compound
 from ..services import measurements, registry
 from ..services.errors import Forbidden
 from ..services.kinds import KINDS
-from .pages import PageActor, PageWriter
 from .render import redirect, render
 
 router = APIRouter(include_in_schema=False)
@@ -31,7 +26,7 @@ def _upload_context(batch: Batch, compound: Compound, form: dict, error: Optiona
 @router.get("/batches/{code}/upload", response_class=HTMLResponse)
 def upload_form(code: str, request: Request, session: SessionDep, actor: PageWriter, kind: str = "pe_loop"):
     batch = registry.get_batch(session, code)
-    compound = session.get(Compound, batch.compound_id)
+    compound = registry.compound_of(session, batch)
     return render(request, "pages/upload.html", _upload_context(batch, compound, {"kind": kind}), actor=actor)
 
 
@@ -56,12 +51,12 @@ def upload(
     endo: Annotated[str, Form()] = "",
 ):
     batch = registry.get_batch(session, code)
-    compound = session.get(Compound, batch.compound_id)
+    compound = registry.compound_of(session, batch)
     form = {"kind": kind, "area": area, "thickness": thickness, "mass": mass, "rate": rate,
             "temperature": temperature, "frequency": frequency, "instrument": instrument, "operator": operator,
             "notes": notes, "endo": endo}
     try:
-        raw = read_upload(file, settings.max_upload_bytes)
+        raw = measurements.read_upload(file, settings.max_upload_bytes)
         m, _ = measurements.upload_measurement(
             session=session, batch=batch, kind_name=kind, raw=raw, filename=file.filename,
             form={k: (v or None) for k, v in form.items() if k != "kind"}, actor=actor.label,
@@ -72,31 +67,13 @@ def upload(
     return redirect(f"/measurements/{m.id}", request)
 
 
-def measurement_figure(session: Session, m: Measurement) -> Optional[str]:
-    kind = KINDS.get(m.kind)
-    if kind is None or kind.figure is None:
-        return None
-    key = (m.id, m.sha256, m.analysis_version, repr(sorted(m.conditions.items())))
-    cached = _FIGURES.get(key)
-    if cached is None:
-        done = measurements.reanalyse_one(session, m)
-        cached = figure_json(kind.figure(done.parsed, done.result))
-        if len(_FIGURES) > 64:
-            _FIGURES.pop(next(iter(_FIGURES)))
-        _FIGURES[key] = cached
-    return cached
-
-
-_FIGURES: dict[tuple, str] = {}
-
-
 @router.get("/measurements/{measurement_id}", response_class=HTMLResponse)
 def measurement_page(measurement_id: RowId, request: Request, session: SessionDep, actor: PageActor):
     m = measurements.get_measurement(session, measurement_id)
     info = measurements.measurement_read(session, m)
     kind = KINDS.get(m.kind)
     try:
-        fig = measurement_figure(session, m)
+        fig = measurements.measurement_figure(session, m)
         fig_error = None
     except InputError as exc:
         fig, fig_error = None, str(exc)

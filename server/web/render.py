@@ -1,7 +1,10 @@
-"""Page or fragment: the one place that looks at HX-Request.
+"""Page or fragment: the one place that looks at the htmx request headers.
 
 A page template extends ``base.html`` and includes its partials; an htmx request for the
-same view gets only the named partial. ``Vary: HX-Request`` keeps caches from mixing them.
+same view gets only the named partial. A history restore (htmx asks again with
+``HX-History-Restore-Request: true`` when its cache has no copy of the page) gets the full page,
+since htmx then swaps the answer in as the whole body. ``Vary`` keeps caches from mixing them.
+Every render carries the current account, error pages included, so the menu matches the caller.
 """
 
 from __future__ import annotations
@@ -11,8 +14,18 @@ from typing import Any, Optional
 from fastapi import Request
 from fastapi.responses import HTMLResponse, RedirectResponse, Response
 
-from ..deps import is_htmx
+from ..deps import current_actor
 from ..security import new_csrf_token
+
+
+def is_htmx(request: Request) -> bool:
+    """An htmx request that swaps part of a page (not a boosted link, which loads a whole page)."""
+    return request.headers.get("hx-request") == "true" and request.headers.get("hx-boosted") != "true"
+
+
+def wants_fragment(request: Request) -> bool:
+    """Whether to answer with a fragment: an htmx swap, but not a history restore."""
+    return is_htmx(request) and request.headers.get("hx-history-restore-request") != "true"
 
 
 def csrf_token(request: Request) -> str:
@@ -33,12 +46,21 @@ def render(
     actor: Any = None,
 ) -> HTMLResponse:
     templates = request.app.state.templates
-    ctx = {"actor": actor, "csrf_token": csrf_token(request), "settings": request.app.state.settings}
+    ctx = {"actor": actor if actor is not None else current_actor(request), "csrf_token": csrf_token(request),
+           "settings": request.app.state.settings}
     ctx.update(context or {})
-    name = partial if (partial and is_htmx(request)) else template
+    name = partial if (partial and wants_fragment(request)) else template
     response = templates.TemplateResponse(request, name, ctx, status_code=status_code)
-    response.headers["Vary"] = "HX-Request"
+    response.headers["Vary"] = "HX-Request, HX-History-Restore-Request"
     return response
+
+
+def fragment_or_redirect(request: Request, template: str, context: dict[str, Any], url: str, *,
+                         actor: Any = None) -> Response:
+    """After a post: for an htmx swap, the updated fragment; otherwise a redirect to ``url``."""
+    if wants_fragment(request):
+        return render(request, template, context, actor=actor)
+    return redirect(url, request)
 
 
 def redirect(url: str, request: Request | None = None) -> Response:

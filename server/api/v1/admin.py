@@ -9,7 +9,7 @@ from pydantic import BaseModel, Field
 
 from ...deps import Admin, RowId, SessionDep
 from ...services import accounts
-from .common import AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND
+from .responses import AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND
 
 router = APIRouter(tags=["admin"])
 

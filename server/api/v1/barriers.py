@@ -8,7 +8,7 @@ from fastapi import APIRouter, Body, Query
 
 from ...deps import Reader, RowId, SessionDep, Writer
 from ...services import barriers, registry
-from .common import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND
+from .responses import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND
 
 router = APIRouter(tags=["barriers"])
 

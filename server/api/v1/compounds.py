@@ -9,12 +9,13 @@ from fastapi.responses import Response as RawResponse
 
 from pydantic import BaseModel, Field
 
+from ... import access
 from ...deps import Admin, Offset, Reader, SessionDep, SettingsDep, Writer
 from ...models import BatchCreate, BatchRead, CompoundCreate, CompoundPage, CompoundRead, CompoundUpdate
 from ...errors import InputError
 from ...services import registry, verdicts, views
 from ...services.errors import NotFound
-from .common import AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND
+from .responses import AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND
 
 router = APIRouter(tags=["compounds"])
 
@@ -26,7 +27,7 @@ router = APIRouter(tags=["compounds"])
 def create_compound(data: CompoundCreate, session: SessionDep, settings: SettingsDep, actor: Writer) -> CompoundRead:
     """Register a compound from a SMILES or MOL block, or from a scaffold plus a side chain."""
     compound = registry.register_compound(session=session, settings=settings, data=data, actor=actor.label)
-    return registry.compound_read(session, compound, see_structure=True)
+    return registry.compound_read(session, compound, actor=actor)
 
 
 @router.get("/compounds", response_model=CompoundPage, responses={**AUTH_ERRORS, **INPUT_ERRORS})
@@ -45,13 +46,12 @@ def list_compounds(
     if include_archived:
         q = replace(q, values={**q.values, "archived": True})
     if offset % limit == 0:
-        result = views.query_view(session, replace(q, page=offset // limit + 1, size=limit),
-                                  see_embargoed=actor.can_see_embargoed)
+        result = views.query_view(session, replace(q, page=offset // limit + 1, size=limit), actor=actor)
         rows = result.rows
     else:
-        result = views.query_view(session, q, paged=False, see_embargoed=actor.can_see_embargoed)
+        result = views.query_view(session, q, actor=actor, paged=False)
         rows = result.rows[offset: offset + limit]
-    items = [registry.compound_read(session, r.compound, see_structure=actor.can_see_embargoed) for r in rows]
+    items = [registry.compound_read(session, r.compound, actor=actor) for r in rows]
     return CompoundPage(items=items, total=result.total)
 
 
@@ -63,9 +63,8 @@ def search_structures(request: Request, session: SessionDep, actor: Reader) -> d
     q = views.parse_view(request.query_params, max_size=1000)
     if not (q.substructure or q.similar):
         raise InputError("give substructure=SMARTS or similar=SMILES", field="substructure")
-    result = views.query_view(session, replace(q, sort="code", descending=True), paged=False,
-                              see_embargoed=actor.can_see_embargoed)
-    rows = [r for r in result.rows if actor.can_see_embargoed or not r.compound.embargoed]
+    result = views.query_view(session, replace(q, sort="code", descending=True), actor=actor, paged=False)
+    rows = result.rows
     items = [{"code": r.compound.code, **({"similarity": r.similarity} if q.similar else {})} for r in rows]
     return {"items": items, "total": len(items)}
 
@@ -73,7 +72,7 @@ def search_structures(request: Request, session: SessionDep, actor: Reader) -> d
 @router.get("/compounds/{code}", response_model=CompoundRead, responses={**AUTH_ERRORS, **NOT_FOUND})
 def get_compound(code: str, session: SessionDep, actor: Reader) -> CompoundRead:
     compound = registry.get_compound(session, code)
-    return registry.compound_read(session, compound, see_structure=actor.can_see_embargoed)
+    return registry.compound_read(session, compound, actor=actor)
 
 
 @router.patch(
@@ -83,7 +82,7 @@ def patch_compound(code: str, data: CompoundUpdate, session: SessionDep, actor: 
     """Change label, notes, scaffold or embargo. Structures are immutable: register a new compound instead."""
     compound = registry.get_compound(session, code)
     compound = registry.update_compound(session=session, compound=compound, data=data, actor=actor.label)
-    return registry.compound_read(session, compound, see_structure=True)
+    return registry.compound_read(session, compound, actor=actor)
 
 
 @router.post("/compounds/{code}/archive", response_model=CompoundRead, responses={**AUTH_ERRORS, **NOT_FOUND})
@@ -92,7 +91,7 @@ def archive_compound(code: str, session: SessionDep, actor: Writer) -> CompoundR
     compound = registry.set_compound_archived(
         session=session, compound=registry.get_compound(session, code), archived=True, actor=actor.label
     )
-    return registry.compound_read(session, compound, see_structure=True)
+    return registry.compound_read(session, compound, actor=actor)
 
 
 @router.post("/compounds/{code}/restore", response_model=CompoundRead, responses={**AUTH_ERRORS, **NOT_FOUND})
@@ -100,7 +99,7 @@ def restore_compound(code: str, session: SessionDep, actor: Writer) -> CompoundR
     compound = registry.set_compound_archived(
         session=session, compound=registry.get_compound(session, code), archived=False, actor=actor.label
     )
-    return registry.compound_read(session, compound, see_structure=True)
+    return registry.compound_read(session, compound, actor=actor)
 
 
 @router.get(
@@ -110,7 +109,7 @@ def restore_compound(code: str, session: SessionDep, actor: Writer) -> CompoundR
 )
 def compound_svg(code: str, session: SessionDep, actor: Reader, thumbnail: bool = False) -> Response:
     compound = registry.get_compound(session, code)
-    if compound.embargoed and not actor.can_see_embargoed:
+    if not access.may_see_structure(actor, compound):
         raise NotFound(f"no drawing for {code}")
     svg = registry.structure_svg(compound, thumbnail=thumbnail)
     return Response(svg, media_type="image/svg+xml", headers={"Cache-Control": "private, max-age=3600"})
@@ -164,11 +163,11 @@ def override_verdict(code: str, data: OverrideIn, session: SessionDep, actor: Ad
     """A reviewed verdict (admins); the computed verdict stays visible beside it in `verdict_evidence`."""
     compound = verdicts.set_override(session=session, compound=registry.get_compound(session, code), code=data.code,
                                      reason=data.reason, actor=actor.label)
-    return registry.compound_read(session, compound, see_structure=True)
+    return registry.compound_read(session, compound, actor=actor)
 
 
 @router.post("/compounds/{code}/verdict/clear", response_model=CompoundRead, responses={**AUTH_ERRORS, **NOT_FOUND})
 def clear_override(code: str, session: SessionDep, actor: Admin) -> CompoundRead:
     compound = verdicts.set_override(session=session, compound=registry.get_compound(session, code), code=None,
                                      reason="", actor=actor.label)
-    return registry.compound_read(session, compound, see_structure=True)
+    return registry.compound_read(session, compound, actor=actor)

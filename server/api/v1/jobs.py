@@ -6,14 +6,13 @@ from typing import Any, Optional
 
 from fastapi import APIRouter, Query
 from pydantic import BaseModel, Field
-from sqlmodel import select
 
+from ... import access
 from ...deps import Offset, Reader, RowId, SessionDep, Writer
 from ...errors import InputError
 from ...jobs import queue
-from ...models import Compound
 from ...services import estimates, registry
-from .common import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND
+from .responses import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND
 
 router = APIRouter(tags=["estimates and jobs"])
 
@@ -29,7 +28,7 @@ class BulkEstimateIn(EstimateIn):
 
 def _visible_job(job: dict[str, Any], actor) -> dict[str, Any]:  # noqa: ANN001
     """Drop the truncated structure from results for callers who may not see embargoed structures."""
-    if not actor.can_see_embargoed and isinstance(job.get("result"), dict):
+    if not access.sees_embargoed(actor) and isinstance(job.get("result"), dict):
         job = {**job, "result": {k: v for k, v in job["result"].items() if k != "smiles_used"}}
     return job
 
@@ -50,10 +49,7 @@ def queue_many(data: BulkEstimateIn, session: SessionDep, actor: Writer) -> dict
     if data.compounds:
         compounds = [registry.get_compound(session, c) for c in data.compounds]
     elif data.scaffold:
-        sc = registry.get_scaffold(session, data.scaffold)
-        compounds = list(session.exec(select(Compound).where(Compound.scaffold_id == sc.id,
-                                                             Compound.archived == False)  # noqa: E712
-                                      .order_by(Compound.number)).all())
+        compounds = estimates.live_compounds_of_scaffold(session, data.scaffold)
     else:
         raise InputError("give compounds (codes) or a scaffold", field="compounds")
     jobs = estimates.queue_estimates(session=session, compounds=compounds,

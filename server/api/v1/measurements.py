@@ -4,14 +4,14 @@ from __future__ import annotations
 
 from typing import Annotated, Any, Optional
 
-from fastapi import APIRouter, File, Form, HTTPException, Query, UploadFile
+from fastapi import APIRouter, File, Form, Query, UploadFile
 from fastapi.responses import JSONResponse, Response
 from pydantic import BaseModel
 
 from ...deps import Offset, Reader, RowId, SessionDep, SettingsDep, Uploader, Writer
 from ...models import RawFile
 from ...services import measurements, registry
-from .common import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND, ErrorOut
+from .responses import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND, ErrorOut
 
 router = APIRouter(tags=["measurements"])
 
@@ -44,15 +44,6 @@ class MeasurementPage(BaseModel):
     total: int
 
 
-def read_upload(file: UploadFile, limit: int) -> bytes:
-    """The uploaded bytes, refusing more than ``limit`` without reading further."""
-    data = file.file.read(limit + 1)
-    if len(data) > limit:
-        raise HTTPException(413, f"the file is larger than the limit of {limit / 1048576:.3g} MiB "
-                                 "(REMANENCE_MAX_UPLOAD_MB)")
-    return data
-
-
 @router.post(
     "/batches/{batch_code}/measurements",
     status_code=201,
@@ -80,7 +71,7 @@ def upload(
 ):
     """Post a raw instrument file to a batch; it is stored unchanged and analysed at once."""
     batch = registry.get_batch(session, batch_code)
-    raw = read_upload(file, settings.max_upload_bytes)
+    raw = measurements.read_upload(file, settings.max_upload_bytes)
     form = {"area": area, "thickness": thickness, "mass": mass, "rate": rate, "temperature": temperature,
             "frequency": frequency, "instrument": instrument, "operator": operator, "notes": notes, "endo": endo}
     m, created = measurements.upload_measurement(

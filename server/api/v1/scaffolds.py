@@ -8,7 +8,7 @@ from sqlmodel import select
 from ...deps import Reader, SessionDep, Writer
 from ...models import Scaffold, ScaffoldCreate, ScaffoldRead
 from ...services import registry
-from .common import AUTH_ERRORS, DUPLICATE, INPUT_ERRORS
+from .responses import AUTH_ERRORS, DUPLICATE, INPUT_ERRORS
 
 router = APIRouter(tags=["scaffolds"])
 

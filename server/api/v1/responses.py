@@ -1,4 +1,4 @@
-"""Shared response documentation for the API routers."""
+"""Documented error responses of the API routes (the OpenAPI `responses` of each endpoint)."""
 
 from __future__ import annotations
 

@@ -1,0 +1,140 @@
+"""Who may read or write what, embargo included: the one place that decides.
+
+The API dependencies (``server/deps.py``), the web pages and the services that build answers all
+ask this module; nothing else looks at roles, scopes or the ``embargoed`` flag to decide access.
+
+The access table (a caller is a logged-in user with a role, or an API token with a scope):
+
+| actor                  | read | see embargoed structures | upload measurements | other writes | admin |
+|------------------------|------|--------------------------|---------------------|--------------|-------|
+| nobody (no login)      | no   | no                       | no                  | no           | no    |
+| user, role viewer      | yes  | yes                      | no                  | no           | no    |
+| user, role member      | yes  | yes                      | yes                 | yes          | no    |
+| user, role admin       | yes  | yes                      | yes                 | yes          | yes   |
+| token, scope read      | yes  | yes                      | no                  | no           | no    |
+| token, scope upload    | yes  | no                       | yes (its kinds)     | no           | no    |
+| token, scope write     | yes  | yes                      | yes                 | yes          | no    |
+
+"Read" without a login is limited to the login page and, when the admin publishes it, the status
+page (which then shows embargoed compounds by code only).
+
+The embargo: for a caller who may not see embargoed structures, an embargoed compound's
+structure and everything derived from it (SMILES, InChI/InChIKey, formula, masses, side chains,
+drawing) is withheld, and its label and notes too, since labels often spell out the structure. Its
+code stays visible (codes are handed out in order and say nothing about the structure). Lists use
+:func:`structure_visible` as a query condition; single records use :func:`may_see_structure`.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Optional
+
+from sqlalchemy import true
+from sqlalchemy.sql.elements import ColumnElement
+
+from .models import Compound
+
+# What a request needs, in increasing order of privilege.
+READ = "read"
+UPLOAD = "upload"
+WRITE = "write"
+ADMIN = "admin"
+
+# Why an API caller is refused (the API's 403 ``detail``); pages give their own, friendlier words.
+API_REFUSALS = {
+    UPLOAD: "{label} may not upload measurements",
+    WRITE: "{label} may not change the registry (needs a member account or a write token)",
+    ADMIN: "only an admin may do this",
+}
+PAGE_REFUSALS = {
+    UPLOAD: "Your account can read the registry but not change it; ask an admin for a member role.",
+    WRITE: "Your account can read the registry but not change it; ask an admin for a member role.",
+    ADMIN: "Only an admin may do this.",
+}
+
+
+@dataclass(frozen=True)
+class Actor:
+    """The caller of a request, once authenticated."""
+
+    kind: str  # "user" | "token"
+    name: str
+    role: Optional[str] = None
+    scope: Optional[str] = None
+    kinds: Optional[tuple[str, ...]] = None
+    user_id: Optional[int] = None
+    token_id: Optional[int] = None
+    via_cookie: bool = False
+
+    @property
+    def label(self) -> str:
+        if self.kind == "user":
+            return f"user:{self.name}"
+        return f"token:{self.token_id} ({self.name})"
+
+    @property
+    def can_write(self) -> bool:
+        return self.role in ("admin", "member") or self.scope == "write"
+
+    @property
+    def is_admin(self) -> bool:
+        return self.role == "admin"
+
+    @property
+    def can_see_embargoed(self) -> bool:
+        return self.kind == "user" or self.scope in ("read", "write")
+
+    def can_upload(self, kind: str | None = None) -> bool:
+        if self.can_write:
+            return True
+        if self.scope == "upload":
+            return self.kinds is None or kind is None or kind in self.kinds
+        return False
+
+
+class NotLoggedIn(Exception):
+    """A page needs a login; the web answer is a redirect to the login form, back to ``next_url``."""
+
+    def __init__(self, next_url: str) -> None:
+        self.next_url = next_url
+
+
+class Refused(Exception):
+    """A page refuses this caller (403); ``message`` says why, in words for people."""
+
+    def __init__(self, message: str) -> None:
+        self.message = message
+
+
+def allows(actor: Optional[Actor], need: str, *, kind: str | None = None) -> bool:
+    """Whether ``actor`` (None: nobody logged in) may do something that needs ``need``."""
+    if actor is None:
+        return False
+    if need == READ:
+        return True
+    if need == UPLOAD:
+        return actor.can_upload(kind)
+    if need == WRITE:
+        return actor.can_write
+    if need == ADMIN:
+        return actor.is_admin
+    raise ValueError(f"unknown need {need!r}")
+
+
+def sees_embargoed(actor: Optional[Actor]) -> bool:
+    """Whether ``actor`` may see embargoed structures (nobody logged in may not)."""
+    return actor is not None and actor.can_see_embargoed
+
+
+def may_see_structure(actor: Optional[Actor], compound: Compound) -> bool:
+    """For one record: whether ``actor`` may see this compound's structure, label and notes."""
+    return not compound.embargoed or sees_embargoed(actor)
+
+
+def structure_visible(actor: Optional[Actor]) -> ColumnElement[bool]:
+    """The query-layer form of :func:`may_see_structure`: a condition on ``Compound`` for a select,
+    true for every row if the actor sees embargoed structures, else only for rows not embargoed."""
+    if sees_embargoed(actor):
+        return true()
+    return Compound.embargoed == False  # noqa: E712 - SQL expression

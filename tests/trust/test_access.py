@@ -244,3 +244,152 @@ def test_upload_token_cannot_probe_embargoed_structures_through_the_list_filter(
     # Control: the same filter with a fragment the compound lacks must not list it either way.
     assert code not in client.get(where, params={"substructure": "c1ccncc1"}, headers=up).text
     assert not found, f"{where}: an upload token learns that embargoed {code} contains the fragment"
+
+
+# --- web routes ----------------------------------------------------------------------------------
+#
+# The same table (server/access.py) over every web route, enumerated from app.routes: a route that
+# is not classified below fails test_every_web_route_is_classified, so a new page is covered the day
+# it appears. Pages answer for people: nobody logged in -> 303 to /login?next=..., a refused caller
+# -> 403 page; a write from a session needs the CSRF token.
+
+PUBLIC = {("GET", "/login"), ("POST", "/login"), ("POST", "/logout"), ("GET", "/"), ("GET", "/healthz"),
+          ("GET", "/status")}  # /status: public only when published (tested below both ways)
+WEB_READ = {("GET", p) for p in (
+    "/compounds", "/compounds/export.{fmt}", "/compounds/{code}", "/compounds/{code}/timeline",
+    "/compounds/{code}/rates", "/scaffolds", "/measurements/{measurement_id}", "/explorer", "/outcomes",
+    "/calibration", "/jobs/{job_id}/panel", "/queue")}
+WEB_WRITE = {("GET", "/compounds/new"), ("POST", "/compounds/preview"), ("POST", "/compounds/new"),
+             ("POST", "/compounds/{code}/edit"), ("POST", "/compounds/{code}/archive"),
+             ("POST", "/compounds/{code}/barriers"), ("POST", "/compounds/{code}/estimate"),
+             ("GET", "/compounds/{code}/batches/new"), ("POST", "/compounds/{code}/batches/new"),
+             ("POST", "/scaffolds"), ("GET", "/batches/{code}/upload"), ("POST", "/batches/{code}/upload"),
+             ("POST", "/jobs/{job_id}/cancel"), ("POST", "/queue")}
+WEB_ADMIN = {("POST", "/compounds/{code}/verdict"), ("POST", "/status/public"), ("GET", "/admin"),
+             ("POST", "/admin/users"), ("POST", "/admin/users/{username}/deactivate"), ("POST", "/admin/tokens"),
+             ("POST", "/admin/tokens/{token_id}/revoke")}
+SECRET_LABEL = "hexakis-methylsulfanyl benzene, Q-7"  # an invented label that spells out the structure
+SECRET_NOTES = "made from hexachlorobenzene and sodium thiomethoxide"  # invented
+
+
+def web_routes(app) -> list[tuple[str, str]]:
+    """(method, path) of every web route (not /api/), walking included routers."""
+    from fastapi.routing import APIRoute
+
+    def walk(routes, prefix=""):
+        for r in routes:
+            if hasattr(r, "original_router"):  # FastAPI >= 0.165 keeps included routers as branches
+                yield from walk(r.original_router.routes, prefix + (r.include_context.prefix or ""))
+            elif isinstance(r, APIRoute):
+                for method in r.methods - {"HEAD"}:
+                    yield method, prefix + r.path
+
+    return sorted({(m, p) for m, p in walk(app.routes) if not p.startswith(("/api/", "/assets/"))})
+
+
+def web_call(c: TestClient, method: str, path: str, params: dict, headers: dict | None = None):
+    url = re.sub(r"\{(\w+)\}", lambda m: str(params[m.group(1)]), path)
+    if path.startswith("/batches/{code}"):
+        url = url.replace(f"/batches/{params['code']}/", f"/batches/{params['batch_code']}/")
+    return c.request(method, url, data={} if method == "POST" else None, headers=headers or {},
+                     follow_redirects=False)
+
+
+def test_every_web_route_is_classified(app):
+    routes = set(web_routes(app))
+    classified = PUBLIC | WEB_READ | WEB_WRITE | WEB_ADMIN
+    assert routes - classified == set(), "classify these web routes in the access matrix"
+    assert classified - routes == set(), "routes named in the matrix that the app does not have"
+    assert len(WEB_READ) >= 10 and len(WEB_WRITE) >= 10 and len(WEB_ADMIN) >= 5  # not iterating over nothing
+
+
+def test_web_routes_follow_the_access_table(app, client, world):
+    p, tokens, sessions = {**world["params"], "fmt": "csv"}, world["tokens"], world["sessions"]
+    anon = TestClient(app)
+    failures = []
+
+    def expect(who, ok, r, method, path):
+        if not ok(r) or r.status_code >= 500:
+            failures.append(f"{who:>22} {method:4} {path}: {r.status_code} {r.headers.get('location', '')} "
+                            f"{r.text[:120]!r}")
+
+    to_login = lambda r: r.status_code == 303 and r.headers["location"].startswith("/login?next=")  # noqa: E731
+    refused = lambda r: r.status_code == 403  # noqa: E731
+    allowed = lambda r: r.status_code not in (401, 403) and not to_login(r)  # noqa: E731
+
+    for method, path in sorted(WEB_READ | WEB_WRITE | WEB_ADMIN):
+        need = "read" if (method, path) in WEB_READ else "write" if (method, path) in WEB_WRITE else "admin"
+        expect("anonymous", to_login, web_call(anon, method, path, p), method, path)
+        callers = {"viewer": (sessions["viewer"][0], {"X-CSRF-Token": sessions["viewer"][1]}),
+                   "member": (sessions["member"][0], {"X-CSRF-Token": sessions["member"][1]}),
+                   "admin": (sessions["admin"][0], {"X-CSRF-Token": sessions["admin"][1]}),
+                   "read token": (client, tokens["read"]), "upload token": (client, tokens["upload"]),
+                   "write token": (client, tokens["write"])}
+        may = {"read": set(callers), "write": {"member", "admin", "write token"}, "admin": {"admin"}}[need]
+        for who, (c, headers) in callers.items():
+            expect(who, allowed if who in may else refused, web_call(c, method, path, p, headers), method, path)
+        if method == "POST":
+            c, _ = sessions["admin"]
+            expect("admin without CSRF", refused, web_call(c, method, path, p), method, path)
+    anon.close()
+    assert not failures, "access table violated on web routes:\n" + "\n".join(failures)
+
+
+def test_status_page_is_public_only_when_published(app, client, session, world):
+    anon = TestClient(app)
+    assert anon.get("/status", follow_redirects=False).status_code == 303
+    admin, csrf = world["sessions"]["admin"]
+    assert admin.post("/status/public", data={"enabled": "on", "csrf_token": csrf}).status_code == 200
+    assert anon.get("/status", follow_redirects=False).status_code == 200
+    anon.close()
+
+
+@pytest.fixture
+def embargoed_world(client, session, world):
+    """An embargoed compound with a label and notes that give it away, a batch, a measurement and a job."""
+    writer = world["tokens"]["write"]
+    r = client.post("/api/v1/compounds", json={"smiles": SECRET, "embargoed": True, "label": SECRET_LABEL,
+                                               "notes": SECRET_NOTES}, headers=writer)
+    assert r.status_code == 201, r.text
+    c = r.json()
+    batch = client.post(f"/api/v1/compounds/{c['code']}/batches", json={"chemist": "lab"}, headers=writer).json()
+    m = client.post(f"/api/v1/batches/{batch['code']}/measurements", data={"kind": "pe_loop"},
+                    files={"file": ("m.csv", loop_bytes(91), "text/csv")}, headers=writer)
+    assert m.status_code == 201, m.text
+    job = client.post(f"/api/v1/compounds/{c['code']}/estimates", json={}, headers=writer)
+    assert job.status_code == 202, job.text
+    admin, csrf = world["sessions"]["admin"]
+    admin.post("/status/public", data={"enabled": "on", "csrf_token": csrf})  # so visitors reach it too
+    return {"params": {**world["params"], "fmt": "csv", "code": c["code"], "batch_code": batch["code"],
+                       "measurement_id": m.json()["id"], "job_id": job.json()["job"]},
+            "giveaways": {"SMILES": SECRET, "InChIKey": c["inchikey"], "formula": c["formula"],
+                          "label": SECRET_LABEL, "notes": SECRET_NOTES}}
+
+
+def test_embargo_holds_on_every_web_route(app, client, world, embargoed_world):
+    """For callers who may not see embargoed structures (an upload token; a visitor on the public
+    status page), no web page they reach shows the embargoed compound's structure, label or notes."""
+    p, giveaways = embargoed_world["params"], embargoed_world["giveaways"]
+    anon = TestClient(app)
+    reached, failures = 0, []
+    for method, path in sorted(WEB_READ | PUBLIC):
+        if method != "GET":
+            continue
+        for who, c, headers in (("upload token", client, world["tokens"]["upload"]), ("visitor", anon, {})):
+            r = web_call(c, method, path, p, headers)
+            if r.status_code != 200:
+                continue
+            reached += 1
+            for what, text in giveaways.items():
+                if text in r.text:
+                    failures.append(f"{who} sees the {what} of the embargoed compound on {path}")
+    anon.close()
+    assert reached >= len(WEB_READ), reached  # the upload token reached every read page
+    assert not failures, "\n".join(failures)
+
+    # Positive control: a read token sees them where they belong, so the checks above can fail.
+    reader = world["tokens"]["read"]
+    page = client.get(f"/compounds/{p['code']}", headers=reader).text
+    listed = client.get("/compounds", headers=reader).text
+    assert SECRET_LABEL in page and SECRET_NOTES in page and giveaways["InChIKey"] in page
+    assert SECRET_LABEL in listed

@@ -12,6 +12,8 @@ from ..access import Actor
 from ..analysis.verdict import LABELS as VERDICT_LABELS
 from ..errors import InputError
 from ..models import Batch, Measurement
+from ..plots import figure_json
+from ..plots.explorer import explorer_figure
 from .views import ViewQuery, ViewRow, query_view
 
 
@@ -120,6 +122,14 @@ def explore(session: Session, view: ViewQuery, *, actor: Optional[Actor], x: str
                             group=GROUPINGS[group][1](r)))
     return points
 
+
+def explorer_figure_json(points: list[Point], *, x: str, y: str, t_K: Optional[float], with_trend: bool) -> str:
+    """The explorer's figure (Plotly JSON); axis titles name the temperature of temperature-dependent axes."""
+    xt, yt = PROPERTIES[x].title, PROPERTIES[y].title
+    if t_K is not None:
+        xt += f" at {t_K:.0f} K" if PROPERTIES[x].temperature_dependent else ""
+        yt += f" at {t_K:.0f} K" if PROPERTIES[y].temperature_dependent else ""
+    return figure_json(explorer_figure(points, x_title=xt, y_title=yt, with_trend=with_trend))
 
 # --- side-chain outcome map ----------------------------------------------------------------------
 

@@ -13,8 +13,6 @@ from .. import access
 from ..deps import OptionalActor, PageActor, PageAdmin, PageWriter, RowId, SessionDep, SettingsDep
 from ..errors import InputError
 from ..ingest.conditions import parse_quantity
-from ..plots import figure_json
-from ..plots.explorer import explorer_figure
 from ..jobs import queue
 from ..services import barriers, estimates, explore, registry, status, views
 from ..services.errors import NotFound
@@ -35,11 +33,7 @@ def explorer(request: Request, session: SessionDep, actor: PageActor, x: str = "
             t_K = parse_quantity(t, field="t", unit="K", example="300 K or 25 degC", temperature=True)
         points = explore.explore(session, q, actor=actor, x=x, y=y, group=group, t_K=t_K)
         n = len(points)
-        xt, yt = explore.PROPERTIES[x].title, explore.PROPERTIES[y].title
-        if t_K is not None:
-            xt += f" at {t_K:.0f} K" if explore.PROPERTIES[x].temperature_dependent else ""
-            yt += f" at {t_K:.0f} K" if explore.PROPERTIES[y].temperature_dependent else ""
-        fig = figure_json(explorer_figure(points, x_title=xt, y_title=yt, with_trend=bool(trend)))
+        fig = explore.explorer_figure_json(points, x=x, y=y, t_K=t_K, with_trend=bool(trend))
     except InputError as exc:
         error, q = str(exc), views.ViewQuery()
     return render(request, "pages/explorer.html",

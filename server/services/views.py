@@ -22,7 +22,7 @@ from sqlmodel import Session, select
 from ..analysis.verdict import LABELS as VERDICT_LABELS
 from ..errors import InputError
 from ..models import BATCH_STATES, Compound, CompoundSideChain, CompoundStats, Scaffold
-from .kinds import KINDS
+from ..kinds import KINDS
 
 VerdictCol = func.coalesce(Compound.override_code, Compound.verdict_code)
 

@@ -9,7 +9,7 @@ from ..deps import RowId, SessionDep
 from ..errors import InputError
 from ..services import accounts
 from ..services.errors import Duplicate, NotFound
-from ..services.kinds import KINDS
+from ..kinds import KINDS
 from .pages import PageActor, PageForbidden, PageWriter
 from .render import redirect, render
 

@@ -15,7 +15,7 @@ from ..models import Batch, Compound, Measurement
 from ..plots import figure_json
 from ..services import measurements, registry
 from ..services.errors import Forbidden
-from ..services.kinds import KINDS
+from ..kinds import KINDS
 from .pages import PageActor, PageWriter
 from .render import redirect, render
 

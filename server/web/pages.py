@@ -18,7 +18,7 @@ from ..models import BATCH_STATES, BatchCreate, CompoundCreate, CompoundUpdate, 
 from ..plots import figure_json, summary
 from ..jobs import queue
 from ..services import accounts, barriers, estimates, measurements, registry, verdicts, views
-from ..services.kinds import KINDS
+from ..kinds import KINDS
 from ..analysis.verdict import LABELS as VERDICT_LABELS
 from ..services.errors import Duplicate
 from ..security import same_token

@@ -17,7 +17,8 @@ import pkgutil
 
 from .base import Context, Evidence, Example, Kind, Need, ResultKey, check_kind
 
-__all__ = ["KINDS", "Context", "Evidence", "Example", "Kind", "Need", "ResultKey", "check_kind", "kind_modules"]
+__all__ = ["KINDS", "Context", "Evidence", "Example", "Kind", "Need", "ResultKey", "check_kind", "kind_modules",
+           "needed_by"]
 
 
 def kind_modules() -> list[str]:
@@ -45,3 +46,10 @@ def _build() -> dict[str, Kind]:
 ORDER = ("pe_loop", "pund", "dielectric", "dsc", "nmr_rates", "crystal")
 _ALL = _build()
 KINDS: dict[str, Kind] = {**{n: _ALL[n] for n in ORDER if n in _ALL}, **_ALL}
+
+
+def needed_by() -> dict[str, tuple[str, ...]]:
+    """Condition field -> the kinds that use it (the upload form's hints)."""
+    from ..ingest.conditions import CONDITION_FIELDS
+
+    return {f: tuple(k.name for k in KINDS.values() if f in k.condition_fields) for f in CONDITION_FIELDS}

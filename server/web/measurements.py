@@ -11,11 +11,12 @@ from sqlmodel import Session
 from ..api.v1.measurements import read_upload
 from ..deps import RowId, SessionDep, SettingsDep
 from ..errors import InputError
+from ..ingest.conditions import CONDITION_EXAMPLES
+from ..kinds import KINDS, needed_by
 from ..models import Batch, Compound, Measurement
 from ..plots import figure_json
 from ..services import measurements, registry
 from ..services.errors import Forbidden
-from ..kinds import KINDS
 from .pages import PageActor, PageWriter
 from .render import redirect, render
 
@@ -25,7 +26,7 @@ FIELDS = measurements.FORM_FIELDS
 
 
 def _upload_context(batch: Batch, compound: Compound, form: dict, error: Optional[str] = None) -> dict:
-    return {"batch": batch, "c": compound, "kinds": KINDS, "form": form, "error": error}
+    return {"batch": batch, "c": compound, "kinds": KINDS, "needed_by": needed_by(), "examples": CONDITION_EXAMPLES, "form": form, "error": error}
 
 
 @router.get("/batches/{code}/upload", response_class=HTMLResponse)

@@ -2,10 +2,10 @@
 
     python -m seed_demo.make_examples [FOLDER]
 
-The files are those the demo's instruments write for the first compound of the campaign
-(TILT-26 TB-CH2-O1, hexamethoxy on the CH2 bowl, Tc about 432 K), with the measurement
-conditions written into the file as ``# key: value`` lines, so each uploads without any
-form field:
+Each kind module (``server/kinds/<kind>.py``) generates its own example from a physical
+model (``server.synth``): a switching pellet of the hexamethoxy CH2 bowl below its
+transition near 432 K, the demo campaign's first compound. The measurement conditions are
+written into the file as ``# key: value`` lines, so each uploads without any form field:
 
     curl -H "Authorization: Bearer $TOKEN" -F kind=pe_loop -F file=@seed_demo/examples/pe_loop.csv \\
          http://127.0.0.1:8000/api/v1/batches/RMN-00001-B01/measurements
@@ -19,41 +19,17 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from . import instruments, scenario
+from server.kinds import KINDS
 
 EXAMPLES_DIR = Path(__file__).resolve().parent / "examples"
-FILENAMES = {
-    "pe_loop": "pe_loop.csv",
-    "pund": "pund.csv",
-    "dielectric": "dielectric.csv",
-    "dsc": "dsc.csv",
-    "nmr_rates": "nmr_rates.csv",
-    "crystal": "crystal.cif",
-}
-_CONDITION_KEYS = ("area", "thickness", "mass", "rate", "temperature", "frequency", "endo")
-
-
-def example_compound() -> scenario.CompoundPlan:
-    """The campaign's first compound (the hexamethoxy CH2 bowl), which has every kind of file."""
-    return scenario.build().compounds[0]
 
 
 def example_files() -> dict[str, bytes]:
     """File name -> bytes for every upload kind."""
-    c = example_compound()
-    first = next(b for b in c.batches if b.state in ("made", "used_up"))
-    chosen: dict[str, tuple[int, scenario.Measurement]] = {}
-    for j, m in enumerate(first.measurements):
-        chosen.setdefault(m.kind, (j, m))  # the first of each kind (the lowest-temperature loop)
     out = {}
-    for kind, name in FILENAMES.items():
-        j, m = chosen[kind]
-        up = instruments.write(c, first.seq, j, m, "I. Varnhout", "example")
-        if up.kind == "crystal":
-            out[name] = up.raw
-            continue
-        lines = "".join(f"# {k}: {up.form[k]}\n" for k in _CONDITION_KEYS if k in up.form)
-        out[name] = lines.encode("ascii") + up.raw
+    for kind in KINDS.values():
+        ex = kind.example()
+        out[ex.filename] = ex.raw
     return out
 
 

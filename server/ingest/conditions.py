@@ -53,6 +53,13 @@ _TEXT_FIELDS: dict[str, tuple[str, ...]] = {
 }
 _ENDO_ALIASES = ("endo", "endo direction", "endotherm")
 
+#: The condition fields a measurement kind may say it needs (``server/kinds``).
+CONDITION_FIELDS: tuple[str, ...] = tuple(s.field for s in _SPECS) + ("endo",)
+#: How to write each quantity (form placeholders, error messages).
+CONDITION_EXAMPLES: dict[str, str] = {s.field: s.example for s in _SPECS}
+#: Every field of the upload form besides ``kind`` and ``file``.
+FORM_FIELDS: tuple[str, ...] = CONDITION_FIELDS + tuple(_TEXT_FIELDS)
+
 _NUMBER_RE = re.compile(r"\s*([+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*(.*?)\s*")
 
 
@@ -99,6 +106,22 @@ class Conditions:
             sources=dict(self.sources),
         )
         return out
+
+
+def form_value_as_given(conditions: Mapping[str, Any], name: str) -> str | None:
+    """A stored condition (``Conditions.to_dict()``) as form text, if it was typed on the form.
+
+    Re-analysis feeds these back, so values typed once are applied again while file
+    metadata is read again from the raw file. Quantities come back in their canonical unit
+    (``repr`` keeps every digit).
+    """
+    if conditions.get("sources", {}).get(name) != "form":
+        return None
+    spec = next((s for s in _SPECS if s.field == name), None)
+    if spec is None:
+        return conditions.get(name)
+    value = conditions.get(spec.kwarg)
+    return f"{value!r} {spec.unit}" if value is not None else None
 
 
 def parse_quantity(

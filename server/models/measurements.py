@@ -75,4 +75,5 @@ class CrystalPhase(SQLModel, table=True):
     centrosymmetric: Optional[bool] = None
     temperature_K: Optional[float] = None
     results: dict[str, Any] = Field(default_factory=dict, sa_type=sa.JSON)
+    archived: bool = False  # with its measurement (server/kinds/crystal.py keeps it in step)
     created_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)

@@ -75,19 +75,34 @@ def add_barrier(*, session: Session, compound: Compound, data: BarrierIn, actor:
     return row
 
 
+EYRING_MODEL = "Eyring fit of ln(k/T) on 1/T"
+
+
 def _eyring_row(compound: Compound, fit: kinetics.EyringFit, measurement_id: Optional[int] = None) -> BarrierEstimate:
-    return BarrierEstimate(compound_id=compound.id, method="eyring", dg_kcal_mol=fit.dg298_kcal_mol,
-                           dg_err_kcal_mol=fit.dg298_err_kcal_mol, t_K=298.15, results=jsonable(fit.to_dict()),
-                           model="Eyring fit of ln(k/T) on 1/T", measurement_id=measurement_id,
-                           analysis_version=kinetics.VERSION)
-
-
-def barrier_from_rate_table(session: Session, *, compound: Compound, measurement: Measurement, fit, actor: str) -> BarrierEstimate:
-    """An uploaded rate table (kind nmr_rates) also lands in the compound's barrier table."""
-    row = _eyring_row(compound, fit, measurement_id=measurement.id)
-    row.created_by = actor
-    session.add(row)
+    row = BarrierEstimate(compound_id=compound.id, method="eyring", measurement_id=measurement_id)
+    _set_eyring(row, jsonable(fit.to_dict()), kinetics.VERSION)
     return row
+
+
+def _set_eyring(row: BarrierEstimate, results: dict[str, Any], version: str) -> None:
+    row.dg_kcal_mol, row.dg_err_kcal_mol = results.get("dg298_kcal_mol"), results.get("dg298_err_kcal_mol")
+    row.t_K, row.results, row.model, row.analysis_version = 298.15, results, EYRING_MODEL, version
+
+
+def sync_rate_table_barrier(session: Session, *, compound: Compound, measurement: Measurement, actor: str) -> None:
+    """The barrier row of an uploaded rate table (kind nmr_rates), kept in step with it.
+
+    Created with the measurement, rewritten from its stored fit after a re-analysis, archived
+    and restored with it (the caller commits).
+    """
+    row = session.exec(select(BarrierEstimate).where(BarrierEstimate.measurement_id == measurement.id)
+                       .order_by(BarrierEstimate.id)).first()
+    if row is None:
+        row = BarrierEstimate(compound_id=compound.id, method="eyring", measurement_id=measurement.id,
+                              created_by=actor)
+    _set_eyring(row, dict(measurement.results), measurement.analysis_version)
+    row.archived = measurement.archived
+    session.add(row)
 
 
 def list_barriers(session: Session, compound: Compound) -> list[BarrierEstimate]:

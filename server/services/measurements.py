@@ -18,14 +18,14 @@ from sqlmodel import Session, select
 
 from ..analysis.common import jsonable
 from ..errors import InputError
-from ..ingest.conditions import Conditions, parse_conditions
+from ..ingest.conditions import FORM_FIELDS, Conditions, form_value_as_given, parse_conditions
+from ..kinds import KINDS, Context, Kind
 from ..models import Batch, Compound, Measurement, RawFile, utcnow
 from ..plots import figure_json
-from . import audit, barriers, stats, verdicts
+from . import audit, stats, verdicts
 from .errors import Forbidden, NotFound, TooLarge
-from .kinds import KINDS, Context, Kind
 
-FORM_FIELDS = ("area", "thickness", "mass", "rate", "temperature", "frequency", "instrument", "operator", "notes", "endo")
+__all__ = ["FORM_FIELDS", "upload_measurement", "reanalyse", "reanalyse_one", "set_archived", "refresh_derived"]
 
 
 @dataclass(frozen=True)
@@ -104,7 +104,7 @@ def upload_measurement(
     rawfile = session.exec(select(RawFile).where(RawFile.sha256 == sha)).first()
     if rawfile is None:
         rawfile = RawFile(sha256=sha, size=len(raw), filename=_display_name(filename), data=raw,
-                          content_type="text/plain" if kind.table else "chemical/x-cif")
+                          content_type=kind.content_type)
         session.add(rawfile)
         session.flush()
     c = done.conditions
@@ -137,12 +137,7 @@ def upload_measurement(
         if again is None:
             raise
         return again, False
-    if kind.name == "nmr_rates":
-        barriers.barrier_from_rate_table(session, compound=compound, measurement=m, fit=done.result, actor=actor)
-    if kind.name == "crystal":
-        verdicts.record_crystal_phase(session, compound=compound, batch=batch, measurement=m)
-    verdicts.recompute(session, compound)
-    stats.refresh(session, compound)
+    refresh_derived(session, [m], actor=actor)
     audit.record(session, actor=actor, action="measurement.create", entity="measurement", code=str(m.id),
                  compound_id=compound.id, after={k: v for k, v in audit.snapshot(m).items() if k != "results"})
     session.commit()
@@ -184,26 +179,33 @@ def list_measurements(
     return list(rows), session.exec(count).one()
 
 
+def refresh_derived(session: Session, changed: Sequence[Measurement], *, actor: str) -> None:
+    """The one path after measurements are stored, archived, restored or re-analysed.
+
+    Each kind's derived rows (``Kind.derive``: the barrier of a rate table, the crystal phase
+    of a structure) are brought in step with its measurement, then every compound touched
+    gets its verdict and its CompoundStats row recomputed. The caller commits.
+    """
+    compounds: dict[int, Compound] = {}
+    for m in changed:
+        batch = session.get(Batch, m.batch_id)
+        compound = compounds.setdefault(batch.compound_id, session.get(Compound, batch.compound_id))
+        kind = KINDS.get(m.kind)
+        if kind is not None and kind.derive is not None:
+            kind.derive(session, compound=compound, batch=batch, measurement=m, actor=actor)
+    session.flush()
+    for compound_id in sorted(compounds):
+        verdicts.recompute(session, compounds[compound_id])
+        stats.refresh(session, compounds[compound_id])
+
+
 def reanalyse_one(session: Session, m: Measurement) -> Analysed:
     """Analyse a stored measurement again from its raw file, with the current code."""
     raw = session.get(RawFile, m.raw_file_id)
     batch = session.get(Batch, m.batch_id)
     compound = session.get(Compound, batch.compound_id)
-    form = {key: _stored_form_value(m.conditions, key) for key in FORM_FIELDS}
+    form = {key: form_value_as_given(m.conditions, key) for key in FORM_FIELDS}
     return analyse(get_kind(m.kind), raw.data, filename=raw.filename, form=form, context=context_for(compound))
-
-
-def _stored_form_value(conditions: Mapping[str, Any], key: str) -> Optional[str]:
-    # Re-analysis uses the conditions as first given on the form; file metadata is read again.
-    units = {"area": ("area_cm2", "cm^2"), "thickness": ("thickness_um", "um"), "mass": ("mass_mg", "mg"),
-             "rate": ("rate_K_min", "K/min"), "temperature": ("temperature_K", "K"),
-             "frequency": ("frequency_Hz", "Hz")}
-    if conditions.get("sources", {}).get(key) != "form":
-        return None
-    if key in units:
-        name, unit = units[key]
-        return f"{conditions[name]!r} {unit}" if conditions.get(name) is not None else None
-    return conditions.get(key)
 
 
 @dataclass(frozen=True)
@@ -236,13 +238,14 @@ def reanalyse(*, session: Session, kind: str | None = None, actor: str = "cli:re
         get_kind(kind)
         query = query.where(Measurement.kind == kind)
     changes = []
-    touched: set[int] = set()
+    touched: list[Measurement] = []
     for m in session.exec(query).all():
         try:
             done = reanalyse_one(session, m)
         except InputError as exc:
             changes.append(Change(m.id, m.kind, m.analysis_version, m.analysis_version, {}, error=str(exc)))
             continue
+        touched.append(m)  # read again: its derived rows are refreshed even when nothing moved
         diff = _diff(m.results, done.results)
         if done.verdict != m.verdict:
             diff["verdict"] = (m.verdict, done.verdict)
@@ -257,10 +260,7 @@ def reanalyse(*, session: Session, kind: str | None = None, actor: str = "cli:re
             audit.record(session, actor=actor, action="measurement.reanalyse", entity="measurement", code=str(m.id),
                          before=before, after={"results": m.results, "verdict": m.verdict,
                                                "analysis_version": m.analysis_version})
-            touched.add(session.get(Batch, m.batch_id).compound_id)
-    for compound_id in sorted(touched):
-        verdicts.recompute(session, session.get(Compound, compound_id))
-        stats.refresh(session, session.get(Compound, compound_id))
+    refresh_derived(session, touched, actor=actor)
     session.commit()
     return changes
 
@@ -295,7 +295,7 @@ def measurement_read(session: Session, m: Measurement) -> dict[str, Any]:
 
 
 def set_archived(*, session: Session, measurement: Measurement, archived: bool, actor: str) -> Measurement:
-    """Archive or restore a measurement; the raw file stays, the verdict and figures are recomputed."""
+    """Archive or restore a measurement; the raw file stays, its derived rows, the verdict and the figures follow."""
     measurement.archived = archived
     session.add(measurement)
     batch = session.get(Batch, measurement.batch_id)
@@ -303,8 +303,7 @@ def set_archived(*, session: Session, measurement: Measurement, archived: bool, 
     audit.record(session, actor=actor, action="measurement.archive" if archived else "measurement.restore",
                  entity="measurement", code=str(measurement.id), compound_id=compound.id,
                  before={"archived": not archived}, after={"archived": archived})
-    verdicts.recompute(session, compound)
-    stats.refresh(session, compound)
+    refresh_derived(session, [measurement], actor=actor)
     session.commit()
     session.refresh(measurement)
     return measurement

@@ -7,13 +7,13 @@ so the registry table and the explorer never read stale figures.
 
 from __future__ import annotations
 
-from collections import Counter
-from typing import Any, Iterable, Optional
+from typing import Iterable, Optional
 
 from sqlalchemy import delete, func
 from sqlmodel import Session, select
 
-from ..models import BarrierEstimate, Batch, Compound, CompoundSideChain, CompoundStats, CrystalPhase, Measurement
+from ..kinds import KINDS
+from ..models import BarrierEstimate, Batch, Compound, CompoundSideChain, CompoundStats, Measurement
 
 MEASURED_METHODS = ("coalescence", "eyring")  # barriers measured by dynamic NMR
 
@@ -60,23 +60,11 @@ def refresh(session: Session, compound: Compound) -> CompoundStats:
     stats.n_measurements = len(ms)
     kinds = sorted({m.kind for m in ms})
     stats.kinds = "," + ",".join(kinds) + "," if kinds else ""
-    loops = [m.results for m in ms if m.kind == "pe_loop" and m.verdict == "ferroelectric"]
-    best = max(loops, key=lambda r: r.get("pr_uC_cm2") or 0, default=None)
-    stats.pr_max_uC_cm2 = best.get("pr_uC_cm2") if best else None
-    stats.ec_kV_cm = best.get("ec_kV_cm") if best else None
-    stats.ps_uC_cm2 = best.get("ps_uC_cm2") if best else None
-    diel = [m.results for m in ms if m.kind == "dielectric" and m.results.get("t_peak_K") is not None]
-    last_diel = diel[-1] if diel else {}
-    stats.t_peak_K = last_diel.get("t_peak_K")
-    stats.eps_peak = last_diel.get("eps_peak")
-    stats.curie_constant_K = last_diel.get("curie_constant_K")
-    # The lowest-temperature DSC peak that is not melting (see verdicts.MELTING_DS_J_MOLK).
-    from .verdicts import _looks_like_melting
-
-    peaks = sorted((p for m in ms if m.kind == "dsc" for p in m.results.get("peaks") or []
-                    if p.get("peak_K") and not _looks_like_melting(p)), key=lambda p: p["peak_K"])
-    first: dict[str, Any] = peaks[0] if peaks else {}
-    stats.dsc_t_K, stats.dsc_ds_J_molK, stats.dsc_n_states = first.get("peak_K"), first.get("ds_J_molK"), first.get("n_states")
+    # Each kind fills its own fields from its live measurements (Kind.stats in server/kinds/).
+    for kind in KINDS.values():
+        if kind.stats is not None:
+            for name, value in kind.stats([m for m in ms if m.kind == kind.name]).items():
+                setattr(stats, name, value)
 
     bars = session.exec(select(BarrierEstimate).where(BarrierEstimate.compound_id == cid,
                                                       BarrierEstimate.archived == False)  # noqa: E712
@@ -88,14 +76,8 @@ def refresh(session: Session, compound: Compound) -> CompoundStats:
     # "Computed" for filtering: the latest GFN2-xTB estimate or imported calculation.
     stats.barrier_computed_kcal_mol = outside[-1].dg_kcal_mol if outside else None
     stats.dipole_D = computed[-1].results.get("dipole_D") if computed else None
-    crystal_depths = [m.results.get("bowl_depth_A") for m in ms if m.kind == "crystal"]
-    stats.bowl_depth_A = _max(crystal_depths) if _max(crystal_depths) is not None else (
-        computed[-1].results.get("bowl_depth_A") if computed else None)
-
-    phases = session.exec(select(CrystalPhase).where(CrystalPhase.compound_id == cid)).all()
-    stats.polar_phase = any(p.polar for p in phases) if phases else None
-    groups = Counter(p.space_group for p in phases if p.space_group)
-    stats.space_groups = ", ".join(sorted(groups))[:200]
+    if stats.bowl_depth_A is None and computed:  # no measured structure: the computed depth
+        stats.bowl_depth_A = computed[-1].results.get("bowl_depth_A")
     times = [compound.updated_at] + [b.created_at for b in batches] + [m.created_at for m in ms] + [b.created_at for b in bars]
     stats.last_activity_at = max(t for t in times if t is not None)
     session.add(stats)

@@ -9,54 +9,30 @@ from sqlmodel import Session, select
 from ..analysis import verdict as rules
 from ..analysis.common import Flag, jsonable
 from ..errors import InputError
-from ..models import Batch, Compound, CrystalPhase, Measurement, utcnow
+from ..kinds import KINDS
+from ..models import Batch, Compound, Measurement, utcnow
 from . import audit
 
-EVIDENCE_KINDS = ("pe_loop", "pund", "dielectric", "dsc", "crystal")
 
-
-def _details(m: Measurement) -> dict[str, Any]:
-    r = m.results or {}
-    if m.kind == "dielectric":
-        return {"t_peak_K": r.get("t_peak_K")} if r.get("t_peak_K") is not None else {}
-    if m.kind == "dsc":
-        return {"peak_K": [p["peak_K"] for p in r.get("peaks") or [] if p.get("peak_K") is not None
-                           and not _looks_like_melting(p)]}
-    if m.kind == "crystal":
-        return {"space_group": r.get("space_group")}
-    return {}
-
-
-# Walden's rule: entropies of fusion of rigid organic molecules are about 56 J/(mol K) (P. Walden,
-# Z. Elektrochem. 14, 713 (1908); memory), while order-disorder solid-solid transitions of a dipole
-# with a few orientations have R ln 2 to R ln 4, i.e. 6-12 J/(mol K). A DSC peak above 40 J/(mol K) is
-# taken as melting (common practice) and is not evidence of a ferroelectric phase transition.
-MELTING_DS_J_MOLK = 40.0
-
-
-def _looks_like_melting(peak: dict[str, Any]) -> bool:
-    ds = peak.get("ds_J_molK")
-    return ds is not None and abs(ds) > MELTING_DS_J_MOLK
-
-
-def _temperature(m: Measurement) -> Optional[float]:
-    if m.kind == "crystal":
-        return (m.results or {}).get("temperature_K") or m.temperature_K
-    return m.temperature_K
+def evidence_kinds() -> tuple[str, ...]:
+    """The kinds whose measurements the verdict uses (those that declare ``evidence``)."""
+    return tuple(k.name for k in KINDS.values() if k.evidence is not None)
 
 
 def evidence_for(session: Session, compound: Compound) -> list[rules.Evidence]:
     rows = session.exec(
         select(Measurement).join(Batch, Batch.id == Measurement.batch_id)
         .where(Batch.compound_id == compound.id, Measurement.archived == False,  # noqa: E712
-               Measurement.kind.in_(EVIDENCE_KINDS))
+               Measurement.kind.in_(evidence_kinds()))
         .order_by(Measurement.id)
     ).all()
-    return [
-        rules.Evidence(kind=m.kind, measurement_id=m.id, verdict=m.verdict or "", temperature_K=_temperature(m),
-                       details=_details(m), flags=tuple(Flag(f["code"], f["message"]) for f in m.flags or []))
-        for m in rows
-    ]
+    out = []
+    for m in rows:
+        facts = KINDS[m.kind].evidence(m.results or {}, m.temperature_K)
+        out.append(rules.Evidence(kind=m.kind, measurement_id=m.id, verdict=m.verdict or "",
+                                  temperature_K=facts.temperature_K, details=facts.details,
+                                  flags=tuple(Flag(f["code"], f["message"]) for f in m.flags or [])))
+    return out
 
 
 def batch_verdicts(session: Session, compound: Compound) -> dict[int, rules.CompoundVerdict]:
@@ -112,13 +88,3 @@ def verdict_read(compound: Compound) -> dict[str, Any]:
                            "reason": compound.override_reason, "by": compound.override_by,
                            "at": compound.override_at.isoformat() if compound.override_at else None}
     return out
-
-
-def record_crystal_phase(session: Session, *, compound: Compound, batch: Batch, measurement: Measurement) -> CrystalPhase:
-    r = measurement.results
-    phase = CrystalPhase(compound_id=compound.id, batch_id=batch.id, measurement_id=measurement.id,
-                         space_group=r.get("space_group") or "", space_group_number=r.get("space_group_number"),
-                         polar=r.get("polar"), centrosymmetric=r.get("centrosymmetric"),
-                         temperature_K=r.get("temperature_K"), results=r)
-    session.add(phase)
-    return phase

@@ -24,7 +24,7 @@ from ..access import Actor
 from ..analysis.verdict import LABELS as VERDICT_LABELS
 from ..errors import InputError
 from ..models import BATCH_STATES, Compound, CompoundSideChain, CompoundStats, Scaffold
-from .kinds import KINDS
+from ..kinds import KINDS
 
 VerdictCol = func.coalesce(Compound.override_code, Compound.verdict_code)
 

@@ -9,7 +9,7 @@ from ..deps import PageAdmin, RowId, SessionDep
 from ..errors import InputError
 from ..services import accounts
 from ..services.errors import Duplicate, NotFound
-from ..services.kinds import KINDS
+from ..kinds import KINDS
 from .render import redirect, render
 
 router = APIRouter(include_in_schema=False)

@@ -20,7 +20,7 @@ from ..models import CompoundCreate, CompoundUpdate, SideChainSpec
 from ..services import barriers, estimates, registry, status, verdicts, views
 from ..services.compound_page import compound_page as compound_page_data
 from ..services.errors import Duplicate
-from ..services.kinds import KINDS
+from ..kinds import KINDS
 from .render import fragment_or_redirect, redirect, render
 
 router = APIRouter(include_in_schema=False)

@@ -31,27 +31,30 @@ UNIT_SUFFIXES: tuple[tuple[str, str], ...] = (
     ("_s", "s"),
 )
 
-LABELS = {
-    "pr": "Pr", "pr_pos": "Pr+", "pr_neg": "Pr−", "ec": "Ec", "ec_pos": "Ec+", "ec_neg": "Ec−",
-    "pmax": "Pmax", "emax": "Emax", "ps": "Ps", "imprint": "imprint", "loss": "loss per cycle",
-    "t_peak": "T peak", "eps_peak": "ε′ peak", "t0": "T0", "curie_constant": "Curie constant C",
-    "dg": "ΔG", "dh": "ΔH", "ds": "ΔS", "dg298": "ΔG(298 K)", "ea": "Ea", "k": "k",
-}
+def _result_key(key: str, kind: str | None):
+    """The label, unit and digits a kind module declares for ``key`` (``server/kinds/``), if any."""
+    from ..kinds import KINDS
+
+    if kind in KINDS:
+        return KINDS[kind].result_key(key)
+    return next((rk for k in KINDS.values() if (rk := k.result_key(key)) is not None), None)
 
 
-# Unit cell keys from the crystal analysis (lengths in Å, angles in degrees, volume in Å³).
-CELL_UNITS = {"a": "Å", "b": "Å", "c": "Å", "alpha": "°", "beta": "°", "gamma": "°", "volume": "Å³"}
-
-
-def split_key(key: str) -> tuple[str, str]:
-    """('pr_pos_uC_cm2') -> ('Pr+', 'µC/cm²'); keys without a unit suffix keep an empty unit."""
-    if key in CELL_UNITS:
-        return key, CELL_UNITS[key]
+def split_key(key: str, kind: str | None = None) -> tuple[str, str]:
+    """('pr_pos_uC_cm2', 'pe_loop') -> ('Pr+', 'µC/cm²'): the kind's own label, else the unit read off the
+    key's suffix (keys without a unit suffix keep an empty unit)."""
+    rk = _result_key(key, kind)
+    if rk is not None:
+        return rk.label, rk.unit
     for suffix, unit in UNIT_SUFFIXES:
         if key.endswith(suffix) and len(key) > len(suffix):
-            base = key[: -len(suffix)]
-            return LABELS.get(base, base.replace("_", " ")), unit
-    return LABELS.get(key, key.replace("_", " ")), ""
+            return key[: -len(suffix)].replace("_", " "), unit
+    return key.replace("_", " "), ""
+
+
+def digits_of(key: str, kind: str | None = None) -> int:
+    rk = _result_key(key, kind)
+    return rk.digits if rk is not None else 4
 
 
 def number(value: Any, digits: int = 4) -> str:
@@ -69,16 +72,33 @@ def number(value: Any, digits: int = 4) -> str:
     return str(value)
 
 
-def scalar_items(results: dict[str, Any]) -> list[tuple[str, str, Any]]:
-    """(label, unit, value) for the scalar results, in the analysis's own order."""
+def scalar_items(results: dict[str, Any], kind: str | None = None) -> list[tuple[str, str, Any, int]]:
+    """(label, unit, value, significant digits) for the scalar results, in the analysis's own order."""
     out = []
     for key, value in results.items():
         if isinstance(value, (int, float, str, bool)):
             if key in ("verdict", "source"):
                 continue
-            label, unit = split_key(key)
-            out.append((label, unit, value))
+            label, unit = split_key(key, kind)
+            out.append((label, unit, value, digits_of(key, kind)))
     return out
+
+
+def summary(kind: str, results: dict[str, Any]) -> str:
+    """The one-line summary of a measurement: its kind's summary keys, labelled (lists are counted)."""
+    from ..kinds import KINDS
+
+    if kind not in KINDS:
+        return ""
+    parts = []
+    for rk, value in KINDS[kind].summary_items(results):
+        if isinstance(value, list):
+            parts.append(f"{len(value)} {rk.label}")
+        elif isinstance(value, (int, float)) and not isinstance(value, bool):
+            parts.append(f"{rk.label} {number(value, rk.digits)}" + (f" {rk.unit}" if rk.unit else ""))
+        else:
+            parts.append(str(value))
+    return ", ".join(parts)
 
 
 # Short names for tables and map cells; the full sentences (analysis.verdict.LABELS) go in legends and titles.
@@ -98,4 +118,6 @@ def install(env) -> None:  # noqa: ANN001 - a jinja2 Environment
     env.filters["number"] = number
     env.filters["scalar_items"] = scalar_items
     env.globals["split_key"] = split_key
+    env.globals["digits_of"] = digits_of
+    env.globals["measurement_summary"] = summary
     env.globals["verdict_short"] = VERDICT_SHORT

@@ -8,10 +8,11 @@ from fastapi import APIRouter, File, Form, Request, UploadFile
 from fastapi.responses import HTMLResponse
 from ..deps import PageActor, PageWriter, RowId, SessionDep, SettingsDep
 from ..errors import InputError
+from ..ingest.conditions import CONDITION_EXAMPLES
+from ..kinds import KINDS, needed_by
 from ..models import Batch, Compound
 from ..services import measurements, registry
 from ..services.errors import Forbidden
-from ..services.kinds import KINDS
 from .render import redirect, render
 
 router = APIRouter(include_in_schema=False)
@@ -20,7 +21,7 @@ FIELDS = measurements.FORM_FIELDS
 
 
 def _upload_context(batch: Batch, compound: Compound, form: dict, error: Optional[str] = None) -> dict:
-    return {"batch": batch, "c": compound, "kinds": KINDS, "form": form, "error": error}
+    return {"batch": batch, "c": compound, "kinds": KINDS, "needed_by": needed_by(), "examples": CONDITION_EXAMPLES, "form": form, "error": error}
 
 
 @router.get("/batches/{code}/upload", response_class=HTMLResponse)

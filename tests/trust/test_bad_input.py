@@ -3,7 +3,7 @@ file names, SQL / script / template injection in every text field.
 
 Invariants (SQLite and PostgreSQL):
 
-* no garbage file of any kind in ``server.services.kinds.KINDS`` gives a 5xx (the in-process
+* no garbage file of any kind in ``server.kinds.KINDS`` gives a 5xx (the in-process
   TestClient re-raises a server exception, so a crash surfaces with its traceback);
 * an upload that is not answered 2xx stores nothing (Measurement and RawFile counts unchanged),
   and one that is answered 2xx stores at most one measurement;
@@ -24,7 +24,7 @@ from hypothesis import HealthCheck, given, settings as hsettings, strategies as 
 from sqlmodel import select
 
 from server.models import Compound, RawFile
-from server.services.kinds import KINDS
+from server.kinds import KINDS
 from tests.factories import bearer, login_as, make_token, soup
 
 from .conftest import counts, loop_bytes

@@ -53,7 +53,7 @@ def list_tokens(session: SessionDep, actor: Admin) -> dict[str, Any]:
 @router.post("/tokens", status_code=201, responses={**AUTH_ERRORS, **INPUT_ERRORS})
 def create_token(data: TokenIn, session: SessionDep, actor: Admin) -> dict[str, Any]:
     """The secret is in `token`, shown this once; only its hash is stored."""
-    from ...services.kinds import KINDS
+    from ...kinds import KINDS
     from ...errors import InputError
 
     for k in data.kinds or []:

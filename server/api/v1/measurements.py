@@ -9,6 +9,7 @@ from fastapi.responses import JSONResponse, Response
 from pydantic import BaseModel
 
 from ...deps import Offset, Reader, RowId, SessionDep, SettingsDep, Uploader, Writer
+from ...kinds import KINDS
 from ...models import RawFile
 from ...services import measurements, registry
 from .responses import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND, ErrorOut
@@ -56,7 +57,7 @@ def upload(
     session: SessionDep,
     settings: SettingsDep,
     actor: Uploader,
-    kind: Annotated[str, Form(description="pe_loop, pund, dielectric, dsc, nmr_rates or crystal")],
+    kind: Annotated[str, Form(description="one of " + ", ".join(KINDS))],
     file: Annotated[UploadFile, File(description="the instrument's raw file (CSV, TSV, XLSX or CIF)")],
     area: Annotated[Optional[str], Form(description="electrode area, e.g. '0.785 mm^2'")] = None,
     thickness: Annotated[Optional[str], Form(description="sample thickness, e.g. '150 um'")] = None,

@@ -1,0 +1,223 @@
+"""What a measurement kind is: the parts every module under ``server/kinds/`` declares.
+
+A kind binds an upload ``kind`` name to everything the rest of the application needs to
+know about it, in one place:
+
+* what it reads: column sets named by the canonical quantities of
+  :mod:`server.ingest.columns`, and the measurement conditions it uses, named by the
+  condition fields of :mod:`server.ingest.conditions`;
+* the pure analysis it calls (``server/analysis/<method>.py``), whose ``METHOD`` and
+  ``VERSION`` it carries;
+* its result keys with labels, units and display precision (the web formatter reads them);
+* the evidence it gives the compound verdict, the derived rows it keeps in step (barriers,
+  crystal phases) and its contribution to the CompoundStats row;
+* its figure, its one-line summary and its example-file generator.
+
+:func:`check_kind` says what a kind lacks; ``server.kinds`` refuses to register an
+incomplete kind and ``tests/kinds`` checks every registered one.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, field
+from types import ModuleType
+from typing import Any, Optional
+
+import numpy as np
+import plotly.graph_objects as go
+
+from ..ingest.columns import BY_NAME as QUANTITY_BY_NAME
+from ..ingest.conditions import CONDITION_FIELDS, Conditions
+from ..ingest.table import ParsedTable, read_table, to_csv_bytes
+
+
+@dataclass(frozen=True)
+class Context:
+    """What the registry knows about the sample, for analyses that need it."""
+
+    formula: Optional[str] = None
+    molar_mass_g_mol: Optional[float] = None
+    smiles: Optional[str] = None
+
+
+@dataclass(frozen=True)
+class ResultKey:
+    """One result key as people read it: ``pr_uC_cm2`` -> ``Pr``, ``µC/cm²``, 3 significant digits."""
+
+    key: str
+    label: str
+    unit: str = ""
+    digits: int = 4
+
+
+@dataclass(frozen=True)
+class Need:
+    """Condition fields (``area``, ``thickness``...) a kind uses, and when it needs them."""
+
+    fields: tuple[str, ...]
+    when: str = ""
+
+    def text(self) -> str:
+        return " and ".join(self.fields) + (f" {self.when}" if self.when else "")
+
+
+@dataclass(frozen=True)
+class Evidence:
+    """What a stored measurement tells the verdict: the temperature it speaks for and details."""
+
+    temperature_K: Optional[float]
+    details: dict[str, Any] = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class Example:
+    """An example upload: its file name, its bytes (conditions in ``# key: value`` lines) and the
+    model parameters it was generated from, so tests can check the analysis recovers them."""
+
+    filename: str
+    raw: bytes
+    model: dict[str, Any] = field(default_factory=dict)
+
+
+# Sample geometry of the example pellets (typical pressed-pellet values, common practice).
+EXAMPLE_AREA_CM2 = 0.0785  # 3.16 mm diameter electrode
+EXAMPLE_THICKNESS_UM = 150.0
+#: The bowl every example file describes: the hexamethoxy CH2-bridged triphenylene bowl
+#: (C27H24O6), the first compound of the invented demo campaign.
+EXAMPLE_SMILES = "COc1c(OC)c2c3c4c1Cc1c(OC)c(OC)c5c(c14)c1c(c(OC)c(OC)c(c31)C2)C5"
+
+
+def example_csv(frame, conditions: Mapping[str, str], metadata: Mapping[str, str] | None = None) -> bytes:
+    """An example table file: its conditions as ``# key: value`` lines first, then the frame."""
+    return to_csv_bytes(frame, {**conditions, **(metadata or {})})
+
+
+@dataclass(frozen=True)
+class Kind:
+    """One measurement kind; see the module docstring for the parts.
+
+    ``analyse(parsed, conditions, context)`` returns the analysis result (a frozen dataclass
+    with ``to_dict()``, ``flags`` and, where the method defines one, ``verdict``).
+    ``figure(parsed, result)`` builds the plotly figure, or is None for a kind without one.
+    ``evidence(results, temperature_K)`` is None for kinds the verdict does not use.
+    ``stats(measurements)`` returns the CompoundStats fields this kind fills, from the
+    compound's live (not archived) measurements of this kind, oldest first; it returns
+    every field it owns, None (or "" for a text field) where there is nothing to say.
+    ``derive(session, compound, batch, measurement, actor)`` keeps the kind's derived rows
+    (BarrierEstimate, CrystalPhase) in step with a stored measurement: created on upload,
+    rewritten on re-analysis, archived and restored with it.
+    """
+
+    name: str
+    label: str
+    analysis: ModuleType  # server.analysis.<method>: METHOD and VERSION
+    analyse: Callable[[Any, Conditions, Context], Any]
+    results: tuple[ResultKey, ...]
+    summary_keys: tuple[str, ...]
+    example: Callable[[], Example]
+    column_sets: tuple[tuple[str, ...], ...] = ()  # alternatives, each a tuple of QUANTITIES names
+    optional_columns: tuple[str, ...] = ()
+    columns_text: str = ""  # for kinds not read as a table (CIF)
+    needs: tuple[Need, ...] = ()
+    figure: Optional[Callable[[Any, Any], go.Figure]] = None
+    evidence: Optional[Callable[[Mapping[str, Any], Optional[float]], Evidence]] = None
+    stats: Optional[Callable[[Sequence[Any]], dict[str, Any]]] = None  # Measurement rows
+    derive: Optional[Callable[..., None]] = None
+    no_figure_reason: str = ""  # says why ``figure`` is None
+    content_type: str = "text/plain"
+
+    @property
+    def table(self) -> bool:
+        """Read with ingest.read_table (False: the analysis reads the raw bytes)."""
+        return bool(self.column_sets)
+
+    @property
+    def version(self) -> str:
+        return self.analysis.VERSION
+
+    @property
+    def method(self) -> str:
+        return self.analysis.METHOD
+
+    def read(self, raw: bytes, filename: str | None) -> Any:
+        return read_table(raw, filename=filename) if self.table else raw
+
+    def columns_in_words(self, quote: str = "") -> str:
+        """The accepted columns, from the canonical quantities (``quote="`"`` for Markdown)."""
+        if not self.table:
+            return self.columns_text
+
+        def headers(names: tuple[str, ...]) -> str:
+            return ", ".join(f"{quote}{QUANTITY_BY_NAME[q].header}{quote}" for q in names)
+
+        text = "; or ".join(headers(s) for s in self.column_sets)
+        return text + (f"; optional {headers(self.optional_columns)}" if self.optional_columns else "")
+
+    @property
+    def columns(self) -> str:
+        """The accepted columns in words (the upload page)."""
+        return self.columns_in_words()
+
+    @property
+    def needs_text(self) -> str:
+        return "; ".join(n.text() for n in self.needs)
+
+    @property
+    def condition_fields(self) -> tuple[str, ...]:
+        """Every condition field this kind uses, in declaration order."""
+        out: list[str] = []
+        for n in self.needs:
+            out.extend(f for f in n.fields if f not in out)
+        return tuple(out)
+
+    def result_key(self, key: str) -> Optional[ResultKey]:
+        return next((r for r in self.results if r.key == key), None)
+
+    def summary_items(self, results: Mapping[str, Any]) -> list[tuple[ResultKey, Any]]:
+        """The summary keys present in ``results``, with their labels (the web formats the line)."""
+        keys = {r.key: r for r in self.results}
+        return [(keys[k], results[k]) for k in self.summary_keys if results.get(k) is not None]
+
+    def readme_row(self) -> str:
+        """This kind's row of the README's table of upload kinds."""
+        return f"| `{self.name}` | {self.columns_in_words('`')} | {self.needs_text} |"
+
+
+def check_kind(kind: Kind) -> list[str]:
+    """What ``kind`` lacks or gets wrong, as sentences (empty: complete)."""
+    problems = []
+    if not kind.name.isidentifier() or kind.name != kind.name.lower():
+        problems.append(f"name {kind.name!r} is not a lower-case identifier")
+    for attr in ("METHOD", "VERSION"):
+        if not getattr(kind.analysis, attr, ""):
+            problems.append(f"analysis module {kind.analysis.__name__} has no {attr}")
+    if not kind.table and not kind.columns_text:
+        problems.append("neither column sets nor a description of the file it reads")
+    for q in {q for s in kind.column_sets for q in s} | set(kind.optional_columns):
+        if q not in QUANTITY_BY_NAME:
+            problems.append(f"column {q!r} is not a canonical quantity of server.ingest.columns")
+    for f in kind.condition_fields:
+        if f not in CONDITION_FIELDS:
+            problems.append(f"condition {f!r} is not a field of server.ingest.conditions")
+    if not kind.results:
+        problems.append("no result keys with labels")
+    keys = [r.key for r in kind.results]
+    if len(keys) != len(set(keys)):
+        problems.append("a result key is declared twice")
+    for key in kind.summary_keys:
+        if key not in keys:
+            problems.append(f"summary key {key!r} has no label")
+    if not kind.summary_keys:
+        problems.append("no summary keys")
+    if kind.figure is None and not kind.no_figure_reason:
+        problems.append("no figure, and no reason given for having none")
+    for attr in ("analyse", "example"):
+        if not callable(getattr(kind, attr)):
+            problems.append(f"{attr} is not callable")
+    return problems
+
+
+def rng_for(kind_name: str, seed: int = 2026) -> np.random.Generator:
+    """The seeded generator of a kind's example file (deterministic output)."""
+    return np.random.default_rng([seed, sum(kind_name.encode())])

@@ -1,0 +1,48 @@
+"""The pages take what they say about a kind from its module: upload hints, result labels, summaries."""
+
+from __future__ import annotations
+
+from server.ingest.conditions import CONDITION_EXAMPLES
+from server.kinds import KINDS, needed_by
+from server.kinds.base import EXAMPLE_SMILES
+from tests.factories import login_as, soup
+
+
+def test_upload_page_hints_come_from_the_kind_modules(client, session):
+    csrf = login_as(client, session)
+    client.post("/compounds/new", data={"smiles": EXAMPLE_SMILES, "csrf_token": csrf})
+    client.post("/compounds/RMN-00001/batches/new", data={"state": "made", "csrf_token": csrf})
+    page = soup(client.get("/batches/RMN-00001-B01/upload").text)
+    for field, kinds in needed_by().items():
+        control = page.find(attrs={"name": field})
+        assert control is not None, field
+        hint = control.find_parent("label").find("small", class_="hint").text
+        assert hint == ", ".join(kinds), field
+        if field in CONDITION_EXAMPLES and control.name == "input":
+            assert control["placeholder"] == CONDITION_EXAMPLES[field]
+    assert needed_by()["mass"] == ("dsc",) and "pe_loop" in needed_by()["area"]
+    rows = {tr.find("code").text: [td.text for td in tr.find_all("td")[1:]] for tr in page.select("section table tbody tr")}
+    assert rows == {k.name: [k.columns, k.needs_text] for k in KINDS.values()}
+
+
+def test_measurement_and_compound_pages_use_the_kinds_labels(client, session):
+    csrf = login_as(client, session)
+    client.post("/compounds/new", data={"smiles": EXAMPLE_SMILES, "csrf_token": csrf})
+    client.post("/compounds/RMN-00001/batches/new", data={"state": "made", "csrf_token": csrf})
+    ids = {}
+    for name in ("pe_loop", "nmr_rates"):
+        ex = KINDS[name].example()
+        r = client.post("/batches/RMN-00001-B01/upload", data={"kind": name, "csrf_token": csrf},
+                        files={"file": (ex.filename, ex.raw)}, follow_redirects=False)
+        assert r.status_code == 303, r.text
+        ids[name] = r.headers["location"]
+    page = soup(client.get(ids["nmr_rates"]).text)
+    rows = {tr.th.text: [td.text for td in tr.find_all("td")] for tr in page.select("table.results tr")}
+    label = KINDS["nmr_rates"].result_key("dg298_kcal_mol")
+    assert rows[label.label][1] == label.unit == "kcal/mol"
+    # dH = 78.5 kJ/mol, dS = -6 J/(mol K): dG(298.15 K) = (78.5 + 1.789) / 4.184 = 19.19 kcal/mol (Eyring 1935)
+    assert abs(float(rows[label.label][0]) - 19.19) < 0.3
+    compound = soup(client.get("/compounds/RMN-00001").text)
+    cells = [tr.find_all("td")[4].text for tr in compound.select("#measurements tbody tr")]
+    assert any(c.startswith("Pr ") and "µC/cm²" in c and ", Ec " in c for c in cells), cells
+    assert any(c.startswith("ΔG‡(298 K) ") and c.endswith("kcal/mol") for c in cells), cells

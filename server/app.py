@@ -18,10 +18,12 @@ from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.middleware.sessions import SessionMiddleware
 
 from . import __version__
+from .api import docs_page as api_docs_page
 from .db import make_engine
 from .errors import InputError
 from .services.errors import Duplicate, Forbidden, NotFound
-from .settings import PROJECT_ROOT, Settings, get_settings
+from .package_files import static_dir, templates_dir
+from .settings import Settings, get_settings
 from .web import format as format_filters
 from .web import measurements as measurement_pages
 from .web import pages
@@ -119,17 +121,20 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         engine.dispose()
 
     app = FastAPI(
-        title="Remanence",
+        title="Remanence API",
         version=__version__,
         summary="Registry and dashboard for molecular-ferroelectric campaigns.",
         lifespan=lifespan,
+        # /docs is our own page (server.api.docs_page): the stock pages load a CDN the CSP blocks.
+        docs_url=None,
+        redoc_url=None,
         # Starlette's body limit: refuses by Content-Length, else counts the body as it streams, so an
         # oversized upload is never read whole. Room is left for the multipart envelope and form fields.
         max_body_size=settings.max_upload_bytes + 64 * 1024,
     )
     app.state.settings = settings
     app.state.engine = engine
-    templates = Jinja2Templates(directory=str(PROJECT_ROOT / "templates"))
+    templates = Jinja2Templates(directory=str(templates_dir()))
     templates.env.globals.update(version=__version__, plotly_version=PLOTLY_VERSION)
     format_filters.install(templates.env)
     app.state.templates = templates
@@ -156,12 +161,13 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     from .api.v1 import router as api_router
 
     app.include_router(api_router)
+    app.include_router(api_docs_page.router)
     app.include_router(pages.router)
     app.include_router(measurement_pages.router)
     app.include_router(science_pages.router)
     app.include_router(campaign_pages.router)
     app.include_router(admin_pages.router)
-    app.mount("/static", StaticFiles(directory=str(PROJECT_ROOT / "static")), name="static")
+    app.mount("/static", StaticFiles(directory=str(static_dir())), name="static")
 
     @app.get(f"/assets/plotly-{PLOTLY_VERSION}.min.js", include_in_schema=False)
     def plotly_js() -> FileResponse:

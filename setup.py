@@ -8,7 +8,8 @@ ships each one inside the ``server`` package (``server/templates`` and so on in 
 
 from setuptools import find_namespace_packages, find_packages, setup
 
-# Package inside the wheel -> folder in the repository.
+# Package inside the wheel -> folder in the repository (the same three as server.package_files.BUNDLED_FOLDERS;
+# tests/packaging/test_wheel.py checks the installed wheel has each).
 BUNDLED = {"server.templates": "templates", "server.static": "static", "server.migrations": "migrations"}
 # Files each bundled folder ships besides Python modules (sub-folders included).
 BUNDLED_FILES = {"server.templates": ["*.html"], "server.static": ["*"], "server.migrations": ["*.mako"]}

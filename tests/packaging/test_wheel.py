@@ -23,6 +23,8 @@ from pathlib import Path
 import httpx
 import pytest
 
+from server.package_files import BUNDLED_FOLDERS
+
 REPO = Path(__file__).resolve().parents[2]
 pytestmark = pytest.mark.slow
 
@@ -70,6 +72,11 @@ def test_server_is_imported_from_the_new_virtualenv(installed):
     path = Path(where.strip()).resolve()
     assert path.is_relative_to(venv.resolve()), path
     assert not path.is_relative_to(REPO), path
+    # Every folder server.package_files resolves travels inside the package (setup.py maps them).
+    for name in BUNDLED_FOLDERS:
+        assert (path.parent / name).is_dir(), f"the wheel lacks server/{name}"
+    assert (path.parent / "templates" / "pages" / "login.html").is_file()
+    assert list((path.parent / "migrations" / "versions").glob("0001_*.py"))
 
 
 def test_the_installed_app_initialises_serves_pages_and_static_files(installed):

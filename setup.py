@@ -11,13 +11,14 @@ from setuptools import find_namespace_packages, find_packages, setup
 # Package inside the wheel -> folder in the repository (the same three as server.package_files.BUNDLED_FOLDERS;
 # tests/packaging/test_wheel.py checks the installed wheel has each).
 BUNDLED = {"server.templates": "templates", "server.static": "static", "server.migrations": "migrations"}
-# Files each bundled folder ships besides Python modules (sub-folders included).
-BUNDLED_FILES = {"server.templates": ["*.html"], "server.static": ["*"], "server.migrations": ["*.mako"]}
+# Files each bundled folder ships besides Python modules. The globs are recursive: folders whose
+# names are not package names (static/vendor/swagger-ui-dist-5.35.0) travel only this way.
+BUNDLED_FILES = {"server.templates": ["**/*.html"], "server.static": ["**/*"], "server.migrations": ["*.mako"]}
 
 
 def _with_subfolders(package: str, folder: str) -> list[str]:
-    # Every sub-folder is listed as a (namespace) package of its own, as setuptools asks,
-    # so that pages/, partials/, vendor/..., versions/ travel with their files.
+    # Sub-folders that could be imported (pages/, partials/, vendor/, versions/...) are listed as
+    # (namespace) packages, as setuptools asks; their Python modules (migrations/versions) travel so.
     subs = find_namespace_packages(where=folder, exclude=["*__pycache__*"])
     return [package] + [f"{package}.{sub}" for sub in subs]
 
@@ -25,9 +26,8 @@ def _with_subfolders(package: str, folder: str) -> list[str]:
 packages = find_packages(include=["server", "server.*", "seed_demo", "seed_demo.*"]) + ["seed_demo.examples"]
 package_data = {"seed_demo.examples": ["*"]}
 for package, folder in BUNDLED.items():
-    for name in _with_subfolders(package, folder):
-        packages.append(name)
-        package_data[name] = BUNDLED_FILES[package]
+    packages += _with_subfolders(package, folder)
+    package_data[package] = BUNDLED_FILES[package]
 
 setup(
     packages=packages,

@@ -6,7 +6,7 @@ through a .pth file naming the site-packages of the interpreter running the test
 or CI virtualenv), so nothing is downloaded beyond the build requirements from the package index.
 The test then checks that ``server`` really comes from the new virtualenv, runs
 ``remanence init`` and ``remanence serve`` there, outside the repository, and fetches ``/login``,
-a stylesheet, the vendored htmx and the offline API documentation page.
+a stylesheet, the vendored htmx, the offline API documentation page and its Swagger UI bundle.
 """
 
 from __future__ import annotations
@@ -23,6 +23,7 @@ from pathlib import Path
 import httpx
 import pytest
 
+from server.api.docs_page import SWAGGER_UI_DIR
 from server.package_files import BUNDLED_FOLDERS
 
 REPO = Path(__file__).resolve().parents[2]
@@ -75,8 +76,17 @@ def test_server_is_imported_from_the_new_virtualenv(installed):
     # Every folder server.package_files resolves travels inside the package (setup.py maps them).
     for name in BUNDLED_FOLDERS:
         assert (path.parent / name).is_dir(), f"the wheel lacks server/{name}"
-    assert (path.parent / "templates" / "pages" / "login.html").is_file()
-    assert list((path.parent / "migrations" / "versions").glob("0001_*.py"))
+    # ... with every file of the checkout's folder, byte for byte (a vendored folder whose name is
+    # not a package name, such as swagger-ui-dist-<version>, is the case that slips most easily).
+    for name in BUNDLED_FOLDERS:
+        source = REPO / name
+        wanted = {p.relative_to(source) for p in source.rglob("*")
+                  if p.is_file() and "__pycache__" not in p.parts}
+        shipped = {p.relative_to(path.parent / name) for p in (path.parent / name).rglob("*")
+                   if p.is_file() and "__pycache__" not in p.parts}
+        assert wanted - shipped == set(), f"server/{name} in the wheel lacks {sorted(map(str, wanted - shipped))}"
+        for rel in wanted:
+            assert (path.parent / name / rel).read_bytes() == (source / rel).read_bytes(), rel
 
 
 def test_the_installed_app_initialises_serves_pages_and_static_files(installed):
@@ -111,6 +121,8 @@ def test_the_installed_app_initialises_serves_pages_and_static_files(installed):
         assert js.status_code == 200 and "javascript" in js.headers["content-type"]
         docs = httpx.get(f"{base}/docs", timeout=5)
         assert docs.status_code == 200 and "<title>Remanence API</title>" in docs.text
+        bundle = httpx.get(f"{base}{SWAGGER_UI_DIR}/swagger-ui-bundle.js", timeout=10)
+        assert bundle.status_code == 200 and "javascript" in bundle.headers["content-type"]
     finally:
         proc.terminate()
         try:

@@ -6,7 +6,7 @@ STAMP  := $(VENV)/.installed
 
 .PHONY: demo test test-fast bench install clean
 
-$(STAMP): pyproject.toml
+$(STAMP): pyproject.toml setup.py
 	@test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
 	$(BIN)/python -m pip install -q --upgrade pip
 	$(BIN)/python -m pip install -q -e '.[test]'

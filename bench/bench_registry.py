@@ -43,6 +43,7 @@ from server.analysis.verdict import LABELS as VERDICT_LABELS
 from server.db import make_engine
 from server.access import Actor
 from server.services import views
+from server.package_files import templates_dir
 from server.settings import PROJECT_ROOT
 from server.web import format as format_filters
 
@@ -126,7 +127,7 @@ def direct_renderer(database_url: str):
     ``query_only`` is the query alone, ``template_only`` the render of one fixed result alone.
     """
     engine = make_engine(database_url)
-    env = jinja2.Environment(loader=jinja2.FileSystemLoader(str(PROJECT_ROOT / "templates")),
+    env = jinja2.Environment(loader=jinja2.FileSystemLoader(str(templates_dir())),
                              autoescape=jinja2.select_autoescape())
     format_filters.install(env)
     template = env.get_template("partials/compound_table.html")

@@ -8,7 +8,7 @@ transition near 432 K, the demo campaign's first compound. The measurement condi
 written into the file as ``# key: value`` lines, so each uploads without any form field:
 
     curl -H "Authorization: Bearer $TOKEN" -F kind=pe_loop -F file=@seed_demo/examples/pe_loop.csv \\
-         http://127.0.0.1:8000/api/v1/batches/RMN-00001-B01/measurements
+         http://127.0.0.1:8000/api/v1/batches/RVZ-00001-B01/measurements
 
 The output is deterministic (seeded noise); ``tests/test_demo.py`` checks that the stored
 files are what this script writes.

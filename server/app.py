@@ -18,11 +18,13 @@ from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.middleware.sessions import SessionMiddleware
 
 from . import __version__
+from .api import docs_page as api_docs_page
 from .db import make_engine
 from .errors import InputError
 from .access import NotLoggedIn, Refused, may_see_structure
 from .services.errors import Duplicate, Forbidden, NotFound, TooLarge
-from .settings import PROJECT_ROOT, Settings, get_settings
+from .package_files import static_dir, templates_dir
+from .settings import Settings, get_settings
 from .web import format as format_filters
 from .web import admin as admin_pages
 from .web import auth as auth_pages
@@ -126,17 +128,20 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         engine.dispose()
 
     app = FastAPI(
-        title="Remanence",
+        title="Remanence API",
         version=__version__,
         summary="Registry and dashboard for molecular-ferroelectric campaigns.",
         lifespan=lifespan,
+        # /docs is our own page (server.api.docs_page): the stock pages load a CDN the CSP blocks.
+        docs_url=None,
+        redoc_url=None,
         # Starlette's body limit: refuses by Content-Length, else counts the body as it streams, so an
         # oversized upload is never read whole. Room is left for the multipart envelope and form fields.
         max_body_size=settings.max_upload_bytes + 64 * 1024,
     )
     app.state.settings = settings
     app.state.engine = engine
-    templates = Jinja2Templates(directory=str(PROJECT_ROOT / "templates"))
+    templates = Jinja2Templates(directory=str(templates_dir()))
     templates.env.globals.update(version=__version__, plotly_version=PLOTLY_VERSION,
                                  may_see_structure=may_see_structure)
     format_filters.install(templates.env)
@@ -164,10 +169,11 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     from .api.v1 import router as api_router
 
     app.include_router(api_router)
+    app.include_router(api_docs_page.router)
     for pages in (auth_pages, compound_pages, batch_pages, scaffold_pages, measurement_pages, campaign_pages,
                   admin_pages):
         app.include_router(pages.router)
-    app.mount("/static", StaticFiles(directory=str(PROJECT_ROOT / "static")), name="static")
+    app.mount("/static", StaticFiles(directory=str(static_dir())), name="static")
 
     @app.get(f"/assets/plotly-{PLOTLY_VERSION}.min.js", include_in_schema=False)
     def plotly_js() -> FileResponse:

@@ -16,7 +16,7 @@ from sqlalchemy import event
 from sqlalchemy.engine import Engine, make_url
 from sqlmodel import create_engine
 
-from .settings import PROJECT_ROOT
+from .package_files import migrations_dir
 
 SQLITE_BUSY_TIMEOUT_MS = 15_000
 
@@ -48,7 +48,7 @@ def make_engine(database_url: str, *, echo: bool = False, busy_ms: int = SQLITE_
 def alembic_config(database_url: str) -> Config:
     """Alembic configuration pointing at this project's migrations and the given database."""
     cfg = Config()
-    cfg.set_main_option("script_location", str(PROJECT_ROOT / "migrations"))
+    cfg.set_main_option("script_location", str(migrations_dir()))
     cfg.set_main_option("sqlalchemy.url", database_url.replace("%", "%%"))
     cfg.attributes["configure_logger"] = False
     return cfg

@@ -49,7 +49,12 @@ SETTINGS: tuple[Setting, ...] = (
         "REMANENCE_SECRET_KEY",
         "Key that signs session cookies; generated into the data folder on first run when unset.",
     ),
-    Setting("code_prefix", "REMANENCE_CODE_PREFIX", "Prefix of compound registry codes (e.g. RMN gives RMN-00042)."),
+    Setting(
+        "code_prefix",
+        "REMANENCE_CODE_PREFIX",
+        "Prefix of new compound registry codes (RVZ gives RVZ-00042). Codes are stored: changing it leaves "
+        "existing codes as they are.",
+    ),
     Setting("code_digits", "REMANENCE_CODE_DIGITS", "Zero-padded digits in compound codes.", int),
     Setting(
         "public_status",
@@ -81,7 +86,10 @@ class Settings:
     data_dir: Path = field(default_factory=lambda: Path.cwd() / "var")
     database_url: str = ""
     secret_key: str = ""
-    code_prefix: str = "RMN"
+    # RVZ: three letters that abbreviate no technique, unit, element or company of the trade (the
+    # earlier RMN reads as "NMR" in French, Spanish, Italian and Portuguese). Nothing parses codes
+    # by their prefix: they are looked up as stored, and batch codes extend the compound's code.
+    code_prefix: str = "RVZ"
     code_digits: int = 5
     public_status: bool = False
     max_upload_mb: float = 50.0

@@ -23,9 +23,9 @@ def filled(client, session, settings):
     h = bearer(make_token(session, scope="write"))
     for smi in ("CCO", "CCCO", "COc1ccccc1"):
         client.post("/api/v1/compounds", json={"smiles": smi}, headers=h)
-    client.post("/api/v1/compounds/RMN-00003/batches", json={}, headers=h)
+    client.post("/api/v1/compounds/RVZ-00003/batches", json={}, headers=h)
     for amp in (250, 300):
-        client.post("/api/v1/batches/RMN-00003-B01/measurements", data={"kind": "pe_loop"},
+        client.post("/api/v1/batches/RVZ-00003-B01/measurements", data={"kind": "pe_loop"},
                     files={"file": ("l.csv", to_csv_bytes(miller_loop(10, 8, 50, amp)))}, headers=h)
     return settings
 

@@ -55,8 +55,8 @@ def test_reanalyze_command(env, client, session, capsys):
 
     h = bearer(make_token(session, scope="write"))
     client.post("/api/v1/compounds", json={"smiles": "CCO"}, headers=h)
-    client.post("/api/v1/compounds/RMN-00001/batches", json={}, headers=h)
-    mid = client.post("/api/v1/batches/RMN-00001-B01/measurements", data={"kind": "pe_loop"},
+    client.post("/api/v1/compounds/RVZ-00001/batches", json={}, headers=h)
+    mid = client.post("/api/v1/batches/RVZ-00001-B01/measurements", data={"kind": "pe_loop"},
                       files={"file": ("l.csv", loop_bytes())}, headers=h).json()["id"]
     m = session.get(__import__("server.models", fromlist=["Measurement"]).Measurement, mid)
     m.analysis_version = "hysteresis/0.1"

@@ -1,4 +1,4 @@
-"""The README documents every setting and every CLI command (STYLE.md, example 7)."""
+"""The README documents every setting, every CLI command and every upload kind."""
 
 from __future__ import annotations
 

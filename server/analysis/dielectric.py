@@ -287,7 +287,7 @@ def analyse_dielectric(
       side of the peak beyond the same margin; the background eps_inf from the fit is
       subtracted so the ratio refers to the susceptibility that Landau theory describes.
       Landau-Devonshire theory gives -2 for a second-order transition and -4 at a
-      tricritical point (REFERENCES.md, derived).
+      tricritical point (Lines and Glass 1977, ch. 3; derived, see docs/methods.md).
     * Transition hint: see :func:`transition_hint` (order-of-magnitude rule); "unclear"
       when the peak shows frequency dispersion, since a relaxor does not follow
       Curie-Weiss near its maximum and C then means little.

@@ -1,9 +1,9 @@
 """Dielectric analysis: parallel-plate permittivity, peaks, dispersion, Curie-Weiss and Landau.
 
 Expected values come from outside the code under test: the parallel-plate formula with
-CODATA 2018 eps0 (REFERENCES.md, computed), curves written down in this file from the
+CODATA 2018 eps0 (docs/methods.md, computed), curves written down in this file from the
 Curie-Weiss and Landau formulas (analytic models), and the order of magnitude of Curie
-constants from Lines and Glass (1977; REFERENCES.md, memory).
+constants from Lines and Glass (1977; docs/methods.md, memory).
 """
 
 from __future__ import annotations
@@ -64,13 +64,13 @@ def test_module_protocol():
 
 
 def test_parallel_plate_check_value():
-    # REFERENCES.md (computed from eps0 CODATA 2018): C 10 pF, d 1.000 mm, A 1.000 cm2 -> 11.2941
+    # docs/methods.md (computed from eps0 CODATA 2018): C 10 pF, d 1.000 mm, A 1.000 cm2 -> 11.2941
     eps = permittivity_from_capacitance(10e-12, area_cm2=1.0, thickness_um=1000.0)
     assert float(eps) == pytest.approx(11.2941, abs=5e-5)
 
 
 def test_capacitance_path_uses_parallel_plate_and_loss():
-    # A frame in capacitance; the row with C = 10 pF must give eps' 11.2941 (REFERENCES.md)
+    # A frame in capacitance; the row with C = 10 pF must give eps' 11.2941 (docs/methods.md)
     # and eps'' = eps' tan(delta) with tan(delta) = 0.02 -> 0.225882.
     t = np.arange(280.0, 321.0, 2.0)
     c_pF = 10.0 + 5.0 * np.exp(-(((t - 300.0) / 6.0) ** 2))
@@ -104,7 +104,7 @@ def test_curie_weiss_recovered_within_2_percent(eps_inf):
 
 
 def test_curie_weiss_without_eps_inf_would_be_biased():
-    # Why eps_inf is fitted (REFERENCES.md): with a large background a 2-parameter fit of
+    # Why eps_inf is fitted (docs/methods.md): with a large background a 2-parameter fit of
     # 1/eps would be off; the 3-parameter fit is not. Background 200, C 3300 K.
     t = np.arange(360.0, 450.5, 1.0)
     eps = 200.0 + 3300.0 / (t - 350.0)
@@ -117,7 +117,7 @@ def test_curie_weiss_without_eps_inf_would_be_biased():
 
 
 def test_landau_second_order_ratio_is_minus_two():
-    # Landau theory (REFERENCES.md, derived): slope of 1/eps below / above = -2.
+    # Landau theory (docs/methods.md, derived): slope of 1/eps below / above = -2.
     t = np.arange(300.0, 400.5, 0.5)
     t = t[t != 350.0]
     eps = landau_second_order(t, 3300.0, 350.0, 0.0)
@@ -126,7 +126,7 @@ def test_landau_second_order_ratio_is_minus_two():
 
 
 def test_landau_tricritical_ratio_from_generator():
-    # Generator built to Landau's tricritical case: ratio -4 (REFERENCES.md, derived).
+    # Generator built to Landau's tricritical case: ratio -4 (docs/methods.md, derived).
     frame = curie_weiss_scan(
         3.0e3, 320.0, 320.0, 8.0, t_min_K=260.0, t_max_K=400.0, step_K=1.0,
         frequencies_Hz=[1e3], landau_order="tricritical", noise_rel=5e-4, rng=np.random.default_rng(3),
@@ -139,7 +139,7 @@ def test_landau_tricritical_ratio_from_generator():
 
 
 def test_hint_kh2po4_like_order_disorder():
-    # KH2PO4: C about 3.3e3 K, Tc 122 K (REFERENCES.md, memory) -> order-disorder.
+    # KH2PO4: C about 3.3e3 K, Tc 122 K (docs/methods.md, memory) -> order-disorder.
     frame = curie_weiss_scan(
         3.3e3, 122.0, 122.0, 5.0, t_min_K=90.0, t_max_K=200.0, step_K=1.0,
         frequencies_Hz=[1e3, 1e4, 1e5], noise_rel=1e-3, rng=np.random.default_rng(7),
@@ -152,7 +152,7 @@ def test_hint_kh2po4_like_order_disorder():
 
 
 def test_hint_batio3_like_displacive():
-    # BaTiO3: C about 1.5-1.7e5 K (REFERENCES.md, memory), Tc about 393 K -> displacive.
+    # BaTiO3: C about 1.5-1.7e5 K (docs/methods.md, memory), Tc about 393 K -> displacive.
     frame = curie_weiss_scan(
         1.6e5, 393.0, 393.0, 50.0, t_min_K=330.0, t_max_K=480.0, step_K=1.0,
         frequencies_Hz=[1e4], noise_rel=1e-3, rng=np.random.default_rng(8), as_capacitance=False,
@@ -167,7 +167,7 @@ def test_hint_batio3_like_displacive():
     [(3.2e3, "order_disorder"), (1.6e5, "displacive"), (1.5e4, "unclear"), (10.0, "unclear"), (-500.0, "unclear")],
 )
 def test_transition_hint_windows(c_K, hint):
-    # Triglycine sulfate C about 3.2e3 K (Hoshino et al. 1957; REFERENCES.md, memory).
+    # Triglycine sulfate C about 3.2e3 K (Hoshino et al. 1957; docs/methods.md, memory).
     assert transition_hint(c_K) == hint
 
 

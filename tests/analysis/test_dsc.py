@@ -3,7 +3,7 @@
 Reference values: indium, the DSC calibrant, melts at 156.5985 degC = 429.7485 K (ITS-90
 fixed point) with dfusH = 28.6624 +- 0.0076 J/g (Archer and Rudtsch, J. Chem. Eng. Data
 48, 1157 (2003), doi:10.1021/je0300055); molar mass of indium 114.818 g/mol (IUPAC
-standard atomic weight). Derived numbers are in REFERENCES.md (computed). The traces
+standard atomic weight). Derived numbers are in docs/methods.md (computed). The traces
 are built from these values by the peak-shape generator, whose area and onset are set
 by construction (server.synth.dsc).
 """
@@ -51,7 +51,7 @@ def test_module_protocol():
 
 
 def test_entropy_and_states_check_values():
-    # REFERENCES.md (computed): 28.6624 J/g x 114.818 g/mol = 3290.96 J/mol; at 429.7485 K
+    # docs/methods.md (computed): 28.6624 J/g x 114.818 g/mol = 3290.96 J/mol; at 429.7485 K
     # dS = 7.6579 J/(mol K), N = 2.512.
     assert IN_DH_J_G * IN_M_G_MOL == pytest.approx(3290.96, abs=0.01)
     ds = transition_entropy_J_molK(3290.96, 429.7485)
@@ -60,7 +60,7 @@ def test_entropy_and_states_check_values():
     # dS = R ln 2 = 5.76315 J/(mol K) -> N = 2.0000 (two bowl orientations).
     assert boltzmann_states(5.76315) == pytest.approx(2.0000, abs=1e-4)
     assert boltzmann_states(-5.76315) == pytest.approx(2.0000, abs=1e-4)
-    # Triglycine sulfate dS 2.008 J/(mol K) -> N = 1.273 (REFERENCES.md, computed).
+    # Triglycine sulfate dS 2.008 J/(mol K) -> N = 1.273 (docs/methods.md, computed).
     assert boltzmann_states(2.008) == pytest.approx(1.273, abs=1e-3)
 
 
@@ -72,7 +72,7 @@ def test_indium_calibrant_recovered():
     assert p.dh_J_g == pytest.approx(IN_DH_J_G, rel=0.01)
     assert p.onset_K == pytest.approx(IN_ONSET_K, abs=0.3)
     assert p.start_K < p.onset_K < p.peak_K < p.end_K
-    # Molar values against REFERENCES.md (computed): 3290.96 J/mol; dS 7.6579 J/(mol K) at
+    # Molar values against docs/methods.md (computed): 3290.96 J/mol; dS 7.6579 J/(mol K) at
     # 429.7485 K. dS here uses T_peak (about 1 K above the onset), hence 1.5 % tolerance.
     assert p.dh_kJ_mol == pytest.approx(3.29096, rel=0.01)
     assert p.ds_J_molK == pytest.approx(7.6579, rel=0.015)
@@ -96,7 +96,7 @@ def test_indium_without_time_column_uses_rate():
 
 def test_order_disorder_peak_two_states():
     # An order-disorder transition with dS = R ln 2 at 350 K for M = 400 g/mol:
-    # dH = 350 x 5.76315 / 400 = 5.04276 J/g, N = 2 (REFERENCES.md, computed dS).
+    # dH = 350 x 5.76315 / 400 = 5.04276 J/g, N = 2 (docs/methods.md, computed dS).
     m = 400.0
     dh_j_g = 350.0 * R * math.log(2.0) / m
     frame = dsc_trace([{"t_K": 350.0, "dh_J_g": dh_j_g, "width_K": 3.0, "kind": "gaussian"}],

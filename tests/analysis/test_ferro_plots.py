@@ -20,7 +20,7 @@ def test_loop_figure_marks_pr_and_ec():
     by_name = {t.name: t for t in fig.data}
     pr = by_name["±Pr"]
     assert list(pr.x) == [0.0, 0.0]
-    assert list(pr.y) == pytest.approx([8.0, -8.0], rel=2e-3)  # Miller model Pr (REFERENCES.md)
+    assert list(pr.y) == pytest.approx([8.0, -8.0], rel=2e-3)  # Miller et al. 1990 model Pr (docs/methods.md)
     assert all("uC/cm²" in s for s in pr.text)
     ec = by_name["±Ec"]
     assert list(ec.x) == pytest.approx([50.0, -50.0], rel=2e-3)

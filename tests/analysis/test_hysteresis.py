@@ -1,7 +1,8 @@
 """P-E loop analysis against analytic loops (Miller 1990) and the lossy-dielectric ellipse (Scott 2008).
 
 Expected values are computed here from closed forms, or by hand in the comments, never
-by the code under test. Sources: /work/shared/REFERENCES.md ("P-E hysteresis and PUND").
+by the code under test. Sources: IEEE Std 180-1986, Miller et al. (1990) and Scott (2008), with
+the worked values in docs/methods.md ("P-E hysteresis loops").
 """
 
 from __future__ import annotations
@@ -18,7 +19,7 @@ from server.analysis.hysteresis import analyse_loop
 from server.errors import AnalysisError
 from server.synth.ferro import leaky_capacitor, miller_loop, raw_vi, raw_vq
 
-EPS0 = 8.8541878128e-12  # F/m, CODATA 2018 (REFERENCES.md)
+EPS0 = 8.8541878128e-12  # F/m, CODATA 2018 (docs/methods.md, Constants)
 CANON = {"E (kV/cm)": "E_kV_cm", "P (uC/cm^2)": "P_uC_cm2", "t (s)": "t_s", "V (V)": "V_V",
          "Q (uC)": "Q_uC", "I (A)": "I_A"}  # fmt: skip
 
@@ -41,7 +42,7 @@ def miller_delta(ps, pr, ec):
 
 
 def test_miller_loop_gives_pr_ec_and_no_imprint():
-    # REFERENCES.md (computed from Miller 1990): Ps 10, Pr 8, Ec 50, Emax 300 -> Pr 8.000,
+    # docs/methods.md (computed from Miller 1990): Ps 10, Pr 8, Ec 50, Emax 300 -> Pr 8.000,
     # Ec 50.00, imprint 0. The tanh branches give P_asc(0) = -Pr exactly; the tip closure of
     # the generator moves P by ~2e-4 uC/cm^2, far inside the 0.2 % used here (brief: 2 %).
     r = analyse_loop(canon(miller_loop(10, 8, 50, 300)))
@@ -58,7 +59,7 @@ def test_miller_loop_gives_pr_ec_and_no_imprint():
 
 
 def test_imprint_shifts_both_coercive_fields():
-    # REFERENCES.md: shifted by +5 kV/cm -> Ec+ 55, Ec- -45, imprint +5 (Miller 1990, computed).
+    # docs/methods.md: shifted by +5 kV/cm -> Ec+ 55, Ec- -45, imprint +5 (Miller 1990, computed).
     # Pr changes with the shift; by hand from the tanh branches:
     # P_desc(0) = Ps tanh((Ec - 5)/(2 delta)), P_asc(0) = Ps tanh((-5 - Ec)/(2 delta)).
     r = analyse_loop(canon(miller_loop(10, 8, 50, 300, imprint_kV_cm=5)))
@@ -127,7 +128,7 @@ def test_triangular_drive_and_noise_keep_the_numbers():
 
 
 def test_scott_ellipse_is_a_lossy_dielectric_not_a_ferroelectric():
-    # Scott, J. Phys.: Condens. Matter 20, 021001 (2008); REFERENCES.md (derived):
+    # Scott, J. Phys.: Condens. Matter 20, 021001 (2008); docs/methods.md (derived):
     # E0 100 kV/cm, eps' 10, eps'' 1 -> Pmax = eps0 |eps*| E0 = 0.088983 uC/cm^2,
     # apparent Pr = eps0 eps'' E0 = 0.0088542, apparent Ec = E0 sin(delta) = 9.9504 kV/cm.
     r = analyse_loop(canon(leaky_capacitor(10, 1, 100, frequency_Hz=1000)))
@@ -147,7 +148,7 @@ def test_noisy_ellipse_is_still_not_ferroelectric():
 
 
 def test_ohmic_leak_apparent_pr_scales_as_one_over_f():
-    # REFERENCES.md: an ohmic leak gives apparent Pr = sigma E0 / (2 pi f). By hand for
+    # docs/methods.md: an ohmic leak gives apparent Pr = sigma E0 / (2 pi f). By hand for
     # sigma 1e-6 S/m, E0 100 kV/cm = 1e7 V/m: at 100 Hz 1e-6 * 1e7 / 628.32 = 1.5915e-2 C/m^2
     # = 1.5915 uC/cm^2; at 1 kHz ten times less, 0.15915 uC/cm^2.
     pr = {}

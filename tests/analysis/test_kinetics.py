@@ -1,6 +1,6 @@
 """Tests of server.analysis.kinetics and server.synth.nmr.
 
-Expected values come from /work/shared/REFERENCES.md ("computed" there from the
+Expected values come from docs/methods.md ("computed" there from the
 CODATA 2018 constants and the Eyring / Gutowsky-Holm formulas, independently of this
 code), from the literature named beside each check, or from formulas written out here.
 """
@@ -47,17 +47,17 @@ def test_calorie_is_thermochemical():
 
 
 def test_frequency_factor_at_298():
-    # kB T/h at 298.15 K = 6.2124e12 1/s (REFERENCES.md, computed from CODATA 2018)
+    # kB T/h at 298.15 K = 6.2124e12 1/s (docs/methods.md, computed from CODATA 2018)
     assert kin.eyring_rate_per_s(0.0, 298.15) == pytest.approx(6.2124e12, rel=1e-4)
 
 
 def test_dg_of_unit_rate():
-    # k = 1 1/s at 298.15 K -> dG 73.024 kJ/mol (REFERENCES.md, computed)
+    # k = 1 1/s at 298.15 K -> dG 73.024 kJ/mol (docs/methods.md, computed)
     assert kin.dg_from_rate_kJ_mol(1.0, 298.15) == pytest.approx(73.024, abs=5e-4)
 
 
 def test_rate_of_20_kcal_barrier():
-    # dG 20 kcal/mol at 298.15 K -> k 0.013588 1/s (REFERENCES.md, computed)
+    # dG 20 kcal/mol at 298.15 K -> k 0.013588 1/s (docs/methods.md, computed)
     assert kin.eyring_rate_per_s(kin.kcal_to_kJ(20.0), 298.15) == pytest.approx(0.013588, rel=1e-4)
 
 
@@ -120,7 +120,7 @@ def test_relaxation_half_life_matches_two_site_ode():
 
 
 def test_coalescence_reference_case():
-    # Tc 298.15 K, dnu 100 Hz -> k_c 222.144 1/s, dG 59.629 kJ/mol (REFERENCES.md, computed)
+    # Tc 298.15 K, dnu 100 Hz -> k_c 222.144 1/s, dG 59.629 kJ/mol (docs/methods.md, computed)
     res = kin.coalescence(298.15, 100.0)
     assert res.k_s == pytest.approx(222.144, abs=5e-4)
     assert res.dg_kJ_mol == pytest.approx(59.629, abs=5e-4)
@@ -132,7 +132,7 @@ def test_coalescence_reference_case():
 
 
 def test_coalescence_short_form():
-    # REFERENCES.md: dG_c = R Tc [22.962 + ln(Tc/dnu)] J/mol (Gutowsky-Holm + Eyring)
+    # docs/methods.md: dG_c = R Tc [22.962 + ln(Tc/dnu)] J/mol (Gutowsky-Holm + Eyring)
     tc, dnu = 250.0, 40.0
     expected_J = R * tc * (22.962 + math.log(tc / dnu))
     assert kin.coalescence(tc, dnu).dg_kJ_mol * 1e3 == pytest.approx(expected_J, rel=2e-5)
@@ -214,12 +214,12 @@ def test_coalescence_bounds_accept_edges_and_flag_narrow():
 # ---------------------------------------------------------------- Eyring fit
 
 T_REF = [300.0, 320.0, 340.0, 360.0]
-K_REF = [0.022113, 0.17508, 1.0907, 5.5632]  # REFERENCES.md: dH 80 kJ/mol, dS -10 J/(mol K)
+K_REF = [0.022113, 0.17508, 1.0907, 5.5632]  # docs/methods.md: dH 80 kJ/mol, dS -10 J/(mol K)
 
 
 def test_synthetic_rates_match_references():
     # dH 80 kJ/mol, dS -10 J/(mol K) -> k 0.022113 / 0.17508 / 1.0907 / 5.5632 1/s
-    # (REFERENCES.md, computed)
+    # (docs/methods.md, computed)
     frame = rate_table(80.0, -10.0, T_REF, noise_rel=0.0)
     assert list(frame.columns) == ["T (K)", "k (1/s)"]
     assert frame["T (K)"].tolist() == T_REF
@@ -227,8 +227,8 @@ def test_synthetic_rates_match_references():
 
 
 def test_eyring_fit_returns_inputs():
-    # the REFERENCES.md rates (5 significant digits) fitted back give dH 80 kJ/mol and
-    # dS -10 J/(mol K) (REFERENCES.md: "the fit returns the inputs")
+    # the rates above (5 significant digits, computed from the Eyring equation) fitted back
+    # give dH 80 kJ/mol and dS -10 J/(mol K) (docs/methods.md, Kinetics)
     fit = kin.eyring_fit(T_REF, K_REF)
     assert fit.dh_kcal_mol * 4.184 == pytest.approx(80.0, abs=0.01)
     assert fit.ds_cal_molK * 4.184 == pytest.approx(-10.0, abs=0.05)

@@ -1,4 +1,4 @@
-"""PUND analysis against the PUND definition (Scott, Ferroelectric Memories, 2000; REFERENCES.md).
+"""PUND analysis against the PUND definition (Scott, Ferroelectric Memories, 2000; docs/methods.md).
 
 The ferroelectric trains come from the Miller tanh hysteron (Miller et al. 1990), so the
 pulse values follow from the branch formulas by hand: with the preset negative, P starts
@@ -62,7 +62,7 @@ def test_pulse_values_follow_the_branch_formulas():
 
 
 def test_lossy_capacitor_train_does_not_switch():
-    # A lossy dielectric gives P* = U^, dP = 0 (REFERENCES.md, Scott 2000): here an ohmic leak
+    # A lossy dielectric gives P* = U^, dP = 0 (docs/methods.md, Scott 2000): here an ohmic leak
     # of 1e-6 S/m adds sigma E tau = 1e-6 * 2e7 V/m * ~1e-3 s = 2e-2 C/m^2 = 2 uC/cm^2 per pulse.
     r = analyse_pund(canon(pund_train(8, 10, 50, 200, eps_r_background=100, leak_sigma_S_m=1e-6,
                                       noise_uC_cm2=0.05, rng=np.random.default_rng(4), switching=False)))

@@ -2,7 +2,7 @@
 
 Reference: International Tables for Crystallography, Vol. A (2016): 68 polar, 92
 centrosymmetric and 65 Sohncke space-group types; the polar numbers below are the ones listed
-in /work/shared/REFERENCES.md (ITA Vol. A). Polarity is checked twice: by the point-group list
+in ITA Vol. A (copied into docs/methods.md, Crystal structures). Polarity is checked twice: by the point-group list
 used in the code, and here independently by symmetry (a direction left invariant by every
 rotation part exists).
 """
@@ -15,7 +15,7 @@ import pytest
 
 from server.analysis.crystal import classify_space_group
 
-# ITA Vol. A (via REFERENCES.md): polar space-group numbers.
+# ITA Vol. A (2016), section 3.2 (listed in docs/methods.md): polar space-group numbers.
 POLAR_NUMBERS = (
     [1]
     + list(range(3, 10))
@@ -100,7 +100,7 @@ def test_classification_does_not_depend_on_setting():
     ],
 )
 def test_spot_checks(number, polar, centro, chiral):
-    # REFERENCES.md spot checks (ITA Vol. A)
+    # spot checks from ITA Vol. A (docs/methods.md, Crystal structures)
     c = classify_space_group(gemmi.find_spacegroup_by_number(number))
     assert (c.polar, c.centrosymmetric, c.chiral) == (polar, centro, chiral)
 

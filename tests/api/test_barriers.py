@@ -20,8 +20,8 @@ def writer(client, session):
 
 def test_coalescence_matches_gutowsky_holm_by_hand(client, writer):
     # Gutowsky and Holm, J. Chem. Phys. 25, 1228 (1956): k_c = pi dnu / sqrt(2); Eyring at Tc.
-    # Tc 298.15 K, dnu 100 Hz -> k_c 222.144 1/s, dG 59.629 kJ/mol = 14.252 kcal/mol (REFERENCES.md, computed).
-    r = client.post("/api/v1/compounds/RMN-00001/barriers",
+    # Tc 298.15 K, dnu 100 Hz -> k_c 222.144 1/s, dG 59.629 kJ/mol = 14.252 kcal/mol (docs/methods.md, computed).
+    r = client.post("/api/v1/compounds/RVZ-00001/barriers",
                     json={"method": "coalescence", "tc_K": 298.15, "dnu_Hz": 100}, headers=writer)
     assert r.status_code == 201, r.text
     body = r.json()
@@ -31,21 +31,21 @@ def test_coalescence_matches_gutowsky_holm_by_hand(client, writer):
 
 
 def test_eyring_points_recover_inputs(client, writer):
-    # dH 80 kJ/mol, dS -10 J/(mol K) at 300/320/340/360 K -> k 0.022113/0.17508/1.0907/5.5632 1/s (REFERENCES.md).
+    # dH 80 kJ/mol, dS -10 J/(mol K) at 300/320/340/360 K -> k 0.022113/0.17508/1.0907/5.5632 1/s (docs/methods.md).
     pts = [[300, 0.022113], [320, 0.17508], [340, 1.0907], [360, 5.5632]]
-    body = client.post("/api/v1/compounds/RMN-00001/barriers", json={"method": "eyring", "points": pts},
+    body = client.post("/api/v1/compounds/RVZ-00001/barriers", json={"method": "eyring", "points": pts},
                        headers=writer).json()
     assert body["dh_kcal_mol"] == pytest.approx(80 / 4.184, rel=1e-3)
     assert body["ds_cal_molK"] == pytest.approx(-10 / 4.184, abs=0.01)
 
 
 def test_imported_and_listing_and_rates(client, writer):
-    r = client.post("/api/v1/compounds/RMN-00001/barriers",
+    r = client.post("/api/v1/compounds/RVZ-00001/barriers",
                     json={"method": "imported", "dg_kcal_mol": 10.8, "level_of_theory": "DLPNO-CCSD(T)/def2-TZVP"},
                     headers=writer)
     assert r.status_code == 201
     bid = r.json()["id"]
-    listed = client.get("/api/v1/compounds/RMN-00001/barriers", headers=writer).json()
+    listed = client.get("/api/v1/compounds/RVZ-00001/barriers", headers=writer).json()
     assert listed["total"] == 1 and listed["items"][0]["method"] == "imported"
     # A ring inversion of ~10.8 kcal/mol (cyclohexane; fact of the trade) inverts ~1e5 times per second at 298 K.
     rate = client.get(f"/api/v1/barriers/{bid}/rate?t_K=298.15&frequency_Hz=1000", headers=writer).json()
@@ -67,18 +67,18 @@ def test_imported_and_listing_and_rates(client, writer):
     ],
 )
 def test_bad_barriers_are_refused(client, writer, payload, fragment):
-    r = client.post("/api/v1/compounds/RMN-00001/barriers", json=payload, headers=writer)
+    r = client.post("/api/v1/compounds/RVZ-00001/barriers", json=payload, headers=writer)
     assert r.status_code == 422
     assert fragment.lower() in r.json()["detail"].lower()
-    assert client.get("/api/v1/compounds/RMN-00001/barriers", headers=writer).json()["total"] == 0
+    assert client.get("/api/v1/compounds/RVZ-00001/barriers", headers=writer).json()["total"] == 0
 
 
 def test_rate_table_upload_adds_an_eyring_barrier(client, writer):
-    client.post("/api/v1/compounds/RMN-00001/batches", json={}, headers=writer)
+    client.post("/api/v1/compounds/RVZ-00001/batches", json={}, headers=writer)
     raw = to_csv_bytes(rate_table(80.0, -10.0, [300, 310, 320, 330, 340, 350], noise_rel=0.02))
-    r = client.post("/api/v1/batches/RMN-00001-B01/measurements", data={"kind": "nmr_rates"},
+    r = client.post("/api/v1/batches/RVZ-00001-B01/measurements", data={"kind": "nmr_rates"},
                     files={"file": ("rates.csv", raw)}, headers=writer)
     assert r.status_code == 201, r.text
-    items = client.get("/api/v1/compounds/RMN-00001/barriers", headers=writer).json()["items"]
+    items = client.get("/api/v1/compounds/RVZ-00001/barriers", headers=writer).json()["items"]
     assert [i["method"] for i in items] == ["eyring"] and items[0]["measurement"] == r.json()["id"]
     assert items[0]["results"]["dh_kcal_mol"] == pytest.approx(80 / 4.184, rel=0.05)

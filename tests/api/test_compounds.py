@@ -26,7 +26,7 @@ def test_register_returns_identity_and_side_chains(client, writer):
     body = r.json()
     for key in ("code", "smiles", "inchi", "inchikey", "formula", "mw", "exact_mass", "side_chains"):
         assert key in body
-    assert body["code"] == "RMN-00001"
+    assert body["code"] == "RVZ-00001"
     assert body["side_chains"] == [{"kind": "alkoxy", "carbons": 12, "branched": False, "count": 6}]
     # C21H12 core with six H replaced by OC12H25: C21H6(OC12H25)6 = C93H156O6 (counted by hand).
     assert body["formula"] == "C93H156O6"
@@ -70,9 +70,9 @@ def test_codes_are_never_reused_after_archive(client, writer):
     a = client.post("/api/v1/compounds", json={"smiles": "CCO"}, headers=writer).json()["code"]
     assert client.post(f"/api/v1/compounds/{a}/archive", headers=writer).json()["archived"] is True
     b = client.post("/api/v1/compounds", json={"smiles": "CCCO"}, headers=writer).json()["code"]
-    assert (a, b) == ("RMN-00001", "RMN-00002")
+    assert (a, b) == ("RVZ-00001", "RVZ-00002")
     listed = client.get("/api/v1/compounds", headers=writer).json()
-    assert [i["code"] for i in listed["items"]] == ["RMN-00002"]
+    assert [i["code"] for i in listed["items"]] == ["RVZ-00002"]
     assert client.get("/api/v1/compounds?include_archived=true", headers=writer).json()["total"] == 2
     assert client.post(f"/api/v1/compounds/{a}/restore", headers=writer).json()["archived"] is False
 
@@ -94,11 +94,11 @@ def test_register_from_scaffold(client, writer):
 def test_patch_and_paging_and_audit(client, writer, session):
     for smi in ("CCO", "CCCO", "CCCCO"):
         client.post("/api/v1/compounds", json={"smiles": smi}, headers=writer)
-    r = client.patch("/api/v1/compounds/RMN-00002", json={"label": "propanol test", "embargoed": True}, headers=writer)
+    r = client.patch("/api/v1/compounds/RVZ-00002", json={"label": "propanol test", "embargoed": True}, headers=writer)
     assert r.status_code == 200
     assert (r.json()["label"], r.json()["embargoed"]) == ("propanol test", True)
     page = client.get("/api/v1/compounds?limit=2&offset=1", headers=writer).json()
-    assert page["total"] == 3 and [i["code"] for i in page["items"]] == ["RMN-00002", "RMN-00001"]
+    assert page["total"] == 3 and [i["code"] for i in page["items"]] == ["RVZ-00002", "RVZ-00001"]
     actions = [e.action for e in session.exec(select(AuditEvent).order_by(AuditEvent.id)).all()]
     assert actions.count("compound.create") == 3 and "compound.update" in actions
     update = session.exec(select(AuditEvent).where(AuditEvent.action == "compound.update")).one()

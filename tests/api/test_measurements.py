@@ -22,7 +22,7 @@ def batch(client, session):
     writer = bearer(make_token(session, scope="write", name="registrar"))
     # An invented hexa-methoxy benzene test compound: C12H18O6, 258.27 g/mol.
     client.post("/api/v1/compounds", json={"smiles": "COc1c(OC)c(OC)c(OC)c(OC)c1OC"}, headers=writer)
-    return client.post("/api/v1/compounds/RMN-00001/batches", json={"chemist": "lab"}, headers=writer).json()["code"]
+    return client.post("/api/v1/compounds/RVZ-00001/batches", json={"chemist": "lab"}, headers=writer).json()["code"]
 
 
 @pytest.fixture
@@ -103,7 +103,7 @@ def test_pund_dielectric_dsc_and_xlsx(client, batch, uploader):
 
     listed = client.get(f"/api/v1/measurements?batch={batch}&kind=dsc", headers=uploader).json()
     assert listed["total"] == 1 and listed["items"][0]["kind"] == "dsc"
-    assert client.get("/api/v1/measurements?compound=RMN-00001", headers=uploader).json()["total"] == 3
+    assert client.get("/api/v1/measurements?compound=RVZ-00001", headers=uploader).json()["total"] == 3
 
 
 BAD_FILES = [

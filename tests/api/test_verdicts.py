@@ -20,19 +20,19 @@ PARENT = "C1c2ccc3Cc4ccc5Cc6ccc1c7c6c5c4c3c27"
 def h(client, session):
     headers = bearer(make_token(session, scope="write"))
     assert client.post("/api/v1/compounds", json={"smiles": PARENT}, headers=headers).status_code == 201
-    client.post("/api/v1/compounds/RMN-00001/batches", json={}, headers=headers)
+    client.post("/api/v1/compounds/RVZ-00001/batches", json={}, headers=headers)
     return headers
 
 
 def upload(client, h, kind, raw, name, **fields):
-    r = client.post("/api/v1/batches/RMN-00001-B01/measurements", data={"kind": kind, **fields},
+    r = client.post("/api/v1/batches/RVZ-00001-B01/measurements", data={"kind": kind, **fields},
                     files={"file": (name, raw)}, headers=h)
     assert r.status_code == 201, r.text
     return r.json()
 
 
 def verdict(client, h):
-    return client.get("/api/v1/compounds/RMN-00001", headers=h).json()
+    return client.get("/api/v1/compounds/RVZ-00001", headers=h).json()
 
 
 def test_untested_then_switching_then_proven(client, session, h):
@@ -70,13 +70,13 @@ def test_leaky_loop_and_centrosymmetric_is_nonpolar(client, h):
 def test_cif_formula_mismatch_is_flagged(client, session):
     headers = bearer(make_token(session, scope="write"))
     client.post("/api/v1/compounds", json={"smiles": "c1ccc2ccccc2c1"}, headers=headers)  # naphthalene, C10H8
-    client.post("/api/v1/compounds/RMN-00001/batches", json={}, headers=headers)
+    client.post("/api/v1/compounds/RVZ-00001/batches", json={}, headers=headers)
     m = upload(client, headers, "crystal", bowl_crystal_cif(PARENT, "P2_1", head_to_tail=True), "x.cif")
     assert "formula_mismatch" in {f["code"] for f in m["flags"]}
 
 
 def test_unreadable_cif_is_422(client, session, h):
-    r = client.post("/api/v1/batches/RMN-00001-B01/measurements", data={"kind": "crystal"},
+    r = client.post("/api/v1/batches/RVZ-00001-B01/measurements", data={"kind": "crystal"},
                     files={"file": ("x.cif", b"data_x\n_cell_length_a 5\n")}, headers=h)
     assert r.status_code == 422
     assert session.exec(select(CrystalPhase)).all() == []
@@ -85,17 +85,17 @@ def test_unreadable_cif_is_422(client, session, h):
 def test_override_needs_admin_and_keeps_computed(client, session, h):
     upload(client, h, "pe_loop", to_csv_bytes(miller_loop(10, 8, 50, 300)), "loop.csv", temperature="300 K")
     body = {"code": "proven_ferroelectric", "reason": "polar phase seen by powder SHG in the group's notebook"}
-    assert client.post("/api/v1/compounds/RMN-00001/verdict/override", json=body, headers=h).status_code == 403
+    assert client.post("/api/v1/compounds/RVZ-00001/verdict/override", json=body, headers=h).status_code == 403
     csrf = login_as(client, session, role="admin")
-    r = client.post("/api/v1/compounds/RMN-00001/verdict/override", json=body, headers={"X-CSRF-Token": csrf})
+    r = client.post("/api/v1/compounds/RVZ-00001/verdict/override", json=body, headers={"X-CSRF-Token": csrf})
     assert r.status_code == 200, r.text
     assert r.json()["verdict"] == "proven_ferroelectric"
     assert r.json()["verdict_evidence"]["computed"]["code"] == "switching_phase_unknown"
     assert r.json()["verdict_evidence"]["override"]["reason"].startswith("polar phase")
-    bad = client.post("/api/v1/compounds/RMN-00001/verdict/override", json={"code": "great", "reason": "x"},
+    bad = client.post("/api/v1/compounds/RVZ-00001/verdict/override", json={"code": "great", "reason": "x"},
                       headers={"X-CSRF-Token": csrf})
     assert bad.status_code == 422
-    cleared = client.post("/api/v1/compounds/RMN-00001/verdict/clear", headers={"X-CSRF-Token": csrf}).json()
+    cleared = client.post("/api/v1/compounds/RVZ-00001/verdict/clear", headers={"X-CSRF-Token": csrf}).json()
     assert cleared["verdict"] == "switching_phase_unknown"
 
 

@@ -232,7 +232,7 @@ def test_sort_by_clicking_a_column_header(page: Page, member, campaign):
                                                                                            re.compile(".*"))
 
     # The measured-barrier column of the derivative with Tc 298.15 K, dnu 100 Hz: Gutowsky-Holm
-    # coalescence gives dG 59.629 kJ/mol = 14.25 kcal/mol (../shared/REFERENCES.md, computed check;
+    # coalescence gives dG 59.629 kJ/mol = 14.25 kcal/mol (docs/methods.md, computed check;
     # J. Chem. Phys. 25, 1228 (1956)); the table shows three significant digits.
     row = page.locator(f'tr[data-code="{campaign.code["a_c6"]}"]')
     barrier_col = page.locator("#compound-table thead th").evaluate_all(
@@ -260,7 +260,7 @@ def test_export_csv_matches_the_table(page: Page, member, campaign):
     assert [r["code"] for r in rows] == shown
     assert [r["label"] for r in rows] == [LABEL_OF[campaign.key_of(c)] for c in shown]
     by_code = {r["code"]: r for r in rows}
-    # Gutowsky-Holm check value (REFERENCES.md): Tc 298.15 K, dnu 100 Hz -> 59.629 kJ/mol / 4.184 = 14.2517 kcal/mol.
+    # Gutowsky-Holm check value (docs/methods.md): Tc 298.15 K, dnu 100 Hz -> 59.629 kJ/mol / 4.184 = 14.2517 kcal/mol.
     assert float(by_code[campaign.code["a_c6"]]["barrier measured (kcal/mol)"]) == pytest.approx(14.2517, abs=2e-3)
     # Hand count: CH2 bowl C21H12 with 6 H replaced by O-C6H13 -> C57H84O6.
     assert by_code[campaign.code["a_c6"]]["formula"] == "C57H84O6"

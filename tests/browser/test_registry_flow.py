@@ -17,7 +17,7 @@ from tests.factories import PASSWORD
 
 pytestmark = pytest.mark.browser
 
-CODE_URL = re.compile(r"/compounds/(RMN-\d{5})$")
+CODE_URL = re.compile(r"/compounds/(RVZ-\d{5})$")
 
 
 def _type_smiles(page: Page, smiles: str) -> None:

@@ -11,8 +11,8 @@ from tests.factories import login_as, soup
 def test_upload_page_hints_come_from_the_kind_modules(client, session):
     csrf = login_as(client, session)
     client.post("/compounds/new", data={"smiles": EXAMPLE_SMILES, "csrf_token": csrf})
-    client.post("/compounds/RMN-00001/batches/new", data={"state": "made", "csrf_token": csrf})
-    page = soup(client.get("/batches/RMN-00001-B01/upload").text)
+    client.post("/compounds/RVZ-00001/batches/new", data={"state": "made", "csrf_token": csrf})
+    page = soup(client.get("/batches/RVZ-00001-B01/upload").text)
     for field, kinds in needed_by().items():
         control = page.find(attrs={"name": field})
         assert control is not None, field
@@ -28,11 +28,11 @@ def test_upload_page_hints_come_from_the_kind_modules(client, session):
 def test_measurement_and_compound_pages_use_the_kinds_labels(client, session):
     csrf = login_as(client, session)
     client.post("/compounds/new", data={"smiles": EXAMPLE_SMILES, "csrf_token": csrf})
-    client.post("/compounds/RMN-00001/batches/new", data={"state": "made", "csrf_token": csrf})
+    client.post("/compounds/RVZ-00001/batches/new", data={"state": "made", "csrf_token": csrf})
     ids = {}
     for name in ("pe_loop", "nmr_rates"):
         ex = KINDS[name].example()
-        r = client.post("/batches/RMN-00001-B01/upload", data={"kind": name, "csrf_token": csrf},
+        r = client.post("/batches/RVZ-00001-B01/upload", data={"kind": name, "csrf_token": csrf},
                         files={"file": (ex.filename, ex.raw)}, follow_redirects=False)
         assert r.status_code == 303, r.text
         ids[name] = r.headers["location"]
@@ -42,7 +42,7 @@ def test_measurement_and_compound_pages_use_the_kinds_labels(client, session):
     assert rows[label.label][1] == label.unit == "kcal/mol"
     # dH = 78.5 kJ/mol, dS = -6 J/(mol K): dG(298.15 K) = (78.5 + 1.789) / 4.184 = 19.19 kcal/mol (Eyring 1935)
     assert abs(float(rows[label.label][0]) - 19.19) < 0.3
-    compound = soup(client.get("/compounds/RMN-00001").text)
+    compound = soup(client.get("/compounds/RVZ-00001").text)
     cells = [tr.find_all("td")[4].text for tr in compound.select("#measurements tbody tr")]
     assert any(c.startswith("Pr ") and "µC/cm²" in c and ", Ec " in c for c in cells), cells
     assert any(c.startswith("ΔG‡(298 K) ") and c.endswith("kcal/mol") for c in cells), cells

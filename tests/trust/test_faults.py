@@ -155,7 +155,7 @@ def test_unreachable_postgresql_answers_503(tmp_path):
             for method, path, kw in [
                 ("GET", "/api/v1/compounds", {"headers": bearer("rmn_anything")}),
                 ("POST", "/api/v1/compounds", {"headers": bearer("rmn_anything"), "json": {"smiles": "C"}}),
-                ("POST", "/api/v1/batches/RMN-00001-B01/measurements",
+                ("POST", "/api/v1/batches/RVZ-00001-B01/measurements",
                  {"headers": bearer("rmn_anything"), "data": {"kind": "pe_loop"},
                   "files": {"file": ("a.csv", loop_bytes(1), "text/csv")}}),
             ]:

@@ -14,8 +14,8 @@ from tests.factories import login_as, soup
 
 def _compound_with_batch(client, csrf):
     client.post("/compounds/new", data={"smiles": "CCCCCCCCOc1ccccc1", "csrf_token": csrf})
-    client.post("/compounds/RMN-00001/batches/new", data={"state": "made", "csrf_token": csrf})
-    return "RMN-00001-B01"
+    client.post("/compounds/RVZ-00001/batches/new", data={"state": "made", "csrf_token": csrf})
+    return "RVZ-00001-B01"
 
 
 def _loop(t_K: float, pr: float, ec: float) -> bytes:
@@ -65,7 +65,7 @@ def test_compound_page_summarises_loops_against_temperature(client, session):
     for t, pr, ec in ((280, 9.0, 60), (300, 8.0, 50), (320, 6.5, 38)):
         client.post(f"/batches/{batch}/upload", data={"kind": "pe_loop", "csrf_token": csrf},
                     files={"file": (f"loop{t}.csv", _loop(t, pr, ec))})
-    page = soup(client.get("/compounds/RMN-00001").text)
+    page = soup(client.get("/compounds/RVZ-00001").text)
     assert len(page.select("#measurements tbody tr")) == 3
     fig = json.loads(page.find("script", id="summary-figure").string)
     xs = fig["data"][0]["x"]

@@ -88,8 +88,8 @@ def test_form_errors_are_shown_and_nothing_stored(client, session):
     client.post("/compounds/new", data={"smiles": "CCO", "csrf_token": csrf})
     dup = client.post("/compounds/new", data={"smiles": "OCC", "csrf_token": csrf})
     assert dup.status_code == 409
-    assert soup(dup.text).find("a", string="Open RMN-00001") is not None
-    bad_batch = client.post("/compounds/RMN-00001/batches/new", data={"yield_pct": "lots", "csrf_token": csrf})
+    assert soup(dup.text).find("a", string="Open RVZ-00001") is not None
+    bad_batch = client.post("/compounds/RVZ-00001/batches/new", data={"yield_pct": "lots", "csrf_token": csrf})
     assert bad_batch.status_code == 422 and "not a number" in soup(bad_batch.text).find(role="alert").text
 
 

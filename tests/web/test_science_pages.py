@@ -11,32 +11,32 @@ def test_coalescence_form_and_rate_partial(client, session):
     csrf = login_as(client, session)
     client.post("/compounds/new", data={"smiles": "CN(C)C=O", "csrf_token": csrf})
     # Celsius typed as such is converted: -20 degC = 253.15 K (definition of the Celsius scale).
-    r = client.post("/compounds/RMN-00001/barriers",
+    r = client.post("/compounds/RVZ-00001/barriers",
                     data={"method": "coalescence", "tc": "-20 degC", "dnu": "85 Hz", "csrf_token": csrf},
                     follow_redirects=False)
     assert r.status_code == 303
-    page = soup(client.get("/compounds/RMN-00001").text)
+    page = soup(client.get("/compounds/RVZ-00001").text)
     row = page.select("#barriers tbody tr")[0]
     cells = [td.text.strip() for td in row.find_all("td")]
     assert cells[0] == "coalescence" and cells[2] == "253.15"
-    frag = client.get("/compounds/RMN-00001/rates?t=400+K&f=10+Hz", headers={"HX-Request": "true"})
+    frag = client.get("/compounds/RVZ-00001/rates?t=400+K&f=10+Hz", headers={"HX-Request": "true"})
     doc = soup(frag.text)
     assert doc.find("html") is None
     k = float(doc.select("#barriers tbody tr td")[4].text)
     # dG from Gutowsky-Holm at 253.15 K, then Eyring at 400 K: far faster than at Tc (k_c = pi 85/sqrt 2 = 188.8 1/s).
     assert k > 188.8 and math.isfinite(k)
-    bad = client.get("/compounds/RMN-00001/rates?t=hot&f=1+kHz", headers={"HX-Request": "true"})
+    bad = client.get("/compounds/RVZ-00001/rates?t=hot&f=1+kHz", headers={"HX-Request": "true"})
     assert "field 't'" in soup(bad.text).find(role="alert").text
 
 
 def test_admin_override_form(client, session):
     csrf = login_as(client, session, role="admin")
     client.post("/compounds/new", data={"smiles": "CCO", "csrf_token": csrf})
-    r = client.post("/compounds/RMN-00001/verdict",
+    r = client.post("/compounds/RVZ-00001/verdict",
                     data={"code": "nonpolar", "reason": "centrosymmetric powder pattern", "csrf_token": csrf},
                     follow_redirects=False)
     assert r.status_code == 303
-    page = soup(client.get("/compounds/RMN-00001").text)
+    page = soup(client.get("/compounds/RVZ-00001").text)
     assert page.select_one("#verdict h2 span")["class"] == ["verdict-badge", "v-nonpolar"]
     assert "centrosymmetric powder pattern" in page.select_one("#verdict .warn").text
 
@@ -44,6 +44,6 @@ def test_admin_override_form(client, session):
 def test_member_cannot_override(client, session):
     csrf = login_as(client, session, role="member")
     client.post("/compounds/new", data={"smiles": "CCO", "csrf_token": csrf})
-    r = client.post("/compounds/RMN-00001/verdict", data={"code": "nonpolar", "reason": "x", "csrf_token": csrf})
+    r = client.post("/compounds/RVZ-00001/verdict", data={"code": "nonpolar", "reason": "x", "csrf_token": csrf})
     assert r.status_code == 403
-    assert soup(client.get("/compounds/RMN-00001").text).select_one("#verdict .warn") is None
+    assert soup(client.get("/compounds/RVZ-00001").text).select_one("#verdict .warn") is None

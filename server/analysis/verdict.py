@@ -18,18 +18,19 @@ temperature axis into phases; a structure and a switching measurement count as t
 when no transition lies between their temperatures (an unknown temperature is assumed to be
 the same phase, and the reason says so).
 
-Verdict codes (stable; shown with their labels):
+Verdict codes (stable; labels, order and colours in :mod:`server.verdict_codes`):
 
-=========================  ==================================================================
-``proven_ferroelectric``   polar structure and switching in the same phase
-``switching_phase_unknown`` switching, but no polar structure known for that phase
-``polar_unswitched``       polar structure, no switching seen (pyroelectric at most)
-``nonpolar``               only non-polar structures, no switching
-``transition_only``        DSC/dielectric anomaly, no polarity evidence
-``no_switching_seen``      switching looked for and not seen; no structure, no transition
-``conflicting``            evidence that cannot all be true: review
-``untested``               nothing conclusive yet (inconclusive loops are listed)
-=========================  ==================================================================
+=============================  ==============================================================
+``polar_switching_supported``  polar structure and switching in the same phase: the evidence
+                               supports a ferroelectric phase (a screening result, not a proof)
+``switching_phase_unknown``    switching, but no polar structure known for that phase
+``polar_unswitched``           polar structure, no switching seen (pyroelectric at most)
+``nonpolar``                   only non-polar structures, no switching
+``transition_only``            DSC/dielectric anomaly, no polarity evidence
+``no_switching_seen``          switching looked for and not seen; no structure, no transition
+``conflicting``                evidence that cannot all be true: review
+``untested``                   nothing conclusive yet (inconclusive loops are listed)
+=============================  ==============================================================
 """
 
 from __future__ import annotations
@@ -40,28 +41,19 @@ from typing import Any, Mapping, Sequence
 
 from server.analysis.common import Flag, jsonable
 from server.errors import AnalysisError
+from server.verdict_codes import LABELS
 
 METHOD = (
-    "Ferroelectric only when a polar phase (ITA Vol. A polar classes) and field switching in "
+    "Evidence supports a ferroelectric phase only when a polar phase (ITA Vol. A polar classes) and field switching in "
     "that phase (PUND or a saturated loop; Scott, J. Phys.: Condens. Matter 20, 021001 (2008)) "
     "are both shown; phases delimited by DSC/dielectric transitions."
 )
-VERSION = "verdict/1.0"
+VERSION = "verdict/1.1"  # 1.1: top code polar_switching_supported (was proven_ferroelectric)
 
 #: Two measurements within this many kelvin count as the same temperature (common practice:
 #: thermometry of a P-E stage and a DSC pan differ by a few kelvin).
 SAME_TEMPERATURE_K = 5.0
 
-LABELS = {
-    "proven_ferroelectric": "Ferroelectric: a polar phase that switches",
-    "switching_phase_unknown": "Switches, but the switching phase's structure is unknown",
-    "polar_unswitched": "Polar structure, no switching seen",
-    "nonpolar": "Non-polar structure, no switching",
-    "transition_only": "Phase transition, no polarity evidence",
-    "no_switching_seen": "No switching seen, structure unknown",
-    "conflicting": "Conflicting evidence: needs review",
-    "untested": "No conclusive evidence yet",
-}
 
 _KIND_NAMES = {"pe_loop": "P-E loop", "pund": "PUND", "dielectric": "dielectric", "dsc": "DSC", "crystal": "crystal"}
 _TRANSITION_KEYS = ("t_peak_K", "peak_K", "transitions_K", "tc_K")
@@ -410,7 +402,7 @@ def decide(evidence: Sequence[Evidence]) -> CompoundVerdict:
             if st.temperature_K is None or any(s.temperature_K is None for s in switching):
                 note = " Some temperatures are not recorded, so the same phase was assumed."
             return verdict(
-                "proven_ferroelectric",
+                "polar_switching_supported",
                 f"{_cap(_structure_phrase(st))} and switching by {' and '.join(methods)} "
                 f"({_ids(switching)}): {switch_text}, in the same phase.{note}{listed}",
             )

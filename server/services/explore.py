@@ -8,9 +8,9 @@ from typing import Any, Callable, Optional
 
 from sqlmodel import Session, select
 
-from ..analysis.verdict import LABELS as VERDICT_LABELS
 from ..errors import InputError
 from ..models import Batch, Measurement
+from ..verdict_codes import LABELS as VERDICT_LABELS, strongest
 from .views import ViewQuery, ViewRow, query_view
 
 
@@ -121,9 +121,6 @@ def explore(session: Session, view: ViewQuery, *, x: str, y: str, group: str = "
 
 # --- side-chain outcome map ----------------------------------------------------------------------
 
-# Best outcome first: the colour of a cell is the best verdict any of its derivatives reached.
-OUTCOME_ORDER = ("proven_ferroelectric", "switching_phase_unknown", "polar_unswitched", "transition_only",
-                 "conflicting", "no_switching_seen", "nonpolar", "untested")
 
 
 @dataclass(frozen=True)
@@ -160,7 +157,7 @@ def outcome_map(session: Session, view: ViewQuery, *, by: str = "scaffold") -> O
     columns = sorted({c for _, c in counts})
     cells = {}
     for (key, column), counter in counts.items():
-        best = next(code for code in OUTCOME_ORDER if counter.get(code))
+        best = strongest(code for code, n in counter.items() if n)
         params = {"main_kind": key[0], "main_c": key[1], "main_branched": "yes" if key[2] else "no",
                   **({"scaffold": column} if by == "scaffold" else {"bridge": column})}
         cells[(key, column)] = Cell(counts=dict(counter), best=best,

@@ -7,7 +7,6 @@ from typing import Optional
 from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse
 
-from ..analysis.verdict import LABELS as VERDICT_LABELS
 from ..deps import OptionalActor, SessionDep, SettingsDep, check_csrf
 from ..errors import InputError
 from ..ingest.conditions import parse_quantity
@@ -56,7 +55,7 @@ def outcomes(request: Request, session: SessionDep, actor: PageActor, by: str = 
     except InputError as exc:
         error = str(exc)
     return render(request, "pages/outcomes.html",
-                  {"map": omap, "error": error, "by": by, "labels": VERDICT_LABELS, "order": explore.OUTCOME_ORDER},
+                  {"map": omap, "error": error, "by": by},
                   actor=actor)
 
 
@@ -67,7 +66,7 @@ def status_page(request: Request, session: SessionDep, settings: SettingsDep, ac
     if actor is None and not public:
         raise LoginRequired("/status")
     data = status.summary(session, see_embargoed=actor is not None and actor.can_see_embargoed)
-    return render(request, "pages/status.html", {"s": data, "public": public, "labels": VERDICT_LABELS},
+    return render(request, "pages/status.html", {"s": data, "public": public},
                   partial="partials/status_body.html", actor=actor)
 
 

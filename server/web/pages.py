@@ -19,7 +19,6 @@ from ..plots import figure_json, summary
 from ..jobs import queue
 from ..services import accounts, barriers, estimates, measurements, registry, verdicts, views
 from ..services.kinds import KINDS
-from ..analysis.verdict import LABELS as VERDICT_LABELS
 from ..services.errors import Duplicate
 from ..security import same_token
 from .render import redirect, render
@@ -126,7 +125,7 @@ def compound_list(request: Request, session: SessionDep, actor: PageActor):
     return render(
         request, "pages/compounds.html",
         {"result": result, "q": q, "error": error, "choices": views.filter_choices(session), "sorts": views.SORTS,
-         "verdict_labels": VERDICT_LABELS, "link": q.link()},
+         "link": q.link()},
         partial="partials/compound_table.html", actor=actor,
     )
 
@@ -246,7 +245,6 @@ def compound_page(code: str, request: Request, session: SessionDep, actor: PageA
                    "transitions": summary.transitions_table(items), "kinds": KINDS,
                    "barriers": barrier_rows(session, compound, t_K=298.15, frequency_Hz=1000.0),
                    "t": "298.15 K", "f": "1 kHz", "t_K": 298.15, "f_Hz": 1000.0, "rate_error": None,
-                   "verdict_labels": VERDICT_LABELS,
                    "estimates": estimates.estimates_of(session, compound),
                    "batch_verdicts": batch_verdicts,
                    "calibrated": _calibrated(session),

@@ -49,6 +49,7 @@ from server.models import (
     BarrierEstimate, Batch, Compound, CompoundSideChain, CompoundStats, CrystalPhase, Measurement, RawFile, Scaffold,
 )
 from server.services import accounts
+from server.analysis.constants import R_J_MOLK
 from server.settings import Settings
 
 from .common import RESULTS_DIR
@@ -206,7 +207,6 @@ POLAR_GROUPS = (("P2_1", 4), ("Pna2_1", 33), ("Cc", 9), ("P3_1", 144), ("R3c", 1
 NONPOLAR_GROUPS = (("P2_1/c", 14), ("P-1", 2), ("Pbca", 61), ("C2/c", 15))
 VERDICT_WEIGHTS = {"untested": 0.45, "no_switching_seen": 0.15, "transition_only": 0.12, "polar_switching_supported": 0.08,
                    "switching_phase_unknown": 0.07, "polar_unswitched": 0.05, "nonpolar": 0.06, "conflicting": 0.02}
-R_J_MOLK = 8.314462618  # molar gas constant, CODATA 2018 (exact)
 BASE_TIME = datetime(2026, 1, 5, 8, 0, tzinfo=timezone.utc)
 
 

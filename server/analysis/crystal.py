@@ -29,6 +29,7 @@ import numpy as np
 from rdkit import Chem
 
 from server.analysis.common import Flag, jsonable
+from server.analysis.constants import NA_PER_MOL
 from server.chem import geometry
 from server.errors import AnalysisError
 
@@ -41,8 +42,6 @@ METHOD = (
 )
 VERSION = "crystal/1.0"
 
-#: Avogadro constant, CODATA 2018 (exact), 1/mol.
-N_A_PER_MOL = 6.02214076e23
 #: 1 A^3 in cm^3.
 A3_TO_CM3 = 1e-24
 
@@ -729,7 +728,7 @@ def analyse_cif(
     mass = molar_mass_g_mol if molar_mass_g_mol is not None else (
         molar_mass_from_counts(counts_cif) if counts_cif else None
     )
-    density = z * mass / (N_A_PER_MOL * cell.volume * A3_TO_CM3) if (z and mass) else None
+    density = z * mass / (NA_PER_MOL * cell.volume * A3_TO_CM3) if (z and mass) else None
     density_cif = _number(block, "_exptl_crystal_density_diffrn")
     if density is None:
         flags.append(Flag("no_density", "density not computed: Z or the formula/molar mass is missing"))

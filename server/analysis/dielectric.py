@@ -30,6 +30,7 @@ import pandas as pd
 from scipy.optimize import curve_fit
 
 from server.analysis.common import Flag, jsonable
+from server.analysis.constants import EPS0_F_M
 from server.errors import AnalysisError
 
 METHOD = (
@@ -40,7 +41,6 @@ METHOD = (
 )
 VERSION = "dielectric/1.0"
 
-EPS0_F_M = 8.8541878128e-12  # vacuum permittivity, CODATA 2018
 
 # Fewer samples than this at one frequency cannot locate a peak and fit both sides.
 MIN_POINTS = 7

@@ -25,6 +25,7 @@ from scipy.integrate import trapezoid
 from scipy.signal import find_peaks, peak_widths, savgol_filter
 
 from server.analysis.common import Flag, jsonable
+from server.analysis.constants import R_J_MOLK
 from server.errors import AnalysisError
 
 METHOD = (
@@ -34,7 +35,6 @@ METHOD = (
 )
 VERSION = "dsc/1.0"
 
-R_J_MOLK = 1.380649e-23 * 6.02214076e23  # CODATA 2018 exact kB * N_A
 
 MIN_POINTS = 20
 # A temperature turn (heating -> cooling) must be larger than this to split segments, so

@@ -27,6 +27,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from server.analysis.constants import CAL_J, H_J_S, KB_J_K, NA_PER_MOL, R_J_MOLK  # noqa: F401 - kinetics.X stays importable
 from server.analysis.common import Flag, jsonable
 from server.errors import AnalysisError
 
@@ -37,12 +38,6 @@ METHOD = (
 )
 VERSION = "kinetics/1.0"
 
-# CODATA 2018 exact values (SI redefinition of 2019).
-KB_J_K = 1.380649e-23
-H_J_S = 6.62607015e-34
-NA_PER_MOL = 6.02214076e23
-R_J_MOLK = KB_J_K * NA_PER_MOL  # 8.314462618... J/(mol K), exact product
-CAL_J = 4.184  # thermochemical calorie
 
 T_REF_K = 298.15
 

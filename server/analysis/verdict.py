@@ -39,7 +39,7 @@ import math
 from dataclasses import dataclass, field
 from typing import Any, Mapping, Sequence
 
-from server.analysis.common import Flag, jsonable
+from server.analysis.results import Flag, Result
 from server.errors import AnalysisError
 from server.verdict_codes import LABELS
 
@@ -78,23 +78,13 @@ class Evidence:
 
 
 @dataclass(frozen=True)
-class UsedEvidence:
+class UsedEvidence(Result):
     """What one measurement contributed."""
 
     measurement_id: int
     kind: str
     role: str
     temperature_K: float | None
-
-    def to_dict(self) -> dict[str, Any]:
-        return jsonable(
-            {
-                "measurement_id": self.measurement_id,
-                "kind": self.kind,
-                "role": self.role,
-                "temperature_K": self.temperature_K,
-            }
-        )
 
 
 @dataclass(frozen=True)
@@ -110,18 +100,15 @@ class Transition:
 
 
 @dataclass(frozen=True)
-class Conflict:
+class Conflict(Result):
     """Two pieces of evidence that cannot both hold."""
 
     message: str
     measurement_ids: tuple[int, ...]
 
-    def to_dict(self) -> dict[str, Any]:
-        return {"message": self.message, "measurement_ids": list(self.measurement_ids)}
-
 
 @dataclass(frozen=True)
-class CompoundVerdict:
+class CompoundVerdict(Result):
     """The verdict, why, and which measurements it rests on."""
 
     code: str
@@ -133,26 +120,6 @@ class CompoundVerdict:
     used: tuple[UsedEvidence, ...]
     conflicts: tuple[Conflict, ...]
     version: str = VERSION
-
-    def to_dict(self) -> dict[str, Any]:
-        return jsonable(
-            {
-                "code": self.code,
-                "label": self.label,
-                "reason": self.reason,
-                "switching_temperatures_K": list(self.switching_temperatures_K)
-                if self.switching_temperatures_K
-                else None,
-                "transitions_K": list(self.transitions_K),
-                "transitions": [
-                    {"t_K": t.t_K, "sources": list(t.sources), "measurement_ids": list(t.measurement_ids)}
-                    for t in self.transitions
-                ],
-                "used": [u.to_dict() for u in self.used],
-                "conflicts": [c.to_dict() for c in self.conflicts],
-                "version": self.version,
-            }
-        )
 
 
 # --------------------------------------------------------------------------------------

@@ -8,7 +8,7 @@ from pydantic import BaseModel, Field
 from sqlmodel import Session, select
 
 from ..analysis import kinetics
-from ..analysis.common import jsonable
+from ..analysis.results import jsonable
 from ..errors import InputError
 from ..models import BarrierEstimate, Compound, Measurement
 from . import audit, stats

@@ -7,7 +7,7 @@ from typing import Any, Optional
 from sqlmodel import Session, func, select
 
 from ..analysis import verdict as rules
-from ..analysis.common import Flag, jsonable
+from ..analysis.results import Flag, jsonable
 from ..errors import InputError
 from ..verdict_codes import LABELS, RETIRED, effective
 from ..models import Batch, Compound, CrystalPhase, Measurement, utcnow

@@ -84,3 +84,18 @@ def test_pages_carry_a_colour_rule_for_every_verdict(client, session):
         assert (badge.group(1) if badge else None) == v.border, v.code
     legend = [li.find("strong").get_text() for li in page.select("ul.legend li")]
     assert legend == list(vc.SHORT.values())
+
+
+def test_explorer_grouped_by_verdict_wears_the_badge_colours():
+    from server.plots.explorer import explorer_figure
+    from server.services.explore import Point, group_colours
+
+    points = [Point(code=f"C-{i}", label="", x=float(i), y=float(i) ** 2, group=vc.LABELS[code])
+              for i, code in enumerate(("polar_switching_supported", "conflicting", "untested", "nonpolar"))]
+    fig = explorer_figure(points, x_title="x (1)", y_title="y (1)", colours=group_colours("verdict"))
+    by_name = {t.name.rsplit(" (", 1)[0]: t.marker.color for t in fig.data}
+    assert by_name[vc.LABELS["polar_switching_supported"]] == OKABE_ITO["green"]
+    assert by_name[vc.LABELS["conflicting"]] == OKABE_ITO["vermillion"]
+    assert by_name[vc.LABELS["nonpolar"]] == vc.NEUTRAL_BORDER
+    assert by_name[vc.LABELS["untested"]] == vc.BY_CODE["untested"].cell
+    assert group_colours("scaffold") == {}

@@ -10,7 +10,7 @@ from sqlmodel import Session, select
 
 from ..errors import InputError
 from ..models import Batch, Measurement
-from ..verdict_codes import LABELS as VERDICT_LABELS, strongest
+from ..verdict_codes import LABELS as VERDICT_LABELS, VERDICTS, strongest
 from .views import ViewQuery, ViewRow, query_view
 
 
@@ -58,6 +58,14 @@ GROUPINGS: dict[str, tuple[str, Callable[[ViewRow], str]]] = {
     "bridge": ("bridge", lambda r: r.bridge or "unknown bridge"),
     "chain_kind": ("side-chain kind", lambda r: (r.stats.chain_kind if r.stats and r.stats.chain_kind else "none")),
 }
+
+
+def group_colours(group: str) -> dict[str, str]:
+    """Fixed plot colours of the groups of ``group``: verdict groups wear their badge colours."""
+    if group != "verdict":
+        return {}
+    return {v.label: v.border or v.cell for v in VERDICTS}
+
 
 LOOP_KEYS = {"pr": "pr_uC_cm2", "ec": "ec_kV_cm", "ps": "ps_uC_cm2"}
 SAME_T_K = 5.0  # a loop within 5 K of the chosen temperature counts as "at" it (common practice)

@@ -35,7 +35,8 @@ def explorer(request: Request, session: SessionDep, actor: PageActor, x: str = "
         if t_K is not None:
             xt += f" at {t_K:.0f} K" if explore.PROPERTIES[x].temperature_dependent else ""
             yt += f" at {t_K:.0f} K" if explore.PROPERTIES[y].temperature_dependent else ""
-        fig = figure_json(explorer_figure(points, x_title=xt, y_title=yt, with_trend=bool(trend)))
+        fig = figure_json(explorer_figure(points, x_title=xt, y_title=yt, with_trend=bool(trend),
+                                            colours=explore.group_colours(group)))
     except InputError as exc:
         error, q = str(exc), views.ViewQuery()
     return render(request, "pages/explorer.html",

@@ -39,7 +39,6 @@ from bs4 import BeautifulSoup
 from sqlalchemy import event
 from sqlmodel import Session
 
-from server.analysis.verdict import LABELS as VERDICT_LABELS
 from server.db import make_engine
 from server.access import Actor
 from server.services import views
@@ -137,7 +136,7 @@ def direct_renderer(database_url: str):
         with Session(engine) as session:
             q = views.parse_view(QUERY)
             result = views.query_view(session, q, actor=actor)
-            return template.render(result=result, q=q, error=None, sorts=views.SORTS, verdict_labels=VERDICT_LABELS,
+            return template.render(result=result, q=q, error=None, sorts=views.SORTS,
                                    link=q.link(), actor=actor, csrf_token="")
 
     def query_only() -> views.ViewResult:
@@ -148,7 +147,7 @@ def direct_renderer(database_url: str):
 
     def template_only() -> str:
         return template.render(result=fixed, q=fixed.query, error=None, sorts=views.SORTS,
-                               verdict_labels=VERDICT_LABELS, link=fixed.query.link(), actor=actor, csrf_token="")
+                               link=fixed.query.link(), actor=actor, csrf_token="")
 
     return render, engine, query_only, template_only
 

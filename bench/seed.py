@@ -42,13 +42,14 @@ from sqlalchemy import insert, text
 from sqlalchemy.engine import Engine, make_url
 from sqlmodel import Session
 
-from server.analysis.verdict import LABELS as VERDICT_LABELS
+from server.verdict_codes import LABELS as VERDICT_LABELS
 from server.chem import identity, scaffold, sidechains
 from server.db import alembic_config, make_engine, upgrade
 from server.models import (
     BarrierEstimate, Batch, Compound, CompoundSideChain, CompoundStats, CrystalPhase, Measurement, RawFile, Scaffold,
 )
 from server.services import accounts
+from server.analysis.constants import R_J_MOLK
 from server.settings import Settings
 
 from .common import RESULTS_DIR
@@ -204,9 +205,8 @@ KIND_WEIGHTS = {"pe_loop": 0.25, "pund": 0.1, "dielectric": 0.25, "dsc": 0.2, "n
 BATCH_STATE_WEIGHTS = {"made": 0.8, "impure": 0.1, "failed": 0.07, "used_up": 0.03}
 POLAR_GROUPS = (("P2_1", 4), ("Pna2_1", 33), ("Cc", 9), ("P3_1", 144), ("R3c", 161))
 NONPOLAR_GROUPS = (("P2_1/c", 14), ("P-1", 2), ("Pbca", 61), ("C2/c", 15))
-VERDICT_WEIGHTS = {"untested": 0.45, "no_switching_seen": 0.15, "transition_only": 0.12, "proven_ferroelectric": 0.08,
+VERDICT_WEIGHTS = {"untested": 0.45, "no_switching_seen": 0.15, "transition_only": 0.12, "polar_switching_supported": 0.08,
                    "switching_phase_unknown": 0.07, "polar_unswitched": 0.05, "nonpolar": 0.06, "conflicting": 0.02}
-R_J_MOLK = 8.314462618  # molar gas constant, CODATA 2018 (exact)
 BASE_TIME = datetime(2026, 1, 5, 8, 0, tzinfo=timezone.utc)
 
 

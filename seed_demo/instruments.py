@@ -13,6 +13,7 @@ from typing import Callable
 
 import numpy as np
 
+from server.analysis.constants import H_J_S, KB_J_K, R_J_MOLK
 from server.errors import ChemistryError
 from server.ingest.table import to_csv_bytes
 from server.synth.cif import bowl_crystal
@@ -21,7 +22,7 @@ from server.synth.dsc import dsc_trace
 from server.synth.ferro import leaky_capacitor, miller_loop, pund_train, raw_vq
 from server.synth.nmr import rate_table
 
-from .scenario import R_J_MOLK, CompoundPlan, Measurement
+from .scenario import CompoundPlan, Measurement
 
 
 @dataclass(frozen=True)
@@ -167,7 +168,7 @@ def dsc(c: CompoundPlan, m: Measurement, rng: np.random.Generator, name: str, op
 
 def eyring_k_per_s(dh_kJ_mol: float, ds_J_molK: float, t_K: float) -> float:
     """k = (kB T / h) exp(dS/R) exp(-dH/RT) (Eyring 1935; kappa = 1)."""
-    kb_h = 1.380649e-23 / 6.62607015e-34
+    kb_h = KB_J_K / H_J_S
     return kb_h * t_K * np.exp(ds_J_molK / R_J_MOLK - dh_kJ_mol * 1e3 / (R_J_MOLK * t_K))
 
 

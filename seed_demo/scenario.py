@@ -85,6 +85,7 @@ from functools import cached_property
 
 import numpy as np
 
+from server.analysis.constants import CAL_J, DEBYE_C_M
 from server.chem.scaffold import PARENT_BOWLS, attach_side_chains, side_chain_smiles, validate_scaffold
 
 SEED = 20261201
@@ -95,9 +96,6 @@ CAMPAIGN_END = date(2026, 11, 27)
 GROUP = "Tessellate group"
 CAMPAIGN = "TILT-26"
 
-R_J_MOLK = 8.314462618  # CODATA 2018 (k_B N_A)
-DEBYE_C_M = 3.33564e-30  # 1 D = 1e-21 / c C m
-AVOGADRO = 6.02214076e23
 
 #: Invented people of the group: (login, full name, role). The admin is the CLI's 'demo' user.
 PEOPLE = (
@@ -322,7 +320,7 @@ class CompoundPlan:
 
     @property
     def dh_kJ_mol(self) -> float:
-        return self.dg_kcal_mol * 4.184 + 298.15 * DS_ACT_J_MOLK / 1000.0
+        return self.dg_kcal_mol * CAL_J + 298.15 * DS_ACT_J_MOLK / 1000.0
 
     @property
     def tm_K(self) -> float:

@@ -11,11 +11,12 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 from scipy import stats
 
-from server.analysis.common import Flag, jsonable
+from server.analysis.results import Flag, Result
 from server.errors import AnalysisError
 
 METHOD = (
@@ -31,8 +32,11 @@ CONFIDENCE = 0.95
 
 
 @dataclass(frozen=True)
-class Calibration:
+class Calibration(Result):
     """A fitted (or refused) calibration line of measured on computed barriers, kcal/mol."""
+
+    JSON_KEYS = ("status", "message", "n", "a_kcal_mol", "b", "a_err_kcal_mol", "b_err", "r2", "s_kcal_mol",
+                 "confidence", "t_crit", "points", "flags")
 
     status: str  # "ok" | "insufficient"
     message: str
@@ -61,6 +65,20 @@ class Calibration:
         if not self.ok:
             return ()
         return tuple(y - (self.a_kcal_mol + self.b * x) for x, y in zip(self.computed_kcal_mol, self.measured_kcal_mol))
+
+    @property
+    def confidence(self) -> float:
+        """Confidence level of the prediction band."""
+        return CONFIDENCE
+
+    @property
+    def points(self) -> list[dict[str, Any]]:
+        """Each calibration pair with its label and residual (None without a fit)."""
+        res = self.residuals_kcal_mol
+        return [
+            {"label": lab, "computed_kcal_mol": x, "measured_kcal_mol": y, "residual_kcal_mol": res[i] if res else None}
+            for i, (lab, x, y) in enumerate(zip(self.labels, self.computed_kcal_mol, self.measured_kcal_mol))
+        ]
 
     def _need_fit(self) -> None:
         if not self.ok:
@@ -110,35 +128,6 @@ class Calibration:
         y = self.a_kcal_mol + self.b * x
         half = self.t_crit * self.s_kcal_mol * np.sqrt(1.0 + 1.0 / self.n + (x - self.x_mean_kcal_mol) ** 2 / self.sxx)
         return y, y - half, y + half
-
-    def to_dict(self) -> dict:
-        res = self.residuals_kcal_mol
-        points = [
-            {
-                "label": lab,
-                "computed_kcal_mol": x,
-                "measured_kcal_mol": y,
-                "residual_kcal_mol": res[i] if res else None,
-            }
-            for i, (lab, x, y) in enumerate(zip(self.labels, self.computed_kcal_mol, self.measured_kcal_mol))
-        ]
-        return jsonable(
-            {
-                "status": self.status,
-                "message": self.message,
-                "n": self.n,
-                "a_kcal_mol": self.a_kcal_mol,
-                "b": self.b,
-                "a_err_kcal_mol": self.a_err_kcal_mol,
-                "b_err": self.b_err,
-                "r2": self.r2,
-                "s_kcal_mol": self.s_kcal_mol,
-                "confidence": CONFIDENCE,
-                "t_crit": self.t_crit,
-                "points": points,
-                "flags": [f.to_dict() for f in self.flags],
-            }
-        )
 
 
 def _as_floats(values: Sequence[float], what: str, field_name: str) -> tuple[float, ...]:

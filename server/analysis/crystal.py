@@ -28,7 +28,8 @@ import gemmi
 import numpy as np
 from rdkit import Chem
 
-from server.analysis.common import Flag, jsonable
+from server.analysis.results import Flag, Result
+from server.analysis.constants import NA_PER_MOL
 from server.chem import geometry
 from server.errors import AnalysisError
 
@@ -41,8 +42,6 @@ METHOD = (
 )
 VERSION = "crystal/1.0"
 
-#: Avogadro constant, CODATA 2018 (exact), 1/mol.
-N_A_PER_MOL = 6.02214076e23
 #: 1 A^3 in cm^3.
 A3_TO_CM3 = 1e-24
 
@@ -207,8 +206,15 @@ def _same_counts(a: dict[str, float], b: dict[str, float], tol: float = 1e-6) ->
 
 
 @dataclass(frozen=True)
-class CrystalResult:
+class CrystalResult(Result):
     """What a CIF says about polarity, packing and consistency with the registry."""
+
+    JSON_KEYS = (
+        "data_block", "space_group", "space_group_xhm", "space_group_number", "point_group", "crystal_system",
+        "polar", "centrosymmetric", "chiral", "z", "cell", "density_g_cm3", "density_cif_g_cm3",
+        "molar_mass_g_mol", "temperature_K", "r1", "formula_cif", "bowl_depth_A", "stacking_distance_A",
+        "column_axis", "column_axis_angle_deg", "column_polar", "neighbours_same_direction", "verdict", "flags",
+    )  # fmt: skip
 
     data_block: str
     space_group: str
@@ -243,36 +249,6 @@ class CrystalResult:
         if self.polar:
             return "polar"
         return "non_polar_acentric"
-
-    def to_dict(self) -> dict[str, Any]:
-        out = {
-            "data_block": self.data_block,
-            "space_group": self.space_group,
-            "space_group_xhm": self.space_group_xhm,
-            "space_group_number": self.space_group_number,
-            "point_group": self.point_group,
-            "crystal_system": self.crystal_system,
-            "polar": self.polar,
-            "centrosymmetric": self.centrosymmetric,
-            "chiral": self.chiral,
-            "z": self.z,
-            "cell": dict(self.cell),
-            "density_g_cm3": self.density_g_cm3,
-            "density_cif_g_cm3": self.density_cif_g_cm3,
-            "molar_mass_g_mol": self.molar_mass_g_mol,
-            "temperature_K": self.temperature_K,
-            "r1": self.r1,
-            "formula_cif": self.formula_cif,
-            "bowl_depth_A": self.bowl_depth_A,
-            "stacking_distance_A": self.stacking_distance_A,
-            "column_axis": self.column_axis,
-            "column_axis_angle_deg": self.column_axis_angle_deg,
-            "column_polar": self.column_polar,
-            "neighbours_same_direction": self.neighbours_same_direction,
-            "verdict": self.verdict,
-            "flags": [f.to_dict() for f in self.flags],
-        }
-        return jsonable(out)
 
 
 # --------------------------------------------------------------------------------------
@@ -729,7 +705,7 @@ def analyse_cif(
     mass = molar_mass_g_mol if molar_mass_g_mol is not None else (
         molar_mass_from_counts(counts_cif) if counts_cif else None
     )
-    density = z * mass / (N_A_PER_MOL * cell.volume * A3_TO_CM3) if (z and mass) else None
+    density = z * mass / (NA_PER_MOL * cell.volume * A3_TO_CM3) if (z and mass) else None
     density_cif = _number(block, "_exptl_crystal_density_diffrn")
     if density is None:
         flags.append(Flag("no_density", "density not computed: Z or the formula/molar mass is missing"))

@@ -29,7 +29,8 @@ import numpy as np
 import pandas as pd
 from scipy.optimize import curve_fit
 
-from server.analysis.common import Flag, jsonable
+from server.analysis.results import Flag, Result
+from server.analysis.constants import EPS0_F_M
 from server.errors import AnalysisError
 
 METHOD = (
@@ -40,7 +41,6 @@ METHOD = (
 )
 VERSION = "dielectric/1.0"
 
-EPS0_F_M = 8.8541878128e-12  # vacuum permittivity, CODATA 2018
 
 # Fewer samples than this at one frequency cannot locate a peak and fit both sides.
 MIN_POINTS = 7
@@ -67,7 +67,7 @@ POOR_FIT_R2 = 0.98
 
 
 @dataclass(frozen=True)
-class DielectricPeak:
+class DielectricPeak(Result):
     """Permittivity maximum at one frequency; ``t_peak_K`` is None when it lies at a range edge."""
 
     f_Hz: float | None
@@ -76,21 +76,12 @@ class DielectricPeak:
     at_edge: str | None  # None, "low" or "high"
     n_points: int
 
-    def to_dict(self) -> dict:
-        return jsonable(
-            {
-                "f_Hz": self.f_Hz,
-                "t_peak_K": self.t_peak_K,
-                "eps_peak": self.eps_peak,
-                "at_edge": self.at_edge,
-                "n_points": self.n_points,
-            }
-        )
-
 
 @dataclass(frozen=True)
-class DielectricResult:
+class DielectricResult(Result):
     """Result of :func:`analyse_dielectric`; ``curves`` holds the plot arrays (not in ``to_dict``)."""
+
+    JSON_OMIT = ("curves",)  # plot data
 
     peaks: tuple[DielectricPeak, ...]
     t_peak_K: float | None
@@ -112,31 +103,6 @@ class DielectricResult:
     points: int
     flags: tuple[Flag, ...] = ()
     curves: dict[str, Any] | None = field(default=None, repr=False, compare=False)
-
-    def to_dict(self) -> dict:
-        return jsonable(
-            {
-                "peaks": [p.to_dict() for p in self.peaks],
-                "t_peak_K": self.t_peak_K,
-                "eps_peak": self.eps_peak,
-                "dispersion_K": self.dispersion_K,
-                "curie_constant_K": self.curie_constant_K,
-                "curie_constant_err_K": self.curie_constant_err_K,
-                "t0_K": self.t0_K,
-                "t0_err_K": self.t0_err_K,
-                "eps_inf": self.eps_inf,
-                "eps_inf_err": self.eps_inf_err,
-                "fit_r2": self.fit_r2,
-                "fit_t_min_K": self.fit_t_min_K,
-                "fit_t_max_K": self.fit_t_max_K,
-                "fit_points": self.fit_points,
-                "landau_slope_ratio": self.landau_slope_ratio,
-                "transition_hint": self.transition_hint,
-                "frequencies": list(self.frequencies),
-                "points": self.points,
-                "flags": [f.to_dict() for f in self.flags],
-            }
-        )
 
 
 # --------------------------------------------------------------------------- helpers

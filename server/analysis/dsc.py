@@ -24,7 +24,8 @@ import pandas as pd
 from scipy.integrate import trapezoid
 from scipy.signal import find_peaks, peak_widths, savgol_filter
 
-from server.analysis.common import Flag, jsonable
+from server.analysis.results import Flag, Result
+from server.analysis.constants import R_J_MOLK
 from server.errors import AnalysisError
 
 METHOD = (
@@ -34,7 +35,6 @@ METHOD = (
 )
 VERSION = "dsc/1.0"
 
-R_J_MOLK = 1.380649e-23 * 6.02214076e23  # CODATA 2018 exact kB * N_A
 
 MIN_POINTS = 20
 # A temperature turn (heating -> cooling) must be larger than this to split segments, so
@@ -60,7 +60,7 @@ RATE_MISMATCH_REL = 0.05
 
 
 @dataclass(frozen=True)
-class DscPeak:
+class DscPeak(Result):
     """One transition peak; temperatures in K, enthalpies signed (dH > 0 endothermic)."""
 
     segment: int
@@ -76,27 +76,9 @@ class DscPeak:
     ds_J_molK: float | None
     n_states: float | None
 
-    def to_dict(self) -> dict:
-        return jsonable(
-            {
-                "segment": self.segment,
-                "segment_direction": self.segment_direction,
-                "direction": self.direction,
-                "onset_K": self.onset_K,
-                "peak_K": self.peak_K,
-                "end_K": self.end_K,
-                "start_K": self.start_K,
-                "width_K": self.width_K,
-                "dh_J_g": self.dh_J_g,
-                "dh_kJ_mol": self.dh_kJ_mol,
-                "ds_J_molK": self.ds_J_molK,
-                "n_states": self.n_states,
-            }
-        )
-
 
 @dataclass(frozen=True)
-class DscSegment:
+class DscSegment(Result):
     """A monotonic heating or cooling part of the run."""
 
     index: int
@@ -107,23 +89,12 @@ class DscSegment:
     n_points: int
     integrated_over: str  # "time" | "temperature"
 
-    def to_dict(self) -> dict:
-        return jsonable(
-            {
-                "index": self.index,
-                "direction": self.direction,
-                "t_start_K": self.t_start_K,
-                "t_end_K": self.t_end_K,
-                "rate_K_min": self.rate_K_min,
-                "n_points": self.n_points,
-                "integrated_over": self.integrated_over,
-            }
-        )
-
 
 @dataclass(frozen=True)
-class DscResult:
+class DscResult(Result):
     """Result of :func:`analyse_dsc`; ``curves`` holds plot arrays (not in ``to_dict``)."""
+
+    JSON_OMIT = ("curves",)  # plot data
 
     peaks: tuple[DscPeak, ...]
     segments: tuple[DscSegment, ...]
@@ -133,19 +104,6 @@ class DscResult:
     molar_mass_g_mol: float | None
     flags: tuple[Flag, ...] = ()
     curves: dict[str, Any] | None = field(default=None, repr=False, compare=False)
-
-    def to_dict(self) -> dict:
-        return jsonable(
-            {
-                "peaks": [p.to_dict() for p in self.peaks],
-                "segments": [s.to_dict() for s in self.segments],
-                "rate_K_min": self.rate_K_min,
-                "mass_mg": self.mass_mg,
-                "endo": self.endo,
-                "molar_mass_g_mol": self.molar_mass_g_mol,
-                "flags": [f.to_dict() for f in self.flags],
-            }
-        )
 
 
 # --------------------------------------------------------------------------- thermodynamics

@@ -16,7 +16,7 @@ import numpy as np
 import pandas as pd
 from scipy.integrate import cumulative_trapezoid
 
-from server.analysis.common import Flag, jsonable
+from server.analysis.results import Flag, Result
 from server.errors import AnalysisError
 from server.ingest.units import Q_
 
@@ -54,8 +54,10 @@ class LoopCycle:
 
 
 @dataclass(frozen=True)
-class LoopResult:
+class LoopResult(Result):
     """Result of :func:`analyse_loop`; ``to_dict()`` gives the contract keys."""
+
+    JSON_OMIT = ("cycle",)  # plot data
 
     pr_pos_uC_cm2: float
     pr_neg_uC_cm2: float
@@ -78,16 +80,6 @@ class LoopResult:
     verdict: str
     flags: tuple[Flag, ...]
     cycle: LoopCycle = field(repr=False, compare=False)
-
-    def to_dict(self) -> dict[str, Any]:
-        keys = (
-            "pr_pos_uC_cm2", "pr_neg_uC_cm2", "pr_uC_cm2", "ec_pos_kV_cm", "ec_neg_kV_cm", "ec_kV_cm",
-            "pmax_uC_cm2", "emax_kV_cm", "ps_uC_cm2", "imprint_kV_cm", "loss_mJ_cm3", "squareness",
-            "cycles_found", "cycle_used", "points", "frequency_Hz", "source", "shape", "verdict",
-        )  # fmt: skip
-        out = {k: jsonable(getattr(self, k)) for k in keys}
-        out["flags"] = [f.to_dict() for f in self.flags]
-        return out
 
 
 # ---------------------------------------------------------------- input

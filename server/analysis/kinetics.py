@@ -27,7 +27,8 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from server.analysis.common import Flag, jsonable
+from server.analysis.constants import CAL_J, H_J_S, KB_J_K, NA_PER_MOL, R_J_MOLK  # noqa: F401 - kinetics.X stays importable
+from server.analysis.results import Flag, Result
 from server.errors import AnalysisError
 
 METHOD = (
@@ -37,12 +38,6 @@ METHOD = (
 )
 VERSION = "kinetics/1.0"
 
-# CODATA 2018 exact values (SI redefinition of 2019).
-KB_J_K = 1.380649e-23
-H_J_S = 6.62607015e-34
-NA_PER_MOL = 6.02214076e23
-R_J_MOLK = KB_J_K * NA_PER_MOL  # 8.314462618... J/(mol K), exact product
-CAL_J = 4.184  # thermochemical calorie
 
 T_REF_K = 298.15
 
@@ -201,8 +196,11 @@ def _dg_coalescence_J_mol(tc_K: float, dnu_Hz: float) -> float:
 
 
 @dataclass(frozen=True)
-class CoalescenceResult:
+class CoalescenceResult(Result):
     """Barrier at the coalescence temperature of two equally populated singlets."""
+
+    JSON_KEYS = ("dg_kcal_mol", "dg_kJ_mol", "dg_err_kcal_mol", "t_K", "k_s", "dnu_Hz", "tc_err_K", "dnu_err_Hz",
+                 "flags")  # t_K: the temperature the barrier belongs to, the coalescence temperature
 
     tc_K: float
     dnu_Hz: float
@@ -214,20 +212,9 @@ class CoalescenceResult:
     dnu_err_Hz: float
     flags: tuple[Flag, ...] = ()
 
-    def to_dict(self) -> dict:
-        return jsonable(
-            {
-                "dg_kcal_mol": self.dg_kcal_mol,
-                "dg_kJ_mol": self.dg_kJ_mol,
-                "dg_err_kcal_mol": self.dg_err_kcal_mol,
-                "t_K": self.tc_K,
-                "k_s": self.k_s,
-                "dnu_Hz": self.dnu_Hz,
-                "tc_err_K": self.tc_err_K,
-                "dnu_err_Hz": self.dnu_err_Hz,
-                "flags": [f.to_dict() for f in self.flags],
-            }
-        )
+    @property
+    def t_K(self) -> float:
+        return self.tc_K
 
 
 def coalescence(
@@ -328,8 +315,10 @@ def coalescence(
 
 
 @dataclass(frozen=True)
-class EyringFit:
+class EyringFit(Result):
     """Activation parameters from a linear Eyring plot, plus the Arrhenius pair."""
+
+    JSON_OMIT = ("t_K", "k_per_s", "slope_K", "intercept", "residuals")  # plot data
 
     dh_kcal_mol: float
     ds_cal_molK: float
@@ -370,29 +359,6 @@ class EyringFit:
     def fitted_ln_k_over_t(self, t_K: np.ndarray) -> np.ndarray:
         """The fitted line ln(k/T) at temperatures ``t_K``."""
         return self.intercept + self.slope_K / np.asarray(t_K, dtype=float)
-
-    def to_dict(self) -> dict:
-        return jsonable(
-            {
-                "dh_kcal_mol": self.dh_kcal_mol,
-                "ds_cal_molK": self.ds_cal_molK,
-                "dh_err_kcal_mol": self.dh_err_kcal_mol,
-                "ds_err_cal_molK": self.ds_err_cal_molK,
-                "dg298_kcal_mol": self.dg298_kcal_mol,
-                "dg298_err_kcal_mol": self.dg298_err_kcal_mol,
-                "ea_kJ_mol": self.ea_kJ_mol,
-                "ea_err_kJ_mol": self.ea_err_kJ_mol,
-                "ln_a": self.ln_a,
-                "ln_a_err": self.ln_a_err,
-                "r2": self.r2,
-                "points": self.points,
-                "t_min_K": self.t_min_K,
-                "t_max_K": self.t_max_K,
-                "weighted": self.weighted,
-                "kappa": self.kappa,
-                "flags": [f.to_dict() for f in self.flags],
-            }
-        )
 
 
 def _where(i: int, lines: Sequence[int] | None) -> dict:
@@ -661,7 +627,7 @@ def analyse_rate_table(
 
 
 @dataclass(frozen=True)
-class RateSummary:
+class RateSummary(Result):
     """What a barrier means at one temperature and, optionally, one field frequency."""
 
     dg_kcal_mol: float
@@ -671,19 +637,6 @@ class RateSummary:
     frequency_Hz: float | None
     keeps_up: bool | None
     flags: tuple[Flag, ...] = ()
-
-    def to_dict(self) -> dict:
-        return jsonable(
-            {
-                "dg_kcal_mol": self.dg_kcal_mol,
-                "t_K": self.t_K,
-                "k_s": self.k_s,
-                "half_life_s": self.half_life_s,
-                "frequency_Hz": self.frequency_Hz,
-                "keeps_up": self.keeps_up,
-                "flags": [f.to_dict() for f in self.flags],
-            }
-        )
 
 
 def rate_summary(dg_kcal_mol: float, t_K: float, field_frequency_Hz: float | None = None) -> RateSummary:
@@ -744,7 +697,7 @@ def rate_summary(dg_kcal_mol: float, t_K: float, field_frequency_Hz: float | Non
 
 
 @dataclass(frozen=True)
-class ImportedBarrier:
+class ImportedBarrier(Result):
     """A barrier computed elsewhere (DFT, xTB, literature), with its provenance."""
 
     dg_kcal_mol: float
@@ -752,17 +705,6 @@ class ImportedBarrier:
     level_of_theory: str
     notes: str | None
     flags: tuple[Flag, ...] = ()
-
-    def to_dict(self) -> dict:
-        return jsonable(
-            {
-                "dg_kcal_mol": self.dg_kcal_mol,
-                "dg_kJ_mol": self.dg_kJ_mol,
-                "level_of_theory": self.level_of_theory,
-                "notes": self.notes,
-                "flags": [f.to_dict() for f in self.flags],
-            }
-        )
 
 
 def imported_barrier(dg_kcal_mol: float, level_of_theory: str, notes: str | None = None) -> ImportedBarrier:

@@ -10,13 +10,12 @@ about 2 Pr; a lossy dielectric gives P* = U^ and no difference.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Any
 
 import numpy as np
 import pandas as pd
 from scipy.integrate import cumulative_trapezoid
 
-from server.analysis.common import Flag, jsonable
+from server.analysis.results import Flag, Result
 from server.analysis.hysteresis import KV_CM_PER_V_UM, UC_CM2_PER_UC_CM2, UC_PER_A_S
 from server.errors import AnalysisError
 
@@ -49,8 +48,10 @@ class PundPulse:
 
 
 @dataclass(frozen=True)
-class PundResult:
+class PundResult(Result):
     """Result of :func:`analyse_pund`; ``to_dict()`` gives the contract keys."""
+
+    JSON_OMIT = ("pulses", "t_s", "p_uC_cm2")  # plot data
 
     p_switched_uC_cm2: float
     p_switched_neg_uC_cm2: float
@@ -73,17 +74,6 @@ class PundResult:
     pulses: tuple[PundPulse, ...] = field(repr=False, compare=False)
     t_s: np.ndarray = field(repr=False, compare=False)
     p_uC_cm2: np.ndarray = field(repr=False, compare=False)
-
-    def to_dict(self) -> dict[str, Any]:
-        keys = (
-            "p_switched_uC_cm2", "p_switched_neg_uC_cm2", "p_nonswitched_uC_cm2", "p_star_uC_cm2",
-            "p_hat_uC_cm2", "n_star_uC_cm2", "d_hat_uC_cm2", "pr_pund_uC_cm2", "dpr_remanent_uC_cm2",
-            "pulse_count", "pulse_width_s", "pulse_amplitude", "pulse_amplitude_unit", "e_pulse_kV_cm",
-            "noise_uC_cm2", "source", "verdict",
-        )  # fmt: skip
-        out = {k: jsonable(getattr(self, k)) for k in keys}
-        out["flags"] = [f.to_dict() for f in self.flags]
-        return out
 
 
 def _column(frame: pd.DataFrame, name: str) -> np.ndarray:

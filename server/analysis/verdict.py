@@ -18,18 +18,19 @@ temperature axis into phases; a structure and a switching measurement count as t
 when no transition lies between their temperatures (an unknown temperature is assumed to be
 the same phase, and the reason says so).
 
-Verdict codes (stable; shown with their labels):
+Verdict codes (stable; labels, order and colours in :mod:`server.verdict_codes`):
 
-=========================  ==================================================================
-``proven_ferroelectric``   polar structure and switching in the same phase
-``switching_phase_unknown`` switching, but no polar structure known for that phase
-``polar_unswitched``       polar structure, no switching seen (pyroelectric at most)
-``nonpolar``               only non-polar structures, no switching
-``transition_only``        DSC/dielectric anomaly, no polarity evidence
-``no_switching_seen``      switching looked for and not seen; no structure, no transition
-``conflicting``            evidence that cannot all be true: review
-``untested``               nothing conclusive yet (inconclusive loops are listed)
-=========================  ==================================================================
+=============================  ==============================================================
+``polar_switching_supported``  polar structure and switching in the same phase: the evidence
+                               supports a ferroelectric phase (a screening result, not a proof)
+``switching_phase_unknown``    switching, but no polar structure known for that phase
+``polar_unswitched``           polar structure, no switching seen (pyroelectric at most)
+``nonpolar``                   only non-polar structures, no switching
+``transition_only``            DSC/dielectric anomaly, no polarity evidence
+``no_switching_seen``          switching looked for and not seen; no structure, no transition
+``conflicting``                evidence that cannot all be true: review
+``untested``                   nothing conclusive yet (inconclusive loops are listed)
+=============================  ==============================================================
 """
 
 from __future__ import annotations
@@ -38,30 +39,21 @@ import math
 from dataclasses import dataclass, field
 from typing import Any, Mapping, Sequence
 
-from server.analysis.common import Flag, jsonable
+from server.analysis.results import Flag, Result
 from server.errors import AnalysisError
+from server.verdict_codes import LABELS
 
 METHOD = (
-    "Ferroelectric only when a polar phase (ITA Vol. A polar classes) and field switching in "
+    "Evidence supports a ferroelectric phase only when a polar phase (ITA Vol. A polar classes) and field switching in "
     "that phase (PUND or a saturated loop; Scott, J. Phys.: Condens. Matter 20, 021001 (2008)) "
     "are both shown; phases delimited by DSC/dielectric transitions."
 )
-VERSION = "verdict/1.0"
+VERSION = "verdict/1.1"  # 1.1: top code polar_switching_supported (was proven_ferroelectric)
 
 #: Two measurements within this many kelvin count as the same temperature (common practice:
 #: thermometry of a P-E stage and a DSC pan differ by a few kelvin).
 SAME_TEMPERATURE_K = 5.0
 
-LABELS = {
-    "proven_ferroelectric": "Ferroelectric: a polar phase that switches",
-    "switching_phase_unknown": "Switches, but the switching phase's structure is unknown",
-    "polar_unswitched": "Polar structure, no switching seen",
-    "nonpolar": "Non-polar structure, no switching",
-    "transition_only": "Phase transition, no polarity evidence",
-    "no_switching_seen": "No switching seen, structure unknown",
-    "conflicting": "Conflicting evidence: needs review",
-    "untested": "No conclusive evidence yet",
-}
 
 _KIND_NAMES = {"pe_loop": "P-E loop", "pund": "PUND", "dielectric": "dielectric", "dsc": "DSC", "crystal": "crystal"}
 _TRANSITION_KEYS = ("t_peak_K", "peak_K", "transitions_K", "tc_K")
@@ -86,23 +78,13 @@ class Evidence:
 
 
 @dataclass(frozen=True)
-class UsedEvidence:
+class UsedEvidence(Result):
     """What one measurement contributed."""
 
     measurement_id: int
     kind: str
     role: str
     temperature_K: float | None
-
-    def to_dict(self) -> dict[str, Any]:
-        return jsonable(
-            {
-                "measurement_id": self.measurement_id,
-                "kind": self.kind,
-                "role": self.role,
-                "temperature_K": self.temperature_K,
-            }
-        )
 
 
 @dataclass(frozen=True)
@@ -118,18 +100,15 @@ class Transition:
 
 
 @dataclass(frozen=True)
-class Conflict:
+class Conflict(Result):
     """Two pieces of evidence that cannot both hold."""
 
     message: str
     measurement_ids: tuple[int, ...]
 
-    def to_dict(self) -> dict[str, Any]:
-        return {"message": self.message, "measurement_ids": list(self.measurement_ids)}
-
 
 @dataclass(frozen=True)
-class CompoundVerdict:
+class CompoundVerdict(Result):
     """The verdict, why, and which measurements it rests on."""
 
     code: str
@@ -141,26 +120,6 @@ class CompoundVerdict:
     used: tuple[UsedEvidence, ...]
     conflicts: tuple[Conflict, ...]
     version: str = VERSION
-
-    def to_dict(self) -> dict[str, Any]:
-        return jsonable(
-            {
-                "code": self.code,
-                "label": self.label,
-                "reason": self.reason,
-                "switching_temperatures_K": list(self.switching_temperatures_K)
-                if self.switching_temperatures_K
-                else None,
-                "transitions_K": list(self.transitions_K),
-                "transitions": [
-                    {"t_K": t.t_K, "sources": list(t.sources), "measurement_ids": list(t.measurement_ids)}
-                    for t in self.transitions
-                ],
-                "used": [u.to_dict() for u in self.used],
-                "conflicts": [c.to_dict() for c in self.conflicts],
-                "version": self.version,
-            }
-        )
 
 
 # --------------------------------------------------------------------------------------
@@ -410,7 +369,7 @@ def decide(evidence: Sequence[Evidence]) -> CompoundVerdict:
             if st.temperature_K is None or any(s.temperature_K is None for s in switching):
                 note = " Some temperatures are not recorded, so the same phase was assumed."
             return verdict(
-                "proven_ferroelectric",
+                "polar_switching_supported",
                 f"{_cap(_structure_phrase(st))} and switching by {' and '.join(methods)} "
                 f"({_ids(switching)}): {switch_text}, in the same phase.{note}{listed}",
             )

@@ -35,7 +35,7 @@ from rdkit import __version__ as rdkit_version
 from rdkit.Chem import AllChem
 from scipy.optimize import minimize
 
-from server.analysis.common import Flag, jsonable
+from server.analysis.results import Flag, Result
 from server.chem.geometry import bowl_axis, bowl_depth_A, core_atoms, plane_fit
 from server.errors import AnalysisError, ChemistryError
 
@@ -82,13 +82,22 @@ class EstimateCancelled(Exception):
 
 
 @dataclass(frozen=True)
-class XtbEstimate:
+class XtbEstimate(Result):
     """Result of :func:`estimate_barrier`. Energies in Hartree, lengths in angstrom.
 
     ``xyz_bowl`` and ``xyz_planar`` are XYZ files (angstrom) of the optimised bowl and
     planar-core structures; atom order: the heavy atoms in the order of ``smiles_used``,
     then the hydrogens. ``xyz_planar`` is None when the minimum was planar from the start.
+    The JSON leaves the coordinates out and adds the module ``version``.
     """
+
+    JSON_KEYS = (
+        "barrier_kcal_mol", "bowl_depth_A", "dipole_D", "dipole_axial_D", "planar", "model", "method", "converged",
+        "steps_bowl", "steps_planar", "gradient_evaluations_bowl", "gradient_evaluations_planar",
+        "conformers_screened", "screening_evaluations", "max_gradient_bowl_Eh_bohr", "max_gradient_planar_Eh_bohr",
+        "gtol_Eh_bohr", "energy_bowl_Eh", "energy_planar_Eh", "wall_time_s", "software", "smiles_used", "atoms",
+        "flags", "version",
+    )  # fmt: skip
 
     barrier_kcal_mol: float
     bowl_depth_A: float
@@ -117,36 +126,9 @@ class XtbEstimate:
     xyz_bowl: str = field(default="", repr=False)
     xyz_planar: str | None = field(default=None, repr=False)
 
-    def to_dict(self) -> dict:
-        """JSON-ready contract keys (coordinates are left out: see ``xyz_bowl``/``xyz_planar``)."""
-        out = {
-            "barrier_kcal_mol": self.barrier_kcal_mol,
-            "bowl_depth_A": self.bowl_depth_A,
-            "dipole_D": self.dipole_D,
-            "dipole_axial_D": self.dipole_axial_D,
-            "planar": self.planar,
-            "model": self.model,
-            "method": self.method,
-            "converged": self.converged,
-            "steps_bowl": self.steps_bowl,
-            "steps_planar": self.steps_planar,
-            "gradient_evaluations_bowl": self.gradient_evaluations_bowl,
-            "gradient_evaluations_planar": self.gradient_evaluations_planar,
-            "conformers_screened": self.conformers_screened,
-            "screening_evaluations": self.screening_evaluations,
-            "max_gradient_bowl_Eh_bohr": self.max_gradient_bowl_Eh_bohr,
-            "max_gradient_planar_Eh_bohr": self.max_gradient_planar_Eh_bohr,
-            "gtol_Eh_bohr": self.gtol_Eh_bohr,
-            "energy_bowl_Eh": self.energy_bowl_Eh,
-            "energy_planar_Eh": self.energy_planar_Eh,
-            "wall_time_s": self.wall_time_s,
-            "software": dict(self.software),
-            "smiles_used": self.smiles_used,
-            "atoms": self.atoms,
-            "flags": [f.to_dict() for f in self.flags],
-            "version": VERSION,
-        }
-        return jsonable(out)
+    @property
+    def version(self) -> str:
+        return VERSION
 
 
 # --------------------------------------------------------------------------- structure

@@ -47,7 +47,7 @@ from sqlalchemy.engine import Engine
 from sqlalchemy.orm import object_session
 from sqlmodel import Session, select
 
-from ..analysis.common import jsonable
+from ..analysis.results import jsonable
 from ..errors import InputError
 from ..models import JOB_STATES, Compound, Job, utcnow
 from ..services import audit

@@ -10,16 +10,9 @@ from __future__ import annotations
 
 import plotly.graph_objects as go
 
-PALETTE = {
-    "black": "#000000",
-    "orange": "#E69F00",
-    "sky": "#56B4E9",
-    "green": "#009E73",
-    "yellow": "#F0E442",
-    "blue": "#0072B2",
-    "vermillion": "#D55E00",
-    "purple": "#CC79A7",
-}
+from ..palette import OKABE_ITO
+
+PALETTE = OKABE_ITO
 SERIES = [PALETTE[k] for k in ("blue", "vermillion", "green", "orange", "purple", "sky", "yellow", "black")]
 
 

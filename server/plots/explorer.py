@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from typing import Sequence
+from typing import Mapping, Optional, Sequence
 
 import numpy as np
 import plotly.graph_objects as go
@@ -24,13 +24,18 @@ def trend(xs: Sequence[float], ys: Sequence[float]) -> tuple[float, float, float
     return float(a), float(b), r2
 
 
-def explorer_figure(points, *, x_title: str, y_title: str, with_trend: bool = False) -> go.Figure:
-    """One trace per group (colour and symbol both differ, so it reads without colour too)."""
+def explorer_figure(points, *, x_title: str, y_title: str, with_trend: bool = False,
+                    colours: Optional[Mapping[str, str]] = None) -> go.Figure:
+    """One trace per group (colour and symbol both differ, so it reads without colour too).
+
+    ``colours`` fixes the colour of named groups (verdict groups take their badge colours);
+    other groups take the Okabe-Ito series in turn.
+    """
     fig = go.Figure()
     groups = sorted({p.group for p in points})
     for i, g in enumerate(groups):
         pts = [p for p in points if p.group == g]
-        colour, symbol = SERIES[i % len(SERIES)], SYMBOLS[i % len(SYMBOLS)]
+        colour, symbol = (colours or {}).get(g, SERIES[i % len(SERIES)]), SYMBOLS[i % len(SYMBOLS)]
         fig.add_trace(go.Scatter(
             x=[p.x for p in pts], y=[p.y for p in pts], mode="markers", name=f"{g} ({len(pts)})",
             marker=dict(color=colour, symbol=symbol, size=10, line=dict(width=1, color="#333")),

@@ -6,7 +6,7 @@ from typing import Any, Optional
 
 from sqlmodel import Session
 
-from ..analysis.common import jsonable
+from ..analysis.results import jsonable
 from ..models import AuditEvent
 
 

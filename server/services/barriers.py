@@ -9,7 +9,7 @@ from sqlmodel import Session, select
 
 from ..analysis import kinetics
 from ..analysis.calibration import calibrate
-from ..analysis.common import jsonable
+from ..analysis.results import jsonable
 from ..errors import InputError
 from ..models import BarrierEstimate, Compound, Measurement
 from ..plots import figure_json

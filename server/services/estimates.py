@@ -18,7 +18,7 @@ from sqlalchemy import func
 from sqlmodel import Session, select
 
 from ..analysis import xtb
-from ..analysis.common import jsonable
+from ..analysis.results import jsonable
 from ..chem.geometry import core_atoms
 from ..errors import AnalysisError, ChemistryError, InputError
 from ..jobs import queue

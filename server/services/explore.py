@@ -9,11 +9,11 @@ from typing import Any, Callable, Optional
 from sqlmodel import Session, select
 
 from ..access import Actor
-from ..analysis.verdict import LABELS as VERDICT_LABELS
 from ..errors import InputError
 from ..models import Batch, Measurement
 from ..plots import figure_json
 from ..plots.explorer import explorer_figure
+from ..verdict_codes import LABELS as VERDICT_LABELS, VERDICTS, strongest
 from .views import ViewQuery, ViewRow, query_view
 
 
@@ -61,6 +61,14 @@ GROUPINGS: dict[str, tuple[str, Callable[[ViewRow], str]]] = {
     "bridge": ("bridge", lambda r: r.bridge or "unknown bridge"),
     "chain_kind": ("side-chain kind", lambda r: (r.stats.chain_kind if r.stats and r.stats.chain_kind else "none")),
 }
+
+
+def group_colours(group: str) -> dict[str, str]:
+    """Fixed plot colours of the groups of ``group``: verdict groups wear their badge colours."""
+    if group != "verdict":
+        return {}
+    return {v.label: v.border or v.cell for v in VERDICTS}
+
 
 LOOP_KEYS = {"pr": "pr_uC_cm2", "ec": "ec_kV_cm", "ps": "ps_uC_cm2"}
 SAME_T_K = 5.0  # a loop within 5 K of the chosen temperature counts as "at" it (common practice)
@@ -123,19 +131,18 @@ def explore(session: Session, view: ViewQuery, *, actor: Optional[Actor], x: str
     return points
 
 
-def explorer_figure_json(points: list[Point], *, x: str, y: str, t_K: Optional[float], with_trend: bool) -> str:
+def explorer_figure_json(points: list[Point], *, x: str, y: str, t_K: Optional[float], with_trend: bool,
+                         group: str) -> str:
     """The explorer's figure (Plotly JSON); axis titles name the temperature of temperature-dependent axes."""
     xt, yt = PROPERTIES[x].title, PROPERTIES[y].title
     if t_K is not None:
         xt += f" at {t_K:.0f} K" if PROPERTIES[x].temperature_dependent else ""
         yt += f" at {t_K:.0f} K" if PROPERTIES[y].temperature_dependent else ""
-    return figure_json(explorer_figure(points, x_title=xt, y_title=yt, with_trend=with_trend))
+    return figure_json(explorer_figure(points, x_title=xt, y_title=yt, with_trend=with_trend,
+                                       colours=group_colours(group)))
 
 # --- side-chain outcome map ----------------------------------------------------------------------
 
-# Best outcome first: the colour of a cell is the best verdict any of its derivatives reached.
-OUTCOME_ORDER = ("proven_ferroelectric", "switching_phase_unknown", "polar_unswitched", "transition_only",
-                 "conflicting", "no_switching_seen", "nonpolar", "untested")
 
 
 @dataclass(frozen=True)
@@ -173,7 +180,7 @@ def outcome_map(session: Session, view: ViewQuery, *, actor: Optional[Actor], by
     columns = sorted({c for _, c in counts})
     cells = {}
     for (key, column), counter in counts.items():
-        best = next(code for code in OUTCOME_ORDER if counter.get(code))
+        best = strongest(code for code, n in counter.items() if n)
         params = {"main_kind": key[0], "main_c": key[1], "main_branched": "yes" if key[2] else "no",
                   **({"scaffold": column} if by == "scaffold" else {"bridge": column})}
         cells[(key, column)] = Cell(counts=dict(counter), best=best,

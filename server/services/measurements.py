@@ -16,7 +16,7 @@ from sqlalchemy import func
 from sqlalchemy.exc import IntegrityError
 from sqlmodel import Session, select
 
-from ..analysis.common import jsonable
+from ..analysis.results import jsonable
 from ..errors import InputError
 from ..ingest.conditions import FORM_FIELDS, Conditions, form_value_as_given, parse_conditions
 from ..kinds import KINDS, Context, Kind

@@ -277,7 +277,7 @@ def compound_read(session: Session, compound: Compound, *, actor: Optional[Actor
         batches=n_batches,
         created_at=compound.created_at,
         created_by=compound.created_by,
-        verdict=compound.override_code or compound.verdict_code,
+        verdict=verdicts.effective_code(compound),
         verdict_evidence=verdicts.verdict_read(compound),
     )
 

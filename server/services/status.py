@@ -14,7 +14,7 @@ from sqlalchemy import func
 from sqlmodel import Session, select
 
 from ..access import Actor, may_see_structure
-from ..analysis.verdict import LABELS as VERDICT_LABELS
+from ..verdict_codes import CONFLICTING, HITS, LABELS, UNTESTED
 from ..models import (
     AuditEvent,
     BarrierEstimate,
@@ -28,9 +28,9 @@ from ..models import (
 )
 from ..settings import Settings
 from . import audit
+from .verdicts import EFFECTIVE_CODE, effective_code
 
 PUBLIC_KEY = "public_status"
-HIT_VERDICTS = ("proven_ferroelectric", "switching_phase_unknown")
 
 
 def public_status_enabled(session: Session, settings: Settings) -> bool:
@@ -59,7 +59,7 @@ class CompoundRef:
 
 def _ref(c: Compound, *, actor: Optional[Actor]) -> CompoundRef:
     visible = may_see_structure(actor, c)
-    return CompoundRef(code=c.code, label=c.label if visible else "", verdict=c.override_code or c.verdict_code,
+    return CompoundRef(code=c.code, label=c.label if visible else "", verdict=effective_code(c),
                        show_structure=visible)
 
 
@@ -75,7 +75,7 @@ def summary(session: Session, *, actor: Optional[Actor], days: int = 7) -> dict[
         Compound, Compound.id == CompoundStats.compound_id).where(
         live, (CompoundStats.kinds.like("%,pe_loop,%")) | (CompoundStats.kinds.like("%,pund,%")))).one()
     verdict_reached = session.exec(select(func.count()).select_from(Compound).where(
-        live, func.coalesce(Compound.override_code, Compound.verdict_code) != "untested")).one()
+        live, EFFECTIVE_CODE != UNTESTED)).one()
     since = utcnow() - timedelta(days=days)
     week = {
         "compounds": session.exec(select(func.count()).select_from(Compound).where(Compound.created_at >= since)).one(),
@@ -89,10 +89,10 @@ def summary(session: Session, *, actor: Optional[Actor], days: int = 7) -> dict[
         select(Compound).where(live, Compound.created_at >= since).order_by(Compound.number.desc()).limit(12)).all()]
     hits = session.exec(
         select(Compound, CompoundStats).join(CompoundStats, CompoundStats.compound_id == Compound.id, isouter=True)
-        .where(live, func.coalesce(Compound.override_code, Compound.verdict_code).in_(HIT_VERDICTS))
+        .where(live, EFFECTIVE_CODE.in_(HITS))
         .order_by(CompoundStats.pr_max_uC_cm2.desc().nulls_last(), Compound.number.desc()).limit(12)).all()
     review = [_ref(c, actor=actor) for c in session.exec(
-        select(Compound).where(live, Compound.verdict_code == "conflicting", Compound.override_code.is_(None))
+        select(Compound).where(live, Compound.verdict_code == CONFLICTING, Compound.override_code.is_(None))
         .order_by(Compound.number.desc()).limit(20)).all()]
     flagged = session.exec(select(func.count()).select_from(Measurement).where(
         Measurement.archived == False, Measurement.verdict == "inconclusive")).one()  # noqa: E712
@@ -104,9 +104,8 @@ def summary(session: Session, *, actor: Optional[Actor], days: int = 7) -> dict[
         running_rows.append({"id": j.id, "state": j.state, "progress": j.progress, "message": j.message,
                              "compound": _ref(c, actor=actor) if c else None})
     last = session.exec(select(func.max(AuditEvent.at))).one()
-    by_verdict = dict(session.exec(select(func.coalesce(Compound.override_code, Compound.verdict_code), func.count())
-                                   .where(live).group_by(func.coalesce(Compound.override_code,
-                                                                       Compound.verdict_code))).all())
+    by_verdict = dict(session.exec(select(EFFECTIVE_CODE, func.count())
+                                   .where(live).group_by(EFFECTIVE_CODE)).all())
     return {
         "progress": [("registered", registered), ("made", made), ("characterised", characterised),
                      ("switching tested", switching_tested), ("verdict reached", verdict_reached)],
@@ -118,7 +117,7 @@ def summary(session: Session, *, actor: Optional[Actor], days: int = 7) -> dict[
         "inconclusive_measurements": flagged,
         "jobs": jobs,
         "running": running_rows,
-        "by_verdict": [(code, VERDICT_LABELS[code], by_verdict.get(code, 0)) for code in VERDICT_LABELS],
+        "by_verdict": [(code, label, by_verdict.get(code, 0)) for code, label in LABELS.items()],
         "last_updated": last,
     }
 

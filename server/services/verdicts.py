@@ -4,12 +4,13 @@ from __future__ import annotations
 
 from typing import Any, Optional
 
-from sqlmodel import Session, select
+from sqlmodel import Session, func, select
 
 from ..analysis import verdict as rules
-from ..analysis.common import Flag, jsonable
+from ..analysis.results import Flag, jsonable
 from ..errors import InputError
 from ..kinds import KINDS
+from ..verdict_codes import LABELS, RETIRED, effective
 from ..models import Batch, Compound, Measurement, utcnow
 from . import audit
 
@@ -56,14 +57,21 @@ def recompute(session: Session, compound: Compound) -> rules.CompoundVerdict:
 
 
 def effective_code(compound: Compound) -> str:
-    return compound.override_code or compound.verdict_code
+    """The verdict that counts for ``compound``: its reviewed override, else the computed one."""
+    return effective(compound.override_code, compound.verdict_code)
+
+
+#: The same rule as :func:`effective_code`, as an SQL expression for filters, sorts and counts.
+EFFECTIVE_CODE = func.coalesce(Compound.override_code, Compound.verdict_code)
 
 
 def set_override(*, session: Session, compound: Compound, code: Optional[str], reason: str, actor: str) -> Compound:
     """A reviewed override (code None clears it); the computed verdict stays stored beside it."""
     if code is not None:
-        if code not in rules.LABELS:
-            raise InputError(f"unknown verdict {code!r}; use one of {', '.join(rules.LABELS)}", field="code")
+        if code in RETIRED:
+            raise InputError(f"the verdict {code!r} is retired; use {RETIRED[code]!r}", field="code")
+        if code not in LABELS:
+            raise InputError(f"unknown verdict {code!r}; use one of {', '.join(LABELS)}", field="code")
         if not reason.strip():
             raise InputError("an override needs a reason", field="reason")
     before = {"override_code": compound.override_code, "override_reason": compound.override_reason}
@@ -81,10 +89,10 @@ def set_override(*, session: Session, compound: Compound, code: Optional[str], r
 
 
 def verdict_read(compound: Compound) -> dict[str, Any]:
-    computed = compound.verdict or {"code": compound.verdict_code, "label": rules.LABELS.get(compound.verdict_code, "")}
+    computed = compound.verdict or {"code": compound.verdict_code, "label": LABELS.get(compound.verdict_code, "")}
     out: dict[str, Any] = {"computed": computed, "override": None}
     if compound.override_code:
-        out["override"] = {"code": compound.override_code, "label": rules.LABELS.get(compound.override_code, ""),
+        out["override"] = {"code": compound.override_code, "label": LABELS.get(compound.override_code, ""),
                            "reason": compound.override_reason, "by": compound.override_by,
                            "at": compound.override_at.isoformat() if compound.override_at else None}
     return out

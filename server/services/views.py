@@ -21,12 +21,11 @@ from sqlmodel import Session, select
 
 from .. import access
 from ..access import Actor
-from ..analysis.verdict import LABELS as VERDICT_LABELS
 from ..errors import InputError
 from ..models import BATCH_STATES, Compound, CompoundSideChain, CompoundStats, Scaffold
 from ..kinds import KINDS
-
-VerdictCol = func.coalesce(Compound.override_code, Compound.verdict_code)
+from ..verdict_codes import CODES as VERDICT_CODES
+from .verdicts import EFFECTIVE_CODE, effective_code
 
 
 def _escape_like(text: str) -> str:
@@ -131,7 +130,7 @@ FILTERS: tuple[Filter, ...] = (
     Filter("main_branched", "Main side chain branched", _bool, lambda v, _: CompoundStats.chain_branched == v),
     Filter("batch_state", "Batch state", _choice(lambda: BATCH_STATES),
            lambda v, _: CompoundStats.batch_states.like(f"%,{v},%")),
-    Filter("verdict", "Verdict", _choice(lambda: tuple(VERDICT_LABELS)), lambda v, _: VerdictCol.in_(v), multi=True),
+    Filter("verdict", "Verdict", _choice(lambda: VERDICT_CODES), lambda v, _: EFFECTIVE_CODE.in_(v), multi=True),
     Filter("polar", "Polar phase", _choice(lambda: ("yes", "no", "unknown")),
            lambda v, _: {"yes": CompoundStats.polar_phase.is_(True), "no": CompoundStats.polar_phase.is_(False),
                          "unknown": CompoundStats.polar_phase.is_(None)}[v]),
@@ -160,7 +159,7 @@ SORTS: dict[str, tuple[str, str, Any]] = {
     "pr": ("Pr", "µC/cm²", CompoundStats.pr_max_uC_cm2),
     "ec": ("Ec", "kV/cm", CompoundStats.ec_kV_cm),
     "t_peak": ("ε′ peak T", "K", CompoundStats.t_peak_K),
-    "verdict": ("Verdict", "", VerdictCol),
+    "verdict": ("Verdict", "", EFFECTIVE_CODE),
     "created": ("Registered", "", Compound.created_at),
     "activity": ("Last activity", "", CompoundStats.last_activity_at),
 }
@@ -262,7 +261,7 @@ class ViewRow:
 
     @property
     def verdict(self) -> str:
-        return self.compound.override_code or self.compound.verdict_code
+        return effective_code(self.compound)
 
 
 @dataclass(frozen=True)
@@ -389,6 +388,6 @@ def filter_choices(session: Session) -> dict[str, list[str]]:
         "bridge": sorted({b for b in session.exec(select(Scaffold.bridge)).all() if b}),
         "chain_kind": ["alkoxy", "alkylthio", "alkyl", "other"],
         "batch_state": list(BATCH_STATES),
-        "verdict": list(VERDICT_LABELS),
+        "verdict": list(VERDICT_CODES),
         "has": list(KINDS),
     }

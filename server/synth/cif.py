@@ -21,7 +21,8 @@ import numpy as np
 from rdkit import Chem
 from rdkit.Chem import AllChem, rdMolDescriptors
 
-from server.analysis.crystal import N_A_PER_MOL, hill_formula, molar_mass_from_counts, parse_formula
+from server.analysis.constants import NA_PER_MOL
+from server.analysis.crystal import hill_formula, molar_mass_from_counts, parse_formula
 from server.chem import geometry
 from server.errors import ChemistryError
 
@@ -389,7 +390,7 @@ def bowl_crystal(
     counts = parse_formula(formula)
     z = len(ops)
     volume = float(np.prod(lengths))
-    density = z * molar_mass_from_counts(counts) / (N_A_PER_MOL * volume * 1e-24)
+    density = z * molar_mass_from_counts(counts) / (NA_PER_MOL * volume * 1e-24)
     cell = (float(lengths[0]), float(lengths[1]), float(lengths[2]), 90.0, 90.0, 90.0)
     cif = write_cif(
         data_name=data_name,

@@ -33,7 +33,8 @@ from collections.abc import Sequence
 import numpy as np
 import pandas as pd
 
-EPS0_F_M = 8.8541878128e-12  # CODATA 2018
+from server.analysis.constants import EPS0_F_M
+
 
 _SLOPE_RATIO = {"second": -2.0, "tricritical": -4.0}
 

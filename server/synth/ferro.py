@@ -20,7 +20,8 @@ import numpy as np
 import pandas as pd
 from scipy.integrate import cumulative_trapezoid
 
-EPS0_F_M = 8.8541878128e-12  # CODATA 2018 recommended value (docs/methods.md, Constants)
+from server.analysis.constants import EPS0_F_M
+
 # eps0 expressed in (uC/cm^2) per (kV/cm): 8.8541878128e-12 * 1e5 * 1e2
 EPS0_UC_CM2_PER_KV_CM = EPS0_F_M * 1e7
 # an ohmic current density sigma E, integrated over time: (S/m)(V/m) s = C/m^2 -> *1e2 uC/cm^2,

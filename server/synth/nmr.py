@@ -12,7 +12,7 @@ from collections.abc import Sequence
 import numpy as np
 import pandas as pd
 
-from server.analysis.kinetics import H_J_S, KB_J_K, R_J_MOLK
+from server.analysis.constants import H_J_S, KB_J_K, R_J_MOLK
 from server.errors import AnalysisError
 
 T_COLUMN = "T (K)"

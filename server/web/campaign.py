@@ -8,7 +8,6 @@ from typing import Optional
 from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse
 
-from ..analysis.verdict import LABELS as VERDICT_LABELS
 from .. import access
 from ..deps import OptionalActor, PageActor, PageAdmin, PageWriter, RowId, SessionDep, SettingsDep
 from ..errors import InputError
@@ -33,7 +32,7 @@ def explorer(request: Request, session: SessionDep, actor: PageActor, x: str = "
             t_K = parse_quantity(t, field="t", unit="K", example="300 K or 25 degC", temperature=True)
         points = explore.explore(session, q, actor=actor, x=x, y=y, group=group, t_K=t_K)
         n = len(points)
-        fig = explore.explorer_figure_json(points, x=x, y=y, t_K=t_K, with_trend=bool(trend))
+        fig = explore.explorer_figure_json(points, x=x, y=y, t_K=t_K, with_trend=bool(trend), group=group)
     except InputError as exc:
         error, q = str(exc), views.ViewQuery()
     return render(request, "pages/explorer.html",
@@ -53,7 +52,7 @@ def outcomes(request: Request, session: SessionDep, actor: PageActor, by: str = 
     except InputError as exc:
         error = str(exc)
     return render(request, "pages/outcomes.html",
-                  {"map": omap, "error": error, "by": by, "labels": VERDICT_LABELS, "order": explore.OUTCOME_ORDER},
+                  {"map": omap, "error": error, "by": by},
                   actor=actor)
 
 
@@ -64,7 +63,7 @@ def status_page(request: Request, session: SessionDep, settings: SettingsDep, ac
     if actor is None and not public:
         raise access.NotLoggedIn("/status")
     data = status.summary(session, actor=actor)
-    return render(request, "pages/status.html", {"s": data, "public": public, "labels": VERDICT_LABELS},
+    return render(request, "pages/status.html", {"s": data, "public": public},
                   partial="partials/status_body.html", actor=actor)
 
 

@@ -10,7 +10,6 @@ from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse, RedirectResponse, Response
 from pydantic import ValidationError
 
-from ..analysis.verdict import LABELS as VERDICT_LABELS
 from ..chem import scaffold as chem_scaffold
 from ..deps import PageActor, PageAdmin, PageWriter, SessionDep, SettingsDep
 from ..errors import InputError
@@ -49,7 +48,7 @@ def compound_list(request: Request, session: SessionDep, actor: PageActor):
     return render(
         request, "pages/compounds.html",
         {"result": result, "q": q, "error": error, "choices": views.filter_choices(session), "sorts": views.SORTS,
-         "verdict_labels": VERDICT_LABELS, "link": q.link()},
+         "link": q.link()},
         partial="partials/compound_table.html", actor=actor,
     )
 
@@ -155,7 +154,7 @@ async def compound_create(request: Request, session: SessionDep, settings: Setti
 def compound_page(code: str, request: Request, session: SessionDep, actor: PageActor):
     compound = registry.get_compound(session, code)
     ctx = compound_page_data(session, compound, actor=actor)
-    ctx.update(kinds=KINDS, verdict_labels=VERDICT_LABELS)
+    ctx.update(kinds=KINDS)
     return render(request, "pages/compound.html", ctx, actor=actor)
 
 

@@ -5,6 +5,8 @@ from __future__ import annotations
 import math
 from typing import Any
 
+from .. import verdict_codes
+
 # Suffix of a key (after the quantity) -> unit as printed. Longest suffixes first.
 UNIT_SUFFIXES: tuple[tuple[str, str], ...] = (
     ("_uC_cm2", "µC/cm²"),
@@ -101,17 +103,6 @@ def summary(kind: str, results: dict[str, Any]) -> str:
     return ", ".join(parts)
 
 
-# Short names for tables and map cells; the full sentences (analysis.verdict.LABELS) go in legends and titles.
-VERDICT_SHORT = {
-    "proven_ferroelectric": "ferroelectric",
-    "switching_phase_unknown": "switches, phase unknown",
-    "polar_unswitched": "polar, not switched",
-    "nonpolar": "non-polar",
-    "transition_only": "transition only",
-    "no_switching_seen": "no switching seen",
-    "conflicting": "conflicting",
-    "untested": "untested",
-}
 
 
 def install(env) -> None:  # noqa: ANN001 - a jinja2 Environment
@@ -120,4 +111,7 @@ def install(env) -> None:  # noqa: ANN001 - a jinja2 Environment
     env.globals["split_key"] = split_key
     env.globals["digits_of"] = digits_of
     env.globals["measurement_summary"] = summary
-    env.globals["verdict_short"] = VERDICT_SHORT
+    # The verdict vocabulary (server.verdict_codes): rows in strength order, sentence and short labels.
+    env.globals["verdicts"] = verdict_codes.VERDICTS
+    env.globals["verdict_labels"] = verdict_codes.LABELS
+    env.globals["verdict_short"] = verdict_codes.SHORT

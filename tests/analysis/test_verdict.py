@@ -10,7 +10,8 @@ from __future__ import annotations
 
 import pytest
 
-from server.analysis.verdict import LABELS, VERSION, Evidence, decide, describe_temperatures
+from server.analysis.verdict import VERSION, Evidence, decide, describe_temperatures
+from server.verdict_codes import LABELS
 from server.errors import AnalysisError
 
 
@@ -34,7 +35,7 @@ def dielectric(mid, t_peak):
     return Evidence("dielectric", mid, "anomaly", None, {"t_peak_K": t_peak})
 
 
-def test_proven_ferroelectric_with_temperature_wording():
+def test_polar_switching_supported_with_temperature_wording():
     ev = [
         crystal(1, "polar", 320.0, "Pna2_1"),
         pund(2, "switching", 300.0),
@@ -43,8 +44,8 @@ def test_proven_ferroelectric_with_temperature_wording():
         dsc(5, [290.0]),
     ]
     v = decide(ev)
-    assert v.code == "proven_ferroelectric"
-    assert v.label == LABELS["proven_ferroelectric"]
+    assert v.code == "polar_switching_supported"
+    assert v.label == LABELS["polar_switching_supported"]
     assert v.switching_temperatures_K == (300.0, 340.0)
     assert v.transitions_K == (290.0,)
     assert "switching seen at 300-340 K, above the transition at 290 K (DSC)" in v.reason
@@ -163,7 +164,7 @@ def test_temperature_wording():
 
 def test_unknown_temperatures_assumed_same_phase_and_said():
     v = decide([crystal(1, "polar"), pund(2, "switching")])
-    assert v.code == "proven_ferroelectric"
+    assert v.code == "polar_switching_supported"
     assert "not recorded" in v.reason
 
 
@@ -180,6 +181,6 @@ def test_to_dict_json_ready():
     v = decide([crystal(1, "polar", 150.0), pund(2, "switching", 160.0)])
     d = v.to_dict()
     json.dumps(d)
-    assert d["code"] == "proven_ferroelectric" and d["version"] == VERSION
+    assert d["code"] == "polar_switching_supported" and d["version"] == VERSION
     assert d["switching_temperatures_K"] == [160.0, 160.0]
     assert d["used"][0] == {"measurement_id": 1, "kind": "crystal", "role": "polar_phase", "temperature_K": 150.0}

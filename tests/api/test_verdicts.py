@@ -45,7 +45,7 @@ def test_untested_then_switching_then_proven(client, session, h):
     assert m["results"]["polar"] is True and m["verdict"] == "polar"
     assert m["results"]["column_polar"] is True
     body = verdict(client, h)
-    assert body["verdict"] == "proven_ferroelectric"
+    assert body["verdict"] == "polar_switching_supported"
     used = {u["measurement_id"] for u in body["verdict_evidence"]["computed"]["used"]}
     assert m["id"] in used and len(used) == 2
     phase = session.exec(select(CrystalPhase)).one()
@@ -84,17 +84,22 @@ def test_unreadable_cif_is_422(client, session, h):
 
 def test_override_needs_admin_and_keeps_computed(client, session, h):
     upload(client, h, "pe_loop", to_csv_bytes(miller_loop(10, 8, 50, 300)), "loop.csv", temperature="300 K")
-    body = {"code": "proven_ferroelectric", "reason": "polar phase seen by powder SHG in the group's notebook"}
+    body = {"code": "polar_switching_supported", "reason": "polar phase seen by powder SHG in the group's notebook"}
     assert client.post("/api/v1/compounds/RVZ-00001/verdict/override", json=body, headers=h).status_code == 403
     csrf = login_as(client, session, role="admin")
     r = client.post("/api/v1/compounds/RVZ-00001/verdict/override", json=body, headers={"X-CSRF-Token": csrf})
     assert r.status_code == 200, r.text
-    assert r.json()["verdict"] == "proven_ferroelectric"
+    assert r.json()["verdict"] == "polar_switching_supported"
     assert r.json()["verdict_evidence"]["computed"]["code"] == "switching_phase_unknown"
     assert r.json()["verdict_evidence"]["override"]["reason"].startswith("polar phase")
     bad = client.post("/api/v1/compounds/RVZ-00001/verdict/override", json={"code": "great", "reason": "x"},
                       headers={"X-CSRF-Token": csrf})
     assert bad.status_code == 422
+    # The retired code (it claimed a proof) is refused with its replacement named.
+    retired = client.post("/api/v1/compounds/RVZ-00001/verdict/override",
+                          json={"code": "proven_ferroelectric", "reason": "x"}, headers={"X-CSRF-Token": csrf})
+    assert retired.status_code == 422 and "polar_switching_supported" in retired.json()["detail"]
+    assert retired.json()["field"] == "code"
     cleared = client.post("/api/v1/compounds/RVZ-00001/verdict/clear", headers={"X-CSRF-Token": csrf}).json()
     assert cleared["verdict"] == "switching_phase_unknown"
 

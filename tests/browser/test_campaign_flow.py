@@ -27,7 +27,7 @@ import pytest
 from playwright.sync_api import Page, expect
 from sqlmodel import select
 
-from server.analysis.verdict import LABELS
+from server.verdict_codes import LABELS
 from server.chem.scaffold import PARENT_BOWLS
 from server.ingest.table import to_csv_bytes
 from server.models import Compound

@@ -6,7 +6,7 @@ import json
 
 import pytest
 
-from server.analysis.verdict import LABELS
+from server.verdict_codes import LABELS
 from server.chem.scaffold import PARENT_BOWLS
 from server.ingest.table import to_csv_bytes
 from server.synth.ferro import miller_loop

@@ -153,7 +153,7 @@ def get_batch(code: str, session: SessionDep, actor: Reader) -> BatchRead:
 
 
 class OverrideIn(BaseModel):
-    code: str = Field(description="a verdict code, e.g. proven_ferroelectric")
+    code: str = Field(description="a verdict code, e.g. polar_switching_supported")
     reason: str = Field(min_length=1, max_length=4000)
 
 

@@ -1,7 +1,7 @@
 """derived rows follow their measurement: crystalphase.archived; archived measurements' rows archived
 
 Revision ID: 0009
-Revises: 0005
+Revises: 0006
 Create Date: 2026-12-02 03:40:00
 
 A crystal phase now carries ``archived`` like the barrier rows do. Rows derived from a
@@ -16,7 +16,7 @@ import sqlalchemy as sa
 
 
 revision: str = '0009'
-down_revision: Union[str, None] = '0005'
+down_revision: Union[str, None] = '0006'
 branch_labels: Union[str, Sequence[str], None] = None
 depends_on: Union[str, Sequence[str], None] = None
 

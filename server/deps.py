@@ -11,6 +11,7 @@ from collections.abc import Iterator
 from typing import Annotated, Optional
 
 from fastapi import Depends, HTTPException, Path, Query, Request
+from sqlalchemy.exc import OperationalError
 from sqlmodel import Session, select
 
 from . import access
@@ -82,15 +83,19 @@ def _find_actor(request: Request, session: Session) -> Optional[Actor]:
 OptionalActor = Annotated[Optional[Actor], Depends(optional_actor)]
 
 
+_UNRESOLVED = object()
+
+
 def current_actor(request: Request) -> Optional[Actor]:
     """The caller, for code outside a route's dependencies (error pages): the actor the route
     resolved, else found now from the request's token or cookie (a bad token counts as nobody)."""
-    if "actor" in request.state._state:
-        return request.state.actor
+    found = getattr(request.state, "actor", _UNRESOLVED)
+    if found is not _UNRESOLVED:
+        return found
     try:
         with Session(request.app.state.engine) as session:
             return optional_actor(request, session)
-    except HTTPException:
+    except (HTTPException, OperationalError):  # a bad token, or the database is down: show the visitor's menu
         request.state.actor = None
         return None
 

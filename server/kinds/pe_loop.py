@@ -63,7 +63,7 @@ KIND = Kind(
         ResultKey("emax_kV_cm", "Emax", "kV/cm", 3),
         ResultKey("ps_uC_cm2", "Ps", "µC/cm²", 3),
         ResultKey("imprint_kV_cm", "imprint", "kV/cm", 3),
-        ResultKey("loss_mJ_cm3", "loss per cycle", "mJ/cm³", 3),
+        ResultKey("loss_mJ_cm3", "loss per cycle", "mJ/cm³", 4),
         ResultKey("squareness", "squareness Pr/Ps", "", 3),
         ResultKey("cycles_found", "cycles found"),
         ResultKey("cycle_used", "cycle used"),

@@ -384,7 +384,7 @@ def registry_rows(records: list[dict[str, Any]], n_measurements: int, settings: 
                 phases.append({"id": phase_id, "compound_id": cid, "batch_id": b["id"], "measurement_id": measurement_id,
                                "space_group": sg, "space_group_number": number, "polar": polar,
                                "centrosymmetric": not polar and sg != "P2_1", "temperature_K": 120.0, "results": {},
-                               "created_at": m_created})
+                               "archived": False, "created_at": m_created})
         if rng.random() < 0.3:
             barrier_id += 1
             bars.append({"id": barrier_id, "compound_id": cid, "method": "gfn2-xtb",

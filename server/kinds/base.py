@@ -29,7 +29,7 @@ import plotly.graph_objects as go
 
 from ..ingest.columns import BY_NAME as QUANTITY_BY_NAME
 from ..ingest.conditions import CONDITION_FIELDS, Conditions
-from ..ingest.table import ParsedTable, read_table, to_csv_bytes
+from ..ingest.table import read_table, to_csv_bytes
 
 
 @dataclass(frozen=True)
@@ -68,6 +68,11 @@ class Evidence:
 
     temperature_K: Optional[float]
     details: dict[str, Any] = field(default_factory=dict)
+
+
+def evidence_at_measured_temperature(results: Mapping[str, Any], temperature_K: Optional[float]) -> Evidence:
+    """Evidence that speaks for the temperature the file was measured at, with no details (loops, PUND)."""
+    return Evidence(temperature_K)
 
 
 @dataclass(frozen=True)

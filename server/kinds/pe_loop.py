@@ -2,13 +2,13 @@
 
 from __future__ import annotations
 
-from typing import Any, Optional, Sequence
+from typing import Any, Sequence
 
 from ..analysis import hysteresis
 from ..plots.ferro import loop_figure
 from ..synth.ferro import miller_loop, raw_vq
-from .base import (EXAMPLE_AREA_CM2, EXAMPLE_THICKNESS_UM, Evidence, Example, Kind, Need, ResultKey, example_csv,
-                   rng_for)
+from .base import (EXAMPLE_AREA_CM2, EXAMPLE_THICKNESS_UM, Example, Kind, Need, ResultKey,
+                   evidence_at_measured_temperature, example_csv, rng_for)
 
 # The example: a switching pellet below its Curie temperature, recorded by a charge-mode tracer (V, Q).
 _EX = {"pr_uC_cm2": 0.79, "ps_uC_cm2": 0.87, "ec_kV_cm": 19.5, "emax_kV_cm": 87.9, "frequency_Hz": 100.0,
@@ -22,10 +22,6 @@ def _analyse(parsed, c, ctx):
 
 def _figure(parsed, result):
     return loop_figure(result)
-
-
-def _evidence(results: dict[str, Any], temperature_K: Optional[float]) -> Evidence:
-    return Evidence(temperature_K)
 
 
 def _stats(ms: Sequence[Any]) -> dict[str, Any]:
@@ -67,7 +63,7 @@ KIND = Kind(
         ResultKey("emax_kV_cm", "Emax", "kV/cm", 3),
         ResultKey("ps_uC_cm2", "Ps", "µC/cm²", 3),
         ResultKey("imprint_kV_cm", "imprint", "kV/cm", 3),
-        ResultKey("loss_mJ_cm3", "loss per cycle", "mJ/cm³", 3),
+        ResultKey("loss_mJ_cm3", "loss per cycle", "mJ/cm³", 4),
         ResultKey("squareness", "squareness Pr/Ps", "", 3),
         ResultKey("cycles_found", "cycles found"),
         ResultKey("cycle_used", "cycle used"),
@@ -89,7 +85,7 @@ KIND = Kind(
     ),
     summary_keys=("pr_uC_cm2", "ec_kV_cm"),
     figure=_figure,
-    evidence=_evidence,
+    evidence=evidence_at_measured_temperature,
     stats=_stats,
     example=_example,
 )

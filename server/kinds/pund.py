@@ -2,13 +2,11 @@
 
 from __future__ import annotations
 
-from typing import Any, Optional
-
 from ..analysis import pund
 from ..plots.ferro import pund_figure
 from ..synth.ferro import pund_train
-from .base import (EXAMPLE_AREA_CM2, EXAMPLE_THICKNESS_UM, Evidence, Example, Kind, Need, ResultKey, example_csv,
-                   rng_for)
+from .base import (EXAMPLE_AREA_CM2, EXAMPLE_THICKNESS_UM, Example, Kind, Need, ResultKey,
+                   evidence_at_measured_temperature, example_csv, rng_for)
 
 _EX = {"pr_uC_cm2": 0.71, "ps_uC_cm2": 0.79, "ec_kV_cm": 19.0, "e_pulse_kV_cm": 87.9, "temperature_K": 346.0}
 
@@ -19,10 +17,6 @@ def _analyse(parsed, c, ctx):
 
 def _figure(parsed, result):
     return pund_figure(parsed.frame, result)
-
-
-def _evidence(results: dict[str, Any], temperature_K: Optional[float]) -> Evidence:
-    return Evidence(temperature_K)
 
 
 def _example() -> Example:
@@ -63,6 +57,6 @@ KIND = Kind(
     ),
     summary_keys=("p_switched_uC_cm2",),
     figure=_figure,
-    evidence=_evidence,
+    evidence=evidence_at_measured_temperature,
     example=_example,
 )

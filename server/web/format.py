@@ -33,7 +33,7 @@ UNIT_SUFFIXES: tuple[tuple[str, str], ...] = (
 
 LABELS = {
     "pr": "Pr", "pr_pos": "Pr+", "pr_neg": "Pr−", "ec": "Ec", "ec_pos": "Ec+", "ec_neg": "Ec−",
-    "pmax": "Pmax", "emax": "Emax", "ps": "Ps", "imprint": "imprint", "loss": "loss per cycle",
+    "pmax": "Pmax", "emax": "Emax", "ps": "Ps", "imprint": "imprint", "loss": "loss per cycle", "p_offset": "P offset removed",
     "t_peak": "T peak", "eps_peak": "ε′ peak", "t0": "T0", "curie_constant": "Curie constant C",
     "dg": "ΔG", "dh": "ΔH", "ds": "ΔS", "dg298": "ΔG(298 K)", "ea": "Ea", "k": "k",
 }
@@ -70,14 +70,18 @@ def number(value: Any, digits: int = 4) -> str:
 
 
 def scalar_items(results: dict[str, Any]) -> list[tuple[str, str, Any]]:
-    """(label, unit, value) for the scalar results, in the analysis's own order."""
+    """(label, unit, value) for the scalar results, in the analysis's own order.
+
+    Keys the analysis lists under ``apparent`` are labelled so ("apparent Pr").
+    """
     out = []
+    apparent = set(results.get("apparent") or ())
     for key, value in results.items():
         if isinstance(value, (int, float, str, bool)):
             if key in ("verdict", "source"):
                 continue
             label, unit = split_key(key)
-            out.append((label, unit, value))
+            out.append((f"apparent {label}" if key in apparent else label, unit, value))
     return out
 
 

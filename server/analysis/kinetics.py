@@ -35,7 +35,7 @@ METHOD = (
     "Gutowsky and Holm, J. Chem. Phys. 25, 1228 (1956), and linear Eyring/Arrhenius fits "
     "of variable-temperature rate constants."
 )
-VERSION = "kinetics/1.0"
+VERSION = "kinetics/1.1"
 
 # CODATA 2018 exact values (SI redefinition of 2019).
 KB_J_K = 1.380649e-23
@@ -664,18 +664,24 @@ def analyse_rate_table(
 class RateSummary:
     """What a barrier means at one temperature and, optionally, one field frequency."""
 
-    dg_kcal_mol: float
+    dg_kcal_mol: float  # dG++ at t_K, the one the rate uses
     t_K: float
     k_s: float
     half_life_s: float
     frequency_Hz: float | None
     keeps_up: bool | None
     flags: tuple[Flag, ...] = ()
+    dh_kcal_mol: float | None = None
+    ds_cal_molK: float | None = None
+    ds_assumed_zero: bool = True
 
     def to_dict(self) -> dict:
         return jsonable(
             {
                 "dg_kcal_mol": self.dg_kcal_mol,
+                "dh_kcal_mol": self.dh_kcal_mol,
+                "ds_cal_molK": self.ds_cal_molK,
+                "ds_assumed_zero": self.ds_assumed_zero,
                 "t_K": self.t_K,
                 "k_s": self.k_s,
                 "half_life_s": self.half_life_s,
@@ -686,26 +692,45 @@ class RateSummary:
         )
 
 
-def rate_summary(dg_kcal_mol: float, t_K: float, field_frequency_Hz: float | None = None) -> RateSummary:
+def rate_summary(
+    dg_kcal_mol: float | None,
+    t_K: float,
+    field_frequency_Hz: float | None = None,
+    *,
+    dh_kcal_mol: float | None = None,
+    ds_cal_molK: float | None = None,
+) -> RateSummary:
     """Inversion rate, half-life and whether the dipole can follow an AC field.
 
     Parameters
     ----------
-    dg_kcal_mol : float
-        Inversion barrier, kcal/mol (>= 0).
+    dg_kcal_mol : float or None
+        Inversion barrier dG++, kcal/mol (>= 0), used at every temperature when dH++ and
+        dS++ are not known (dS++ is then assumed zero, and the result says so). May be
+        None when both ``dh_kcal_mol`` and ``ds_cal_molK`` are given.
     t_K : float
         Temperature, K (> 0).
     field_frequency_Hz : float, optional
         Frequency of the applied field, Hz (> 0).
+    dh_kcal_mol, ds_cal_molK : float, optional
+        Activation enthalpy (kcal/mol) and entropy (cal mol^-1 K^-1), e.g. from an Eyring
+        fit. Given both, k = (kB T/h) exp(dS++/R) exp(-dH++/RT), i.e. dG++(T) = dH++ - T dS++.
 
     Returns
     -------
     RateSummary
-        ``k_s`` (Eyring, kappa = 1), ``half_life_s`` = ln 2 / k (residence half-life, see
-        :func:`half_life_s`), ``keeps_up``: None without a frequency, else k >= 2 f.
+        ``dg_kcal_mol`` = the dG++ at ``t_K`` the rate uses; ``dh_kcal_mol``,
+        ``ds_cal_molK`` when known; ``ds_assumed_zero``; ``k_s`` (Eyring, kappa = 1),
+        ``half_life_s`` = ln 2 / k (residence half-life, see :func:`half_life_s`),
+        ``keeps_up``: None without a frequency, else k >= 2 f; flag ``ds_assumed_zero``
+        when the same dG++ is used at every temperature.
 
     Notes
     -----
+    A dG++ measured at 298 K (or at a coalescence temperature) holds at that temperature
+    only: the rate from dG++(298.15 K) is off by a factor exp[-dS++ (T - 298.15)/(R T)], which
+    for dS++ = -3.4 cal mol^-1 K^-1 is 0.72 at 250 K and 1.54 at 400 K (computed).
+
     Criterion (common practice, an order-of-magnitude rule): the bowls follow the field
     when an inversion happens within one field half-period, 1/(2 f), i.e. when the mean
     residence time 1/k is at most 1/(2 f): k >= 2 f. Switching in a crystal is
@@ -715,12 +740,26 @@ def rate_summary(dg_kcal_mol: float, t_K: float, field_frequency_Hz: float | Non
     ----------
     H. Eyring, J. Chem. Phys. 3, 107 (1935), doi:10.1063/1.1749604.
     """
-    dg = _finite(dg_kcal_mol, "the barrier dG", "dg")
-    if dg < 0:
-        raise AnalysisError(f"the barrier dG cannot be negative, got {dg:g} kcal/mol", field="dg")
     t = _finite(t_K, "T", "temperature")
     if t <= 0:
         raise AnalysisError(f"T must be above 0 K, got {t:g} K", field="temperature")
+    flags: list[Flag] = []
+    known = dh_kcal_mol is not None and ds_cal_molK is not None
+    if known:
+        dh = _finite(dh_kcal_mol, "dH", "dh")
+        ds = _finite(ds_cal_molK, "dS", "ds")
+        dg = dh - t * ds / 1000.0  # dG++(T) = dH++ - T dS++ (cal -> kcal)
+        if dg < 0:
+            raise AnalysisError(f"dH - T dS is negative at {t:g} K ({dg:.3g} kcal/mol): outside the fit's "
+                                "meaning", field="temperature")
+    else:
+        if dg_kcal_mol is None:
+            raise AnalysisError("give the barrier dG, or both dH and dS", field="dg")
+        dg = _finite(dg_kcal_mol, "the barrier dG", "dg")
+        if dg < 0:
+            raise AnalysisError(f"the barrier dG cannot be negative, got {dg:g} kcal/mol", field="dg")
+        flags.append(Flag("ds_assumed_zero", "The activation entropy of this barrier is not known: it is taken as "
+                          "zero, so the same dG++ is used at every temperature (Eyring 1935)."))
     k = eyring_rate_per_s(kcal_to_kJ(dg), t)
     if k == 0.0:
         raise AnalysisError(
@@ -740,6 +779,10 @@ def rate_summary(dg_kcal_mol: float, t_K: float, field_frequency_Hz: float | Non
         half_life_s=half_life_s(k),
         frequency_Hz=f,
         keeps_up=keeps,
+        flags=tuple(flags),
+        dh_kcal_mol=float(dh_kcal_mol) if known else None,
+        ds_cal_molK=float(ds_cal_molK) if known else None,
+        ds_assumed_zero=not known,
     )
 
 

@@ -15,6 +15,8 @@ from . import audit, stats
 from .stats import MEASURED_METHODS
 from .errors import NotFound
 
+# Barriers that are electronic energies (GFN2-xTB, imported calculations), not free energies.
+ELECTRONIC_METHODS = ("gfn2-xtb", "imported")
 
 
 class CoalescenceIn(BaseModel):
@@ -125,7 +127,17 @@ def rates(row: BarrierEstimate, *, t_K: float, frequency_Hz: Optional[float]) ->
     """Inversion rate and half-life at t_K, and whether inversion keeps up with a field of frequency_Hz."""
     if row.dg_kcal_mol is None:
         raise InputError("this barrier has no value", field="barrier")
-    return jsonable(kinetics.rate_summary(row.dg_kcal_mol, t_K, frequency_Hz).to_dict())
+    res = row.results or {}
+    dh, ds = res.get("dh_kcal_mol"), res.get("ds_cal_molK")
+    summary = kinetics.rate_summary(row.dg_kcal_mol, t_K, frequency_Hz,
+                                    dh_kcal_mol=dh if ds is not None else None,
+                                    ds_cal_molK=ds if dh is not None else None)
+    out = jsonable(summary.to_dict())
+    if row.method in ELECTRONIC_METHODS:
+        out["flags"].append({"code": "electronic_energy", "message": (
+            "This barrier is an electronic energy difference (dE++, no zero-point, thermal or entropy terms); "
+            "the rate treats it as dG++, a rough estimate only.")})
+    return out
 
 
 def _latest(rows: list[BarrierEstimate], methods: tuple[str, ...]) -> Optional[BarrierEstimate]:

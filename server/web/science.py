@@ -8,7 +8,6 @@ from urllib.parse import quote
 from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse
 
-from ..analysis.kinetics import rate_summary
 from ..deps import RowId, SessionDep
 from ..errors import InputError
 from ..ingest.conditions import parse_quantity
@@ -33,7 +32,7 @@ def barrier_rows(session, compound, *, t_K: float, frequency_Hz: Optional[float]
     rows = []
     for b in barriers.list_barriers(session, compound):
         row = barriers.barrier_read(session, b)
-        row["rate"] = rate_summary(b.dg_kcal_mol, t_K, frequency_Hz).to_dict() if b.dg_kcal_mol is not None else None
+        row["rate"] = barriers.rates(b, t_K=t_K, frequency_Hz=frequency_Hz) if b.dg_kcal_mol is not None else None
         rows.append(row)
     return rows
 

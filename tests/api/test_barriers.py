@@ -37,6 +37,11 @@ def test_eyring_points_recover_inputs(client, writer):
                        headers=writer).json()
     assert body["dh_kcal_mol"] == pytest.approx(80 / 4.184, rel=1e-3)
     assert body["ds_cal_molK"] == pytest.approx(-10 / 4.184, abs=0.01)
+    # the rate at another temperature comes from dH and dS, not dG(298 K) (Eyring 1935; issue 16)
+    rate = client.get(f"/api/v1/barriers/{body['id']}/rate?t_K=360", headers=writer).json()
+    assert rate["k_s"] == pytest.approx(5.5632, rel=2e-3)
+    assert rate["ds_assumed_zero"] is False
+    assert not {f["code"] for f in rate["flags"]} & {"ds_assumed_zero", "electronic_energy"}
 
 
 def test_imported_and_listing_and_rates(client, writer):
@@ -53,6 +58,10 @@ def test_imported_and_listing_and_rates(client, writer):
     assert rate["keeps_up"] is True
     slow = client.get(f"/api/v1/barriers/{bid}/rate?t_K=150&frequency_Hz=1000", headers=writer).json()
     assert slow["keeps_up"] is False
+    # an imported calculation has no dS: the answer says dS is taken as zero and that the
+    # barrier is an electronic energy used as if it were dG
+    assert slow["ds_assumed_zero"] is True
+    assert {"ds_assumed_zero", "electronic_energy"} <= {f["code"] for f in slow["flags"]}
 
 
 @pytest.mark.parametrize(

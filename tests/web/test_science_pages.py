@@ -25,6 +25,8 @@ def test_coalescence_form_and_rate_partial(client, session):
     k = float(doc.select("#barriers tbody tr td")[4].text)
     # dG from Gutowsky-Holm at 253.15 K, then Eyring at 400 K: far faster than at Tc (k_c = pi 85/sqrt 2 = 188.8 1/s).
     assert k > 188.8 and math.isfinite(k)
+    # a coalescence point gives dG at Tc only: the page says the rate assumes dS = 0 (issue 16)
+    assert doc.select_one('#barriers tbody tr [data-flag="ds_assumed_zero"]') is not None
     bad = client.get("/compounds/RMN-00001/rates?t=hot&f=1+kHz", headers={"HX-Request": "true"})
     assert "field 't'" in soup(bad.text).find(role="alert").text
 

@@ -19,16 +19,28 @@ from .errors import NotFound
 ELECTRONIC_METHODS = ("gfn2-xtb", "imported")
 
 
-class CoalescenceIn(BaseModel):
+class NmrConditionsIn(BaseModel):
+    """Where a dynamic-NMR barrier was measured: dnu in Hz scales with the field, and the
+    barrier can depend on the solvent."""
+
+    spectrometer_MHz: Optional[float] = Field(default=None, gt=0, lt=5000,
+                                              description="spectrometer frequency for the observed nucleus, MHz")
+    nucleus: str = Field(default="", max_length=10, description="observed nucleus, e.g. 1H, 13C, 19F")
+    solvent: str = Field(default="", max_length=80, description="solvent, e.g. CD2Cl2")
+
+
+class CoalescenceIn(NmrConditionsIn):
     method: Literal["coalescence"]
     tc_K: float = Field(description="coalescence temperature, K")
     dnu_Hz: float = Field(description="peak separation in the slow-exchange limit, Hz")
+    j_Hz: Optional[float] = Field(default=None, description="coupling of an exchanging AB pair, Hz (e.g. 2J of CH2)")
     tc_err_K: Optional[float] = None
     dnu_err_Hz: Optional[float] = None
+    j_err_Hz: Optional[float] = None
     notes: str = ""
 
 
-class EyringIn(BaseModel):
+class EyringIn(NmrConditionsIn):
     method: Literal["eyring"]
     points: list[tuple[float, float]] = Field(description="[[T (K), k (1/s)], ...], at least three")
     notes: str = ""
@@ -47,10 +59,11 @@ BarrierIn = Union[CoalescenceIn, EyringIn, ImportedIn]
 def add_barrier(*, session: Session, compound: Compound, data: BarrierIn, actor: str) -> BarrierEstimate:
     """Compute and store a barrier from a coalescence point, rate points or an outside value."""
     if isinstance(data, CoalescenceIn):
-        r = kinetics.coalescence(data.tc_K, data.dnu_Hz, tc_err_K=data.tc_err_K, dnu_err_Hz=data.dnu_err_Hz)
+        r = kinetics.coalescence(data.tc_K, data.dnu_Hz, tc_err_K=data.tc_err_K, dnu_err_Hz=data.dnu_err_Hz,
+                                 j_Hz=data.j_Hz, j_err_Hz=data.j_err_Hz)
         row = BarrierEstimate(compound_id=compound.id, method="coalescence", dg_kcal_mol=r.dg_kcal_mol,
                               dg_err_kcal_mol=r.dg_err_kcal_mol, t_K=r.tc_K, results=jsonable(r.to_dict()),
-                              model="Gutowsky-Holm coalescence", analysis_version=kinetics.VERSION)
+                              model=r.model, analysis_version=kinetics.VERSION)
     elif isinstance(data, EyringIn):
         if len(data.points) < 3:
             raise InputError("an Eyring fit needs at least three (T, k) points", field="points")
@@ -62,6 +75,8 @@ def add_barrier(*, session: Session, compound: Compound, data: BarrierIn, actor:
         row = BarrierEstimate(compound_id=compound.id, method="imported", dg_kcal_mol=r.dg_kcal_mol,
                               results=jsonable(r.to_dict()), model=data.level_of_theory,
                               analysis_version=kinetics.VERSION)
+    if isinstance(data, NmrConditionsIn):
+        row.spectrometer_MHz, row.nucleus, row.solvent = data.spectrometer_MHz, data.nucleus.strip(), data.solvent.strip()
     row.notes = data.notes
     row.created_by = actor
     session.add(row)
@@ -84,6 +99,8 @@ def _eyring_row(compound: Compound, fit: kinetics.EyringFit, measurement_id: Opt
 def barrier_from_rate_table(session: Session, *, compound: Compound, measurement: Measurement, fit, actor: str) -> BarrierEstimate:
     """An uploaded rate table (kind nmr_rates) also lands in the compound's barrier table."""
     row = _eyring_row(compound, fit, measurement_id=measurement.id)
+    c = measurement.conditions or {}
+    row.spectrometer_MHz, row.nucleus, row.solvent = c.get("spectrometer_MHz"), c.get("nucleus") or "", c.get("solvent") or ""
     row.created_by = actor
     session.add(row)
     return row
@@ -113,6 +130,9 @@ def barrier_read(session: Session, row: BarrierEstimate) -> dict[str, Any]:
         "dg_err_kcal_mol": row.dg_err_kcal_mol,
         "t_K": row.t_K,
         "model": row.model,
+        "spectrometer_MHz": row.spectrometer_MHz,
+        "nucleus": row.nucleus,
+        "solvent": row.solvent,
         "results": row.results,
         "measurement": row.measurement_id,
         "job": row.job_id,

@@ -507,3 +507,27 @@ def test_rate_table_noise_is_reproducible_and_relative():
 def test_rate_table_error_paths(args, kwargs):
     with pytest.raises(AnalysisError):
         rate_table(*args, **kwargs)
+
+
+# ---------------------------------------------------------------- coupled coalescence (issue 16)
+
+
+def test_coupled_ab_coalescence_kurland_rubin_wise():
+    # Kurland, Rubin and Wise, J. Chem. Phys. 40, 2426 (1964): k_c = pi sqrt(dnu^2 + 6 J^2)/sqrt(2).
+    # dnu 40 Hz, J 16 Hz: sqrt(1600 + 1536) = 56 Hz exactly, so k_c = pi 56 / sqrt(2) = 124.4007 1/s
+    # (by hand), 1.4 times the Gutowsky-Holm value; dG = R Tc ln(kB Tc / (h k_c)).
+    r = kin.coalescence(298.15, 40.0, j_Hz=16.0)
+    assert r.k_s == pytest.approx(math.pi * 56 / math.sqrt(2), rel=1e-12)
+    assert r.k_s == pytest.approx(124.4007, rel=1e-6)
+    dg_hand = R * 298.15 * math.log(KB * 298.15 / (H * r.k_s)) / 1000
+    assert r.dg_kJ_mol == pytest.approx(dg_hand, rel=1e-12)
+    assert r.dg_kJ_mol < kin.coalescence(298.15, 40.0).dg_kJ_mol  # neglecting J overestimates dG
+    assert "Kurland" in r.model and r.to_dict()["j_Hz"] == 16.0
+    # J = 0 is Gutowsky-Holm (Tc 298.15 K, dnu 100 Hz -> k_c 222.144 1/s, dG 59.629 kJ/mol, computed)
+    z = kin.coalescence(298.15, 100.0, j_Hz=0.0)
+    assert z.k_s == pytest.approx(222.144, rel=1e-5) and z.dg_kJ_mol == pytest.approx(59.629, abs=1e-3)
+    # the J uncertainty adds to the error
+    assert kin.coalescence(298.15, 40.0, j_Hz=16.0, j_err_Hz=2.0).dg_err_kcal_mol > r.dg_err_kcal_mol
+    with pytest.raises(AnalysisError) as err:
+        kin.coalescence(298.15, 40.0, j_Hz=-16.0)
+    assert err.value.field == "j"

@@ -39,7 +39,7 @@ METHOD = (
     "(Cordero et al., Dalton Trans. 2008, 2832) + 0.4 A; bowl depth and column stacking "
     "from the core centroid and bowl axis of the symmetry mates."
 )
-VERSION = "crystal/1.0"
+VERSION = "crystal/1.1"  # 1.1: bowl depth for any hub ring size
 
 #: Avogadro constant, CODATA 2018 (exact), 1/mol.
 N_A_PER_MOL = 6.02214076e23

@@ -126,6 +126,8 @@ def barrier_read(session: Session, row: BarrierEstimate) -> dict[str, Any]:
         "compound": compound.code,
         "method": row.method,
         "measured": row.method in MEASURED_METHODS,
+        # a computed barrier is an electronic energy difference dE++, a measured one a free energy dG++
+        "energy": "electronic" if row.method in ELECTRONIC_METHODS else "free",
         "dg_kcal_mol": row.dg_kcal_mol,
         "dg_err_kcal_mol": row.dg_err_kcal_mol,
         "t_K": row.t_K,

@@ -70,6 +70,12 @@ def test_coalescence_form_takes_the_ab_coupling_and_nmr_conditions(client, sessi
     assert row.results["k_s"] == pytest.approx(124.40, rel=1e-4)  # pi 56 / sqrt 2, by hand
     cells = [td.text for td in soup(client.get("/compounds/RMN-00001").text).select("#barriers tbody tr td")]
     assert "Kurland" in cells[3]
+    assert cells[1].startswith("ΔG‡")  # a measured barrier is a free energy
+    client.post("/compounds/RMN-00001/barriers", data={"method": "imported", "dg_kcal_mol": "12.0",
+                                                      "level_of_theory": "GFN2-xTB, planar-constrained",
+                                                      "csrf_token": csrf})
+    page = soup(client.get("/compounds/RMN-00001").text)
+    assert page.select_one('#barriers [data-energy="electronic"]').text == "ΔE‡"  # issue 16, item 10
     bad = client.post("/compounds/RMN-00001/barriers",
                       data={"method": "coalescence", "tc": "260 K", "dnu": "40 Hz", "spectrometer": "400 K",
                             "csrf_token": csrf})

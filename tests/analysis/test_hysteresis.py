@@ -330,7 +330,7 @@ def test_single_period_from_zero_is_joined():
 
 def test_e_p_file_with_an_offset_is_centred_and_the_offset_reported():
     # Only differences of P are measured (a charge integrator's constant is arbitrary), so a
-    # Miller loop shifted by +20 uC/cm^2 is the same loop: Pr 8, Ec 50 (REFERENCES.md, computed).
+    # Miller loop shifted by +20 uC/cm^2 is the same loop: Pr 8, Ec 50 (Miller et al. 1990, computed).
     frame = canon(miller_loop(10, 8, 50, 300))
     frame["P_uC_cm2"] = frame["P_uC_cm2"] + 20.0
     r = analyse_loop(frame)
@@ -467,7 +467,7 @@ def test_three_period_sine_is_three_cycles_and_complete():
 @pytest.mark.parametrize("raw", [False, True])
 def test_saturated_loop_stays_ferroelectric_under_noise(drive, raw):
     # Issue 16, defect 2: white noise up to 2 % of Ps, eight seeds, E/P and integrator V/Q:
-    # a saturated Miller loop (Ps 10, Pr 8, Ec 50, Emax 300; REFERENCES.md, computed) keeps
+    # a saturated Miller loop (Ps 10, Pr 8, Ec 50, Emax 300; Miller et al. 1990, computed) keeps
     # its verdict, Pr and Ec within 3 %, and a defined Ps.
     for level in (0.002, 0.005, 0.01, 0.02):
         for seed in range(8):

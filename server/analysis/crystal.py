@@ -40,7 +40,7 @@ METHOD = (
     "(Cordero et al., Dalton Trans. 2008, 2832) + 0.4 A; bowl depth and column stacking "
     "from the core centroid and bowl axis of the symmetry mates."
 )
-VERSION = "crystal/1.0"
+VERSION = "crystal/1.1"  # 1.1: bowl depth for any hub ring size
 
 #: 1 A^3 in cm^3.
 A3_TO_CM3 = 1e-24

@@ -7,8 +7,11 @@ frequency) and reports
 * the permittivity maximum at each frequency (``t_peak_K``, ``eps_peak``), refined by the
   parabola through the largest sample and its two neighbours;
 * the spread of the peak temperatures over frequency (``dispersion_K``), a relaxor hint;
-* a Curie-Weiss fit above the peak at the lowest frequency,
-  eps' = eps_inf + C / (T - T0), with eps_inf fitted as well;
+* tan delta = eps''/eps' at each maximum (``tan_delta_peak``);
+* for a maximum that moves with frequency, a Vogel-Fulcher fit of T_m(f) (Cross 1987);
+* a Curie-Weiss fit above the peak at the least lossy frequency (``cw_frequency_Hz``),
+  eps' = eps_inf + C / (T - T0), with eps_inf fitted as well; no numbers from a fit
+  whose C, T0 or eps_inf cannot be physical;
 * the Landau ratio of the slopes of 1/eps below and above the peak (-2 for a
   second-order transition, -4 at a tricritical point);
 * an order-of-magnitude hint from C: about 1e3 K for order-disorder, about 1e5 K for
@@ -35,11 +38,12 @@ from server.errors import AnalysisError
 
 METHOD = (
     "Parallel-plate permittivity eps' = C d/(eps0 A); peak per frequency by local parabolic "
-    "refinement; Curie-Weiss fit eps' = eps_inf + C/(T - T0) above the peak and the Landau "
-    "1/eps slope ratio (Lines and Glass, Principles and Applications of Ferroelectrics and "
-    "Related Materials, OUP 1977)."
+    "refinement; Curie-Weiss fit eps' = eps_inf + C/(T - T0) above the peak at the least lossy "
+    "frequency and the Landau 1/eps slope ratio (Lines and Glass, Principles and Applications of "
+    "Ferroelectrics and Related Materials, OUP 1977); Vogel-Fulcher fit of a frequency-dependent "
+    "maximum (Cross, Ferroelectrics 76, 241 (1987))."
 )
-VERSION = "dielectric/1.0"
+VERSION = "dielectric/1.1"
 
 
 # Fewer samples than this at one frequency cannot locate a peak and fit both sides.
@@ -64,6 +68,13 @@ DISPERSION_THRESHOLD_K = 2.0
 ORDER_DISORDER_C_K = (1.0e2, 7.0e3)
 DISPLACIVE_C_K = (3.0e4, 1.0e6)
 POOR_FIT_R2 = 0.98
+# A Curie constant above this is no physical Curie-Weiss law for a molecular crystal (the
+# largest displacive ones are of order 1e5 K; common practice): the fit is not reported.
+CW_C_MAX_K = DISPLACIVE_C_K[1]
+# The Vogel-Fulcher fit of T_m(f) has three parameters; ask for one degree of freedom.
+VF_MIN_FREQUENCIES = 4
+KB_J_K = 1.380649e-23  # CODATA 2018
+R_J_MOLK = KB_J_K * 6.02214076e23
 
 
 @dataclass(frozen=True)
@@ -75,6 +86,7 @@ class DielectricPeak(Result):
     eps_peak: float
     at_edge: str | None  # None, "low" or "high"
     n_points: int
+    tan_delta_peak: float | None = None  # eps''/eps' at the maximum of eps'
 
 
 @dataclass(frozen=True)
@@ -103,6 +115,14 @@ class DielectricResult(Result):
     points: int
     flags: tuple[Flag, ...] = ()
     curves: dict[str, Any] | None = field(default=None, repr=False, compare=False)
+    tan_delta_peak: float | None = None
+    cw_frequency_Hz: float | None = None
+    vf_ea_kJ_mol: float | None = None
+    vf_ea_err_kJ_mol: float | None = None
+    vf_t_K: float | None = None
+    vf_t_err_K: float | None = None
+    vf_f0_Hz: float | None = None
+    vf_log10_f0_err: float | None = None
 
 
 # --------------------------------------------------------------------------- helpers
@@ -233,7 +253,10 @@ def analyse_dielectric(
         ``t_peak_K`` and ``eps_peak`` at the lowest frequency, ``dispersion_K``,
         ``curie_constant_K``, ``t0_K``, ``eps_inf``, ``fit_r2``, ``fit_t_min_K``,
         ``fit_t_max_K``, ``landau_slope_ratio``, ``transition_hint``, ``frequencies``,
-        ``points``, ``flags``.
+        ``points``, ``flags``; ``tan_delta_peak`` (at the lowest frequency's maximum; each
+        peak has its own), ``cw_frequency_Hz`` (where Curie-Weiss and Landau were read),
+        ``vf_ea_kJ_mol``, ``vf_t_K``, ``vf_f0_Hz`` and their errors (``vf_ea_err_kJ_mol``,
+        ``vf_t_err_K``, ``vf_log10_f0_err``) for a dispersed maximum.
 
     Notes
     -----
@@ -242,7 +265,15 @@ def analyse_dielectric(
       (flag ``peak_at_edge``; its ``t_peak_K`` is None).
     * Dispersion: max - min of the peak temperatures over frequencies with a peak;
       flag ``frequency_dispersion`` above ``max(2 K, one temperature step)`` (common practice).
-    * Curie-Weiss (lowest frequency): fitted with :func:`scipy.optimize.curve_fit` from
+    * Frequency for Curie-Weiss and Landau: the one with the smallest median tan delta
+      above its peak (flag ``curie_weiss_frequency`` when that is not the lowest); conduction
+      and space charge at low frequency add to eps' and bend the 1/eps line. Without loss
+      data, the lowest frequency.
+    * Vogel-Fulcher: with ``frequency_dispersion`` and peaks at four or more frequencies,
+      ln f = ln f0 - Ea / (kB (T_m - T_VF)) by least squares (:func:`vogel_fulcher_fit`).
+    * Curie-Weiss numbers are withheld (flag ``curie_weiss_withheld``) when C <= 0,
+      C > 1e6 K, eps_inf < 0 or T0 sits at its bound: such a fit describes nothing.
+    * Curie-Weiss: fitted with :func:`scipy.optimize.curve_fit` from
       ``t_peak + max(5 K, 3 steps)`` to the top of the data, with relative weights (an LCR
       meter's error is proportional to the reading); T0 is bounded below the fit range so
       the pole stays outside the data; eps_inf is fitted, as a fit without it biases C and T0.
@@ -348,13 +379,15 @@ def analyse_dielectric(
         steps.append(float(np.median(np.diff(t))))
         i = int(np.argmax(y))
         edge = "low" if i == 0 else ("high" if i == len(t) - 1 else None)
+        tan = yi / y if yi is not None else None
         if edge is None:
             tp, ep = _refine_peak(t, y, i)
-            peak = DielectricPeak(f, tp, ep, None, len(t))
+            tan_p = float(np.interp(tp, t, tan)) if tan is not None else None
+            peak = DielectricPeak(f, tp, ep, None, len(t), tan_p)
         else:
-            peak = DielectricPeak(f, None, float(y[i]), edge, len(t))
+            peak = DielectricPeak(f, None, float(y[i]), edge, len(t), float(tan[i]) if tan is not None else None)
         peaks.append(peak)
-        curves_per_f.append({"f_Hz": f, "t_K": t, "eps_r": y, "eps_i": yi, "peak": peak})
+        curves_per_f.append({"f_Hz": f, "t_K": t, "eps_r": y, "eps_i": yi, "tan_delta": tan, "peak": peak})
 
     if not peaks:
         raise AnalysisError(
@@ -404,11 +437,18 @@ def analyse_dielectric(
                 )
             )
 
-    # Curie-Weiss and Landau at the lowest frequency (first in sorted order).
-    low = curves_per_f[0]
+    vf = _vogel_fulcher_if_dispersed(inner, flags)
+
+    # Curie-Weiss and Landau at the least lossy frequency (median tan delta above the
+    # peak); the lowest frequency without loss data. Loss at low frequency (conduction,
+    # electrode and space charge) adds to eps' and bends the Curie-Weiss line.
+    margin_K = max(CW_MARGIN_K, CW_MARGIN_STEPS * step_K)
+    low = _least_lossy(curves_per_f, margin_K)
+    if low is not curves_per_f[0]:
+        flags.append(Flag("curie_weiss_frequency", f"Curie-Weiss and Landau readings use {low['f_Hz']:g} Hz, the "
+                          "frequency with the least loss above the peak, not the lowest one."))
     lp: DielectricPeak = low["peak"]
     t, y = low["t_K"], low["eps_r"]
-    margin_K = max(CW_MARGIN_K, CW_MARGIN_STEPS * step_K)
     cw: dict[str, Any] = {}
     fit_mask: np.ndarray | None = None
     if lp.at_edge == "high":
@@ -441,6 +481,7 @@ def analyse_dielectric(
             )
         else:
             cw = _fit_curie_weiss(t[fit_mask], y[fit_mask], flags)
+            cw = _withhold_meaningless(cw, flags)
 
     landau_ratio: float | None = None
     landau: dict[str, Any] | None = None
@@ -490,10 +531,11 @@ def analyse_dielectric(
             "eps_r_ext": curie_weiss(t_ext, cw["curie_constant_K"], cw["t0_K"], cw["eps_inf"]),
         }
 
+    first: DielectricPeak = curves_per_f[0]["peak"]
     return DielectricResult(
         peaks=tuple(peaks),
-        t_peak_K=lp.t_peak_K,
-        eps_peak=lp.eps_peak if lp.t_peak_K is not None else None,
+        t_peak_K=first.t_peak_K,
+        eps_peak=first.eps_peak if first.t_peak_K is not None else None,
         dispersion_K=dispersion_K,
         curie_constant_K=c_K,
         curie_constant_err_K=cw.get("curie_constant_err_K"),
@@ -511,7 +553,115 @@ def analyse_dielectric(
         points=int(sum(p.n_points for p in peaks)),
         flags=tuple(flags),
         curves=curves,
+        tan_delta_peak=first.tan_delta_peak if first.t_peak_K is not None else None,
+        cw_frequency_Hz=low["f_Hz"] if cw else None,
+        **vf,
     )
+
+
+def _least_lossy(curves: list[dict[str, Any]], margin_K: float) -> dict[str, Any]:
+    """The curve with the smallest median tan delta above its peak (the lowest frequency on ties
+    or without loss data)."""
+    best, best_loss = curves[0], math.inf
+    for c in curves:
+        if c["tan_delta"] is None or c["peak"].at_edge == "high":
+            continue
+        start = c["peak"].t_peak_K + margin_K if c["peak"].t_peak_K is not None else -math.inf
+        above = c["t_K"] >= start
+        if above.sum() < CW_MIN_POINTS:
+            continue
+        loss = float(np.median(c["tan_delta"][above]))
+        if loss < best_loss * (1 - 1e-9):
+            best, best_loss = c, loss
+    return best
+
+
+def _withhold_meaningless(cw: dict[str, float], flags: list[Flag]) -> dict[str, float]:
+    """No Curie-Weiss numbers from a fit whose C, T0 or eps_inf has no physical meaning."""
+    if not cw:
+        return cw
+    codes = {f.code for f in flags}
+    why = []
+    if cw["curie_constant_K"] <= 0:
+        why.append("C is not positive")
+    if cw["curie_constant_K"] > CW_C_MAX_K:
+        why.append(f"C = {cw['curie_constant_K']:.2g} K is beyond any Curie constant ({CW_C_MAX_K:.0e} K)")
+    if cw["eps_inf"] < 0:
+        why.append("eps_inf is negative")
+    if "t0_at_bound" in codes:
+        why.append("T0 sits at the bound")
+    if not why:
+        return cw
+    flags.append(Flag("curie_weiss_withheld", "The Curie-Weiss fit is not reported: " + "; ".join(why)
+                      + ". eps' above the peak does not follow eps_inf + C/(T - T0) here."))
+    return {}
+
+
+def vogel_fulcher_fit(f_Hz: Any, t_m_K: Any) -> dict[str, float]:
+    """Vogel-Fulcher fit of the permittivity maximum against frequency.
+
+    f = f0 exp[-Ea / (kB (T_m - T_VF))], fitted as ln f against T_m by least squares.
+
+    Parameters
+    ----------
+    f_Hz, t_m_K : array_like
+        Measuring frequencies (Hz) and the temperatures of the eps' maximum (K); at least
+        four pairs.
+
+    Returns
+    -------
+    dict
+        ``vf_ea_kJ_mol`` (Ea per mole, = Ea N_A), ``vf_t_K`` (T_VF), ``vf_f0_Hz`` and their
+        standard errors (``vf_ea_err_kJ_mol``, ``vf_t_err_K``, ``vf_log10_f0_err``), or
+        an empty dict when the fit does not converge or T_VF would not lie below the data.
+
+    References
+    ----------
+    L. E. Cross, Ferroelectrics 76, 241 (1987), doi:10.1080/00150198708016945;
+    D. Viehland, S. J. Jang, L. E. Cross and M. Wuttig, J. Appl. Phys. 68, 2916 (1990),
+    doi:10.1063/1.346425 (Vogel-Fulcher freezing in relaxors; memory).
+    """
+    f = np.asarray(f_Hz, dtype=float)
+    tm = np.asarray(t_m_K, dtype=float)
+    ln_f = np.log(f)
+
+    def model(t, ln_f0, ea_K, t_vf):
+        return ln_f0 - ea_K / (t - t_vf)
+
+    span = float(tm.max() - tm.min())
+    t_hi = float(tm.min()) - 1e-3 * max(span, 1.0)
+    try:
+        popt, pcov = curve_fit(model, tm, ln_f, p0=(ln_f.max() + 10.0, 10.0 * max(span, 1.0), float(tm.min()) - 3 * max(span, 1.0)),
+                               bounds=([-np.inf, 0.0, 0.0], [np.inf, np.inf, t_hi]), max_nfev=2000)
+    except (RuntimeError, ValueError):
+        return {}
+    if not np.all(np.isfinite(pcov)) or abs(popt[2] - t_hi) < 1e-6 * t_hi:
+        return {}
+    err = np.sqrt(np.diag(pcov))
+    kj = R_J_MOLK / 1000.0  # Ea/kB in K -> kJ/mol
+    return {
+        "vf_ea_kJ_mol": float(popt[1] * kj),
+        "vf_ea_err_kJ_mol": float(err[1] * kj),
+        "vf_t_K": float(popt[2]),
+        "vf_t_err_K": float(err[2]),
+        "vf_f0_Hz": float(math.exp(popt[0])),
+        "vf_log10_f0_err": float(err[0] / math.log(10.0)),
+    }
+
+
+def _vogel_fulcher_if_dispersed(inner: list[DielectricPeak], flags: list[Flag]) -> dict[str, float]:
+    if "frequency_dispersion" not in {f.code for f in flags}:
+        return {}
+    known = [p for p in inner if p.f_Hz is not None]
+    if len(known) < VF_MIN_FREQUENCIES:
+        flags.append(Flag("vogel_fulcher_unavailable", f"A Vogel-Fulcher fit of the moving maximum needs peaks at "
+                          f"{VF_MIN_FREQUENCIES} or more frequencies; {len(known)} found."))
+        return {}
+    vf = vogel_fulcher_fit([p.f_Hz for p in known], [p.t_peak_K for p in known])
+    if not vf:
+        flags.append(Flag("vogel_fulcher_failed", "The peak temperatures do not follow a Vogel-Fulcher law "
+                          "(no convergence, or T_VF not below the data)."))
+    return vf
 
 
 def _fit_curie_weiss(t: np.ndarray, y: np.ndarray, flags: list[Flag]) -> dict[str, float]:
@@ -542,7 +692,7 @@ def _fit_curie_weiss(t: np.ndarray, y: np.ndarray, flags: list[Flag]) -> dict[st
             sigma=y,
             bounds=([-np.inf, -np.inf, -np.inf], [np.inf, t0_max, np.inf]),
             x_scale="jac",
-            max_nfev=20000,
+            max_nfev=2000,  # bounded work per upload; a fit that needs more does not describe the data
         )
     except RuntimeError as exc:  # no convergence: report it as a flag, keep the rest
         flags.append(Flag("curie_weiss_fit_failed", f"The Curie-Weiss fit did not converge ({exc})."))

@@ -15,6 +15,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from scipy.integrate import cumulative_trapezoid
+from scipy.signal import savgol_filter
 
 from server.analysis.results import Flag, Result
 from server.errors import AnalysisError
@@ -25,7 +26,7 @@ METHOD = (
     "linear part, loss as the closed integral of E dP (IEEE Std 180-1986 definitions), with shape "
     "tests that reject lossy-dielectric ellipses (J. F. Scott, J. Phys.: Condens. Matter 20, 021001 (2008))."
 )
-VERSION = "hysteresis/1.0"
+VERSION = "hysteresis/1.1"
 
 VERDICTS = ("ferroelectric", "paraelectric", "linear_dielectric", "lossy_dielectric", "inconclusive")
 
@@ -42,6 +43,11 @@ TIP_GAP = 0.10  # branch gap at 0.9 Emax / (2 Pr) above this: branches do not me
 TIP_RISE = 1.25  # slope in the top 5 % of field / slope in 80-95 %: the branch curls up
 OPEN_LOOP = 0.05  # |P(end) - P(start)| / (2 Pmax) above this: the loop does not close
 NOISY = 0.20  # noise / half the 5-95 % range of P above this: shapes cannot be judged
+
+
+# Keys that are only apparent values (what a closed curve gives, not a switched
+# polarization or a coercive field) unless the verdict is "ferroelectric".
+APPARENT_KEYS = ("pr_pos_uC_cm2", "pr_neg_uC_cm2", "pr_uC_cm2", "ec_pos_kV_cm", "ec_neg_kV_cm", "ec_kV_cm")
 
 
 @dataclass(frozen=True)
@@ -71,6 +77,8 @@ class LoopResult(Result):
     imprint_kV_cm: float
     loss_mJ_cm3: float
     squareness: float | None
+    p_offset_uC_cm2: float
+    apparent: tuple[str, ...]
     cycles_found: int
     cycle_used: int
     points: int
@@ -181,6 +189,21 @@ def _field_extrema(e: np.ndarray) -> np.ndarray:
     return idx[keep]
 
 
+def _count_periods(ext: np.ndarray, n: int) -> tuple[int, bool]:
+    """Complete drive periods in a record of ``n`` samples with field extrema at ``ext``.
+
+    Between the first and last extremum lie ``len(ext) - 1`` half periods; the samples
+    before the first and after the last add their share of a half period (the mean
+    samples per half period between the extrema), so a sine that starts and ends at
+    zero field after three periods counts three, as does one that runs tip to tip.
+    Returns the count (periods rounded down, within 5 % of a period) and whether the
+    record holds a whole number of periods (within 5 %).
+    """
+    half = (ext[-1] - ext[0]) / (ext.size - 1)
+    periods = ((ext.size - 1) + (ext[0] + (n - 1 - ext[-1])) / half) / 2.0
+    return int(np.floor(periods + 0.05)), bool(abs(periods - round(periods)) <= 0.05)
+
+
 @dataclass(frozen=True)
 class _Cycle:
     index: np.ndarray  # sample indices of the cycle in time order
@@ -188,6 +211,7 @@ class _Cycle:
     cycles_found: int
     trailing: int  # samples after the cycle that were not analysed
     wrapped: bool
+    whole_periods: bool = False  # the record holds a whole number of drive periods
 
 
 def _select_cycle(e: np.ndarray) -> _Cycle:
@@ -196,13 +220,17 @@ def _select_cycle(e: np.ndarray) -> _Cycle:
     m = ext.size
     if m >= 3:
         a, mid, b = ext[m - 3], ext[m - 2], ext[m - 1]
-        return _Cycle(np.arange(a, b + 1), int(mid - a), (m - 1) // 2, int(n - 1 - b), False)
+        count, whole = _count_periods(ext, n)
+        return _Cycle(np.arange(a, b + 1), int(mid - a), count, int(n - 1 - b), False, whole)
     span = float(e.max() - e.min())
     if m == 2 and abs(e[0] - e[-1]) <= 0.05 * span and 0 < ext[0] and ext[1] < n - 1:
         # One drive period that starts and ends between the tips (0 -> +Emax -> -Emax -> 0):
         # join end and start into one cycle that runs from the second extremum round.
-        index = np.r_[ext[1] : n, 0 : ext[1] + 1]
-        return _Cycle(index, int(n - ext[1] + ext[0]), 1, 0, True)
+        # A record that closes on its first sample repeats it: join without the repeat,
+        # which would otherwise stand as a pause in the drive (and bias the smoothing).
+        skip = int(abs(e[0] - e[-1]) <= 1e-9 * span)
+        index = np.r_[ext[1] : n, skip : ext[1] + 1]
+        return _Cycle(index, int(n - ext[1] + ext[0] - skip), 1, 0, True, True)
     raise AnalysisError(
         f"no complete field cycle: found {m} field extreme(s); the field must run from one extreme "
         "to the other and back (or one full period starting and ending at the same field)"
@@ -248,13 +276,28 @@ def _noise(p: np.ndarray) -> float:
     return float(1.4826 * np.median(np.abs(d2)) / np.sqrt(6.0)) if d2.size else 0.0
 
 
-def _running_mean_closed(p: np.ndarray, k: int) -> np.ndarray:
-    """Mean over 2k+1 samples, wrapping round the (closed) cycle; k = 0 returns p."""
-    if k <= 0:
+SMOOTH_FRACTION = 0.02  # Savitzky-Golay window as a fraction of the cycle's points (our choice)
+
+
+def _smooth_closed(p: np.ndarray) -> np.ndarray:
+    """P smoothed along the (closed) cycle in time order: Savitzky-Golay, quadratic.
+
+    The window is 2 % of the cycle's samples (odd, at least 5), so it spans the same
+    part of the drive period at any point density: about +/-1 % of a period, over which
+    a saturated or switching branch is well described by a parabola in time, while
+    white noise drops by about half at 500 points per cycle and more at denser
+    sampling. ``mode="wrap"`` treats the cycle as closed. Used for the values read at a
+    point of the loop (P at E = 0, at 0.9 Emax and at the tips); straight-line fits use
+    the raw samples, whose residuals give honest standard errors.
+
+    References
+    ----------
+    A. Savitzky and M. J. E. Golay, Anal. Chem. 36, 1627 (1964), doi:10.1021/ac60214a047.
+    """
+    window = max(5, int(round(SMOOTH_FRACTION * p.size)) | 1)
+    if window >= p.size:
         return p
-    padded = np.r_[p[-k:], p, p[:k]]
-    c = np.cumsum(np.r_[0.0, padded])
-    return (c[2 * k + 1 :] - c[: -2 * k - 1]) / (2 * k + 1)
+    return savgol_filter(p, window, 2, mode="wrap")
 
 
 def _excess(rms: float, noise: float) -> float:
@@ -295,12 +338,17 @@ def analyse_loop(
         ``pr_uC_cm2`` = (P_desc(0) - P_asc(0))/2; ``ec_pos_kV_cm`` / ``ec_neg_kV_cm`` = E where
         the ascending / descending branch crosses P = 0, ``ec_kV_cm`` = (Ec+ - Ec-)/2,
         ``imprint_kV_cm`` = (Ec+ + Ec-)/2; ``pmax_uC_cm2`` and ``emax_kV_cm`` = half the
-        peak-to-peak P and E of the cycle (P after a running mean over 1 % of the cycle,
-        which limits the upward bias of noise); ``ps_uC_cm2`` = mean magnitude of the E = 0
-        intercepts of straight lines fitted to each branch's top 20 % of field;
+        peak-to-peak P and E of the cycle (P smoothed, which limits the upward bias of
+        noise); ``p_offset_uC_cm2`` = the constant subtracted from P to centre the cycle;
+        ``ps_uC_cm2`` = mean magnitude of the E = 0 intercepts of straight lines fitted to
+        each branch's top 20 % of field, reported only for a switching, saturated loop
+        (None otherwise, with ``squareness``);
         ``loss_mJ_cm3`` = closed integral of E dP (1 uC/cm^2 x 1 kV/cm = 1 mJ/cm^3; positive
-        for the usual counter-clockwise loop); ``squareness`` = Pr / Ps;
-        ``cycles_found``, ``cycle_used`` (1-based, always the last complete one), ``points``
+        for the usual counter-clockwise loop); ``squareness`` = Pr / Ps; ``apparent`` = the
+        Pr and Ec keys when the verdict is not ``ferroelectric`` (they are then only what
+        the closed curve gives, not a switched polarization or a coercive field);
+        ``cycles_found`` (drive periods in the record), ``cycle_used`` (1-based, always the
+        last complete one), ``points``
         (samples in the analysed cycle); ``shape`` (the numbers behind the verdict);
         ``verdict`` and ``flags``; ``cycle`` (arrays for plotting).
 
@@ -316,15 +364,25 @@ def analyse_loop(
     *Cycles.* Field extrema are found with a Schmitt trigger at +/- half the amplitude;
     a cycle runs from one extremum over the opposite one back to the first kind
     (min -> max -> min or max -> min -> max). The last complete cycle is analysed; earlier
-    ones (which may hold a virgin curve) are counted in ``cycles_found``. A single period
-    that starts and ends between the tips (0 -> +E -> -E -> 0) is joined end to start.
+    ones (which may hold a virgin curve) are counted in ``cycles_found``, which counts drive
+    periods (a sine from zero field over three periods is three cycles, with nothing left
+    over). A single period that starts and ends between the tips (0 -> +E -> -E -> 0) is
+    joined end to start.
 
-    *Centring.* Only integrated current is centred (its mean over the analysed cycle is
-    subtracted, since the integration constant is unknown); E/P and V/Q data are used as
-    given; Pr and Ec as defined above do not depend on a P offset.
+    *Centring.* A charge integrator (or the integral of a current) starts at zero whatever
+    the polarization state, so only differences of P are measured. For every input form
+    P is centred on the midpoint of the analysed cycle's smoothed extremes (the tips of a
+    symmetric drive sit at +/-Pmax, with or without imprint) and the constant removed is
+    reported as ``p_offset_uC_cm2``. Pr = (P_desc(0) - P_asc(0))/2 does not change; Ec+,
+    Ec- and the imprint do, and would be false without it.
+
+    *Noise.* Values read at a point (P at E = 0, E at P = 0, P at 0.9 Emax, the tips) come
+    from P smoothed along the cycle with a quadratic Savitzky-Golay filter over 2 % of
+    the cycle's samples (a window scaled to the point density); slopes come from
+    straight-line fits to the raw samples, with standard errors from their residuals.
 
     *Crossings.* Zero crossings are interpolated linearly between the bracketing samples
-    of a branch; if noise makes several, their median is used.
+    of a smoothed branch; if noise still makes several, their median is used.
 
     *Shape tests* (thresholds are ours, stated as fractions of the loop's own scales):
     (1) a least-squares fit of P = a x + b s sqrt(1 - x^2) + c, x = (E - E_mid)/Emax, s = +1
@@ -351,6 +409,7 @@ def analyse_loop(
     doi:10.1088/0953-8984/20/02/021001.
     S. L. Miller et al., J. Appl. Phys. 68, 6463 (1990), doi:10.1063/1.346845 (the tanh loop the
     tests use; memory).
+    A. Savitzky and M. J. E. Golay, Anal. Chem. 36, 1627 (1964), doi:10.1021/ac60214a047.
     """
     if len(frame) < MIN_POINTS_PER_CYCLE:
         raise AnalysisError(
@@ -371,13 +430,18 @@ def analyse_loop(
             "per cycle are needed (sample faster or drive slower)"
         )
     e = e_all[cyc.index]
-    p = p_all[cyc.index]
-    if source == "V/I/t":
-        p = p - p.mean()
+    p_raw = p_all[cyc.index]
+    # Centre P on the midpoint of the cycle's smoothed extremes, for every input form: a
+    # charge integrator starts at zero whatever the polarization state, so only
+    # differences of P are measured (see Notes).
+    smooth_raw = _smooth_closed(p_raw)
+    p_offset = (float(smooth_raw.max()) + float(smooth_raw.min())) / 2.0
+    p = p_raw - p_offset
+    smooth = smooth_raw - p_offset
     if cyc.wrapped:
         flags.append(Flag("wrapped_cycle", "The record holds one period between the tips; its end and start "
                           "were joined into one cycle (valid only if the first quarter is not a virgin curve)."))
-    if cyc.trailing > 0.1 * cyc.index.size:
+    if cyc.trailing > 0.1 * cyc.index.size and not cyc.whole_periods:
         flags.append(Flag("last_cycle_incomplete", f"The record ends with an incomplete cycle ({cyc.trailing} "
                           "points) that was not analysed; the last complete cycle was used."))
 
@@ -393,6 +457,7 @@ def analyse_loop(
     s_asc, s_desc = (seg_a, seg_b) if first_up else (seg_b, seg_a)
     e_up, p_up = e[s_asc], p[s_asc]
     e_dn, p_dn = e[s_desc], p[s_desc]
+    ps_up, ps_dn = smooth[s_asc], smooth[s_desc]  # smoothed branches, for values read at a point
 
     def _zero(a, b, what, branch):
         xs = _crossings(a, b)
@@ -411,19 +476,17 @@ def analyse_loop(
                               "the median crossing was used."))
         return float(np.median(xs))
 
-    pr_pos = _zero(e_dn, p_dn, "E", "descending")
-    pr_neg = _zero(e_up, p_up, "E", "ascending")
-    ec_pos = _zero(p_up, e_up, "P", "ascending")
-    ec_neg = _zero(p_dn, e_dn, "P", "descending")
+    pr_pos = _zero(e_dn, ps_dn, "E", "descending")
+    pr_neg = _zero(e_up, ps_up, "E", "ascending")
+    ec_pos = _zero(ps_up, e_up, "P", "ascending")
+    ec_neg = _zero(ps_dn, e_dn, "P", "descending")
     pr = (pr_pos - pr_neg) / 2.0
     ec = (ec_pos - ec_neg) / 2.0
     imprint = (ec_pos + ec_neg) / 2.0
 
     e_mid = (e.max() + e.min()) / 2.0
     emax = (e.max() - e.min()) / 2.0
-    # Noise biases max - min upwards (by ~3 sigma); a running mean over 1 % of the cycle
-    # limits that and moves a smooth tip by < 2e-4 of Pmax.
-    smooth = _running_mean_closed(p, e.size // 200)
+    # Noise biases max - min upwards (by ~3 sigma); the smoothed cycle limits that.
     pmax = (smooth.max() - smooth.min()) / 2.0
     amplitude = (np.percentile(p, 95) - np.percentile(p, 5)) / 2.0  # robust scale for the noise test
     if pmax <= 0:
@@ -483,7 +546,7 @@ def analyse_loop(
     gaps = []
     for sign in (1.0, -1.0):
         level = e_mid + sign * 0.9 * emax
-        a, b = _p_at(e_up, p_up, level), _p_at(e_dn, p_dn, level)
+        a, b = _p_at(e_up, ps_up, level), _p_at(e_dn, ps_dn, level)
         gaps.append(None if a is None or b is None else abs(b - a))
     tip_gap = None if None in gaps or abs(pr) <= 1e-6 * pmax else max(gaps) / (2.0 * abs(pr))
 
@@ -543,6 +606,7 @@ def analyse_loop(
     if is_open:
         flags.append(Flag("open_loop", f"The loop does not close: P at the end differs from the start by "
                           f"{open_gap:.0%} of 2 Pmax (drift, leakage or a changing sample)."))
+    switching = False  # a remanent loop that is not the ellipse of a linear response
     if noise > NOISY * amplitude:
         flags.append(Flag("noisy", f"Noise ({noise:.3g} uC/cm²) is {noise / amplitude:.0%} of the loop's "
                           "half-height: the loop shape cannot be judged."))
@@ -576,6 +640,7 @@ def analyse_loop(
             else:
                 verdict = "paraelectric"
         else:
+            switching = True
             if not saturated or (not merged and not rounded):
                 flags.append(Flag("no_saturation", "The loop is not saturated (the branches are still steep at the "
                                   "highest field or do not merge at the tips): Pr and Ec are those of a minor loop; "
@@ -590,6 +655,9 @@ def analyse_loop(
     if abs(imprint) > 0.05 * abs(ec) and verdict == "ferroelectric":
         flags.append(Flag("imprint", f"The loop is shifted along E by {imprint:.3g} kV/cm (imprint)."))
 
+    # Ps (and Pr/Ps) exist only for a switching loop that saturates: extrapolating the top
+    # of an ellipse, a minor loop or a paraelectric S-curve gives a number with no meaning.
+    ps_defined = bool(switching and saturated and merged and not rounded and ps is not None and ps > 0)
     return LoopResult(
         pr_pos_uC_cm2=pr_pos,
         pr_neg_uC_cm2=pr_neg,
@@ -599,10 +667,12 @@ def analyse_loop(
         ec_kV_cm=ec,
         pmax_uC_cm2=pmax,
         emax_kV_cm=emax,
-        ps_uC_cm2=ps,
+        ps_uC_cm2=ps if ps_defined else None,
         imprint_kV_cm=imprint,
         loss_mJ_cm3=loss,
-        squareness=(pr / ps) if ps else None,
+        squareness=(pr / ps) if ps_defined else None,
+        p_offset_uC_cm2=p_offset,
+        apparent=() if verdict == "ferroelectric" else APPARENT_KEYS,
         cycles_found=cyc.cycles_found,
         cycle_used=cyc.cycles_found,
         points=int(e.size),

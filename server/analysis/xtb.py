@@ -44,7 +44,7 @@ METHOD = (
     "structure; barrier = E(planar) - E(bowl) (Bannwarth, Ehlert and Grimme, "
     "J. Chem. Theory Comput. 15, 1652 (2019), doi:10.1021/acs.jctc.8b01176)."
 )
-VERSION = "xtb/1.0"
+VERSION = "xtb/1.1"  # 1.1: bowl depth for any hub ring size
 
 #: 1 Hartree in kcal/mol, from CODATA (scipy.constants): E_h N_A / (4184 J/kcal).
 HARTREE_KCAL_MOL: float = sc.physical_constants["Hartree energy"][0] * sc.N_A / (1000.0 * sc.calorie)

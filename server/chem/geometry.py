@@ -4,9 +4,10 @@ Definitions (one place, so computed and crystal bowl depths are the same quantit
 
 * **core ring system**: the largest set of fused rings in the molecule (rings sharing
   at least one atom), the bridges' five-membered rings included.
-* **hub**: the six-membered ring of the core whose atoms sit in the most rings
-  (in a C3-symmetric bowl of three benzo rings and three bridges around a central
-  benzene, each hub atom is in three rings).
+* **hub**: the ring of the core, of any size, whose atoms sit in the most rings on
+  average (in a C3-symmetric bowl of three benzo rings and three bridges around a central
+  benzene, each hub atom is in three rings; in a corannulene-type bowl the central
+  five-membered ring is the hub, each of its atoms in three rings).
 * **rim**: core atoms that are not hub atoms, lie on one six-membered ring only, and carry
   a hydrogen or a bond to an atom outside the core ring system (the peripheral positions
   where side chains sit; bridge atoms in the five-membered rings are not rim atoms).
@@ -48,16 +49,20 @@ def fused_ring_systems(mol: Chem.Mol) -> list[set[int]]:
 
 
 def core_atoms(mol: Chem.Mol) -> CoreAtoms | None:
-    """Find core, hub and rim atoms; ``None`` when the molecule has no six-membered ring."""
+    """Find core, hub and rim atoms; ``None`` when the molecule has no six-membered ring.
+
+    The hub may have any ring size: the ring with the highest mean ring membership of its
+    atoms (ties: the larger ring, then the lowest atom index).
+    """
     systems = fused_ring_systems(mol)
     if not systems:
         return None
     core = systems[0]
     ring_info = mol.GetRingInfo()
-    six = [r for r in ring_info.AtomRings() if len(r) == 6 and set(r) <= core]
-    if not six:
+    rings = [r for r in ring_info.AtomRings() if set(r) <= core]
+    if not any(len(r) == 6 for r in rings):
         return None
-    hub = max(six, key=lambda r: (sum(ring_info.NumAtomRings(i) for i in r), -min(r)))
+    hub = max(rings, key=lambda r: (sum(ring_info.NumAtomRings(i) for i in r) / len(r), len(r), -min(r)))
     rim = []
     for idx in sorted(core - set(hub)):
         # Peripheral positions sit on the outer six-membered rings only; bridge atoms (CH2, S, Se

@@ -45,11 +45,16 @@ _SPECS: tuple[_Spec, ...] = (
         temperature=True,
     ),
     _Spec("frequency", "frequency_Hz", "Hz", "1 kHz", ("frequency", "freq")),
+    # NMR: the spectrometer's frequency for the observed nucleus (dnu in Hz scales with it)
+    _Spec("spectrometer", "spectrometer_MHz", "MHz", "400 MHz",
+          ("spectrometer", "spectrometer frequency", "observe frequency")),
 )
 _TEXT_FIELDS: dict[str, tuple[str, ...]] = {
     "instrument": ("instrument",),
     "operator": ("operator",),
     "notes": ("notes", "note", "comment", "comments"),
+    "nucleus": ("nucleus", "observed nucleus"),
+    "solvent": ("solvent",),
 }
 _ENDO_ALIASES = ("endo", "endo direction", "endotherm")
 
@@ -81,10 +86,13 @@ class Conditions:
     rate_K_min: float | None = None
     temperature_K: float | None = None
     frequency_Hz: float | None = None
+    spectrometer_MHz: float | None = None
     endo: str = "up"
     instrument: str | None = None
     operator: str | None = None
     notes: str | None = None
+    nucleus: str | None = None
+    solvent: str | None = None
     extra: dict[str, str] = field(default_factory=dict)
     sources: dict[str, str] = field(default_factory=dict)
 
@@ -102,6 +110,8 @@ class Conditions:
             instrument=self.instrument,
             operator=self.operator,
             notes=self.notes,
+            nucleus=self.nucleus,
+            solvent=self.solvent,
             extra=dict(self.extra),
             sources=dict(self.sources),
         )

@@ -62,6 +62,10 @@ class BarrierEstimate(SQLModel, table=True):
     archived: bool = False
     created_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
     created_by: str = Field(default="", max_length=120)
+    # NMR conditions (dnu in Hz depends on the field; the barrier on the solvent)
+    spectrometer_MHz: Optional[float] = None
+    nucleus: str = Field(default="", max_length=10)
+    solvent: str = Field(default="", max_length=80)
 
 
 class CrystalPhase(SQLModel, table=True):

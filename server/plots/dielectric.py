@@ -1,4 +1,4 @@
-"""Figures for dielectric spectroscopy: eps' (and eps'') against T per frequency, 1/eps' with Curie-Weiss."""
+"""Figures for permittivity against temperature: eps' and tan delta per frequency, 1/eps' with Curie-Weiss."""
 
 from __future__ import annotations
 
@@ -11,7 +11,7 @@ from server.plots import PALETTE, SERIES, base_layout
 
 X_T = "T (K)"
 Y_EPS = "ε' (relative permittivity, 1)"
-Y_EPS_I = "ε'' (loss, 1)"
+Y_TAN = "tan δ = ε''/ε' (1)"
 Y_INV = "1/ε' (1)"
 
 
@@ -26,7 +26,8 @@ def frequency_label(f_Hz: float | None) -> str:
 
 
 def permittivity_figure(result: DielectricResult, *, title: str | None = None) -> go.Figure:
-    """eps' against T per frequency with peak markers, eps'' if measured, and 1/eps' with the Curie-Weiss fit.
+    """eps' against T per frequency with peak markers, tan delta(T) if the loss was measured (log axis),
+    and 1/eps' with the Curie-Weiss fit (at ``cw_frequency_Hz``).
 
     Parameters
     ----------
@@ -68,9 +69,9 @@ def permittivity_figure(result: DielectricResult, *, title: str | None = None) -
         if has_loss and c["eps_i"] is not None:
             fig.add_trace(
                 go.Scatter(
-                    x=c["t_K"], y=c["eps_i"], mode="lines", name=f"ε'' {label}", legendgroup=label,
-                    showlegend=False, line=dict(color=colour, dash="dot"),
-                    hovertemplate=f"{label}<br>T = %{{x:.2f}} K<br>ε'' = %{{y:.4g}}<extra></extra>",
+                    x=c["t_K"], y=np.asarray(c["eps_i"]) / np.asarray(c["eps_r"]), mode="lines",
+                    name=f"tan δ {label}", legendgroup=label, showlegend=False, line=dict(color=colour, dash="dot"),
+                    hovertemplate=f"{label}<br>T = %{{x:.2f}} K<br>tan δ = %{{y:.3g}}<extra></extra>",
                 ),
                 row=2, col=1,
             )
@@ -87,6 +88,7 @@ def permittivity_figure(result: DielectricResult, *, title: str | None = None) -
         name = (
             f"Curie-Weiss: C = {result.curie_constant_K:.3g} K, T0 = {result.t0_K:.1f} K, "
             f"ε∞ = {result.eps_inf:.3g}"
+            + (f" ({frequency_label(result.cw_frequency_Hz)})" if result.cw_frequency_Hz else "")
         )
         fig.add_trace(
             go.Scatter(x=cw["t_K"], y=1.0 / cw["eps_r"], mode="lines", name=name, legendgroup="cw",
@@ -122,7 +124,7 @@ def permittivity_figure(result: DielectricResult, *, title: str | None = None) -
     fig.update_xaxes(title_text=X_T, row=rows, col=1)
     fig.update_yaxes(title_text=Y_EPS, row=1, col=1)
     if has_loss:
-        fig.update_yaxes(title_text=Y_EPS_I, row=2, col=1)
+        fig.update_yaxes(title_text=Y_TAN, type="log", row=2, col=1)
     fig.update_yaxes(title_text=Y_INV, row=inv_row, col=1)
     if title:  # room for the title above the legend row(s)
         fig.update_layout(margin=dict(t=100), title=dict(y=0.99, yanchor="top"))

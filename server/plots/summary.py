@@ -23,7 +23,8 @@ def switching_vs_temperature(rows: Iterable[Mapping[str, Any]]) -> Optional[go.F
     if len(loops) < 2:
         return None
     t = [r["temperature_K"] for r in loops]
-    labels = [f"#{r['id']} {r.get('verdict') or ''}".strip() for r in loops]
+    labels = [(f"#{r['id']} {r.get('verdict') or ''}".strip()
+               + (" (apparent Pr, Ec)" if r["results"].get("apparent") else "")) for r in loops]
     fig = make_subplots(specs=[[{"secondary_y": True}]])
     fig.add_trace(go.Scatter(x=t, y=[r["results"]["pr_uC_cm2"] for r in loops], mode="lines+markers", name="Pr",
                              text=labels, line=dict(color=PALETTE["blue"]),

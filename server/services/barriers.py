@@ -18,18 +18,32 @@ from . import audit, stats
 from .stats import MEASURED_METHODS
 from .errors import NotFound
 
+# Barriers that are electronic energies (GFN2-xTB, imported calculations), not free energies.
+ELECTRONIC_METHODS = ("gfn2-xtb", "imported")
 
 
-class CoalescenceIn(BaseModel):
+class NmrConditionsIn(BaseModel):
+    """Where a dynamic-NMR barrier was measured: dnu in Hz scales with the field, and the
+    barrier can depend on the solvent."""
+
+    spectrometer_MHz: Optional[float] = Field(default=None, gt=0, lt=5000,
+                                              description="spectrometer frequency for the observed nucleus, MHz")
+    nucleus: str = Field(default="", max_length=10, description="observed nucleus, e.g. 1H, 13C, 19F")
+    solvent: str = Field(default="", max_length=80, description="solvent, e.g. CD2Cl2")
+
+
+class CoalescenceIn(NmrConditionsIn):
     method: Literal["coalescence"]
     tc_K: float = Field(description="coalescence temperature, K")
     dnu_Hz: float = Field(description="peak separation in the slow-exchange limit, Hz")
+    j_Hz: Optional[float] = Field(default=None, description="coupling of an exchanging AB pair, Hz (e.g. 2J of CH2)")
     tc_err_K: Optional[float] = None
     dnu_err_Hz: Optional[float] = None
+    j_err_Hz: Optional[float] = None
     notes: str = ""
 
 
-class EyringIn(BaseModel):
+class EyringIn(NmrConditionsIn):
     method: Literal["eyring"]
     points: list[tuple[float, float]] = Field(description="[[T (K), k (1/s)], ...], at least three")
     notes: str = ""
@@ -48,10 +62,11 @@ BarrierIn = Union[CoalescenceIn, EyringIn, ImportedIn]
 def add_barrier(*, session: Session, compound: Compound, data: BarrierIn, actor: str) -> BarrierEstimate:
     """Compute and store a barrier from a coalescence point, rate points or an outside value."""
     if isinstance(data, CoalescenceIn):
-        r = kinetics.coalescence(data.tc_K, data.dnu_Hz, tc_err_K=data.tc_err_K, dnu_err_Hz=data.dnu_err_Hz)
+        r = kinetics.coalescence(data.tc_K, data.dnu_Hz, tc_err_K=data.tc_err_K, dnu_err_Hz=data.dnu_err_Hz,
+                                 j_Hz=data.j_Hz, j_err_Hz=data.j_err_Hz)
         row = BarrierEstimate(compound_id=compound.id, method="coalescence", dg_kcal_mol=r.dg_kcal_mol,
                               dg_err_kcal_mol=r.dg_err_kcal_mol, t_K=r.tc_K, results=jsonable(r.to_dict()),
-                              model="Gutowsky-Holm coalescence", analysis_version=kinetics.VERSION)
+                              model=r.model, analysis_version=kinetics.VERSION)
     elif isinstance(data, EyringIn):
         if len(data.points) < 3:
             raise InputError("an Eyring fit needs at least three (T, k) points", field="points")
@@ -63,6 +78,8 @@ def add_barrier(*, session: Session, compound: Compound, data: BarrierIn, actor:
         row = BarrierEstimate(compound_id=compound.id, method="imported", dg_kcal_mol=r.dg_kcal_mol,
                               results=jsonable(r.to_dict()), model=data.level_of_theory,
                               analysis_version=kinetics.VERSION)
+    if isinstance(data, NmrConditionsIn):
+        row.spectrometer_MHz, row.nucleus, row.solvent = data.spectrometer_MHz, data.nucleus.strip(), data.solvent.strip()
     row.notes = data.notes
     row.created_by = actor
     session.add(row)
@@ -101,6 +118,8 @@ def sync_rate_table_barrier(session: Session, *, compound: Compound, measurement
         row = BarrierEstimate(compound_id=compound.id, method="eyring", measurement_id=measurement.id,
                               created_by=actor)
     _set_eyring(row, dict(measurement.results), measurement.analysis_version)
+    c = measurement.conditions or {}
+    row.spectrometer_MHz, row.nucleus, row.solvent = c.get("spectrometer_MHz"), c.get("nucleus") or "", c.get("solvent") or ""
     row.archived = measurement.archived
     session.add(row)
 
@@ -125,10 +144,15 @@ def barrier_read(session: Session, row: BarrierEstimate) -> dict[str, Any]:
         "compound": compound.code,
         "method": row.method,
         "measured": row.method in MEASURED_METHODS,
+        # a computed barrier is an electronic energy difference dE++, a measured one a free energy dG++
+        "energy": "electronic" if row.method in ELECTRONIC_METHODS else "free",
         "dg_kcal_mol": row.dg_kcal_mol,
         "dg_err_kcal_mol": row.dg_err_kcal_mol,
         "t_K": row.t_K,
         "model": row.model,
+        "spectrometer_MHz": row.spectrometer_MHz,
+        "nucleus": row.nucleus,
+        "solvent": row.solvent,
         "results": row.results,
         "measurement": row.measurement_id,
         "job": row.job_id,
@@ -143,7 +167,17 @@ def rates(row: BarrierEstimate, *, t_K: float, frequency_Hz: Optional[float]) ->
     """Inversion rate and half-life at t_K, and whether inversion keeps up with a field of frequency_Hz."""
     if row.dg_kcal_mol is None:
         raise InputError("this barrier has no value", field="barrier")
-    return jsonable(kinetics.rate_summary(row.dg_kcal_mol, t_K, frequency_Hz).to_dict())
+    res = row.results or {}
+    dh, ds = res.get("dh_kcal_mol"), res.get("ds_cal_molK")
+    summary = kinetics.rate_summary(row.dg_kcal_mol, t_K, frequency_Hz,
+                                    dh_kcal_mol=dh if ds is not None else None,
+                                    ds_cal_molK=ds if dh is not None else None)
+    out = jsonable(summary.to_dict())
+    if row.method in ELECTRONIC_METHODS:
+        out["flags"].append({"code": "electronic_energy", "message": (
+            "This barrier is an electronic energy difference (dE++, no zero-point, thermal or entropy terms); "
+            "the rate treats it as dG++, a rough estimate only.")})
+    return out
 
 
 def _latest(rows: list[BarrierEstimate], methods: tuple[str, ...]) -> Optional[BarrierEstimate]:
@@ -192,8 +226,7 @@ def barrier_rows(session: Session, compound: Compound, *, t_K: float,
     rows = []
     for b in list_barriers(session, compound):
         row = barrier_read(session, b)
-        row["rate"] = (kinetics.rate_summary(b.dg_kcal_mol, t_K, frequency_Hz).to_dict()
-                       if b.dg_kcal_mol is not None else None)
+        row["rate"] = rates(b, t_K=t_K, frequency_Hz=frequency_Hz) if b.dg_kcal_mol is not None else None
         rows.append(row)
     return rows
 

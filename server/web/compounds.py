@@ -213,6 +213,18 @@ def rates_partial(code: str, request: Request, session: SessionDep, actor: PageA
                    "t": t, "f": f, "t_K": t_K, "f_Hz": f_Hz, "rate_error": error}, actor=actor)
 
 
+def _optional_quantity(form, name: str, unit: str, example: str, *, positive: bool = True) -> Optional[float]:  # noqa: ANN001
+    text = str(form.get(name, "") or "").strip()
+    return parse_quantity(text, field=name, unit=unit, example=example, positive=positive) if text else None
+
+
+def _short_text(form, name: str, limit: int) -> str:  # noqa: ANN001 - form data
+    text = str(form.get(name, "") or "").strip()
+    if len(text) > limit:
+        raise InputError(f"'{name}' is at most {limit} characters", field=name)
+    return text
+
+
 @router.post("/compounds/{code}/barriers", response_class=HTMLResponse)
 async def add_barrier(code: str, request: Request, session: SessionDep, actor: PageWriter):
     compound = registry.get_compound(session, code)
@@ -225,6 +237,9 @@ async def add_barrier(code: str, request: Request, session: SessionDep, actor: P
                 tc_K=parse_quantity(str(form.get("tc", "")), field="tc", unit="K", example="253 K or -20 degC",
                                     temperature=True),
                 dnu_Hz=parse_quantity(str(form.get("dnu", "")), field="dnu", unit="Hz", example="85 Hz"),
+                j_Hz=_optional_quantity(form, "j", "Hz", "16 Hz", positive=False),
+                spectrometer_MHz=_optional_quantity(form, "spectrometer", "MHz", "400 MHz"),
+                nucleus=_short_text(form, "nucleus", 10), solvent=_short_text(form, "solvent", 80),
                 notes=str(form.get("notes", "")))
         elif method == "imported":
             try:

@@ -77,12 +77,13 @@ def number(value: Any, digits: int = 4) -> str:
 def scalar_items(results: dict[str, Any], kind: str | None = None) -> list[tuple[str, str, Any, int]]:
     """(label, unit, value, significant digits) for the scalar results, in the analysis's own order."""
     out = []
+    apparent = set(results.get("apparent") or ())
     for key, value in results.items():
         if isinstance(value, (int, float, str, bool)):
             if key in ("verdict", "source"):
                 continue
             label, unit = split_key(key, kind)
-            out.append((label, unit, value, digits_of(key, kind)))
+            out.append((f"apparent {label}" if key in apparent else label, unit, value, digits_of(key, kind)))
     return out
 
 
@@ -92,12 +93,14 @@ def summary(kind: str, results: dict[str, Any]) -> str:
 
     if kind not in KINDS:
         return ""
+    apparent = set(results.get("apparent") or ())
     parts = []
     for rk, value in KINDS[kind].summary_items(results):
+        label = f"apparent {rk.label}" if rk.key in apparent else rk.label
         if isinstance(value, list):
-            parts.append(f"{len(value)} {rk.label}")
+            parts.append(f"{len(value)} {label}")
         elif isinstance(value, (int, float)) and not isinstance(value, bool):
-            parts.append(f"{rk.label} {number(value, rk.digits)}" + (f" {rk.unit}" if rk.unit else ""))
+            parts.append(f"{label} {number(value, rk.digits)}" + (f" {rk.unit}" if rk.unit else ""))
         else:
             parts.append(str(value))
     return ", ".join(parts)

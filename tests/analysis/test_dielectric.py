@@ -18,6 +18,7 @@ from server.analysis.dielectric import (
     METHOD,
     VERSION,
     analyse_dielectric,
+    vogel_fulcher_fit,
     permittivity_from_capacitance,
     transition_hint,
 )
@@ -295,3 +296,72 @@ def test_repeated_temperatures_are_averaged():
     assert "repeated_temperatures" in {f.code for f in res.flags}
     np.testing.assert_allclose(res.curves["frequencies"][0]["eps_r"], eps, rtol=1e-12)
     assert res.curie_constant_K == pytest.approx(3300.0, rel=0.02)
+
+
+# ---------------------------------------------------------------- loss and relaxors (issue 16)
+
+
+def test_tan_delta_at_the_peak_and_curie_weiss_at_the_least_lossy_frequency():
+    # Curie-Weiss above Tc (Lines and Glass 1977): C 3300 K (KH2PO4-like, memory), T0 = Tc 320 K,
+    # eps_inf 6, loss tangent 0.01 (the generator's constant), 1 % noise on both. At 100 Hz a
+    # conduction-like loss rises with T (tan delta up to ~1) and adds space-charge eps' of the same
+    # size (Maxwell-Wagner; a model written here), which bends the 100 Hz curve; 10 kHz is clean.
+    rng = np.random.default_rng(5)
+    frame = canonical(curie_weiss_scan(3.3e3, 320.0, 320.0, 6.0, t_min_K=280.0, t_max_K=420.0, step_K=1.0,
+                                       frequencies_Hz=[1e2, 1e4], noise_rel=0.01, rng=rng, as_capacitance=False))
+    low = frame["f_Hz"] == 1e2
+    extra = 40.0 * np.exp(-4000.0 * (1 / frame["T_K"] - 1 / 420.0))  # space charge, activated
+    frame.loc[low, "eps_i"] = frame.loc[low, "eps_i"] + extra[low]
+    frame.loc[low, "eps_r"] = frame.loc[low, "eps_r"] + extra[low]
+    res = analyse_dielectric(frame)
+    assert res.cw_frequency_Hz == 1e4
+    assert "curie_weiss_frequency" in {f.code for f in res.flags}
+    assert res.curie_constant_K == pytest.approx(3300.0, rel=0.05)
+    assert res.t0_K == pytest.approx(320.0, abs=1.5)
+    peak_10k = [p for p in res.peaks if p.f_Hz == 1e4][0]
+    assert peak_10k.tan_delta_peak == pytest.approx(0.01, rel=0.05)  # the model's loss tangent
+    d = res.to_dict()
+    assert d["peaks"][1]["tan_delta_peak"] == pytest.approx(0.01, rel=0.05)
+    assert d["tan_delta_peak"] is not None  # at the lowest frequency, beside t_peak_K
+
+
+def test_vogel_fulcher_fit_of_a_moving_maximum():
+    # Vogel-Fulcher (Cross, Ferroelectrics 76, 241 (1987)): f = f0 exp[-Ea/(kB (Tm - T_VF))].
+    # Known answer: Ea/kB = 600 K (4.989 kJ/mol = 600 R / 1000, computed), T_VF 250 K, f0 1e12 Hz.
+    # Each frequency gets a Lorentzian-shaped maximum at its Tm, sampled every 0.25 K, 0.01 % noise
+    # (the three-point peak refinement turns more noise into scatter of Tm, to which VF is sensitive).
+    ea_K, t_vf, f0 = 600.0, 250.0, 1e12
+    freqs = [1e2, 1e3, 1e4, 1e5, 1e6]
+    t = np.arange(240.0, 340.0, 0.25)
+    rng = np.random.default_rng(8)
+    rows = []
+    for f in freqs:
+        tm = t_vf + ea_K / np.log(f0 / f)
+        eps = 5.0 + 1000.0 / (1.0 + ((t - tm) / 12.0) ** 2)
+        eps = eps * (1 + 1e-4 * rng.standard_normal(t.size))
+        rows.append(pd.DataFrame({"T_K": t, "f_Hz": f, "eps_r": eps, "eps_i": 0.05 * eps}))
+    res = analyse_dielectric(pd.concat(rows, ignore_index=True))
+    assert "frequency_dispersion" in {fl.code for fl in res.flags}
+    assert res.vf_ea_kJ_mol == pytest.approx(600 * 8.314462618 / 1000, rel=0.15)
+    assert res.vf_t_K == pytest.approx(250.0, abs=5.0)
+    assert np.log10(res.vf_f0_Hz) == pytest.approx(12.0, abs=1.0)
+    assert res.vf_ea_err_kJ_mol > 0 and res.vf_t_err_K > 0 and res.vf_log10_f0_err > 0
+    # noise-free peaks recover the inputs closely
+    exact = vogel_fulcher_fit(freqs, [t_vf + ea_K / np.log(f0 / f) for f in freqs])
+    assert exact["vf_ea_kJ_mol"] == pytest.approx(600 * 8.314462618 / 1000, rel=1e-4)
+    assert exact["vf_t_K"] == pytest.approx(250.0, abs=0.01)
+
+
+def test_meaningless_curie_weiss_numbers_are_withheld():
+    # Issue 16: no Curie-Weiss numbers that mean nothing. Above a peak at 320 K, (a) eps' = -5 +
+    # 3000/(T - 290) (a background below zero cannot be: eps_inf >= 1 for any material) and
+    # (b) an exponential fall (no 1/(T - T0) form at all) both fit with eps_inf < 0: neither C, T0
+    # nor eps_inf is reported, and the flag says why.
+    t = np.arange(280.0, 400.0, 1.0)
+    for above in (-5 + 3000 / (t - 290), 60 * np.exp(-(t - 320) / 60) + 20):
+        top = float(above[t == 320][0])
+        eps = np.where(t < 320, np.minimum(50 + 2.0 * (t - 280), 0.999 * top), above)
+        res = analyse_dielectric(frame_from_eps(t, eps, 1e3))
+        assert res.curie_constant_K is None and res.t0_K is None and res.eps_inf is None
+        assert "curie_weiss_withheld" in {f.code for f in res.flags}
+        assert res.to_dict()["curie_constant_K"] is None

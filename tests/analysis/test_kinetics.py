@@ -388,6 +388,35 @@ def test_cyclohexane_like_inversion_rate():
     assert summ.keeps_up is None and summ.frequency_Hz is None
 
 
+def test_rate_at_temperature_uses_dh_and_ds():
+    # Eyring (J. Chem. Phys. 3, 107 (1935)): k = (kB T/h) exp(dS/R) exp(-dH/RT). dH 80 kJ/mol,
+    # dS -10 J/(mol K) -> k 0.022113 / 0.17508 / 1.0907 / 5.5632 1/s at 300/320/340/360 K
+    # (computed from the formula with CODATA 2018 constants, kept in the team's check values).
+    dh, ds = 80 / 4.184, -10 / 4.184  # kcal/mol, cal/(mol K)
+    for t, k in ((300, 0.022113), (320, 0.17508), (340, 1.0907), (360, 5.5632)):
+        summ = kin.rate_summary(None, t, dh_kcal_mol=dh, ds_cal_molK=ds)
+        assert summ.k_s == pytest.approx(k, rel=1e-4)
+        assert summ.ds_assumed_zero is False and not summ.flags
+        assert summ.dg_kcal_mol == pytest.approx(dh - t * ds / 1000, rel=1e-12)  # dG(T) = dH - T dS
+    # Issue 16, defect 5: dS = -3.4 cal/(mol K); using dG(298.15 K) at every T is 28 % low at
+    # 250 K and 54 % high at 400 K: factor exp[-dS (T - 298.15)/(R T)] (derived by hand).
+    dh, ds = 15.0, -3.4
+    dg298 = dh - 298.15 * ds / 1000
+    for t, factor in ((250.0, 0.72), (400.0, 1.54)):
+        right = kin.rate_summary(dg298, t, dh_kcal_mol=dh, ds_cal_molK=ds).k_s
+        flat = kin.rate_summary(dg298, t)
+        assert flat.k_s / right == pytest.approx(factor, abs=0.01)
+        assert flat.ds_assumed_zero is True
+        assert "ds_assumed_zero" in {f.code for f in flat.flags}
+        assert flat.to_dict()["ds_assumed_zero"] is True
+    # at 298.15 K both agree
+    assert kin.rate_summary(dg298, 298.15).k_s == pytest.approx(
+        kin.rate_summary(None, 298.15, dh_kcal_mol=dh, ds_cal_molK=ds).k_s, rel=1e-12)
+    with pytest.raises(AnalysisError) as err:
+        kin.rate_summary(None, 300.0)
+    assert err.value.field == "dg"
+
+
 def test_keeps_up_criterion_k_at_least_twice_f():
     # criterion (common practice): one inversion per field half-period, k >= 2 f
     k = kin.rate_summary(15.0, 300.0).k_s
@@ -478,3 +507,27 @@ def test_rate_table_noise_is_reproducible_and_relative():
 def test_rate_table_error_paths(args, kwargs):
     with pytest.raises(AnalysisError):
         rate_table(*args, **kwargs)
+
+
+# ---------------------------------------------------------------- coupled coalescence (issue 16)
+
+
+def test_coupled_ab_coalescence_kurland_rubin_wise():
+    # Kurland, Rubin and Wise, J. Chem. Phys. 40, 2426 (1964): k_c = pi sqrt(dnu^2 + 6 J^2)/sqrt(2).
+    # dnu 40 Hz, J 16 Hz: sqrt(1600 + 1536) = 56 Hz exactly, so k_c = pi 56 / sqrt(2) = 124.4007 1/s
+    # (by hand), 1.4 times the Gutowsky-Holm value; dG = R Tc ln(kB Tc / (h k_c)).
+    r = kin.coalescence(298.15, 40.0, j_Hz=16.0)
+    assert r.k_s == pytest.approx(math.pi * 56 / math.sqrt(2), rel=1e-12)
+    assert r.k_s == pytest.approx(124.4007, rel=1e-6)
+    dg_hand = R * 298.15 * math.log(KB * 298.15 / (H * r.k_s)) / 1000
+    assert r.dg_kJ_mol == pytest.approx(dg_hand, rel=1e-12)
+    assert r.dg_kJ_mol < kin.coalescence(298.15, 40.0).dg_kJ_mol  # neglecting J overestimates dG
+    assert "Kurland" in r.model and r.to_dict()["j_Hz"] == 16.0
+    # J = 0 is Gutowsky-Holm (Tc 298.15 K, dnu 100 Hz -> k_c 222.144 1/s, dG 59.629 kJ/mol, computed)
+    z = kin.coalescence(298.15, 100.0, j_Hz=0.0)
+    assert z.k_s == pytest.approx(222.144, rel=1e-5) and z.dg_kJ_mol == pytest.approx(59.629, abs=1e-3)
+    # the J uncertainty adds to the error
+    assert kin.coalescence(298.15, 40.0, j_Hz=16.0, j_err_Hz=2.0).dg_err_kcal_mol > r.dg_err_kcal_mol
+    with pytest.raises(AnalysisError) as err:
+        kin.coalescence(298.15, 40.0, j_Hz=-16.0)
+    assert err.value.field == "j"

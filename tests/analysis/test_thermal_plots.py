@@ -39,7 +39,11 @@ def test_permittivity_figure_with_loss_panel():
     assert fig.layout.title.text == "RMX-0003 pellet"
     assert fig.layout.xaxis3.title.text == "T (K)"
     assert "(relative permittivity, 1)" in fig.layout.yaxis.title.text
-    assert "(loss, 1)" in fig.layout.yaxis2.title.text
+    # the loss panel is tan delta = eps''/eps' on a log axis (issue 16)
+    assert fig.layout.yaxis2.title.text.startswith("tan δ") and fig.layout.yaxis2.type == "log"
+    tan = next(t for t in fig.data if t.name == "tan δ 1 kHz")
+    c0 = res.curves["frequencies"][0]
+    np.testing.assert_allclose(tan.y, np.asarray(c0["eps_i"]) / np.asarray(c0["eps_r"]), rtol=1e-12)
     assert fig.layout.yaxis3.title.text == "1/ε' (1)"
     names = [t.name for t in fig.data]
     assert {"1 kHz", "10 kHz", "100 kHz"} <= set(names)

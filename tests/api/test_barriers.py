@@ -37,6 +37,11 @@ def test_eyring_points_recover_inputs(client, writer):
                        headers=writer).json()
     assert body["dh_kcal_mol"] == pytest.approx(80 / 4.184, rel=1e-3)
     assert body["ds_cal_molK"] == pytest.approx(-10 / 4.184, abs=0.01)
+    # the rate at another temperature comes from dH and dS, not dG(298 K) (Eyring 1935; issue 16)
+    rate = client.get(f"/api/v1/barriers/{body['id']}/rate?t_K=360", headers=writer).json()
+    assert rate["k_s"] == pytest.approx(5.5632, rel=2e-3)
+    assert rate["ds_assumed_zero"] is False
+    assert not {f["code"] for f in rate["flags"]} & {"ds_assumed_zero", "electronic_energy"}
 
 
 def test_imported_and_listing_and_rates(client, writer):
@@ -53,6 +58,10 @@ def test_imported_and_listing_and_rates(client, writer):
     assert rate["keeps_up"] is True
     slow = client.get(f"/api/v1/barriers/{bid}/rate?t_K=150&frequency_Hz=1000", headers=writer).json()
     assert slow["keeps_up"] is False
+    # an imported calculation has no dS: the answer says dS is taken as zero and that the
+    # barrier is an electronic energy used as if it were dG
+    assert slow["ds_assumed_zero"] is True
+    assert {"ds_assumed_zero", "electronic_energy"} <= {f["code"] for f in slow["flags"]}
 
 
 @pytest.mark.parametrize(
@@ -82,3 +91,33 @@ def test_rate_table_upload_adds_an_eyring_barrier(client, writer):
     items = client.get("/api/v1/compounds/RVZ-00001/barriers", headers=writer).json()["items"]
     assert [i["method"] for i in items] == ["eyring"] and items[0]["measurement"] == r.json()["id"]
     assert items[0]["results"]["dh_kcal_mol"] == pytest.approx(80 / 4.184, rel=0.05)
+
+
+def test_rate_table_carries_its_nmr_conditions(client, writer):
+    # "# spectrometer: 500 MHz", "# nucleus: 1H", "# solvent: toluene-d8" lines in the file land on the barrier.
+    client.post("/api/v1/compounds/RMN-00001/batches", json={}, headers=writer)
+    raw = to_csv_bytes(rate_table(80.0, -10.0, [300, 310, 320, 330], noise_rel=0.02),
+                       {"spectrometer": "500 MHz", "nucleus": "1H", "solvent": "toluene-d8"})
+    r = client.post("/api/v1/batches/RMN-00001-B01/measurements", data={"kind": "nmr_rates"},
+                    files={"file": ("rates.csv", raw)}, headers=writer)
+    assert r.status_code == 201, r.text
+    item = client.get("/api/v1/compounds/RMN-00001/barriers", headers=writer).json()["items"][0]
+    assert (item["spectrometer_MHz"], item["nucleus"], item["solvent"]) == (500, "1H", "toluene-d8")
+
+
+def test_coupled_coalescence_stores_nmr_conditions(client, writer):
+    # Bridge CH2 protons of a bowl: an AB pair, 2J 16 Hz. Kurland, Rubin and Wise, J. Chem. Phys.
+    # 40, 2426 (1964): k_c = pi sqrt(40^2 + 6 16^2)/sqrt(2) = pi 56/sqrt(2) = 124.40 1/s (by hand).
+    r = client.post("/api/v1/compounds/RMN-00001/barriers",
+                    json={"method": "coalescence", "tc_K": 260, "dnu_Hz": 40, "j_Hz": 16,
+                          "spectrometer_MHz": 400, "nucleus": "1H", "solvent": "CD2Cl2"}, headers=writer)
+    assert r.status_code == 201
+    body = r.json()
+    assert body["k_s"] == pytest.approx(124.40, rel=1e-4)
+    assert (body["spectrometer_MHz"], body["nucleus"], body["solvent"]) == (400, "1H", "CD2Cl2")
+    listed = client.get("/api/v1/compounds/RMN-00001/barriers", headers=writer).json()["items"][0]
+    assert listed["solvent"] == "CD2Cl2" and "Kurland" in listed["model"]
+    bad = client.post("/api/v1/compounds/RMN-00001/barriers",
+                      json={"method": "coalescence", "tc_K": 260, "dnu_Hz": 40, "spectrometer_MHz": -400},
+                      headers=writer)
+    assert bad.status_code == 422

@@ -53,3 +53,28 @@ def test_rim_of_a_substituted_bowl_is_where_the_chains_sit():
         if a.GetIsAromatic() and any(n.GetSymbol() == "O" for n in a.GetNeighbors())
     }
     assert set(found.rim) == oxygen_bearing
+
+
+def test_five_membered_hub_of_a_corannulene_bowl():
+    # Corannulene: a central five-membered ring fused to five benzene rings (issue 16, defect 7).
+    # Hub = the five atoms in three rings (counted here from RDKit ring membership); rim = the ten
+    # CH carbons. With the hub in the plane z = 0 and the rim at z = 0.87 A (a corannulene-like
+    # depth, memory: about 0.87 A in the crystal), the depth is 0.87 A by construction.
+    import numpy as np
+
+    from server.chem.geometry import bowl_depth_A
+
+    mol = Chem.MolFromSmiles("c1cc2ccc3ccc4ccc5ccc1c1c2c3c4c51")
+    ring_info = mol.GetRingInfo()
+    three = {a.GetIdx() for a in mol.GetAtoms() if ring_info.NumAtomRings(a.GetIdx()) == 3}
+    ch = {a.GetIdx() for a in mol.GetAtoms() if a.GetTotalNumHs() == 1}
+    found = core_atoms(mol)
+    assert set(found.hub) == three and len(found.hub) == 5
+    assert set(found.rim) == ch and len(found.rim) == 10
+    rng = np.random.default_rng(1)
+    coords = np.zeros((mol.GetNumAtoms(), 3))
+    coords[:, :2] = rng.uniform(-3, 3, (mol.GetNumAtoms(), 2))
+    coords[list(found.rim), 2] = 0.87
+    others = [i for i in range(mol.GetNumAtoms()) if i not in found.rim and i not in found.hub]
+    coords[others, 2] = 0.4
+    assert bowl_depth_A(coords, found) == pytest.approx(0.87, abs=1e-9)

@@ -64,8 +64,20 @@ def test_defaults() -> None:
     assert cond.endo == "up"
     assert cond.as_kwargs() == {
         "area_cm2": None, "thickness_um": None, "mass_mg": None, "rate_K_min": None,
-        "temperature_K": None, "frequency_Hz": None,
+        "temperature_K": None, "frequency_Hz": None, "spectrometer_MHz": None,
     }  # fmt: skip
+
+
+def test_nmr_conditions_from_file_lines() -> None:
+    # The spectrometer frequency converts like any quantity (1 GHz = 1000 MHz, SI prefixes);
+    # nucleus and solvent are text.
+    cond = parse_conditions({}, {"spectrometer": "0.4 GHz", "nucleus": "1H", "solvent": "CD2Cl2"})
+    assert cond.spectrometer_MHz == pytest.approx(400.0)
+    assert cond.nucleus == "1H" and cond.solvent == "CD2Cl2"
+    assert cond.to_dict()["solvent"] == "CD2Cl2"
+    with pytest.raises(IngestError) as err:
+        parse_conditions({}, {"spectrometer": "400 K"})
+    assert err.value.field == "spectrometer"
 
 
 def test_form_wins_and_aliases() -> None:
@@ -108,7 +120,7 @@ def test_from_parsed_file() -> None:
     cond = parse_conditions({"frequency": "1 kHz"}, read_table(raw).metadata)
     assert cond.as_kwargs() == pytest.approx(
         {"area_cm2": 0.00785, "thickness_um": 100.0, "mass_mg": None, "rate_K_min": None,
-         "temperature_K": None, "frequency_Hz": 1000.0}
+         "temperature_K": None, "frequency_Hz": 1000.0, "spectrometer_MHz": None}
     )  # fmt: skip
     assert cond.extra == {"cell": "C-2"}
 

@@ -71,3 +71,23 @@ def test_compound_page_summarises_loops_against_temperature(client, session):
     xs = fig["data"][0]["x"]
     assert xs == [280, 300, 320]
     assert fig["layout"]["xaxis"]["title"]["text"] == "T (K)"
+
+
+def test_ellipse_shows_apparent_pr_and_no_ps(client, session):
+    # A lossy linear dielectric draws an ellipse (Scott, J. Phys.: Condens. Matter 20, 021001
+    # (2008)): its Pr and Ec are apparent, and it has no Ps; the page says so (issue 16).
+    from server.synth.ferro import leaky_capacitor
+
+    csrf = login_as(client, session)
+    batch = _compound_with_batch(client, csrf)
+    frame = leaky_capacitor(10, 1, 100, frequency_Hz=1000).drop(columns=["t (s)"])
+    r = client.post(f"/batches/{batch}/upload", data={"kind": "pe_loop", "csrf_token": csrf},
+                    files={"file": ("ellipse.csv", to_csv_bytes(frame, {"temperature": "300 K"}))},
+                    follow_redirects=False)
+    assert r.status_code == 303
+    page = soup(client.get(r.headers["location"]).text)
+    rows = {tr.th.text: tr.find("td").text for tr in page.select("table.results tr")}
+    assert "apparent Pr" in rows and "apparent Ec" in rows and "Pr" not in rows
+    assert "Ps" not in rows and "squareness" not in rows  # undefined: not shown
+    listing = soup(client.get("/compounds/RMN-00001").text).select_one("#measurements tbody tr")
+    assert "apparent Pr" in listing.get_text(" ")

@@ -28,7 +28,7 @@ import numpy as np
 import plotly.graph_objects as go
 
 from ..ingest.columns import BY_NAME as QUANTITY_BY_NAME
-from ..ingest.conditions import CONDITION_FIELDS, Conditions
+from ..ingest.conditions import FORM_FIELDS, Conditions
 from ..ingest.table import read_table, to_csv_bytes
 
 
@@ -203,7 +203,7 @@ def check_kind(kind: Kind) -> list[str]:
         if q not in QUANTITY_BY_NAME:
             problems.append(f"column {q!r} is not a canonical quantity of server.ingest.columns")
     for f in kind.condition_fields:
-        if f not in CONDITION_FIELDS:
+        if f not in FORM_FIELDS:
             problems.append(f"condition {f!r} is not a field of server.ingest.conditions")
     if not kind.results:
         problems.append("no result keys with labels")

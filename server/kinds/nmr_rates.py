@@ -7,7 +7,7 @@ import numpy as np
 from ..analysis import kinetics
 from ..plots.kinetics import eyring_figure
 from ..synth.nmr import rate_table
-from .base import Example, Kind, ResultKey, example_csv, rng_for
+from .base import Example, Kind, Need, ResultKey, example_csv, rng_for
 
 # The example: dH = 78.5 kJ/mol and dS = -6 J/(mol K) (dG(298 K) about 19.2 kcal/mol), eight rates
 # across the line-shape window from 364 K to 439 K, 5 % relative noise.
@@ -45,6 +45,7 @@ KIND = Kind(
     analysis=kinetics,
     analyse=_analyse,
     column_sets=(("T_K", "k_per_s"),),
+    needs=(Need(("spectrometer", "nucleus", "solvent"), "(optional; stored with the barrier)"),),
     results=(
         ResultKey("dg298_kcal_mol", "ΔG‡(298 K)", "kcal/mol", 3),
         ResultKey("dg298_err_kcal_mol", "ΔG‡(298 K) error", "kcal/mol", 2),

@@ -65,6 +65,8 @@ KIND = Kind(
         ResultKey("imprint_kV_cm", "imprint", "kV/cm", 3),
         ResultKey("loss_mJ_cm3", "loss per cycle", "mJ/cm³", 4),
         ResultKey("squareness", "squareness Pr/Ps", "", 3),
+        ResultKey("p_offset_uC_cm2", "P offset removed", "µC/cm²", 3),
+        ResultKey("apparent", "apparent values (not figures of merit)"),
         ResultKey("cycles_found", "cycles found"),
         ResultKey("cycle_used", "cycle used"),
         ResultKey("points", "points"),

@@ -50,12 +50,15 @@ def upload(
     operator: Annotated[str, Form()] = "",
     notes: Annotated[str, Form()] = "",
     endo: Annotated[str, Form()] = "",
+    spectrometer: Annotated[str, Form()] = "",
+    nucleus: Annotated[str, Form()] = "",
+    solvent: Annotated[str, Form()] = "",
 ):
     batch = registry.get_batch(session, code)
     compound = registry.compound_of(session, batch)
     form = {"kind": kind, "area": area, "thickness": thickness, "mass": mass, "rate": rate,
             "temperature": temperature, "frequency": frequency, "instrument": instrument, "operator": operator,
-            "notes": notes, "endo": endo}
+            "notes": notes, "endo": endo, "spectrometer": spectrometer, "nucleus": nucleus, "solvent": solvent}
     try:
         raw = measurements.read_upload(file, settings.max_upload_bytes)
         m, _ = measurements.upload_measurement(

@@ -95,29 +95,29 @@ def test_rate_table_upload_adds_an_eyring_barrier(client, writer):
 
 def test_rate_table_carries_its_nmr_conditions(client, writer):
     # "# spectrometer: 500 MHz", "# nucleus: 1H", "# solvent: toluene-d8" lines in the file land on the barrier.
-    client.post("/api/v1/compounds/RMN-00001/batches", json={}, headers=writer)
+    client.post("/api/v1/compounds/RVZ-00001/batches", json={}, headers=writer)
     raw = to_csv_bytes(rate_table(80.0, -10.0, [300, 310, 320, 330], noise_rel=0.02),
                        {"spectrometer": "500 MHz", "nucleus": "1H", "solvent": "toluene-d8"})
-    r = client.post("/api/v1/batches/RMN-00001-B01/measurements", data={"kind": "nmr_rates"},
+    r = client.post("/api/v1/batches/RVZ-00001-B01/measurements", data={"kind": "nmr_rates"},
                     files={"file": ("rates.csv", raw)}, headers=writer)
     assert r.status_code == 201, r.text
-    item = client.get("/api/v1/compounds/RMN-00001/barriers", headers=writer).json()["items"][0]
+    item = client.get("/api/v1/compounds/RVZ-00001/barriers", headers=writer).json()["items"][0]
     assert (item["spectrometer_MHz"], item["nucleus"], item["solvent"]) == (500, "1H", "toluene-d8")
 
 
 def test_coupled_coalescence_stores_nmr_conditions(client, writer):
     # Bridge CH2 protons of a bowl: an AB pair, 2J 16 Hz. Kurland, Rubin and Wise, J. Chem. Phys.
     # 40, 2426 (1964): k_c = pi sqrt(40^2 + 6 16^2)/sqrt(2) = pi 56/sqrt(2) = 124.40 1/s (by hand).
-    r = client.post("/api/v1/compounds/RMN-00001/barriers",
+    r = client.post("/api/v1/compounds/RVZ-00001/barriers",
                     json={"method": "coalescence", "tc_K": 260, "dnu_Hz": 40, "j_Hz": 16,
                           "spectrometer_MHz": 400, "nucleus": "1H", "solvent": "CD2Cl2"}, headers=writer)
     assert r.status_code == 201
     body = r.json()
     assert body["k_s"] == pytest.approx(124.40, rel=1e-4)
     assert (body["spectrometer_MHz"], body["nucleus"], body["solvent"]) == (400, "1H", "CD2Cl2")
-    listed = client.get("/api/v1/compounds/RMN-00001/barriers", headers=writer).json()["items"][0]
+    listed = client.get("/api/v1/compounds/RVZ-00001/barriers", headers=writer).json()["items"][0]
     assert listed["solvent"] == "CD2Cl2" and "Kurland" in listed["model"]
-    bad = client.post("/api/v1/compounds/RMN-00001/barriers",
+    bad = client.post("/api/v1/compounds/RVZ-00001/barriers",
                       json={"method": "coalescence", "tc_K": 260, "dnu_Hz": 40, "spectrometer_MHz": -400},
                       headers=writer)
     assert bad.status_code == 422

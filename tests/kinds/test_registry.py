@@ -12,7 +12,7 @@ import importlib
 
 import pytest
 
-from server.ingest.conditions import CONDITION_FIELDS, parse_conditions
+from server.ingest.conditions import FORM_FIELDS, parse_conditions
 from server.kinds import KINDS, Context, Evidence, Kind, Need, check_kind, kind_modules
 from server.kinds.base import EXAMPLE_SMILES
 from server.models import CompoundStats
@@ -89,7 +89,7 @@ def test_every_part_works_on_the_kinds_own_example(name, analysed):
     if kind.table:
         given = {k for k, v in parse_conditions({}, kind.read(ex.raw, ex.filename).metadata).sources.items()}
         assert given <= set(kind.condition_fields) | {"instrument", "operator", "notes"}
-    assert set(kind.condition_fields) <= set(CONDITION_FIELDS)
+    assert set(kind.condition_fields) <= set(FORM_FIELDS)
     # Summary: a line naming its first key's label.
     items = kind.summary_items(done.results)
     assert items and items[0][0].key == kind.summary_keys[0]

@@ -89,5 +89,5 @@ def test_ellipse_shows_apparent_pr_and_no_ps(client, session):
     rows = {tr.th.text: tr.find("td").text for tr in page.select("table.results tr")}
     assert "apparent Pr" in rows and "apparent Ec" in rows and "Pr" not in rows
     assert "Ps" not in rows and "squareness" not in rows  # undefined: not shown
-    listing = soup(client.get("/compounds/RMN-00001").text).select_one("#measurements tbody tr")
+    listing = soup(client.get("/compounds/RVZ-00001").text).select_one("#measurements tbody tr")
     assert "apparent Pr" in listing.get_text(" ")

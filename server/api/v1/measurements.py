@@ -69,12 +69,16 @@ def upload(
     operator: Annotated[Optional[str], Form(max_length=120)] = None,
     notes: Annotated[Optional[str], Form(max_length=20000)] = None,
     endo: Annotated[Optional[str], Form(description="DSC sign convention: up or down")] = None,
+    spectrometer: Annotated[Optional[str], Form(description="NMR spectrometer frequency, e.g. '400 MHz'")] = None,
+    nucleus: Annotated[Optional[str], Form(max_length=10, description="observed nucleus, e.g. '1H'")] = None,
+    solvent: Annotated[Optional[str], Form(max_length=80, description="NMR solvent, e.g. 'toluene-d8'")] = None,
 ):
     """Post a raw instrument file to a batch; it is stored unchanged and analysed at once."""
     batch = registry.get_batch(session, batch_code)
     raw = measurements.read_upload(file, settings.max_upload_bytes)
     form = {"area": area, "thickness": thickness, "mass": mass, "rate": rate, "temperature": temperature,
-            "frequency": frequency, "instrument": instrument, "operator": operator, "notes": notes, "endo": endo}
+            "frequency": frequency, "instrument": instrument, "operator": operator, "notes": notes, "endo": endo,
+            "spectrometer": spectrometer, "nucleus": nucleus, "solvent": solvent}
     m, created = measurements.upload_measurement(
         session=session, batch=batch, kind_name=kind, raw=raw, filename=file.filename, form=form,
         actor=actor.label, allowed_kinds=actor.kinds if actor.scope == "upload" else None,

@@ -22,7 +22,8 @@ from fastapi import Depends, HTTPException, Path, Query, Request
 from sqlmodel import Session, select
 
 from .models import ApiToken, User, utcnow
-from .security import hash_token, same_token
+from . import cookies
+from .security import hash_token
 from .settings import Settings
 
 
@@ -83,6 +84,8 @@ def _token_actor(session: Session, raw: str) -> Actor:
     if token is None or token.revoked_at is not None:
         raise HTTPException(401, "invalid or revoked token", headers={"WWW-Authenticate": "Bearer"})
     now = utcnow()
+    if token.expires_at is not None and token.expires_at <= now:
+        raise HTTPException(401, "token expired", headers={"WWW-Authenticate": "Bearer"})
     # last_used_at is for people ("when did this PC last post?"): a minute's resolution is enough, and it
     # keeps reads from writing on every request.
     if token.last_used_at is None or (now - token.last_used_at).total_seconds() > 60:
@@ -106,12 +109,11 @@ def optional_actor(request: Request, session: SessionDep) -> Optional[Actor]:
         if scheme.lower() != "bearer" or not raw.strip():
             raise HTTPException(401, "use 'Authorization: Bearer <token>'", headers={"WWW-Authenticate": "Bearer"})
         return _token_actor(session, raw.strip())
-    uid = request.session.get("uid") if "session" in request.scope else None
-    if uid is None:
+    live = cookies.current(request)
+    if live is None:
         return None
-    user = session.get(User, uid)
-    if user is None or not user.active or request.session.get("pw") != user.password_hash[-16:]:
-        request.session.clear()
+    user = session.get(User, live.user_id)
+    if user is None or not user.active:
         return None
     return Actor(kind="user", name=user.username, role=user.role, user_id=user.id, via_cookie=True)
 
@@ -130,7 +132,7 @@ async def check_csrf(request: Request, actor: Optional[Actor]) -> None:
         form = await request.form()
         value = form.get("csrf_token")
         sent = value if isinstance(value, str) else None
-    if not same_token(sent, request.session.get("csrf")):
+    if not cookies.csrf_matches(request, sent):
         raise HTTPException(403, "missing or wrong CSRF token; reload the page and try again")
 
 

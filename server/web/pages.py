@@ -11,6 +11,7 @@ from fastapi.responses import HTMLResponse, RedirectResponse, Response
 from pydantic import ValidationError
 from sqlmodel import select
 
+from .. import cookies
 from ..chem import scaffold as chem_scaffold
 from ..deps import Actor, OptionalActor, SessionDep, SettingsDep, check_csrf
 from ..errors import InputError
@@ -21,7 +22,6 @@ from ..services import accounts, barriers, estimates, measurements, registry, ve
 from ..services.kinds import KINDS
 from ..analysis.verdict import LABELS as VERDICT_LABELS
 from ..services.errors import Duplicate
-from ..security import same_token
 from .render import redirect, render
 
 router = APIRouter(include_in_schema=False)
@@ -82,26 +82,27 @@ def login(
     csrf_token: Annotated[str, Form()] = "",
     next: Annotated[str, Form()] = "/compounds",
 ):
-    if not same_token(csrf_token, request.session.get("csrf")):
+    if not cookies.csrf_matches(request, csrf_token):
         return render(request, "pages/login.html", {"next": _safe_next(next), "error": "The form expired; try again."},
                       status_code=403)
-    user = accounts.authenticate(session=session, username=username, password=password)
-    if user is None:
-        return render(
-            request, "pages/login.html",
-            {"next": _safe_next(next), "error": "Wrong user name or password (or too many tries: wait five minutes)."},
-            status_code=401,
-        )
-    request.session.clear()
-    request.session["uid"] = user.id
-    request.session["pw"] = user.password_hash[-16:]  # a password change ends old sessions
+    outcome = accounts.authenticate(session=session, username=username, password=password,
+                                    client=cookies.client_address(request),
+                                    device=lambda user: cookies.device_of(request, user))
+    if outcome.user is None:
+        error = (f"Too many tries for this name or from this browser; wait {-(-outcome.retry_after_s // 60)} min."
+                 if outcome.throttled else "Wrong user name or password.")
+        resp = render(request, "pages/login.html", {"next": _safe_next(next), "error": error}, status_code=401)
+        if outcome.throttled:
+            resp.headers["Retry-After"] = str(outcome.retry_after_s)
+        return resp
+    cookies.log_in(request, session, outcome.user)
     return redirect(_safe_next(next))
 
 
 @router.post("/logout")
-async def logout(request: Request, actor: OptionalActor):
+async def logout(request: Request, session: SessionDep, actor: OptionalActor):
     await check_csrf(request, actor)
-    request.session.clear()
+    cookies.log_out(request, session)
     return redirect("/login")
 
 

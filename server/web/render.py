@@ -11,16 +11,8 @@ from typing import Any, Optional
 from fastapi import Request
 from fastapi.responses import HTMLResponse, RedirectResponse, Response
 
+from ..cookies import csrf_token
 from ..deps import is_htmx
-from ..security import new_csrf_token
-
-
-def csrf_token(request: Request) -> str:
-    token = request.session.get("csrf")
-    if not token:
-        token = new_csrf_token()
-        request.session["csrf"] = token
-    return token
 
 
 def render(

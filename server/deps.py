@@ -9,6 +9,9 @@ Who may do what (one table, enforced here and nowhere else):
 | user, role admin       | yes  | yes                      | yes                 | yes          | yes   |
 | token, scope read      | yes  | yes                      | no                  | no           | no    |
 | token, scope upload    | yes  | no                       | yes (its kinds)     | no           | no    |
+
+Upload tokens also get every answer with account, token and worker names hidden (``Actor.sees_people``,
+``services.accounts.hide_people``); the admin routes, which list accounts and tokens, are for admins only.
 | token, scope write     | yes  | yes                      | yes                 | yes          | no    |
 """
 
@@ -66,6 +69,11 @@ class Actor:
     @property
     def is_admin(self) -> bool:
         return self.role == "admin"
+
+    @property
+    def sees_people(self) -> bool:
+        """Account, token and worker names: not for upload tokens (an instrument PC's secret)."""
+        return not (self.kind == "token" and self.scope == "upload")
 
     @property
     def can_see_embargoed(self) -> bool:

@@ -6,7 +6,11 @@ from dataclasses import dataclass
 from datetime import timedelta
 from typing import Callable, Optional, Sequence
 
+import re
+from typing import Any
+
 import sqlalchemy as sa
+from pydantic import BaseModel
 from sqlalchemy.dialects.postgresql import insert as pg_insert
 from sqlalchemy.dialects.sqlite import insert as sqlite_insert
 from sqlalchemy.orm import object_session
@@ -260,3 +264,43 @@ def list_users(session: Session) -> list[User]:
 
 def list_tokens(session: Session) -> list[ApiToken]:
     return list(session.exec(select(ApiToken).order_by(ApiToken.id.desc())).all())
+
+
+# Who did what is for people of the group: an upload token (the instrument PC's) gets answers with the names
+# of accounts, tokens and workers replaced. Fields that hold an actor label, and the free-text fields that
+# may quote one ("cancelled by user:ana"). Labels are "user:<name>", "token:<id> (<name>)", "worker:<name>".
+PEOPLE_FIELDS = frozenset({"created_by", "by", "actor", "updated_by", "worker", "workers"})
+QUOTING_FIELDS = frozenset({"message"})
+HIDDEN_NAME = "(hidden)"
+_LABEL = re.compile(r"\b(?:user|token|worker):(?:\d+ \([^)]*\)|\S+)")
+
+
+def hide_people(value: Any, *, sees_people: bool) -> Any:
+    """``value`` (dicts, lists, pydantic models, nested) with actor names hidden unless ``sees_people``."""
+    if sees_people:
+        return value
+    return _hidden(value)
+
+
+def shown_name(label: str, viewer: Any) -> str:
+    """For pages: an actor label as ``viewer`` (an Actor, or None for a visitor) may see it."""
+    return label if (viewer is not None and viewer.sees_people) or not label else HIDDEN_NAME
+
+
+def shown_text(text: str, viewer: Any) -> str:
+    """For pages: free text with any quoted actor label hidden unless ``viewer`` may see names."""
+    return text if (viewer is not None and viewer.sees_people) or not text else _LABEL.sub(HIDDEN_NAME, text)
+
+
+def _hidden(value: Any, key: str | None = None) -> Any:
+    if key in PEOPLE_FIELDS and value not in (None, "", [], {}):
+        return [HIDDEN_NAME for _ in value] if isinstance(value, list) else HIDDEN_NAME
+    if key in QUOTING_FIELDS and isinstance(value, str):
+        return _LABEL.sub(HIDDEN_NAME, value)
+    if isinstance(value, BaseModel):
+        return value.model_copy(update={k: _hidden(getattr(value, k), k) for k in type(value).model_fields})
+    if isinstance(value, dict):
+        return {k: _hidden(v, k) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return type(value)(_hidden(v) for v in value)
+    return value

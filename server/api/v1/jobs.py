@@ -12,7 +12,7 @@ from ...deps import Offset, Reader, RowId, SessionDep, Writer
 from ...errors import InputError
 from ...jobs import queue
 from ...models import Compound
-from ...services import estimates, registry
+from ...services import accounts, estimates, registry
 from .common import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND
 
 router = APIRouter(tags=["estimates and jobs"])
@@ -31,7 +31,7 @@ def _visible_job(job: dict[str, Any], actor) -> dict[str, Any]:  # noqa: ANN001
     """Drop the truncated structure from results for callers who may not see embargoed structures."""
     if not actor.can_see_embargoed and isinstance(job.get("result"), dict):
         job = {**job, "result": {k: v for k, v in job["result"].items() if k != "smiles_used"}}
-    return job
+    return accounts.hide_people(job, sees_people=actor.sees_people)
 
 
 @router.post("/compounds/{code}/estimates", status_code=202, responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS})
@@ -72,7 +72,7 @@ def list_jobs(session: SessionDep, actor: Reader, state: Optional[str] = None, k
 
 @router.get("/jobs/summary", responses=AUTH_ERRORS)
 def jobs_summary(session: SessionDep, actor: Reader) -> dict[str, Any]:
-    return estimates.queue_summary(session)
+    return accounts.hide_people(estimates.queue_summary(session), sees_people=actor.sees_people)
 
 
 @router.get("/jobs/{job_id}", responses={**AUTH_ERRORS, **NOT_FOUND})

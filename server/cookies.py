@@ -20,6 +20,7 @@ from typing import Optional
 from fastapi import Request
 from starlette.responses import Response
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
+from sqlalchemy.exc import OperationalError
 from sqlmodel import Session
 
 from .models import User
@@ -74,8 +75,13 @@ def current(request: Request) -> Optional[sessions.LiveSession]:
     raw = request.cookies.get(SESSION_COOKIE, "")
     live = None
     if raw:
-        with Session(request.app.state.engine) as db:
-            live = sessions.find_live(db, raw, hours=request.app.state.settings.session_hours)
+        try:
+            with Session(request.app.state.engine) as db:
+                live = sessions.find_live(db, raw, hours=request.app.state.settings.session_hours)
+        except OperationalError:
+            # The database is busy or down: not logged in for this answer (the 503 page still renders),
+            # and the cookie is kept for when it is back.
+            return None
         if live is None:
             queue_cookie(request, SESSION_COOKIE, "", max_age_s=0)
         elif live.slid:

@@ -111,7 +111,7 @@ def authenticate(*, session: Session, username: str, password: str, client: str 
     logged in to this account before): a known browser is not held by the per-account lock that strangers'
     guesses set, so nobody can keep an account locked from outside. Attempts are claimed before the password
     is checked (atomic UPDATE ... RETURNING), so parallel guesses cannot get past the count. A right password
-    clears the account's count and gives the client and device their attempt back.
+    gives the client (or the device) its attempt back; from an unknown browser it also clears the name's count.
     """
     username = username.strip()
     user = session.exec(select(User).where(User.username == username)).first() if username else None
@@ -127,9 +127,9 @@ def authenticate(*, session: Session, username: str, password: str, client: str 
         return LoginOutcome()
     if not verify_password(user.password_hash, password):
         return LoginOutcome()
-    session.execute(sa.delete(LoginThrottle).where(LoginThrottle.key == _account_key(username)))
-    for key in keys:
-        _refund(session, key)
+    _refund(session, keys[0])  # the client's or the device's attempt back
+    if not nonce:  # from a known browser, strangers' count on the name stays: they get no fresh guesses
+        session.execute(sa.delete(LoginThrottle).where(LoginThrottle.key == _account_key(username)))
     session.execute(sa.delete(LoginThrottle).where(LoginThrottle.window_started_at < utcnow() - THROTTLE_WINDOW))
     if needs_rehash(user.password_hash):
         user.password_hash = hash_password(password)

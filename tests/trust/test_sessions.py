@@ -167,6 +167,7 @@ def test_parallel_guesses_cannot_beat_the_lock_and_a_known_browser_gets_in(app, 
                 assert refused.status_code == 401 and int(refused.headers["retry-after"]) <= 301
             assert post_login(known, "admin1", PASSWORD).status_code == 303  # the admin is not locked out
             assert known.get("/admin", follow_redirects=False).status_code == 200
+            assert accounts.is_locked(session, "admin1")  # ... and strangers got no fresh guesses from that
 
 
 def test_known_browser_guesses_are_counted_too(client, session, hasher):

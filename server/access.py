@@ -82,6 +82,11 @@ class Actor:
         return self.role == "admin"
 
     @property
+    def sees_people(self) -> bool:
+        """Account, token and worker names: not for upload tokens (an instrument PC's secret)."""
+        return not (self.kind == "token" and self.scope == "upload")
+
+    @property
     def can_see_embargoed(self) -> bool:
         return self.kind == "user" or self.scope in ("read", "write")
 

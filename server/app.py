@@ -15,10 +15,10 @@ from fastapi.templating import Jinja2Templates
 from sqlalchemy import text
 from sqlalchemy.exc import OperationalError
 from starlette.exceptions import HTTPException as StarletteHTTPException
-from starlette.middleware.sessions import SessionMiddleware
 
 from . import __version__
 from .api import docs_page as api_docs_page
+from .cookies import CookieMiddleware
 from .db import make_engine
 from .errors import InputError
 from .access import NotLoggedIn, Refused, may_see_structure
@@ -156,14 +156,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         response.headers.setdefault("Referrer-Policy", "same-origin")
         return response
 
-    app.add_middleware(
-        SessionMiddleware,
-        secret_key=settings.secret_key,
-        session_cookie="remanence_session",
-        max_age=int(settings.session_hours * 3600),
-        same_site="lax",
-        https_only=settings.cookie_secure,
-    )
+    app.add_middleware(CookieMiddleware)  # writes the session, pre-login and device cookies (server/cookies.py)
     _install_error_handlers(app)
 
     from .api.v1 import router as api_router

@@ -4,6 +4,7 @@
     remanence serve [--host H] [--port P]  serve the web app and API
     remanence demo [--load-only]           fresh demo database, then serve it
     remanence user add NAME --role R       add an account (password from a prompt or --password-stdin)
+    remanence user password NAME           change a password (ends the account's sessions)
     remanence token create --name N --scope S [--kinds K,...]
                                            create an API token; prints it alone on the last line
     remanence token revoke ID              revoke a token at once
@@ -136,6 +137,24 @@ def cmd_user_add(args: argparse.Namespace) -> int:
     return 0
 
 
+def cmd_user_password(args: argparse.Namespace) -> int:
+    from .db import make_engine
+    from .errors import InputError
+    from .services import accounts
+    from .services.errors import NotFound
+
+    settings = _settings()
+    password = _read_password(args)
+    try:
+        with Session(make_engine(settings.database_url)) as session:
+            user = accounts.set_password(session=session, username=args.name, password=password, actor="cli")
+    except (InputError, NotFound) as exc:
+        print(f"error: {exc}", file=sys.stderr)
+        return 2
+    print(f"password of {user.username} changed; every session of the account has ended")
+    return 0
+
+
 def cmd_token_create(args: argparse.Namespace) -> int:
     from .db import make_engine
     from .errors import InputError
@@ -146,11 +165,12 @@ def cmd_token_create(args: argparse.Namespace) -> int:
     with Session(make_engine(settings.database_url)) as session:
         try:
             token, secret = accounts.create_token(session=session, name=args.name, scope=args.scope, kinds=kinds,
-                                                  actor="cli")
+                                                  expires_in=accounts.parse_lifetime(args.expires), actor="cli")
         except InputError as exc:
             print(f"error: {exc}", file=sys.stderr)
             return 2
-    print(f"token {token.id} '{token.name}' scope {token.scope}" + (f" kinds {','.join(kinds)}" if kinds else ""))
+    print(f"token {token.id} '{token.name}' scope {token.scope}" + (f" kinds {','.join(kinds)}" if kinds else "")
+          + (f" expires {token.expires_at:%Y-%m-%d %H:%M} UTC" if token.expires_at else " never expires"))
     print("shown once; store it on the instrument PC now:")
     print(secret)
     return 0
@@ -283,12 +303,17 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--role", choices=["admin", "member", "viewer"], default="member")
     p.add_argument("--password-stdin", action="store_true", help="read the password from standard input")
     p.set_defaults(func=cmd_user_add)
+    p = user.add_parser("password", help="change an account's password (ends its sessions)")
+    p.add_argument("name")
+    p.add_argument("--password-stdin", action="store_true", help="read the password from standard input")
+    p.set_defaults(func=cmd_user_password)
 
     token = sub.add_parser("token", help="API tokens").add_subparsers(dest="token_command", required=True)
     p = token.add_parser("create", help="create a token (shown once)")
     p.add_argument("--name", required=True)
     p.add_argument("--scope", choices=["upload", "write", "read"], required=True)
     p.add_argument("--kinds", help="upload tokens: comma-separated measurement kinds allowed")
+    p.add_argument("--expires", help="lifetime, e.g. 90d, 12h or 8w (default: never expires)")
     p.set_defaults(func=cmd_token_create)
     p = token.add_parser("revoke", help="revoke a token")
     p.add_argument("id", type=int)

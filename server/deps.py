@@ -3,6 +3,9 @@
 Who may do what is decided in ``server/access.py`` (the access table is there); the dependencies
 here find the caller (token or session cookie), check CSRF, and turn the access module's answer
 into a 401/403 for the API or a login redirect/403 page for the web.
+
+Upload tokens also get every answer with account, token and worker names hidden (``Actor.sees_people``,
+``services.accounts.hide_people``).
 """
 
 from __future__ import annotations
@@ -17,7 +20,8 @@ from sqlmodel import Session, select
 from . import access
 from .access import Actor
 from .models import ApiToken, User, utcnow
-from .security import hash_token, same_token
+from . import cookies
+from .security import hash_token
 from .settings import Settings
 
 
@@ -41,6 +45,8 @@ def _token_actor(session: Session, raw: str) -> Actor:
     if token is None or token.revoked_at is not None:
         raise HTTPException(401, "invalid or revoked token", headers={"WWW-Authenticate": "Bearer"})
     now = utcnow()
+    if token.expires_at is not None and token.expires_at <= now:
+        raise HTTPException(401, "token expired", headers={"WWW-Authenticate": "Bearer"})
     # last_used_at is for people ("when did this PC last post?"): a minute's resolution is enough, and it
     # keeps reads from writing on every request.
     if token.last_used_at is None or (now - token.last_used_at).total_seconds() > 60:
@@ -70,12 +76,11 @@ def _find_actor(request: Request, session: Session) -> Optional[Actor]:
         if scheme.lower() != "bearer" or not raw.strip():
             raise HTTPException(401, "use 'Authorization: Bearer <token>'", headers={"WWW-Authenticate": "Bearer"})
         return _token_actor(session, raw.strip())
-    uid = request.session.get("uid") if "session" in request.scope else None
-    if uid is None:
+    live = cookies.current(request)
+    if live is None:
         return None
-    user = session.get(User, uid)
-    if user is None or not user.active or request.session.get("pw") != user.password_hash[-16:]:
-        request.session.clear()
+    user = session.get(User, live.user_id)
+    if user is None or not user.active:
         return None
     return Actor(kind="user", name=user.username, role=user.role, user_id=user.id, via_cookie=True)
 
@@ -111,7 +116,7 @@ async def check_csrf(request: Request, actor: Optional[Actor]) -> None:
         form = await request.form()
         value = form.get("csrf_token")
         sent = value if isinstance(value, str) else None
-    if not same_token(sent, request.session.get("csrf")):
+    if not cookies.csrf_matches(request, sent):
         raise HTTPException(403, "missing or wrong CSRF token; reload the page and try again")
 
 

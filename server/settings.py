@@ -47,7 +47,8 @@ SETTINGS: tuple[Setting, ...] = (
     Setting(
         "secret_key",
         "REMANENCE_SECRET_KEY",
-        "Key that signs session cookies; generated into the data folder on first run when unset.",
+        "Key for pre-login CSRF tokens and known-browser marks (sessions are random ids kept on the server); "
+        "generated into the data folder on first run when unset.",
     ),
     Setting(
         "code_prefix",
@@ -71,7 +72,7 @@ SETTINGS: tuple[Setting, ...] = (
         _bool,
     ),
     Setting("cookie_secure", "REMANENCE_COOKIE_SECURE", "Send the session cookie over HTTPS only.", _bool),
-    Setting("session_hours", "REMANENCE_SESSION_HOURS", "How long a login lasts, in hours.", float),
+    Setting("session_hours", "REMANENCE_SESSION_HOURS", "How long a login lasts after its last use, in hours.", float),
     Setting(
         "sqlite_busy_ms",
         "REMANENCE_SQLITE_BUSY_MS",

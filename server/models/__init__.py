@@ -2,7 +2,7 @@
 
 from sqlmodel import SQLModel
 
-from .accounts import ROLES, SCOPES, ApiToken, User
+from .accounts import ROLES, SCOPES, ApiToken, LoginThrottle, User, WebSession
 from .audit import AuditEvent
 from .jobs import JOB_STATES, Job
 from .measurements import BarrierEstimate, CrystalPhase, Measurement, RawFile
@@ -32,6 +32,6 @@ __all__ = [
     "ApiToken", "AuditEvent", "CompoundSideChain", "CompoundStats", "BATCH_STATES", "BarrierEstimate", "Batch", "BatchCreate", "BatchRead", "Compound",
     "CompoundCreate", "CompoundPage", "CompoundRead", "CompoundUpdate", "CrystalPhase", "ScaffoldCreate",
     "ScaffoldRead", "SiteSetting", "SideChainRead", "SideChainSpec",
-    "JOB_STATES", "Job", "Measurement", "ROLES", "RawFile", "SCOPES", "Scaffold", "UTCDateTime", "User",
+    "JOB_STATES", "Job", "LoginThrottle", "WebSession", "Measurement", "ROLES", "RawFile", "SCOPES", "Scaffold", "UTCDateTime", "User",
     "metadata", "utcnow",
 ]

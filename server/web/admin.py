@@ -7,6 +7,7 @@ from fastapi.responses import HTMLResponse
 
 from ..deps import PageAdmin, RowId, SessionDep
 from ..errors import InputError
+from ..models import utcnow
 from ..services import accounts
 from ..services.errors import Duplicate, NotFound
 from ..kinds import KINDS
@@ -18,7 +19,7 @@ router = APIRouter(include_in_schema=False)
 def _page(request, session, actor, *, error=None, new_token=None, status_code=200):  # noqa: ANN001
     return render(request, "pages/admin.html",
                   {"users": accounts.list_users(session), "tokens": accounts.list_tokens(session), "error": error,
-                   "new_token": new_token, "kinds": KINDS}, status_code=status_code, actor=actor)
+                   "new_token": new_token, "kinds": KINDS, "now": utcnow()}, status_code=status_code, actor=actor)
 
 
 @router.get("/admin", response_class=HTMLResponse)
@@ -53,7 +54,8 @@ async def create_token(request: Request, session: SessionDep, actor: PageAdmin):
     kinds = [k for k in form.getlist("kinds") if isinstance(k, str) and k in KINDS] or None
     try:
         token, secret = accounts.create_token(session=session, name=str(form.get("name", "")),
-                                              scope=str(form.get("scope", "")), kinds=kinds, actor=actor.label)
+                                              scope=str(form.get("scope", "")), kinds=kinds, actor=actor.label,
+                                              expires_in=accounts.parse_lifetime(str(form.get("expires", ""))))
     except InputError as exc:
         return _page(request, session, actor, error=str(exc), status_code=422)
     # Rendered directly (no redirect) so the secret is shown once and never stored or put in a URL.

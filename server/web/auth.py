@@ -7,8 +7,8 @@ from typing import Annotated
 from fastapi import APIRouter, Form, Request
 from fastapi.responses import HTMLResponse
 
+from .. import cookies
 from ..deps import OptionalActor, SessionDep, SettingsDep, check_csrf
-from ..security import same_token
 from ..services import accounts
 from .render import redirect, render
 
@@ -40,24 +40,25 @@ def login(
     csrf_token: Annotated[str, Form()] = "",
     next: Annotated[str, Form()] = "/compounds",
 ):
-    if not same_token(csrf_token, request.session.get("csrf")):
+    if not cookies.csrf_matches(request, csrf_token):
         return render(request, "pages/login.html", {"next": _safe_next(next), "error": "The form expired; try again."},
                       status_code=403)
-    user = accounts.authenticate(session=session, username=username, password=password)
-    if user is None:
-        return render(
-            request, "pages/login.html",
-            {"next": _safe_next(next), "error": "Wrong user name or password (or too many tries: wait five minutes)."},
-            status_code=401,
-        )
-    request.session.clear()
-    request.session["uid"] = user.id
-    request.session["pw"] = user.password_hash[-16:]  # a password change ends old sessions
+    outcome = accounts.authenticate(session=session, username=username, password=password,
+                                    client=cookies.client_address(request),
+                                    device=lambda user: cookies.device_of(request, user))
+    if outcome.user is None:
+        error = (f"Too many tries for this name or from this browser; wait {-(-outcome.retry_after_s // 60)} min."
+                 if outcome.throttled else "Wrong user name or password.")
+        resp = render(request, "pages/login.html", {"next": _safe_next(next), "error": error}, status_code=401)
+        if outcome.throttled:
+            resp.headers["Retry-After"] = str(outcome.retry_after_s)
+        return resp
+    cookies.log_in(request, session, outcome.user)
     return redirect(_safe_next(next))
 
 
 @router.post("/logout")
-async def logout(request: Request, actor: OptionalActor):
+async def logout(request: Request, session: SessionDep, actor: OptionalActor):
     await check_csrf(request, actor)
-    request.session.clear()
+    cookies.log_out(request, session)
     return redirect("/login")

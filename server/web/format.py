@@ -109,7 +109,11 @@ def summary(kind: str, results: dict[str, Any]) -> str:
 
 
 def install(env) -> None:  # noqa: ANN001 - a jinja2 Environment
+    from ..services.accounts import shown_name, shown_text
+
     env.filters["number"] = number
+    env.filters["who"] = shown_name  # {{ label | who(actor) }}: names hidden from upload tokens and visitors
+    env.filters["unquoted"] = shown_text  # {{ message | unquoted(actor) }}: quoted labels likewise
     env.filters["scalar_items"] = scalar_items
     env.globals["split_key"] = split_key
     env.globals["digits_of"] = digits_of

@@ -14,8 +14,8 @@ from typing import Any, Optional
 from fastapi import Request
 from fastapi.responses import HTMLResponse, RedirectResponse, Response
 
+from ..cookies import csrf_token
 from ..deps import current_actor
-from ..security import new_csrf_token
 
 
 def is_htmx(request: Request) -> bool:
@@ -26,14 +26,6 @@ def is_htmx(request: Request) -> bool:
 def wants_fragment(request: Request) -> bool:
     """Whether to answer with a fragment: an htmx swap, but not a history restore."""
     return is_htmx(request) and request.headers.get("hx-history-restore-request") != "true"
-
-
-def csrf_token(request: Request) -> str:
-    token = request.session.get("csrf")
-    if not token:
-        token = new_csrf_token()
-        request.session["csrf"] = token
-    return token
 
 
 def render(

@@ -136,12 +136,12 @@ def test_login_is_throttled_after_repeated_failures(client, session):
     # Locked for a few minutes now: even the right password is refused.
     r = client.post("/login", data={"username": "rosa", "password": PASSWORD, "csrf_token": token},
                     follow_redirects=False)
-    assert r.status_code == 401
+    assert r.status_code == 401 and int(r.headers["retry-after"]) > 0
     from sqlmodel import select as _select
 
     from server.models import User
+    from server.services import accounts
 
+    assert accounts.is_locked(session, "rosa")
     user = session.exec(_select(User).where(User.username == "rosa")).one()
-    session.refresh(user)
-    assert user.locked_until is not None
     assert user.password_hash.startswith("$argon2id$")  # Argon2id, RFC 9106

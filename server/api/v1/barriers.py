@@ -7,7 +7,7 @@ from typing import Annotated, Any, Optional
 from fastapi import APIRouter, Body, Query
 
 from ...deps import Reader, RowId, SessionDep, Writer
-from ...services import barriers, registry
+from ...services import accounts, barriers, registry
 from .responses import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND
 
 router = APIRouter(tags=["barriers"])
@@ -33,6 +33,7 @@ def add_barrier(
 def list_barriers(code: str, session: SessionDep, actor: Reader) -> dict[str, Any]:
     compound = registry.get_compound(session, code)
     items = [barriers.barrier_read(session, b) for b in barriers.list_barriers(session, compound)]
+    items = accounts.hide_people(items, sees_people=actor.sees_people)
     return {"items": items, "total": len(items)}
 
 

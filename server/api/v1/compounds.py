@@ -13,7 +13,7 @@ from ... import access
 from ...deps import Admin, Offset, Reader, SessionDep, SettingsDep, Writer
 from ...models import BatchCreate, BatchRead, CompoundCreate, CompoundPage, CompoundRead, CompoundUpdate
 from ...errors import InputError
-from ...services import registry, verdicts, views
+from ...services import accounts, registry, verdicts, views
 from ...services.errors import NotFound
 from .responses import AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND
 
@@ -52,7 +52,7 @@ def list_compounds(
         result = views.query_view(session, q, actor=actor, paged=False)
         rows = result.rows[offset: offset + limit]
     items = [registry.compound_read(session, r.compound, actor=actor) for r in rows]
-    return CompoundPage(items=items, total=result.total)
+    return CompoundPage(items=accounts.hide_people(items, sees_people=actor.sees_people), total=result.total)
 
 
 @router.get("/search", responses={**AUTH_ERRORS, **INPUT_ERRORS})
@@ -72,7 +72,8 @@ def search_structures(request: Request, session: SessionDep, actor: Reader) -> d
 @router.get("/compounds/{code}", response_model=CompoundRead, responses={**AUTH_ERRORS, **NOT_FOUND})
 def get_compound(code: str, session: SessionDep, actor: Reader) -> CompoundRead:
     compound = registry.get_compound(session, code)
-    return registry.compound_read(session, compound, actor=actor)
+    return accounts.hide_people(registry.compound_read(session, compound, actor=actor),
+                                sees_people=actor.sees_people)
 
 
 @router.patch(

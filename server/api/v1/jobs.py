@@ -11,7 +11,7 @@ from ... import access
 from ...deps import Offset, Reader, RowId, SessionDep, Writer
 from ...errors import InputError
 from ...jobs import queue
-from ...services import estimates, registry
+from ...services import accounts, estimates, registry
 from .responses import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND
 
 router = APIRouter(tags=["estimates and jobs"])
@@ -30,7 +30,7 @@ def _visible_job(job: dict[str, Any], actor) -> dict[str, Any]:  # noqa: ANN001
     """Drop the truncated structure from results for callers who may not see embargoed structures."""
     if not access.sees_embargoed(actor) and isinstance(job.get("result"), dict):
         job = {**job, "result": {k: v for k, v in job["result"].items() if k != "smiles_used"}}
-    return job
+    return accounts.hide_people(job, sees_people=actor.sees_people)
 
 
 @router.post("/compounds/{code}/estimates", status_code=202, responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS})
@@ -68,7 +68,7 @@ def list_jobs(session: SessionDep, actor: Reader, state: Optional[str] = None, k
 
 @router.get("/jobs/summary", responses=AUTH_ERRORS)
 def jobs_summary(session: SessionDep, actor: Reader) -> dict[str, Any]:
-    return estimates.queue_summary(session)
+    return accounts.hide_people(estimates.queue_summary(session), sees_people=actor.sees_people)
 
 
 @router.get("/jobs/{job_id}", responses={**AUTH_ERRORS, **NOT_FOUND})

@@ -11,7 +11,7 @@ from pydantic import BaseModel
 from ...deps import Offset, Reader, RowId, SessionDep, SettingsDep, Uploader, Writer
 from ...kinds import KINDS
 from ...models import RawFile
-from ...services import measurements, registry
+from ...services import accounts, measurements, registry
 from .responses import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND, ErrorOut
 
 router = APIRouter(tags=["measurements"])
@@ -83,7 +83,7 @@ def upload(
         session=session, batch=batch, kind_name=kind, raw=raw, filename=file.filename, form=form,
         actor=actor.label, allowed_kinds=actor.kinds if actor.scope == "upload" else None,
     )
-    body = measurements.measurement_read(session, m)
+    body = accounts.hide_people(measurements.measurement_read(session, m), sees_people=actor.sees_people)
     return JSONResponse(body, status_code=201 if created else 200)
 
 
@@ -99,12 +99,14 @@ def list_measurements(
 ) -> MeasurementPage:
     rows, total = measurements.list_measurements(session, batch=batch, compound=compound, kind=kind, limit=limit,
                                                  offset=offset)
-    return MeasurementPage(items=[measurements.measurement_read(session, m) for m in rows], total=total)
+    items = [measurements.measurement_read(session, m) for m in rows]
+    return MeasurementPage(items=accounts.hide_people(items, sees_people=actor.sees_people), total=total)
 
 
 @router.get("/measurements/{measurement_id}", response_model=MeasurementOut, responses={**AUTH_ERRORS, **NOT_FOUND})
 def get_measurement(measurement_id: RowId, session: SessionDep, actor: Reader):
-    return measurements.measurement_read(session, measurements.get_measurement(session, measurement_id))
+    return accounts.hide_people(measurements.measurement_read(session, measurements.get_measurement(session, measurement_id)),
+                                sees_people=actor.sees_people)
 
 
 @router.get("/measurements/{measurement_id}/raw", responses={**AUTH_ERRORS, **NOT_FOUND})

@@ -254,7 +254,7 @@ def test_upload_token_cannot_probe_embargoed_structures_through_the_list_filter(
 # -> 403 page; a write from a session needs the CSRF token.
 
 PUBLIC = {("GET", "/login"), ("POST", "/login"), ("POST", "/logout"), ("GET", "/"), ("GET", "/healthz"),
-          ("GET", "/status")}  # /status: public only when published (tested below both ways)
+          ("GET", "/status"), ("GET", "/docs"), ("GET", "/redoc")}  # /status: public only when published (tested below both ways); /docs documents the API, no data
 WEB_READ = {("GET", p) for p in (
     "/compounds", "/compounds/export.{fmt}", "/compounds/{code}", "/compounds/{code}/timeline",
     "/compounds/{code}/rates", "/scaffolds", "/measurements/{measurement_id}", "/explorer", "/outcomes",

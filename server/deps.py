@@ -21,6 +21,7 @@ from typing import Annotated, Optional
 from fastapi import Depends, HTTPException, Path, Query, Request
 from sqlmodel import Session, select
 
+from .bounds import MAX_ROW_ID
 from .models import ApiToken, User, utcnow
 from .security import hash_token, same_token
 from .settings import Settings
@@ -177,8 +178,8 @@ def is_htmx(request: Request) -> bool:
 HtmxRequest = Annotated[bool, Depends(is_htmx)]
 
 
-# Row ids and offsets fit a 32-bit signed integer on every back end; larger numbers are refused as
-# input errors (422) before they reach the database, which would raise instead of answering "not found".
-MAX_ID = 2_147_483_647
+# Row ids and offsets fit a 32-bit signed integer on every back end (server/bounds.py); larger numbers
+# are refused as input errors (422) before they reach the database.
+MAX_ID = MAX_ROW_ID
 RowId = Annotated[int, Path(ge=1, le=MAX_ID, description="row id")]
 Offset = Annotated[int, Query(ge=0, le=MAX_ID, description="rows to skip")]

@@ -11,13 +11,14 @@ from fastapi.responses import HTMLResponse, RedirectResponse, Response
 from pydantic import ValidationError
 from sqlmodel import select
 
+from ..bounds import BUILT_CHAIN_CARBONS, whole_number
 from ..chem import scaffold as chem_scaffold
 from ..deps import Actor, OptionalActor, SessionDep, SettingsDep, check_csrf
 from ..errors import InputError
 from ..models import BATCH_STATES, BatchCreate, CompoundCreate, CompoundUpdate, Scaffold, ScaffoldCreate, SideChainSpec
 from ..plots import figure_json, summary
 from ..jobs import queue
-from ..services import accounts, barriers, estimates, measurements, registry, verdicts, views
+from ..services import accounts, barriers, estimates, exports, measurements, registry, verdicts, views
 from ..services.kinds import KINDS
 from ..analysis.verdict import LABELS as VERDICT_LABELS
 from ..services.errors import Duplicate
@@ -122,12 +123,12 @@ def compound_list(request: Request, session: SessionDep, actor: PageActor):
         result = views.query_view(session, q, see_embargoed=actor.can_see_embargoed)
     except InputError as exc:
         error, q = str(exc), views.ViewQuery()
-        result = views.query_view(session, q)
+        result = views.query_view(session, q, see_embargoed=actor.can_see_embargoed)
     return render(
         request, "pages/compounds.html",
         {"result": result, "q": q, "error": error, "choices": views.filter_choices(session), "sorts": views.SORTS,
          "verdict_labels": VERDICT_LABELS, "link": q.link()},
-        partial="partials/compound_table.html", actor=actor,
+        partial="partials/compound_table.html", actor=actor, status_code=422 if error else 200,
     )
 
 
@@ -137,7 +138,7 @@ def compound_export(fmt: str, request: Request, session: SessionDep, actor: Page
     q = views.parse_view(request.query_params)
     frame = views.export_frame(views.query_view(session, q, paged=False, see_embargoed=actor.can_see_embargoed),
                                hide_structures_of_embargoed=not actor.can_see_embargoed)
-    body, media = views.export_bytes(frame, fmt)
+    body, media = exports.table_bytes(frame, fmt, sheet="compounds")
     return Response(body, media_type=media,
                     headers={"Content-Disposition": f'attachment; filename="remanence-compounds.{fmt}"'})
 
@@ -162,10 +163,8 @@ def _compound_create(form: dict) -> CompoundCreate:
     chain = None
     if not (form.get("smiles") or "").strip() and form.get("scaffold") and form.get("chain_kind"):
         carbons = form.get("chain_carbons") or None
-        try:
-            carbons_int = int(carbons) if carbons else None
-        except ValueError:
-            raise InputError(f"{carbons!r} is not a whole number", field="chain_carbons") from None
+        carbons_int = whole_number("chain_carbons", carbons, lo=BUILT_CHAIN_CARBONS[0],
+                                   hi=BUILT_CHAIN_CARBONS[1]) if carbons else None
         try:
             chain = SideChainSpec(kind=form["chain_kind"], carbons=carbons_int,
                                   branched_form=form.get("branched_form") or None)

@@ -20,7 +20,8 @@ from starlette.middleware.sessions import SessionMiddleware
 from . import __version__
 from .db import make_engine
 from .errors import InputError
-from .services.errors import Duplicate, Forbidden, NotFound
+from .services.errors import Archived, Duplicate, Forbidden, NotFound
+from .serving import BodyDeadline
 from .settings import PROJECT_ROOT, Settings, get_settings
 from .web import format as format_filters
 from .web import measurements as measurement_pages
@@ -61,6 +62,10 @@ def _install_error_handlers(app: FastAPI) -> None:
     @app.exception_handler(Duplicate)
     async def duplicate(request: Request, exc: Duplicate) -> Response:
         return _error(request, 409, str(exc), {"existing": exc.existing})
+
+    @app.exception_handler(Archived)
+    async def archived(request: Request, exc: Archived) -> Response:
+        return _error(request, 409, str(exc))
 
     @app.exception_handler(Forbidden)
     async def forbidden(request: Request, exc: Forbidden) -> Response:
@@ -151,6 +156,8 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         same_site="lax",
         https_only=settings.cookie_secure,
     )
+    # Added last, so outermost of our middleware: a slow body is cut off before other work is done for it.
+    app.add_middleware(BodyDeadline, seconds=settings.body_timeout_s)
     _install_error_handlers(app)
 
     from .api.v1 import router as api_router

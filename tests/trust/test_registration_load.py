@@ -56,7 +56,7 @@ def test_the_family_is_distinct():
 @pytest.mark.slow
 def test_concurrent_registration_has_no_500s_gaps_or_duplicates(db_url, server_process, engine_for):
     engine = engine_for(db_url)
-    url = server_process.start()
+    url = server_process.start(timeout_s=120)
     tokens = [new_token(engine, "write", f"chemist-pc-{i}") for i in range(CLIENTS)]
     ok: list[str] = []
     failures: list[str] = []
@@ -117,7 +117,7 @@ def test_concurrent_registration_has_no_500s_gaps_or_duplicates(db_url, server_p
 def test_concurrent_batches_of_one_compound_are_numbered_without_gaps(db_url, server_process, engine_for, settings):
     engine = engine_for(db_url)
     code, _ = seed_batch(engine, settings)
-    url = server_process.start()
+    url = server_process.start(timeout_s=120)
     token = new_token(engine, "write", "bench-pc")
     per, threads_n = 15, 6
     got: list[str] = []

@@ -11,7 +11,7 @@ from pydantic import BaseModel
 from ...deps import Offset, Reader, RowId, SessionDep, SettingsDep, Uploader, Writer
 from ...models import RawFile
 from ...services import measurements, registry
-from .common import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND, ErrorOut
+from .common import ARCHIVED, AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND, ErrorOut
 
 router = APIRouter(tags=["measurements"])
 
@@ -57,7 +57,7 @@ def read_upload(file: UploadFile, limit: int) -> bytes:
     "/batches/{batch_code}/measurements",
     status_code=201,
     response_model=MeasurementOut,
-    responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS, 200: {"model": MeasurementOut, "description": "the same bytes were stored already for this batch"},
+    responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS, **ARCHIVED, 200: {"model": MeasurementOut, "description": "the same bytes were stored already for this batch"},
                413: {"model": ErrorOut, "description": "file too large"}},
 )
 def upload(

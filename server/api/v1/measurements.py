@@ -111,7 +111,10 @@ def get_measurement(measurement_id: RowId, session: SessionDep, actor: Reader):
     return measurements.measurement_read(session, measurements.get_measurement(session, measurement_id))
 
 
-@router.get("/measurements/{measurement_id}/raw", responses={**AUTH_ERRORS, **NOT_FOUND})
+@router.get("/measurements/{measurement_id}/raw", response_class=Response,
+            responses={**AUTH_ERRORS, **NOT_FOUND,
+                       200: {"content": {"application/octet-stream": {}},
+                             "description": "the stored bytes; `X-Content-SHA256` carries their checksum"}})
 def get_raw(measurement_id: RowId, session: SessionDep, actor: Reader) -> Response:
     """The stored bytes, exactly as uploaded; the checksum travels in the headers."""
     m = measurements.get_measurement(session, measurement_id)

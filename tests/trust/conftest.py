@@ -159,7 +159,7 @@ class ServerProcess:
         env.update(self.extra_env)
         return env
 
-    def start(self, timeout_s: float = 30.0) -> str:
+    def start(self, timeout_s: float = 120.0) -> str:
         assert self.proc is None or self.proc.poll() is not None, "already running"
         sock = bound_socket()
         port = sock.getsockname()[1]

@@ -22,8 +22,9 @@ from .cookies import CookieMiddleware
 from .db import make_engine
 from .errors import InputError
 from .access import NotLoggedIn, Refused, may_see_structure
-from .services.errors import Duplicate, Forbidden, NotFound, TooLarge
+from .services.errors import Archived, Duplicate, Forbidden, NotFound, TooLarge
 from .package_files import static_dir, templates_dir
+from .serving import BodyDeadline
 from .settings import Settings, get_settings
 from .web import format as format_filters
 from .web import admin as admin_pages
@@ -66,6 +67,10 @@ def _install_error_handlers(app: FastAPI) -> None:
     @app.exception_handler(Duplicate)
     async def duplicate(request: Request, exc: Duplicate) -> Response:
         return _error(request, 409, str(exc), {"existing": exc.existing})
+
+    @app.exception_handler(Archived)
+    async def archived(request: Request, exc: Archived) -> Response:
+        return _error(request, 409, str(exc))
 
     @app.exception_handler(Forbidden)
     async def forbidden(request: Request, exc: Forbidden) -> Response:
@@ -157,6 +162,8 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         return response
 
     app.add_middleware(CookieMiddleware)  # writes the session, pre-login and device cookies (server/cookies.py)
+    # Added last, so outermost of our middleware: a slow body is cut off before other work is done for it.
+    app.add_middleware(BodyDeadline, seconds=settings.body_timeout_s)
     _install_error_handlers(app)
 
     from .api.v1 import router as api_router

@@ -62,12 +62,13 @@ def cmd_serve(args: argparse.Namespace) -> int:
 
     from .app import create_app
     from .db import upgrade
+    from .serving import uvicorn_config
 
     settings = _settings()
     upgrade(settings.database_url)
     app = create_app(settings)
     print(f"Remanence at http://{args.host}:{args.port}", flush=True)
-    uvicorn.run(app, host=args.host, port=args.port, log_level=args.log_level, workers=1)
+    uvicorn.Server(uvicorn_config(app, settings, host=args.host, port=args.port, log_level=args.log_level)).run()
     return 0
 
 
@@ -341,6 +342,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv: Sequence[str] | None = None) -> int:
+    os.umask(0o077)  # whatever the command writes (database, backups, logs) is private to this account
     args = build_parser().parse_args(argv)
     return int(args.func(args) or 0)
 

@@ -8,7 +8,6 @@ through psycopg 3. The schema is only ever created by Alembic (:func:`upgrade`).
 
 from __future__ import annotations
 
-from pathlib import Path
 
 from alembic import command
 from alembic.config import Config
@@ -17,6 +16,7 @@ from sqlalchemy.engine import Engine, make_url
 from sqlmodel import create_engine
 
 from .package_files import migrations_dir
+from .private_files import private_sqlite
 
 SQLITE_BUSY_TIMEOUT_MS = 15_000
 
@@ -24,8 +24,8 @@ SQLITE_BUSY_TIMEOUT_MS = 15_000
 def make_engine(database_url: str, *, echo: bool = False, busy_ms: int = SQLITE_BUSY_TIMEOUT_MS) -> Engine:
     url = make_url(database_url)
     if url.get_backend_name() == "sqlite":
-        if url.database and url.database != ":memory:":
-            Path(url.database).parent.mkdir(parents=True, exist_ok=True)
+        if url.database and url.database != ":memory:" and not url.database.startswith("file:"):
+            private_sqlite(url.database)
         engine = create_engine(
             database_url,
             echo=echo,
@@ -58,5 +58,5 @@ def upgrade(database_url: str, revision: str = "head") -> None:
     """Create or upgrade the schema by running the migrations."""
     url = make_url(database_url)
     if url.get_backend_name() == "sqlite" and url.database and url.database != ":memory:":
-        Path(url.database).parent.mkdir(parents=True, exist_ok=True)
+        private_sqlite(url.database)
     command.upgrade(alembic_config(database_url), revision)

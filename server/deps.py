@@ -19,6 +19,7 @@ from sqlmodel import Session, select
 
 from . import access
 from .access import Actor
+from .bounds import MAX_ROW_ID
 from .models import ApiToken, User, utcnow
 from . import cookies
 from .security import hash_token
@@ -183,8 +184,8 @@ PageWriter = Annotated[Actor, Depends(page_writer)]
 PageAdmin = Annotated[Actor, Depends(page_admin)]
 
 
-# Row ids and offsets fit a 32-bit signed integer on every back end; larger numbers are refused as
-# input errors (422) before they reach the database, which would raise instead of answering "not found".
-MAX_ID = 2_147_483_647
+# Row ids and offsets fit a 32-bit signed integer on every back end (server/bounds.py); larger numbers
+# are refused as input errors (422) before they reach the database.
+MAX_ID = MAX_ROW_ID
 RowId = Annotated[int, Path(ge=1, le=MAX_ID, description="row id")]
 Offset = Annotated[int, Query(ge=0, le=MAX_ID, description="rows to skip")]

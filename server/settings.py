@@ -79,6 +79,12 @@ SETTINGS: tuple[Setting, ...] = (
         "SQLite only: how long a request waits for another writer before answering 503, in milliseconds.",
         int,
     ),
+    Setting("header_timeout_s", "REMANENCE_HEADER_TIMEOUT_S",
+            "Seconds a client has to send a request's line and headers before the connection is closed.", float),
+    Setting("body_timeout_s", "REMANENCE_BODY_TIMEOUT_S",
+            "Seconds a client has to send a request's whole body (an upload) before it is answered 408.", float),
+    Setting("keep_alive_s", "REMANENCE_KEEP_ALIVE_S",
+            "Seconds an idle kept-alive connection stays open.", int),
 )
 
 
@@ -98,6 +104,9 @@ class Settings:
     cookie_secure: bool = False
     session_hours: float = 12.0
     sqlite_busy_ms: int = 15_000
+    header_timeout_s: float = 10.0
+    body_timeout_s: float = 60.0
+    keep_alive_s: int = 5
 
     @classmethod
     def from_env(cls, environ: Mapping[str, str] | None = None, **overrides: Any) -> "Settings":
@@ -133,8 +142,9 @@ def _stored_secret(data_dir: Path) -> str:
     """Read the generated secret key, creating it (mode 600) on first run."""
     path = data_dir / "secret_key"
     if path.exists():
+        os.chmod(path, 0o600)  # a key copied in with looser rights is tightened
         return path.read_text().strip()
-    data_dir.mkdir(parents=True, exist_ok=True)
+    data_dir.mkdir(parents=True, exist_ok=True, mode=0o700)
     key = secrets.token_urlsafe(48)
     fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
     with os.fdopen(fd, "w") as fh:

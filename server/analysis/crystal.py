@@ -40,7 +40,7 @@ METHOD = (
     "(Cordero et al., Dalton Trans. 2008, 2832) + 0.4 A; bowl depth and column stacking "
     "from the core centroid and bowl axis of the symmetry mates."
 )
-VERSION = "crystal/1.1"  # 1.1: bowl depth for any hub ring size
+VERSION = "crystal/1.2"  # 1.1: bowl depth for any hub ring size; 1.2: impossible cells and atom volumes refused
 
 #: 1 A^3 in cm^3.
 A3_TO_CM3 = 1e-24
@@ -68,6 +68,13 @@ NEIGHBOUR_SHELL_A = 10.0
 DENSITY_TOLERANCE = 0.02
 #: Largest molecule we grow before calling the structure polymeric.
 MAX_MOLECULE_ATOMS = 2000
+#: Plausible cell of a small-molecule crystal (our choice, generous): edges up to 500 A (routine
+#: molecular crystals stay well below 100 A), and a volume per non-hydrogen atom of 5-150 A^3.
+#: Organic crystals give about 18 A^3 per non-H atom (Kempster & Lipson, Acta Cryst. B28, 3674,
+#: 1972, the "18 A^3 rule"; value from memory); the range leaves room for solvent voids and
+#: dense inorganic counter-ions, and refuses cells no crystal of molecules can have.
+MAX_CELL_EDGE_A = 500.0
+ATOM_VOLUME_RANGE_A3 = (5.0, 150.0)
 
 _SG_HM_TAGS = ("_space_group_name_H-M_alt", "_symmetry_space_group_name_H-M")
 _SG_HALL_TAGS = ("_space_group_name_Hall", "_symmetry_space_group_name_Hall")
@@ -387,6 +394,46 @@ class _CellAtom:
     occ: float
 
 
+def check_cell(cell: dict[str, float]) -> None:
+    """Refuse a cell no crystal can have, naming the CIF field.
+
+    Edges must be positive and at most :data:`MAX_CELL_EDGE_A`; angles strictly between 0 and
+    180 degrees, and together they must span a real volume: the metric-tensor factor
+    ``1 - cos^2(alpha) - cos^2(beta) - cos^2(gamma) + 2 cos(alpha) cos(beta) cos(gamma)`` must be
+    positive (V = abc sqrt(factor); International Tables for Crystallography Vol. B, ch. 1.1).
+    With the angles in (0, 180) this is also sufficient: the metric tensor is then positive definite.
+    """
+    for axis in "abc":
+        tag = f"_cell_length_{axis}"
+        value = cell[tag]
+        if not (math.isfinite(value) and 0 < value <= MAX_CELL_EDGE_A):
+            raise AnalysisError(f"{tag} = {value:g} A is not a cell edge (0 to {MAX_CELL_EDGE_A:g} A)", field=tag)
+    for name in ("alpha", "beta", "gamma"):
+        tag = f"_cell_angle_{name}"
+        value = cell[tag]
+        if not (math.isfinite(value) and 0 < value < 180):
+            raise AnalysisError(f"{tag} = {value:g} degrees is not between 0 and 180", field=tag)
+    ca, cb, cg = (math.cos(math.radians(cell[f"_cell_angle_{n}"])) for n in ("alpha", "beta", "gamma"))
+    factor = 1 - ca * ca - cb * cb - cg * cg + 2 * ca * cb * cg
+    if not factor > 1e-9:
+        raise AnalysisError(
+            f"the cell angles {cell['_cell_angle_alpha']:g}, {cell['_cell_angle_beta']:g}, "
+            f"{cell['_cell_angle_gamma']:g} degrees enclose no volume", field="_cell_angle_alpha")
+
+
+def check_atom_volume(volume_A3: float, non_h_atoms: float) -> None:
+    """Refuse a cell whose volume per non-hydrogen atom is outside :data:`ATOM_VOLUME_RANGE_A3`."""
+    lo, hi = ATOM_VOLUME_RANGE_A3
+    if non_h_atoms <= 0:
+        return  # nothing to compare; a CIF of hydrogen only is refused elsewhere or has no molecule
+    per_atom = volume_A3 / non_h_atoms
+    if not lo <= per_atom <= hi:
+        raise AnalysisError(
+            f"the cell volume {volume_A3:.4g} A^3 gives {per_atom:.3g} A^3 per non-hydrogen atom "
+            f"({non_h_atoms:g} in the cell); crystals of molecules have about 18 (accepted: {lo:g}-{hi:g})",
+            field="_cell_volume")
+
+
 def _op_matrices(sg: gemmi.SpaceGroup) -> list[tuple[np.ndarray, np.ndarray]]:
     out = []
     for op in sg.operations():
@@ -642,6 +689,7 @@ def analyse_cif(
     for tag in _CELL_TAGS:
         if _number(block, tag) is None:
             raise AnalysisError(f"the cell is incomplete: {tag} is missing", field="cif")
+    check_cell({tag: _number(block, tag) for tag in _CELL_TAGS})
     sg, sg_flags = _space_group(block)
     flags.extend(sg_flags)
     try:
@@ -669,6 +717,7 @@ def analyse_cif(
     if unknown:
         raise AnalysisError(f"atom sites with unknown element types: {', '.join(unknown)}", field="cif")
     cell_atoms = _expand(sites, ops, orth)
+    check_atom_volume(cell.volume, sum(a.occ for a in cell_atoms if a.element not in ("H", "D")))
 
     # formulae
     formula_cif_text = _value(block, "_chemical_formula_sum")

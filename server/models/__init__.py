@@ -11,6 +11,7 @@ from .registry import (
     Batch,
     BatchCreate,
     BatchRead,
+    CodeCounter,
     Compound,
     CompoundCreate,
     CompoundPage,
@@ -29,7 +30,7 @@ from .types import UTCDateTime, utcnow
 metadata = SQLModel.metadata
 
 __all__ = [
-    "ApiToken", "AuditEvent", "CompoundSideChain", "CompoundStats", "BATCH_STATES", "BarrierEstimate", "Batch", "BatchCreate", "BatchRead", "Compound",
+    "ApiToken", "AuditEvent", "CompoundSideChain", "CompoundStats", "BATCH_STATES", "BarrierEstimate", "Batch", "BatchCreate", "BatchRead", "CodeCounter", "Compound",
     "CompoundCreate", "CompoundPage", "CompoundRead", "CompoundUpdate", "CrystalPhase", "ScaffoldCreate",
     "ScaffoldRead", "SiteSetting", "SideChainRead", "SideChainSpec",
     "JOB_STATES", "Job", "LoginThrottle", "WebSession", "Measurement", "ROLES", "RawFile", "SCOPES", "Scaffold", "UTCDateTime", "User",

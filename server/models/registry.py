@@ -8,6 +8,7 @@ from typing import Any, Optional
 import sqlalchemy as sa
 from sqlmodel import Field, SQLModel
 
+from ..bounds import BUILT_CHAIN_CARBONS
 from .types import UTCDateTime, utcnow
 
 BATCH_STATES = ("made", "impure", "failed", "used_up")
@@ -59,6 +60,17 @@ class Compound(SQLModel, table=True):
     override_at: Optional[datetime] = Field(default=None, sa_type=UTCDateTime)
 
 
+class CodeCounter(SQLModel, table=True):
+    """The last number handed out in one code series ("compound", or "batch:<compound code>").
+
+    Incremented in the transaction that stores the new row (server/services/codes.py), so a
+    failed registration rolls its number back with it: no gaps, no duplicates, no retries.
+    """
+
+    name: str = Field(primary_key=True, max_length=80)
+    n: int = 0
+
+
 class Batch(SQLModel, table=True):
     id: Optional[int] = Field(default=None, primary_key=True)
     code: str = Field(max_length=50, unique=True, index=True)
@@ -85,7 +97,7 @@ class SideChainSpec(SQLModel):
     """A side chain to attach at every attachment point of a scaffold."""
 
     kind: str = Field(description="alkoxy, alkylthio or alkyl")
-    carbons: Optional[int] = Field(default=None, ge=1, le=30, description="carbon count (linear chains)")
+    carbons: Optional[int] = Field(default=None, ge=BUILT_CHAIN_CARBONS[0], le=BUILT_CHAIN_CARBONS[1], description="carbon count (linear chains)")
     branched_form: Optional[str] = Field(default=None, description="a named branched chain, e.g. 2-ethylhexyl")
 
 

@@ -26,6 +26,7 @@ from sqlalchemy.engine import Engine, make_url
 
 from .. import __version__
 from ..models import RawFile, metadata, utcnow
+from ..private_files import private_dir, private_file, private_sqlite, write_private_text
 
 MANIFEST = "manifest.json"
 SQLITE_FILE = "remanence.db"
@@ -99,10 +100,11 @@ def backup(engine: Engine, database_url: str, target: Path) -> dict[str, Any]:
     target = Path(target)
     if target.exists() and any(target.iterdir()):
         raise BackupError(f"{target} is not empty; back up into a new folder")
-    target.mkdir(parents=True, exist_ok=True)
+    private_dir(target)
+    os.chmod(target, 0o700)
     backend = make_url(database_url).get_backend_name()
     if backend == "sqlite":
-        snapshot = target / SQLITE_FILE
+        snapshot = private_file(target / SQLITE_FILE)
         src = sqlite3.connect(make_url(database_url).database)
         dst = sqlite3.connect(snapshot)
         try:
@@ -114,7 +116,7 @@ def backup(engine: Engine, database_url: str, target: Path) -> dict[str, Any]:
     elif backend == "postgresql":
         if shutil.which("pg_dump") is None:
             raise BackupError("pg_dump is not installed (Debian package postgresql-client)")
-        snapshot = target / PG_FILE
+        snapshot = private_file(target / PG_FILE)  # pg_dump truncates it and keeps the mode
         args, env = _pg_args(database_url)
         proc = subprocess.run(["pg_dump", "--format=custom", "--no-owner", "--file", str(snapshot), *args],
                               env=env, capture_output=True, text=True)
@@ -132,7 +134,7 @@ def backup(engine: Engine, database_url: str, target: Path) -> dict[str, Any]:
         "counts": _counts(engine),
         "raw_files_sha256": _raw_hashes(engine),
     }
-    (target / MANIFEST).write_text(json.dumps(manifest, indent=2, sort_keys=True))
+    write_private_text(target / MANIFEST, json.dumps(manifest, indent=2, sort_keys=True))
     return manifest
 
 
@@ -165,7 +167,7 @@ def restore(engine: Engine, database_url: str, source: Path) -> dict[str, Any]:
         path = Path(make_url(database_url).database)
         for suffix in ("-wal", "-shm"):
             Path(str(path) + suffix).unlink(missing_ok=True)
-        path.parent.mkdir(parents=True, exist_ok=True)
+        private_sqlite(str(path))
         src = sqlite3.connect(snapshot)
         dst = sqlite3.connect(path)
         try:

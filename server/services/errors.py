@@ -17,6 +17,10 @@ class Duplicate(RemanenceError):
         self.existing = existing
 
 
+class Archived(RemanenceError):
+    """409: the thing is archived and takes no new data until it is restored."""
+
+
 class Forbidden(RemanenceError):
     """403 raised from a service (e.g. an upload token limited to other kinds)."""
 

@@ -23,7 +23,7 @@ from ..kinds import KINDS, Context, Kind
 from ..models import Batch, Compound, Measurement, RawFile, utcnow
 from ..plots import figure_json
 from . import audit, stats, verdicts
-from .errors import Forbidden, NotFound, TooLarge
+from .errors import Archived, Forbidden, NotFound, TooLarge
 
 __all__ = ["FORM_FIELDS", "upload_measurement", "reanalyse", "reanalyse_one", "set_archived", "refresh_derived"]
 
@@ -88,6 +88,11 @@ def upload_measurement(
     The same bytes posted again for the same batch and kind return the stored measurement
     (created False) without analysing again.
     """
+    if batch.archived:
+        raise Archived(f"batch {batch.code} is archived; restore it before adding measurements")
+    compound = session.get(Compound, batch.compound_id)
+    if compound.archived:
+        raise Archived(f"compound {compound.code} is archived; restore it before adding measurements")
     kind = get_kind(kind_name)
     if allowed_kinds is not None and kind.name not in allowed_kinds:
         raise Forbidden(f"this token may upload only {', '.join(allowed_kinds)}, not {kind.name}")
@@ -98,7 +103,6 @@ def upload_measurement(
     ).first()
     if existing is not None:
         return existing, False
-    compound = session.get(Compound, batch.compound_id)
     done = analyse(kind, raw, filename=filename, form=form, context=context_for(compound))
 
     rawfile = session.exec(select(RawFile).where(RawFile.sha256 == sha)).first()

@@ -30,7 +30,7 @@ from ..models import (
 )
 from ..access import Actor, may_see_structure
 from ..settings import Settings
-from . import audit, search, stats, verdicts
+from . import audit, codes, search, stats, verdicts
 from .errors import Duplicate, NotFound
 
 
@@ -71,10 +71,6 @@ def preview(*, session: Session, text: str) -> Preview:
     )
 
 
-def _next_number(session: Session) -> int:
-    return (session.exec(select(func.max(Compound.number))).one() or 0) + 1
-
-
 def format_code(settings: Settings, number: int) -> str:
     return f"{settings.code_prefix}-{number:0{settings.code_digits}d}"
 
@@ -89,46 +85,44 @@ def register_compound(*, session: Session, settings: Settings, data: CompoundCre
         raise Duplicate(f"this molecule is registered already as {existing.code}", existing=existing.code)
     scaffold_id = get_scaffold(session, data.scaffold).id if data.scaffold else None
     chains = sidechains.perceive_side_chains(mol)
-    for attempt in range(5):
-        number = _next_number(session)
-        compound = Compound(
-            number=number,
-            code=format_code(settings, number),
-            label=data.label.strip(),
-            smiles=ident.smiles,
-            inchi=ident.inchi,
-            inchikey=ident.inchikey,
-            formula=ident.formula,
-            mw=ident.mw,
-            exact_mass=ident.exact_mass,
-            heavy_atoms=ident.heavy_atoms,
-            side_chains=[c.to_dict() for c in chains],
-            side_chain_summary=sidechains.describe_side_chains(chains),
-            scaffold_id=scaffold_id,
-            notes=data.notes,
-            embargoed=data.embargoed,
-            created_by=actor,
-        )
-        session.add(compound)
-        try:
-            session.flush()
-        except IntegrityError:
-            # Another process took the number (or registered the same molecule) meanwhile.
-            session.rollback()
-            dup = session.exec(select(Compound).where(Compound.inchikey == ident.inchikey)).first()
-            if dup is not None:
-                raise Duplicate(f"this molecule is registered already as {dup.code}", existing=dup.code) from None
-            continue
-        search.index_compound(session, compound)
-        audit.record(
-            session, actor=actor, action="compound.create", entity="compound", code=compound.code,
-            compound_id=compound.id, after=audit.snapshot(compound),
-        )
-        stats.refresh(session, compound)
-        session.commit()
-        session.refresh(compound)
-        return compound
-    raise RuntimeError("could not allocate a compound number after 5 attempts")
+    number = codes.allocate(session, codes.COMPOUND_SERIES)
+    compound = Compound(
+        number=number,
+        code=format_code(settings, number),
+        label=data.label.strip(),
+        smiles=ident.smiles,
+        inchi=ident.inchi,
+        inchikey=ident.inchikey,
+        formula=ident.formula,
+        mw=ident.mw,
+        exact_mass=ident.exact_mass,
+        heavy_atoms=ident.heavy_atoms,
+        side_chains=[c.to_dict() for c in chains],
+        side_chain_summary=sidechains.describe_side_chains(chains),
+        scaffold_id=scaffold_id,
+        notes=data.notes,
+        embargoed=data.embargoed,
+        created_by=actor,
+    )
+    session.add(compound)
+    try:
+        session.flush()
+    except IntegrityError:
+        # Another request registered the same molecule meanwhile; the rollback returns the number too.
+        session.rollback()
+        dup = session.exec(select(Compound).where(Compound.inchikey == ident.inchikey)).first()
+        if dup is not None:
+            raise Duplicate(f"this molecule is registered already as {dup.code}", existing=dup.code) from None
+        raise
+    search.index_compound(session, compound)
+    audit.record(
+        session, actor=actor, action="compound.create", entity="compound", code=compound.code,
+        compound_id=compound.id, after=audit.snapshot(compound),
+    )
+    stats.refresh(session, compound)
+    session.commit()
+    session.refresh(compound)
+    return compound
 
 
 def get_compound(session: Session, code: str) -> Compound:
@@ -181,34 +175,28 @@ def set_compound_archived(*, session: Session, compound: Compound, archived: boo
 def add_batch(*, session: Session, compound: Compound, data: BatchCreate, actor: str) -> Batch:
     if data.state not in BATCH_STATES:
         raise InputError(f"state must be one of {', '.join(BATCH_STATES)}", field="state")
-    for attempt in range(5):
-        seq = (session.exec(select(func.max(Batch.seq)).where(Batch.compound_id == compound.id)).one() or 0) + 1
-        batch = Batch(
-            code=f"{compound.code}-B{seq:02d}",
-            compound_id=compound.id,
-            seq=seq,
-            made_on=data.made_on,
-            chemist=data.chemist.strip(),
-            scale_mg=data.scale_mg,
-            yield_pct=data.yield_pct,
-            purity_pct=data.purity_pct,
-            state=data.state,
-            notes=data.notes,
-            created_by=actor,
-        )
-        session.add(batch)
-        try:
-            session.flush()
-        except IntegrityError:
-            session.rollback()
-            continue
-        audit.record(session, actor=actor, action="batch.create", entity="batch", code=batch.code,
-                     compound_id=compound.id, after=audit.snapshot(batch))
-        stats.refresh(session, compound)
-        session.commit()
-        session.refresh(batch)
-        return batch
-    raise RuntimeError("could not allocate a batch number after 5 attempts")
+    seq = codes.allocate(session, codes.batch_series(compound.code))
+    batch = Batch(
+        code=f"{compound.code}-B{seq:02d}",
+        compound_id=compound.id,
+        seq=seq,
+        made_on=data.made_on,
+        chemist=data.chemist.strip(),
+        scale_mg=data.scale_mg,
+        yield_pct=data.yield_pct,
+        purity_pct=data.purity_pct,
+        state=data.state,
+        notes=data.notes,
+        created_by=actor,
+    )
+    session.add(batch)
+    session.flush()
+    audit.record(session, actor=actor, action="batch.create", entity="batch", code=batch.code,
+                 compound_id=compound.id, after=audit.snapshot(batch))
+    stats.refresh(session, compound)
+    session.commit()
+    session.refresh(batch)
+    return batch
 
 
 def compound_of(session: Session, batch: Batch) -> Compound:

@@ -9,7 +9,6 @@ SQLAlchemy expressions, whose literals travel as bound parameters.
 
 from __future__ import annotations
 
-import io
 from dataclasses import dataclass, field
 from datetime import date, datetime, time, timedelta, timezone
 from typing import Any, Callable, Mapping, Optional, Sequence
@@ -21,6 +20,7 @@ from sqlmodel import Session, select
 
 from .. import access
 from ..access import Actor
+from ..bounds import CARBONS, MAX_ROW_ID, PAGE, whole_number
 from ..errors import InputError
 from ..models import BATCH_STATES, Compound, CompoundSideChain, CompoundStats, Scaffold
 from ..kinds import KINDS
@@ -32,11 +32,8 @@ def _escape_like(text: str) -> str:
     return text.replace("\\", "\\\\").replace("%", "\\%").replace("_", "\\_")
 
 
-def _int(name: str, text: str) -> int:
-    try:
-        return int(text)
-    except ValueError:
-        raise InputError(f"{text!r} is not a whole number", field=name) from None
+def _carbons(name: str, text: str) -> int:
+    return whole_number(name, text, lo=CARBONS[0], hi=CARBONS[1])
 
 
 def _float(name: str, text: str) -> float:
@@ -120,13 +117,13 @@ FILTERS: tuple[Filter, ...] = (
     Filter("scaffold", "Scaffold", lambda n, t: t, lambda v, _: Scaffold.code == v),
     Filter("bridge", "Bridge", lambda n, t: t, lambda v, _: Scaffold.bridge == v),
     Filter("chain_kind", "Side-chain kind", _choice(lambda: ("alkoxy", "alkylthio", "alkyl", "other"))),
-    Filter("c_min", "Carbons from", _int),
-    Filter("c_max", "Carbons to", _int),
+    Filter("c_min", "Carbons from", _carbons),
+    Filter("c_max", "Carbons to", _carbons),
     Filter("branched", "Branched", _bool),
     # The molecule's most frequent side chain (what the outcome map groups by).
     Filter("main_kind", "Main side-chain kind", _choice(lambda: ("alkoxy", "alkylthio", "alkyl", "other")),
            lambda v, _: CompoundStats.chain_kind == v),
-    Filter("main_c", "Main side-chain carbons", _int, lambda v, _: CompoundStats.chain_carbons == v),
+    Filter("main_c", "Main side-chain carbons", _carbons, lambda v, _: CompoundStats.chain_carbons == v),
     Filter("main_branched", "Main side chain branched", _bool, lambda v, _: CompoundStats.chain_branched == v),
     Filter("batch_state", "Batch state", _choice(lambda: BATCH_STATES),
            lambda v, _: CompoundStats.batch_states.like(f"%,{v},%")),
@@ -238,11 +235,9 @@ def parse_view(params: Any, *, max_size: int = 500) -> ViewQuery:
     direction = (getlist("dir") or ["desc"])[-1]
     if direction not in ("asc", "desc"):
         raise InputError("dir is asc or desc", field="dir")
-    page = _int("page", (getlist("page") or ["1"])[-1])
-    size = _int("size", (getlist("size") or ["50"])[-1])
-    if page < 1 or not 1 <= size <= max_size:
-        raise InputError(f"page starts at 1 and size is 1-{max_size}", field="page" if page < 1 else "size")
-    if page * size > 2_147_483_647:
+    page = whole_number("page", (getlist("page") or ["1"])[-1], lo=PAGE[0], hi=PAGE[1])
+    size = whole_number("size", (getlist("size") or ["50"])[-1], lo=1, hi=max_size)
+    if page * size > MAX_ROW_ID:
         raise InputError("that page is far past the last one", field="page")
     sub = (getlist("substructure") or [None])[-1]
     sim = (getlist("similar") or [None])[-1]
@@ -370,16 +365,6 @@ def export_frame(result: ViewResult, *, actor: Optional[Actor]) -> pd.DataFrame:
                         "molar mass (g/mol)": None, "side chains": None})
         records.append(rec)
     return pd.DataFrame.from_records(records, columns=[name for name, _ in EXPORT_COLUMNS])
-
-
-def export_bytes(frame: pd.DataFrame, fmt: str) -> tuple[bytes, str]:
-    if fmt == "csv":
-        return frame.to_csv(index=False).encode("utf-8"), "text/csv; charset=utf-8"
-    if fmt == "xlsx":
-        buf = io.BytesIO()
-        frame.to_excel(buf, index=False, sheet_name="compounds")
-        return buf.getvalue(), "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"
-    raise InputError("export as csv or xlsx", field="format")
 
 
 def filter_choices(session: Session) -> dict[str, list[str]]:

@@ -39,7 +39,7 @@ def explorer(request: Request, session: SessionDep, actor: PageActor, x: str = "
                   {"figure": fig, "error": error, "n": n, "properties": explore.PROPERTIES,
                    "groupings": explore.GROUPINGS, "x": x, "y": y, "group": group, "trend": trend, "t": t,
                    "q": q, "filter_link": q.link(page=None)},
-                  partial="partials/explorer_plot.html", actor=actor)
+                  partial="partials/explorer_plot.html", actor=actor, status_code=422 if error else 200)
 
 
 @router.get("/outcomes", response_class=HTMLResponse)
@@ -53,7 +53,7 @@ def outcomes(request: Request, session: SessionDep, actor: PageActor, by: str = 
         error = str(exc)
     return render(request, "pages/outcomes.html",
                   {"map": omap, "error": error, "by": by},
-                  actor=actor)
+                  actor=actor, status_code=422 if error else 200)
 
 
 @router.get("/status", response_class=HTMLResponse)

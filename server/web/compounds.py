@@ -16,7 +16,8 @@ from ..errors import InputError
 from ..ingest.conditions import parse_quantity
 from ..jobs import queue
 from ..models import CompoundCreate, CompoundUpdate, SideChainSpec
-from ..services import barriers, estimates, registry, status, verdicts, views
+from ..bounds import BUILT_CHAIN_CARBONS, whole_number
+from ..services import barriers, estimates, exports, registry, status, verdicts, views
 from ..services.compound_page import compound_page as compound_page_data
 from ..services.errors import Duplicate
 from ..kinds import KINDS
@@ -49,7 +50,7 @@ def compound_list(request: Request, session: SessionDep, actor: PageActor):
         request, "pages/compounds.html",
         {"result": result, "q": q, "error": error, "choices": views.filter_choices(session), "sorts": views.SORTS,
          "link": q.link()},
-        partial="partials/compound_table.html", actor=actor,
+        partial="partials/compound_table.html", actor=actor, status_code=422 if error else 200,
     )
 
 
@@ -58,7 +59,7 @@ def compound_export(fmt: str, request: Request, session: SessionDep, actor: Page
     """The current view (all pages) as CSV or XLSX, units in the column headers."""
     q = views.parse_view(request.query_params)
     frame = views.export_frame(views.query_view(session, q, actor=actor, paged=False), actor=actor)
-    body, media = views.export_bytes(frame, fmt)
+    body, media = exports.table_bytes(frame, fmt, sheet="compounds")
     return Response(body, media_type=media,
                     headers={"Content-Disposition": f'attachment; filename="remanence-compounds.{fmt}"'})
 
@@ -82,10 +83,8 @@ def _compound_create(form: dict) -> CompoundCreate:
     chain = None
     if not (form.get("smiles") or "").strip() and form.get("scaffold") and form.get("chain_kind"):
         carbons = form.get("chain_carbons") or None
-        try:
-            carbons_int = int(carbons) if carbons else None
-        except ValueError:
-            raise InputError(f"{carbons!r} is not a whole number", field="chain_carbons") from None
+        carbons_int = whole_number("chain_carbons", carbons, lo=BUILT_CHAIN_CARBONS[0],
+                                   hi=BUILT_CHAIN_CARBONS[1]) if carbons else None
         try:
             chain = SideChainSpec(kind=form["chain_kind"], carbons=carbons_int,
                                   branched_form=form.get("branched_form") or None)

@@ -12,7 +12,7 @@ from ..ingest.conditions import CONDITION_EXAMPLES
 from ..kinds import KINDS, needed_by
 from ..models import Batch, Compound
 from ..services import measurements, registry
-from ..services.errors import Forbidden
+from ..services.errors import Archived, Forbidden
 from .render import redirect, render
 
 router = APIRouter(include_in_schema=False)
@@ -65,9 +65,10 @@ def upload(
             session=session, batch=batch, kind_name=kind, raw=raw, filename=file.filename,
             form={k: (v or None) for k, v in form.items() if k != "kind"}, actor=actor.label,
         )
-    except (InputError, Forbidden) as exc:
+    except (InputError, Forbidden, Archived) as exc:
         return render(request, "pages/upload.html", _upload_context(batch, compound, form, str(exc)),
-                      partial="partials/upload_form.html", status_code=422, actor=actor)
+                      partial="partials/upload_form.html", status_code=409 if isinstance(exc, Archived) else 422,
+                      actor=actor)
     return redirect(f"/measurements/{m.id}", request)
 
 

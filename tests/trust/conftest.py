@@ -123,16 +123,19 @@ def thread_server(app, *, start_timeout_s: float = 15.0) -> Iterator[str]:
         sock.close()
 
 
-# The child: the settings come from the environment (as `remanence serve` reads them); the
-# listening socket is inherited by file descriptor, so the port is ours without a race.
+# The child: the settings come from the environment (as `remanence serve` reads them), served with
+# the same uvicorn configuration as `remanence serve` (server/serving.py: header, body and keep-alive
+# deadlines); the listening socket is inherited by file descriptor, so the port is ours without a race.
 CHILD = """
 import socket, sys, uvicorn
 from server.app import create_app
+from server.serving import uvicorn_config
 from server.settings import Settings
 sock = socket.socket(socket.AF_INET, socket.SOCK_STREAM, fileno=int(sys.argv[1]))
-app = create_app(Settings.from_env())
-uvicorn.Server(uvicorn.Config(app, log_level="warning", access_log=False, lifespan="on", ws="none",
-                              loop="asyncio", http="h11", backlog=256)).run(sockets=[sock])
+settings = Settings.from_env()
+app = create_app(settings)
+uvicorn.Server(uvicorn_config(app, settings, log_level="warning", access_log=False, lifespan="on",
+                              loop="asyncio", backlog=256)).run(sockets=[sock])
 """
 
 
@@ -142,6 +145,7 @@ class ServerProcess:
 
     database_url: str
     data_dir: Path
+    extra_env: dict[str, str] = field(default_factory=dict)
     proc: Optional[subprocess.Popen] = None
     url: str = ""
     log: list[Path] = field(default_factory=list)
@@ -152,9 +156,10 @@ class ServerProcess:
         env.update(REMANENCE_DATABASE_URL=self.database_url, REMANENCE_DATA_DIR=str(self.data_dir),
                    REMANENCE_EMBEDDED_WORKER="false", REMANENCE_SECRET_KEY="trust-test-secret-not-for-production",
                    PYTHONPATH=str(ROOT), OMP_NUM_THREADS="1")
+        env.update(self.extra_env)
         return env
 
-    def start(self, timeout_s: float = 30.0) -> str:
+    def start(self, timeout_s: float = 120.0) -> str:
         assert self.proc is None or self.proc.poll() is not None, "already running"
         sock = bound_socket()
         port = sock.getsockname()[1]

@@ -12,7 +12,7 @@ from ...deps import Offset, Reader, RowId, SessionDep, SettingsDep, Uploader, Wr
 from ...kinds import KINDS
 from ...models import RawFile
 from ...services import accounts, measurements, registry
-from .responses import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND, ErrorOut
+from .responses import ARCHIVED, AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND, ErrorOut
 
 router = APIRouter(tags=["measurements"])
 
@@ -49,7 +49,7 @@ class MeasurementPage(BaseModel):
     "/batches/{batch_code}/measurements",
     status_code=201,
     response_model=MeasurementOut,
-    responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS, 200: {"model": MeasurementOut, "description": "the same bytes were stored already for this batch"},
+    responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS, **ARCHIVED, 200: {"model": MeasurementOut, "description": "the same bytes were stored already for this batch"},
                413: {"model": ErrorOut, "description": "file too large"}},
 )
 def upload(
@@ -109,7 +109,10 @@ def get_measurement(measurement_id: RowId, session: SessionDep, actor: Reader):
                                 sees_people=actor.sees_people)
 
 
-@router.get("/measurements/{measurement_id}/raw", responses={**AUTH_ERRORS, **NOT_FOUND})
+@router.get("/measurements/{measurement_id}/raw", response_class=Response,
+            responses={**AUTH_ERRORS, **NOT_FOUND,
+                       200: {"content": {"application/octet-stream": {}},
+                             "description": "the stored bytes; `X-Content-SHA256` carries their checksum"}})
 def get_raw(measurement_id: RowId, session: SessionDep, actor: Reader) -> Response:
     """The stored bytes, exactly as uploaded; the checksum travels in the headers."""
     m = measurements.get_measurement(session, measurement_id)

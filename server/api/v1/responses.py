@@ -23,4 +23,5 @@ AUTH_ERRORS = {
 }
 INPUT_ERRORS = {422: {"model": ErrorOut, "description": "bad input; `detail` says what and where"}}
 NOT_FOUND = {404: {"model": ErrorOut, "description": "no such thing"}}
+ARCHIVED = {409: {"model": ErrorOut, "description": "archived: restore it before adding data"}}
 DUPLICATE = {409: {"model": DuplicateOut, "description": "exists already; `existing` names it"}}

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from contextlib import asynccontextmanager
 from pathlib import Path
 from urllib.parse import quote
@@ -20,6 +21,7 @@ from starlette.middleware.sessions import SessionMiddleware
 from . import __version__
 from .db import make_engine
 from .errors import InputError
+from .ratelimit import TokenBuckets, caller_key
 from .services.errors import Duplicate, Forbidden, NotFound
 from .settings import PROJECT_ROOT, Settings, get_settings
 from .web import format as format_filters
@@ -142,6 +144,22 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         response.headers.setdefault("X-Frame-Options", "DENY")
         response.headers.setdefault("Referrer-Policy", "same-origin")
         return response
+
+    search_buckets = TokenBuckets(settings.search_per_minute, settings.search_burst)
+
+    @app.middleware("http")
+    async def search_rate_limit(request: Request, call_next):
+        # Any request that asks for a structure search (API, registry, explorer, outcome map) spends a token.
+        params = request.query_params
+        if any((params.get(name) or "").strip() for name in ("substructure", "similar")):
+            wait_s = search_buckets.take(caller_key(request))
+            if wait_s:
+                response = _error(request, 429, f"too many structure searches: at most "
+                                  f"{settings.search_per_minute:g} a minute (REMANENCE_SEARCH_PER_MINUTE), "
+                                  f"{settings.search_burst} at once; try again in {math.ceil(wait_s)} s")
+                response.headers["Retry-After"] = str(math.ceil(wait_s))
+                return response
+        return await call_next(request)
 
     app.add_middleware(
         SessionMiddleware,

@@ -68,6 +68,13 @@ SETTINGS: tuple[Setting, ...] = (
     Setting("cookie_secure", "REMANENCE_COOKIE_SECURE", "Send the session cookie over HTTPS only.", _bool),
     Setting("session_hours", "REMANENCE_SESSION_HOURS", "How long a login lasts, in hours.", float),
     Setting(
+        "search_per_minute",
+        "REMANENCE_SEARCH_PER_MINUTE",
+        "Structure searches per minute allowed to one caller (token, account or client address), per process.",
+        float,
+    ),
+    Setting("search_burst", "REMANENCE_SEARCH_BURST", "Structure searches one caller may make at once.", int),
+    Setting(
         "sqlite_busy_ms",
         "REMANENCE_SQLITE_BUSY_MS",
         "SQLite only: how long a request waits for another writer before answering 503, in milliseconds.",
@@ -89,6 +96,8 @@ class Settings:
     cookie_secure: bool = False
     session_hours: float = 12.0
     sqlite_busy_ms: int = 15_000
+    search_per_minute: float = 60.0
+    search_burst: int = 20
 
     @classmethod
     def from_env(cls, environ: Mapping[str, str] | None = None, **overrides: Any) -> "Settings":

@@ -37,7 +37,8 @@ from ..chem.search import MORGAN_FP_SIZE, MORGAN_RADIUS, Query, QueryTooGeneral,
 from ..errors import InputError
 from ..models import Compound
 
-__all__ = ["STRUCTURE_TABLE", "Hit", "backend", "search", "index_compound", "structure_index"]
+__all__ = ["STRUCTURE_TABLE", "Hit", "backend", "search", "index_compound", "structure_index", "enable_cartridge",
+           "CartridgeState"]
 
 log = logging.getLogger("remanence.search")
 
@@ -369,3 +370,61 @@ def _search_in_process(session, sub_q: Query | None, sim_q: Query | None, t: flo
             continue
         hits.append(Hit(compound_id=compound_id, code=code, similarity=sim))
     return hits
+
+
+# --- enabling the cartridge after the migrations ------------------------------------------------
+
+
+@dataclass(frozen=True)
+class CartridgeState:
+    """What :func:`enable_cartridge` found: ``ready``, and the server's words when it is not."""
+
+    ready: bool
+    created_table: bool = False
+    error: str = ""
+
+
+def enable_cartridge(engine: Engine) -> CartridgeState:
+    """On PostgreSQL, make the cartridge back end usable if the server allows it; a no-op elsewhere.
+
+    Migration 0004 skips ``compound_structure`` when ``CREATE EXTENSION rdkit`` fails (package
+    missing, or the packaged script's defect, see :mod:`server.pg_cartridge`). Once the
+    administrator has fixed that, this creates the extension and builds the table and its
+    GiST indexes exactly as migration 0004 does, filled from ``compound.smiles``, in one
+    transaction. Returns ``CartridgeState(ready=False, error=...)`` with PostgreSQL's message
+    when it still cannot (nothing is changed then).
+    """
+    if engine.dialect.name != "postgresql":
+        return CartridgeState(ready=False, error="not PostgreSQL: structure search runs in process")
+    with engine.connect() as conn:
+        available = conn.execute(text("SELECT 1 FROM pg_available_extensions WHERE name = 'rdkit'")).first()
+        conn.rollback()
+        if available is None:
+            return CartridgeState(ready=False, error="the RDKit cartridge is not installed on the PostgreSQL server "
+                                                     "(Debian package postgresql-15-rdkit)")
+        try:
+            with conn.begin():
+                conn.execute(text("CREATE EXTENSION IF NOT EXISTS rdkit"))
+                if conn.execute(text("SELECT to_regclass(:t)"), {"t": STRUCTURE_TABLE}).scalar_one() is not None:
+                    created = False
+                else:
+                    # The statements of migration 0004 (kept there as that revision's record).
+                    conn.execute(text(
+                        f"CREATE TABLE {STRUCTURE_TABLE} (compound_id integer NOT NULL, m mol, mfp bfp, "
+                        f"CONSTRAINT pk_{STRUCTURE_TABLE} PRIMARY KEY (compound_id), "
+                        f"CONSTRAINT fk_{STRUCTURE_TABLE}_compound_id_compound FOREIGN KEY (compound_id) "
+                        "REFERENCES compound (id))"))
+                    conn.execute(text(f"CREATE INDEX ix_{STRUCTURE_TABLE}_m ON {STRUCTURE_TABLE} USING gist (m)"))
+                    conn.execute(text(f"CREATE INDEX ix_{STRUCTURE_TABLE}_mfp ON {STRUCTURE_TABLE} USING gist (mfp)"))
+                    conn.execute(text("SELECT set_config('rdkit.morgan_fp_size', :n, true)"),
+                                 {"n": str(MORGAN_FP_SIZE)})
+                    conn.execute(text(
+                        f"INSERT INTO {STRUCTURE_TABLE} (compound_id, m, mfp) "
+                        f"SELECT s.id, s.m, morganbv_fp(s.m, {MORGAN_RADIUS}) "
+                        "FROM (SELECT id, mol_from_smiles(smiles::cstring) AS m FROM compound) AS s"))
+                    created = True
+        except DBAPIError as exc:
+            return CartridgeState(ready=False, error=str(exc.orig).strip())
+    with _lock:
+        _backends.pop(engine, None)  # found again on next use
+    return CartridgeState(ready=True, created_table=created)

@@ -345,25 +345,24 @@ class StructureIndex:
 
     def __init__(self, *, threads: int | None = None) -> None:
         self._write = threading.Lock()
-        self._segments: tuple[_Segment, ...] = _EMPTY
-        self._pos: dict[int, int] = {}  # id -> segment number; replaced, never mutated, by writers
+        # One reference, rebound (never mutated) by writers: (segments, id -> segment number, highest id).
+        self._snap: tuple[tuple[_Segment, ...], dict[int, int], int | None] = (_EMPTY, {}, None)
         self.threads = threads or os.cpu_count() or 1
         self.chunk = MATCH_CHUNK  # molecules per GetMatches call (the budget is checked between calls)
 
     # --- reading (no lock: one read of the snapshot) ------------------------------------------
 
     def __len__(self) -> int:
-        return len(self._pos)
+        return len(self._snap[1])
 
     def __contains__(self, compound_id: object) -> bool:
-        return compound_id in self._pos
+        return compound_id in self._snap[1]
 
     def ids(self) -> set[int]:
-        return set(self._pos)
+        return set(self._snap[1])
 
     def max_id(self) -> int | None:
-        pos = self._pos
-        return max(pos) if pos else None
+        return self._snap[2]
 
     # --- writing (copy-on-write) --------------------------------------------------------------
 
@@ -385,8 +384,9 @@ class StructureIndex:
         if not latest:
             return
         with self._write:
-            segments = list(self._segments)
-            self._drop(segments, set(latest) & set(self._pos))
+            segments, pos, _ = self._snap
+            segments = list(segments)
+            self._drop(segments, pos, set(latest) & set(pos))
             fresh = list(latest.values())
             if segments and len(segments[-1].ids) < SEGMENT_SIZE:
                 room = SEGMENT_SIZE - len(segments[-1].ids)
@@ -402,21 +402,23 @@ class StructureIndex:
 
     def remove_many(self, compound_ids: Iterable[int]) -> None:
         with self._write:
-            gone = set(compound_ids) & set(self._pos)
+            segments, pos, _ = self._snap
+            gone = set(compound_ids) & set(pos)
             if not gone:
                 return
-            segments = list(self._segments)
-            self._drop(segments, gone)
+            segments = list(segments)
+            self._drop(segments, pos, gone)
             self._publish([s for s in segments if s.ids])
 
-    def _drop(self, segments: list[_Segment], gone: set[int]) -> None:
-        for k in sorted({self._pos[i] for i in gone}):
+    @staticmethod
+    def _drop(segments: list[_Segment], pos: dict[int, int], gone: set[int]) -> None:
+        for k in sorted({pos[i] for i in gone}):
             segments[k] = segments[k].without(gone)
 
     def _publish(self, segments: list[_Segment]) -> None:
         pos = {i: k for k, seg in enumerate(segments) for i in seg.ids}
-        # Both names are rebound, never mutated: a reader holding the old ones keeps a consistent view.
-        self._segments, self._pos = tuple(segments), pos
+        # One store of a new tuple: a reader holding the old snapshot keeps a consistent view.
+        self._snap = (tuple(segments), pos, max(pos) if pos else None)
 
     # --- searching ----------------------------------------------------------------------------
 
@@ -440,7 +442,7 @@ class StructureIndex:
             When ``budget_s`` (seconds) is spent before every molecule is checked; the
             clock is read between chunks, so one chunk's matching may run past it.
         """
-        segments = self._segments
+        segments = self._snap[0]
         keep = None if candidates is None else set(candidates)
         deadline = None if budget_s is None else time.monotonic() + budget_s
         q = Chem.Mol(query)
@@ -477,7 +479,7 @@ class StructureIndex:
         q_fp = fingerprint(query)
         keep = None if candidates is None else set(candidates)
         hits: list[tuple[int, float]] = []
-        for seg in self._segments:
+        for seg in self._snap[0]:
             if keep is None:
                 ids, fps = seg.ids, seg.morgan
             else:

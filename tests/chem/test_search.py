@@ -312,3 +312,31 @@ def test_segments_copy_on_write_keep_every_entry():
     hits = idx.substructure(parse_query("CCCCCCCCCCCCCCCCCCCCO"))
     assert hits == [i for i in range(n) if i % 20 == 19 and i != 19] + [n]
     assert len(idx) == n
+
+
+def test_searches_during_registrations_see_whole_snapshots():
+    # Readers never lock; every answer must be a prefix of the registrations (ids registered in order),
+    # never a torn state, while a writer keeps adding.
+    import threading
+
+    idx = StructureIndex(threads=1)
+    benzene = parse_query("c1ccccc1")
+    stop = threading.Event()
+    seen: list[list[int]] = []
+
+    def reader():
+        while not stop.is_set():
+            seen.append(idx.substructure(benzene))
+
+    t = threading.Thread(target=reader)
+    t.start()
+    try:
+        for i in range(1, 301):
+            idx.add(i, "Cc1ccccc1" if i % 2 else "CCO")
+    finally:
+        stop.set()
+        t.join(timeout=30)
+    assert seen
+    for hits in seen:
+        assert hits == list(range(1, 2 * len(hits), 2))
+    assert idx.substructure(benzene) == list(range(1, 301, 2))

@@ -5,11 +5,15 @@ positions, alkoxy/alkylthio/alkyl chains linear and branched), ids 1..N; the fir
 are the compounds of the registry benchmark.
 
 1. In process, 10 000 and 30 000 molecules (100 000 with ``--large``; 2 000 and 5 000 with
-   ``--quick``): ``server.chem.search.StructureIndex.substructure`` (pattern-fingerprint
-   screen + ``HasSubstructMatch`` on the survivors) against a Python loop of
-   ``HasSubstructMatch(useChirality=False)`` over pre-parsed RDKit molecules, for queries a
-   chemist of the campaign asks (a Se bridge, a whole bowl core, a 2-ethylhexyloxy chain,
-   a dodecylthio chain, a nitrile that none has). Figure: speed-up loop/index, target >= 20.
+   ``--quick``): ``server.chem.search.StructureIndex.substructure`` (RDKit SubstructLibrary:
+   pattern-fingerprint screen, then multi-threaded matching of the survivors parsed from
+   trusted SMILES) against a Python loop of ``HasSubstructMatch(useChirality=False)`` over
+   pre-parsed RDKit molecules, for queries a chemist of the campaign asks (a Se bridge, a
+   whole bowl core, a 2-ethylhexyloxy chain, a dodecylthio chain, a nitrile that none has).
+   Figure: speed-up loop/index; target (issue 21) >= 2 (the index at most 0.5x the loop) for
+   any query, >= 20 for groups that fewer than 1 % of the molecules carry.
+   Memory: resident-size growth of a fresh process while it builds an index of 10 000
+   molecules, per molecule (target <= 5 KB); build time per 100 000 molecules (target 10 s).
    Similarity at Tanimoto >= 0.7 (Morgan radius 2, 512 bits, as the index):
    ``StructureIndex.similar`` against a loop of ``DataStructs.TanimotoSimilarity`` over
    pre-computed fingerprints (no agreed target; reported).
@@ -25,6 +29,8 @@ from __future__ import annotations
 
 import os
 import secrets
+import subprocess
+import sys
 import time
 from typing import Callable
 
@@ -51,6 +57,7 @@ SUBSTRUCTURE_QUERIES: tuple[tuple[str, str], ...] = (
 )
 SIMILARITY_THRESHOLD = 0.7
 SIMILARITY_QUERY_ID = 123  # a registered compound: "more like this one"
+BENCH_BUDGET_S = 600.0  # seconds of matching allowed per search here (the app's default is MATCH_BUDGET_S)
 PG_URL = os.environ.get("REMANENCE_BENCH_PG_URL", "postgresql+psycopg://postgres@127.0.0.1:5432/postgres")
 
 
@@ -121,10 +128,11 @@ def in_process(section: Section, sizes: list[int], rounds: int, index: Structure
                 raise RuntimeError(f"index and plain loop disagree on {label} at {size} molecules")
             t_fast, t_slow = paired(fast, slow, rounds=rounds, budget_s=budget_s)
             by_size[size][label] = (t_fast.median_s, t_slow.median_s)
+            rare = len(hits) < 0.01 * size
             section.rows.append(Row(
                 benchmark=f"substructure {label}, {size // 1000}k mols, {len(hits)} hits (loop / index)",
                 measured=fmt_s(t_fast.median_s), baseline=fmt_s(t_slow.median_s),
-                ratio=t_slow.median_s / t_fast.median_s, target=(">=", 20.0)))
+                ratio=t_slow.median_s / t_fast.median_s, target=(">=", 20.0 if rare else 2.0)))
         fast = lambda: index.similar(sim_query, SIMILARITY_THRESHOLD)  # noqa: E731
         slow = _loop_similarity(ids, fps, sim_query, SIMILARITY_THRESHOLD)
         hits = fast()
@@ -150,8 +158,18 @@ def _screen_report(section: Section, sample: list[Chem.Mol], queries, times: dic
                    size: int) -> None:
     """What dominates the index's time: how many molecules pass its screen, and what each survivor costs."""
     patterns = [Chem.PatternFingerprint(m, fpSize=PATTERN_FP_SIZE) for m in sample]
-    pickles = [m.ToBinary() for m in sample]
-    t_unpickle = repeat(lambda: [Chem.Mol(p) for p in pickles], times=3, warmup=0).median_s / len(pickles)
+    trusted = [Chem.MolToSmiles(m) for m in sample]
+
+    def parse_trusted():
+        out = []
+        for smi in trusted:
+            m = Chem.MolFromSmiles(smi, sanitize=False)
+            m.UpdatePropertyCache(strict=False)
+            Chem.FastFindRings(m)
+            out.append(m)
+        return out
+
+    t_unpickle = repeat(parse_trusted, times=3, warmup=0).median_s / len(trusted)
     notes = []
     for label, q in queries:
         qfp = _screen_fp(q)
@@ -160,8 +178,44 @@ def _screen_report(section: Section, sample: list[Chem.Mol], queries, times: dic
                      f"{fmt_s(times[label][1] / size)}/molecule")
     section.details.append(
         f"Where the index's time goes: every molecule that passes the {PATTERN_FP_SIZE}-bit pattern-fingerprint "
-        f"screen is rebuilt from its RDKit pickle ({fmt_s(t_unpickle)} each) before HasSubstructMatch; on a "
+        f"screen is parsed from its trusted SMILES (about {fmt_s(t_unpickle)} each, without sanitising) before "
+        f"matching; on a "
         f"{len(sample)}-molecule sample: " + "; ".join(notes) + ".")
+
+
+_MEMORY_PROBE = """
+import gc, sys, time
+from bench import seed
+from server.chem.search import StructureIndex
+def rss():
+    with open('/proc/self/statm') as f:
+        return int(f.read().split()[1]) * 4096
+n = int(sys.argv[1])
+rows = [(i + 1, smi) for i, (_, smi) in enumerate(seed.molecule_library(n))]
+gc.collect(); before = rss(); t0 = time.perf_counter()
+index = StructureIndex(); index.add_many(rows)
+elapsed = time.perf_counter() - t0; gc.collect()
+print(rss() - before, elapsed, len(index))
+"""
+
+
+def memory(section: Section, n: int) -> None:
+    """Resident-size growth of a fresh process while it builds an index of ``n`` molecules."""
+    proc = subprocess.run([sys.executable, "-c", _MEMORY_PROBE, str(n)], capture_output=True, text=True,
+                          cwd=os.path.dirname(os.path.dirname(os.path.abspath(__file__))), check=True)
+    grown_b, build_s, held = proc.stdout.split()
+    per_mol = int(grown_b) / int(held)
+    section.rows.append(Row(
+        benchmark=f"in-process index memory: resident-size growth per molecule, {int(held)} molecules (/ 5 KB)",
+        measured=f"{per_mol / 1024:.2f} KB", baseline="5 KB", ratio=per_mol / 5120, target=("<=", 1.0)))
+    per_100k = float(build_s) / int(held) * 100_000
+    section.rows.append(Row(
+        benchmark="in-process index build, extrapolated to 100 000 molecules (/ 10 s)",
+        measured=f"{per_100k:.0f} s", baseline="10 s", ratio=per_100k / 10.0, target=("<=", 1.0)))
+    section.details.append(
+        f"Index build: {fmt_s(float(build_s) / int(held))}/molecule, almost all of it RDKit work per molecule "
+        "(SMILES parse and sanitisation, canonical SMILES, the 2048-bit pattern fingerprint, Morgan); the segments "
+        "themselves cost microseconds per molecule.")
 
 
 def _scratch_database(admin_url: str) -> tuple[str, Callable[[], None]]:
@@ -226,8 +280,9 @@ def cartridge(section: Section, lite, records: list[dict], tables: dict, n: int,
         def via(engine, **kw):
             def call():
                 with Session(engine) as session:
+                    # The per-request time budget is lifted: this measures what a search costs.
                     return [(h.code, None if h.similarity is None else round(h.similarity, 12))
-                            for h in search_service.search(session, **kw)]
+                            for h in search_service.search(session, budget_s=BENCH_BUDGET_S, **kw)]
             return call
 
         cases = [(lbl, {"substructure": q}) for lbl, q in SUBSTRUCTURE_QUERIES]
@@ -277,6 +332,7 @@ def run(quick: bool = False, large: bool = False) -> Section:
         # Growing the index past the registry (ids no compound has) must wait until the service
         # comparison is done; its rows still come after the in-process ones in the table.
         in_process(section, sizes, rounds, index, n, budget_s)
+        memory(section, 2_000 if quick else 10_000)
         section.rows.extend(service_rows.rows)
         section.details.extend(service_rows.details)
     finally:

@@ -245,9 +245,9 @@ def _stats_row(cid: int, chains: list[dict], batches: list[dict], ms: list[dict]
     best = max(loops, key=lambda r: r.get("pr_uC_cm2") or 0, default=None)
     row.update(pr_max_uC_cm2=best["pr_uC_cm2"] if best else None, ec_kV_cm=best["ec_kV_cm"] if best else None,
                ps_uC_cm2=best["ps_uC_cm2"] if best else None)
-    # refresh() takes the last dielectric in the row order of an un-ordered join; SQLite walks it by
-    # batch, then measurement id.
-    diel = [m["results"] for m in sorted(ms, key=lambda m: (m["batch_id"], m["id"])) if m["kind"] == "dielectric"]
+    # refresh() takes the latest dielectric (highest measurement id) that has a peak.
+    diel = [m["results"] for m in sorted(ms, key=lambda m: m["id"])
+            if m["kind"] == "dielectric" and m["results"].get("t_peak_K") is not None]
     last = diel[-1] if diel else {}
     row.update(t_peak_K=last.get("t_peak_K"), eps_peak=last.get("eps_peak"), curie_constant_K=last.get("curie_constant_K"))
     peaks = sorted((p for m in ms if m["kind"] == "dsc" for p in m["results"]["peaks"]), key=lambda p: p["peak_K"])

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from contextlib import asynccontextmanager
 from pathlib import Path
 from urllib.parse import quote
@@ -24,6 +25,7 @@ from .errors import InputError
 from .access import NotLoggedIn, Refused, may_see_structure
 from .services.errors import Archived, Duplicate, Forbidden, NotFound, TooLarge
 from .package_files import static_dir, templates_dir
+from .ratelimit import TokenBuckets, caller_key
 from .serving import BodyDeadline
 from .settings import Settings, get_settings
 from .web import format as format_filters
@@ -160,6 +162,22 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         response.headers.setdefault("X-Frame-Options", "DENY")
         response.headers.setdefault("Referrer-Policy", "same-origin")
         return response
+
+    search_buckets = TokenBuckets(settings.search_per_minute, settings.search_burst)
+
+    @app.middleware("http")
+    async def search_rate_limit(request: Request, call_next):
+        # Any request that asks for a structure search (API, registry, explorer, outcome map) spends a token.
+        params = request.query_params
+        if any((params.get(name) or "").strip() for name in ("substructure", "similar")):
+            wait_s = search_buckets.take(caller_key(request))
+            if wait_s:
+                response = _error(request, 429, f"too many structure searches: at most "
+                                  f"{settings.search_per_minute:g} a minute (REMANENCE_SEARCH_PER_MINUTE), "
+                                  f"{settings.search_burst} at once; try again in {math.ceil(wait_s)} s")
+                response.headers["Retry-After"] = str(math.ceil(wait_s))
+                return response
+        return await call_next(request)
 
     app.add_middleware(CookieMiddleware)  # writes the session, pre-login and device cookies (server/cookies.py)
     # Added last, so outermost of our middleware: a slow body is cut off before other work is done for it.

@@ -14,6 +14,8 @@
     remanence backup PATH                  consistent snapshot + manifest (SQLite online backup; pg_dump)
     remanence restore PATH                 restore into an empty database, checked against the manifest
     remanence settings                     list the settings, their environment variables and values
+    remanence setup postgres [--apply]     check (and, with --apply, fix) the packaged RDKit cartridge
+    remanence doctor [--backups DIR]       check database, cartridge, workers, data folder, backups
 """
 
 from __future__ import annotations
@@ -46,9 +48,27 @@ def cmd_init(args: argparse.Namespace) -> int:
     with Session(engine) as session:
         if stats.missing(session):
             print(f"rebuilt the figures of {stats.refresh_all(session)} compound(s)")
+    if engine.dialect.name == "postgresql":
+        _report_cartridge(engine)
     engine.dispose()
     print(f"database ready: {_display_url(settings.database_url)}")
     return 0
+
+
+def _report_cartridge(engine) -> bool:
+    """Enable the cartridge back end if the server allows it; else say why and what to run."""
+    from . import pg_cartridge
+    from .services.search import enable_cartridge
+
+    state = enable_cartridge(engine)
+    if state.ready:
+        built = " (structure table built from the registry)" if state.created_table else ""
+        print(f"structure search: RDKit cartridge{built}")
+        return True
+    print(f"structure search runs in process: {state.error}")
+    if pg_cartridge.is_known_defect(state.error):
+        print(pg_cartridge.fix_instructions())
+    return False
 
 
 def _display_url(url: str) -> str:
@@ -278,6 +298,59 @@ def cmd_settings(args: argparse.Namespace) -> int:
     return 0
 
 
+def cmd_setup_postgres(args: argparse.Namespace) -> int:
+    """Check the installed rdkit extension scripts; with --apply, fix them and enable the cartridge."""
+    from pathlib import Path
+
+    from . import pg_cartridge
+    from .db import make_engine
+
+    dirs = [Path(d) for d in args.sharedir] if args.sharedir else pg_cartridge.extension_dirs()
+    scripts = pg_cartridge.check_scripts(dirs)
+    if not scripts:
+        where = ", ".join(str(d) for d in dirs) or "no PostgreSQL extension folder found"
+        print(f"no rdkit extension script in {where}: install the cartridge (Debian: apt-get install "
+              "postgresql-15-rdkit) on the PostgreSQL server, or give --sharedir")
+    left = 0 if scripts else 1
+    for s in scripts:
+        if not s.defective:
+            print(f"OK   {s.path}: no defect")
+            continue
+        lines = ", ".join(str(n) for n in s.defect_lines)
+        if not args.apply:
+            left += 1
+            print(f"FIX  {s.path}: operator @= names '=' as commutator (lines {lines}); "
+                  "run `remanence setup postgres --apply` as root to fix it")
+            continue
+        try:
+            pg_cartridge.apply_fix(s.path)
+        except PermissionError:
+            left += 1
+            print(f"FIX  {s.path}: cannot write it as this user: run the command as root", file=sys.stderr)
+            continue
+        print(f"fixed {s.path} (lines {lines}; original kept as {s.path.name}{pg_cartridge.BACKUP_SUFFIX})")
+    settings = _settings()
+    if args.apply and not left and settings.database_url.startswith("postgresql"):
+        engine = make_engine(settings.database_url)
+        try:
+            if not _report_cartridge(engine):
+                left += 1
+        finally:
+            engine.dispose()
+    return 1 if left else 0
+
+
+def cmd_doctor(args: argparse.Namespace) -> int:
+    from pathlib import Path
+
+    from .doctor import run_checks
+
+    checks = run_checks(_settings(), backups=Path(args.backups) if args.backups else None)
+    for c in checks:
+        print(c.line())
+    return 0 if all(c.ok for c in checks) else 1
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(prog="remanence", description="Registry and dashboard for molecular-ferroelectric campaigns.")
     sub = parser.add_subparsers(dest="command", required=True)
@@ -338,6 +411,20 @@ def build_parser() -> argparse.ArgumentParser:
     p.set_defaults(func=cmd_restore)
 
     sub.add_parser("settings", help="list settings").set_defaults(func=cmd_settings)
+
+    setup = sub.add_parser("setup", help="one-time server set-up steps").add_subparsers(dest="setup_command",
+                                                                                          required=True)
+    p = setup.add_parser("postgres", help="check the packaged RDKit cartridge; --apply fixes its known defect "
+                                          "(as root, on the database server) and enables it")
+    p.add_argument("--apply", action="store_true", help="edit the extension script (original kept beside it), "
+                                                        "then create the extension and the structure table")
+    p.add_argument("--sharedir", action="append", metavar="DIR",
+                   help="extension folder to check (default: pg_config --sharedir and /usr/share/postgresql/*)")
+    p.set_defaults(func=cmd_setup_postgres)
+
+    p = sub.add_parser("doctor", help="check database, cartridge, workers, data folder and backups")
+    p.add_argument("--backups", metavar="DIR", help="folder that holds the `remanence backup` folders")
+    p.set_defaults(func=cmd_doctor)
     return parser
 
 

@@ -74,6 +74,13 @@ SETTINGS: tuple[Setting, ...] = (
     Setting("cookie_secure", "REMANENCE_COOKIE_SECURE", "Send the session cookie over HTTPS only.", _bool),
     Setting("session_hours", "REMANENCE_SESSION_HOURS", "How long a login lasts after its last use, in hours.", float),
     Setting(
+        "search_per_minute",
+        "REMANENCE_SEARCH_PER_MINUTE",
+        "Structure searches per minute allowed to one caller (token, account or client address), per process.",
+        float,
+    ),
+    Setting("search_burst", "REMANENCE_SEARCH_BURST", "Structure searches one caller may make at once.", int),
+    Setting(
         "sqlite_busy_ms",
         "REMANENCE_SQLITE_BUSY_MS",
         "SQLite only: how long a request waits for another writer before answering 503, in milliseconds.",
@@ -107,6 +114,8 @@ class Settings:
     header_timeout_s: float = 10.0
     body_timeout_s: float = 60.0
     keep_alive_s: int = 5
+    search_per_minute: float = 60.0
+    search_burst: int = 20
 
     @classmethod
     def from_env(cls, environ: Mapping[str, str] | None = None, **overrides: Any) -> "Settings":

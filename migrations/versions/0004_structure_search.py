@@ -11,8 +11,9 @@ must not need the cartridge); migrations/env.py keeps autogenerate off it.
 
 When the server has no usable cartridge (package postgresql-15-rdkit missing, or
 ``CREATE EXTENSION`` refused), the step is skipped with a warning and structure search
-runs in process (server.services.search.backend says which). After installing the
-cartridge, run ``alembic downgrade 0003`` then ``alembic upgrade head`` to build the table.
+runs in process (server.services.search.backend says which). After installing or fixing
+the cartridge (``remanence setup postgres``), ``remanence init`` builds the table with the
+same statements (server.services.search.enable_cartridge).
 
 A no-op on SQLite.
 """

@@ -35,13 +35,14 @@ References
 
 from __future__ import annotations
 
+import os
 import threading
+import time
 from collections.abc import Collection, Iterable
 from dataclasses import dataclass
 
-import numpy as np
 from rdkit import Chem, DataStructs
-from rdkit.Chem import rdFingerprintGenerator
+from rdkit.Chem import rdFingerprintGenerator, rdSubstructLibrary
 
 from server.chem.identity import _rdkit_messages, captured_rdkit_log, parse_smiles, parse_structure
 from server.errors import ChemistryError
@@ -54,6 +55,9 @@ __all__ = [
     "read_query",
     "parse_query",
     "fingerprint",
+    "QUERY_LIMITS",
+    "QueryTooGeneral",
+    "check_query_size",
     "StructureIndex",
 ]
 
@@ -68,6 +72,11 @@ PATTERN_FP_SIZE = 2048
 _FIELDS = {"substructure": "substructure", "similarity": "similar"}
 _MORGAN = rdFingerprintGenerator.GetMorganGenerator(radius=MORGAN_RADIUS, fpSize=MORGAN_FP_SIZE)
 _MORGAN_LOCK = threading.Lock()  # generators are not documented as thread-safe
+_PATTERNS = rdSubstructLibrary.PatternHolder(PATTERN_FP_SIZE)  # only its MakeFingerprint is used
+# Molecules per immutable segment of the index (a registration copies at most one segment).
+SEGMENT_SIZE = 1024
+# Molecules per multi-threaded GetMatches call; the time budget is checked between calls.
+MATCH_CHUNK = 256
 
 
 @dataclass(frozen=True)
@@ -132,6 +141,8 @@ def read_query(text: str, *, kind: str = "substructure") -> Query:
         ``field="substructure"`` (empty, or neither valid SMARTS nor SMILES, with RDKit's
         words) or ``field="similar"`` (the SMILES/MOL block messages of
         ``identity.parse_structure``).
+    QueryTooGeneral
+        ``field="substructure"``: a substructure query over :data:`QUERY_LIMITS`.
     ValueError
         For an unknown ``kind`` (a programming error, not user input).
 
@@ -165,10 +176,14 @@ def read_query(text: str, *, kind: str = "substructure") -> Query:
         )
     smiles_mol = _smiles(stripped)
     if smiles_mol is not None and _written_kekule(stripped, smiles_mol):
-        return Query(mol=smiles_mol, language="smiles", text=stripped)
+        query = Query(mol=smiles_mol, language="smiles", text=stripped)
+        check_query_size(query, field=field)
+        return query
     smarts_mol, smarts_words = _smarts(stripped)
     if smarts_mol is not None:
-        return Query(mol=smarts_mol, language="smarts", text=stripped)
+        query = Query(mol=smarts_mol, language="smarts", text=stripped)
+        check_query_size(query, field=field)
+        return query
     detail = f" RDKit says: {smarts_words}" if smarts_words else ""
     raise ChemistryError(
         f"'{stripped}' is neither a valid SMARTS pattern nor a valid SMILES; check brackets, "
@@ -193,52 +208,163 @@ def fingerprint(mol: Chem.Mol) -> DataStructs.ExplicitBitVect:
         return _MORGAN.GetFingerprint(mol)
 
 
-def _pattern_words(mol: Chem.Mol) -> np.ndarray:
-    """Pattern fingerprint as 64-bit words (for a vectorised subset screen)."""
-    fp = Chem.PatternFingerprint(mol, fpSize=PATTERN_FP_SIZE)
-    return np.frombuffer(DataStructs.BitVectToBinaryText(fp), dtype=np.uint64).copy()
+def _pattern_fp(mol: Chem.Mol) -> DataStructs.ExplicitBitVect:
+    """Pattern fingerprint of a registered molecule, as ``PatternHolder(PATTERN_FP_SIZE)`` makes it."""
+    return _PATTERNS.MakeFingerprint(mol)
 
 
-def _query_pattern_words(query: Chem.Mol) -> np.ndarray:
-    q = Chem.Mol(query)
-    q.UpdatePropertyCache(strict=False)  # SMARTS query molecules come without implicit valences
-    return _pattern_words(q)
+class QueryTooGeneral(ChemistryError):
+    """A substructure query over a limit of :data:`QUERY_LIMITS` or over its matching time budget (422)."""
+
+
+# Limits on a substructure query (common practice for a public search box, not from a paper: atom-by-atom
+# matching is subgraph isomorphism, NP-complete in general, and its cost explodes with query atoms that fix no
+# element, such as `*`, `[R]` or `[!#1]`, on fused, symmetric ring systems like the bowl cores).
+QUERY_LIMITS = {
+    "atoms": 150,  # a whole registered compound written as SMILES stays below this
+    "bonds": 180,
+    "generic_atoms": 12,  # query atoms that pin no element (measured: 12 wildcards in a chain match in ms)
+    "recursive": 4,  # $( ... ) environments
+    "recursion_depth": 2,  # $( $( ... ) ) nesting
+}
+
+
+def _recursion(text: str) -> tuple[int, int]:
+    """Number of ``$(`` environments in a SMARTS and their deepest nesting."""
+    count = depth = deepest = 0
+    stack: list[bool] = []  # per open parenthesis: does it open a recursive environment?
+    for i, ch in enumerate(text):
+        if ch == "(":
+            recursive = i > 0 and text[i - 1] == "$"
+            stack.append(recursive)
+            if recursive:
+                count += 1
+                depth += 1
+                deepest = max(deepest, depth)
+        elif ch == ")" and stack:
+            if stack.pop():
+                depth -= 1
+    return count, deepest
+
+
+def _pins_element(atom: Chem.Atom) -> bool:
+    if not atom.HasQuery():
+        return True  # a plain atom of a SMILES query
+    words = atom.DescribeQuery()
+    return "AtomAtomicNum" in words or "AtomType" in words
+
+
+def check_query_size(query: "Query", *, field: str = "substructure") -> None:
+    """Refuse a substructure query over :data:`QUERY_LIMITS`, naming the limit.
+
+    Raises
+    ------
+    QueryTooGeneral
+        ``field="substructure"``, the message names the limit and its value.
+    """
+    mol = query.mol
+    measured = {"atoms": mol.GetNumAtoms(), "bonds": mol.GetNumBonds()}
+    if query.language == "smarts":
+        measured["generic_atoms"] = sum(not _pins_element(a) for a in mol.GetAtoms())
+        measured["recursive"], measured["recursion_depth"] = _recursion(query.text)
+    words = {
+        "atoms": "query atoms",
+        "bonds": "query bonds",
+        "generic_atoms": "query atoms that fix no element (such as *, [R], [a], [!#1])",
+        "recursive": "recursive $(...) environments",
+        "recursion_depth": "levels of nested $(...) environments",
+    }
+    for name, value in measured.items():
+        if value > QUERY_LIMITS[name]:
+            raise QueryTooGeneral(
+                f"query too general: {value} {words[name]}, the limit is {QUERY_LIMITS[name]} "
+                f"(limit '{name}'). Name the elements of more atoms, or split the query.",
+                field=field,
+            )
+
+
+@dataclass(frozen=True)
+class _Segment:
+    """Up to :data:`SEGMENT_SIZE` structures, never changed once published (copy-on-write).
+
+    ``lib`` is an RDKit ``SubstructLibrary`` over a ``CachedTrustedSmilesMolHolder`` (RDKit
+    canonical SMILES, parsed on demand without re-sanitising) and a ``PatternHolder`` (the
+    2048-bit pattern-fingerprint screen). ``smiles``/``morgan`` are kept beside it so that a
+    copy can be made without reading molecules back.
+    """
+
+    ids: tuple[int, ...]
+    smiles: tuple[str, ...]
+    patterns: tuple[DataStructs.ExplicitBitVect, ...]
+    morgan: tuple[DataStructs.ExplicitBitVect, ...]
+    lib: rdSubstructLibrary.SubstructLibrary
+
+    @classmethod
+    def build(cls, ids, smiles, patterns, morgan) -> "_Segment":
+        holder = rdSubstructLibrary.CachedTrustedSmilesMolHolder()
+        screen = rdSubstructLibrary.PatternHolder(PATTERN_FP_SIZE)
+        for smi, fp in zip(smiles, patterns):
+            holder.AddSmiles(smi)
+            screen.AddFingerprint(fp)
+        return cls(tuple(ids), tuple(smiles), tuple(patterns), tuple(morgan),
+                   rdSubstructLibrary.SubstructLibrary(holder, screen))
+
+    def without(self, drop: set[int]) -> "_Segment":
+        keep = [k for k, i in enumerate(self.ids) if i not in drop]
+        return _Segment.build([self.ids[k] for k in keep], [self.smiles[k] for k in keep],
+                              [self.patterns[k] for k in keep], [self.morgan[k] for k in keep])
+
+    def plus(self, ids, smiles, patterns, morgan) -> "_Segment":
+        return _Segment.build(self.ids + tuple(ids), self.smiles + tuple(smiles),
+                              self.patterns + tuple(patterns), self.morgan + tuple(morgan))
+
+
+_EMPTY = ()  # a snapshot is a tuple of segments
+
+
+def _entry(compound_id: int, smiles: str) -> tuple[int, str, DataStructs.ExplicitBitVect, DataStructs.ExplicitBitVect]:
+    mol = _smiles(smiles)
+    if mol is None:
+        raise ChemistryError(f"compound {compound_id}: stored SMILES '{smiles}' cannot be read", field="smiles")
+    return compound_id, Chem.MolToSmiles(mol), _pattern_fp(mol), fingerprint(mol)
 
 
 class StructureIndex:
     """In-memory structures of one registry, for substructure and similarity search.
 
-    Each entry keeps the parsed RDKit molecule (so a confirmed hit costs one
-    ``HasSubstructMatch`` and no re-parsing; see bench/bench_search.py for what this buys and
-    costs in memory), a 2048-bit pattern fingerprint (as a row of a numpy array for the
-    screen) and the Morgan bit vector. Thread-safe: one lock around every read and write.
+    The structures live in immutable segments of at most :data:`SEGMENT_SIZE` molecules,
+    each an RDKit ``SubstructLibrary`` holding trusted canonical SMILES (parsed on demand:
+    about 1 KB per molecule in all, against about 70 KB for a parsed molecule) with its
+    pattern-fingerprint screen, plus the Morgan bit vectors for similarity. A search reads
+    the current tuple of segments once and matches without any lock; a writer (registration,
+    catching up with the table) builds the changed segment anew and swaps the tuple in under
+    a lock that searches never take (copy-on-write). Matching runs on ``threads`` threads
+    (RDKit's own multi-threaded ``SubstructLibrary.GetMatches``) in chunks, and stops with
+    :class:`QueryTooGeneral` once the time budget is spent.
     """
 
-    _WORDS = PATTERN_FP_SIZE // 64
+    def __init__(self, *, threads: int | None = None) -> None:
+        self._write = threading.Lock()
+        # One reference, rebound (never mutated) by writers: (segments, id -> segment number, highest id).
+        self._snap: tuple[tuple[_Segment, ...], dict[int, int], int | None] = (_EMPTY, {}, None)
+        self.threads = threads or os.cpu_count() or 1
+        self.chunk = MATCH_CHUNK  # molecules per GetMatches call (the budget is checked between calls)
 
-    def __init__(self) -> None:
-        self._lock = threading.RLock()
-        self._ids: list[int] = []
-        self._pos: dict[int, int] = {}
-        self._mols: list[Chem.Mol] = []
-        self._morgan: list[DataStructs.ExplicitBitVect] = []
-        self._pattern = np.zeros((0, self._WORDS), dtype=np.uint64)
+    # --- reading (no lock: one read of the snapshot) ------------------------------------------
 
     def __len__(self) -> int:
-        with self._lock:
-            return len(self._ids)
+        return len(self._snap[1])
 
     def __contains__(self, compound_id: object) -> bool:
-        with self._lock:
-            return compound_id in self._pos
+        return compound_id in self._snap[1]
 
     def ids(self) -> set[int]:
-        with self._lock:
-            return set(self._ids)
+        return set(self._snap[1])
 
     def max_id(self) -> int | None:
-        with self._lock:
-            return max(self._ids) if self._ids else None
+        return self._snap[2]
+
+    # --- writing (copy-on-write) --------------------------------------------------------------
 
     def add(self, compound_id: int, smiles: str) -> None:
         """Add (or replace) one structure.
@@ -248,76 +374,99 @@ class StructureIndex:
         ChemistryError
             ``field="smiles"`` when RDKit cannot read the stored SMILES.
         """
-        mol = _smiles(smiles)
-        if mol is None:
-            raise ChemistryError(f"compound {compound_id}: stored SMILES '{smiles}' cannot be read", field="smiles")
-        morgan = fingerprint(mol)
-        words = _pattern_words(mol)
-        with self._lock:
-            at = self._pos.get(compound_id)
-            if at is None:
-                at = len(self._ids)
-                if at == self._pattern.shape[0]:
-                    grown = np.zeros((max(64, 2 * at), self._WORDS), dtype=np.uint64)
-                    grown[:at] = self._pattern[:at]
-                    self._pattern = grown
-                self._pos[compound_id] = at
-                self._ids.append(compound_id)
-                self._mols.append(mol)
-                self._morgan.append(morgan)
-            else:
-                self._mols[at] = mol
-                self._morgan[at] = morgan
-            self._pattern[at] = words
+        self.add_many([(compound_id, smiles)])
 
     def add_many(self, rows: Iterable[tuple[int, str]]) -> None:
+        """Add (or replace) many structures; readers see all of them at once or none."""
+        latest: dict[int, tuple] = {}
         for compound_id, smiles in rows:
-            self.add(compound_id, smiles)
+            latest[int(compound_id)] = _entry(int(compound_id), smiles)
+        if not latest:
+            return
+        with self._write:
+            segments, pos, _ = self._snap
+            segments = list(segments)
+            self._drop(segments, pos, set(latest) & set(pos))
+            fresh = list(latest.values())
+            if segments and len(segments[-1].ids) < SEGMENT_SIZE:
+                room = SEGMENT_SIZE - len(segments[-1].ids)
+                head, fresh = fresh[:room], fresh[room:]
+                segments[-1] = segments[-1].plus(*zip(*head))
+            for start in range(0, len(fresh), SEGMENT_SIZE):
+                segments.append(_Segment.build(*zip(*fresh[start:start + SEGMENT_SIZE])))
+            self._publish(segments)
 
     def remove(self, compound_id: int) -> None:
         """Forget one structure (no error when it is not there)."""
-        with self._lock:
-            at = self._pos.pop(compound_id, None)
-            if at is None:
+        self.remove_many([compound_id])
+
+    def remove_many(self, compound_ids: Iterable[int]) -> None:
+        with self._write:
+            segments, pos, _ = self._snap
+            gone = set(compound_ids) & set(pos)
+            if not gone:
                 return
-            last = len(self._ids) - 1
-            if at != last:
-                moved = self._ids[last]
-                self._ids[at] = moved
-                self._mols[at] = self._mols[last]
-                self._morgan[at] = self._morgan[last]
-                self._pattern[at] = self._pattern[last]
-                self._pos[moved] = at
-            self._ids.pop()
-            self._mols.pop()
-            self._morgan.pop()
-            self._pattern[last] = 0
+            segments = list(segments)
+            self._drop(segments, pos, gone)
+            self._publish([s for s in segments if s.ids])
 
-    def _positions(self, candidates: Collection[int] | None) -> np.ndarray:
-        if candidates is None:
-            return np.arange(len(self._ids))
-        return np.array(sorted(self._pos[c] for c in set(candidates) if c in self._pos), dtype=np.int64)
+    @staticmethod
+    def _drop(segments: list[_Segment], pos: dict[int, int], gone: set[int]) -> None:
+        for k in sorted({pos[i] for i in gone}):
+            segments[k] = segments[k].without(gone)
 
-    def substructure(self, query: Chem.Mol, candidates: Collection[int] | None = None) -> list[int]:
+    def _publish(self, segments: list[_Segment]) -> None:
+        pos = {i: k for k, seg in enumerate(segments) for i in seg.ids}
+        # One store of a new tuple: a reader holding the old snapshot keeps a consistent view.
+        self._snap = (tuple(segments), pos, max(pos) if pos else None)
+
+    # --- searching ----------------------------------------------------------------------------
+
+    def substructure(
+        self,
+        query: Chem.Mol,
+        candidates: Collection[int] | None = None,
+        *,
+        budget_s: float | None = None,
+    ) -> list[int]:
         """Ids of the molecules that contain ``query``, ascending.
 
         A molecule is screened out when the query's pattern-fingerprint bits are not all
-        set in its own (Barnard 1993); the rest are confirmed by ``HasSubstructMatch``
-        (no chirality, as the cartridge by default).
+        set in its own (Barnard 1993); the rest are confirmed atom by atom (no chirality,
+        as the cartridge by default), by RDKit's ``SubstructLibrary.GetMatches`` on
+        :attr:`threads` threads, :attr:`chunk` molecules at a time.
+
+        Raises
+        ------
+        QueryTooGeneral
+            When ``budget_s`` (seconds) is spent before every molecule is checked; the
+            clock is read between chunks, so one chunk's matching may run past it.
         """
-        q_words = _query_pattern_words(query)
-        with self._lock:
-            positions = self._positions(candidates)
-            if positions.size == 0:
-                return []
-            block = self._pattern[positions]
-            passed = positions[np.all((block & q_words) == q_words, axis=1)]
-            hits = [
-                self._ids[at]
-                for at in passed
-                if self._mols[at].HasSubstructMatch(query, useChirality=False)
-            ]
-        return sorted(hits)
+        segments = self._snap[0]
+        keep = None if candidates is None else set(candidates)
+        deadline = None if budget_s is None else time.monotonic() + budget_s
+        q = Chem.Mol(query)
+        q.UpdatePropertyCache(strict=False)  # SMARTS query molecules come without implicit valences
+        params = Chem.SubstructMatchParameters()
+        params.useChirality = False
+        hits: list[int] = []
+        for seg in segments:
+            if keep is not None and keep.isdisjoint(seg.ids):
+                continue
+            for start in range(0, len(seg.ids), self.chunk):
+                if deadline is not None and time.monotonic() > deadline:
+                    raise QueryTooGeneral(
+                        f"query too general: matching took longer than the search time budget of "
+                        f"{budget_s:g} s (limit 'budget_s'). Name the elements of more atoms, or "
+                        "narrow the search with filters.",
+                        field="substructure",
+                    )
+                end = min(start + self.chunk, len(seg.ids))
+                found = seg.lib.GetMatches(q, start, end, params, numThreads=self.threads, maxResults=-1)
+                hits.extend(seg.ids[k] for k in found)
+        if keep is not None:
+            hits = [i for i in hits if i in keep]
+        return sorted(set(hits))
 
     def similar(
         self, query: Chem.Mol, threshold: float, candidates: Collection[int] | None = None
@@ -328,13 +477,17 @@ class StructureIndex:
         of :func:`fingerprint` (Willett et al. 1998).
         """
         q_fp = fingerprint(query)
-        with self._lock:
-            positions = self._positions(candidates)
-            if positions.size == 0:
-                return []
-            fps = [self._morgan[at] for at in positions]
-            ids = [self._ids[at] for at in positions]
-        sims = DataStructs.BulkTanimotoSimilarity(q_fp, fps)
-        hits = [(i, s) for i, s in zip(ids, sims) if s >= threshold]
+        keep = None if candidates is None else set(candidates)
+        hits: list[tuple[int, float]] = []
+        for seg in self._snap[0]:
+            if keep is None:
+                ids, fps = seg.ids, seg.morgan
+            else:
+                chosen = [k for k, i in enumerate(seg.ids) if i in keep]
+                if not chosen:
+                    continue
+                ids, fps = [seg.ids[k] for k in chosen], [seg.morgan[k] for k in chosen]
+            sims = DataStructs.BulkTanimotoSimilarity(q_fp, list(fps))
+            hits.extend((i, s) for i, s in zip(ids, sims) if s >= threshold)
         hits.sort(key=lambda h: (-h[1], h[0]))
         return hits

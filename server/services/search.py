@@ -30,13 +30,15 @@ from typing import Optional
 
 from sqlalchemy import event, func, text
 from sqlalchemy.engine import Connection, Engine
+from sqlalchemy.exc import DBAPIError
 from sqlmodel import Session, select
 
-from ..chem.search import MORGAN_FP_SIZE, MORGAN_RADIUS, Query, StructureIndex, read_query
+from ..chem.search import MORGAN_FP_SIZE, MORGAN_RADIUS, Query, QueryTooGeneral, StructureIndex, read_query
 from ..errors import InputError
 from ..models import Compound
 
-__all__ = ["STRUCTURE_TABLE", "Hit", "backend", "search", "index_compound", "structure_index"]
+__all__ = ["STRUCTURE_TABLE", "Hit", "backend", "search", "index_compound", "structure_index", "enable_cartridge",
+           "CartridgeState"]
 
 log = logging.getLogger("remanence.search")
 
@@ -49,6 +51,10 @@ IN_PROCESS = "in-process"
 # never drop a molecule the in-process index keeps.
 _SCREEN_SLACK = 1e-6
 _CHUNK = 900  # ids per IN (...) list (SQLite's historical limit on bound parameters is 999)
+# Seconds of substructure matching one search may spend; over it, 422 (common practice for a shared
+# search box, not a measured optimum: the query limits of chem.search refuse the pathological queries
+# first, and this backstop leaves room for the cartridge on a loaded 2-core server).
+MATCH_BUDGET_S = 5.0
 
 _lock = threading.Lock()
 _indexes: "weakref.WeakKeyDictionary[Engine, StructureIndex]" = weakref.WeakKeyDictionary()
@@ -127,12 +133,15 @@ def structure_index(session: Session) -> StructureIndex:
         return index
     db_ids = set(session.exec(select(Compound.id)).all())
     held = index.ids()
-    for gone in held - db_ids:
-        index.remove(gone)
+    index.remove_many(held - db_ids)
     missing = sorted(db_ids - held)
-    for start in range(0, len(missing), _CHUNK):
-        chunk = missing[start:start + _CHUNK]
-        index.add_many(session.exec(select(Compound.id, Compound.smiles).where(Compound.id.in_(chunk))).all())
+
+    def rows():
+        for start in range(0, len(missing), _CHUNK):
+            chunk = missing[start:start + _CHUNK]
+            yield from session.exec(select(Compound.id, Compound.smiles).where(Compound.id.in_(chunk))).all()
+
+    index.add_many(rows())
     if missing:
         log.info("structure index: %d compounds added (%d held)", len(missing), len(index))
     return index
@@ -215,6 +224,7 @@ def search(
     candidate_ids: Collection[int] | None = None,
     include_archived: bool = False,
     include_embargoed: bool = True,
+    budget_s: float = MATCH_BUDGET_S,
 ) -> list[Hit]:
     """Compounds that contain a substructure and/or resemble a structure.
 
@@ -236,6 +246,9 @@ def search(
     include_embargoed : bool
         Pass False for a caller who may not see embargoed structures: a structure search
         would otherwise reveal them.
+    budget_s : float
+        Seconds of substructure matching allowed (:data:`MATCH_BUDGET_S`): checked between
+        chunks of molecules in process, PostgreSQL's ``statement_timeout`` on the cartridge.
 
     Returns
     -------
@@ -248,7 +261,8 @@ def search(
     InputError
         ``field="threshold"`` outside (0, 1]; ``field="substructure"`` when neither query
         is given. ChemistryError (an InputError) ``field="substructure"`` or
-        ``field="similar"`` for a query RDKit cannot read.
+        ``field="similar"`` for a query RDKit cannot read; its kind QueryTooGeneral for a
+        query over ``chem.search.QUERY_LIMITS`` or over the time budget.
     """
     t = _check_threshold(threshold)
     if not _given(substructure) and not _given(similar):
@@ -261,12 +275,14 @@ def search(
         if not candidate_ids:
             return []
     if backend(session) == CARTRIDGE:
-        return _search_cartridge(session, sub_q, sim_q, t, candidate_ids, include_archived, include_embargoed)
-    return _search_in_process(session, sub_q, sim_q, t, candidate_ids, include_archived, include_embargoed)
+        return _search_cartridge(session, sub_q, sim_q, t, candidate_ids, include_archived, include_embargoed,
+                                 budget_s)
+    return _search_in_process(session, sub_q, sim_q, t, candidate_ids, include_archived, include_embargoed,
+                              budget_s)
 
 
 def _search_cartridge(session, sub_q: Query | None, sim_q: Query | None, t: float, candidate_ids,
-                      include_archived: bool, include_embargoed: bool) -> list[Hit]:
+                      include_archived: bool, include_embargoed: bool, budget_s: float) -> list[Hit]:
     params: dict = {}
     where: list[str] = []
     sim_column = "NULL"
@@ -298,17 +314,41 @@ def _search_cartridge(session, sub_q: Query | None, sim_q: Query | None, t: floa
         f"FROM {STRUCTURE_TABLE} AS s JOIN compound AS c ON c.id = s.compound_id "
         f"WHERE {' AND '.join(where)} ORDER BY {order}"
     )
-    rows = session.execute(text(sql), params).all()
+    rows = _within_budget(session, text(sql), params, budget_s)
     return [Hit(compound_id=r[0], code=r[1], similarity=None if r[2] is None else float(r[2])) for r in rows]
 
 
+def _within_budget(session: Session, statement, params: dict, budget_s: float) -> list:
+    """Run the search statement with ``statement_timeout`` = the budget, in a savepoint.
+
+    A cancelled statement rolls back to the savepoint only (the caller's transaction goes
+    on) and becomes :class:`QueryTooGeneral`; the timeout is put back afterwards.
+    """
+    before = session.execute(text("SELECT current_setting('statement_timeout')")).scalar_one()
+    try:
+        with session.begin_nested():
+            session.execute(text("SELECT set_config('statement_timeout', :ms, true)"),
+                            {"ms": str(max(1, round(budget_s * 1000)))})
+            rows = session.execute(statement, params).all()
+            session.execute(text("SELECT set_config('statement_timeout', :v, true)"), {"v": before})
+    except DBAPIError as exc:
+        if getattr(exc.orig, "sqlstate", None) != "57014":  # query_canceled
+            raise
+        raise QueryTooGeneral(
+            f"query too general: matching took longer than the search time budget of {budget_s:g} s "
+            "(limit 'budget_s'). Name the elements of more atoms, or narrow the search with filters.",
+            field="substructure",
+        ) from None
+    return rows
+
+
 def _search_in_process(session, sub_q: Query | None, sim_q: Query | None, t: float, candidate_ids,
-                       include_archived: bool, include_embargoed: bool) -> list[Hit]:
+                       include_archived: bool, include_embargoed: bool, budget_s: float) -> list[Hit]:
     index = structure_index(session)
     candidates = candidate_ids
     found: list[tuple[int, Optional[float]]] = []
     if sub_q is not None:
-        candidates = index.substructure(sub_q.mol, candidates)
+        candidates = index.substructure(sub_q.mol, candidates, budget_s=budget_s)
         found = [(i, None) for i in candidates]
     if sim_q is not None:
         found = index.similar(sim_q.mol, t, candidates)
@@ -331,3 +371,61 @@ def _search_in_process(session, sub_q: Query | None, sim_q: Query | None, t: flo
             continue
         hits.append(Hit(compound_id=compound_id, code=code, similarity=sim))
     return hits
+
+
+# --- enabling the cartridge after the migrations ------------------------------------------------
+
+
+@dataclass(frozen=True)
+class CartridgeState:
+    """What :func:`enable_cartridge` found: ``ready``, and the server's words when it is not."""
+
+    ready: bool
+    created_table: bool = False
+    error: str = ""
+
+
+def enable_cartridge(engine: Engine) -> CartridgeState:
+    """On PostgreSQL, make the cartridge back end usable if the server allows it; a no-op elsewhere.
+
+    Migration 0004 skips ``compound_structure`` when ``CREATE EXTENSION rdkit`` fails (package
+    missing, or the packaged script's defect, see :mod:`server.pg_cartridge`). Once the
+    administrator has fixed that, this creates the extension and builds the table and its
+    GiST indexes exactly as migration 0004 does, filled from ``compound.smiles``, in one
+    transaction. Returns ``CartridgeState(ready=False, error=...)`` with PostgreSQL's message
+    when it still cannot (nothing is changed then).
+    """
+    if engine.dialect.name != "postgresql":
+        return CartridgeState(ready=False, error="not PostgreSQL: structure search runs in process")
+    with engine.connect() as conn:
+        available = conn.execute(text("SELECT 1 FROM pg_available_extensions WHERE name = 'rdkit'")).first()
+        conn.rollback()
+        if available is None:
+            return CartridgeState(ready=False, error="the RDKit cartridge is not installed on the PostgreSQL server "
+                                                     "(Debian package postgresql-15-rdkit)")
+        try:
+            with conn.begin():
+                conn.execute(text("CREATE EXTENSION IF NOT EXISTS rdkit"))
+                if conn.execute(text("SELECT to_regclass(:t)"), {"t": STRUCTURE_TABLE}).scalar_one() is not None:
+                    created = False
+                else:
+                    # The statements of migration 0004 (kept there as that revision's record).
+                    conn.execute(text(
+                        f"CREATE TABLE {STRUCTURE_TABLE} (compound_id integer NOT NULL, m mol, mfp bfp, "
+                        f"CONSTRAINT pk_{STRUCTURE_TABLE} PRIMARY KEY (compound_id), "
+                        f"CONSTRAINT fk_{STRUCTURE_TABLE}_compound_id_compound FOREIGN KEY (compound_id) "
+                        "REFERENCES compound (id))"))
+                    conn.execute(text(f"CREATE INDEX ix_{STRUCTURE_TABLE}_m ON {STRUCTURE_TABLE} USING gist (m)"))
+                    conn.execute(text(f"CREATE INDEX ix_{STRUCTURE_TABLE}_mfp ON {STRUCTURE_TABLE} USING gist (mfp)"))
+                    conn.execute(text("SELECT set_config('rdkit.morgan_fp_size', :n, true)"),
+                                 {"n": str(MORGAN_FP_SIZE)})
+                    conn.execute(text(
+                        f"INSERT INTO {STRUCTURE_TABLE} (compound_id, m, mfp) "
+                        f"SELECT s.id, s.m, morganbv_fp(s.m, {MORGAN_RADIUS}) "
+                        "FROM (SELECT id, mol_from_smiles(smiles::cstring) AS m FROM compound) AS s"))
+                    created = True
+        except DBAPIError as exc:
+            return CartridgeState(ready=False, error=str(exc.orig).strip())
+    with _lock:
+        _backends.pop(engine, None)  # found again on next use
+    return CartridgeState(ready=True, created_table=created)

@@ -233,3 +233,110 @@ def test_invalid_similarity_query_names_the_field():
 def test_unknown_kind_is_a_programming_error():
     with pytest.raises(ValueError):
         parse_query("c1ccccc1", kind="exact")
+
+
+# --- bounded work (issue 12 item 9) -----------------------------------------------------------
+
+RING_QUERIES = ["[R2]", "[r5]", "[x3]", "[R3]", "[r6;R2]", "[a;r5]", "*@*@*"]
+
+
+@pytest.mark.parametrize("smarts", RING_QUERIES)
+def test_ring_queries_on_trusted_smiles_equal_brute_force(index, smarts):
+    # The index parses trusted SMILES without sanitising; ring membership and ring sizes must still be
+    # those of the fully sanitised molecule (brute force: MolFromSmiles + HasSubstructMatch).
+    query = Chem.MolFromSmarts(smarts)
+    assert index.substructure(query) == brute_substructure(query)
+
+
+def test_generic_atom_chain_is_refused_naming_the_limit():
+    from server.chem.search import QUERY_LIMITS, QueryTooGeneral
+
+    n = QUERY_LIMITS["generic_atoms"] + 1
+    with pytest.raises(QueryTooGeneral) as err:
+        read_query("~".join(["*"] * n))
+    assert err.value.field == "substructure"
+    assert "query too general" in err.value.message and "generic_atoms" in err.value.message
+    read_query("~".join(["*"] * (n - 1)))  # at the limit: accepted
+    read_query("c1ccc2c(c1)sc1ccccc12")  # element atoms do not count as generic
+
+
+def test_recursive_environments_are_bounded():
+    from server.chem.search import QueryTooGeneral
+
+    with pytest.raises(QueryTooGeneral, match="recursion_depth"):
+        read_query("[$([#6]-[$([#8]-[$([#6])])])]")
+    with pytest.raises(QueryTooGeneral, match="'recursive'"):
+        read_query("[$(cO)][$(cS)][$(cN)][$(cC)][$(c[Se])]")
+    read_query("[$(c[OH])]")
+
+
+def test_matching_stops_at_the_time_budget():
+    from server.chem.search import QueryTooGeneral
+
+    bowls = bowl_set()
+    idx = StructureIndex(threads=1)
+    idx.add_many((i, bowls[i % len(bowls)]) for i in range(3 * len(bowls)))
+    idx.chunk = 2
+    # A 35-atom chain of wildcards (refused by read_query; built directly here) costs several ms per bowl
+    # molecule: 63 molecules take well over 0.05 s, so the budget must cut the search short.
+    slow = Chem.MolFromSmarts("~".join(["*"] * 35))
+    with pytest.raises(QueryTooGeneral, match="time budget"):
+        idx.substructure(slow, budget_s=0.05)
+    fast = parse_query("[#34]")
+    expected = [i for i in range(63) if Chem.MolFromSmiles(bowls[i % len(bowls)]).HasSubstructMatch(fast)]
+    assert expected and idx.substructure(fast, budget_s=5.0) == expected
+
+
+def test_search_does_not_wait_for_a_writer():
+    # Copy-on-write: searches read a snapshot and never take the writers' lock.
+    import threading
+
+    idx = StructureIndex()
+    idx.add_many([(1, "c1ccccc1"), (2, "CCO")])
+    out: list = []
+    with idx._write:  # a writer holds its lock (e.g. loading 10^5 structures)
+        t = threading.Thread(target=lambda: out.append(idx.substructure(parse_query("c1ccccc1"))))
+        t.start()
+        t.join(timeout=10)
+        assert out == [[1]]
+
+
+def test_segments_copy_on_write_keep_every_entry():
+    from server.chem import search as chem_search
+
+    idx = StructureIndex()
+    n = chem_search.SEGMENT_SIZE + 7
+    idx.add_many((i, "C" * (1 + i % 20) + "O") for i in range(n))
+    idx.add(n, "CCCCCCCCCCCCCCCCCCCCO")
+    idx.remove(19)
+    hits = idx.substructure(parse_query("CCCCCCCCCCCCCCCCCCCCO"))
+    assert hits == [i for i in range(n) if i % 20 == 19 and i != 19] + [n]
+    assert len(idx) == n
+
+
+def test_searches_during_registrations_see_whole_snapshots():
+    # Readers never lock; every answer must be a prefix of the registrations (ids registered in order),
+    # never a torn state, while a writer keeps adding.
+    import threading
+
+    idx = StructureIndex(threads=1)
+    benzene = parse_query("c1ccccc1")
+    stop = threading.Event()
+    seen: list[list[int]] = []
+
+    def reader():
+        while not stop.is_set():
+            seen.append(idx.substructure(benzene))
+
+    t = threading.Thread(target=reader)
+    t.start()
+    try:
+        for i in range(1, 301):
+            idx.add(i, "Cc1ccccc1" if i % 2 else "CCO")
+    finally:
+        stop.set()
+        t.join(timeout=30)
+    assert seen
+    for hits in seen:
+        assert hits == list(range(1, 2 * len(hits), 2))
+    assert idx.substructure(benzene) == list(range(1, 301, 2))

@@ -26,7 +26,7 @@ from server.errors import ChemistryError, InputError
 from server.models import Compound
 from server.services import search as structure_search
 from server.settings import Settings
-from tests.chem.test_search import MOLECULES, SMARTS_QUERIES
+from tests.chem.test_search import MOLECULES, RING_QUERIES, SMARTS_QUERIES
 from tests.conftest import _empty_pg
 from tests.factories import bearer, make_token
 
@@ -197,7 +197,7 @@ def _answers(app) -> dict:
     """Every query's answer keyed by compound code (ids may differ between databases)."""
     out = {}
     with Session(app.state.engine) as s:
-        for q in SMARTS_QUERIES + ["C1=CC=CC=C1"]:
+        for q in SMARTS_QUERIES + RING_QUERIES + ["C1=CC=CC=C1"]:
             out[("sub", q)] = [(h.code, None) for h in structure_search.search(s, substructure=q)]
         for smi in MOLECULES[::4] + ["COc1ccccc1"]:
             for t in (0.15, 0.4, 0.7):
@@ -235,3 +235,54 @@ def test_sqlite_and_postgresql_give_identical_answers(pair, tmp_path, sqlite_tem
                 # Both back ends compute the same bits and the same integer ratio, so the Tanimoto
                 # values must agree to 1e-9 (in practice they are identical doubles).
                 assert abs(a - b) <= 1e-9, key
+
+
+# --- bounded work per search (issue 12 item 9) --------------------------------------------------
+
+
+def test_too_general_query_answers_422_naming_the_limit(client, writer, small_set):
+    # 24 wildcards in a chain: a query of this shape took 10-13 s over 61 molecules before limits existed.
+    r = client.get("/api/v1/search", params={"substructure": "~".join(["*"] * 24)}, headers=writer)
+    assert r.status_code == 422
+    body = r.json()
+    assert body["field"] == "substructure"
+    assert "query too general" in body["detail"] and "generic_atoms" in body["detail"]
+    ok = client.get("/api/v1/search", params={"substructure": "[#34]"}, headers=writer)
+    assert ok.status_code == 200
+
+
+def test_cartridge_statement_over_budget_is_too_general_and_the_transaction_goes_on(session):
+    if session.get_bind().dialect.name != "postgresql":
+        pytest.skip("the statement budget is PostgreSQL's statement_timeout")
+    from server.chem.search import QueryTooGeneral
+
+    with pytest.raises(QueryTooGeneral, match="time budget of 0.05 s"):
+        structure_search._within_budget(session, sa.text("SELECT pg_sleep(2)"), {}, 0.05)
+    # Only the savepoint was rolled back, and the caller's statement_timeout is what it was.
+    assert session.execute(sa.text("SELECT 1")).scalar_one() == 1
+    assert session.execute(sa.text("SHOW statement_timeout")).scalar_one() == "0"
+    rows = structure_search._within_budget(session, sa.text("SELECT 42"), {}, 0.5)
+    assert rows[0][0] == 42
+    assert session.execute(sa.text("SHOW statement_timeout")).scalar_one() == "0"
+
+
+def test_searches_are_rate_limited_per_caller(tmp_path, db_url, session):
+    settings = Settings(data_dir=tmp_path, database_url=db_url, secret_key="test-secret-key-not-for-production",
+                        embedded_worker=False, search_per_minute=1, search_burst=3).resolved()
+    one, other = bearer(make_token(session, scope="read")), bearer(make_token(session, scope="read"))
+    app = create_app(settings)
+    try:
+        with TestClient(app) as c:
+            codes = [c.get("/api/v1/search", params={"substructure": "c1ccccc1"}, headers=one).status_code
+                     for _ in range(4)]
+            assert codes == [200, 200, 200, 429]
+            refused = c.get("/api/v1/search", params={"substructure": "c1ccccc1"}, headers=one)
+            assert int(refused.headers["Retry-After"]) >= 1
+            assert "REMANENCE_SEARCH_PER_MINUTE" in refused.json()["detail"]
+            # Another caller has its own bucket; requests without a structure query spend nothing.
+            assert c.get("/api/v1/search", params={"similar": "c1ccccc1"}, headers=other).status_code == 200
+            assert c.get("/api/v1/compounds", headers=one).status_code == 200
+            # The registry page's structure filter spends from the same per-caller allowance.
+            assert c.get("/api/v1/compounds", params={"substructure": "c1ccccc1"}, headers=one).status_code == 429
+    finally:
+        app.state.engine.dispose()

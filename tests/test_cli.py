@@ -7,6 +7,7 @@ import io
 import pytest
 from sqlmodel import Session, select
 
+from server.analysis import hysteresis
 from server.cli import main
 from server.db import make_engine
 from server.models import ApiToken, User
@@ -64,4 +65,4 @@ def test_reanalyze_command(env, client, session, capsys):
     session.commit()
     assert main(["reanalyze", "--kind", "pe_loop"]) == 0
     out = capsys.readouterr().out
-    assert f"measurement {mid} (pe_loop) hysteresis/0.1 -> hysteresis/1.0" in out and "1 measurement(s) changed" in out
+    assert f"measurement {mid} (pe_loop) hysteresis/0.1 -> {hysteresis.VERSION}" in out and "1 measurement(s) changed" in out

@@ -94,7 +94,14 @@ EXAMPLE_SMILES = "COc1c(OC)c2c3c4c1Cc1c(OC)c(OC)c5c(c14)c1c(c(OC)c(OC)c(c31)C2)C
 
 
 def example_csv(frame, conditions: Mapping[str, str], metadata: Mapping[str, str] | None = None) -> bytes:
-    """An example table file: its conditions as ``# key: value`` lines first, then the frame."""
+    """An example table file: its conditions as ``# key: value`` lines first, then the frame.
+
+    Numbers are written with 9 significant digits, as an instrument would: the last bits of a float
+    differ between numerical-library builds, and the committed examples must not depend on them.
+    """
+    floats = frame.select_dtypes("float").columns
+    frame = frame.copy()
+    frame[floats] = frame[floats].map(lambda v: float(f"{v:.9g}"))
     return to_csv_bytes(frame, {**conditions, **(metadata or {})})
 
 

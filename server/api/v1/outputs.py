@@ -1,0 +1,48 @@
+"""Outputs for meetings and papers: vector figures of measurements and compounds, the report pack."""
+
+from __future__ import annotations
+
+from typing import Literal
+
+from fastapi import APIRouter
+from fastapi.responses import Response
+
+from ... import access
+from ...deps import Reader, RowId, SessionDep
+from ...services import figures_vector, measurements, registry
+from ...services.errors import NotFound
+from .responses import AUTH_ERRORS, NOT_FOUND
+
+router = APIRouter(tags=["outputs"])
+
+FIGURE_CONTENT = {200: {"content": {t: {} for t in figures_vector.FORMATS.values()}}}
+
+
+def _figure_response(data: bytes, fmt: str, name: str) -> Response:
+    return Response(data, media_type=figures_vector.FORMATS[fmt],
+                    headers={"Content-Disposition": f'inline; filename="{name}.{fmt}"'})
+
+
+@router.get("/measurements/{measurement_id}/figure.{fmt}", responses={**AUTH_ERRORS, **NOT_FOUND, **FIGURE_CONTENT},
+            response_class=Response)
+def measurement_figure(measurement_id: RowId, fmt: Literal["svg", "pdf"], session: SessionDep,
+                       actor: Reader) -> Response:
+    """The measurement's figure in publication style (8.5 cm wide) as SVG or PDF; 404 for kinds without one."""
+    m = measurements.get_measurement(session, measurement_id)
+    fig = figures_vector.measurement_plot(session, m)
+    return _figure_response(figures_vector.render(fig, fmt), fmt, f"measurement-{m.id}-{m.kind}")
+
+
+@router.get("/compounds/{code}/figures/{name}.{fmt}", responses={**AUTH_ERRORS, **NOT_FOUND, **FIGURE_CONTENT},
+            response_class=Response)
+def compound_figure(code: str, name: str, fmt: Literal["svg", "pdf"], session: SessionDep,
+                    actor: Reader) -> Response:
+    """A compound-level figure (``switching``: Pr and Ec against T) as SVG or PDF; 404 when there is too
+    little data (fewer than two loops with a temperature) or the compound is embargoed from this caller."""
+    compound = registry.get_compound(session, code)
+    if not access.may_see_structure(actor, compound):
+        raise NotFound(f"no figures for {code}")
+    fig = figures_vector.compound_plot(session, compound, name)
+    if fig is None:
+        raise NotFound(f"too little data for the {name} figure of {code}")
+    return _figure_response(figures_vector.render(fig, fmt), fmt, f"{code}-{name}")

@@ -9,7 +9,7 @@ from fastapi.responses import Response
 
 from ... import access
 from ...deps import Reader, RowId, SessionDep
-from ...services import figures_vector, measurements, registry
+from ...services import figures_vector, measurements, registry, report_pack
 from ...services.errors import NotFound
 from .responses import AUTH_ERRORS, NOT_FOUND
 
@@ -46,3 +46,16 @@ def compound_figure(code: str, name: str, fmt: Literal["svg", "pdf"], session: S
     if fig is None:
         raise NotFound(f"too little data for the {name} figure of {code}")
     return _figure_response(figures_vector.render(fig, fmt), fmt, f"{code}-{name}")
+
+
+@router.get("/compounds/{code}/report.zip", responses={**AUTH_ERRORS, **NOT_FOUND,
+                                                        200: {"content": {"application/zip": {}}}},
+            response_class=Response)
+def compound_report(code: str, session: SessionDep, actor: Reader) -> Response:
+    """The compound's report pack: one-page summary (HTML, PDF), figures (SVG, PDF), CSV tables, raw
+    files, CIFs and manifest.json with checksums and analysis versions. Embargoed compounds: 403 for a
+    caller who may not see embargoed structures."""
+    compound = registry.get_compound(session, code)
+    data = report_pack.report_pack(session, compound, actor=actor)
+    return Response(data, media_type="application/zip",
+                    headers={"Content-Disposition": f'attachment; filename="{compound.code}-report.zip"'})

@@ -217,7 +217,7 @@ def _domain(layout: Any, y: str) -> tuple[float, float]:
     return tuple(yl.domain)
 
 
-def _values(v: Any) -> list:
+def trace_values(v: Any) -> list:
     """A trace's data as a list; plotly JSON's typed arrays (``{"dtype", "bdata"}``) decoded."""
     if v is None:
         return []
@@ -229,7 +229,7 @@ def _values(v: Any) -> list:
 
 def _trace(ax: Any, tr: Any) -> list[Any]:
     """Draw one plotly scatter trace on ``ax``; its legend handles."""
-    x, y = _values(tr.x), _values(tr.y)
+    x, y = trace_values(tr.x), trace_values(tr.y)
     if not y:
         return []
     if not x:
@@ -264,7 +264,7 @@ def _trace(ax: Any, tr: Any) -> list[Any]:
             out += handle
     err = tr.error_y
     if err is not None and err.array is not None and err.visible is not False:
-        ax.errorbar(x, y, yerr=_values(err.array), fmt="none", ecolor=colour, elinewidth=0.6, capsize=1.5)
+        ax.errorbar(x, y, yerr=trace_values(err.array), fmt="none", ecolor=colour, elinewidth=0.6, capsize=1.5)
     return out
 
 

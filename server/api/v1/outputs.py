@@ -2,16 +2,16 @@
 
 from __future__ import annotations
 
-from typing import Literal
+from typing import Literal, Optional
 
-from fastapi import APIRouter
+from fastapi import APIRouter, Request
 from fastapi.responses import Response
 
 from ... import access
 from ...deps import Reader, RowId, SessionDep
-from ...services import figures_vector, measurements, registry, report_pack
+from ...services import digest, figures_vector, measurements, registry, report_pack
 from ...services.errors import NotFound
-from .responses import AUTH_ERRORS, NOT_FOUND
+from .responses import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND
 
 router = APIRouter(tags=["outputs"])
 
@@ -59,3 +59,14 @@ def compound_report(code: str, session: SessionDep, actor: Reader) -> Response:
     data = report_pack.report_pack(session, compound, actor=actor)
     return Response(data, media_type="application/zip",
                     headers={"Content-Disposition": f'attachment; filename="{compound.code}-report.zip"'})
+
+
+@router.get("/digest.atom", responses={**AUTH_ERRORS, **INPUT_ERRORS, 200: {"content": {"application/atom+xml": {}}}},
+            response_class=Response)
+def digest_feed(request: Request, session: SessionDep, actor: Reader, since: Optional[str] = None) -> Response:
+    """The weekly digest as an Atom feed (RFC 4287) for feed readers; needs a read token. Embargoed
+    compounds appear by code only. ``since`` is YYYY-MM-DD (default: seven days ago)."""
+    d = digest.build(session, digest.parse_since(since), actor=actor, by_code_only=True)
+    base = str(request.base_url).rstrip("/")
+    return Response(digest.atom(d, feed_url=f"{base}/api/v1/digest.atom", site_url=base),
+                    media_type="application/atom+xml; charset=utf-8")

@@ -135,3 +135,20 @@ def thumbnail_svg(
         mol_or_smiles, width=width, height=height, legend=legend, background=background,
         bond_width=1.0, padding=0.03,
     )
+
+
+def depict_png(mol_or_smiles: Chem.Mol | str, *, width: int = 600, height: int = 440) -> bytes:
+    """PNG drawing of a compound (white background), for pages that cannot embed SVG (the PDF summary).
+
+    Same preparation as :func:`depict_svg` (2D coordinates from RDKit's CoordGen, R labels).
+    """
+    mol = _prepare(mol_or_smiles)
+    drawer = rdMolDraw2D.MolDraw2DCairo(int(width), int(height))
+    options = drawer.drawOptions()
+    options.setBackgroundColour(_BACKGROUNDS["white"])
+    options.bondLineWidth = 2.0
+    options.padding = 0.05
+    with captured_rdkit_log():
+        drawer.DrawMolecule(mol)
+    drawer.FinishDrawing()
+    return drawer.GetDrawingText()

@@ -199,7 +199,7 @@ def refresh_derived(session: Session, changed: Sequence[Measurement], *, actor: 
             kind.derive(session, compound=compound, batch=batch, measurement=m, actor=actor)
     session.flush()
     for compound_id in sorted(compounds):
-        verdicts.recompute(session, compounds[compound_id])
+        verdicts.recompute(session, compounds[compound_id], actor=actor)
         stats.refresh(session, compounds[compound_id])
 
 

@@ -46,9 +46,20 @@ def batch_verdicts(session: Session, compound: Compound) -> dict[int, rules.Comp
     return {bid: rules.decide(evs) for bid, evs in by_batch.items()}
 
 
-def recompute(session: Session, compound: Compound) -> rules.CompoundVerdict:
-    """Decide again from the current evidence and store it on the compound (the caller commits)."""
+def recompute(session: Session, compound: Compound, *, actor: str = "system:verdict") -> rules.CompoundVerdict:
+    """Decide again from the current evidence and store it on the compound (the caller commits).
+
+    A change of the computed code, or of its conflicts, is audited as ``verdict.change`` (old and new
+    code, the reason, the conflicts): the weekly digest reads these events.
+    """
     decision = rules.decide(evidence_for(session, compound))
+    old_conflicts = [c.get("message", "") for c in (compound.verdict or {}).get("conflicts") or []]
+    new_conflicts = [c.message for c in decision.conflicts]
+    if compound.id is not None and (decision.code != compound.verdict_code or new_conflicts != old_conflicts):
+        audit.record(session, actor=actor, action="verdict.change", entity="compound", code=compound.code,
+                     compound_id=compound.id,
+                     before={"code": compound.verdict_code, "conflicts": old_conflicts},
+                     after={"code": decision.code, "reason": decision.reason, "conflicts": new_conflicts})
     compound.verdict_code = decision.code
     compound.verdict = jsonable(decision.to_dict())
     compound.verdict_at = utcnow()

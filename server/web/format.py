@@ -2,10 +2,10 @@
 
 from __future__ import annotations
 
-import math
 from typing import Any
 
 from .. import verdict_codes
+from ..precision import significant
 
 # Suffix of a key (after the quantity) -> unit as printed. Longest suffixes first.
 UNIT_SUFFIXES: tuple[tuple[str, str], ...] = (
@@ -61,17 +61,7 @@ def digits_of(key: str, kind: str | None = None) -> int:
 
 def number(value: Any, digits: int = 4) -> str:
     """Numbers with a sensible number of significant digits; other values as text."""
-    if isinstance(value, bool) or value is None:
-        return "—" if value is None else ("yes" if value else "no")
-    if isinstance(value, int):
-        return str(value)
-    if isinstance(value, float):
-        if not math.isfinite(value):
-            return "—"
-        if value != 0 and (abs(value) >= 1e6 or abs(value) < 1e-3):
-            return f"{value:.{digits - 1}e}"
-        return f"{value:.{digits}g}"
-    return str(value)
+    return significant(value, digits)
 
 
 def scalar_items(results: dict[str, Any], kind: str | None = None) -> list[tuple[str, str, Any, int]]:

@@ -258,7 +258,8 @@ PUBLIC = {("GET", "/login"), ("POST", "/login"), ("POST", "/logout"), ("GET", "/
 WEB_READ = {("GET", p) for p in (
     "/compounds", "/compounds/export.{fmt}", "/compounds/{code}", "/compounds/{code}/timeline",
     "/compounds/{code}/rates", "/scaffolds", "/measurements/{measurement_id}", "/explorer", "/outcomes",
-    "/calibration", "/jobs/{job_id}/panel", "/queue")}
+    "/calibration", "/jobs/{job_id}/panel", "/queue", "/digest", "/digest.md", "/compare",
+    "/compare.{fmt}")}
 WEB_WRITE = {("GET", "/compounds/new"), ("POST", "/compounds/preview"), ("POST", "/compounds/new"),
              ("POST", "/compounds/{code}/edit"), ("POST", "/compounds/{code}/archive"),
              ("POST", "/compounds/{code}/barriers"), ("POST", "/compounds/{code}/estimate"),

@@ -101,7 +101,7 @@ def sync_rate_table_barrier(session: Session, *, compound: Compound, measurement
         row = BarrierEstimate(compound_id=compound.id, method="eyring", measurement_id=measurement.id,
                               created_by=actor)
     _set_eyring(row, dict(measurement.results), measurement.analysis_version)
-    row.archived = measurement.archived
+    row.archived = measurement.retired
     session.add(row)
 
 

@@ -10,7 +10,7 @@ from ..analysis import verdict as rules
 from ..analysis.common import Flag, jsonable
 from ..errors import InputError
 from ..kinds import KINDS
-from ..models import Batch, Compound, Measurement, utcnow
+from ..models import Batch, Compound, Measurement, utcnow, live_measurement
 from . import audit
 
 
@@ -22,7 +22,7 @@ def evidence_kinds() -> tuple[str, ...]:
 def evidence_for(session: Session, compound: Compound) -> list[rules.Evidence]:
     rows = session.exec(
         select(Measurement).join(Batch, Batch.id == Measurement.batch_id)
-        .where(Batch.compound_id == compound.id, Measurement.archived == False,  # noqa: E712
+        .where(Batch.compound_id == compound.id, live_measurement(),  
                Measurement.kind.in_(evidence_kinds()))
         .order_by(Measurement.id)
     ).all()

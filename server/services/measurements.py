@@ -28,10 +28,12 @@ from .errors import Duplicate, Forbidden, NotFound, TooLarge
 __all__ = ["FORM_FIELDS", "upload_measurement", "revise_measurement", "reanalyse", "reanalyse_one", "set_archived",
            "refresh_derived"]
 
-#: The condition values two uploads must share to count as the same measurement (``sources`` and
-#: the file's other metadata do not count).
-_SAME_KEYS = ("area_cm2", "thickness_um", "mass_mg", "rate_K_min", "temperature_K", "frequency_Hz", "endo",
-              "instrument", "operator", "notes", "sweep")
+#: The physical conditions of a measurement: the same bytes posted again with one of these
+#: different are a conflict (409), not the same measurement.
+_PHYSICAL_KEYS = ("area_cm2", "thickness_um", "mass_mg", "rate_K_min", "temperature_K", "frequency_Hz", "endo",
+                  "sweep")
+#: Everything a correction may change (``sources`` and the file's other metadata do not count).
+_SAME_KEYS = _PHYSICAL_KEYS + ("instrument", "operator", "notes")
 
 
 @dataclass(frozen=True)
@@ -87,11 +89,17 @@ def analyse(kind: Kind, raw: bytes, *, filename: str | None, form: Mapping[str, 
     return Analysed(kind=kind, parsed=parsed, conditions=conditions, result=result)
 
 
-def same_conditions(stored: Mapping[str, Any], new: Conditions) -> bool:
-    """Whether stored conditions (``Conditions.to_dict()``) equal ``new`` in every value."""
+def same_conditions(stored: Mapping[str, Any], new: Conditions, *, given_only: bool = False) -> bool:
+    """Whether stored conditions (``Conditions.to_dict()``) equal ``new`` in every value.
+
+    ``given_only``: compare only the physical conditions ``new`` gives (a re-post that leaves
+    out what was typed the first time, or types only who measured it, is the same measurement).
+    """
     fresh = new.to_dict()
-    for key in _SAME_KEYS:
+    for key in _PHYSICAL_KEYS if given_only else _SAME_KEYS:
         a, b = stored.get(key), fresh.get(key)
+        if given_only and (b is None or (key == "endo" and new.sources.get("endo") is None)):
+            continue
         if isinstance(a, (int, float)) and isinstance(b, (int, float)):
             if abs(a - b) > 1e-9 * max(abs(a), abs(b)):
                 return False
@@ -106,7 +114,7 @@ def _live_copy(session: Session, sample_id: int, sha: str, kind: str) -> Optiona
 
 
 def _same_or_conflict(existing: Measurement, conditions: Conditions) -> Measurement:
-    if same_conditions(existing.conditions, conditions):
+    if same_conditions(existing.conditions, conditions, given_only=True):
         return existing
     raise Duplicate(
         f"these bytes are stored already as measurement {existing.id} with other conditions; to correct "

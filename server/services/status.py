@@ -16,6 +16,7 @@ from sqlmodel import Session, select
 from ..access import Actor, may_see_structure
 from ..analysis.verdict import LABELS as VERDICT_LABELS
 from ..models import (
+    live_measurement,
     AuditEvent,
     BarrierEstimate,
     Batch,

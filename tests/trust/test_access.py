@@ -31,6 +31,7 @@ from .conftest import loop_bytes
 
 WRITE_METHODS = ("post", "patch", "put", "delete")
 UPLOAD = ("post", "/api/v1/batches/{batch_code}/measurements")
+UPLOADS = {UPLOAD, ("post", "/api/v1/samples/{sample_code}/measurements")}  # an upload token may post files
 # Admin-only (the Admin dependency of deps.py): a member or a write token is refused there too, with
 # require_admin's own message. These are known to be admin-only; others are found by that message.
 ADMIN_ONLY = {("post", "/api/v1/compounds/{code}/verdict/override"), ("post", "/api/v1/compounds/{code}/verdict/clear")}
@@ -75,6 +76,7 @@ def world(app, client, session):
         sessions[role] = (c, login_as(c, session, role=role, name=f"{role}-x"))
     yield {
         "params": {"code": code, "batch_code": batch, "job_id": job.json()["job"], "measurement_id": m.json()["id"],
+                   "sample_code": m.json()["sample"],
                    "username": "spare-user", "token_id": spare.id},
         "code": code,
         "batch": batch,
@@ -91,7 +93,7 @@ def call(c: TestClient, method: str, path: str, params: dict, headers: dict | No
     # /batches/{code}/... names a batch by `code`; everywhere else `code` is a compound.
     values = {**params, "code": params["batch_code"]} if path.startswith("/api/v1/batches/{code}") else params
     url = re.sub(r"\{(\w+)\}", lambda m: str(values[m.group(1)]), path)
-    if (method, path) == UPLOAD:
+    if (method, path) in UPLOADS:
         return c.request(method.upper(), url, data={"kind": kind},
                          files={"file": ("loop.csv", loop_bytes(len(url) + hash(kind) % 50), "text/csv")},
                          headers=headers or {})
@@ -118,7 +120,7 @@ def test_denied_callers_over_every_write_endpoint(app, client, world):
         expect("read token", 403, call(client, method, path, params, tokens["read"]), method, path)
         viewer, viewer_csrf = sessions["viewer"]
         expect("viewer session", 403, call(viewer, method, path, params, {"X-CSRF-Token": viewer_csrf}), method, path)
-        if (method, path) != UPLOAD:
+        if (method, path) not in UPLOADS:
             expect("upload token", 403, call(client, method, path, params, tokens["upload"]), method, path)
         for role in ("member", "admin"):
             c, _ = sessions[role]
@@ -361,7 +363,8 @@ def embargoed_world(client, session, world):
     admin, csrf = world["sessions"]["admin"]
     admin.post("/status/public", data={"enabled": "on", "csrf_token": csrf})  # so visitors reach it too
     return {"params": {**world["params"], "fmt": "csv", "code": c["code"], "batch_code": batch["code"],
-                       "measurement_id": m.json()["id"], "job_id": job.json()["job"]},
+                       "measurement_id": m.json()["id"],
+                   "sample_code": m.json()["sample"], "job_id": job.json()["job"]},
             "giveaways": {"SMILES": SECRET, "InChIKey": c["inchikey"], "formula": c["formula"],
                           "label": SECRET_LABEL, "notes": SECRET_NOTES}}
 

@@ -32,6 +32,7 @@ from .web import batches as batch_pages
 from .web import campaign as campaign_pages
 from .web import compounds as compound_pages
 from .web import measurements as measurement_pages
+from .web import samples as sample_pages
 from .web import scaffolds as scaffold_pages
 from .web.render import render
 
@@ -170,7 +171,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
 
     app.include_router(api_router)
     app.include_router(api_docs_page.router)
-    for pages in (auth_pages, compound_pages, batch_pages, scaffold_pages, measurement_pages, campaign_pages,
+    for pages in (auth_pages, compound_pages, batch_pages, scaffold_pages, measurement_pages, sample_pages, campaign_pages,
                   admin_pages):
         app.include_router(pages.router)
     app.mount("/static", StaticFiles(directory=str(static_dir())), name="static")

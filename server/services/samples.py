@@ -140,6 +140,14 @@ def get_sample(session: Session, code: str) -> Sample:
     return sample
 
 
+def get_sample_of_batch(session: Session, batch: Batch, code: str) -> Sample:
+    """A sample chosen on the upload form of ``batch``: it must be one of that batch's."""
+    sample = session.exec(select(Sample).where(Sample.code == code, Sample.batch_id == batch.id)).first()
+    if sample is None:
+        raise InputError(f"{code!r} is not a sample of batch {batch.code}", field="sample")
+    return sample
+
+
 def batch_of(session: Session, sample: Sample) -> Batch:
     return session.get(Batch, sample.batch_id)
 
@@ -152,6 +160,15 @@ def samples_of_compound(session: Session, compound: Compound) -> list[tuple[Samp
     rows = session.exec(select(Sample, Batch).join(Batch, Batch.id == Sample.batch_id)
                         .where(Batch.compound_id == compound.id).order_by(Batch.seq, Sample.seq)).all()
     return [(s, b) for s, b in rows]
+
+
+def with_counts(session: Session, rows: list[Sample]) -> list[tuple[Sample, int]]:
+    """Each sample with the number of its live measurements."""
+    if not rows:
+        return []
+    counts = dict(session.exec(select(Measurement.sample_id, func.count()).where(
+        Measurement.sample_id.in_([s.id for s in rows]), live_measurement()).group_by(Measurement.sample_id)).all())
+    return [(s, counts.get(s.id, 0)) for s in rows]
 
 
 def live_measurements(session: Session, sample: Sample) -> list[Measurement]:
@@ -247,3 +264,22 @@ def sample_history(session: Session, sample: Sample, *, transition_K: Optional[d
                 went_above, poled = True, False
     return {"history": entries, "highest_field_kV_cm": max_field, "highest_temperature_K": max_t,
             "transition": transition_K, "poled": poled}
+
+
+def sample_page(session: Session, sample: Sample) -> dict[str, Any]:
+    """Everything the sample page shows: the sample and its history, its series with their fits,
+    and the Pr/Ec figure with one line per temperature series."""
+    from ..plots import figure_json, summary
+    from . import series as series_service
+    from .measurements import measurement_read
+
+    batch = batch_of(session, sample)
+    ms = {m.id: measurement_read(session, m) for m in live_measurements(session, sample)}
+    found = series_service.sample_series(session, sample)
+    lines = [(f"{s['direction'] or 'series'} #{n + 1}", [ms[i] for i in s["measurements"] if i in ms])
+             for n, s in enumerate(found) if s["kind"] == "pe_loop" and s["variable"] == "temperature"]
+    in_series = {i for s in found if s["kind"] == "pe_loop" and s["variable"] == "temperature" for i in s["measurements"]}
+    fig = summary.switching_by_series(lines, [m for i, m in ms.items() if m["kind"] == "pe_loop" and i not in in_series])
+    return {"s": sample_read(session, sample), "batch": batch,
+            "compound": session.get(Compound, batch.compound_id), "measurements": ms, "series": found,
+            "series_figure": figure_json(fig) if fig else None}

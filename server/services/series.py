@@ -1,7 +1,8 @@
 """Measurement series of one sample: found automatically, or stated, and fitted.
 
 Measurements of one sample and kind that differ in one swept variable (temperature,
-frequency or field amplitude) while the other two stay put form a series. A temperature
+frequency or field amplitude) while the others stay put form a series; a temperature run
+holds the frequency only, since the drive amplitude is often lowered as Ec falls. A temperature
 series runs on heating or on cooling: the direction is the stated ``sweep`` condition of its
 measurements where one is given, else the order of upload (a run turns where the temperature
 turns). Stated series (``state_series``, e.g. from an import profile that read several blocks
@@ -102,7 +103,8 @@ def _runs(ms: Sequence[Measurement]) -> list[tuple[str, list[Measurement]]]:
 
 def _temperature_series(ms: Sequence[Measurement]) -> list[dict[str, Any]]:
     out = []
-    for group in _groups(ms, ("frequency", "field")):
+    # The drive amplitude is often lowered as Ec falls on heating: a temperature run holds only the frequency.
+    for group in _groups(ms, ("frequency",)):
         stated = {d: [m for m in group if (m.conditions or {}).get("sweep") == d] for d in SWEEP_DIRECTIONS}
         rest = [m for m in group if (m.conditions or {}).get("sweep") not in SWEEP_DIRECTIONS]
         candidates = [(d, members, "stated sweep") for d, members in stated.items()]
@@ -223,11 +225,17 @@ def _pr_fits(entries: Sequence[dict[str, Any]]) -> list[fits.PrTemperatureFit]:
     return out
 
 
+def combine_series_tc(entries: Sequence[dict[str, Any]]) -> Optional[dict[str, Any]]:
+    """A Curie temperature estimate from series entries (:func:`sample_series`)."""
+    return fits.combine_tc(_pr_fits(entries))
+
+
 def compound_tc(session: Session, compound: Compound) -> Optional[dict[str, Any]]:
     """The compound's Curie temperature estimated from every Pr(T) series of its samples
-    (:func:`server.analysis.series.combine_tc`); None when no series gives a Tc with an error."""
+    (:func:`server.analysis.series.combine_tc`); None when no series gives a Tc with an error.
+    The verdict can use it as the compound's transition temperature."""
     entries = [e for s, _ in samples_of_compound(session, compound) for e in sample_series(session, s)]
-    return fits.combine_tc(_pr_fits(entries))
+    return combine_series_tc(entries)
 
 
 def transition_K(session: Session, sample: Sample) -> Optional[dict[str, Any]]:

@@ -260,13 +260,14 @@ PUBLIC = {("GET", "/login"), ("POST", "/login"), ("POST", "/logout"), ("GET", "/
 WEB_READ = {("GET", p) for p in (
     "/compounds", "/compounds/export.{fmt}", "/compounds/{code}", "/compounds/{code}/timeline",
     "/compounds/{code}/rates", "/scaffolds", "/measurements/{measurement_id}", "/explorer", "/outcomes",
-    "/calibration", "/jobs/{job_id}/panel", "/queue")}
+    "/calibration", "/jobs/{job_id}/panel", "/queue", "/samples/{code}")}
 WEB_WRITE = {("GET", "/compounds/new"), ("POST", "/compounds/preview"), ("POST", "/compounds/new"),
              ("POST", "/compounds/{code}/edit"), ("POST", "/compounds/{code}/archive"),
              ("POST", "/compounds/{code}/barriers"), ("POST", "/compounds/{code}/estimate"),
              ("GET", "/compounds/{code}/batches/new"), ("POST", "/compounds/{code}/batches/new"),
              ("POST", "/scaffolds"), ("GET", "/batches/{code}/upload"), ("POST", "/batches/{code}/upload"),
-             ("POST", "/jobs/{job_id}/cancel"), ("POST", "/queue")}
+             ("POST", "/jobs/{job_id}/cancel"), ("POST", "/queue"),
+             ("POST", "/measurements/{measurement_id}/revise"), ("POST", "/measurements/{measurement_id}/archive")}
 WEB_ADMIN = {("POST", "/compounds/{code}/verdict"), ("POST", "/status/public"), ("GET", "/admin"),
              ("POST", "/admin/users"), ("POST", "/admin/users/{username}/deactivate"), ("POST", "/admin/tokens"),
              ("POST", "/admin/tokens/{token_id}/revoke")}
@@ -293,6 +294,8 @@ def web_call(c: TestClient, method: str, path: str, params: dict, headers: dict 
     url = re.sub(r"\{(\w+)\}", lambda m: str(params[m.group(1)]), path)
     if path.startswith("/batches/{code}"):
         url = url.replace(f"/batches/{params['code']}/", f"/batches/{params['batch_code']}/")
+    if path.startswith("/samples/{code}"):
+        url = url.replace(f"/samples/{params['code']}", f"/samples/{params['sample_code']}")
     return c.request(method, url, data={} if method == "POST" else None, headers=headers or {},
                      follow_redirects=False)
 
@@ -363,8 +366,7 @@ def embargoed_world(client, session, world):
     admin, csrf = world["sessions"]["admin"]
     admin.post("/status/public", data={"enabled": "on", "csrf_token": csrf})  # so visitors reach it too
     return {"params": {**world["params"], "fmt": "csv", "code": c["code"], "batch_code": batch["code"],
-                       "measurement_id": m.json()["id"],
-                   "sample_code": m.json()["sample"], "job_id": job.json()["job"]},
+                       "measurement_id": m.json()["id"], "sample_code": m.json()["sample"], "job_id": job.json()["job"]},
             "giveaways": {"SMILES": SECRET, "InChIKey": c["inchikey"], "formula": c["formula"],
                           "label": SECRET_LABEL, "notes": SECRET_NOTES}}
 

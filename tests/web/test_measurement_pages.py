@@ -68,6 +68,7 @@ def test_compound_page_summarises_loops_against_temperature(client, session):
     page = soup(client.get("/compounds/RVZ-00001").text)
     assert len(page.select("#measurements tbody tr")) == 3
     fig = json.loads(page.find("script", id="summary-figure").string)
-    xs = fig["data"][0]["x"]
-    assert xs == [280, 300, 320]
-    assert fig["layout"]["xaxis"]["title"]["text"] == "T (K)"
+    # One heating run of one sample: one Pr line and one Ec line, named after the sample and direction.
+    assert [d["name"] for d in fig["data"]] == [f"{batch}-S01 heating"] * 2
+    assert fig["data"][0]["x"] == [280, 300, 320] and fig["data"][0]["mode"] == "lines+markers"
+    assert fig["layout"]["xaxis2"]["title"]["text"] == "T (K)"

@@ -74,20 +74,28 @@ def _next_seq(session: Session, batch: Batch) -> int:
     return (session.exec(select(func.max(Sample.seq)).where(Sample.batch_id == batch.id)).one() or 0) + 1
 
 
+def add_sample(*, session: Session, batch: Batch, data: SampleCreate, actor: str) -> Sample:
+    """Validate and add a described sample to the session (flushed, not committed), so an upload
+    can be filed under it in the same transaction. InputError before anything is added."""
+    values = _sample_values(data)
+    seq = _next_seq(session, batch)
+    sample = Sample(code=sample_code(batch, seq), batch_id=batch.id, seq=seq, created_by=actor, **values)
+    session.add(sample)
+    session.flush()
+    audit.record(session, actor=actor, action="sample.create", entity="sample", code=sample.code,
+                 compound_id=batch.compound_id, after=audit.snapshot(sample))
+    return sample
+
+
 def create_sample(*, session: Session, batch: Batch, data: SampleCreate, actor: str) -> Sample:
     """Record a described sample of ``batch`` (code ``<batch>-Snn``, never reused)."""
-    values = _sample_values(data)
+    _sample_values(data)  # refuse bad input before taking a number
     for _ in range(5):
-        seq = _next_seq(session, batch)
-        sample = Sample(code=sample_code(batch, seq), batch_id=batch.id, seq=seq, created_by=actor, **values)
-        session.add(sample)
         try:
-            session.flush()
+            sample = add_sample(session=session, batch=batch, data=data, actor=actor)
         except IntegrityError:
             session.rollback()  # another sample took the number first
             continue
-        audit.record(session, actor=actor, action="sample.create", entity="sample", code=sample.code,
-                     compound_id=batch.compound_id, after=audit.snapshot(sample))
         session.commit()
         session.refresh(sample)
         return sample

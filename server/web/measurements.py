@@ -10,7 +10,7 @@ from ..deps import PageActor, PageWriter, RowId, SessionDep, SettingsDep
 from ..errors import InputError
 from ..ingest.conditions import CONDITION_EXAMPLES
 from ..kinds import KINDS, needed_by
-from ..models import Batch, Compound
+from ..models import SAMPLE_FORMS, Batch, Compound, SampleCreate
 from ..services import measurements, registry, samples
 from ..services.errors import Duplicate, Forbidden
 from .render import redirect, render
@@ -18,11 +18,13 @@ from .render import redirect, render
 router = APIRouter(include_in_schema=False)
 
 FIELDS = measurements.FORM_FIELDS
+NEW_SAMPLE = "new"  # the sample choice that describes a new sample inline
 
 
 def _upload_context(session, batch: Batch, compound: Compound, form: dict, error: Optional[str] = None) -> dict:
     return {"batch": batch, "c": compound, "kinds": KINDS, "needed_by": needed_by(), "examples": CONDITION_EXAMPLES,
-            "form": form, "error": error, "samples": samples.samples_of_batch(session, batch)}
+            "form": form, "error": error, "samples": samples.samples_of_batch(session, batch),
+            "sample_forms": SAMPLE_FORMS, "new_sample": NEW_SAMPLE}
 
 
 @router.get("/batches/{code}/upload", response_class=HTMLResponse)
@@ -55,15 +57,28 @@ def upload(
     endo: Annotated[str, Form()] = "",
     sweep: Annotated[str, Form()] = "",
     sample: Annotated[str, Form()] = "",
+    new_form: Annotated[str, Form()] = "",
+    new_thickness: Annotated[str, Form()] = "",
+    new_electrode_area: Annotated[str, Form()] = "",
+    new_electrode: Annotated[str, Form()] = "",
+    new_axis: Annotated[str, Form()] = "",
 ):
     batch = registry.get_batch(session, code)
     compound = registry.compound_of(session, batch)
     form = {"kind": kind, "area": area, "thickness": thickness, "mass": mass, "rate": rate,
             "temperature": temperature, "frequency": frequency, "instrument": instrument, "operator": operator,
             "notes": notes, "endo": endo, "sweep": sweep}
+    new = {"form": new_form, "thickness": new_thickness, "electrode_area": new_electrode_area,
+           "electrode": new_electrode, "axis": new_axis}
     try:
-        target = samples.get_sample_of_batch(session, batch, sample) if sample else None
         raw = measurements.read_upload(file, settings.max_upload_bytes)
+        if sample == NEW_SAMPLE:
+            # Described inline: added in the upload's own transaction, so a refused file leaves no sample.
+            data = SampleCreate(**{k: (v.strip() or None) for k, v in new.items() if k != "form"},
+                                form=new_form.strip())
+            target = samples.add_sample(session=session, batch=batch, data=data, actor=actor.label)
+        else:
+            target = samples.get_sample_of_batch(session, batch, sample) if sample else None
         m, _ = measurements.upload_measurement(
             session=session, batch=batch, sample=target, kind_name=kind, raw=raw, filename=file.filename,
             form={k: (v or None) for k, v in form.items() if k != "kind"}, actor=actor.label,
@@ -71,7 +86,8 @@ def upload(
     except (InputError, Forbidden, Duplicate) as exc:
         session.rollback()
         return render(request, "pages/upload.html",
-                      _upload_context(session, batch, compound, {**form, "sample": sample}, str(exc)),
+                      _upload_context(session, batch, compound,
+                                      {**form, "sample": sample, **{f"new_{k}": v for k, v in new.items()}}, str(exc)),
                       partial="partials/upload_form.html", status_code=422, actor=actor)
     return redirect(f"/measurements/{m.id}", request)
 

@@ -243,3 +243,14 @@ def test_history_flags(client, session, batch, writer):
     assert got["highest_temperature_K"] == 350.0 and got["highest_field_kV_cm"] == pytest.approx(450.0, rel=0.02)
     api = client.get(f"/api/v1/samples/{batch}-S01", headers=writer).json()
     assert len(api["history"]) == 4 and api["highest_temperature_K"] == 350.0
+
+
+def test_stated_series_bad_ids_are_refused(client, batch, writer):
+    upload(client, f"batches/{batch}", vq_loop(), writer, area="0.0785 cm^2", thickness="150 um")
+    for ids in ([2**40, 1], [0, 1], [1]):
+        r = client.post(f"/api/v1/samples/{batch}-S01/series", headers=writer,
+                        json={"variable": "temperature", "measurements": ids})
+        assert r.status_code == 422, (ids, r.text)
+    r = client.post(f"/api/v1/samples/{batch}-S01/series", headers=writer,
+                    json={"variable": "temperature", "measurements": [1, 99]})
+    assert r.status_code == 422 and r.json()["field"] == "measurements"

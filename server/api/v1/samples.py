@@ -8,7 +8,7 @@ from fastapi import APIRouter, File, Form, UploadFile
 from fastapi.responses import JSONResponse
 from pydantic import BaseModel, ConfigDict, Field
 
-from ...deps import Reader, SessionDep, SettingsDep, Uploader, Writer
+from ...deps import MAX_ID, Reader, SessionDep, SettingsDep, Uploader, Writer
 from ...kinds import KINDS
 from ...models import SampleCreate
 from ...services import measurements, registry, samples, series
@@ -55,7 +55,7 @@ class SeriesCreate(BaseModel):
     model_config = ConfigDict(extra="forbid")
 
     variable: str
-    measurements: list[int] = Field(max_length=1000)
+    measurements: list[Annotated[int, Field(ge=1, le=MAX_ID)]] = Field(max_length=1000)
     direction: Optional[str] = None
     notes: str = Field(default="", max_length=20000)
 

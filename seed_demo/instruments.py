@@ -238,3 +238,25 @@ def write(c: CompoundPlan, batch_seq: int, index: int, m: Measurement, operator:
     rng = np.random.default_rng([SEED, c.index, batch_seq, index])
     temp = f"-{m.temperature_K:g}K" if m.temperature_K is not None and m.kind in ("pe_loop", "pund") else ""
     return WRITERS[m.kind](c, m, rng, f"{code}-{m.kind}{temp}", operator)
+
+
+def specimen_loop(c: CompoundPlan, t_K: float, rng: np.random.Generator, *, pr_factor: float, area_cm2: float,
+                  thickness_um: float, name: str, operator: str, sweep: str = "") -> Upload:
+    """A loop measured on a described sample (V, Q from the sample's own geometry); area and
+    thickness are left off the form, so they come from the sample."""
+    e0 = c.drive_kV_cm
+    pr = c.pr_uC_cm2(t_K) * pr_factor
+    if pr > 0:
+        ps = pr / float(rng.uniform(0.86, 0.93))
+        frame = miller_loop(ps, pr, c.ec_kV_cm(t_K), e0, cycles=2, points_per_cycle=500,
+                            eps_r_background=float(rng.uniform(4, 8)), noise_uC_cm2=0.004 * ps, rng=rng,
+                            frequency_Hz=LOOP_FREQUENCY_HZ)
+    else:
+        eps = _eps_real(c, t_K)
+        frame = leaky_capacitor(eps, 0.004 * eps, e0, frequency_Hz=LOOP_FREQUENCY_HZ, noise_uC_cm2=2e-4, rng=rng)
+    meta = {"instrument": "loop-tracer-2", "drive": f"sine {LOOP_FREQUENCY_HZ:g} Hz, {e0:g} kV/cm"}
+    form = {"instrument": INSTRUMENT_FOR["pe_loop"].name, "operator": operator, "temperature": f"{t_K:g} K",
+            "frequency": f"{LOOP_FREQUENCY_HZ:g} Hz"}
+    if sweep:
+        form["sweep"] = sweep
+    return Upload("pe_loop", f"{name}.csv", to_csv_bytes(raw_vq(frame, area_cm2, thickness_um), meta), form)

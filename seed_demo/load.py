@@ -19,6 +19,7 @@ from collections import Counter
 from dataclasses import dataclass, field
 from typing import Any, Callable
 
+import numpy as np
 from fastapi.testclient import TestClient
 from sqlmodel import Session
 
@@ -47,6 +48,9 @@ class LoadReport:
     barriers: int = 0
     jobs: list[Any] = field(default_factory=list)
     skipped: list[str] = field(default_factory=list)
+    samples: list[str] = field(default_factory=list)  # codes of the described samples
+    specimen_loops: int = 0  # live loops on them (beside the scenario's measurements)
+    corrected: list[tuple[int, int]] = field(default_factory=list)  # (old id, correction id)
     seconds: float = 0.0
 
 
@@ -182,6 +186,7 @@ def load(settings: Settings, *, scale: float = 1.0, echo: Callable[[str], None] 
                 done += 1
                 _progress("measurements", done, plan.measurements, echo)
 
+        _load_specimens(client, writer, upload_secrets, plan, report, batch_codes, echo)
         _load_barriers(client, writer, plan, report, echo)
         _queue_estimates(client, writer, plan, report, echo)
 
@@ -192,6 +197,44 @@ def load(settings: Settings, *, scale: float = 1.0, echo: Callable[[str], None] 
          f"{sum(report.measurements.values())} measurements ({kinds}), {report.barriers} barriers, "
          f"{len(report.jobs)} queued estimates")
     return report
+
+
+def _load_specimens(client: TestClient, writer: dict, upload_secrets: dict, plan: scenario.Scenario,
+                    report: LoadReport, batch_codes: list, echo: Callable[[str], None]) -> None:
+    """Described samples of one batch (pellet and crystal), temperature runs on heating and on
+    cooling, and one loop whose thickness was typed wrongly and then corrected."""
+    c = scenario.specimen_compound(plan)
+    if c is None:
+        return
+    c_, b, bcode = next(row for row in batch_codes if row[0] is c)
+    loop_token = {"Authorization": f"Bearer {upload_secrets[instruments.INSTRUMENT_FOR['pe_loop'].name]}"}
+    rng = np.random.default_rng(20261202)
+    for k, sp in enumerate(scenario.specimens(c)):
+        sample = _check(client.post(f"/api/v1/batches/{bcode}/samples", headers=writer, json=sp.body), 201,
+                        f"sample of {bcode}")
+        report.samples.append(sample["code"])
+        area_cm2, thickness_um = sample["electrode_area_mm2"] / 100.0, sample["thickness_um"]
+        for j, (t_K, sweep) in enumerate(sp.loops):
+            up = instruments.specimen_loop(c, t_K, rng, pr_factor=sp.pr_factor, area_cm2=area_cm2,
+                                           thickness_um=thickness_um, name=f"{sample['code']}-{j:02d}-{t_K:g}K",
+                                           operator=b.chemist, sweep=sweep)
+            _check(client.post(f"/api/v1/samples/{sample['code']}/measurements", headers=loop_token,
+                               data={"kind": up.kind, **up.form}, files={"file": (up.filename, up.raw, up.content_type)}),
+                   201, f"loop on {sample['code']}")
+            report.specimen_loops += 1
+        if sp.corrected:
+            t_K, wrong, right = sp.corrected
+            up = instruments.specimen_loop(c, t_K, rng, pr_factor=sp.pr_factor, area_cm2=area_cm2,
+                                           thickness_um=thickness_um, name=f"{sample['code']}-typo-{t_K:g}K",
+                                           operator=b.chemist)
+            first = _check(client.post(f"/api/v1/samples/{sample['code']}/measurements", headers=loop_token,
+                                       data={"kind": up.kind, **up.form, "thickness": wrong},
+                                       files={"file": (up.filename, up.raw, up.content_type)}), 201, "typo loop")
+            fixed = _check(client.post(f"/api/v1/measurements/{first['id']}/revise", headers=writer,
+                                       data={"thickness": right}), 201, "correction")
+            report.corrected.append((first["id"], fixed["id"]))
+            report.specimen_loops += 1
+    echo(f"specimens: {', '.join(report.samples)}; corrected {len(report.corrected)}")
 
 
 def _load_barriers(client: TestClient, writer: dict, plan: scenario.Scenario, report: LoadReport,

@@ -545,3 +545,38 @@ __all__ = [
     "BatchPlan", "Crystal", "CompoundPlan", "Scenario", "build", "expected_loop_verdict",
     "expected_pund_verdict", "expected_crystal_verdict",
 ]
+
+
+# ---- specimens: one batch measured as a pressed pellet and as a single crystal
+@dataclass(frozen=True)
+class SpecimenPlan:
+    """A described sample of a batch and the loops measured on it, in the order they were taken."""
+
+    body: dict  # the POST /api/v1/batches/{code}/samples body
+    pr_factor: float  # Pr of this specimen relative to the compound's Landau Pr(T) (invented physics)
+    loops: tuple[tuple[float, str], ...]  # (temperature K, stated sweep or "")
+    corrected: tuple[float, str, str] | None = None  # (T, thickness typed wrongly, right thickness)
+
+
+def specimen_compound(plan: Scenario) -> CompoundPlan | None:
+    """The first polar, public compound with a transition: its first batch gets described samples."""
+    return next((c for c in plan.compounds if c.tc_K is not None and not c.embargoed and c.batches), None)
+
+
+def specimens(c: CompoundPlan) -> tuple[SpecimenPlan, ...]:
+    """A pellet heated through Tc (series by upload order) and cooled back (a stated sweep), and a
+    crystal cut along its polar axis, whose loops are larger (a pellet averages over grain
+    orientations; the factor 1.6 is invented for the demo), with one thickness typed wrongly and
+    corrected afterwards."""
+    tc = c.tc_K
+    heating = tuple((round(tc * f), "") for f in (0.80, 0.84, 0.88, 0.92, 0.96)) + ((round(tc + 10), ""),)
+    cooling = tuple((round(tc * f), "cooling") for f in (0.94, 0.86, 0.78))
+    pellet = SpecimenPlan(
+        body={"form": "pellet", "thickness": "150 um", "electrode_area": "7.85 mm^2", "electrode": "silver paste",
+              "preparation": {"pressing_load": "20 kN", "anneal_temperature": "80 degC", "anneal_time": "2 h"}},
+        pr_factor=1.0, loops=heating + cooling)
+    crystal = SpecimenPlan(
+        body={"form": "single_crystal", "thickness": "80 um", "electrode_area": "2 mm^2", "electrode": "gold, sputtered",
+              "axis": "[001]", "notes": "plate cut normal to the polar axis"},
+        pr_factor=1.6, loops=((round(0.8 * tc), ""),), corrected=(round(0.9 * tc), "8 um", "80 um"))
+    return (pellet, crystal)

@@ -61,7 +61,9 @@ def _check_against_scenario(report, client, reader, plan: scenario.Scenario) -> 
     embargoed = {c["code"] for c in compounds["items"] if c["embargoed"]}
     assert embargoed == {code for code, c in by_code.items() if c.embargoed}
 
-    items = _all_measurements(client, reader)
+    everything = _all_measurements(client, reader)
+    assert len(everything) == plan.measurements + report.specimen_loops
+    items = [m for m in everything if m["sample"] not in report.samples]  # the scenario's own files
     assert len(items) == plan.measurements
     seen = {"ferroelectric": 0, "lossy": 0, "polar_xtal": 0}
     for m in items:
@@ -124,6 +126,26 @@ def _check_against_scenario(report, client, reader, plan: scenario.Scenario) -> 
             assert coal[0]["dg_kcal_mol"] == pytest.approx(expect, abs=0.1), code
 
 
+def _check_specimens(report, client, reader, plan: scenario.Scenario) -> None:
+    """Pellet and crystal of one batch, heating and cooling runs, one corrected loop."""
+    c = scenario.specimen_compound(plan)
+    pellet, crystal = (client.get(f"/api/v1/samples/{code}", headers=reader).json() for code in report.samples)
+    assert (pellet["form"], crystal["form"], crystal["axis"]) == ("pellet", "single_crystal", "[001]")
+    runs = {s["direction"]: s for s in client.get(f"/api/v1/samples/{pellet['code']}/series", headers=reader).json()
+            if s["variable"] == "temperature"}
+    assert set(runs) == {"heating", "cooling"} and runs["cooling"]["direction_from"] == "stated sweep"
+    fit = runs["heating"]["fit"]["pr_T"]
+    # The scenario's Landau Pr = P0 sqrt(1 - T/Tc) (beta = 1/2, Lines and Glass 1977 ch. 3) with its Tc.
+    assert fit["tc_K"] == pytest.approx(c.tc_K, abs=max(3 * (fit["tc_err_K"] or 0), 3.0))
+    pellet_pr = client.get(f"/api/v1/measurements/{pellet['history'][0]['measurement']}", headers=reader).json()
+    crystal_pr = client.get(f"/api/v1/measurements/{crystal['history'][0]['measurement']}", headers=reader).json()
+    assert crystal_pr["results"]["pr_uC_cm2"] > 1.3 * pellet_pr["results"]["pr_uC_cm2"]  # same T, factor 1.6
+    (old, new), = report.corrected
+    assert client.get(f"/api/v1/measurements/{old}", headers=reader).json()["superseded_by"] == new
+    fixed = client.get(f"/api/v1/measurements/{new}", headers=reader).json()
+    assert fixed["supersedes"] == old and fixed["conditions"]["thickness_um"] == pytest.approx(80.0)
+
+
 def test_demo_loads_and_agrees_with_scenario(settings):
     plan = scenario.build(SCALE)
     report, app, client, reader = _loaded(settings, SCALE)
@@ -132,6 +154,7 @@ def test_demo_loads_and_agrees_with_scenario(settings):
         assert report.batches == plan.batches and 10 <= report.batches <= 30
         assert sum(report.measurements.values()) == plan.measurements
         _check_against_scenario(report, client, reader, plan)
+        _check_specimens(report, client, reader, plan)
     finally:
         client.close()
         app.state.engine.dispose()

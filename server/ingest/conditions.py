@@ -12,7 +12,7 @@ from __future__ import annotations
 import math
 import re
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 from server.errors import IngestError
@@ -55,7 +55,10 @@ _TEXT_FIELDS: dict[str, tuple[str, ...]] = {
     "notes": ("notes", "note", "comment", "comments"),
     "nucleus": ("nucleus", "observed nucleus"),
     "solvent": ("solvent",),
+    "sweep": ("sweep", "sweep direction", "temperature sweep"),
 }
+#: A stated temperature sweep direction (a series on heating or on cooling).
+SWEEP_DIRECTIONS: tuple[str, ...] = ("heating", "cooling")
 _ENDO_ALIASES = ("endo", "endo direction", "endotherm")
 
 #: The condition fields a measurement kind may say it needs (``server/kinds``).
@@ -93,6 +96,7 @@ class Conditions:
     notes: str | None = None
     nucleus: str | None = None
     solvent: str | None = None
+    sweep: str | None = None
     extra: dict[str, str] = field(default_factory=dict)
     sources: dict[str, str] = field(default_factory=dict)
 
@@ -112,6 +116,7 @@ class Conditions:
             notes=self.notes,
             nucleus=self.nucleus,
             solvent=self.solvent,
+            sweep=self.sweep,
             extra=dict(self.extra),
             sources=dict(self.sources),
         )
@@ -126,7 +131,7 @@ def form_value_as_given(conditions: Mapping[str, Any], name: str) -> str | None:
     (``repr`` keeps every digit).
     """
     if conditions.get("sources", {}).get(name) != "form":
-        return None
+        return None  # file values are read again; sample defaults are applied again by the caller
     spec = next((s for s in _SPECS if s.field == name), None)
     if spec is None:
         return conditions.get(name)
@@ -241,6 +246,30 @@ def _parse_endo(text: str, origin: str) -> str:
     raise IngestError(f"'{text.strip()}' is neither 'up' nor 'down'{origin}", field="endo")
 
 
+def _sweep_text(form: Mapping[str, str | None], file_metadata: Mapping[str, str]) -> str:
+    typed = _form_value(form, "sweep")
+    if typed is not None:
+        return typed
+    found = _file_value(file_metadata, _TEXT_FIELDS["sweep"], "sweep", set())
+    return found[1] if found else ""
+
+
+def with_defaults(conditions: Conditions, defaults: Mapping[str, float | None], *, source: str) -> Conditions:
+    """``conditions`` with the quantities it lacks taken from ``defaults`` (canonical kwargs such as
+    ``area_cm2``), their ``sources`` entry set to ``source``. A value the upload gave always wins."""
+    by_kwarg = {s.kwarg: s for s in _SPECS}
+    changes: dict[str, Any] = {}
+    sources = dict(conditions.sources)
+    for kwarg, value in defaults.items():
+        if value is None or getattr(conditions, kwarg) is not None:
+            continue
+        changes[kwarg] = float(value)
+        sources[by_kwarg[kwarg].field] = source
+    if not changes:
+        return conditions
+    return replace(conditions, **changes, sources=sources)
+
+
 def parse_conditions(form: Mapping[str, str | None], file_metadata: Mapping[str, str]) -> Conditions:
     """Merge form fields and file metadata into :class:`Conditions` (the form wins).
 
@@ -260,6 +289,9 @@ def parse_conditions(form: Mapping[str, str | None], file_metadata: Mapping[str,
     Returns
     -------
     Conditions
+
+    ``sweep`` (``heating`` or ``cooling``) states the direction of the temperature run a
+    measurement belongs to.
 
     Raises
     ------
@@ -306,5 +338,10 @@ def parse_conditions(form: Mapping[str, str | None], file_metadata: Mapping[str,
     for name, aliases in _TEXT_FIELDS.items():
         got = pick(name, aliases)
         values[name] = got[0] if got is not None else None
+    if values["sweep"] is not None:
+        values["sweep"] = _norm_key(values["sweep"])
+        if values["sweep"] not in SWEEP_DIRECTIONS:
+            raise IngestError(f"sweep '{_sweep_text(form, file_metadata)}' is neither 'heating' nor 'cooling'",
+                              field="sweep")
     extra = {str(k).strip().lower(): str(v) for k, v in file_metadata.items() if k not in consumed}
     return Conditions(**values, extra=extra, sources=sources)

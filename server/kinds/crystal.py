@@ -41,7 +41,7 @@ def _derive(session, *, compound, batch, measurement, actor):
     r = measurement.results
     row.space_group, row.space_group_number = r.get("space_group") or "", r.get("space_group_number")
     row.polar, row.centrosymmetric = r.get("polar"), r.get("centrosymmetric")
-    row.temperature_K, row.results, row.archived = r.get("temperature_K"), r, measurement.archived
+    row.temperature_K, row.results, row.archived = r.get("temperature_K"), r, measurement.retired
     session.add(row)
 
 

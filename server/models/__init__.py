@@ -5,7 +5,9 @@ from sqlmodel import SQLModel
 from .accounts import ROLES, SCOPES, ApiToken, LoginThrottle, User, WebSession
 from .audit import AuditEvent
 from .jobs import JOB_STATES, Job
-from .measurements import BarrierEstimate, CrystalPhase, Measurement, RawFile
+from .measurements import (SAMPLE_FORMS, SERIES_VARIABLES, BarrierEstimate, CrystalPhase, Measurement,
+                           MeasurementSeries, RawFile, Sample, SampleCreate, SamplePreparation,
+                           live_measurement)
 from .registry import (
     BATCH_STATES,
     Batch,
@@ -33,6 +35,7 @@ __all__ = [
     "ApiToken", "AuditEvent", "CompoundSideChain", "CompoundStats", "BATCH_STATES", "BarrierEstimate", "Batch", "BatchCreate", "BatchRead", "CodeCounter", "Compound",
     "CompoundCreate", "CompoundPage", "CompoundRead", "CompoundUpdate", "CrystalPhase", "ScaffoldCreate",
     "ScaffoldRead", "SiteSetting", "SideChainRead", "SideChainSpec",
-    "JOB_STATES", "Job", "LoginThrottle", "WebSession", "Measurement", "ROLES", "RawFile", "SCOPES", "Scaffold", "UTCDateTime", "User",
+    "JOB_STATES", "Job", "LoginThrottle", "WebSession", "Measurement", "MeasurementSeries", "SAMPLE_FORMS", "SERIES_VARIABLES", "Sample", "SampleCreate", "SamplePreparation",
+    "live_measurement", "ROLES", "RawFile", "SCOPES", "Scaffold", "UTCDateTime", "User",
     "metadata", "utcnow",
 ]

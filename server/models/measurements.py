@@ -1,4 +1,5 @@
-"""Raw instrument files, the measurements derived from them, barriers and crystal phases."""
+"""Raw instrument files, the samples they were measured on, the measurements derived from them,
+stated series, barriers and crystal phases."""
 
 from __future__ import annotations
 
@@ -6,6 +7,7 @@ from datetime import datetime
 from typing import Any, Optional
 
 import sqlalchemy as sa
+from pydantic import BaseModel, ConfigDict
 from sqlmodel import Field, SQLModel
 
 from .types import UTCDateTime, utcnow
@@ -23,9 +25,77 @@ class RawFile(SQLModel, table=True):
     created_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
 
 
+#: What a sample physically is; ``cell`` is a liquid-crystal cell of known gap.
+SAMPLE_FORMS: tuple[str, ...] = ("pellet", "film", "single_crystal", "powder", "cell", "solution")
+
+
+class Sample(SQLModel, table=True):
+    """A physical specimen pressed, cast, cut or grown from one batch (code ``<batch>-S01``).
+
+    A batch's *default* sample (``is_default``) is created the first time a file is posted to
+    the batch itself rather than to a sample; it says only that the specimen was not described.
+    """
+
+    id: Optional[int] = Field(default=None, primary_key=True)
+    code: str = Field(max_length=60, unique=True, index=True)
+    batch_id: int = Field(foreign_key="batch.id", index=True)
+    seq: int
+    form: str = Field(default="", max_length=20)  # one of SAMPLE_FORMS; "" for an undescribed default sample
+    is_default: bool = False
+    thickness_um: Optional[float] = None
+    electrode_area_mm2: Optional[float] = None
+    electrode: str = Field(default="", max_length=120)  # electrode material
+    axis: str = Field(default="", max_length=60)  # crystal axis or face along the field, e.g. "[001]", "(010)"
+    pressing_load_kN: Optional[float] = None
+    anneal_K: Optional[float] = None
+    anneal_min: Optional[float] = None
+    deposition: str = Field(default="", max_length=120)
+    cell_gap_um: Optional[float] = None
+    preparation_notes: str = Field(default="", sa_type=sa.Text)
+    notes: str = Field(default="", sa_type=sa.Text)
+    archived: bool = False
+    created_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
+    created_by: str = Field(default="", max_length=120)
+
+    __table_args__ = (
+        sa.UniqueConstraint("batch_id", "seq", name="uq_sample_batch_seq"),
+        # At most one default sample per batch, so two first uploads at once cannot make two.
+        sa.Index("uq_sample_default_per_batch", "batch_id", unique=True,
+                 sqlite_where=sa.text("is_default"), postgresql_where=sa.text("is_default")),
+    )
+
+
+class SamplePreparation(BaseModel):
+    """How a sample was made; quantities as text with their unit, as for uploads."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    pressing_load: Optional[str] = None  # e.g. "5 kN"
+    anneal_temperature: Optional[str] = None  # e.g. "350 K" or "80 degC"
+    anneal_time: Optional[str] = None  # e.g. "2 h"
+    deposition: Optional[str] = Field(default=None, max_length=120)  # e.g. "drop-cast from CH2Cl2"
+    cell_gap: Optional[str] = None  # e.g. "10 um"
+    notes: Optional[str] = Field(default=None, max_length=20000)
+
+
+class SampleCreate(BaseModel):
+    """``POST /api/v1/batches/{code}/samples``: quantities as text with their unit."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    form: str
+    thickness: Optional[str] = None  # e.g. "150 um"
+    electrode_area: Optional[str] = None  # e.g. "0.785 mm^2"
+    electrode: Optional[str] = Field(default=None, max_length=120)  # material, e.g. "silver paste"
+    preparation: Optional[SamplePreparation] = None
+    axis: Optional[str] = Field(default=None, max_length=60)
+    notes: Optional[str] = Field(default=None, max_length=20000)
+
+
 class Measurement(SQLModel, table=True):
     id: Optional[int] = Field(default=None, primary_key=True)
-    batch_id: int = Field(foreign_key="batch.id", index=True)
+    batch_id: int = Field(foreign_key="batch.id", index=True)  # always the sample's batch
+    sample_id: int = Field(foreign_key="sample.id", index=True)
     kind: str = Field(max_length=30, index=True)
     raw_file_id: int = Field(foreign_key="rawfile.id", index=True)
     sha256: str = Field(max_length=64)
@@ -39,11 +109,48 @@ class Measurement(SQLModel, table=True):
     operator: str = Field(default="", max_length=120)
     notes: str = Field(default="", sa_type=sa.Text)
     archived: bool = False
+    # A correction: the new measurement names the one it replaces; the old one names its successor.
+    supersedes_id: Optional[int] = Field(default=None, foreign_key="measurement.id")
+    superseded_by_id: Optional[int] = Field(default=None, foreign_key="measurement.id")
     created_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
     analysed_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
     created_by: str = Field(default="", max_length=120)
 
-    __table_args__ = (sa.UniqueConstraint("batch_id", "sha256", "kind", name="uq_measurement_batch_sha_kind"),)
+    __table_args__ = (
+        # The same bytes of one kind are stored once per sample while they are live; archived or
+        # superseded copies do not count, so the same file can be stored again after them.
+        sa.Index("uq_measurement_live_sample_sha_kind", "sample_id", "sha256", "kind", unique=True,
+                 sqlite_where=sa.text("NOT archived AND superseded_by_id IS NULL"),
+                 postgresql_where=sa.text("NOT archived AND superseded_by_id IS NULL")),
+    )
+
+    @property
+    def retired(self) -> bool:
+        """Archived or superseded: kept and readable, but out of lists, plots, stats and verdicts."""
+        return bool(self.archived or self.superseded_by_id is not None)
+
+
+def live_measurement() -> Any:
+    """SQL condition for measurements that count: neither archived nor superseded."""
+    return sa.and_(Measurement.archived == False, Measurement.superseded_by_id.is_(None))  # noqa: E712
+
+
+#: The variables a series can sweep.
+SERIES_VARIABLES: tuple[str, ...] = ("temperature", "frequency", "field")
+
+
+class MeasurementSeries(SQLModel, table=True):
+    """A series stated by a person (or an import profile), beside the ones found automatically."""
+
+    id: Optional[int] = Field(default=None, primary_key=True)
+    sample_id: int = Field(foreign_key="sample.id", index=True)
+    kind: str = Field(max_length=30)
+    variable: str = Field(max_length=20)  # one of SERIES_VARIABLES
+    direction: str = Field(default="", max_length=10)  # heating | cooling | "" (not a temperature series)
+    measurement_ids: list[int] = Field(default_factory=list, sa_type=sa.JSON)
+    notes: str = Field(default="", sa_type=sa.Text)
+    created_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
+    created_by: str = Field(default="", max_length=120)
 
 
 class BarrierEstimate(SQLModel, table=True):

@@ -2,41 +2,51 @@
 
 from __future__ import annotations
 
-from typing import Any, Iterable, Mapping, Optional
+from typing import Any, Iterable, Mapping, Optional, Sequence
 
 import plotly.graph_objects as go
 from plotly.subplots import make_subplots
 
-from . import PALETTE, base_layout
+from . import PALETTE, SERIES, base_layout
 
 
-def switching_vs_temperature(rows: Iterable[Mapping[str, Any]]) -> Optional[go.Figure]:
-    """Pr and Ec of every P-E loop against its temperature; None with fewer than two such loops.
+def switching_by_series(series: Sequence[tuple[str, Sequence[Mapping[str, Any]]]],
+                        loose: Sequence[Mapping[str, Any]] = ()) -> Optional[go.Figure]:
+    """Pr (top) and Ec (bottom) against temperature, one line per temperature series.
 
-    ``rows`` are measurement dicts (kind, temperature_K, results, verdict, id).
+    ``series`` are (label, measurement dicts in run order); ``loose`` are loops in no series,
+    drawn as unconnected markers: a line through loops of different samples or runs would
+    suggest a sweep that was never made. None when there is nothing to draw.
     """
-    loops = sorted(
-        (r for r in rows if r["kind"] == "pe_loop" and r.get("temperature_K") is not None
-         and r["results"].get("pr_uC_cm2") is not None),
-        key=lambda r: r["temperature_K"],
-    )
-    if len(loops) < 2:
+    def pts(rows):
+        rows = [r for r in rows if r.get("temperature_K") is not None and r["results"].get("pr_uC_cm2") is not None]
+        return ([r["temperature_K"] for r in rows], [r["results"].get("pr_uC_cm2") for r in rows],
+                [r["results"].get("ec_kV_cm") for r in rows], [f"#{r['id']}" for r in rows])
+
+    if not series and len([r for r in loose if r.get("temperature_K") is not None]) < 2:
         return None
-    t = [r["temperature_K"] for r in loops]
-    labels = [(f"#{r['id']} {r.get('verdict') or ''}".strip()
-               + (" (apparent Pr, Ec)" if r["results"].get("apparent") else "")) for r in loops]
-    fig = make_subplots(specs=[[{"secondary_y": True}]])
-    fig.add_trace(go.Scatter(x=t, y=[r["results"]["pr_uC_cm2"] for r in loops], mode="lines+markers", name="Pr",
-                             text=labels, line=dict(color=PALETTE["blue"]),
-                             hovertemplate="T %{x:.1f} K<br>Pr %{y:.3g} µC/cm²<br>%{text}<extra></extra>"),
-                  secondary_y=False)
-    fig.add_trace(go.Scatter(x=t, y=[r["results"]["ec_kV_cm"] for r in loops], mode="lines+markers", name="Ec",
-                             text=labels, line=dict(color=PALETTE["vermillion"], dash="dash"),
-                             marker=dict(symbol="square"),
-                             hovertemplate="T %{x:.1f} K<br>Ec %{y:.3g} kV/cm<br>%{text}<extra></extra>"),
-                  secondary_y=True)
-    base_layout(fig, x_title="T (K)", y_title="Pr (µC/cm²)")
-    fig.update_yaxes(title_text="Ec (kV/cm)", secondary_y=True, showgrid=False)
+    fig = make_subplots(rows=2, cols=1, shared_xaxes=True, vertical_spacing=0.08)
+    for i, (label, rows) in enumerate(series):
+        t, pr, ec, text = pts(rows)
+        colour = SERIES[i % len(SERIES)]
+        fig.add_trace(go.Scatter(x=t, y=pr, mode="lines+markers", name=label, legendgroup=label, text=text,
+                                 line=dict(color=colour),
+                                 hovertemplate="T %{x:.1f} K<br>Pr %{y:.3g} µC/cm²<br>%{text}<extra></extra>"),
+                      row=1, col=1)
+        fig.add_trace(go.Scatter(x=t, y=ec, mode="lines+markers", name=label, legendgroup=label, showlegend=False,
+                                 text=text, line=dict(color=colour, dash="dash"), marker=dict(symbol="square"),
+                                 hovertemplate="T %{x:.1f} K<br>Ec %{y:.3g} kV/cm<br>%{text}<extra></extra>"),
+                      row=2, col=1)
+    if loose:
+        t, pr, ec, text = pts(sorted(loose, key=lambda r: (r.get("temperature_K") is None, r.get("temperature_K") or 0)))
+        fig.add_trace(go.Scatter(x=t, y=pr, mode="markers", name="loops in no series", legendgroup="loose",
+                                 text=text, marker=dict(color=PALETTE["black"], symbol="circle-open")), row=1, col=1)
+        fig.add_trace(go.Scatter(x=t, y=ec, mode="markers", name="loops in no series", legendgroup="loose",
+                                 showlegend=False, text=text,
+                                 marker=dict(color=PALETTE["black"], symbol="square-open")), row=2, col=1)
+    base_layout(fig, x_title="", y_title="Pr (µC/cm²)")
+    fig.update_xaxes(title_text="T (K)", row=2, col=1)
+    fig.update_yaxes(title_text="Ec (kV/cm)", row=2, col=1)
     return fig
 
 

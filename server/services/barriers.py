@@ -120,7 +120,7 @@ def sync_rate_table_barrier(session: Session, *, compound: Compound, measurement
     _set_eyring(row, dict(measurement.results), measurement.analysis_version)
     c = measurement.conditions or {}
     row.spectrometer_MHz, row.nucleus, row.solvent = c.get("spectrometer_MHz"), c.get("nucleus") or "", c.get("solvent") or ""
-    row.archived = measurement.archived
+    row.archived = measurement.retired
     session.add(row)
 
 

@@ -12,11 +12,28 @@ from ..access import Actor
 from ..jobs import queue
 from ..models import Compound
 from ..plots import figure_json, summary
-from . import barriers, estimates, measurements, registry, verdicts
+from . import barriers, estimates, measurements, registry, samples, series, verdicts
 
 # The conditions the barrier table starts at (room temperature, the common 1 kHz of P-E loops).
 DEFAULT_T_K = 298.15
 DEFAULT_F_HZ = 1000.0
+
+
+def switching_lines(session: Session, items: list[dict[str, Any]], sample_rows) -> tuple[list, list, list]:  # noqa: ANN001
+    """The compound's loops for the Pr/Ec-against-T figure: one line per temperature series of a
+    sample, the loops in no series apart (never one line through every loop); also every series."""
+    by_id = {m["id"]: m for m in items}
+    lines, in_series = [], set()
+    all_series = []
+    for sample, _ in sample_rows:
+        for s in series.sample_series(session, sample):
+            all_series.append(s)
+            if s["kind"] == "pe_loop" and s["variable"] == "temperature":
+                lines.append((f"{sample.code} {s['direction'] or ''}".strip(), [by_id[i] for i in s["measurements"]
+                                                                                   if i in by_id]))
+                in_series.update(s["measurements"])
+    loose = [m for m in items if m["kind"] == "pe_loop" and m["id"] not in in_series]
+    return lines, loose, all_series
 
 
 def compound_page(session: Session, compound: Compound, *, actor: Optional[Actor]) -> dict[str, Any]:
@@ -26,7 +43,9 @@ def compound_page(session: Session, compound: Compound, *, actor: Optional[Actor
     batches = [registry.batch_read(session, b) for b in batch_rows]
     rows, _ = measurements.list_measurements(session, compound=compound.code, limit=1000)
     items = [measurements.measurement_read(session, m) for m in rows]
-    fig = summary.switching_vs_temperature(items)
+    sample_rows = samples.samples_of_compound(session, compound)
+    lines, loose, all_series = switching_lines(session, items, sample_rows)
+    fig = summary.switching_by_series(lines, loose)
     jobs, _ = queue.list_jobs(session, compound_id=compound.id, limit=5)
     return {
         "c": registry.compound_read(session, compound, actor=actor),
@@ -34,6 +53,9 @@ def compound_page(session: Session, compound: Compound, *, actor: Optional[Actor
         "batch_verdicts": {b.code: per_batch[row.id].code for b, row in zip(batches, batch_rows) if row.id in per_batch},
         "scaffolds": registry.list_scaffolds(session),
         "measurements": items,
+        "samples": [{**samples.sample_read(session, s, history=False), "measurements": n}
+                    for s, n in samples.with_counts(session, [s for s, _ in sample_rows])],
+        "tc_estimate": series.combine_series_tc(all_series),
         "summary_figure": figure_json(fig) if fig else None,
         "transitions": summary.transitions_table(items),
         "barriers": barriers.barrier_rows(session, compound, t_K=DEFAULT_T_K, frequency_Hz=DEFAULT_F_HZ),

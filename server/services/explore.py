@@ -10,7 +10,7 @@ from sqlmodel import Session, select
 
 from ..access import Actor
 from ..errors import InputError
-from ..models import Batch, Measurement
+from ..models import Batch, Measurement, live_measurement
 from ..plots import figure_json
 from ..plots.explorer import explorer_figure
 from ..verdict_codes import LABELS as VERDICT_LABELS, VERDICTS, strongest
@@ -89,7 +89,7 @@ def _loops_at(session: Session, compound_ids: list[int], t_K: float) -> dict[int
         select(Batch.compound_id, Measurement.temperature_K, Measurement.results)
         .join(Batch, Batch.id == Measurement.batch_id)
         .where(Measurement.kind == "pe_loop", Measurement.verdict == "ferroelectric",
-               Measurement.archived == False, Batch.compound_id.in_(compound_ids),  # noqa: E712
+               live_measurement(), Batch.compound_id.in_(compound_ids),  # noqa: E712
                Measurement.temperature_K.is_not(None),
                Measurement.temperature_K >= t_K - SAME_T_K, Measurement.temperature_K <= t_K + SAME_T_K)
     ).all()

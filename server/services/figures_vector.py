@@ -37,7 +37,11 @@ def compound_plot(session: Session, compound: Compound, name: str) -> Optional[g
         raise NotFound(f"no compound figure {name!r}; there are: {', '.join(COMPOUND_FIGURES)}")
     rows, _ = measurements.list_measurements(session, compound=compound.code, limit=1000)
     items = [measurements.measurement_read(session, m) for m in rows]
-    return summary.switching_vs_temperature(items)
+    from .compound_page import switching_lines  # the page's figure and this one are the same figure
+    from . import samples
+
+    lines, loose, _ = switching_lines(session, items, samples.samples_of_compound(session, compound))
+    return summary.switching_by_series(lines, loose)
 
 
 def render(fig: go.Figure, fmt: str) -> bytes:

@@ -18,14 +18,22 @@ from sqlmodel import Session, select
 
 from ..analysis.results import jsonable
 from ..errors import InputError
-from ..ingest.conditions import FORM_FIELDS, Conditions, form_value_as_given, parse_conditions
+from ..ingest.conditions import FORM_FIELDS, Conditions, form_value_as_given, parse_conditions, with_defaults
 from ..kinds import KINDS, Context, Kind
-from ..models import Batch, Compound, Measurement, RawFile, utcnow
+from ..models import Batch, Compound, Measurement, RawFile, Sample, live_measurement, utcnow
 from ..plots import figure_json
-from . import audit, stats, verdicts
-from .errors import Archived, Forbidden, NotFound, TooLarge
+from . import audit, samples, stats, verdicts
+from .errors import Archived, Duplicate, Forbidden, NotFound, TooLarge
 
-__all__ = ["FORM_FIELDS", "upload_measurement", "reanalyse", "reanalyse_one", "set_archived", "refresh_derived"]
+__all__ = ["FORM_FIELDS", "upload_measurement", "revise_measurement", "reanalyse", "reanalyse_one", "set_archived",
+           "refresh_derived"]
+
+#: The physical conditions of a measurement: the same bytes posted again with one of these
+#: different are a conflict (409), not the same measurement.
+_PHYSICAL_KEYS = ("area_cm2", "thickness_um", "mass_mg", "rate_K_min", "temperature_K", "frequency_Hz", "endo",
+                  "sweep")
+#: Everything a correction may change (``sources`` and the file's other metadata do not count).
+_SAME_KEYS = _PHYSICAL_KEYS + ("instrument", "operator", "notes")
 
 
 @dataclass(frozen=True)
@@ -61,15 +69,56 @@ def context_for(compound: Compound) -> Context:
     return Context(formula=compound.formula, molar_mass_g_mol=compound.mw, smiles=compound.smiles)
 
 
-def analyse(kind: Kind, raw: bytes, *, filename: str | None, form: Mapping[str, Optional[str]], context: Context) -> Analysed:
-    """Read and analyse one file (pure: no database). Raises InputError on bad input."""
+def read(kind: Kind, raw: bytes, *, filename: str | None, form: Mapping[str, Optional[str]],
+         defaults: Mapping[str, Optional[float]] | None = None) -> tuple[Any, Conditions]:
+    """Read one file and its conditions (pure): the form wins over the file's ``# key: value``
+    lines, which win over ``defaults`` (the sample's geometry, source ``"sample"``)."""
     if not raw:
         raise InputError("the file is empty", field="file")
     parsed = kind.read(raw, filename)
     metadata = parsed.metadata if kind.table else {}
-    conditions = parse_conditions(form, metadata)
+    conditions = with_defaults(parse_conditions(form, metadata), defaults or {}, source="sample")
+    return parsed, conditions
+
+
+def analyse(kind: Kind, raw: bytes, *, filename: str | None, form: Mapping[str, Optional[str]], context: Context,
+            defaults: Mapping[str, Optional[float]] | None = None) -> Analysed:
+    """Read and analyse one file (pure: no database). Raises InputError on bad input."""
+    parsed, conditions = read(kind, raw, filename=filename, form=form, defaults=defaults)
     result = kind.analyse(parsed, conditions, context)
     return Analysed(kind=kind, parsed=parsed, conditions=conditions, result=result)
+
+
+def same_conditions(stored: Mapping[str, Any], new: Conditions, *, given_only: bool = False) -> bool:
+    """Whether stored conditions (``Conditions.to_dict()``) equal ``new`` in every value.
+
+    ``given_only``: compare only the physical conditions ``new`` gives (a re-post that leaves
+    out what was typed the first time, or types only who measured it, is the same measurement).
+    """
+    fresh = new.to_dict()
+    for key in _PHYSICAL_KEYS if given_only else _SAME_KEYS:
+        a, b = stored.get(key), fresh.get(key)
+        if given_only and (b is None or (key == "endo" and new.sources.get("endo") is None)):
+            continue
+        if isinstance(a, (int, float)) and isinstance(b, (int, float)):
+            if abs(a - b) > 1e-9 * max(abs(a), abs(b)):
+                return False
+        elif (a or None) != (b or None):
+            return False
+    return True
+
+
+def _live_copy(session: Session, sample_id: int, sha: str, kind: str) -> Optional[Measurement]:
+    return session.exec(select(Measurement).where(Measurement.sample_id == sample_id, Measurement.sha256 == sha,
+                                                  Measurement.kind == kind, live_measurement())).first()
+
+
+def _same_or_conflict(existing: Measurement, conditions: Conditions) -> Measurement:
+    if same_conditions(existing.conditions, conditions, given_only=True):
+        return existing
+    raise Duplicate(
+        f"these bytes are stored already as measurement {existing.id} with other conditions; to correct "
+        f"its conditions, POST them to /api/v1/measurements/{existing.id}/revise", existing=existing.id)
 
 
 def upload_measurement(
@@ -82,11 +131,15 @@ def upload_measurement(
     form: Mapping[str, Optional[str]],
     actor: str,
     allowed_kinds: Optional[Sequence[str]] = None,
+    sample: Optional[Sample] = None,
 ) -> tuple[Measurement, bool]:
-    """Store and analyse an instrument file for a batch; returns (measurement, created).
+    """Store and analyse an instrument file for a sample of a batch; returns (measurement, created).
 
-    The same bytes posted again for the same batch and kind return the stored measurement
-    (created False) without analysing again.
+    Without ``sample`` the file goes to the batch's default sample, created on first use. Area
+    and thickness the upload does not give come from the sample. The same bytes posted again
+    to the same sample with the same conditions return the stored measurement (created False);
+    with other conditions they are refused (Duplicate, 409: corrections go through
+    :func:`revise_measurement`). Bytes whose only copies are archived or superseded are stored anew.
     """
     if batch.archived:
         raise Archived(f"batch {batch.code} is archived; restore it before adding measurements")
@@ -97,56 +150,151 @@ def upload_measurement(
     if allowed_kinds is not None and kind.name not in allowed_kinds:
         raise Forbidden(f"this token may upload only {', '.join(allowed_kinds)}, not {kind.name}")
     sha = hashlib.sha256(raw).hexdigest()
-    existing = session.exec(
-        select(Measurement).where(Measurement.batch_id == batch.id, Measurement.sha256 == sha,
-                                  Measurement.kind == kind.name)
-    ).first()
-    if existing is not None:
-        return existing, False
-    done = analyse(kind, raw, filename=filename, form=form, context=context_for(compound))
+    if sample is None:
+        sample = samples.default_sample(session, batch)
+    defaults = samples.sample_defaults(sample)
+    if sample is not None:
+        existing = _live_copy(session, sample.id, sha, kind.name)
+        if existing is not None:
+            _, conditions = read(kind, raw, filename=filename, form=form, defaults=defaults)
+            return _same_or_conflict(existing, conditions), False
+    done = analyse(kind, raw, filename=filename, form=form, context=context_for(compound), defaults=defaults)
 
-    rawfile = session.exec(select(RawFile).where(RawFile.sha256 == sha)).first()
-    if rawfile is None:
-        rawfile = RawFile(sha256=sha, size=len(raw), filename=_display_name(filename), data=raw,
-                          content_type=kind.content_type)
-        session.add(rawfile)
-        session.flush()
-    c = done.conditions
-    m = Measurement(
-        batch_id=batch.id,
-        kind=kind.name,
-        raw_file_id=rawfile.id,
-        sha256=sha,
-        conditions=jsonable(c.to_dict()),
-        results=done.results,
-        flags=done.flags,
-        verdict=done.verdict,
-        analysis_version=kind.version,
-        temperature_K=c.temperature_K,
-        instrument=c.instrument or "",
-        operator=c.operator or "",
-        notes=c.notes or "",
-        created_by=actor,
-    )
-    session.add(m)
+    if sample is None:
+        sample = samples.ensure_default_sample(session, batch, actor=actor)  # first: it may roll back a lost race
+        existing = _live_copy(session, sample.id, sha, kind.name)
+        if existing is not None:
+            return _same_or_conflict(existing, done.conditions), False
+    m = _store(session, batch=batch, sample=sample, done=done, raw=raw, sha=sha, filename=filename, actor=actor)
     try:
         session.flush()
     except IntegrityError:
         # The same file arrived twice at once; the other request stored it first.
         session.rollback()
-        again = session.exec(
-            select(Measurement).where(Measurement.batch_id == batch.id, Measurement.sha256 == sha,
-                                      Measurement.kind == kind.name)
-        ).first()
+        again = _live_copy(session, sample.id, sha, kind.name)
         if again is None:
             raise
-        return again, False
+        return _same_or_conflict(again, done.conditions), False
     refresh_derived(session, [m], actor=actor)
     audit.record(session, actor=actor, action="measurement.create", entity="measurement", code=str(m.id),
                  compound_id=compound.id, after={k: v for k, v in audit.snapshot(m).items() if k != "results"})
     session.commit()
     session.refresh(m)
     return m, True
+
+
+def _store(session: Session, *, batch: Batch, sample: Sample, done: Analysed, raw: bytes, sha: str,
+           filename: str | None, actor: str, supersedes: Optional[int] = None) -> Measurement:
+    """Add the raw file (once per checksum) and the measurement to the session (not flushed)."""
+    rawfile = session.exec(select(RawFile).where(RawFile.sha256 == sha)).first()
+    if rawfile is None:
+        rawfile = RawFile(sha256=sha, size=len(raw), filename=_display_name(filename), data=raw,
+                          content_type=done.kind.content_type)
+        session.add(rawfile)
+        session.flush()
+    c = done.conditions
+    m = Measurement(
+        batch_id=batch.id,
+        sample_id=sample.id,
+        kind=done.kind.name,
+        raw_file_id=rawfile.id,
+        sha256=sha,
+        conditions=jsonable(c.to_dict()),
+        results=done.results,
+        flags=done.flags,
+        verdict=done.verdict,
+        analysis_version=done.kind.version,
+        temperature_K=c.temperature_K,
+        instrument=c.instrument or "",
+        operator=c.operator or "",
+        notes=c.notes or "",
+        supersedes_id=supersedes,
+        created_by=actor,
+    )
+    session.add(m)
+    return m
+
+
+def newest_of(session: Session, m: Measurement) -> Measurement:
+    """The end of a chain of corrections."""
+    seen = 0
+    while m.superseded_by_id is not None and seen < 1000:
+        m = session.get(Measurement, m.superseded_by_id)
+        seen += 1
+    return m
+
+
+def revise_measurement(
+    *,
+    session: Session,
+    measurement: Measurement,
+    form: Mapping[str, Optional[str]],
+    actor: str,
+    raw: Optional[bytes] = None,
+    filename: Optional[str] = None,
+) -> Measurement:
+    """Correct a measurement: a new measurement with the changed conditions (and optionally a
+    replacement file) that ``supersedes`` the old one; the old one keeps its rows and raw file,
+    gets ``superseded_by``, and drops out of lists, figures, stats and verdicts.
+
+    Conditions not given keep the values typed on the old upload; the file's own lines are read
+    again, and the sample's geometry fills what neither gives.
+
+    Raises
+    ------
+    Duplicate
+        409: the measurement was corrected already (names the newest), or a replacement file is
+        already stored live for the sample.
+    InputError
+        422: nothing changes, or the new conditions or file are bad. Nothing is stored then.
+    """
+    m = measurement
+    if m.superseded_by_id is not None:
+        newest = newest_of(session, m)
+        raise Duplicate(f"measurement {m.id} was corrected already; revise the newest, measurement {newest.id}",
+                        existing=newest.id)
+    kind = get_kind(m.kind)
+    sample = session.get(Sample, m.sample_id)
+    batch = session.get(Batch, m.batch_id)
+    compound = session.get(Compound, batch.compound_id)
+    old_raw = session.get(RawFile, m.raw_file_id)
+    merged: dict[str, Optional[str]] = {key: form_value_as_given(m.conditions, key) for key in FORM_FIELDS}
+    merged.update({k: v for k, v in form.items() if k in FORM_FIELDS and v is not None and str(v).strip()})
+    data = raw if raw is not None else old_raw.data
+    name = filename if raw is not None else old_raw.filename
+    sha = hashlib.sha256(data).hexdigest()
+    done = analyse(kind, data, filename=name, form=merged, context=context_for(compound),
+                   defaults=samples.sample_defaults(sample))
+    if sha == m.sha256 and same_conditions(m.conditions, done.conditions):
+        raise InputError("the revision changes nothing: give a condition that differs from the stored one, "
+                         "or a replacement file", field="conditions")
+    if sha != m.sha256:
+        other = _live_copy(session, sample.id, sha, kind.name)
+        if other is not None:
+            raise Duplicate(f"the replacement file is stored already for this sample as measurement {other.id}",
+                            existing=other.id)
+    before = {"conditions": m.conditions, "sha256": m.sha256, "results": m.results}
+    # The live-copy index allows one live row per bytes: the old row leaves it (pointing at
+    # itself for the moment) before the new one is inserted, all in this one transaction.
+    m.superseded_by_id = m.id
+    session.add(m)
+    session.flush()
+    new = _store(session, batch=batch, sample=sample, done=done, raw=data, sha=sha, filename=name, actor=actor,
+                 supersedes=m.id)
+    session.flush()
+    m.superseded_by_id = new.id
+    session.add(m)
+    refresh_derived(session, [m, new], actor=actor)
+    audit.record(session, actor=actor, action="measurement.revise", entity="measurement", code=str(m.id),
+                 compound_id=compound.id, before=before,
+                 after={"superseded_by": new.id, "conditions": new.conditions, "sha256": new.sha256,
+                        "results": new.results})
+    audit.record(session, actor=actor, action="measurement.create", entity="measurement", code=str(new.id),
+                 compound_id=compound.id,
+                 after={**{k: v for k, v in audit.snapshot(new).items() if k != "results"}, "supersedes": m.id})
+    session.commit()
+    session.refresh(new)
+    return new
 
 
 def _display_name(filename: str | None) -> str:
@@ -165,12 +313,16 @@ def get_measurement(session: Session, measurement_id: int) -> Measurement:
 
 def list_measurements(
     session: Session, *, batch: str | None = None, compound: str | None = None, kind: str | None = None,
-    limit: int = 100, offset: int = 0,
+    sample: str | None = None, include_superseded: bool = False, limit: int = 100, offset: int = 0,
 ) -> tuple[list[Measurement], int]:
     query = select(Measurement).join(Batch, Batch.id == Measurement.batch_id).join(Compound, Compound.id == Batch.compound_id)
     count = select(func.count()).select_from(Measurement).join(Batch, Batch.id == Measurement.batch_id).join(
         Compound, Compound.id == Batch.compound_id)
     conditions = [Measurement.archived == False]  # noqa: E712 - SQL expression
+    if not include_superseded:
+        conditions.append(Measurement.superseded_by_id.is_(None))
+    if sample:
+        conditions.append(Measurement.sample_id == samples.get_sample(session, sample).id)
     if batch:
         conditions.append(Batch.code == batch)
     if compound:
@@ -209,7 +361,9 @@ def reanalyse_one(session: Session, m: Measurement) -> Analysed:
     batch = session.get(Batch, m.batch_id)
     compound = session.get(Compound, batch.compound_id)
     form = {key: form_value_as_given(m.conditions, key) for key in FORM_FIELDS}
-    return analyse(get_kind(m.kind), raw.data, filename=raw.filename, form=form, context=context_for(compound))
+    defaults = samples.sample_defaults(session.get(Sample, m.sample_id))
+    return analyse(get_kind(m.kind), raw.data, filename=raw.filename, form=form, context=context_for(compound),
+                   defaults=defaults)
 
 
 @dataclass(frozen=True)
@@ -278,6 +432,7 @@ def measurement_read(session: Session, m: Measurement) -> dict[str, Any]:
         "id": m.id,
         "kind": m.kind,
         "batch": batch.code,
+        "sample": session.get(Sample, m.sample_id).code,
         "compound": compound.code,
         "sha256": m.sha256,
         "filename": raw.filename,
@@ -293,6 +448,8 @@ def measurement_read(session: Session, m: Measurement) -> dict[str, Any]:
         "operator": m.operator,
         "notes": m.notes,
         "archived": m.archived,
+        "supersedes": m.supersedes_id,
+        "superseded_by": m.superseded_by_id,
         "created_at": m.created_at.isoformat(),
         "created_by": m.created_by,
     }

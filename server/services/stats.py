@@ -13,7 +13,7 @@ from sqlalchemy import delete, func
 from sqlmodel import Session, select
 
 from ..kinds import KINDS
-from ..models import BarrierEstimate, Batch, Compound, CompoundSideChain, CompoundStats, Measurement
+from ..models import BarrierEstimate, Batch, Compound, CompoundSideChain, CompoundStats, Measurement, live_measurement
 
 MEASURED_METHODS = ("coalescence", "eyring")  # barriers measured by dynamic NMR
 
@@ -54,7 +54,7 @@ def refresh(session: Session, compound: Compound) -> CompoundStats:
 
     ms = session.exec(
         select(Measurement).join(Batch, Batch.id == Measurement.batch_id)
-        .where(Batch.compound_id == cid, Measurement.archived == False)  # noqa: E712
+        .where(Batch.compound_id == cid, live_measurement())
         .order_by(Measurement.id)
     ).all()
     stats.n_measurements = len(ms)

@@ -16,6 +16,7 @@ from sqlmodel import Session, select
 from ..access import Actor, may_see_structure
 from ..verdict_codes import CONFLICTING, HITS, LABELS, UNTESTED
 from ..models import (
+    live_measurement,
     AuditEvent,
     BarrierEstimate,
     Batch,
@@ -95,7 +96,7 @@ def summary(session: Session, *, actor: Optional[Actor], days: int = 7) -> dict[
         select(Compound).where(live, Compound.verdict_code == CONFLICTING, Compound.override_code.is_(None))
         .order_by(Compound.number.desc()).limit(20)).all()]
     flagged = session.exec(select(func.count()).select_from(Measurement).where(
-        Measurement.archived == False, Measurement.verdict == "inconclusive")).one()  # noqa: E712
+        live_measurement(), Measurement.verdict == "inconclusive")).one()  # noqa: E712
     jobs = {state: n for state, n in session.exec(select(Job.state, func.count()).group_by(Job.state)).all()}
     running = session.exec(select(Job).where(Job.state.in_(("running", "queued"))).order_by(Job.id).limit(10)).all()
     running_rows = []

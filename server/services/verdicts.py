@@ -11,7 +11,7 @@ from ..analysis.results import Flag, jsonable
 from ..errors import InputError
 from ..kinds import KINDS
 from ..verdict_codes import LABELS, RETIRED, effective
-from ..models import Batch, Compound, Measurement, utcnow
+from ..models import Batch, Compound, Measurement, utcnow, live_measurement
 from . import audit
 
 
@@ -23,7 +23,7 @@ def evidence_kinds() -> tuple[str, ...]:
 def evidence_for(session: Session, compound: Compound) -> list[rules.Evidence]:
     rows = session.exec(
         select(Measurement).join(Batch, Batch.id == Measurement.batch_id)
-        .where(Batch.compound_id == compound.id, Measurement.archived == False,  # noqa: E712
+        .where(Batch.compound_id == compound.id, live_measurement(),  
                Measurement.kind.in_(evidence_kinds()))
         .order_by(Measurement.id)
     ).all()

@@ -371,3 +371,10 @@ def pund_train(
         frame = pd.DataFrame({"t (s)": t, E_COL: e, P_COL: p})
     frame.attrs.update(attrs)
     return frame
+
+
+def landau_pr_uC_cm2(t_K: float, *, tc_K: float, a_uC_cm2: float, beta: float = 0.5) -> float:
+    """Remanent polarization of Landau mean-field theory near a continuous transition,
+    ``Pr = A (Tc - T)^beta`` below Tc and 0 above, with beta = 1/2 (Lines and Glass 1977, ch. 3);
+    ``a_uC_cm2`` is A in µC/cm² per K^beta."""
+    return float(a_uC_cm2 * max(tc_K - t_K, 0.0) ** beta)

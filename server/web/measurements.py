@@ -10,25 +10,30 @@ from ..deps import PageActor, PageWriter, RowId, SessionDep, SettingsDep
 from ..errors import InputError
 from ..ingest.conditions import CONDITION_EXAMPLES
 from ..kinds import KINDS, needed_by
-from ..models import Batch, Compound
-from ..services import measurements, registry
-from ..services.errors import Archived, Forbidden
+from ..models import SAMPLE_FORMS, Batch, Compound, SampleCreate
+from ..services import measurements, registry, samples
+from ..services.errors import Archived, Duplicate, Forbidden
 from .render import redirect, render
 
 router = APIRouter(include_in_schema=False)
 
 FIELDS = measurements.FORM_FIELDS
+NEW_SAMPLE = "new"  # the sample choice that describes a new sample inline
 
 
-def _upload_context(batch: Batch, compound: Compound, form: dict, error: Optional[str] = None) -> dict:
-    return {"batch": batch, "c": compound, "kinds": KINDS, "needed_by": needed_by(), "examples": CONDITION_EXAMPLES, "form": form, "error": error}
+def _upload_context(session, batch: Batch, compound: Compound, form: dict, error: Optional[str] = None) -> dict:
+    return {"batch": batch, "c": compound, "kinds": KINDS, "needed_by": needed_by(), "examples": CONDITION_EXAMPLES,
+            "form": form, "error": error, "samples": samples.samples_of_batch(session, batch),
+            "sample_forms": SAMPLE_FORMS, "new_sample": NEW_SAMPLE}
 
 
 @router.get("/batches/{code}/upload", response_class=HTMLResponse)
-def upload_form(code: str, request: Request, session: SessionDep, actor: PageWriter, kind: str = "pe_loop"):
+def upload_form(code: str, request: Request, session: SessionDep, actor: PageWriter, kind: str = "pe_loop",
+                sample: str = ""):
     batch = registry.get_batch(session, code)
     compound = registry.compound_of(session, batch)
-    return render(request, "pages/upload.html", _upload_context(batch, compound, {"kind": kind}), actor=actor)
+    return render(request, "pages/upload.html",
+                  _upload_context(session, batch, compound, {"kind": kind, "sample": sample}), actor=actor)
 
 
 @router.post("/batches/{code}/upload", response_class=HTMLResponse)
@@ -53,28 +58,51 @@ def upload(
     spectrometer: Annotated[str, Form()] = "",
     nucleus: Annotated[str, Form()] = "",
     solvent: Annotated[str, Form()] = "",
+    sweep: Annotated[str, Form()] = "",
+    sample: Annotated[str, Form()] = "",
+    new_form: Annotated[str, Form()] = "",
+    new_thickness: Annotated[str, Form()] = "",
+    new_electrode_area: Annotated[str, Form()] = "",
+    new_electrode: Annotated[str, Form()] = "",
+    new_axis: Annotated[str, Form()] = "",
 ):
     batch = registry.get_batch(session, code)
     compound = registry.compound_of(session, batch)
     form = {"kind": kind, "area": area, "thickness": thickness, "mass": mass, "rate": rate,
             "temperature": temperature, "frequency": frequency, "instrument": instrument, "operator": operator,
-            "notes": notes, "endo": endo, "spectrometer": spectrometer, "nucleus": nucleus, "solvent": solvent}
+            "notes": notes, "endo": endo, "sweep": sweep, "spectrometer": spectrometer, "nucleus": nucleus,
+            "solvent": solvent}
+    new = {"form": new_form, "thickness": new_thickness, "electrode_area": new_electrode_area,
+           "electrode": new_electrode, "axis": new_axis}
     try:
         raw = measurements.read_upload(file, settings.max_upload_bytes)
+        if sample == NEW_SAMPLE:
+            # Described inline: added in the upload's own transaction, so a refused file leaves no sample.
+            data = SampleCreate(**{k: (v.strip() or None) for k, v in new.items() if k != "form"},
+                                form=new_form.strip())
+            target = samples.add_sample(session=session, batch=batch, data=data, actor=actor.label)
+        else:
+            target = samples.get_sample_of_batch(session, batch, sample) if sample else None
         m, _ = measurements.upload_measurement(
-            session=session, batch=batch, kind_name=kind, raw=raw, filename=file.filename,
+            session=session, batch=batch, sample=target, kind_name=kind, raw=raw, filename=file.filename,
             form={k: (v or None) for k, v in form.items() if k != "kind"}, actor=actor.label,
         )
-    except (InputError, Forbidden, Archived) as exc:
-        return render(request, "pages/upload.html", _upload_context(batch, compound, form, str(exc)),
-                      partial="partials/upload_form.html", status_code=409 if isinstance(exc, Archived) else 422,
-                      actor=actor)
+    except (InputError, Forbidden, Duplicate, Archived) as exc:
+        session.rollback()
+        return render(request, "pages/upload.html",
+                      _upload_context(session, batch, compound,
+                                      {**form, "sample": sample, **{f"new_{k}": v for k, v in new.items()}}, str(exc)),
+                      partial="partials/upload_form.html", status_code=409 if isinstance(exc, Archived) else 422, actor=actor)
     return redirect(f"/measurements/{m.id}", request)
 
 
-@router.get("/measurements/{measurement_id}", response_class=HTMLResponse)
-def measurement_page(measurement_id: RowId, request: Request, session: SessionDep, actor: PageActor):
-    m = measurements.get_measurement(session, measurement_id)
+# The conditions the correction form offers: (form field, label, stored key, unit shown).
+REVISE_FIELDS = (("area", "Electrode area", "area_cm2", "cm^2"), ("thickness", "Thickness", "thickness_um", "um"),
+                 ("temperature", "Temperature", "temperature_K", "K"), ("frequency", "Frequency", "frequency_Hz", "Hz"),
+                 ("mass", "Mass", "mass_mg", "mg"), ("rate", "Rate", "rate_K_min", "K/min"))
+
+
+def _measurement_page(request: Request, session, m, actor, *, revise_error: Optional[str] = None, status_code=200):
     info = measurements.measurement_read(session, m)
     kind = KINDS.get(m.kind)
     try:
@@ -83,4 +111,50 @@ def measurement_page(measurement_id: RowId, request: Request, session: SessionDe
     except InputError as exc:
         fig, fig_error = None, str(exc)
     return render(request, "pages/measurement.html",
-                  {"m": info, "kind": kind, "figure": fig, "figure_error": fig_error}, actor=actor)
+                  {"m": info, "kind": kind, "figure": fig, "figure_error": fig_error, "revise_error": revise_error,
+                   "revise_fields": REVISE_FIELDS, "examples": CONDITION_EXAMPLES}, actor=actor,
+                  status_code=status_code)
+
+
+@router.get("/measurements/{measurement_id}", response_class=HTMLResponse)
+def measurement_page(measurement_id: RowId, request: Request, session: SessionDep, actor: PageActor):
+    return _measurement_page(request, session, measurements.get_measurement(session, measurement_id), actor)
+
+
+@router.post("/measurements/{measurement_id}/revise", response_class=HTMLResponse)
+def revise(
+    measurement_id: RowId,
+    request: Request,
+    session: SessionDep,
+    settings: SettingsDep,
+    actor: PageWriter,
+    file: Annotated[Optional[UploadFile], File()] = None,
+    area: Annotated[str, Form()] = "",
+    thickness: Annotated[str, Form()] = "",
+    temperature: Annotated[str, Form()] = "",
+    frequency: Annotated[str, Form()] = "",
+    mass: Annotated[str, Form()] = "",
+    rate: Annotated[str, Form()] = "",
+):
+    m = measurements.get_measurement(session, measurement_id)
+    form = {"area": area, "thickness": thickness, "temperature": temperature, "frequency": frequency, "mass": mass,
+            "rate": rate}
+    try:
+        upload = file if file is not None and file.filename else None
+        raw = measurements.read_upload(upload, settings.max_upload_bytes) if upload is not None else None
+        new = measurements.revise_measurement(session=session, measurement=m, actor=actor.label, raw=raw,
+                                              filename=upload.filename if upload is not None else None,
+                                              form={k: (v or None) for k, v in form.items()})
+    except (InputError, Duplicate) as exc:
+        session.rollback()
+        return _measurement_page(request, session, m, actor, revise_error=str(exc),
+                                 status_code=409 if isinstance(exc, Duplicate) else 422)
+    return redirect(f"/measurements/{new.id}", request)
+
+
+@router.post("/measurements/{measurement_id}/archive", response_class=HTMLResponse)
+def archive(measurement_id: RowId, request: Request, session: SessionDep, actor: PageWriter,
+            archived: Annotated[str, Form()] = "true"):
+    m = measurements.get_measurement(session, measurement_id)
+    measurements.set_archived(session=session, measurement=m, archived=archived != "false", actor=actor.label)
+    return redirect(f"/measurements/{m.id}", request)

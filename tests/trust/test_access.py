@@ -31,6 +31,7 @@ from .conftest import loop_bytes
 
 WRITE_METHODS = ("post", "patch", "put", "delete")
 UPLOAD = ("post", "/api/v1/batches/{batch_code}/measurements")
+UPLOADS = {UPLOAD, ("post", "/api/v1/samples/{sample_code}/measurements")}  # an upload token may post files
 # Admin-only (the Admin dependency of deps.py): a member or a write token is refused there too, with
 # require_admin's own message. These are known to be admin-only; others are found by that message.
 ADMIN_ONLY = {("post", "/api/v1/compounds/{code}/verdict/override"), ("post", "/api/v1/compounds/{code}/verdict/clear")}
@@ -75,6 +76,7 @@ def world(app, client, session):
         sessions[role] = (c, login_as(c, session, role=role, name=f"{role}-x"))
     yield {
         "params": {"code": code, "batch_code": batch, "job_id": job.json()["job"], "measurement_id": m.json()["id"],
+                   "sample_code": m.json()["sample"],
                    "username": "spare-user", "token_id": spare.id},
         "code": code,
         "batch": batch,
@@ -91,7 +93,7 @@ def call(c: TestClient, method: str, path: str, params: dict, headers: dict | No
     # /batches/{code}/... names a batch by `code`; everywhere else `code` is a compound.
     values = {**params, "code": params["batch_code"]} if path.startswith("/api/v1/batches/{code}") else params
     url = re.sub(r"\{(\w+)\}", lambda m: str(values[m.group(1)]), path)
-    if (method, path) == UPLOAD:
+    if (method, path) in UPLOADS:
         return c.request(method.upper(), url, data={"kind": kind},
                          files={"file": ("loop.csv", loop_bytes(len(url) + hash(kind) % 50), "text/csv")},
                          headers=headers or {})
@@ -118,7 +120,7 @@ def test_denied_callers_over_every_write_endpoint(app, client, world):
         expect("read token", 403, call(client, method, path, params, tokens["read"]), method, path)
         viewer, viewer_csrf = sessions["viewer"]
         expect("viewer session", 403, call(viewer, method, path, params, {"X-CSRF-Token": viewer_csrf}), method, path)
-        if (method, path) != UPLOAD:
+        if (method, path) not in UPLOADS:
             expect("upload token", 403, call(client, method, path, params, tokens["upload"]), method, path)
         for role in ("member", "admin"):
             c, _ = sessions[role]
@@ -259,13 +261,14 @@ WEB_READ = {("GET", p) for p in (
     "/compounds", "/compounds/export.{fmt}", "/compounds/{code}", "/compounds/{code}/timeline",
     "/compounds/{code}/rates", "/scaffolds", "/measurements/{measurement_id}", "/explorer", "/outcomes",
     "/calibration", "/jobs/{job_id}/panel", "/queue", "/digest", "/digest.md", "/compare",
-    "/compare.{fmt}")}
+    "/compare.{fmt}", "/samples/{code}")}
 WEB_WRITE = {("GET", "/compounds/new"), ("POST", "/compounds/preview"), ("POST", "/compounds/new"),
              ("POST", "/compounds/{code}/edit"), ("POST", "/compounds/{code}/archive"),
              ("POST", "/compounds/{code}/barriers"), ("POST", "/compounds/{code}/estimate"),
              ("GET", "/compounds/{code}/batches/new"), ("POST", "/compounds/{code}/batches/new"),
              ("POST", "/scaffolds"), ("GET", "/batches/{code}/upload"), ("POST", "/batches/{code}/upload"),
-             ("POST", "/jobs/{job_id}/cancel"), ("POST", "/queue")}
+             ("POST", "/jobs/{job_id}/cancel"), ("POST", "/queue"),
+             ("POST", "/measurements/{measurement_id}/revise"), ("POST", "/measurements/{measurement_id}/archive")}
 WEB_ADMIN = {("POST", "/compounds/{code}/verdict"), ("POST", "/status/public"), ("GET", "/admin"),
              ("POST", "/admin/users"), ("POST", "/admin/users/{username}/deactivate"), ("POST", "/admin/tokens"),
              ("POST", "/admin/tokens/{token_id}/revoke")}
@@ -292,6 +295,8 @@ def web_call(c: TestClient, method: str, path: str, params: dict, headers: dict 
     url = re.sub(r"\{(\w+)\}", lambda m: str(params[m.group(1)]), path)
     if path.startswith("/batches/{code}"):
         url = url.replace(f"/batches/{params['code']}/", f"/batches/{params['batch_code']}/")
+    if path.startswith("/samples/{code}"):
+        url = url.replace(f"/samples/{params['code']}", f"/samples/{params['sample_code']}")
     return c.request(method, url, data={} if method == "POST" else None, headers=headers or {},
                      follow_redirects=False)
 
@@ -362,7 +367,7 @@ def embargoed_world(client, session, world):
     admin, csrf = world["sessions"]["admin"]
     admin.post("/status/public", data={"enabled": "on", "csrf_token": csrf})  # so visitors reach it too
     return {"params": {**world["params"], "fmt": "csv", "code": c["code"], "batch_code": batch["code"],
-                       "measurement_id": m.json()["id"], "job_id": job.json()["job"]},
+                       "measurement_id": m.json()["id"], "sample_code": m.json()["sample"], "job_id": job.json()["job"]},
             "giveaways": {"SMILES": SECRET, "InChIKey": c["inchikey"], "formula": c["formula"],
                           "label": SECRET_LABEL, "notes": SECRET_NOTES}}
 

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import json
 
+import pytest
+
 from sqlmodel import select
 
 from server.ingest.table import to_csv_bytes
@@ -68,9 +70,41 @@ def test_compound_page_summarises_loops_against_temperature(client, session):
     page = soup(client.get("/compounds/RVZ-00001").text)
     assert len(page.select("#measurements tbody tr")) == 3
     fig = json.loads(page.find("script", id="summary-figure").string)
-    xs = fig["data"][0]["x"]
-    assert xs == [280, 300, 320]
-    assert fig["layout"]["xaxis"]["title"]["text"] == "T (K)"
+    # One heating run of one sample: one Pr line and one Ec line, named after the sample and direction.
+    assert [d["name"] for d in fig["data"]] == [f"{batch}-S01 heating"] * 2
+    assert fig["data"][0]["x"] == [280, 300, 320] and fig["data"][0]["mode"] == "lines+markers"
+    assert fig["layout"]["xaxis2"]["title"]["text"] == "T (K)"
+
+
+def test_upload_form_describes_a_new_sample_inline(client, session):
+    from server.models import Sample
+    from server.synth.ferro import raw_vq
+
+    csrf = login_as(client, session)
+    batch = _compound_with_batch(client, csrf)
+    # A raw V/Q Miller loop (Miller et al. 1990) on 0.0785 cm² and 150 µm: Ec = 50 kV/cm only with that geometry.
+    raw = to_csv_bytes(raw_vq(miller_loop(10, 8, 50, 300), 0.0785, 150.0), {"temperature": "300 K"})
+    fields = {"kind": "pe_loop", "csrf_token": csrf, "sample": "new", "new_form": "pellet",
+              "new_thickness": "150 um", "new_electrode_area": "7.85 mm^2", "new_electrode": "silver paste"}
+    # A bad file: refused, and the sample described with it is not stored either.
+    bad = client.post(f"/batches/{batch}/upload", data=fields, files={"file": ("bad.csv", b"E (kV/cm),P (uC/cm^2)\n1,x\n")})
+    assert bad.status_code == 422
+    assert session.exec(select(Sample)).all() == []
+    bad = client.post(f"/batches/{batch}/upload", data={**fields, "new_thickness": "0 um"},
+                      files={"file": ("loop.csv", raw)})
+    assert bad.status_code == 422 and "greater than zero" in soup(bad.text).find(role="alert").text
+    assert session.exec(select(Sample)).all() == [] and session.exec(select(Measurement)).all() == []
+
+    r = client.post(f"/batches/{batch}/upload", data=fields, files={"file": ("loop.csv", raw)}, follow_redirects=False)
+    assert r.status_code == 303, r.text
+    page = soup(client.get(r.headers["location"]).text)
+    assert page.select_one("h1 .sub a[href^='/samples/']").text == f"{batch}-S01"
+    ec_row = next(tr for tr in page.select("table.results tr") if tr.th and tr.th.text == "Ec")
+    assert float(ec_row.td.text) == pytest.approx(50.0, rel=0.03)  # geometry from the new sample
+    sample_page = soup(client.get(f"/samples/{batch}-S01").text)
+    assert len(sample_page.select("#history tbody tr")) == 1
+    form_page = soup(client.get(f"/batches/{batch}/upload").text)
+    assert f"{batch}-S01" in [o["value"] for o in form_page.select("#sample-choice option")]
 
 
 def test_ellipse_shows_apparent_pr_and_no_ps(client, session):

@@ -2,12 +2,13 @@
 
 from fastapi import APIRouter
 
-from . import admin, barriers, compounds, jobs, measurements, outputs, scaffolds
+from . import admin, barriers, compounds, jobs, measurements, outputs, samples, scaffolds
 
 router = APIRouter(prefix="/api/v1")
 router.include_router(compounds.router)
 router.include_router(scaffolds.router)
 router.include_router(measurements.router)
+router.include_router(samples.router)
 router.include_router(barriers.router)
 router.include_router(jobs.router)
 router.include_router(admin.router)

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Annotated, Any, Optional
 
-from fastapi import APIRouter, File, Form, Query, UploadFile
+from fastapi import APIRouter, Depends, File, Form, Query, UploadFile
 from fastapi.responses import JSONResponse, Response
 from pydantic import BaseModel
 
@@ -12,7 +12,7 @@ from ...deps import Offset, Reader, RowId, SessionDep, SettingsDep, Uploader, Wr
 from ...kinds import KINDS
 from ...models import RawFile
 from ...services import accounts, measurements, registry
-from .responses import ARCHIVED, AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND, ErrorOut
+from .responses import ARCHIVED, AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND, ErrorOut
 
 router = APIRouter(tags=["measurements"])
 
@@ -21,6 +21,7 @@ class MeasurementOut(BaseModel):
     id: int
     kind: str
     batch: str
+    sample: str
     compound: str
     sha256: str
     filename: str
@@ -36,6 +37,8 @@ class MeasurementOut(BaseModel):
     operator: str
     notes: str
     archived: bool = False
+    supersedes: Optional[int] = None
+    superseded_by: Optional[int] = None
     created_at: str
     created_by: str
 
@@ -45,20 +48,7 @@ class MeasurementPage(BaseModel):
     total: int
 
 
-@router.post(
-    "/batches/{batch_code}/measurements",
-    status_code=201,
-    response_model=MeasurementOut,
-    responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS, **ARCHIVED, 200: {"model": MeasurementOut, "description": "the same bytes were stored already for this batch"},
-               413: {"model": ErrorOut, "description": "file too large"}},
-)
-def upload(
-    batch_code: str,
-    session: SessionDep,
-    settings: SettingsDep,
-    actor: Uploader,
-    kind: Annotated[str, Form(description="one of " + ", ".join(KINDS))],
-    file: Annotated[UploadFile, File(description="the instrument's raw file (CSV, TSV, XLSX or CIF)")],
+def condition_fields(
     area: Annotated[Optional[str], Form(description="electrode area, e.g. '0.785 mm^2'")] = None,
     thickness: Annotated[Optional[str], Form(description="sample thickness, e.g. '150 um'")] = None,
     mass: Annotated[Optional[str], Form(description="DSC sample mass, e.g. '4.2 mg'")] = None,
@@ -72,19 +62,63 @@ def upload(
     spectrometer: Annotated[Optional[str], Form(description="NMR spectrometer frequency, e.g. '400 MHz'")] = None,
     nucleus: Annotated[Optional[str], Form(max_length=10, description="observed nucleus, e.g. '1H'")] = None,
     solvent: Annotated[Optional[str], Form(max_length=80, description="NMR solvent, e.g. 'toluene-d8'")] = None,
+    sweep: Annotated[Optional[str], Form(description="temperature run direction: heating or cooling")] = None,
+) -> dict[str, Optional[str]]:
+    """The condition fields of an upload or a correction (quantities as text with their unit)."""
+    return {"area": area, "thickness": thickness, "mass": mass, "rate": rate, "temperature": temperature,
+            "frequency": frequency, "instrument": instrument, "operator": operator, "notes": notes, "endo": endo,
+            "sweep": sweep, "spectrometer": spectrometer, "nucleus": nucleus, "solvent": solvent}
+
+
+ConditionFields = Annotated[dict, Depends(condition_fields)]
+UPLOAD_RESPONSES = {**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS, **DUPLICATE, **ARCHIVED,
+                    200: {"model": MeasurementOut, "description": "the same bytes and conditions were stored already"},
+                    413: {"model": ErrorOut, "description": "file too large"}}
+
+
+@router.post("/batches/{batch_code}/measurements", status_code=201, response_model=MeasurementOut,
+             responses=UPLOAD_RESPONSES)
+def upload(
+    batch_code: str,
+    session: SessionDep,
+    settings: SettingsDep,
+    actor: Uploader,
+    kind: Annotated[str, Form(description="one of " + ", ".join(KINDS))],
+    file: Annotated[UploadFile, File(description="the instrument's raw file (CSV, TSV, XLSX or CIF)")],
+    form: ConditionFields,
 ):
-    """Post a raw instrument file to a batch; it is stored unchanged and analysed at once."""
+    """Post a raw instrument file to a batch; it is stored unchanged under the batch's default
+    sample (created on first use) and analysed at once. The same bytes with other conditions: 409."""
     batch = registry.get_batch(session, batch_code)
     raw = measurements.read_upload(file, settings.max_upload_bytes)
-    form = {"area": area, "thickness": thickness, "mass": mass, "rate": rate, "temperature": temperature,
-            "frequency": frequency, "instrument": instrument, "operator": operator, "notes": notes, "endo": endo,
-            "spectrometer": spectrometer, "nucleus": nucleus, "solvent": solvent}
     m, created = measurements.upload_measurement(
         session=session, batch=batch, kind_name=kind, raw=raw, filename=file.filename, form=form,
         actor=actor.label, allowed_kinds=actor.kinds if actor.scope == "upload" else None,
     )
     body = accounts.hide_people(measurements.measurement_read(session, m), sees_people=actor.sees_people)
     return JSONResponse(body, status_code=201 if created else 200)
+
+
+@router.post("/measurements/{measurement_id}/revise", status_code=201, response_model=MeasurementOut,
+             responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS,
+                        409: {"model": ErrorOut, "description": "corrected already (names the newest) or the "
+                                                                  "replacement file is stored already"},
+                        413: {"model": ErrorOut, "description": "file too large"}})
+def revise(
+    measurement_id: RowId,
+    session: SessionDep,
+    settings: SettingsDep,
+    actor: Writer,
+    form: ConditionFields,
+    file: Annotated[Optional[UploadFile], File(description="a replacement raw file (optional)")] = None,
+):
+    """Correct a measurement's conditions (and optionally its file): a new measurement whose
+    `supersedes` is this one; this one gets `superseded_by` and leaves lists, plots and verdicts."""
+    m = measurements.get_measurement(session, measurement_id)
+    raw = measurements.read_upload(file, settings.max_upload_bytes) if file is not None else None
+    new = measurements.revise_measurement(session=session, measurement=m, form=form, actor=actor.label, raw=raw,
+                                          filename=file.filename if file is not None else None)
+    return JSONResponse(measurements.measurement_read(session, new), status_code=201)
 
 
 @router.get("/measurements", response_model=MeasurementPage, responses=AUTH_ERRORS)
@@ -94,11 +128,14 @@ def list_measurements(
     batch: Optional[str] = None,
     compound: Optional[str] = None,
     kind: Optional[str] = None,
+    sample: Optional[str] = None,
+    include_superseded: bool = False,
     limit: int = Query(100, ge=1, le=1000),
     offset: Offset = 0,
 ) -> MeasurementPage:
-    rows, total = measurements.list_measurements(session, batch=batch, compound=compound, kind=kind, limit=limit,
-                                                 offset=offset)
+    """Live measurements, newest first; superseded ones only with `include_superseded=true`."""
+    rows, total = measurements.list_measurements(session, batch=batch, compound=compound, kind=kind, sample=sample,
+                                                 include_superseded=include_superseded, limit=limit, offset=offset)
     items = [measurements.measurement_read(session, m) for m in rows]
     return MeasurementPage(items=accounts.hide_people(items, sees_people=actor.sees_people), total=total)
 

@@ -14,7 +14,7 @@ class ErrorOut(BaseModel):
 
 class DuplicateOut(BaseModel):
     detail: str
-    existing: str
+    existing: str | int  # a code, or a measurement id
 
 
 AUTH_ERRORS = {

@@ -28,7 +28,7 @@ from typing import Any, Optional, Sequence
 import numpy as np
 from scipy.optimize import curve_fit
 
-from .common import Flag
+from .results import Flag
 
 METHOD = ("Pr(T) fitted with the Landau order-parameter law Pr = A (Tc - T)^beta (Lines and Glass 1977, ch. 3), "
           "first-order jumps reported; Ec(T) linear and Ec(f) power-law descriptions")

@@ -96,3 +96,17 @@ def _value(results: dict[str, Any], rk: Any) -> str:
         return str(len(value))
     text = significant(value, rk.digits) if value is not None else "—"
     return f"{text} (apparent)" if rk.key in (results.get("apparent") or ()) and value is not None else text
+
+
+def figure_as_json(data: dict) -> str:
+    """The comparison's interactive figure (Plotly JSON) for the page."""
+    from ..plots import figure_json
+
+    return figure_json(data["figure"])
+
+
+def figure_file(data: dict, fmt: str) -> bytes:
+    """The comparison's figure as an SVG or PDF file (``plots.vector``)."""
+    from ..plots import vector
+
+    return vector.render(data["figure"], fmt)

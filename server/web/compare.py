@@ -8,7 +8,6 @@ from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse, Response
 
 from ..deps import PageActor, SessionDep
-from ..plots import figure_json, vector
 from ..services import compare
 from .render import render
 
@@ -28,7 +27,7 @@ def compare_page(request: Request, session: SessionDep, actor: PageActor, codes:
     data = _build(session, actor, codes, kind, reduced)
     query = request.url.query
     return render(request, "pages/compare.html",
-                  {**data, "figure_json": figure_json(data["figure"]) if data["rows"] else None,
+                  {**data, "figure_json": compare.figure_as_json(data) if data["rows"] else None,
                    "query": query, "codes": codes, "kinds": compare.OVERLAY_KINDS, "reduced": reduced},
                   actor=actor)
 
@@ -39,5 +38,5 @@ def compare_figure(fmt: str, session: SessionDep, actor: PageActor, codes: Optio
     if fmt not in FORMATS:
         return Response(f"no format {fmt}; use svg or pdf", status_code=404, media_type="text/plain")
     data = _build(session, actor, codes, kind, reduced)
-    return Response(vector.render(data["figure"], fmt), media_type=FORMATS[fmt],
+    return Response(compare.figure_file(data, fmt), media_type=FORMATS[fmt],
                     headers={"Content-Disposition": f'inline; filename="comparison-{data["kind"].name}.{fmt}"'})

@@ -30,7 +30,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Optional
 
-from sqlalchemy import true
+from sqlalchemy import case, null, or_, true
 from sqlalchemy.sql.elements import ColumnElement
 
 from .models import Compound
@@ -143,3 +143,46 @@ def structure_visible(actor: Optional[Actor]) -> ColumnElement[bool]:
     if sees_embargoed(actor):
         return true()
     return Compound.embargoed == False  # noqa: E712 - SQL expression
+
+
+def structure_value(actor: Optional[Actor], expr):  # noqa: ANN001, ANN201 - any SQL expression
+    """A structure-derived column (molar mass, side-chain carbons, scaffold, computed barrier...) as
+    ``actor`` may use it in a query: NULL for embargoed rows when the actor may not see them, so a
+    sort over it places those rows by code alone and says nothing about their structure."""
+    if sees_embargoed(actor):
+        return expr
+    return case((Compound.embargoed == True, null()), else_=expr)  # noqa: E712 - SQL expression
+
+
+def structure_condition(actor: Optional[Actor], cond: ColumnElement[bool]) -> ColumnElement[bool]:
+    """A filter on something structure-derived (side chains, scaffold, bridge, label, notes...): for
+    an actor who may not see embargoed structures it never matches an embargoed row, so the presence
+    or absence of an embargoed code in the answer says nothing about its structure."""
+    if sees_embargoed(actor):
+        return cond
+    return (Compound.embargoed == False) & cond  # noqa: E712 - SQL expression
+
+
+def code_or_structure_condition(actor: Optional[Actor], code_cond: ColumnElement[bool],
+                                structure_cond: ColumnElement[bool]) -> ColumnElement[bool]:
+    """A text search over the code (always open) and over label/notes (withheld for embargoed rows)."""
+    return or_(code_cond, structure_condition(actor, structure_cond))
+
+
+def withheld_codes(session, actor: Optional[Actor]) -> frozenset[str]:  # noqa: ANN001 - a SQLModel session
+    """The codes of the embargoed compounds whose structure ``actor`` may not see (empty for members):
+    answers that are not compound records (jobs, measurements) look their compound's code up here."""
+    if sees_embargoed(actor):
+        return frozenset()
+    from sqlmodel import select
+
+    return frozenset(session.exec(select(Compound.code).where(Compound.embargoed == True)).all())  # noqa: E712
+
+
+def job_as_seen(job: dict, withheld: frozenset[str]) -> dict:
+    """A job (``server.jobs.queue.job_read``) as a caller sees it: for an embargoed compound the caller
+    may not see, the result (barrier, bowl depth, dipole and the SMILES used, all computed from the
+    structure), the progress message and the error text are withheld; state and times stay."""
+    if job.get("compound") not in withheld:
+        return job
+    return {**job, "result": None, "message": "", "error": "withheld (embargoed compound)" if job.get("error") else None}

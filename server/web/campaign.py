@@ -105,7 +105,7 @@ async def cancel_job(job_id: RowId, request: Request, session: SessionDep, actor
 @router.get("/queue", response_class=HTMLResponse)
 def queue_page(request: Request, session: SessionDep, actor: PageActor):
     return render(request, "pages/queue.html",
-                  {"summary": estimates.queue_summary(session), "scaffolds": registry.list_scaffolds(session),
+                  {"summary": estimates.queue_summary(session, actor), "scaffolds": registry.list_scaffolds(session),
                    "error": None},
                   partial="partials/queue_body.html", actor=actor)
 
@@ -126,6 +126,6 @@ async def queue_many(request: Request, session: SessionDep, actor: PageWriter):
                                   truncate_side_chains=form.get("full_chains") != "on", actor=actor.label)
     except (InputError, NotFound) as exc:
         return render(request, "pages/queue.html",
-                      {"summary": estimates.queue_summary(session), "scaffolds": registry.list_scaffolds(session),
+                      {"summary": estimates.queue_summary(session, actor), "scaffolds": registry.list_scaffolds(session),
                        "error": str(exc)}, status_code=422, actor=actor)
     return redirect("/queue", request)

@@ -74,12 +74,16 @@ def upload(
 @router.get("/measurements/{measurement_id}", response_class=HTMLResponse)
 def measurement_page(measurement_id: RowId, request: Request, session: SessionDep, actor: PageActor):
     m = measurements.get_measurement(session, measurement_id)
-    info = measurements.measurement_read(session, m)
+    info = measurements.measurement_as_seen(session, m, actor)
     kind = KINDS.get(m.kind)
-    try:
-        fig = measurements.measurement_figure(session, m)
-        fig_error = None
-    except InputError as exc:
-        fig, fig_error = None, str(exc)
+    if not measurements.may_download_raw(session, m, actor):
+        # A receipt (embargoed compound, caller who may not see it): no figure either, it draws the results.
+        fig, fig_error = None, measurements.RECEIPT_WITHHELD
+    else:
+        try:
+            fig = measurements.measurement_figure(session, m)
+            fig_error = None
+        except InputError as exc:
+            fig, fig_error = None, str(exc)
     return render(request, "pages/measurement.html",
                   {"m": info, "kind": kind, "figure": fig, "figure_error": fig_error}, actor=actor)

@@ -13,6 +13,8 @@ per request or per run (listed in :func:`normalise`). Runs on SQLite and Postgre
 
 from __future__ import annotations
 
+import hashlib
+import json
 import re
 import shutil
 
@@ -25,6 +27,8 @@ from server.app import create_app
 from server.chem.scaffold import PARENT_BOWLS
 from server.ingest.table import to_csv_bytes
 from server.models import Compound, Job
+from server.services import measurements
+from server.synth.cif import bowl_crystal_cif
 from server.synth.dsc import dsc_trace
 from tests.conftest import _empty_pg
 from tests.factories import bearer, login_as, make_token
@@ -166,3 +170,100 @@ def test_no_answer_depends_on_an_embargoed_structure(settings, db_url, sqlite_te
     differ = sorted(k for k in a if a[k] != b[k])
     assert not differ, f"{len(differ)} answers depend on the embargoed structure, e.g.:\n" + "\n".join(differ[:40])
 
+
+
+# --- one regression test per finding (issue 12, items 3, 5, 7; 1-2, 4 and 6 also in the property test) ----
+
+
+@pytest.fixture
+def hidden(client, session):
+    """An embargoed naphthalene (C10H8, an invented registration) with a batch; a write, an upload
+    and a read token, and a member session."""
+    w = bearer(make_token(session, scope="write", name="registrar"))
+    r = client.post("/api/v1/compounds", json={"smiles": "c1ccc2ccccc2c1", "embargoed": True,
+                                               "label": "naphthalene N-1", "notes": "two fused rings"}, headers=w)
+    assert r.status_code == 201, r.text
+    code = r.json()["code"]
+    batch = client.post(f"/api/v1/compounds/{code}/batches", json={"chemist": "lab"}, headers=w).json()["code"]
+    return {"code": code, "batch": batch, "write": w, "formula": r.json()["formula"],
+            "up": bearer(make_token(session, scope="upload", name="instrument-pc")),
+            "read": bearer(make_token(session, scope="read", name="reader-pc"))}
+
+
+def test_crystal_receipt_does_not_quote_the_registered_formula(client, hidden):
+    """Item 3: a CIF whose content disagrees with the registration gets a formula_mismatch flag; for an
+    upload token the flag keeps its code but not its message (which names the registered formula)."""
+    # The CH2-bridged parent bowl (C21H12), as in tests/api/test_verdicts.py: not the registered C10H8.
+    cif = bowl_crystal_cif("C1c2ccc3Cc4ccc5Cc6ccc1c7c6c5c4c3c27", "P2_1", head_to_tail=True)
+    r = client.post(f"/api/v1/batches/{hidden['batch']}/measurements", data={"kind": "crystal"},
+                    files={"file": ("x.cif", cif, "chemical/x-cif")}, headers=hidden["up"])
+    assert r.status_code == 201, r.text
+    receipt = r.json()
+    assert "formula_mismatch" in {f["code"] for f in receipt["flags"]}
+    assert hidden["formula"] not in r.text and "C10" not in r.text and receipt["results"] == {}
+    assert {f["message"] for f in receipt["flags"]} == {measurements.RECEIPT_WITHHELD}
+    assert receipt["sha256"] == hashlib.sha256(cif if isinstance(cif, bytes) else cif.encode()).hexdigest()
+    # Members see everything (control: the message does quote the formula).
+    full = client.get(f"/api/v1/measurements/{receipt['id']}", headers=hidden["read"]).json()
+    assert any("C10" in f["message"] for f in full["flags"] if f["code"] == "formula_mismatch"), full["flags"]
+    assert full["results"]
+
+
+def test_dsc_receipt_has_no_molar_quantities(client, hidden):
+    """Item 3: DSC results carry the molar mass, and molar over specific enthalpy gives it."""
+    trace = dsc_trace([{"kind": "melting", "t_K": 400.0, "dh_J_g": 80.0, "width_K": 1.5}], t_start_K=330,
+                      t_end_K=450, rate_K_min=10.0, mass_mg=5.0)
+    r = client.post(f"/api/v1/batches/{hidden['batch']}/measurements", data={"kind": "dsc", "mass": "5 mg"},
+                    files={"file": ("dsc.csv", to_csv_bytes(trace), "text/csv")}, headers=hidden["up"])
+    assert r.status_code == 201, r.text
+    assert r.json()["results"] == {} and "128.1" not in r.text  # naphthalene 128.17 g/mol
+    listed = client.get("/api/v1/measurements", headers=hidden["up"]).json()["items"]
+    assert [m["results"] for m in listed] == [{}]
+    full = client.get(f"/api/v1/measurements/{r.json()['id']}", headers=hidden["read"]).json()
+    assert "128.1" in json.dumps(full["results"])  # control: the member view carries the molar mass
+
+
+def test_raw_files_of_embargoed_compounds_are_refused_to_upload_tokens(client, hidden):
+    """Item 5."""
+    r = client.post(f"/api/v1/batches/{hidden['batch']}/measurements", data={"kind": "pe_loop"},
+                    files={"file": ("m.csv", loop_bytes(3), "text/csv")}, headers=hidden["up"])
+    assert r.status_code == 201, r.text
+    raw = f"/api/v1/measurements/{r.json()['id']}/raw"
+    assert client.get(raw, headers=hidden["up"]).status_code == 403
+    ok = client.get(raw, headers=hidden["read"])
+    assert ok.status_code == 200 and ok.content == loop_bytes(3)
+
+
+def test_jobs_summary_withholds_smiles_used(client, session, hidden):
+    """Item 4: /api/v1/jobs/summary handed out ``smiles_used`` while the other job routes did not."""
+    job = client.post(f"/api/v1/compounds/{hidden['code']}/estimates", json={}, headers=hidden["write"]).json()["job"]
+    row = session.get(Job, job)
+    row.state, row.result = "done", {"smiles_used": "c1ccc2ccccc2c1", "barrier_kcal_mol": 1.0}
+    row.finished_at = row.created_at
+    session.add(row)
+    session.commit()
+    summary = client.get("/api/v1/jobs/summary", headers=hidden["up"])
+    assert summary.status_code == 200 and "c1ccc2" not in summary.text and "smiles_used" not in summary.text
+    assert "c1ccc2ccccc2c1" in client.get("/api/v1/jobs/summary", headers=hidden["read"]).text  # control
+
+
+def test_partial_web_edit_keeps_the_embargo_and_the_scaffold(client, session):
+    """Item 7: a form post that changes only the label must not lift the embargo nor clear the scaffold."""
+    w = bearer(make_token(session, scope="write", name="registrar"))
+    assert client.post("/api/v1/scaffolds", json={"code": "BWL-C", "name": "CH2 bowl", "smiles": PARENT_BOWLS["CH2"]},
+                       headers=w).status_code == 201
+    r = client.post("/api/v1/compounds", json={"scaffold": "BWL-C", "side_chain": {"kind": "alkoxy", "carbons": 4},
+                                               "embargoed": True, "label": "first"}, headers=w)
+    assert r.status_code == 201, r.text
+    code = r.json()["code"]
+    csrf = login_as(client, session, role="member", name="mia")
+    assert client.post(f"/compounds/{code}/edit", data={"label": "second", "csrf_token": csrf}).status_code in (200, 303)
+    after = client.get(f"/api/v1/compounds/{code}", headers=w).json()
+    assert (after["label"], after["embargoed"], after["scaffold"]) == ("second", True, "BWL-C")
+    # The full form (as the page sends it, box unticked) still lifts the embargo: the control.
+    page = client.get(f"/compounds/{code}").text
+    assert 'name="embargoed_field"' in page
+    client.post(f"/compounds/{code}/edit", data={"label": "second", "scaffold": "BWL-C", "notes": "",
+                                                 "embargoed_field": "1", "csrf_token": csrf})
+    after = client.get(f"/api/v1/compounds/{code}", headers=w).json()
+    assert (after["embargoed"], after["scaffold"]) == (False, "BWL-C")

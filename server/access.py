@@ -11,9 +11,13 @@ The access table (a caller is a logged-in user with a role, or an API token with
 | user, role viewer      | yes  | yes                      | no                  | no           | no    |
 | user, role member      | yes  | yes                      | yes                 | yes          | no    |
 | user, role admin       | yes  | yes                      | yes                 | yes          | yes   |
-| token, scope read      | yes  | yes                      | no                  | no           | no    |
+| token, scope read      | yes  | only if granted          | no                  | no           | no    |
 | token, scope upload    | yes  | no                       | yes (its kinds)     | no           | no    |
 | token, scope write     | yes  | yes                      | yes                 | yes          | no    |
+
+A read token sees embargoed compounds only when an admin grants it at creation
+(``remanence token create --scope read --embargoed``, or the box on the admin page); a read token
+without the grant is treated like an upload token for the embargo.
 
 "Read" without a login is limited to the login page and, when the admin publishes it, the status
 page (which then shows embargoed compounds by code only).
@@ -66,6 +70,7 @@ class Actor:
     user_id: Optional[int] = None
     token_id: Optional[int] = None
     via_cookie: bool = False
+    embargo_grant: bool = False  # read tokens: granted to see embargoed compounds
 
     @property
     def label(self) -> str:
@@ -88,7 +93,9 @@ class Actor:
 
     @property
     def can_see_embargoed(self) -> bool:
-        return self.kind == "user" or self.scope in ("read", "write")
+        if self.kind == "user":
+            return True
+        return token_sees_embargoed(self.scope, self.embargo_grant)
 
     def can_upload(self, kind: str | None = None) -> bool:
         if self.can_write:
@@ -96,6 +103,12 @@ class Actor:
         if self.scope == "upload":
             return self.kinds is None or kind is None or kind in self.kinds
         return False
+
+
+def token_sees_embargoed(scope: Optional[str], granted: bool) -> bool:
+    """Whether a token of ``scope`` sees embargoed compounds: write tokens yes, upload tokens never,
+    read tokens only with the admin's grant."""
+    return scope == "write" or (scope == "read" and bool(granted))
 
 
 class NotLoggedIn(Exception):

@@ -187,7 +187,8 @@ def hidden(client, session):
     batch = client.post(f"/api/v1/compounds/{code}/batches", json={"chemist": "lab"}, headers=w).json()["code"]
     return {"code": code, "batch": batch, "write": w, "formula": r.json()["formula"],
             "up": bearer(make_token(session, scope="upload", name="instrument-pc")),
-            "read": bearer(make_token(session, scope="read", name="reader-pc"))}
+            "read": bearer(make_token(session, scope="read", name="reader-pc", sees_embargoed=True)),
+            "plain_read": bearer(make_token(session, scope="read", name="plain-reader"))}
 
 
 def test_crystal_receipt_does_not_quote_the_registered_formula(client, hidden):
@@ -267,3 +268,25 @@ def test_partial_web_edit_keeps_the_embargo_and_the_scaffold(client, session):
                                                  "embargoed_field": "1", "csrf_token": csrf})
     after = client.get(f"/api/v1/compounds/{code}", headers=w).json()
     assert (after["embargoed"], after["scaffold"]) == (False, "BWL-C")
+
+
+def test_read_tokens_see_embargoed_compounds_only_when_granted(client, session, hidden):
+    """"Read tokens unless granted" (issue 12): without the grant a read token is held to the embargo
+    like an upload token; with it (admin page, API or ``remanence token create --embargoed``) it sees all."""
+    code = hidden["code"]
+    plain = client.get(f"/api/v1/compounds/{code}", headers=hidden["plain_read"]).json()
+    assert (plain["smiles"], plain["label"], plain["formula"]) == (None, "", None)
+    assert client.get(f"/api/v1/compounds/{code}/structure.svg", headers=hidden["plain_read"]).status_code == 404
+    granted = client.get(f"/api/v1/compounds/{code}", headers=hidden["read"]).json()
+    assert granted["smiles"] and granted["label"] == "naphthalene N-1"
+    # Only read tokens take the grant (write tokens see all anyway; upload tokens never).
+    admin_csrf = login_as(client, session, role="admin", name="boss")
+    for scope, status in (("upload", 422), ("read", 201)):
+        r = client.post("/api/v1/tokens", json={"name": f"{scope}-g", "scope": scope, "sees_embargoed": True},
+                        headers={"X-CSRF-Token": admin_csrf})
+        assert r.status_code == status, r.text
+    assert r.json()["sees_embargoed"] is True
+    # The admin page's form sets it too, and the token table says so.
+    page = client.post("/admin/tokens", data={"name": "nmr-reader", "scope": "read", "sees_embargoed": "on",
+                                              "expires": "never", "csrf_token": admin_csrf})
+    assert page.status_code == 200 and "(+ embargoed)" in page.text

@@ -166,7 +166,7 @@ def cmd_token_create(args: argparse.Namespace) -> int:
         try:
             token, secret = accounts.create_token(session=session, name=args.name, scope=args.scope, kinds=kinds,
                                                   expires_in=accounts.parse_lifetime(args.expires), actor="cli",
-                                                  sees_embargoed=args.embargoed)
+                                                  sees_embargoed=args.embargo_grant)
         except InputError as exc:
             print(f"error: {exc}", file=sys.stderr)
             return 2
@@ -316,7 +316,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--scope", choices=["upload", "write", "read"], required=True)
     p.add_argument("--kinds", help="upload tokens: comma-separated measurement kinds allowed")
     p.add_argument("--expires", help="lifetime, e.g. 90d, 12h or 8w (default: never expires)")
-    p.add_argument("--embargoed", action="store_true",
+    p.add_argument("--embargoed", dest="embargo_grant", action="store_true",
                    help="read tokens: may see embargoed compounds (default: they may not)")
     p.set_defaults(func=cmd_token_create)
     p = token.add_parser("revoke", help="revoke a token")

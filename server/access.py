@@ -11,9 +11,13 @@ The access table (a caller is a logged-in user with a role, or an API token with
 | user, role viewer      | yes  | yes                      | no                  | no           | no    |
 | user, role member      | yes  | yes                      | yes                 | yes          | no    |
 | user, role admin       | yes  | yes                      | yes                 | yes          | yes   |
-| token, scope read      | yes  | yes                      | no                  | no           | no    |
+| token, scope read      | yes  | only if granted          | no                  | no           | no    |
 | token, scope upload    | yes  | no                       | yes (its kinds)     | no           | no    |
 | token, scope write     | yes  | yes                      | yes                 | yes          | no    |
+
+A read token sees embargoed compounds only when an admin grants it at creation
+(``remanence token create --scope read --embargoed``, or the box on the admin page); a read token
+without the grant is treated like an upload token for the embargo.
 
 "Read" without a login is limited to the login page and, when the admin publishes it, the status
 page (which then shows embargoed compounds by code only).
@@ -30,7 +34,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Optional
 
-from sqlalchemy import true
+from sqlalchemy import case, null, or_, true
 from sqlalchemy.sql.elements import ColumnElement
 
 from .models import Compound
@@ -66,6 +70,7 @@ class Actor:
     user_id: Optional[int] = None
     token_id: Optional[int] = None
     via_cookie: bool = False
+    embargo_grant: bool = False  # read tokens: granted to see embargoed compounds
 
     @property
     def label(self) -> str:
@@ -88,7 +93,9 @@ class Actor:
 
     @property
     def can_see_embargoed(self) -> bool:
-        return self.kind == "user" or self.scope in ("read", "write")
+        if self.kind == "user":
+            return True
+        return token_sees_embargoed(self.scope, self.embargo_grant)
 
     def can_upload(self, kind: str | None = None) -> bool:
         if self.can_write:
@@ -96,6 +103,12 @@ class Actor:
         if self.scope == "upload":
             return self.kinds is None or kind is None or kind in self.kinds
         return False
+
+
+def token_sees_embargoed(scope: Optional[str], granted: bool) -> bool:
+    """Whether a token of ``scope`` sees embargoed compounds: write tokens yes, upload tokens never,
+    read tokens only with the admin's grant."""
+    return scope == "write" or (scope == "read" and bool(granted))
 
 
 class NotLoggedIn(Exception):
@@ -143,3 +156,46 @@ def structure_visible(actor: Optional[Actor]) -> ColumnElement[bool]:
     if sees_embargoed(actor):
         return true()
     return Compound.embargoed == False  # noqa: E712 - SQL expression
+
+
+def structure_value(actor: Optional[Actor], expr):  # noqa: ANN001, ANN201 - any SQL expression
+    """A structure-derived column (molar mass, side-chain carbons, scaffold, computed barrier...) as
+    ``actor`` may use it in a query: NULL for embargoed rows when the actor may not see them, so a
+    sort over it places those rows by code alone and says nothing about their structure."""
+    if sees_embargoed(actor):
+        return expr
+    return case((Compound.embargoed == True, null()), else_=expr)  # noqa: E712 - SQL expression
+
+
+def structure_condition(actor: Optional[Actor], cond: ColumnElement[bool]) -> ColumnElement[bool]:
+    """A filter on something structure-derived (side chains, scaffold, bridge, label, notes...): for
+    an actor who may not see embargoed structures it never matches an embargoed row, so the presence
+    or absence of an embargoed code in the answer says nothing about its structure."""
+    if sees_embargoed(actor):
+        return cond
+    return (Compound.embargoed == False) & cond  # noqa: E712 - SQL expression
+
+
+def code_or_structure_condition(actor: Optional[Actor], code_cond: ColumnElement[bool],
+                                structure_cond: ColumnElement[bool]) -> ColumnElement[bool]:
+    """A text search over the code (always open) and over label/notes (withheld for embargoed rows)."""
+    return or_(code_cond, structure_condition(actor, structure_cond))
+
+
+def withheld_codes(session, actor: Optional[Actor]) -> frozenset[str]:  # noqa: ANN001 - a SQLModel session
+    """The codes of the embargoed compounds whose structure ``actor`` may not see (empty for members):
+    answers that are not compound records (jobs, measurements) look their compound's code up here."""
+    if sees_embargoed(actor):
+        return frozenset()
+    from sqlmodel import select
+
+    return frozenset(session.exec(select(Compound.code).where(Compound.embargoed == True)).all())  # noqa: E712
+
+
+def job_as_seen(job: dict, withheld: frozenset[str]) -> dict:
+    """A job (``server.jobs.queue.job_read``) as a caller sees it: for an embargoed compound the caller
+    may not see, the result (barrier, bowl depth, dipole and the SMILES used, all computed from the
+    structure), the progress message and the error text are withheld; state and times stay."""
+    if job.get("compound") not in withheld:
+        return job
+    return {**job, "result": None, "message": "", "error": "withheld (embargoed compound)" if job.get("error") else None}

@@ -59,6 +59,7 @@ def _token_actor(session: Session, raw: str) -> Actor:
         name=token.name,
         scope=token.scope,
         kinds=tuple(token.kinds) if token.kinds else None,
+        embargo_grant=bool(token.sees_embargoed),
         token_id=token.id,
     )
 

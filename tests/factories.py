@@ -15,8 +15,10 @@ def make_user(session: Session, name: str = "ana", role: str = "member", passwor
     return accounts.create_user(session=session, username=name, password=password, role=role, actor="test")
 
 
-def make_token(session: Session, scope: str = "write", name: str = "test-pc", kinds=None) -> str:
-    _, secret = accounts.create_token(session=session, name=name, scope=scope, kinds=kinds, actor="test")
+def make_token(session: Session, scope: str = "write", name: str = "test-pc", kinds=None,
+               sees_embargoed: bool = False) -> str:
+    _, secret = accounts.create_token(session=session, name=name, scope=scope, kinds=kinds, actor="test",
+                                      sees_embargoed=sees_embargoed)
     return secret
 
 

@@ -48,6 +48,20 @@ def test_bad_cli_input_is_refused(env, monkeypatch, capsys):
     assert main(["user", "add", "kim", "--password-stdin"]) == 2
     assert "at least 8" in capsys.readouterr().err
     assert main(["token", "create", "--name", "x", "--scope", "read", "--kinds", "dsc"]) == 2
+    assert main(["token", "create", "--name", "x", "--scope", "upload", "--embargoed"]) == 2
+
+
+def test_read_token_embargo_grant(env, capsys):
+    """``--embargoed`` lets a read token see embargoed compounds (server/access.py); default: it may not."""
+    assert main(["init"]) == 0
+    assert main(["token", "create", "--name", "plain", "--scope", "read"]) == 0
+    assert main(["token", "create", "--name", "nmr", "--scope", "read", "--embargoed"]) == 0
+    assert "sees embargoed compounds" in capsys.readouterr().out
+    engine = make_engine(env.database_url)
+    with Session(engine) as s:
+        grants = {t.name: t.sees_embargoed for t in s.exec(select(ApiToken)).all()}
+    engine.dispose()
+    assert grants == {"plain": False, "nmr": True}
 
 
 def test_reanalyze_command(env, client, session, capsys):

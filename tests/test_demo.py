@@ -48,7 +48,7 @@ def _loaded(settings: Settings, scale: float):
     from sqlmodel import Session
 
     with Session(app.state.engine) as s:
-        reader = bearer(make_token(s, scope="read", name="demo-test-reader"))
+        reader = bearer(make_token(s, scope="read", name="demo-test-reader", sees_embargoed=True))
     return report, app, client, reader
 
 

@@ -33,7 +33,7 @@ import pandas as pd
 from scipy.optimize import curve_fit
 
 from server.analysis.results import Flag, Result
-from server.analysis.constants import EPS0_F_M
+from server.analysis.constants import EPS0_F_M, KB_J_K, R_J_MOLK
 from server.errors import AnalysisError
 
 METHOD = (
@@ -73,8 +73,6 @@ POOR_FIT_R2 = 0.98
 CW_C_MAX_K = DISPLACIVE_C_K[1]
 # The Vogel-Fulcher fit of T_m(f) has three parameters; ask for one degree of freedom.
 VF_MIN_FREQUENCIES = 4
-KB_J_K = 1.380649e-23  # CODATA 2018
-R_J_MOLK = KB_J_K * 6.02214076e23
 
 
 @dataclass(frozen=True)

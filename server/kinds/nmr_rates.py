@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..analysis import kinetics
+from ..analysis.constants import CAL_J
 from ..plots.kinetics import eyring_figure
 from ..synth.nmr import rate_table
 from .base import Example, Kind, Need, ResultKey, example_csv, rng_for
@@ -12,7 +13,7 @@ from .base import Example, Kind, Need, ResultKey, example_csv, rng_for
 # The example: dH = 78.5 kJ/mol and dS = -6 J/(mol K) (dG(298 K) about 19.2 kcal/mol), eight rates
 # across the line-shape window from 364 K to 439 K, 5 % relative noise.
 _EX = {"dh_kJ_mol": 78.5, "ds_J_molK": -6.0, "t_min_K": 364.0, "t_max_K": 439.0}
-_EX["dg298_kcal_mol"] = (_EX["dh_kJ_mol"] - 298.15 * _EX["ds_J_molK"] / 1000.0) / 4.184  # thermochemical calorie
+_EX["dg298_kcal_mol"] = (_EX["dh_kJ_mol"] - 298.15 * _EX["ds_J_molK"] / 1000.0) / CAL_J
 
 
 def _analyse(parsed, c, ctx):

@@ -36,6 +36,8 @@ class ApiToken(SQLModel, table=True):
     created_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
     last_used_at: Optional[datetime] = Field(default=None, sa_type=UTCDateTime)
     expires_at: Optional[datetime] = Field(default=None, sa_type=UTCDateTime)  # None: never expires
+    # Read tokens only: may see embargoed compounds (server/access.py); off unless an admin grants it.
+    sees_embargoed: bool = Field(default=False)
     revoked_at: Optional[datetime] = Field(default=None, sa_type=UTCDateTime)
 
 

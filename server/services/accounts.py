@@ -16,6 +16,7 @@ from sqlalchemy.dialects.sqlite import insert as sqlite_insert
 from sqlalchemy.orm import object_session
 from sqlmodel import Session, select
 
+from .. import access
 from ..errors import InputError
 from ..models import ROLES, SCOPES, ApiToken, LoginThrottle, User, UTCDateTime, utcnow
 from ..security import hash_password, hash_token, needs_rehash, new_token, verify_dummy, verify_password
@@ -182,7 +183,7 @@ def parse_lifetime(text: Optional[str], *, field: str = "expires") -> Optional[t
 
 def create_token(
     *, session: Session, name: str, scope: str, actor: str, kinds: Optional[Sequence[str]] = None,
-    expires_in: Optional[timedelta] = None,
+    expires_in: Optional[timedelta] = None, sees_embargoed: bool = False,
 ) -> tuple[ApiToken, str]:
     """Create a token; returns the row and the secret, which is never stored and shown only once.
     ``expires_in`` (see :func:`parse_lifetime`) makes it answer 401 "token expired" after that long."""
@@ -193,6 +194,9 @@ def create_token(
         raise InputError("give the token a name (e.g. the instrument it belongs to)", field="name")
     if kinds and scope != "upload":
         raise InputError("only upload tokens can be limited to measurement kinds", field="kinds")
+    if sees_embargoed and scope != "read":
+        # Write tokens see embargoed compounds anyway; upload tokens never do (server/access.py).
+        raise InputError("only read tokens take the embargoed grant", field="sees_embargoed")
     secret = new_token()
     token = ApiToken(
         name=name,
@@ -200,6 +204,7 @@ def create_token(
         prefix=secret[:10],
         scope=scope,
         kinds=list(kinds) if kinds else None,
+        sees_embargoed=bool(sees_embargoed),
         created_by=actor,
         expires_at=utcnow() + expires_in if expires_in is not None else None,
     )
@@ -252,6 +257,7 @@ def user_read(user: User) -> dict:
 
 def token_read(token: ApiToken) -> dict:
     return {"id": token.id, "name": token.name, "prefix": token.prefix, "scope": token.scope, "kinds": token.kinds,
+            "sees_embargoed": access.token_sees_embargoed(token.scope, token.sees_embargoed),
             "created_by": token.created_by, "created_at": token.created_at.isoformat(),
             "last_used_at": token.last_used_at.isoformat() if token.last_used_at else None,
             "expires_at": token.expires_at.isoformat() if token.expires_at else None,

@@ -8,6 +8,7 @@ from typing import Any, Optional
 
 from sqlmodel import Session
 
+from .. import access
 from ..access import Actor
 from ..jobs import queue
 from ..models import Compound
@@ -42,11 +43,15 @@ def compound_page(session: Session, compound: Compound, *, actor: Optional[Actor
     per_batch = verdicts.batch_verdicts(session, compound)
     batches = [registry.batch_read(session, b) for b in batch_rows]
     rows, _ = measurements.list_measurements(session, compound=compound.code, limit=1000)
-    items = [measurements.measurement_read(session, m) for m in rows]
+    # For a caller who may not see this (embargoed) compound's structure: receipts only, no estimates
+    # (computed from the structure) and jobs without results (``server/access.py``).
+    hide = not access.may_see_structure(actor, compound)
+    items = [measurements.measurement_as_seen(session, m, actor) for m in rows]
     sample_rows = samples.samples_of_compound(session, compound)
     lines, loose, all_series = switching_lines(session, items, sample_rows)
-    fig = summary.switching_by_series(lines, loose)
+    fig = None if hide else summary.switching_by_series(lines, loose)
     jobs, _ = queue.list_jobs(session, compound_id=compound.id, limit=5)
+    withheld = access.withheld_codes(session, actor)
     return {
         "c": registry.compound_read(session, compound, actor=actor),
         "batches": batches,
@@ -60,7 +65,8 @@ def compound_page(session: Session, compound: Compound, *, actor: Optional[Actor
         "transitions": summary.transitions_table(items),
         "barriers": barriers.barrier_rows(session, compound, t_K=DEFAULT_T_K, frequency_Hz=DEFAULT_F_HZ),
         "t": "298.15 K", "f": "1 kHz", "t_K": DEFAULT_T_K, "f_Hz": DEFAULT_F_HZ, "rate_error": None,
-        "estimates": estimates.estimates_of(session, compound),
+        "estimates": [] if hide else estimates.estimates_of(session, compound),
         "calibrated": barriers.current_calibration(session),
-        "active_jobs": [queue.job_read(j, session=session) for j in jobs if j.state in ("queued", "running")],
+        "active_jobs": [access.job_as_seen(queue.job_read(j, session=session), withheld)
+                        for j in jobs if j.state in ("queued", "running")],
     }

@@ -17,6 +17,8 @@ from rdkit import Chem
 from sqlalchemy import func
 from sqlmodel import Session, select
 
+from .. import access
+from ..access import Actor
 from ..analysis import xtb
 from ..analysis.results import jsonable
 from ..chem.geometry import core_atoms
@@ -170,13 +172,16 @@ def estimates_of(session: Session, compound: Compound) -> list[BarrierEstimate]:
     ).all())
 
 
-def queue_summary(session: Session) -> dict[str, Any]:
+def queue_summary(session: Session, actor: Optional[Actor] = None) -> dict[str, Any]:
     """What a queue page shows: counts per state, the running jobs with progress, what waits, what ended.
 
     ``{"counts": {state: n for every state}, "total": n, "running": [job...], "queued": [first 20],
     "recent": [last 10 ended], "workers": [names of workers running jobs]}`` with jobs as
-    :func:`server.jobs.queue.job_read` gives them.
+    :func:`server.jobs.queue.job_read` gives them, as ``actor`` may see them (``access.job_as_seen``:
+    nothing computed from an embargoed structure for a caller who may not see it; ``actor`` None is
+    such a caller).
     """
+    withheld = access.withheld_codes(session, actor)
     counts = {state: 0 for state in JOB_STATES}
     for state, n in session.exec(select(Job.state, func.count(Job.id)).group_by(Job.state)).all():
         counts[state] = int(n)
@@ -193,8 +198,8 @@ def queue_summary(session: Session) -> dict[str, Any]:
     return {
         "counts": counts,
         "total": sum(counts.values()),
-        "running": queue.jobs_read(session, running),
-        "queued": queue.jobs_read(session, waiting),
-        "recent": queue.jobs_read(session, recent),
+        "running": [access.job_as_seen(j, withheld) for j in queue.jobs_read(session, running)],
+        "queued": [access.job_as_seen(j, withheld) for j in queue.jobs_read(session, waiting)],
+        "recent": [access.job_as_seen(j, withheld) for j in queue.jobs_read(session, recent)],
         "workers": sorted({j.worker for j in running if j.worker}),
     }

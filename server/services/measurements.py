@@ -16,6 +16,8 @@ from sqlalchemy import func
 from sqlalchemy.exc import IntegrityError
 from sqlmodel import Session, select
 
+from .. import access
+from ..access import Actor
 from ..analysis.results import jsonable
 from ..errors import InputError
 from ..ingest.conditions import FORM_FIELDS, Conditions, form_value_as_given, parse_conditions, with_defaults
@@ -453,6 +455,32 @@ def measurement_read(session: Session, m: Measurement) -> dict[str, Any]:
         "created_at": m.created_at.isoformat(),
         "created_by": m.created_by,
     }
+
+
+RECEIPT_WITHHELD = "withheld (embargoed compound)"
+
+
+def measurement_as_seen(session: Session, m: Measurement, actor: Optional[Actor]) -> dict[str, Any]:
+    """:func:`measurement_read` as ``actor`` may see it. For a measurement of an embargoed compound
+    and a caller who may not see its structure (an upload token, ``server/access.py``) it is a
+    receipt: id, kind, batch, compound code, SHA-256, size, analysis status (verdict, analysis
+    version, flag codes) and when; results, conditions, notes, file name and flag messages are
+    withheld, since they can quote or imply the structure (a DSC result carries the molar mass, molar
+    over specific enthalpy gives it, a crystal's formula-mismatch flag quotes the registered formula)."""
+    body = measurement_read(session, m)
+    batch = session.get(Batch, m.batch_id)
+    compound = session.get(Compound, batch.compound_id)
+    if access.may_see_structure(actor, compound):
+        return body
+    return {**body, "results": {}, "conditions": {}, "temperature_K": None, "notes": "", "filename": "",
+            "flags": [{"code": f.get("code", ""), "message": RECEIPT_WITHHELD} for f in (m.flags or [])]}
+
+
+def may_download_raw(session: Session, m: Measurement, actor: Optional[Actor]) -> bool:
+    """Raw files of an embargoed compound's measurements are for callers who may see its structure
+    (a crystal's CIF, an NMR table: the raw bytes carry the structure or what follows from it)."""
+    batch = session.get(Batch, m.batch_id)
+    return access.may_see_structure(actor, session.get(Compound, batch.compound_id))
 
 
 def set_archived(*, session: Session, measurement: Measurement, archived: bool, actor: str) -> Measurement:

@@ -28,7 +28,7 @@ from ..models import (
     ScaffoldRead,
     utcnow,
 )
-from ..access import Actor, may_see_structure
+from ..access import Actor, may_see_structure, structure_visible
 from ..settings import Settings
 from . import audit, codes, search, stats, verdicts
 from .errors import Duplicate, NotFound
@@ -258,7 +258,7 @@ def compound_read(session: Session, compound: Compound, *, actor: Optional[Actor
         exact_mass=None if hide else compound.exact_mass,
         side_chains=[] if hide else compound.side_chains,
         side_chain_summary="" if hide else compound.side_chain_summary,
-        scaffold=scaffold_code,
+        scaffold=None if hide else scaffold_code,
         notes="" if hide else compound.notes,
         embargoed=compound.embargoed,
         archived=compound.archived,
@@ -276,8 +276,11 @@ def batch_read(session: Session, batch: Batch) -> BatchRead:
     return BatchRead(**batch.model_dump(exclude={"id", "compound_id", "created_by"}), compound=compound.code, measurements=n)
 
 
-def scaffold_read(session: Session, sc: Scaffold) -> ScaffoldRead:
-    n = session.exec(select(func.count()).select_from(Compound).where(Compound.scaffold_id == sc.id)).one()
+def scaffold_read(session: Session, sc: Scaffold, *, actor: Optional[Actor] = None) -> ScaffoldRead:
+    """A scaffold; its compound count leaves out the embargoed compounds ``actor`` may not see (which
+    scaffold an embargoed compound is built on is part of its structure)."""
+    n = session.exec(select(func.count()).select_from(Compound).where(
+        Compound.scaffold_id == sc.id, structure_visible(actor))).one()
     return ScaffoldRead(**sc.model_dump(exclude={"id", "created_at"}), compounds=n)
 
 

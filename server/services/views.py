@@ -106,10 +106,12 @@ def _start_of(d: date) -> datetime:
     return datetime.combine(d, time.min, tzinfo=timezone.utc)
 
 
-def _text(value: str, _: Mapping[str, Any]) -> ColumnElement:
+def _text(value: str, _: Mapping[str, Any], actor: Optional[Actor] = None) -> ColumnElement:
+    """Code, label or notes contain ``value``; label and notes of embargoed rows only for who may see them."""
     pattern = f"%{_escape_like(value)}%"
-    return or_(Compound.code.ilike(pattern, escape="\\"), Compound.label.ilike(pattern, escape="\\"),
-               Compound.notes.ilike(pattern, escape="\\"))
+    return access.code_or_structure_condition(
+        actor, Compound.code.ilike(pattern, escape="\\"),
+        or_(Compound.label.ilike(pattern, escape="\\"), Compound.notes.ilike(pattern, escape="\\")))
 
 
 FILTERS: tuple[Filter, ...] = (
@@ -142,6 +144,12 @@ FILTERS: tuple[Filter, ...] = (
 )
 FILTER_BY_NAME = {f.name: f for f in FILTERS}
 
+# Filters whose answer depends on a compound's structure (its scaffold, side chains, or a value computed
+# from it): for a caller who may not see embargoed structures they never match an embargoed row
+# (``access.structure_condition``). ``q`` is handled by :func:`_text` (the code stays searchable).
+STRUCTURAL_FILTERS = frozenset({"scaffold", "bridge", "chain_kind", "c_min", "c_max", "branched", "main_kind",
+                                "main_c", "main_branched"})
+
 # Sortable columns: query-string name -> (label, unit, SQL expression)
 SORTS: dict[str, tuple[str, str, Any]] = {
     "code": ("Code", "", Compound.number),
@@ -160,6 +168,10 @@ SORTS: dict[str, tuple[str, str, Any]] = {
     "created": ("Registered", "", Compound.created_at),
     "activity": ("Last activity", "", CompoundStats.last_activity_at),
 }
+# Sorts over structure-derived values (label included: labels spell out structures): for a caller who
+# may not see embargoed structures, embargoed rows sort as if the value were missing
+# (``access.structure_value``).
+STRUCTURAL_SORTS = frozenset({"label", "mw", "scaffold", "carbons", "barrier_computed"})
 
 
 @dataclass(frozen=True)
@@ -270,16 +282,22 @@ class ViewResult:
         return max(1, -(-self.total // self.query.size))
 
 
-def _conditions(q: ViewQuery) -> list[ColumnElement]:
+def _conditions(q: ViewQuery, actor: Optional[Actor] = None) -> list[ColumnElement]:
     conds: list[ColumnElement] = []
     if not q.values.get("archived"):
         conds.append(Compound.archived == False)  # noqa: E712 - SQL expression
     for f in FILTERS:
         if f.name in q.values and f.condition is not None:
-            conds.append(f.condition(q.values[f.name], q.values))
+            if f.name == "q":
+                conds.append(_text(q.values["q"], q.values, actor))
+                continue
+            cond = f.condition(q.values[f.name], q.values)
+            structural = f.name in STRUCTURAL_FILTERS or (
+                f.name in ("barrier_min", "barrier_max") and q.values.get("barrier_source") == "computed")
+            conds.append(access.structure_condition(actor, cond) if structural else cond)
     chain = _chain_exists(q.values)
     if chain is not None:
-        conds.append(chain)
+        conds.append(access.structure_condition(actor, chain))
     return conds
 
 
@@ -293,7 +311,7 @@ def query_view(session: Session, q: ViewQuery, *, actor: Optional[Actor], paged:
     (plots and maps of structure-derived properties).
     """
     similarity: dict[int, float] = {}
-    conds = _conditions(q)
+    conds = _conditions(q, actor)
     if q.substructure or q.similar:
         from . import search
 
@@ -315,6 +333,8 @@ def query_view(session: Session, q: ViewQuery, *, actor: Optional[Actor], paged:
              .where(*conds))
     total = session.exec(count).one()
     expr = SORTS[q.sort][2]
+    if q.sort in STRUCTURAL_SORTS:
+        expr = access.structure_value(actor, expr)
     order = [expr.desc().nulls_last() if q.descending else expr.asc().nulls_last(), Compound.number.desc()]
     if q.similar and q.sort == "code" and q.descending:
         order = [Compound.number.desc()]  # re-ordered by similarity below
@@ -355,14 +375,19 @@ EXPORT_COLUMNS: tuple[tuple[str, Callable[[ViewRow], Any]], ...] = (
 )
 
 
+# What an export leaves empty for an embargoed row and a caller who may not see it: the structure and
+# everything derived from it (scaffold, side chains, masses, xtb results computed from the structure).
+EXPORT_STRUCTURAL_COLUMNS = ("label", "scaffold", "smiles", "inchikey", "formula", "molar mass (g/mol)",
+                             "side chains", "chain carbons", "barrier computed (kcal/mol)", "bowl depth (A)")
+
+
 def export_frame(result: ViewResult, *, actor: Optional[Actor]) -> pd.DataFrame:
     """The rows as a table; what ``actor`` may not see of an embargoed compound is left empty."""
     records = []
     for r in result.rows:
         rec = {name: get(r) for name, get in EXPORT_COLUMNS}
         if not access.may_see_structure(actor, r.compound):
-            rec.update({"label": None, "smiles": None, "inchikey": None, "formula": None,
-                        "molar mass (g/mol)": None, "side chains": None})
+            rec.update({name: None for name in EXPORT_STRUCTURAL_COLUMNS})
         records.append(rec)
     return pd.DataFrame.from_records(records, columns=[name for name, _ in EXPORT_COLUMNS])
 

@@ -55,7 +55,8 @@ async def create_token(request: Request, session: SessionDep, actor: PageAdmin):
     try:
         token, secret = accounts.create_token(session=session, name=str(form.get("name", "")),
                                               scope=str(form.get("scope", "")), kinds=kinds, actor=actor.label,
-                                              expires_in=accounts.parse_lifetime(str(form.get("expires", ""))))
+                                              expires_in=accounts.parse_lifetime(str(form.get("expires", ""))),
+                                              sees_embargoed=form.get("sees_embargoed") == "on")
     except InputError as exc:
         return _page(request, session, actor, error=str(exc), status_code=422)
     # Rendered directly (no redirect) so the secret is shown once and never stored or put in a URL.

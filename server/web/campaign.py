@@ -83,14 +83,16 @@ def calibration_page(request: Request, session: SessionDep, actor: PageActor):
 # --- computed estimates and the queue ----------------------------------------------------------
 
 
-def _job_context(session, job) -> dict:  # noqa: ANN001
-    return {"job": queue.job_read(job, session=session)}
+def _job_context(session, job, actor) -> dict:  # noqa: ANN001
+    """A job's panel as ``actor`` may see it (``access.job_as_seen``: nothing computed from an
+    embargoed structure for a caller who may not see it)."""
+    return {"job": access.job_as_seen(queue.job_read(job, session=session), access.withheld_codes(session, actor))}
 
 
 @router.get("/jobs/{job_id}/panel", response_class=HTMLResponse)
 def job_panel(job_id: RowId, request: Request, session: SessionDep, actor: PageActor):
     """The job's status; while queued or running it polls itself, so the bar advances without a reload."""
-    return render(request, "partials/job.html", _job_context(session, queue.get_job(session, job_id)), actor=actor)
+    return render(request, "partials/job.html", _job_context(session, queue.get_job(session, job_id), actor), actor=actor)
 
 
 @router.post("/jobs/{job_id}/cancel", response_class=HTMLResponse)
@@ -99,13 +101,13 @@ async def cancel_job(job_id: RowId, request: Request, session: SessionDep, actor
         job = queue.cancel(session, job_id, actor=actor.label)
     except InputError as exc:
         return render(request, "pages/error.html", {"status": 422, "detail": str(exc)}, status_code=422, actor=actor)
-    return fragment_or_redirect(request, "partials/job.html", _job_context(session, job), "/queue", actor=actor)
+    return fragment_or_redirect(request, "partials/job.html", _job_context(session, job, actor), "/queue", actor=actor)
 
 
 @router.get("/queue", response_class=HTMLResponse)
 def queue_page(request: Request, session: SessionDep, actor: PageActor):
     return render(request, "pages/queue.html",
-                  {"summary": estimates.queue_summary(session), "scaffolds": registry.list_scaffolds(session),
+                  {"summary": estimates.queue_summary(session, actor), "scaffolds": registry.list_scaffolds(session),
                    "error": None},
                   partial="partials/queue_body.html", actor=actor)
 
@@ -126,6 +128,6 @@ async def queue_many(request: Request, session: SessionDep, actor: PageWriter):
                                   truncate_side_chains=form.get("full_chains") != "on", actor=actor.label)
     except (InputError, NotFound) as exc:
         return render(request, "pages/queue.html",
-                      {"summary": estimates.queue_summary(session), "scaffolds": registry.list_scaffolds(session),
+                      {"summary": estimates.queue_summary(session, actor), "scaffolds": registry.list_scaffolds(session),
                        "error": str(exc)}, status_code=422, actor=actor)
     return redirect("/queue", request)

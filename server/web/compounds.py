@@ -161,14 +161,19 @@ def compound_page(code: str, request: Request, session: SessionDep, actor: PageA
 async def compound_edit(code: str, request: Request, session: SessionDep, actor: PageWriter):
     form = await request.form()
     compound = registry.get_compound(session, code)
-    # An empty scaffold field clears the scaffold: the service does it, so the audit entry's
-    # "before" still shows the scaffold that was there.
-    data = CompoundUpdate(
-        label=str(form.get("label", compound.label)),
-        notes=str(form.get("notes", compound.notes)),
-        scaffold=str(form.get("scaffold", "")) or None,
-        embargoed=form.get("embargoed") == "on",
-    )
+    # Absent fields mean "unchanged" (a partial post must not lift the embargo or clear the scaffold).
+    # A present but empty scaffold field clears the scaffold: the service does it, so the audit entry's
+    # "before" still shows the scaffold that was there. An unticked checkbox sends nothing, so the
+    # form carries ``embargoed_field`` to say the box was shown; without it the embargo stays as it is.
+    changes: dict = {}
+    for name in ("label", "notes"):
+        if name in form:
+            changes[name] = str(form.get(name))
+    if "scaffold" in form:
+        changes["scaffold"] = str(form.get("scaffold")) or None
+    if "embargoed_field" in form or "embargoed" in form:
+        changes["embargoed"] = form.get("embargoed") in ("on", "true", "1")
+    data = CompoundUpdate(**changes)
     registry.update_compound(session=session, compound=compound, data=data, actor=actor.label)
     return redirect(f"/compounds/{quote(code)}", request)
 

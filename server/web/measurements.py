@@ -103,13 +103,17 @@ REVISE_FIELDS = (("area", "Electrode area", "area_cm2", "cm^2"), ("thickness", "
 
 
 def _measurement_page(request: Request, session, m, actor, *, revise_error: Optional[str] = None, status_code=200):
-    info = measurements.measurement_read(session, m)
+    info = measurements.measurement_as_seen(session, m, actor)
     kind = KINDS.get(m.kind)
-    try:
-        fig = measurements.measurement_figure(session, m)
-        fig_error = None
-    except InputError as exc:
-        fig, fig_error = None, str(exc)
+    if not measurements.may_download_raw(session, m, actor):
+        # A receipt (embargoed compound, caller who may not see it): no figure either, it draws the results.
+        fig, fig_error = None, measurements.RECEIPT_WITHHELD
+    else:
+        try:
+            fig = measurements.measurement_figure(session, m)
+            fig_error = None
+        except InputError as exc:
+            fig, fig_error = None, str(exc)
     return render(request, "pages/measurement.html",
                   {"m": info, "kind": kind, "figure": fig, "figure_error": fig_error, "revise_error": revise_error,
                    "revise_fields": REVISE_FIELDS, "examples": CONDITION_EXAMPLES}, actor=actor,

@@ -18,7 +18,7 @@ router = APIRouter(include_in_schema=False)
 
 @router.get("/scaffolds", response_class=HTMLResponse)
 def scaffold_list(request: Request, session: SessionDep, actor: PageActor):
-    items = [registry.scaffold_read(session, s) for s in registry.list_scaffolds(session)]
+    items = [registry.scaffold_read(session, s, actor=actor) for s in registry.list_scaffolds(session)]
     return render(request, "pages/scaffolds.html", {"items": items, "form": {}, "error": None}, actor=actor)
 
 
@@ -30,7 +30,7 @@ async def scaffold_create(request: Request, session: SessionDep, actor: PageWrit
         registry.create_scaffold(session=session, data=ScaffoldCreate(**form), actor=actor.label)
     except (InputError, Duplicate, ValidationError) as exc:
         msg = exc.errors()[0]["msg"] if isinstance(exc, ValidationError) else str(exc)
-        items = [registry.scaffold_read(session, s) for s in registry.list_scaffolds(session)]
+        items = [registry.scaffold_read(session, s, actor=actor) for s in registry.list_scaffolds(session)]
         return render(request, "pages/scaffolds.html", {"items": items, "form": form, "error": msg},
                       status_code=422, actor=actor)
     return redirect("/scaffolds", request)

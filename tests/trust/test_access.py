@@ -80,8 +80,9 @@ def world(app, client, session):
                    "username": "spare-user", "token_id": spare.id},
         "code": code,
         "batch": batch,
-        "tokens": {scope: bearer(make_token(session, scope=scope, name=f"{scope}-pc")) for scope in
-                   ("read", "upload", "write")},
+        # The read token is granted the embargo (it is the positive control of the embargo tests).
+        "tokens": {scope: bearer(make_token(session, scope=scope, name=f"{scope}-pc", sees_embargoed=scope == "read"))
+                   for scope in ("read", "upload", "write")},
         "dsc_only": bearer(make_token(session, scope="upload", name="dsc-pc", kinds=["dsc"])),
         "sessions": sessions,
     }
@@ -201,7 +202,7 @@ def embargoed(client, session):
 def test_upload_token_cannot_read_embargoed_structures(client, session, embargoed):
     code = embargoed["code"]
     up = bearer(make_token(session, scope="upload", name="instrument-pc"))
-    reader = bearer(make_token(session, scope="read", name="reader-pc"))
+    reader = bearer(make_token(session, scope="read", name="reader-pc", sees_embargoed=True))
 
     body = client.get(f"/api/v1/compounds/{code}", headers=up).json()
     assert {k: body[k] for k in ("smiles", "inchi", "inchikey", "formula")} == dict.fromkeys(

@@ -24,6 +24,7 @@ class TokenIn(BaseModel):
     name: str = Field(min_length=1, max_length=120, description="e.g. the instrument PC it belongs to")
     scope: str = Field(description="upload, write or read")
     kinds: Optional[list[str]] = Field(None, description="upload tokens: the measurement kinds allowed")
+    sees_embargoed: bool = Field(False, description="read tokens: may see embargoed compounds")
     expires: Optional[str] = Field(None, max_length=20,
                                    description="lifetime such as 90d, 12h or 8w; empty or never: no expiry")
 
@@ -62,7 +63,8 @@ def create_token(data: TokenIn, session: SessionDep, actor: Admin) -> dict[str, 
         if k not in KINDS:
             raise InputError(f"unknown kind {k!r}; use {', '.join(KINDS)}", field="kinds")
     token, secret = accounts.create_token(session=session, name=data.name, scope=data.scope, kinds=data.kinds,
-                                          expires_in=accounts.parse_lifetime(data.expires), actor=actor.label)
+                                          expires_in=accounts.parse_lifetime(data.expires), actor=actor.label,
+                                          sees_embargoed=data.sees_embargoed)
     return {**accounts.token_read(token), "token": secret}
 
 

@@ -26,8 +26,11 @@ class BulkEstimateIn(EstimateIn):
     scaffold: Optional[str] = Field(None, description="every live compound of this scaffold")
 
 
-def _visible_job(job: dict[str, Any], actor) -> dict[str, Any]:  # noqa: ANN001
-    """Drop the truncated structure from results for callers who may not see embargoed structures."""
+def _visible_job(job: dict[str, Any], actor, withheld: frozenset[str]) -> dict[str, Any]:  # noqa: ANN001
+    """A job as ``actor`` may see it: nothing computed from an embargoed structure it may not see
+    (``access.job_as_seen``), and for callers who may not see embargoed structures no ``smiles_used``
+    at all (the truncated structure of any compound), as before."""
+    job = access.job_as_seen(job, withheld)
     if not access.sees_embargoed(actor) and isinstance(job.get("result"), dict):
         job = {**job, "result": {k: v for k, v in job["result"].items() if k != "smiles_used"}}
     return accounts.hide_people(job, sees_people=actor.sees_people)
@@ -63,18 +66,24 @@ def list_jobs(session: SessionDep, actor: Reader, state: Optional[str] = None, k
               offset: Offset = 0) -> dict[str, Any]:
     cid = registry.get_compound(session, compound).id if compound else None
     jobs, total = queue.list_jobs(session, state=state, kind=kind, compound_id=cid, limit=limit, offset=offset)
-    return {"items": [_visible_job(j, actor) for j in queue.jobs_read(session, jobs)], "total": total}
+    withheld = access.withheld_codes(session, actor)
+    return {"items": [_visible_job(j, actor, withheld) for j in queue.jobs_read(session, jobs)], "total": total}
 
 
 @router.get("/jobs/summary", responses=AUTH_ERRORS)
 def jobs_summary(session: SessionDep, actor: Reader) -> dict[str, Any]:
-    return accounts.hide_people(estimates.queue_summary(session), sees_people=actor.sees_people)
+    summary = estimates.queue_summary(session, actor)
+    if not access.sees_embargoed(actor):
+        for part in ("running", "queued", "recent"):
+            summary[part] = [_visible_job(j, actor, frozenset()) for j in summary[part]]
+    return accounts.hide_people(summary, sees_people=actor.sees_people)
 
 
 @router.get("/jobs/{job_id}", responses={**AUTH_ERRORS, **NOT_FOUND})
 def get_job(job_id: RowId, session: SessionDep, actor: Reader) -> dict[str, Any]:
     """`state` is queued, running, done, failed or cancelled; `result` holds the estimate keys when done."""
-    return _visible_job(queue.job_read(queue.get_job(session, job_id), session=session), actor)
+    return _visible_job(queue.job_read(queue.get_job(session, job_id), session=session), actor,
+                        access.withheld_codes(session, actor))
 
 
 @router.post("/jobs/{job_id}/cancel", responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS})

@@ -12,6 +12,7 @@ from ...deps import Offset, Reader, RowId, SessionDep, SettingsDep, Uploader, Wr
 from ...kinds import KINDS
 from ...models import RawFile
 from ...services import accounts, measurements, registry
+from ...services.errors import Forbidden
 from .responses import ARCHIVED, AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND, ErrorOut
 
 router = APIRouter(tags=["measurements"])
@@ -95,7 +96,7 @@ def upload(
         session=session, batch=batch, kind_name=kind, raw=raw, filename=file.filename, form=form,
         actor=actor.label, allowed_kinds=actor.kinds if actor.scope == "upload" else None,
     )
-    body = accounts.hide_people(measurements.measurement_read(session, m), sees_people=actor.sees_people)
+    body = accounts.hide_people(measurements.measurement_as_seen(session, m, actor), sees_people=actor.sees_people)
     return JSONResponse(body, status_code=201 if created else 200)
 
 
@@ -136,14 +137,15 @@ def list_measurements(
     """Live measurements, newest first; superseded ones only with `include_superseded=true`."""
     rows, total = measurements.list_measurements(session, batch=batch, compound=compound, kind=kind, sample=sample,
                                                  include_superseded=include_superseded, limit=limit, offset=offset)
-    items = [measurements.measurement_read(session, m) for m in rows]
+    items = [measurements.measurement_as_seen(session, m, actor) for m in rows]
     return MeasurementPage(items=accounts.hide_people(items, sees_people=actor.sees_people), total=total)
 
 
 @router.get("/measurements/{measurement_id}", response_model=MeasurementOut, responses={**AUTH_ERRORS, **NOT_FOUND})
 def get_measurement(measurement_id: RowId, session: SessionDep, actor: Reader):
-    return accounts.hide_people(measurements.measurement_read(session, measurements.get_measurement(session, measurement_id)),
-                                sees_people=actor.sees_people)
+    return accounts.hide_people(
+        measurements.measurement_as_seen(session, measurements.get_measurement(session, measurement_id), actor),
+        sees_people=actor.sees_people)
 
 
 @router.get("/measurements/{measurement_id}/raw", response_class=Response,
@@ -151,8 +153,11 @@ def get_measurement(measurement_id: RowId, session: SessionDep, actor: Reader):
                        200: {"content": {"application/octet-stream": {}},
                              "description": "the stored bytes; `X-Content-SHA256` carries their checksum"}})
 def get_raw(measurement_id: RowId, session: SessionDep, actor: Reader) -> Response:
-    """The stored bytes, exactly as uploaded; the checksum travels in the headers."""
+    """The stored bytes, exactly as uploaded; the checksum travels in the headers. Raw files of an
+    embargoed compound's measurements are for callers who may see its structure (403 otherwise)."""
     m = measurements.get_measurement(session, measurement_id)
+    if not measurements.may_download_raw(session, m, actor):
+        raise Forbidden(f"{actor.label} may not download raw files of an embargoed compound")
     raw = session.get(RawFile, m.raw_file_id)
     name = raw.filename or f"measurement-{m.id}.txt"
     safe = "".join(ch for ch in name if ch.isalnum() or ch in "._-") or f"measurement-{m.id}"

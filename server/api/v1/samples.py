@@ -102,7 +102,7 @@ def upload_to_sample(
         session=session, batch=batch, sample=sample, kind_name=kind, raw=raw, filename=file.filename, form=form,
         actor=actor.label, allowed_kinds=actor.kinds if actor.scope == "upload" else None,
     )
-    return JSONResponse(measurements.measurement_read(session, m), status_code=201 if created else 200)
+    return JSONResponse(measurements.measurement_as_seen(session, m, actor), status_code=201 if created else 200)
 
 
 @router.get("/samples/{sample_code}/series", response_model=list[SeriesOut], responses={**AUTH_ERRORS, **NOT_FOUND})

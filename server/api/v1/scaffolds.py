@@ -15,7 +15,7 @@ router = APIRouter(tags=["scaffolds"])
 
 @router.get("/scaffolds", response_model=list[ScaffoldRead], responses=AUTH_ERRORS)
 def list_scaffolds(session: SessionDep, actor: Reader) -> list[ScaffoldRead]:
-    return [registry.scaffold_read(session, s) for s in session.exec(select(Scaffold).order_by(Scaffold.code)).all()]
+    return [registry.scaffold_read(session, s, actor=actor) for s in session.exec(select(Scaffold).order_by(Scaffold.code)).all()]
 
 
 @router.post(
@@ -23,4 +23,4 @@ def list_scaffolds(session: SessionDep, actor: Reader) -> list[ScaffoldRead]:
 )
 def create_scaffold(data: ScaffoldCreate, session: SessionDep, actor: Writer) -> ScaffoldRead:
     sc = registry.create_scaffold(session=session, data=data, actor=actor.label)
-    return registry.scaffold_read(session, sc)
+    return registry.scaffold_read(session, sc, actor=actor)

@@ -1,7 +1,7 @@
 """Read tokens may be granted to see embargoed compounds (off by default)
 
 Revision ID: 0014
-Revises: 0007
+Revises: 0013
 Create Date: 2026-12-02 04:55:00
 """
 from typing import Sequence, Union
@@ -11,7 +11,7 @@ import sqlalchemy as sa
 
 
 revision: str = '0014'
-down_revision: Union[str, None] = '0007'
+down_revision: Union[str, None] = '0013'
 branch_labels: Union[str, Sequence[str], None] = None
 depends_on: Union[str, Sequence[str], None] = None
 

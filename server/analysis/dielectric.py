@@ -33,7 +33,7 @@ import pandas as pd
 from scipy.optimize import curve_fit
 
 from server.analysis.results import Flag, Result
-from server.analysis.constants import EPS0_F_M, KB_J_K, R_J_MOLK
+from server.analysis.constants import EPS0_F_M, R_J_MOLK
 from server.errors import AnalysisError
 
 METHOD = (

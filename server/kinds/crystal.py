@@ -21,7 +21,8 @@ def _analyse(raw: bytes, c, ctx):
 
 
 def _evidence(results: dict[str, Any], temperature_K: Optional[float]) -> Evidence:
-    return Evidence(results.get("temperature_K") or temperature_K, {"space_group": results.get("space_group")})
+    return Evidence(results.get("temperature_K") or temperature_K,
+                    {"space_group": results.get("space_group"), "bowl_depth_A": results.get("bowl_depth_A")})
 
 
 def _stats(ms: Sequence[Any]) -> dict[str, Any]:

@@ -41,9 +41,14 @@ def _figure(parsed, result):
 
 
 def _evidence(results: dict[str, Any], temperature_K: Optional[float]) -> Evidence:
-    peaks = [p["peak_K"] for p in results.get("peaks") or []
-             if p.get("peak_K") is not None and not looks_like_melting(p)]
-    return Evidence(temperature_K, {"peak_K": peaks})
+    """Every peak (melting included: it is a phase boundary) with its scan direction and entropy, and
+    the temperature range of each heating or cooling segment, for the phase model."""
+    peaks = [{"peak_K": p["peak_K"], "onset_K": p.get("onset_K"), "ds_J_molK": p.get("ds_J_molK"),
+              "scan": p.get("segment_direction") or "heating", "endothermic": p.get("direction") != "exo"}
+             for p in results.get("peaks") or [] if p.get("peak_K") is not None]
+    segments = [{"t_from_K": s["t_start_K"], "t_to_K": s["t_end_K"], "scan": s.get("direction", "")}
+                for s in results.get("segments") or [] if s.get("t_start_K") is not None]
+    return Evidence(temperature_K, {"peaks": peaks, "segments": segments})
 
 
 def _stats(ms: Sequence[Any]) -> dict[str, Any]:

@@ -11,7 +11,7 @@ from ..analysis.results import Flag, jsonable
 from ..errors import InputError
 from ..kinds import KINDS
 from ..verdict_codes import LABELS, RETIRED, effective
-from ..models import Batch, Compound, Measurement, utcnow
+from ..models import Batch, Compound, CompoundSideChain, Measurement, utcnow
 from . import audit
 
 
@@ -36,6 +36,35 @@ def evidence_for(session: Session, compound: Compound) -> list[rules.Evidence]:
     return out
 
 
+def chain_ch2(session: Session, compound: Compound) -> int | None:
+    """CH2 groups in the compound's alkyl, alkoxy and alkylthio side chains: (carbons - 1) per chain
+    (one terminal CH3; a branched chain counts the same, an approximation); None without such chains."""
+    rows = session.exec(select(CompoundSideChain).where(CompoundSideChain.compound_id == compound.id,
+                                                        CompoundSideChain.kind != "other")).all()
+    n = sum(max(r.carbons - 1, 0) * r.count for r in rows)
+    return n or None
+
+
+def measured_rates(session: Session, compound: Compound) -> list[dict[str, Any]]:
+    """Eyring dH and dS of the compound's live NMR rate tables, in kJ/mol and J/(mol K)."""
+    rows = session.exec(
+        select(Measurement).join(Batch, Batch.id == Measurement.batch_id)
+        .where(Batch.compound_id == compound.id, Measurement.archived == False,  # noqa: E712
+               Measurement.kind == "nmr_rates").order_by(Measurement.id)
+    ).all()
+    out = []
+    for m in rows:
+        r = m.results or {}
+        if r.get("dh_kcal_mol") is not None and r.get("ds_cal_molK") is not None:
+            out.append({"measurement_id": m.id, "dh_kJ_mol": r["dh_kcal_mol"] * 4.184,  # thermochemical calorie
+                        "ds_J_molK": r["ds_cal_molK"] * 4.184})
+    return out
+
+
+def decide_for(session: Session, compound: Compound, evidence: list[rules.Evidence]) -> rules.CompoundVerdict:
+    return rules.decide(evidence, chain_ch2=chain_ch2(session, compound), rates=measured_rates(session, compound))
+
+
 def batch_verdicts(session: Session, compound: Compound) -> dict[int, rules.CompoundVerdict]:
     """The verdict each batch's own evidence supports (computed on the fly, not stored)."""
     by_batch: dict[int, list[rules.Evidence]] = {}
@@ -43,12 +72,12 @@ def batch_verdicts(session: Session, compound: Compound) -> dict[int, rules.Comp
         select(Measurement).join(Batch, Batch.id == Measurement.batch_id).where(Batch.compound_id == compound.id))}
     for ev in evidence_for(session, compound):
         by_batch.setdefault(ids[ev.measurement_id], []).append(ev)
-    return {bid: rules.decide(evs) for bid, evs in by_batch.items()}
+    return {bid: decide_for(session, compound, evs) for bid, evs in by_batch.items()}
 
 
 def recompute(session: Session, compound: Compound) -> rules.CompoundVerdict:
     """Decide again from the current evidence and store it on the compound (the caller commits)."""
-    decision = rules.decide(evidence_for(session, compound))
+    decision = decide_for(session, compound, evidence_for(session, compound))
     compound.verdict_code = decision.code
     compound.verdict = jsonable(decision.to_dict())
     compound.verdict_at = utcnow()
@@ -90,7 +119,9 @@ def set_override(*, session: Session, compound: Compound, code: Optional[str], r
 
 def verdict_read(compound: Compound) -> dict[str, Any]:
     computed = compound.verdict or {"code": compound.verdict_code, "label": LABELS.get(compound.verdict_code, "")}
-    out: dict[str, Any] = {"computed": computed, "override": None}
+    # criteria and phases are shown at the top level of verdict_evidence (issue 15 API keys)
+    out: dict[str, Any] = {"computed": computed, "override": None,
+                           "criteria": computed.get("criteria") or [], "phases": computed.get("phases") or []}
     if compound.override_code:
         out["override"] = {"code": compound.override_code, "label": LABELS.get(compound.override_code, ""),
                            "reason": compound.override_reason, "by": compound.override_by,

@@ -324,3 +324,15 @@ def test_to_dict_json_ready():
     assert d["code"] == "polar_switching_supported" and d["version"] == VERSION
     assert d["switching_temperatures_K"] == [160.0, 160.0]
     assert d["used"][0] == {"measurement_id": 1, "kind": "crystal", "role": "polar_phase", "temperature_K": 150.0}
+
+
+def test_quality_flags_lower_a_structures_weight_but_keep_it():
+    # Two polar structures in the scanned switching phase: the clean one is cited first; a structure with
+    # quality flags still counts (flags lower the weight, never delete), and says so.
+    flagged = crystal(1, "polar", 300.0, "P2_1", flags=("density_implausible", "column_too_long"))
+    clean = crystal(2, "polar", 305.0, "Pna2_1")
+    v = decide([flagged, clean, pund(3, "switching", 300.0), dsc(4, [])])
+    assert v.code == "polar_switching_supported" and "Pna2_1" in v.reason
+    v1 = decide([flagged, pund(3, "switching", 300.0), dsc(4, [])])
+    assert v1.code == "polar_switching_supported"
+    assert "weight lowered by density implausible, column too long" in v1.reason

@@ -451,19 +451,3 @@ def continuity(model: PhaseModel, t1: float | None, t2: float | None) -> Continu
     gaps = [g for g in gaps if g[1] > g[0]] or [(lo, hi)]
     g = max(gaps, key=lambda g: g[1] - g[0])
     return Continuity(None, (), (g[0], g[1]))
-
-
-def orientational_states_text(ds_J_molK: float | None, n_max: int = 12) -> str:
-    """The N of dS = R ln N as an orientational count, only where plausible (N <= ``n_max``).
-
-    An order-disorder transition of a unit with N equally likely orientations has dS = R ln N (Boltzmann;
-    Lines and Glass 1977, ch. 8). A bowl has few orientations, so a larger N is not such a count.
-    """
-    if ds_J_molK is None:
-        return ""
-    from scipy.constants import R  # CODATA 2018
-
-    n = math.exp(abs(ds_J_molK) / R)
-    if n <= n_max:
-        return f"N = {n:.1f} in dS = R ln N (orientational states)"
-    return f"|dS| = {abs(ds_J_molK):.0f} J/(mol K) is too large for an orientational count (N would be {n:.0f} > {n_max})"

@@ -8,15 +8,13 @@ from typing import Any, Optional, Sequence
 from scipy.constants import R as R_J_MOLK  # CODATA 2018
 
 from ..analysis import dsc
+from ..analysis.phases import MELTING_DS_J_MOLK
 from ..plots.dsc import dsc_figure
 from ..synth.dsc import dsc_trace
 from .base import EXAMPLE_SMILES, Evidence, Example, Kind, Need, ResultKey, example_csv, rng_for
 
-# Walden's rule: entropies of fusion of rigid organic molecules are about 56 J/(mol K) (P. Walden,
-# Z. Elektrochem. 14, 713 (1908); memory), while order-disorder solid-solid transitions of a dipole
-# with a few orientations have R ln 2 to R ln 4, i.e. 6-12 J/(mol K). A DSC peak above 40 J/(mol K) is
-# taken as melting (common practice) and is not evidence of a ferroelectric phase transition.
-MELTING_DS_J_MOLK = 40.0
+# A DSC peak above MELTING_DS_J_MOLK is taken as melting (rule and sources in server.analysis.phases).
+
 
 # The example: 4.79 mg of the example bowl (C27H24O6, 444.48 g/mol), an order-disorder peak at
 # 432 K with dS = R ln 2, and melting at 538 K with dS = 75 J/(mol K), heated at 10 K/min.
@@ -101,7 +99,7 @@ KIND = Kind(
         ResultKey("dh_J_g", "ΔH", "J/g", 3),
         ResultKey("dh_kJ_mol", "ΔH", "kJ/mol", 3),
         ResultKey("ds_J_molK", "ΔS", "J/(mol K)", 3),
-        ResultKey("n_states", "Boltzmann states N = exp(|ΔS|/R)", "", 3),
+        ResultKey("n_states", "N in ΔS = R ln N (orientational states)", "", 3),
         ResultKey("index", "scan"),
         ResultKey("t_start_K", "from", "K", 4),
         ResultKey("t_end_K", "to", "K", 4),

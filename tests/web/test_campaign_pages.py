@@ -98,3 +98,15 @@ def test_timeline(client, session, data):
     actions = [li.find("strong").text for li in page.select("ol.timeline li")]
     assert actions[-1] == "compound create"
     assert "measurement create" in actions and "barrier create" in actions and "batch create" in actions
+
+
+def test_compound_page_lists_criteria_and_qualifier(client, session, data):
+    # Issue 15: each criterion shown met / unmet / untested; a loop alone leaves PUND switching untested
+    # (Scott 2008), and loops at one temperature carry that qualifier.
+    login_as(client, session)
+    _, made = data
+    page = soup(client.get(f"/compounds/{made[2]}").text)
+    rows = {r.find_all("td")[0].text: r.find_all("td")[1].text for r in page.select("table.criteria tbody tr")}
+    assert rows["switching shown by PUND"] == "untested"
+    assert rows["saturated loop"] == "met"
+    assert "Tested at one temperature only." in page.select_one("#verdict").text

@@ -19,7 +19,8 @@ Transition classes (the rule is stated with each transition), from the heating-p
 
 * ``decomposition``: a heating peak with no cooling partner although a cooling scan covered its
   temperature, and exothermic on heating or above an isotropisation (irreversible);
-* ``chain_melting``: chain melting or crystal -> mesophase: ``|dS|`` per chain CH2 within
+* ``chain_melting``: chain melting or crystal -> mesophase: ``|dS|`` at most :data:`MELTING_DS_J_MOLK`
+  and, per chain CH2, within
   :data:`CHAIN_MELTING_DS_PER_CH2_J_MOLK` (common practice: the fusion entropy of polyethylene,
   about 9.9 J mol-1 K-1 per CH2, B. Wunderlich, *Macromolecular Physics* Vol. 3, Academic Press 1980,
   is the upper end; partial chain melting in columnar mesogens gives about half; values from memory),
@@ -363,12 +364,12 @@ def _classify(raw: list[dict[str, Any]], chain_ch2: int | None) -> list[PhaseTra
                             "covered it, exothermic on heating or above the isotropisation: irreversible"))
         elif ds is None:
             classes.append(("unclassified", "no DSC entropy: seen by " + ", ".join(sorted(e["sources"]))))
-        elif per is not None and lo_ch2 <= per <= hi_ch2:
-            classes.append(("chain_melting", f"|dS| = {ds:.1f} J/(mol K) is {per:.1f} J/(mol K) per chain CH2, "
-                            f"within {lo_ch2:g}-{hi_ch2:g} (chain melting, common practice)"))
         elif ds > MELTING_DS_J_MOLK:
             classes.append(("isotropisation", f"|dS| = {ds:.1f} J/(mol K) above {MELTING_DS_J_MOLK:g}: melting "
                             "(common practice, Walden's rule)"))
+        elif per is not None and lo_ch2 <= per <= hi_ch2:
+            classes.append(("chain_melting", f"|dS| = {ds:.1f} J/(mol K) is {per:.1f} J/(mol K) per chain CH2, "
+                            f"within {lo_ch2:g}-{hi_ch2:g} (chain melting, common practice)"))
         elif any(c == "chain_melting" for c, _ in classes) and e["reversible"]:
             classes.append(("isotropisation", f"reversible peak (|dS| = {ds:.1f} J/(mol K)) above a chain-melting "
                             "transition: clearing of the mesophase"))

@@ -107,6 +107,9 @@ class Conflict(Result):
     message: str
     measurement_ids: tuple[int, ...]
     suggestion: str = ""
+    #: False for a consistency flag that a known mechanism can explain (listed for review; the verdict
+    #: code stays): a measured inversion rate slower than the drive while switching is seen.
+    blocking: bool = True
 
 
 @dataclass(frozen=True)
@@ -429,13 +432,14 @@ def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
             drive = s.details.get("frequency_Hz") if s.kind == "pe_loop" else (
                 1.0 / s.details["pulse_width_s"] if s.details.get("pulse_width_s") else None)
             if k is not None and drive and k < drive:
-                what = f"{drive:g} Hz drive" if s.kind == "pe_loop" else f"{s.details['pulse_width_s'] * 1e3:g} ms pulses"
+                what = f"{drive:.3g} Hz drive" if s.kind == "pe_loop" else f"{s.details['pulse_width_s'] * 1e3:.3g} ms pulses"
                 conflicts.append(Conflict(
                     f"the measured inversion rate{_at(s.temperature_K)} is {k:.3g} s^-1 (measurement "
                     f"{rate['measurement_id']}), slower than the {what}, yet {_KIND_NAMES[s.kind]} (measurement "
                     f"{s.measurement_id}) switches",
                     (s.measurement_id, int(rate["measurement_id"])),
-                    "field-assisted or collective switching (the field lowers the barrier), or wrong data"))
+                    "field-assisted or collective switching (the field lowers the barrier), or wrong data",
+                    blocking=False))
 
     switch_temps = [s.temperature_K for s in switching if s.temperature_K is not None]
     switching_range = (min(switch_temps), max(switch_temps)) if switch_temps else None
@@ -452,8 +456,9 @@ def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
         qualifiers=qualifiers,
     )
 
-    def verdict(code: str, reason: str, conf: Sequence[Conflict] = ()) -> CompoundVerdict:
-        return CompoundVerdict(code=code, label=LABELS[code], reason=reason, conflicts=tuple(conf), **common)
+    def verdict(code: str, reason: str, conf: Sequence[Conflict] | None = None) -> CompoundVerdict:
+        return CompoundVerdict(code=code, label=LABELS[code], reason=reason,
+                               conflicts=tuple(conflicts if conf is None else conf), **common)
 
     listed = f" Inconclusive P-E loops ({_ids(inconclusive)}) were not counted." if inconclusive else ""
     if model.relaxor_maxima_K:
@@ -462,8 +467,14 @@ def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
     if qualifiers:
         listed += " Tested at one temperature only."
 
-    if conflicts:
-        c0 = conflicts[0]
+    review = [c for c in conflicts if not c.blocking]
+    if review:
+        listed += f" For review: {review[0].message}; possibly {review[0].suggestion}."
+        if len(review) > 1:
+            listed += f" {len(review) - 1} more such flag(s) listed."
+    blocking = [c for c in conflicts if c.blocking]
+    if blocking:
+        c0 = blocking[0]
         reason = _cap(c0.message) + f". Possible explanation: {c0.suggestion}."
         if len(conflicts) > 1:
             reason += f" {len(conflicts) - 1} more conflict(s) listed."

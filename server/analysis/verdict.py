@@ -538,9 +538,11 @@ def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
     ferroic = [t for t in transitions if t.transition_class in FERROIC_CANDIDATES]
     if transitions and not ferroic:
         trs = ", ".join(t.label() for t in transitions)
-        extra = f" {_cap(_negative_text(negatives))}." if negatives else ""
-        return verdict("untested", f"Only melting-type transitions ({trs}): phase boundaries, not evidence of a "
-                                   f"ferroic transition; no structure or switching yet.{extra}{listed}")
+        text = f"only melting-type transitions ({trs}): phase boundaries, not evidence of a ferroic transition"
+        if negatives:
+            return verdict("no_switching_seen", f"{_cap(_negative_text(negatives))}; no structure known, and {text}."
+                                                f"{listed}")
+        return verdict("untested", f"{_cap(text)}; no structure or switching yet.{listed}")
     if transitions:
         trs = ", ".join(t.label() for t in transitions)
         return verdict(

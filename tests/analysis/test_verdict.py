@@ -182,6 +182,9 @@ def test_chain_melting_is_no_ferroic_transition():
     assert v.transitions[0].ds_per_ch2_J_molK == pytest.approx(5.0)
     assert v.code == "untested"
     assert "chain melting" in v.reason
+    # with a negative switching test it is "no switching seen", not a transition-only compound
+    assert decide([dsc(1, peaks), pund(2, "no_switching", 300.0, e_pulse_kV_cm=60.0)],
+                  chain_ch2=6).code == "no_switching_seen"
     # without chains the same peak is a solid-solid transition
     assert decide([dsc(1, peaks)]).code == "transition_only"
 

@@ -51,6 +51,8 @@ VERDICTS: tuple[VerdictCode, ...] = (
                 "polar, switches", OKABE_ITO["green"], "#0b5a43", "#b3e3d3"),
     VerdictCode("switching_phase_unknown", "Switches, but the switching phase's structure is unknown",
                 "switches, phase unknown", OKABE_ITO["sky"], "#0b5d7a", "#cbe7f8"),
+    VerdictCode("loop_switching_only", "Saturated loops only: switching not confirmed by PUND",
+                "loop only", OKABE_ITO["blue"], "#004a7f", "#c6dcef"),
     VerdictCode("polar_unswitched", "Polar structure, no switching seen",
                 "polar, not switched", OKABE_ITO["orange"], "#7a5200", "#f8e0b0"),
     VerdictCode("transition_only", "Phase transition, no polarity evidence",

@@ -33,7 +33,7 @@ def test_contrast_formula_against_wcag_extremes():
 
 
 def test_one_table_with_unique_codes_and_labels():
-    assert len(set(vc.CODES)) == len(vc.CODES) == 8
+    assert len(set(vc.CODES)) == len(vc.CODES) == 9
     assert len(set(vc.LABELS.values())) == len(vc.LABELS) and len(set(vc.SHORT.values())) == len(vc.SHORT)
     assert rules.LABELS is vc.LABELS  # the rules read the table; they hold no copy
     assert [v.rank for v in vc.VERDICTS] == list(range(len(vc.VERDICTS)))

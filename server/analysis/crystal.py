@@ -219,7 +219,7 @@ class CrystalResult(Result):
     JSON_KEYS = (
         "data_block", "space_group", "space_group_xhm", "space_group_number", "point_group", "crystal_system",
         "polar", "centrosymmetric", "chiral", "z", "cell", "density_g_cm3", "density_cif_g_cm3",
-        "molar_mass_g_mol", "temperature_K", "r1", "formula_cif", "bowl_depth_A", "stacking_distance_A",
+        "molar_mass_g_mol", "temperature_K", "r1", "wr2", "goof", "flack", "formula_cif", "bowl_depth_A", "stacking_distance_A",
         "column_axis", "column_axis_angle_deg", "column_polar", "neighbours_same_direction", "verdict", "flags",
     )  # fmt: skip
 
@@ -247,6 +247,9 @@ class CrystalResult(Result):
     column_polar: bool | None = None
     neighbours_same_direction: float | None = None
     flags: tuple[Flag, ...] = field(default_factory=tuple)
+    wr2: float | None = None
+    goof: float | None = None
+    flack: float | None = None
 
     @property
     def verdict(self) -> str:
@@ -626,6 +629,52 @@ def _bowl_packing(
 # main entry
 
 
+#: Plausible density of organic molecular crystals, g/cm3 (common practice, from memory: packed
+#: aromatics sit near 1.2-1.5 g/cm3; below 1.1 the cell is mostly empty, above 1.6 heavy atoms are needed).
+DENSITY_PLAUSIBLE_G_CM3 = (1.1, 1.6)
+#: Longest centroid distance of pi-stacked bowls in a column, A (common practice, from memory: stacked
+#: bowls sit near 3.4-4.2 A; a longer contact is no pi-stack).
+PI_STACK_MAX_A = 4.2
+#: A monoclinic beta within this of 90 deg may hide orthorhombic symmetry (common practice: 90.00 as reported).
+BETA_90_TOLERANCE_DEG = 0.005
+
+
+def quality_flags(*, r1: float | None, wr2: float | None, density_g_cm3: float | None,
+                  stacking_distance_A: float | None, crystal_system: str, beta_deg: float,
+                  polar: bool, chiral: bool, flack: float | None) -> list[Flag]:
+    """Checks a referee makes of a structure; each flag lowers the structure's weight in the verdict
+    (:mod:`server.analysis.verdict`), none deletes it.
+
+    * ``r_factors_missing``: no R1 (``_refine_ls_R_factor_gt``) or no wR2 (``_refine_ls_wR_factor_ref``):
+      the refinement cannot be judged (IUCr CIF core dictionary, refine category);
+    * ``density_implausible``: outside :data:`DENSITY_PLAUSIBLE_G_CM3` (common practice);
+    * ``column_too_long``: column neighbour farther than :data:`PI_STACK_MAX_A` (common practice);
+    * ``monoclinic_beta_90``: monoclinic with beta = 90.00 deg: possible missed (orthorhombic) symmetry;
+    * ``absolute_structure_missing``: a polar or chiral space group without a Flack parameter
+      (H. D. Flack, Acta Cryst. A39, 876 (1983)): the polar direction or handedness is not determined.
+    """
+    flags: list[Flag] = []
+    missing = [n for n, v in (("R1", r1), ("wR2", wr2)) if v is None]
+    if missing:
+        flags.append(Flag("r_factors_missing", f"the CIF gives no {' and no '.join(missing)}: the refinement "
+                          "quality cannot be judged"))
+    lo, hi = DENSITY_PLAUSIBLE_G_CM3
+    if density_g_cm3 is not None and not (lo <= density_g_cm3 <= hi):
+        flags.append(Flag("density_implausible", f"density {density_g_cm3:.2f} g/cm3 is outside {lo:g}-{hi:g} "
+                          "g/cm3, the usual range for organic crystals (common practice): check Z, the cell and "
+                          "the formula"))
+    if stacking_distance_A is not None and stacking_distance_A > PI_STACK_MAX_A:
+        flags.append(Flag("column_too_long", f"column neighbour at {stacking_distance_A:.1f} A, longer than "
+                          f"{PI_STACK_MAX_A:g} A: not a pi-stacked column (common practice)"))
+    if crystal_system.lower() == "monoclinic" and abs(beta_deg - 90.0) < BETA_90_TOLERANCE_DEG:
+        flags.append(Flag("monoclinic_beta_90", f"monoclinic cell with beta = {beta_deg:.2f} deg: possible "
+                          "missed orthorhombic symmetry"))
+    if (polar or chiral) and flack is None:
+        flags.append(Flag("absolute_structure_missing", "polar or chiral space group without a Flack parameter: "
+                          "the absolute structure (polar direction, handedness) is not determined"))
+    return flags
+
+
 def analyse_cif(
     raw: bytes,
     *,
@@ -773,8 +822,15 @@ def analyse_cif(
     if temperature is None:
         flags.append(Flag("no_temperature", "the CIF gives no measurement temperature"))
     r1 = _number(block, ("_refine_ls_R_factor_gt", "_refine_ls_R_factor_obs"))
+    wr2 = _number(block, ("_refine_ls_wR_factor_ref", "_refine_ls_wR_factor_gt"))
+    goof = _number(block, ("_refine_ls_goodness_of_fit_ref", "_refine_ls_goodness_of_fit_all"))
+    flack = _number(block, ("_refine_ls_abs_structure_Flack", "_refine_ls_abs_structure_Flack_errorless"))
 
     packing = _analyse_molecules(sites, cell_atoms, ops, orth, core_smiles, flags)
+    flags.extend(quality_flags(r1=r1, wr2=wr2, density_g_cm3=density,
+                               stacking_distance_A=packing.stacking_distance_A if packing else None,
+                               crystal_system=sg.crystal_system_str(), beta_deg=cell.beta,
+                               polar=cls.polar, chiral=cls.chiral, flack=flack))
 
     return CrystalResult(
         data_block=block.name,
@@ -801,6 +857,9 @@ def analyse_cif(
         molar_mass_g_mol=mass,
         temperature_K=temperature,
         r1=r1,
+        wr2=wr2,
+        goof=goof,
+        flack=flack,
         formula_cif=hill_formula(counts_cif) if counts_cif else None,
         bowl_depth_A=packing.bowl_depth_A if packing else None,
         stacking_distance_A=packing.stacking_distance_A if packing else None,

@@ -121,6 +121,8 @@ class DielectricResult(Result):
     vf_t_err_K: float | None = None
     vf_f0_Hz: float | None = None
     vf_log10_f0_err: float | None = None
+    t_min_K: float | None = None  # the temperature range the run scanned (for the phase model)
+    t_max_K: float | None = None
 
 
 # --------------------------------------------------------------------------- helpers
@@ -554,6 +556,8 @@ def analyse_dielectric(
         tan_delta_peak=first.tan_delta_peak if first.t_peak_K is not None else None,
         cw_frequency_Hz=low["f_Hz"] if cw else None,
         **vf,
+        t_min_K=float(np.min(t_all)),
+        t_max_K=float(np.max(t_all)),
     )
 
 

@@ -122,6 +122,12 @@ def transition_entropy_J_molK(dh_J_mol: float, t_K: float) -> float:
     return float(dh_J_mol) / float(t_K)
 
 
+#: Largest N reported as a count of orientational states: a bowl has only a few orientations, so a larger
+#: N = exp(|dS|/R) says the entropy is too large for an orientational count (chain melting, fusion).
+#: Common practice: order-disorder transitions of molecular crystals have N of 2 to about 12.
+MAX_ORIENTATIONAL_STATES = 12.0
+
+
 def boltzmann_states(ds_J_molK: float) -> float:
     """Number of configurations from a transition entropy, N = exp(|dS| / R).
 
@@ -470,6 +476,12 @@ def _analyse_segment(
             dh_mol = dh * molar_mass  # J/mol
             ds = transition_entropy_J_molK(dh_mol, float(T[pk]))
             nst = boltzmann_states(ds)
+            if nst > MAX_ORIENTATIONAL_STATES:
+                flags.append(Flag("entropy_too_large_for_orientations",
+                                  f"Segment {seg}: |dS| = {abs(ds):.0f} J/(mol K) at {T[pk]:.1f} K is too large for an "
+                                  f"orientational count (N would be {nst:.0f} > {MAX_ORIENTATIONAL_STATES:g}); N is "
+                                  "not reported"))
+                nst = None
         peaks.append(
             DscPeak(
                 segment=seg,

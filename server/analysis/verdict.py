@@ -39,34 +39,47 @@ import math
 from dataclasses import dataclass, field
 from typing import Any, Mapping, Sequence
 
+from server.analysis import phases
+from server.analysis.phases import Continuity, PhaseModel, PhaseTransition
 from server.analysis.results import Flag, Result
 from server.errors import AnalysisError
 from server.verdict_codes import LABELS
 
 METHOD = (
     "Evidence supports a ferroelectric phase only when a polar phase (ITA Vol. A polar classes) and field switching in "
-    "that phase (PUND or a saturated loop; Scott, J. Phys.: Condens. Matter 20, 021001 (2008)) "
-    "are both shown; phases delimited by DSC/dielectric transitions."
+    "that phase by PUND (a loop alone is weaker; Scott, J. Phys.: Condens. Matter 20, 021001 (2008)) "
+    "are both shown in one scanned phase; phases delimited by paired DSC peaks, non-dispersive permittivity maxima "
+    "and Pr -> 0, and only scanned intervals without a transition count as one phase."
 )
-VERSION = "verdict/1.1"  # 1.1: top code polar_switching_supported (was proven_ferroelectric)
+VERSION = "verdict/2.0"  # 2.0: phase model with scanned intervals, criteria, PUND needed for the top codes
 
-#: Two measurements within this many kelvin count as the same temperature (common practice:
-#: thermometry of a P-E stage and a DSC pan differ by a few kelvin).
-SAME_TEMPERATURE_K = 5.0
+SAME_TEMPERATURE_K = phases.SAME_TEMPERATURE_K
 
 
 _KIND_NAMES = {"pe_loop": "P-E loop", "pund": "PUND", "dielectric": "dielectric", "dsc": "DSC", "crystal": "crystal"}
-_TRANSITION_KEYS = ("t_peak_K", "peak_K", "transitions_K", "tc_K")
+#: Loop verdicts that mean a saturated remanent loop (``ferroelectric`` is the stored name of loops
+#: analysed before the per-loop verdict was renamed ``switching``).
+_SATURATED_LOOP = ("switching", "ferroelectric")
+#: Transition classes that can be a ferroic (order-disorder or displacive) transition; chain melting,
+#: isotropisation and decomposition are phase boundaries but no evidence of one.
+FERROIC_CANDIDATES = ("solid_solid", "unclassified")
+#: Crystal flags that lower a structure's weight (:mod:`server.analysis.crystal` quality checks).
+QUALITY_FLAGS = ("r_factors_missing", "density_implausible", "column_too_long", "monoclinic_beta_90",
+                 "absolute_structure_missing")
+#: A bowl shallower than this is flat (Å; common practice: a bowl that inverts must be curved, and
+#: crystal bowl depths of curved bowls are several tenths of an ångström or more; value from memory).
+FLAT_BOWL_A = 0.2
 
 
 @dataclass(frozen=True)
 class Evidence:
     """One analysed measurement, as the verdict needs it.
 
-    ``verdict`` is the analysis verdict (pe_loop: ``"ferroelectric"``, ``"inconclusive"``, ...;
-    pund: ``"switching"`` / ``"no_switching"``; crystal: ``"polar"`` / ``"centrosymmetric"`` /
-    ``"non_polar_acentric"``). ``details`` carries e.g. ``t_peak_K`` (dielectric), ``peak_K``
-    (DSC, list) or ``space_group`` (crystal).
+    ``verdict`` is the analysis verdict (pe_loop: ``"switching"`` (stored earlier as
+    ``"ferroelectric"``), ``"inconclusive"``, ...; pund: ``"switching"`` / ``"no_switching"``;
+    crystal: ``"polar"`` / ``"centrosymmetric"`` / ``"non_polar_acentric"``). ``details`` carries the
+    kind's facts (see each ``server/kinds`` module's ``evidence``): DSC ``peaks`` and ``segments``,
+    dielectric ``t_peak_K``, ``t_min_K``, ``t_max_K``; loop/PUND fields; crystal ``space_group``.
     """
 
     kind: str
@@ -88,23 +101,34 @@ class UsedEvidence(Result):
 
 
 @dataclass(frozen=True)
-class Transition:
-    """A transition temperature merged over measurements within SAME_TEMPERATURE_K."""
-
-    t_K: float
-    sources: tuple[str, ...]
-    measurement_ids: tuple[int, ...]
-
-    def label(self) -> str:
-        return f"{self.t_K:.0f} K ({', '.join(_KIND_NAMES.get(s, s) for s in self.sources)})"
-
-
-@dataclass(frozen=True)
 class Conflict(Result):
-    """Two pieces of evidence that cannot both hold."""
+    """Two pieces of evidence that cannot both hold, with a suggested explanation."""
 
     message: str
     measurement_ids: tuple[int, ...]
+    suggestion: str = ""
+    #: False for a consistency flag that a known mechanism can explain (listed for review; the verdict
+    #: code stays): a measured inversion rate slower than the drive while switching is seen.
+    blocking: bool = True
+
+
+@dataclass(frozen=True)
+class Criterion(Result):
+    """One criterion of the verdict: ``state`` is ``met``, ``unmet`` or ``untested``."""
+
+    name: str
+    state: str
+    measurements: tuple[int, ...]
+
+
+@dataclass(frozen=True)
+class PhaseRow(Result):
+    """One phase interval as the API shows it."""
+
+    t_from_K: float
+    t_to_K: float
+    scanned: bool
+    identified_by: tuple[int, ...]
 
 
 @dataclass(frozen=True)
@@ -116,9 +140,12 @@ class CompoundVerdict(Result):
     reason: str
     switching_temperatures_K: tuple[float, float] | None
     transitions_K: tuple[float, ...]
-    transitions: tuple[Transition, ...]
+    transitions: tuple[PhaseTransition, ...]
     used: tuple[UsedEvidence, ...]
     conflicts: tuple[Conflict, ...]
+    criteria: tuple[Criterion, ...] = ()
+    phases: tuple[PhaseRow, ...] = ()
+    qualifiers: tuple[str, ...] = ()
     version: str = VERSION
 
 
@@ -130,8 +157,8 @@ def _role(ev: Evidence) -> str:
     if kind == "pund":
         return {"switching": "switching", "no_switching": "no_switching"}.get(v, "inconclusive")
     if kind == "pe_loop":
-        if v == "ferroelectric":
-            return "switching"
+        if v in _SATURATED_LOOP:
+            return "saturated_loop"
         if v == "inconclusive":
             return "inconclusive"
         return "loop_not_ferroelectric"
@@ -141,67 +168,58 @@ def _role(ev: Evidence) -> str:
             "centrosymmetric": "centrosymmetric_phase",
             "non_polar_acentric": "non_polar_acentric_phase",
         }.get(v, "not_used")
-    if kind in ("dielectric", "dsc"):
-        return "transition" if _transition_temps(ev) else "no_transition"
+    if kind == "dsc":
+        return "transition" if (ev.details.get("peaks") or ev.details.get("peak_K")) else "no_transition"
+    if kind == "dielectric":
+        return "transition" if ev.details.get("t_peak_K") is not None else "no_transition"
     return "not_used"
 
 
-def _transition_temps(ev: Evidence) -> list[float]:
-    temps: list[float] = []
-    for key in _TRANSITION_KEYS:
-        value = ev.details.get(key)
-        if value is None:
-            continue
-        values = value if isinstance(value, (list, tuple)) else [value]
-        for t in values:
-            if t is None:
-                continue
-            t = float(t)
-            if not (math.isfinite(t) and t > 0):
-                raise AnalysisError(
-                    f"{_KIND_NAMES.get(ev.kind, ev.kind)} measurement {ev.measurement_id}: transition "
-                    f"temperature {t} K is not a positive number",
-                    field=key,
-                )
-            temps.append(t)
-    return temps
-
-
-def _merge_transitions(evidence: Sequence[Evidence]) -> tuple[Transition, ...]:
-    points = sorted(
-        (t, ev.kind, ev.measurement_id)
-        for ev in evidence
-        if ev.kind in ("dielectric", "dsc")
-        for t in _transition_temps(ev)
-    )
-    clusters: list[list[tuple[float, str, int]]] = []
-    for p in points:
-        if clusters and p[0] - clusters[-1][-1][0] <= SAME_TEMPERATURE_K:
-            clusters[-1].append(p)
-        else:
-            clusters.append([p])
-    out = []
-    for c in clusters:
-        out.append(
-            Transition(
-                t_K=sum(p[0] for p in c) / len(c),
-                sources=tuple(sorted({p[1] for p in c}, key=lambda k: ("dsc", "dielectric").index(k))),
-                measurement_ids=tuple(sorted({p[2] for p in c})),
-            )
+def _positive(value: Any, ev: Evidence, key: str) -> float:
+    t = float(value)
+    if not (math.isfinite(t) and t > 0):
+        raise AnalysisError(
+            f"{_KIND_NAMES.get(ev.kind, ev.kind)} measurement {ev.measurement_id}: temperature {t} K is not a "
+            "positive number",
+            field=key,
         )
-    return tuple(out)
+    return t
 
 
-def _between(t1: float, t2: float, transitions: Sequence[Transition]) -> list[Transition]:
-    lo, hi = sorted((t1, t2))
-    return [tr for tr in transitions if lo < tr.t_K < hi]
-
-
-def _same_phase(t1: float | None, t2: float | None, transitions: Sequence[Transition]) -> bool:
-    """Same phase unless a transition lies strictly between the two temperatures (unknown: same)."""
-    if t1 is None or t2 is None:
-        return True
-    return not _between(t1, t2, transitions)
+def phase_model(evidence: Sequence[Evidence], chain_ch2: int | None = None) -> PhaseModel:
+    """The compound's :class:`~server.analysis.phases.PhaseModel` from its evidence."""
+    peaks: list[phases.ThermalPeak] = []
+    scans: list[phases.Scan] = []
+    maxima: list[phases.PermittivityMaximum] = []
+    loops: list[phases.LoopPoint] = []
+    points: dict[int, float] = {}
+    for ev in evidence:
+        d = ev.details
+        if ev.kind == "dsc":
+            for p in d.get("peaks") or []:
+                peaks.append(phases.ThermalPeak(
+                    ev.measurement_id, _positive(p["peak_K"], ev, "peak_K"), p.get("scan") or "heating",
+                    bool(p.get("endothermic", True)), p.get("onset_K"), p.get("ds_J_molK")))
+            legacy = d.get("peak_K")  # a bare list of peak temperatures: heating peaks of unknown entropy
+            for t in (legacy if isinstance(legacy, (list, tuple)) else [legacy] if legacy is not None else []):
+                peaks.append(phases.ThermalPeak(ev.measurement_id, _positive(t, ev, "peak_K"), "heating", True))
+            for sgm in d.get("segments") or []:
+                scans.append(phases.Scan(ev.measurement_id, "dsc", float(sgm["t_from_K"]), float(sgm["t_to_K"]),
+                                         sgm.get("scan", "")))
+        elif ev.kind == "dielectric":
+            if d.get("t_peak_K") is not None:
+                dispersive = any(f.code == "frequency_dispersion" for f in ev.flags) or bool(d.get("dispersive"))
+                maxima.append(phases.PermittivityMaximum(ev.measurement_id, _positive(d["t_peak_K"], ev, "t_peak_K"),
+                                                         dispersive))
+            if d.get("t_min_K") is not None and d.get("t_max_K") is not None:
+                scans.append(phases.Scan(ev.measurement_id, "dielectric", float(d["t_min_K"]), float(d["t_max_K"])))
+        elif ev.temperature_K is not None:
+            points[ev.measurement_id] = ev.temperature_K
+            if ev.kind == "pe_loop" and ev.verdict != "inconclusive":
+                loops.append(phases.LoopPoint(ev.measurement_id, ev.temperature_K, ev.verdict in _SATURATED_LOOP,
+                                              d.get("pr_uC_cm2")))
+    return phases.build(dsc_peaks=peaks, scans=scans, permittivity=maxima, loops=loops, point_temperatures=points,
+                        chain_ch2=chain_ch2)
 
 
 def _same_temperature(t1: float | None, t2: float | None) -> bool:
@@ -218,7 +236,7 @@ def _t_range(temps: Sequence[float]) -> str:
     return f"{lo:.0f} K" if round(lo) == round(hi) else f"{lo:.0f}-{hi:.0f} K"
 
 
-def describe_temperatures(what: str, temps_K: Sequence[float | None], transitions: Sequence[Transition]) -> str:
+def describe_temperatures(what: str, temps_K: Sequence[float | None], transitions: Sequence[Any]) -> str:
     """Phrase such as ``"switching seen at 300-340 K, above the transition at 290 K (DSC)"``.
 
     Mentions the nearest transition below the range, the nearest above it and any inside it.
@@ -245,6 +263,31 @@ def describe_temperatures(what: str, temps_K: Sequence[float | None], transition
     return text
 
 
+def switching_range_text(temps_K: Sequence[float], transitions: Sequence[PhaseTransition]) -> str:
+    """``"switches between 302 K and Tc = 358 ± 2 K (permittivity peak 359 K, DSC onset 357 K, Pr -> 0 at
+    356 K)"`` when a transition bounds the switching range from above, else ``"switches at 302-340 K"``."""
+    lo, hi = min(temps_K), max(temps_K)
+    above = [tr for tr in transitions if tr.t_K > hi - SAME_TEMPERATURE_K]
+    if not above:
+        return f"switches at {_t_range(temps_K)}"
+    tr = above[0]
+    seen = []
+    if tr.t_permittivity_K is not None:
+        seen.append(("permittivity peak", tr.t_permittivity_K))
+    if tr.onset_K is not None:
+        seen.append(("DSC onset", tr.onset_K))
+    elif tr.t_heating_K is not None:
+        seen.append(("DSC peak", tr.t_heating_K))
+    if tr.t_pr_zero_K is not None:
+        seen.append(("Pr -> 0 at", tr.t_pr_zero_K))
+    values = [v for _, v in seen] or [tr.t_K]
+    tc = sum(values) / len(values)
+    spread = (max(values) - min(values)) / 2.0
+    tc_text = f"Tc = {tc:.0f} ± {max(spread, 0.5):.0f} K" if len(values) > 1 else f"Tc = {tc:.0f} K"
+    detail = ", ".join(f"{n} {v:.0f} K" for n, v in seen)
+    return f"switches between {lo:.0f} K and {tc_text}" + (f" ({detail})" if detail else "")
+
+
 def _structure_phrase(ev: Evidence) -> str:
     name = {"polar": "polar", "centrosymmetric": "centrosymmetric", "non_polar_acentric": "non-polar acentric"}[
         ev.verdict
@@ -252,7 +295,9 @@ def _structure_phrase(ev: Evidence) -> str:
     sg = ev.details.get("space_group")
     sg_text = f" ({sg})" if sg else ""
     t = f" at {ev.temperature_K:.0f} K" if ev.temperature_K is not None else " at an unrecorded temperature"
-    return f"{name} structure{sg_text}{t} (measurement {ev.measurement_id})"
+    quality = [f.code for f in ev.flags if f.code in QUALITY_FLAGS]
+    q = f", weight lowered by {', '.join(c.replace('_', ' ') for c in quality)}" if quality else ""
+    return f"{name} structure{sg_text}{t} (measurement {ev.measurement_id}{q})"
 
 
 def _ids(items: Sequence[Evidence]) -> str:
@@ -261,36 +306,70 @@ def _ids(items: Sequence[Evidence]) -> str:
     return f"measurement{'s' if len(items) > 1 else ''} {ids}"
 
 
-def decide(evidence: Sequence[Evidence]) -> CompoundVerdict:
+def _negative_text(negatives: Sequence[Evidence]) -> str:
+    """``"not switched at 300 K up to 60 kV/cm (measurement 4)"``: a negative result keeps its conditions."""
+    parts = []
+    for n in negatives:
+        e = n.details.get("emax_kV_cm") or n.details.get("e_pulse_kV_cm")
+        field_text = f" up to {e:.0f} kV/cm" if e else " (field not recorded)"
+        parts.append(f"not switched{_at(n.temperature_K)}{field_text} ({_KIND_NAMES[n.kind]}, measurement "
+                     f"{n.measurement_id})")
+    return "; ".join(parts)
+
+
+def _weight(ev: Evidence) -> int:
+    """Structures with fewer quality flags come first (flags lower the weight, never delete)."""
+    return sum(1 for f in ev.flags if f.code in QUALITY_FLAGS)
+
+
+def _pick_phase(model: PhaseModel, switching: Sequence[Evidence], structures: Sequence[Evidence]):
+    """For each structure: the continuity with each switching measurement."""
+    out = []
+    for st in structures:
+        for s in switching:
+            out.append((st, s, phases.continuity(model, s.temperature_K, st.temperature_K)))
+    return out
+
+
+def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
+           rates: Sequence[Mapping[str, Any]] = ()) -> CompoundVerdict:
     """Combine the analysed measurements of one compound into a verdict.
 
     Parameters
     ----------
     evidence : sequence of Evidence
         Any order; unknown kinds are listed as ``not_used``.
+    chain_ch2 : int, optional
+        CH2 groups in all side chains (classes DSC peaks as chain melting; see :mod:`server.analysis.phases`).
+    rates : sequence of mappings, optional
+        Measured inversion barriers ``{"measurement_id", "dh_kJ_mol", "ds_J_molK"}`` (Eyring), for the rate
+        consistency flag.
 
     Returns
     -------
     CompoundVerdict
-        ``code`` and ``label`` (see module table), a one- or two-sentence ``reason``,
-        ``switching_temperatures_K`` (min, max) where switching was seen, ``transitions_K``
-        (merged DSC/dielectric transitions), ``used`` (each measurement with its role) and
-        ``conflicts``.
+        ``code`` and ``label`` (see module table), ``reason``, ``switching_temperatures_K``, ``transitions_K``
+        (one per physical transition), ``transitions`` (classed, with their rule), ``used``, ``conflicts``
+        (each with a suggested explanation), ``criteria`` (met / unmet / untested with measurement ids),
+        ``phases`` (intervals, scanned or inferred) and ``qualifiers`` (e.g. "tested at one temperature only").
 
     Notes
     -----
-    Conflicts (verdict ``conflicting``): (1) switching claimed (PUND or a loop judged
-    ferroelectric) while a PUND at the same temperature (within 5 K) shows none;
-    (2) switching in a phase whose only known structures are non-polar (centrosymmetric or
-    non-polar acentric classes cannot switch a polarisation). A non-polar structure that a
-    transition separates from the switching temperatures is no conflict: the switching phase
-    is then unknown. Inconclusive loops are listed but count as no evidence either way.
+    The top code needs a polar structure and PUND switching shown in one phase: the interval between their
+    temperatures scanned (DSC, permittivity or a loop series) and free of transitions
+    (:func:`server.analysis.phases.continuity`). Saturated loops without PUND give ``loop_switching_only``:
+    a closed loop alone can come from leakage or loss (Scott 2008). Conflicts: switching against a PUND
+    without switching at the same temperature; switching in a phase shown to hold only non-polar structures;
+    a flat bowl against switching by bowl inversion; an Eyring inversion rate at the loop temperature
+    slower than the drive frequency or the PUND pulse rate while switching is seen.
 
     References
     ----------
     IEEE Std 180-1986, Standard Definitions of Primary Ferroelectric Terms.
+    M. E. Lines and A. M. Glass, Principles and Applications of Ferroelectrics and Related Materials, OUP 1977.
     J. F. Scott, J. Phys.: Condens. Matter 20, 021001 (2008), DOI 10.1088/0953-8984/20/02/021001.
     International Tables for Crystallography Vol. A (2016), DOI 10.1107/97809553602060000114.
+    H. Eyring, J. Chem. Phys. 3, 107 (1935) (k = kB T / h exp(dS/R) exp(-dH/RT)).
     """
     for ev in evidence:
         if ev.temperature_K is not None and not (math.isfinite(ev.temperature_K) and ev.temperature_K > 0):
@@ -299,14 +378,18 @@ def decide(evidence: Sequence[Evidence]) -> CompoundVerdict:
                 field="temperature",
             )
     roles = [(ev, _role(ev)) for ev in evidence]
-    transitions = _merge_transitions(evidence)
+    model = phase_model(evidence, chain_ch2)
+    transitions = model.transitions
     used = tuple(UsedEvidence(ev.measurement_id, ev.kind, role, ev.temperature_K) for ev, role in roles)
 
-    switching = [ev for ev, r in roles if r == "switching"]
+    pund_sw = [ev for ev, r in roles if r == "switching"]
+    loops_sat = [ev for ev, r in roles if r == "saturated_loop"]
+    switching = pund_sw + loops_sat
     pund_none = [ev for ev, r in roles if r == "no_switching"]
-    negatives = [ev for ev, r in roles if r in ("no_switching", "loop_not_ferroelectric")]
+    loops_neg = [ev for ev, r in roles if r == "loop_not_ferroelectric"]
+    negatives = pund_none + loops_neg
     inconclusive = [ev for ev, r in roles if r == "inconclusive"]
-    polar = [ev for ev, r in roles if r == "polar_phase"]
+    polar = sorted((ev for ev, r in roles if r == "polar_phase"), key=_weight)
     nonpolar = [ev for ev, r in roles if r in ("centrosymmetric_phase", "non_polar_acentric_phase")]
     structures = polar + nonpolar
 
@@ -314,113 +397,215 @@ def decide(evidence: Sequence[Evidence]) -> CompoundVerdict:
     for s in switching:
         for p in pund_none:
             if p.measurement_id != s.measurement_id and _same_temperature(s.temperature_K, p.temperature_K):
-                conflicts.append(
-                    Conflict(
-                        f"{_KIND_NAMES[s.kind]} (measurement {s.measurement_id}) shows switching"
-                        f"{_at(s.temperature_K)} but PUND (measurement {p.measurement_id}) shows none"
-                        f"{_at(p.temperature_K)}",
-                        (s.measurement_id, p.measurement_id),
-                    )
-                )
+                conflicts.append(Conflict(
+                    f"{_KIND_NAMES[s.kind]} (measurement {s.measurement_id}) shows switching"
+                    f"{_at(s.temperature_K)} but PUND (measurement {p.measurement_id}) shows none"
+                    f"{_at(p.temperature_K)}",
+                    (s.measurement_id, p.measurement_id),
+                    "a loop from leakage or loss, a different sample or electrodes, or a PUND field below the "
+                    "coercive field"))
+    pairs = _pick_phase(model, switching, structures)
     for s in switching:
-        same = [st for st in structures if _same_phase(s.temperature_K, st.temperature_K, transitions)]
+        same = [st for st, s2, c in pairs if s2 is s and c.same]
         if same and not any(st.verdict == "polar" for st in same):
             st = same[0]
-            conflicts.append(
-                Conflict(
-                    f"{_KIND_NAMES[s.kind]} (measurement {s.measurement_id}) shows switching"
-                    f"{_at(s.temperature_K)} but the {_structure_phrase(st)} is in the same phase; "
-                    "a non-polar phase cannot switch",
-                    (s.measurement_id, st.measurement_id),
-                )
-            )
+            conflicts.append(Conflict(
+                f"{_KIND_NAMES[s.kind]} (measurement {s.measurement_id}) shows switching"
+                f"{_at(s.temperature_K)} but the {_structure_phrase(st)} is in the same scanned phase; "
+                "a non-polar phase cannot switch",
+                (s.measurement_id, st.measurement_id),
+                "a wrong space group (missed polar subgroup), a different polymorph in the sample, or loops "
+                "from leakage"))
+    if switching:
+        flat = [st for st in structures if isinstance(st.details.get("bowl_depth_A"), (int, float))
+                and st.details["bowl_depth_A"] < FLAT_BOWL_A]
+        for st in flat:
+            conflicts.append(Conflict(
+                f"switching by bowl inversion is claimed ({_ids(switching)}) but the crystal structure "
+                f"(measurement {st.measurement_id}) has a flat core (bowl depth {st.details['bowl_depth_A']:.2f} Å, "
+                f"below {FLAT_BOWL_A:g} Å)",
+                tuple([s.measurement_id for s in switching] + [st.measurement_id]),
+                "switching by another mechanism (proton or side-chain order), a wrong structure, or wrong data"))
+    for rate in rates:
+        for s in switching:
+            k = _eyring_rate_s(rate, s.temperature_K)
+            drive = s.details.get("frequency_Hz") if s.kind == "pe_loop" else (
+                1.0 / s.details["pulse_width_s"] if s.details.get("pulse_width_s") else None)
+            if k is not None and drive and k < drive:
+                what = f"{drive:.3g} Hz drive" if s.kind == "pe_loop" else f"{s.details['pulse_width_s'] * 1e3:.3g} ms pulses"
+                conflicts.append(Conflict(
+                    f"the measured inversion rate{_at(s.temperature_K)} is {k:.3g} s^-1 (measurement "
+                    f"{rate['measurement_id']}), slower than the {what}, yet {_KIND_NAMES[s.kind]} (measurement "
+                    f"{s.measurement_id}) switches",
+                    (s.measurement_id, int(rate["measurement_id"])),
+                    "field-assisted or collective switching (the field lowers the barrier), or wrong data",
+                    blocking=False))
 
     switch_temps = [s.temperature_K for s in switching if s.temperature_K is not None]
     switching_range = (min(switch_temps), max(switch_temps)) if switch_temps else None
+    criteria = _criteria(model, pairs, pund_sw, pund_none, loops_sat, loops_neg, structures)
+    tested_temps = {round(ev.temperature_K) for ev in switching + negatives if ev.temperature_K is not None}
+    qualifiers = ("tested at one temperature only",) if len(tested_temps) == 1 else ()
     common = dict(
         switching_temperatures_K=switching_range,
         transitions_K=tuple(t.t_K for t in transitions),
         transitions=transitions,
         used=used,
+        criteria=criteria,
+        phases=tuple(PhaseRow(p.t_from_K, p.t_to_K, p.scanned, p.identified_by) for p in model.phases),
+        qualifiers=qualifiers,
     )
 
-    def verdict(code: str, reason: str, conf: Sequence[Conflict] = ()) -> CompoundVerdict:
-        return CompoundVerdict(code=code, label=LABELS[code], reason=reason, conflicts=tuple(conf), **common)
+    def verdict(code: str, reason: str, conf: Sequence[Conflict] | None = None) -> CompoundVerdict:
+        return CompoundVerdict(code=code, label=LABELS[code], reason=reason,
+                               conflicts=tuple(conflicts if conf is None else conf), **common)
 
     listed = f" Inconclusive P-E loops ({_ids(inconclusive)}) were not counted." if inconclusive else ""
+    if model.relaxor_maxima_K:
+        listed += (" Permittivity maxima that move with frequency (relaxor-like, at "
+                   f"{', '.join(f'{t:.0f} K' for t in model.relaxor_maxima_K)}) are not taken as transitions.")
+    if qualifiers:
+        listed += " Tested at one temperature only."
 
-    if conflicts:
-        reason = conflicts[0].message[0].upper() + conflicts[0].message[1:] + "."
+    review = [c for c in conflicts if not c.blocking]
+    if review:
+        listed += f" For review: {review[0].message}; possibly {review[0].suggestion}."
+        if len(review) > 1:
+            listed += f" {len(review) - 1} more such flag(s) listed."
+    blocking = [c for c in conflicts if c.blocking]
+    if blocking:
+        c0 = blocking[0]
+        reason = _cap(c0.message) + f". Possible explanation: {c0.suggestion}."
         if len(conflicts) > 1:
-            reason += f" {len(conflicts) - 1} more conflict(s) listed; check samples, contacts and the structure."
-        else:
-            reason += " Check the samples, the electrodes and the structure."
+            reason += f" {len(conflicts) - 1} more conflict(s) listed."
         return verdict("conflicting", reason, conflicts)
 
-    switch_text = describe_temperatures("switching seen", [s.temperature_K for s in switching], transitions)
-    if switching:
-        methods = sorted({_KIND_NAMES[s.kind] for s in switching})
-        matched = [
-            st for st in polar if any(_same_phase(s.temperature_K, st.temperature_K, transitions) for s in switching)
-        ]
+    def phase_notes(sw: Sequence[Evidence]) -> str:
+        notes = []
+        for st, s, c in pairs:
+            if s not in sw:
+                continue
+            if c.same is None and c.gap_K is not None:
+                notes.append(f"{_structure_phrase(st)} and switching at {s.temperature_K:.0f} K: {c.text()}")
+            elif c.same is None:
+                notes.append(f"{_structure_phrase(st)}: temperature not recorded, so its phase is not known")
+            elif c.same is False:
+                notes.append(f"{_structure_phrase(st)} lies across the transition at {c.between[0].label()}")
+        seen: list[str] = []
+        for n in notes:
+            if n not in seen:
+                seen.append(n)
+        return (" " + "; ".join(_cap(n) for n in seen[:3]) + ".") if seen else ""
+
+    if pund_sw:
+        temps = [s.temperature_K for s in pund_sw if s.temperature_K is not None]
+        rng = switching_range_text(temps, transitions) if temps else "switches (temperature not recorded)"
+        matched = [st for st, s, c in pairs if st.verdict == "polar" and s in pund_sw and c.same]
         if matched:
             st = matched[0]
-            note = ""
-            if st.temperature_K is None or any(s.temperature_K is None for s in switching):
-                note = " Some temperatures are not recorded, so the same phase was assumed."
             return verdict(
                 "polar_switching_supported",
-                f"{_cap(_structure_phrase(st))} and switching by {' and '.join(methods)} "
-                f"({_ids(switching)}): {switch_text}, in the same phase.{note}{listed}",
+                f"{_cap(_structure_phrase(st))} and PUND switching ({_ids(pund_sw)}) in one scanned phase: "
+                f"{rng}.{listed}",
             )
-        if structures:
-            others = "; ".join(_structure_phrase(st) for st in structures)
-            where = (
-                f" Known structures ({others}) lie across a transition from the switching temperatures: "
-                "determine the structure of the switching phase."
-            )
-        else:
-            where = " No crystal structure is known, so polarity of the switching phase is not shown."
+        where = phase_notes(pund_sw) or (" No crystal structure is known, so polarity of the switching phase is "
+                                         "not shown." if not structures else "")
+        return verdict("switching_phase_unknown", f"PUND switching ({_ids(pund_sw)}): {rng}.{where}{listed}")
+
+    if loops_sat:
+        temps = [s.temperature_K for s in loops_sat if s.temperature_K is not None]
+        rng = describe_temperatures("saturated loops", temps, transitions) if temps else "saturated loops"
+        matched = [st for st, s, c in pairs if st.verdict == "polar" and c.same]
+        polar_note = f" {_cap(_structure_phrase(matched[0]))} is in the same scanned phase." if matched else \
+            phase_notes(loops_sat)
         return verdict(
-            "switching_phase_unknown",
-            f"Switching by {' and '.join(methods)} ({_ids(switching)}): {switch_text}.{where}{listed}",
+            "loop_switching_only",
+            f"{_cap(rng)} ({_ids(loops_sat)}), but no PUND shows switching: a loop alone can come from leakage or "
+            f"loss.{polar_note}{listed}",
         )
 
+    neg = f" {_cap(_negative_text(negatives))}." if negatives else ""
     if polar:
         st = polar[0]
-        tested = (
-            f" No switching seen ({_ids(negatives)})."
-            if negatives
-            else " Switching not yet measured."
-        )
-        return verdict(
-            "polar_unswitched",
-            f"{_cap(_structure_phrase(st))}: pyroelectric at most until switching is shown.{tested}{listed}",
-        )
+        tested = neg or " Switching not yet measured."
+        return verdict("polar_unswitched",
+                       f"{_cap(_structure_phrase(st))}: pyroelectric at most until switching is shown.{tested}{listed}")
     if nonpolar:
         phrases = "; ".join(_structure_phrase(st) for st in nonpolar)
-        tail = (
-            " A non-polar acentric class can be piezoelectric but not ferroelectric."
-            if any(st.verdict == "non_polar_acentric" for st in nonpolar)
-            else ""
-        )
-        return verdict("nonpolar", f"Only non-polar phases known: {phrases}; no switching seen.{tail}{listed}")
+        tail = (" A non-polar acentric class can be piezoelectric but not ferroelectric."
+                if any(st.verdict == "non_polar_acentric" for st in nonpolar) else "")
+        return verdict("nonpolar", f"Only non-polar phases known: {phrases}; no switching seen.{neg}{tail}{listed}")
+    ferroic = [t for t in transitions if t.transition_class in FERROIC_CANDIDATES]
+    if transitions and not ferroic:
+        trs = ", ".join(t.label() for t in transitions)
+        text = f"only melting-type transitions ({trs}): phase boundaries, not evidence of a ferroic transition"
+        if negatives:
+            return verdict("no_switching_seen", f"{_cap(_negative_text(negatives))}; no structure known, and {text}."
+                                                f"{listed}")
+        return verdict("untested", f"{_cap(text)}; no structure or switching yet.{listed}")
     if transitions:
         trs = ", ".join(t.label() for t in transitions)
-        tested = f" No switching seen ({_ids(negatives)})." if negatives else ""
         return verdict(
             "transition_only",
-            f"Transition(s) at {trs}, but no structure and no switching to show a polar phase.{tested}{listed}",
+            f"Transition(s) at {trs}, but no structure and no switching to show a polar phase.{neg}{listed}",
         )
     if negatives:
-        neg_text = describe_temperatures("no switching", [n.temperature_K for n in negatives], transitions)
-        return verdict(
-            "no_switching_seen",
-            f"{_cap(neg_text)} ({_ids(negatives)}); no structure or transition known.{listed}",
-        )
+        return verdict("no_switching_seen", f"{_cap(_negative_text(negatives))}; no structure or transition known."
+                                            f"{listed}")
     if inconclusive:
-        return verdict("untested", f"Only inconclusive P-E loops ({_ids(inconclusive)}) so far.")
-    return verdict("untested", "No polarity, switching or transition measurements analysed yet.")
+        return verdict("untested", f"Only inconclusive P-E loops ({_ids(inconclusive)}) so far.{listed}")
+    return verdict("untested", f"No polarity, switching or transition measurements analysed yet.{listed}")
+
+
+def _eyring_rate_s(rate: Mapping[str, Any], t_K: float | None) -> float | None:
+    """k = kB T / h exp(dS/R) exp(-dH / (R T)) (Eyring 1935), s^-1; None without the numbers."""
+    if t_K is None or rate.get("dh_kJ_mol") is None or rate.get("ds_J_molK") is None:
+        return None
+    from scipy.constants import R, h, k  # CODATA 2018
+
+    return k * t_K / h * math.exp(float(rate["ds_J_molK"]) / R) * math.exp(-float(rate["dh_kJ_mol"]) * 1e3 / (R * t_K))
+
+
+def _criteria(model: PhaseModel, pairs, pund_sw, pund_none, loops_sat, loops_neg, structures) -> tuple[Criterion, ...]:  # noqa: ANN001
+    ids = lambda evs: tuple(sorted({e.measurement_id for e in evs}))  # noqa: E731
+    # 1. a polar structure in the same (scanned) phase as the switching
+    same = [(st, s) for st, s, c in pairs if c.same]
+    polar_same = [(st, s) for st, s in same if st.verdict == "polar"]
+    if polar_same:
+        c1 = Criterion("polar structure in the switching phase", "met",
+                       ids([st for st, _ in polar_same] + [s for _, s in polar_same]))
+    elif same:
+        c1 = Criterion("polar structure in the switching phase", "unmet", ids([st for st, _ in same] + [s for _, s in same]))
+    else:
+        c1 = Criterion("polar structure in the switching phase", "untested", ids(structures))
+    # 2. switching by PUND (not a loop alone)
+    if pund_sw:
+        c2 = Criterion("switching shown by PUND", "met", ids(pund_sw))
+    elif pund_none:
+        c2 = Criterion("switching shown by PUND", "unmet", ids(pund_none))
+    else:
+        c2 = Criterion("switching shown by PUND", "untested", ())
+    # 3. a saturated loop
+    if loops_sat:
+        c3 = Criterion("saturated loop", "met", ids(loops_sat))
+    elif loops_neg:
+        c3 = Criterion("saturated loop", "unmet", ids(loops_neg))
+    else:
+        c3 = Criterion("saturated loop", "untested", ())
+    # 4. Pr -> 0 within a few kelvin of the permittivity peak and the DSC anomaly
+    prz = model.pr_vanishing
+    name4 = "Pr vanishes at the permittivity peak and the DSC anomaly"
+    if prz is None:
+        c4 = Criterion(name4, "untested", ())
+    else:
+        tr = next((t for t in model.transitions if t.t_pr_zero_K is not None), None)
+        if tr is not None and {"dsc", "dielectric", "series"} <= set(tr.sources):
+            c4 = Criterion(name4, "met", tr.measurement_ids)
+        else:
+            c4 = Criterion(name4, "unmet", tr.measurement_ids if tr else prz.measurement_ids)
+    # 5. a second polarity test: no measurement kind for SHG exists yet, so it is untested
+    c5 = Criterion("second polarity test (SHG)", "untested", ())
+    return (c1, c2, c3, c4, c5)
 
 
 def _at(t: float | None) -> str:

@@ -71,8 +71,10 @@ class Evidence:
 
 
 def evidence_at_measured_temperature(results: Mapping[str, Any], temperature_K: Optional[float]) -> Evidence:
-    """Evidence that speaks for the temperature the file was measured at, with no details (loops, PUND)."""
-    return Evidence(temperature_K)
+    """Evidence that speaks for the temperature the file was measured at (loops, PUND), with the field,
+    drive frequency or pulse width and Pr the verdict needs (a negative result keeps its highest field)."""
+    keys = ("emax_kV_cm", "e_pulse_kV_cm", "frequency_Hz", "pulse_width_s", "pr_uC_cm2")
+    return Evidence(temperature_K, {k: results[k] for k in keys if results.get(k) is not None})
 
 
 @dataclass(frozen=True)

@@ -21,7 +21,8 @@ def _analyse(raw: bytes, c, ctx):
 
 
 def _evidence(results: dict[str, Any], temperature_K: Optional[float]) -> Evidence:
-    return Evidence(results.get("temperature_K") or temperature_K, {"space_group": results.get("space_group")})
+    return Evidence(results.get("temperature_K") or temperature_K,
+                    {"space_group": results.get("space_group"), "bowl_depth_A": results.get("bowl_depth_A")})
 
 
 def _stats(ms: Sequence[Any]) -> dict[str, Any]:
@@ -81,6 +82,9 @@ KIND = Kind(
         ResultKey("molar_mass_g_mol", "molar mass", "g/mol", 5),
         ResultKey("temperature_K", "temperature", "K", 4),
         ResultKey("r1", "R1", "", 3),
+        ResultKey("wr2", "wR2", "", 3),
+        ResultKey("goof", "goodness of fit S", "", 3),
+        ResultKey("flack", "Flack parameter", "", 2),
         ResultKey("formula_cif", "formula (CIF)"),
         ResultKey("data_block", "data block"),
         ResultKey("bowl_depth_A", "bowl depth", "Å", 3),

@@ -23,8 +23,12 @@ def _figure(parsed, result):
 
 
 def _evidence(results: dict[str, Any], temperature_K: Optional[float]) -> Evidence:
-    t = results.get("t_peak_K")
-    return Evidence(temperature_K, {"t_peak_K": t} if t is not None else {})
+    """The maximum, whether it moves with frequency (``dispersion_K`` above the analysis threshold shows
+    as the ``frequency_dispersion`` flag, read by the verdict) and the scanned range."""
+    details: dict[str, Any] = {"t_min_K": results.get("t_min_K"), "t_max_K": results.get("t_max_K")}
+    if results.get("t_peak_K") is not None:
+        details["t_peak_K"] = results["t_peak_K"]
+    return Evidence(temperature_K, details)
 
 
 def _stats(ms: Sequence[Any]) -> dict[str, Any]:
@@ -82,6 +86,8 @@ KIND = Kind(
         ResultKey("vf_t_err_K", "T_VF error", "K", 2),
         ResultKey("vf_f0_Hz", "f₀ (Vogel-Fulcher)", "Hz", 3),
         ResultKey("vf_log10_f0_err", "log₁₀ f₀ error", "", 2),
+        ResultKey("t_min_K", "scanned from", "K", 4),
+        ResultKey("t_max_K", "scanned to", "K", 4),
     ),
     summary_keys=("t_peak_K", "curie_constant_K"),
     figure=_figure,

@@ -8,15 +8,13 @@ from typing import Any, Optional, Sequence
 from scipy.constants import R as R_J_MOLK  # CODATA 2018
 
 from ..analysis import dsc
+from ..analysis.phases import MELTING_DS_J_MOLK
 from ..plots.dsc import dsc_figure
 from ..synth.dsc import dsc_trace
 from .base import EXAMPLE_SMILES, Evidence, Example, Kind, Need, ResultKey, example_csv, rng_for
 
-# Walden's rule: entropies of fusion of rigid organic molecules are about 56 J/(mol K) (P. Walden,
-# Z. Elektrochem. 14, 713 (1908); memory), while order-disorder solid-solid transitions of a dipole
-# with a few orientations have R ln 2 to R ln 4, i.e. 6-12 J/(mol K). A DSC peak above 40 J/(mol K) is
-# taken as melting (common practice) and is not evidence of a ferroelectric phase transition.
-MELTING_DS_J_MOLK = 40.0
+# A DSC peak above MELTING_DS_J_MOLK is taken as melting (rule and sources in server.analysis.phases).
+
 
 # The example: 4.79 mg of the example bowl (C27H24O6, 444.48 g/mol), an order-disorder peak at
 # 432 K with dS = R ln 2, and melting at 538 K with dS = 75 J/(mol K), heated at 10 K/min.
@@ -41,9 +39,14 @@ def _figure(parsed, result):
 
 
 def _evidence(results: dict[str, Any], temperature_K: Optional[float]) -> Evidence:
-    peaks = [p["peak_K"] for p in results.get("peaks") or []
-             if p.get("peak_K") is not None and not looks_like_melting(p)]
-    return Evidence(temperature_K, {"peak_K": peaks})
+    """Every peak (melting included: it is a phase boundary) with its scan direction and entropy, and
+    the temperature range of each heating or cooling segment, for the phase model."""
+    peaks = [{"peak_K": p["peak_K"], "onset_K": p.get("onset_K"), "ds_J_molK": p.get("ds_J_molK"),
+              "scan": p.get("segment_direction") or "heating", "endothermic": p.get("direction") != "exo"}
+             for p in results.get("peaks") or [] if p.get("peak_K") is not None]
+    segments = [{"t_from_K": s["t_start_K"], "t_to_K": s["t_end_K"], "scan": s.get("direction", "")}
+                for s in results.get("segments") or [] if s.get("t_start_K") is not None]
+    return Evidence(temperature_K, {"peaks": peaks, "segments": segments})
 
 
 def _stats(ms: Sequence[Any]) -> dict[str, Any]:
@@ -96,7 +99,7 @@ KIND = Kind(
         ResultKey("dh_J_g", "ΔH", "J/g", 3),
         ResultKey("dh_kJ_mol", "ΔH", "kJ/mol", 3),
         ResultKey("ds_J_molK", "ΔS", "J/(mol K)", 3),
-        ResultKey("n_states", "Boltzmann states N = exp(|ΔS|/R)", "", 3),
+        ResultKey("n_states", "N in ΔS = R ln N (orientational states)", "", 3),
         ResultKey("index", "scan"),
         ResultKey("t_start_K", "from", "K", 4),
         ResultKey("t_end_K", "to", "K", 4),

@@ -77,6 +77,10 @@ def summary(session: Session, *, actor: Optional[Actor], days: int = 7) -> dict[
         live, (CompoundStats.kinds.like("%,pe_loop,%")) | (CompoundStats.kinds.like("%,pund,%")))).one()
     verdict_reached = session.exec(select(func.count()).select_from(Compound).where(
         live, EFFECTIVE_CODE != UNTESTED)).one()
+    # counted apart: a verdict from one temperature says nothing about the rest of the phase diagram
+    one_temperature = sum(
+        1 for v in session.exec(select(Compound.verdict).where(live, EFFECTIVE_CODE != UNTESTED)).all()
+        if "tested at one temperature only" in ((v or {}).get("qualifiers") or ()))
     since = utcnow() - timedelta(days=days)
     week = {
         "compounds": session.exec(select(func.count()).select_from(Compound).where(Compound.created_at >= since)).one(),
@@ -109,7 +113,8 @@ def summary(session: Session, *, actor: Optional[Actor], days: int = 7) -> dict[
                                    .where(live).group_by(EFFECTIVE_CODE)).all())
     return {
         "progress": [("registered", registered), ("made", made), ("characterised", characterised),
-                     ("switching tested", switching_tested), ("verdict reached", verdict_reached)],
+                     ("switching tested", switching_tested), ("verdict reached", verdict_reached),
+                     ("tested at one temperature only", one_temperature)],
         "week": week,
         "days": days,
         "new_compounds": new_compounds,

@@ -11,7 +11,8 @@ from ..analysis.results import Flag, jsonable
 from ..errors import InputError
 from ..kinds import KINDS
 from ..verdict_codes import LABELS, RETIRED, effective
-from ..models import Batch, Compound, Measurement, utcnow, live_measurement
+from ..analysis.constants import CAL_J
+from ..models import Batch, Compound, CompoundSideChain, Measurement, utcnow, live_measurement
 from . import audit
 
 
@@ -36,6 +37,34 @@ def evidence_for(session: Session, compound: Compound) -> list[rules.Evidence]:
     return out
 
 
+def chain_ch2(session: Session, compound: Compound) -> int | None:
+    """CH2 groups in the compound's alkyl, alkoxy and alkylthio side chains: (carbons - 1) per chain
+    (one terminal CH3; a branched chain counts the same, an approximation); None without such chains."""
+    rows = session.exec(select(CompoundSideChain).where(CompoundSideChain.compound_id == compound.id,
+                                                        CompoundSideChain.kind != "other")).all()
+    n = sum(max(r.carbons - 1, 0) * r.count for r in rows)
+    return n or None
+
+
+def measured_rates(session: Session, compound: Compound) -> list[dict[str, Any]]:
+    """Eyring dH and dS of the compound's live NMR rate tables, in kJ/mol and J/(mol K)."""
+    rows = session.exec(
+        select(Measurement).join(Batch, Batch.id == Measurement.batch_id)
+        .where(Batch.compound_id == compound.id, live_measurement(), Measurement.kind == "nmr_rates").order_by(Measurement.id)
+    ).all()
+    out = []
+    for m in rows:
+        r = m.results or {}
+        if r.get("dh_kcal_mol") is not None and r.get("ds_cal_molK") is not None:
+            out.append({"measurement_id": m.id, "dh_kJ_mol": r["dh_kcal_mol"] * CAL_J,
+                        "ds_J_molK": r["ds_cal_molK"] * CAL_J})
+    return out
+
+
+def decide_for(session: Session, compound: Compound, evidence: list[rules.Evidence]) -> rules.CompoundVerdict:
+    return rules.decide(evidence, chain_ch2=chain_ch2(session, compound), rates=measured_rates(session, compound))
+
+
 def batch_verdicts(session: Session, compound: Compound) -> dict[int, rules.CompoundVerdict]:
     """The verdict each batch's own evidence supports (computed on the fly, not stored)."""
     by_batch: dict[int, list[rules.Evidence]] = {}
@@ -43,7 +72,7 @@ def batch_verdicts(session: Session, compound: Compound) -> dict[int, rules.Comp
         select(Measurement).join(Batch, Batch.id == Measurement.batch_id).where(Batch.compound_id == compound.id))}
     for ev in evidence_for(session, compound):
         by_batch.setdefault(ids[ev.measurement_id], []).append(ev)
-    return {bid: rules.decide(evs) for bid, evs in by_batch.items()}
+    return {bid: decide_for(session, compound, evs) for bid, evs in by_batch.items()}
 
 
 def recompute(session: Session, compound: Compound, *, actor: str = "system:verdict") -> rules.CompoundVerdict:
@@ -52,7 +81,7 @@ def recompute(session: Session, compound: Compound, *, actor: str = "system:verd
     A change of the computed code, or of its conflicts, is audited as ``verdict.change`` (old and new
     code, the reason, the conflicts): the weekly digest reads these events.
     """
-    decision = rules.decide(evidence_for(session, compound))
+    decision = decide_for(session, compound, evidence_for(session, compound))
     old_conflicts = [c.get("message", "") for c in (compound.verdict or {}).get("conflicts") or []]
     new_conflicts = [c.message for c in decision.conflicts]
     if compound.id is not None and (decision.code != compound.verdict_code or new_conflicts != old_conflicts):
@@ -101,7 +130,9 @@ def set_override(*, session: Session, compound: Compound, code: Optional[str], r
 
 def verdict_read(compound: Compound) -> dict[str, Any]:
     computed = compound.verdict or {"code": compound.verdict_code, "label": LABELS.get(compound.verdict_code, "")}
-    out: dict[str, Any] = {"computed": computed, "override": None}
+    # criteria and phases are shown at the top level of verdict_evidence (issue 15 API keys)
+    out: dict[str, Any] = {"computed": computed, "override": None,
+                           "criteria": computed.get("criteria") or [], "phases": computed.get("phases") or []}
     if compound.override_code:
         out["override"] = {"code": compound.override_code, "label": LABELS.get(compound.override_code, ""),
                            "reason": compound.override_reason, "by": compound.override_by,

@@ -103,8 +103,10 @@ def test_hand_cif_end_to_end():
     assert r.temperature_K == pytest.approx(150.0)
     assert r.r1 == pytest.approx(0.0412)
     assert r.formula_cif == "C6 H6"
-    # a single ring is no bowl core; 4 x C6H6 matches the 48 atoms in the cell; densities agree
-    assert codes(r) == {"no_bowl_core"}
+    # a single ring is no bowl core; 4 x C6H6 matches the 48 atoms in the cell; densities agree. Quality: the
+    # file gives R1 but no wR2, and 0.975 g/cm3 is below the 1.1-1.6 g/cm3 usual for organic crystals
+    # (common practice)
+    assert codes(r) == {"no_bowl_core", "r_factors_missing", "density_implausible"}
     assert r.bowl_depth_A is None and r.column_polar is None
     d = r.to_dict()
     assert d["verdict"] == "centrosymmetric" and d["cell"]["volume"] == pytest.approx(V_HAND_A3, abs=0.01)
@@ -230,7 +232,8 @@ def test_head_to_tail_column_is_polar(crystals):
     # every operation of P2_1 is a rotation about b, which keeps an axis along b: all parallel
     assert r.neighbours_same_direction == pytest.approx(1.0)
     assert r.z == 2 and r.temperature_K == pytest.approx(120.0)
-    assert codes(r) == set()
+    # the invented CIF has no refinement and a right-angled monoclinic cell: the referee's flags say so
+    assert codes(r) == {"r_factors_missing", "absolute_structure_missing", "monoclinic_beta_90"}
 
 
 def test_pna21_column_along_c(crystals):
@@ -348,3 +351,58 @@ def test_molecule_on_inversion_centre_is_rebuilt_and_flat():
     assert "cell_content_mismatch" not in codes(r)  # 2 x C10H8 = 36 atoms in the cell
     assert r.bowl_depth_A == pytest.approx(0.0, abs=0.01)
     assert "flat_core" in codes(r) and r.column_polar is None
+
+
+# ---------------------------------------------------------------- quality flags (issue 15)
+
+
+def _quality(**kw):
+    from server.analysis.crystal import quality_flags
+
+    base = dict(r1=0.045, wr2=0.11, density_g_cm3=1.35, stacking_distance_A=3.6, crystal_system="monoclinic",
+                beta_deg=97.3, polar=True, chiral=True, flack=0.02)
+    base.update(kw)
+    return {f.code for f in quality_flags(**base)}
+
+
+def test_quality_flags_clean_structure_has_none():
+    assert _quality() == set()
+
+
+def test_quality_density_of_0_7_is_implausible():
+    # Packed organic crystals sit near 1.2-1.5 g/cm3 (common practice, from memory); 0.7 is a mostly empty cell.
+    assert _quality(density_g_cm3=0.70) == {"density_implausible"}
+    assert _quality(density_g_cm3=1.12) == set()
+
+
+def test_quality_column_of_6_5_A_is_no_pi_stack():
+    # pi-stacked bowls sit near 3.4-4.2 A (common practice, from memory).
+    assert _quality(stacking_distance_A=6.5) == {"column_too_long"}
+
+
+def test_quality_missing_r_factors_beta_90_and_no_flack():
+    assert _quality(r1=None, wr2=None) == {"r_factors_missing"}
+    assert _quality(beta_deg=90.0) == {"monoclinic_beta_90"}
+    assert _quality(beta_deg=90.0, crystal_system="orthorhombic") == set()
+    # ITA Vol. A polar classes need the absolute structure (Flack, Acta Cryst. A39, 876 (1983)) to fix the
+    # polar direction; a centrosymmetric, achiral structure does not.
+    assert _quality(flack=None) == {"absolute_structure_missing"}
+    assert _quality(flack=None, polar=False, chiral=False) == set()
+
+
+def test_cif_refinement_numbers_read_and_flags_raised():
+    from server.analysis.crystal import analyse_cif
+    from server.synth.cif import bowl_crystal_cif
+
+    parent = "C1c2ccc3Cc4ccc5Cc6ccc1c7c6c5c4c3c27"
+    raw = bowl_crystal_cif(parent, "P2_1", stacking_A=6.5, temperature_K=150.0)
+    r = analyse_cif(raw, core_smiles=parent)
+    codes = {f.code for f in r.flags}
+    assert {"r_factors_missing", "column_too_long", "absolute_structure_missing"} <= codes
+    text = raw.decode() + ("\n_refine_ls_R_factor_gt 0.0412\n_refine_ls_wR_factor_ref 0.1033\n"
+                           "_refine_ls_goodness_of_fit_ref 1.045\n_refine_ls_abs_structure_Flack 0.03(4)\n")
+    r2 = analyse_cif(text.encode(), core_smiles=parent)
+    assert (r2.r1, r2.wr2, r2.goof, r2.flack) == pytest.approx((0.0412, 0.1033, 1.045, 0.03))
+    codes2 = {f.code for f in r2.flags}
+    assert "r_factors_missing" not in codes2 and "absolute_structure_missing" not in codes2
+    assert r2.to_dict()["wr2"] == pytest.approx(0.1033)

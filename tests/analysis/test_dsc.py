@@ -246,3 +246,23 @@ def test_heat_hold_cool_with_noisy_hold():
     for p in res.peaks:
         assert abs(p.dh_J_g) == pytest.approx(IN_DH_J_G, rel=0.01)
         assert p.onset_K == pytest.approx(IN_ONSET_K, abs=0.3)
+
+
+def test_orientational_count_only_where_plausible():
+    # dS = R ln N (Boltzmann): R ln 2 gives N = 2; a chain-melting entropy of 38 J/(mol K) would give N = 97, which
+    # is no count of bowl orientations, so N is withheld and a flag says why.
+    from scipy.constants import R
+
+    from server.analysis.dsc import MAX_ORIENTATIONAL_STATES
+    from server.synth.dsc import dsc_trace
+
+    mm, t1, t2 = 444.48, 300.0, 360.0
+    frame = dsc_trace([{"t_K": t1, "dh_J_g": R * math.log(2) * t1 / mm, "width_K": 4.0, "kind": "gaussian"},
+                       {"t_K": t2, "dh_J_g": 38.0 * t2 / mm, "width_K": 4.0, "kind": "gaussian"}],
+                      t_start_K=250.0, t_end_K=400.0, rate_K_min=10.0, mass_mg=4.0, noise_mW=0.002,
+                      rng=np.random.default_rng(3))
+    r = analyse_dsc(canonical(frame), mass_mg=4.0, rate_K_min=10.0, endo="up", molar_mass_g_mol=mm)
+    small, large = sorted(r.peaks, key=lambda p: p.peak_K)
+    assert small.n_states == pytest.approx(2.0, abs=0.1)
+    assert math.exp(large.ds_J_molK / R) > MAX_ORIENTATIONAL_STATES and large.n_states is None
+    assert "entropy_too_large_for_orientations" in {f.code for f in r.flags}

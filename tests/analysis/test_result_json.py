@@ -131,6 +131,6 @@ def test_generic_serialiser_converts_what_json_cannot_hold():
 
     s = Sample(n=np.int64(3), x=np.float64("nan"), pair=(np.float32(0.5), np.bool_(True)),
                nested=verdict.Conflict("m", (np.int64(1), 2)), trace=np.arange(4.0))
-    assert s.to_dict() == {"n": 3, "x": None, "pair": [0.5, True], "nested": {"message": "m", "measurement_ids": [1, 2]}}
+    assert s.to_dict() == {"n": 3, "x": None, "pair": [0.5, True], "nested": {"message": "m", "measurement_ids": [1, 2], "suggestion": "", "blocking": True}}
     assert type(s.to_dict()["n"]) is int and type(s.to_dict()["pair"][1]) is bool
     assert json.loads(json.dumps(s.to_dict(), allow_nan=False)) == s.to_dict()

@@ -10,37 +10,50 @@ from __future__ import annotations
 
 import pytest
 
+from server.analysis.results import Flag
 from server.analysis.verdict import VERSION, Evidence, decide, describe_temperatures
 from server.verdict_codes import LABELS
 from server.errors import AnalysisError
 
 
-def crystal(mid, verdict, t=None, sg=None):
-    return Evidence("crystal", mid, verdict, t, {"space_group": sg} if sg else {})
+def crystal(mid, verdict, t=None, sg=None, flags=(), **details):
+    d = {"space_group": sg} if sg else {}
+    d.update(details)
+    return Evidence("crystal", mid, verdict, t, d, tuple(Flag(c, c) for c in flags))
 
 
-def loop(mid, verdict, t=None):
-    return Evidence("pe_loop", mid, verdict, t)
+def loop(mid, verdict, t=None, **details):
+    return Evidence("pe_loop", mid, verdict, t, details)
 
 
-def pund(mid, verdict, t=None):
-    return Evidence("pund", mid, verdict, t)
+def pund(mid, verdict, t=None, **details):
+    return Evidence("pund", mid, verdict, t, details)
 
 
-def dsc(mid, peaks):
-    return Evidence("dsc", mid, "transition", None, {"peak_K": peaks})
+def dsc(mid, peaks, scan=(240.0, 420.0), cooling=False):
+    """A DSC run heated over ``scan`` (and cooled back when ``cooling``); ``peaks`` are heating-peak
+    temperatures or full peak dicts."""
+    rows = [p if isinstance(p, dict) else {"peak_K": p, "scan": "heating", "endothermic": True} for p in peaks]
+    segs = [{"t_from_K": scan[0], "t_to_K": scan[1], "scan": "heating"}]
+    if cooling:
+        segs.append({"t_from_K": scan[1], "t_to_K": scan[0], "scan": "cooling"})
+    return Evidence("dsc", mid, "transition", None, {"peaks": rows, "segments": segs})
 
 
-def dielectric(mid, t_peak):
-    return Evidence("dielectric", mid, "anomaly", None, {"t_peak_K": t_peak})
+def dielectric(mid, t_peak, scan=(200.0, 420.0), dispersive=False):
+    flags = (Flag("frequency_dispersion", "moves with frequency"),) if dispersive else ()
+    return Evidence("dielectric", mid, "anomaly", None,
+                    {"t_peak_K": t_peak, "t_min_K": scan[0], "t_max_K": scan[1]}, flags)
 
 
-def test_polar_switching_supported_with_temperature_wording():
+def test_polar_switching_supported_in_one_scanned_phase():
+    # IEEE Std 180-1986: a spontaneous polarisation a field reverses. The polar structure (320 K) and the
+    # PUND switching (300-340 K) lie in one DSC-scanned interval (240-420 K) above the 290 K transition.
     ev = [
         crystal(1, "polar", 320.0, "Pna2_1"),
         pund(2, "switching", 300.0),
         pund(3, "switching", 340.0),
-        loop(4, "ferroelectric", 320.0),
+        loop(4, "switching", 320.0),
         dsc(5, [290.0]),
     ]
     v = decide(ev)
@@ -48,40 +61,60 @@ def test_polar_switching_supported_with_temperature_wording():
     assert v.label == LABELS["polar_switching_supported"]
     assert v.switching_temperatures_K == (300.0, 340.0)
     assert v.transitions_K == (290.0,)
-    assert "switching seen at 300-340 K, above the transition at 290 K (DSC)" in v.reason
+    assert "switches at 300-340 K" in v.reason
     assert "Pna2_1" in v.reason
     assert {u.measurement_id: u.role for u in v.used} == {
-        1: "polar_phase",
-        2: "switching",
-        3: "switching",
-        4: "switching",
-        5: "transition",
-    }
+        1: "polar_phase", 2: "switching", 3: "switching", 4: "saturated_loop", 5: "transition"}
     assert v.conflicts == ()
+    crit = {c.name: c.state for c in v.criteria}
+    assert crit["polar structure in the switching phase"] == "met"
+    assert crit["switching shown by PUND"] == "met"
+    assert crit["saturated loop"] == "met"
+    assert crit["second polarity test (SHG)"] == "untested"
 
 
-def test_polar_structure_in_another_phase_does_not_prove():
-    # polar structure at 100 K, switching at 300-340 K, a transition at 290 K in between:
-    # the switching phase's structure is not known
-    ev = [crystal(1, "polar", 100.0), pund(2, "switching", 300.0), pund(3, "switching", 340.0), dsc(4, [290.0])]
+def test_polar_structure_in_another_phase_does_not_support():
+    # polar structure at 260 K, switching at 300-340 K, the 290 K transition in between (Lines and Glass 1977:
+    # a transition changes the phase, so the structure does not describe the switching phase)
+    ev = [crystal(1, "polar", 260.0), pund(2, "switching", 300.0), pund(3, "switching", 340.0), dsc(4, [290.0])]
     v = decide(ev)
     assert v.code == "switching_phase_unknown"
-    assert "above the transition at 290 K (DSC)" in v.reason
-    assert "across a transition" in v.reason
+    assert "lies across the transition at 290 K" in v.reason
 
 
-def test_switching_phase_unknown_without_structure():
-    v = decide([loop(1, "ferroelectric", 295.0)])
+def test_unscanned_gap_leaves_phase_continuity_not_shown():
+    # The reproduced case: P2_1 at 150 K; PUND at 302-363 K; DSC from 240 K, permittivity from 340 K. 150-240 K
+    # was never examined, so the structure and the switching are not shown to be one phase.
+    ev = [crystal(1, "polar", 150.0, "P2_1"), pund(2, "switching", 302.0), pund(3, "switching", 363.0),
+          dsc(4, [], scan=(240.0, 400.0)), dielectric(5, None, scan=(340.0, 400.0))]
+    v = decide(ev)
     assert v.code == "switching_phase_unknown"
-    assert v.switching_temperatures_K == (295.0, 295.0)
-    assert "No crystal structure" in v.reason
+    assert "phase continuity not shown between 150 K and 240 K" in v.reason
+    assert "a DSC or permittivity scan from 150 K to 240 K would close the gap" in v.reason
+    rows = [(p.t_from_K, p.t_to_K, p.scanned) for p in v.phases]
+    assert rows[0] == (150.0, 240.0, False)
+    assert all(p.scanned for p in v.phases[1:])
+    assert {c.name: c.state for c in v.criteria}["polar structure in the switching phase"] == "untested"
 
 
-def test_polar_unswitched():
-    v = decide([crystal(1, "polar", 150.0, "P2_1"), pund(2, "no_switching", 300.0)])
+def test_loop_only_compound_gets_the_weaker_class():
+    # Scott 2008: a closed loop alone can come from leakage or loss; without PUND switching is not confirmed.
+    v = decide([loop(1, "switching", 295.0), loop(2, "ferroelectric", 310.0)])
+    assert v.code == "loop_switching_only"
+    assert v.switching_temperatures_K == (295.0, 310.0)
+    assert "no PUND shows switching" in v.reason
+    crit = {c.name: (c.state, c.measurements) for c in v.criteria}
+    assert crit["switching shown by PUND"] == ("untested", ())
+    assert crit["saturated loop"] == ("met", (1, 2))
+
+
+def test_polar_unswitched_keeps_temperature_and_highest_field():
+    v = decide([crystal(1, "polar", 150.0, "P2_1"), pund(2, "no_switching", 300.0, e_pulse_kV_cm=60.0)])
     assert v.code == "polar_unswitched"
     assert "pyroelectric at most" in v.reason
+    assert "Not switched at 300 K up to 60 kV/cm" in v.reason
     assert v.switching_temperatures_K is None
+    assert v.qualifiers == ("tested at one temperature only",)
 
 
 def test_nonpolar():
@@ -99,15 +132,67 @@ def test_nonpolar_acentric_counts_as_nonpolar():
 def test_transition_only_merges_dsc_and_dielectric():
     v = decide([dsc(1, [288.0, 352.0]), dielectric(2, 291.0), loop(3, "inconclusive", 300.0)])
     assert v.code == "transition_only"
-    # 288 (DSC) and 291 (dielectric) are within 5 K: one transition at their mean
-    assert v.transitions_K == pytest.approx((289.5, 352.0))
+    # 288 (DSC) and 291 (permittivity) are within 5 K: one transition, at the DSC peak
+    assert v.transitions_K == pytest.approx((288.0, 352.0))
     assert v.transitions[0].sources == ("dsc", "dielectric")
     assert "Inconclusive P-E loops (measurement 3)" in v.reason
 
 
+def test_heating_cooling_pair_is_one_transition_with_hysteresis():
+    # Lines and Glass 1977 ch. 4: a first-order transition shows on heating and, lower, on cooling.
+    peaks = [{"peak_K": 400.0, "scan": "heating", "endothermic": True, "ds_J_molK": 9.0, "onset_K": 398.0},
+             {"peak_K": 392.0, "scan": "cooling", "endothermic": False, "ds_J_molK": -9.0}]
+    v = decide([dsc(1, peaks, scan=(300.0, 420.0), cooling=True)])
+    assert v.transitions_K == (400.0,)
+    tr = v.transitions[0]
+    assert (tr.t_heating_K, tr.t_cooling_K, tr.hysteresis_K) == (400.0, 392.0, 8.0)
+    assert tr.transition_class == "solid_solid"
+    assert "400 K" in v.reason and "hysteresis 8 K" in v.reason
+
+
+def test_relaxor_maximum_is_not_a_transition():
+    # Cross, Ferroelectrics 76, 241 (1987): a maximum that moves with frequency is relaxor dispersion.
+    v = decide([dielectric(1, 278.0, dispersive=True)])
+    assert v.transitions_K == ()
+    assert v.code == "untested"
+    assert "relaxor-like, at 278 K" in v.reason
+
+
+def test_crystal_to_mesophase_peak_is_a_phase_boundary():
+    # A large-entropy peak (60 J/(mol K)) with a small reversible clearing peak above it is crystal ->
+    # mesophase, not isotropisation; it still splits the phases, so a 300 K polar structure says nothing
+    # about switching at 340 K.
+    peaks = [{"peak_K": 320.0, "scan": "heating", "endothermic": True, "ds_J_molK": 60.0},
+             {"peak_K": 312.0, "scan": "cooling", "endothermic": False, "ds_J_molK": -58.0},
+             {"peak_K": 420.0, "scan": "heating", "endothermic": True, "ds_J_molK": 6.0},
+             {"peak_K": 418.0, "scan": "cooling", "endothermic": False, "ds_J_molK": -6.0}]
+    v = decide([dsc(1, peaks, scan=(250.0, 450.0), cooling=True), crystal(2, "polar", 300.0, "P2_1"),
+                pund(3, "switching", 340.0)])
+    assert [t.transition_class for t in v.transitions] == ["chain_melting", "isotropisation"]
+    assert v.code == "switching_phase_unknown"
+    assert "lies across the transition at 320 K" in v.reason
+
+
+def test_chain_melting_is_no_ferroic_transition():
+    # 30 J/(mol K) over 6 chain CH2 = 5 J/(mol K) per CH2: chain melting (common practice; polyethylene's
+    # fusion entropy, about 9.9 J/(mol K) per CH2, Wunderlich 1980, is the upper end). Not a ferroic transition.
+    peaks = [{"peak_K": 289.0, "scan": "heating", "endothermic": True, "ds_J_molK": 30.0}]
+    v = decide([dsc(1, peaks)], chain_ch2=6)
+    assert v.transitions[0].transition_class == "chain_melting"
+    assert v.transitions[0].ds_per_ch2_J_molK == pytest.approx(5.0)
+    assert v.code == "untested"
+    assert "chain melting" in v.reason
+    # with a negative switching test it is "no switching seen", not a transition-only compound
+    assert decide([dsc(1, peaks), pund(2, "no_switching", 300.0, e_pulse_kV_cm=60.0)],
+                  chain_ch2=6).code == "no_switching_seen"
+    # without chains the same peak is a solid-solid transition
+    assert decide([dsc(1, peaks)]).code == "transition_only"
+
+
 def test_no_switching_seen():
-    v = decide([pund(1, "no_switching", 300.0)])
+    v = decide([pund(1, "no_switching", 300.0, e_pulse_kV_cm=80.0)])
     assert v.code == "no_switching_seen"
+    assert "Not switched at 300 K up to 80 kV/cm" in v.reason
 
 
 def test_untested_lists_inconclusive_loops():
@@ -122,49 +207,110 @@ def test_conflicting_switching_in_centrosymmetric_phase():
     v = decide([crystal(1, "centrosymmetric", 300.0, "P2_1/c"), pund(2, "switching", 300.0)])
     assert v.code == "conflicting"
     assert v.conflicts[0].measurement_ids == (2, 1)
-    assert "P2_1/c" in v.reason
+    assert "P2_1/c" in v.reason and "Possible explanation" in v.reason
 
 
 def test_centrosymmetric_phase_across_a_transition_is_no_conflict():
-    # centrosymmetric at 100 K, transition at 200 K, switching at 300 K: another phase switches
-    v = decide([crystal(1, "centrosymmetric", 100.0), pund(2, "switching", 300.0), dielectric(3, 200.0)])
+    # centrosymmetric at 250 K, transition at 270 K, switching at 300 K: another phase switches
+    v = decide([crystal(1, "centrosymmetric", 250.0), pund(2, "switching", 300.0), dielectric(3, 270.0)])
     assert v.code == "switching_phase_unknown"
-    assert "above the transition at 200 K (dielectric)" in v.reason
+    assert "lies across the transition at 270 K" in v.reason
 
 
 def test_conflicting_loop_and_pund_same_temperature():
-    v = decide([loop(1, "ferroelectric", 300.0), pund(2, "no_switching", 304.0)])
+    v = decide([loop(1, "switching", 300.0), pund(2, "no_switching", 304.0)])
     assert v.code == "conflicting"
     assert "PUND (measurement 2) shows none at 304 K" in v.reason
-    # 10 K apart is not the same temperature: the loop stands (no structure -> phase unknown)
-    v2 = decide([loop(1, "ferroelectric", 300.0), pund(2, "no_switching", 310.0)])
-    assert v2.code == "switching_phase_unknown"
+    # 10 K apart is not the same temperature: the loop stands, but only as the weaker class
+    v2 = decide([loop(1, "switching", 300.0), pund(2, "no_switching", 310.0)])
+    assert v2.code == "loop_switching_only"
 
 
 def test_conflicting_even_with_polar_structure():
-    v = decide([crystal(1, "polar", 300.0), loop(2, "ferroelectric", 300.0), pund(3, "no_switching", 300.0)])
+    v = decide([crystal(1, "polar", 300.0), loop(2, "switching", 300.0), pund(3, "no_switching", 300.0)])
     assert v.code == "conflicting"
     assert len(v.conflicts) == 1
 
 
-def test_temperature_wording():
-    from server.analysis.verdict import Transition
+def test_flat_core_contradicts_switching_by_inversion():
+    # A flat core (bowl depth 0.05 A) cannot invert, yet PUND switches: a conflict for review.
+    v = decide([crystal(1, "polar", 300.0, "P2_1", bowl_depth_A=0.05), pund(2, "switching", 300.0)])
+    assert v.code == "conflicting"
+    assert "flat core" in v.reason and "another mechanism" in v.reason
 
-    trs = (Transition(290.0, ("dsc",), (1,)), Transition(380.0, ("dielectric",), (2,)))
+
+def test_rate_slower_than_drive_contradicts_full_switching():
+    # Eyring (J. Chem. Phys. 3, 107 (1935)): with dS = 0, k = kB T / h exp(-dH / RT). dH below gives 4 s^-1 at
+    # 298 K (kB T / h = 6.21e12 s^-1 at 298 K, CODATA), far slower than a 100 Hz loop.
+    import math
+
+    from scipy.constants import R, h, k
+
+    dh = R * 298.0 * math.log(k * 298.0 / h / 4.0) / 1e3
+    # A known mechanism (field-assisted switching) can explain it, so it is flagged for review and listed,
+    # without overturning the class.
+    v = decide([loop(1, "switching", 298.0, frequency_Hz=100.0)],
+               rates=[{"measurement_id": 7, "dh_kJ_mol": dh, "ds_J_molK": 0.0}])
+    assert v.code == "loop_switching_only"
+    assert [c.blocking for c in v.conflicts] == [False]
+    assert "4 s^-1" in v.reason and "100 Hz drive" in v.reason and "field-assisted or collective" in v.reason
+    # the 1 ms PUND pulses (1000 s^-1) are faster than the 4 s^-1 rate too
+    v2 = decide([pund(1, "switching", 298.0, pulse_width_s=1e-3)],
+                rates=[{"measurement_id": 7, "dh_kJ_mol": dh, "ds_J_molK": 0.0}])
+    assert "1 ms pulses" in v2.reason and len(v2.conflicts) == 1
+    # a fast rate (dH 40 kJ/mol) raises no flag
+    assert decide([loop(1, "switching", 298.0, frequency_Hz=100.0)],
+                  rates=[{"measurement_id": 7, "dh_kJ_mol": 40.0, "ds_J_molK": 0.0}]).conflicts == ()
+
+
+def test_conclusion_states_range_and_tc_from_three_probes():
+    # Lines and Glass 1977 ch. 1: at Tc the permittivity peaks, the DSC shows the transition and Pr -> 0.
+    loops = [loop(10 + i, "switching", t) for i, t in enumerate((302.0, 320.0, 340.0, 350.0))]
+    loops.append(loop(20, "paraelectric", 362.0))
+    peaks = [{"peak_K": 358.0, "onset_K": 357.0, "scan": "heating", "endothermic": True, "ds_J_molK": 6.0}]
+    ev = [crystal(1, "polar", 300.0, "P2_1"), pund(2, "switching", 302.0), dsc(3, peaks, scan=(280.0, 400.0)),
+          dielectric(4, 359.0, scan=(280.0, 400.0))] + loops
+    v = decide(ev)
+    assert v.code == "polar_switching_supported"
+    assert "switches between 302 K and Tc = 357 ± 2 K (permittivity peak 359 K, DSC onset 357 K, " \
+           "Pr -> 0 at 356 K)" in v.reason
+    assert len(v.transitions_K) == 1
+    crit = {c.name: c.state for c in v.criteria}
+    assert crit["Pr vanishes at the permittivity peak and the DSC anomaly"] == "met"
+
+
+def test_criteria_and_phases_keys():
+    import json
+
+    v = decide([crystal(1, "polar", 300.0), pund(2, "switching", 300.0), dsc(3, [350.0])])
+    d = json.loads(json.dumps(v.to_dict()))
+    assert all(set(c) == {"name", "state", "measurements"} and c["state"] in ("met", "unmet", "untested")
+               for c in d["criteria"])
+    assert all(set(p) == {"t_from_K", "t_to_K", "scanned", "identified_by"} for p in d["phases"])
+    assert [(p["t_from_K"], p["t_to_K"]) for p in d["phases"]] == [(240.0, 350.0), (350.0, 420.0)]
+
+
+def test_temperature_wording():
+    from server.analysis.phases import PhaseTransition
+
+    def tr(t, src, mid):
+        return PhaseTransition(t, None, None, None, None, None, None, None, None, "unclassified", "", (src,), (mid,))
+
+    trs = (tr(290.0, "dsc", 1), tr(380.0, "dielectric", 2))
     assert describe_temperatures("switching seen", [300.0, 340.0], trs) == (
-        "switching seen at 300-340 K, above the transition at 290 K (DSC)"
-        " and below the transition at 380 K (dielectric)"
+        "switching seen at 300-340 K, above the transition at 290 K (DSC; unclassified)"
+        " and below the transition at 380 K (permittivity; unclassified)"
     )
     assert describe_temperatures("switching seen", [280.0, 300.0], trs[:1]) == (
-        "switching seen at 280-300 K, across the transition at 290 K (DSC)"
+        "switching seen at 280-300 K, across the transition at 290 K (DSC; unclassified)"
     )
     assert describe_temperatures("switching seen", [300.0], ()) == "switching seen at 300 K"
     assert describe_temperatures("switching seen", [None], trs) == "switching seen (temperature not recorded)"
 
 
-def test_unknown_temperatures_assumed_same_phase_and_said():
+def test_unknown_temperatures_do_not_show_one_phase():
     v = decide([crystal(1, "polar"), pund(2, "switching")])
-    assert v.code == "polar_switching_supported"
+    assert v.code == "switching_phase_unknown"
     assert "not recorded" in v.reason
 
 
@@ -178,9 +324,21 @@ def test_bad_temperature_raises():
 def test_to_dict_json_ready():
     import json
 
-    v = decide([crystal(1, "polar", 150.0), pund(2, "switching", 160.0)])
+    v = decide([crystal(1, "polar", 150.0), pund(2, "switching", 160.0), dsc(3, [], scan=(120.0, 200.0))])
     d = v.to_dict()
     json.dumps(d)
     assert d["code"] == "polar_switching_supported" and d["version"] == VERSION
     assert d["switching_temperatures_K"] == [160.0, 160.0]
     assert d["used"][0] == {"measurement_id": 1, "kind": "crystal", "role": "polar_phase", "temperature_K": 150.0}
+
+
+def test_quality_flags_lower_a_structures_weight_but_keep_it():
+    # Two polar structures in the scanned switching phase: the clean one is cited first; a structure with
+    # quality flags still counts (flags lower the weight, never delete), and says so.
+    flagged = crystal(1, "polar", 300.0, "P2_1", flags=("density_implausible", "column_too_long"))
+    clean = crystal(2, "polar", 305.0, "Pna2_1")
+    v = decide([flagged, clean, pund(3, "switching", 300.0), dsc(4, [])])
+    assert v.code == "polar_switching_supported" and "Pna2_1" in v.reason
+    v1 = decide([flagged, pund(3, "switching", 300.0), dsc(4, [])])
+    assert v1.code == "polar_switching_supported"
+    assert "weight lowered by density implausible, column too long" in v1.reason

@@ -7,6 +7,7 @@ from sqlmodel import select
 
 from server.chem.scaffold import PARENT_BOWLS
 from server.ingest.table import to_csv_bytes
+from server.kinds import KINDS
 from server.models import CrystalPhase
 from server.synth.cif import bowl_crystal_cif
 from server.synth.ferro import leaky_capacitor, miller_loop
@@ -38,16 +39,27 @@ def verdict(client, h):
 def test_untested_then_switching_then_proven(client, session, h):
     assert verdict(client, h)["verdict"] == "untested"
     upload(client, h, "pe_loop", to_csv_bytes(miller_loop(10, 8, 50, 300)), "loop.csv", temperature="300 K")
-    assert verdict(client, h)["verdict"] == "switching_phase_unknown"
+    # a loop alone is the weaker class (Scott 2008: loops can come from leakage)
+    assert verdict(client, h)["verdict"] == "loop_switching_only"
     cif = bowl_crystal_cif(PARENT, "P2_1", head_to_tail=True, temperature_K=300.0)
     m = upload(client, h, "crystal", cif, "bowl.cif")
     # P2_1 is polar (one of the ten polar classes, point group 2; International Tables Vol. A).
     assert m["results"]["polar"] is True and m["verdict"] == "polar"
     assert m["results"]["column_polar"] is True
+    assert verdict(client, h)["verdict"] == "loop_switching_only"
+    p = upload(client, h, "pund", KINDS["pund"].example().raw, "pund.csv", temperature="300 K")
+    assert p["verdict"] == "switching"
     body = verdict(client, h)
     assert body["verdict"] == "polar_switching_supported"
     used = {u["measurement_id"] for u in body["verdict_evidence"]["computed"]["used"]}
-    assert m["id"] in used and len(used) == 2
+    assert m["id"] in used and len(used) == 3
+    # issue 15 API keys: criteria and phases at the top of verdict_evidence
+    crit = {c["name"]: c for c in body["verdict_evidence"]["criteria"]}
+    assert crit["switching shown by PUND"]["state"] == "met" and crit["switching shown by PUND"]["measurements"] == [p["id"]]
+    assert all(set(c) == {"name", "state", "measurements"} for c in crit.values())
+    assert all(set(ph) == {"t_from_K", "t_to_K", "scanned", "identified_by"}
+               for ph in body["verdict_evidence"]["phases"])
+    assert "transitions_K" in body["verdict_evidence"]["computed"]
     phase = session.exec(select(CrystalPhase)).one()
     assert phase.space_group_number == 4 and phase.polar is True
 
@@ -90,7 +102,7 @@ def test_override_needs_admin_and_keeps_computed(client, session, h):
     r = client.post("/api/v1/compounds/RVZ-00001/verdict/override", json=body, headers={"X-CSRF-Token": csrf})
     assert r.status_code == 200, r.text
     assert r.json()["verdict"] == "polar_switching_supported"
-    assert r.json()["verdict_evidence"]["computed"]["code"] == "switching_phase_unknown"
+    assert r.json()["verdict_evidence"]["computed"]["code"] == "loop_switching_only"
     assert r.json()["verdict_evidence"]["override"]["reason"].startswith("polar phase")
     bad = client.post("/api/v1/compounds/RVZ-00001/verdict/override", json={"code": "great", "reason": "x"},
                       headers={"X-CSRF-Token": csrf})
@@ -101,7 +113,7 @@ def test_override_needs_admin_and_keeps_computed(client, session, h):
     assert retired.status_code == 422 and "polar_switching_supported" in retired.json()["detail"]
     assert retired.json()["field"] == "code"
     cleared = client.post("/api/v1/compounds/RVZ-00001/verdict/clear", headers={"X-CSRF-Token": csrf}).json()
-    assert cleared["verdict"] == "switching_phase_unknown"
+    assert cleared["verdict"] == "loop_switching_only"
 
 
 def test_melting_is_not_a_phase_transition(client, h):
@@ -112,7 +124,10 @@ def test_melting_is_not_a_phase_transition(client, h):
     melt = dsc_trace([{"t_K": 420.0, "dh_J_g": 100.0, "width_K": 1.5, "kind": "melting"}], t_start_K=330,
                      t_end_K=450, rate_K_min=10, mass_mg=4.0)
     upload(client, h, "dsc", to_csv_bytes(melt), "melt.csv", mass="4 mg", rate="10 K/min")
-    assert verdict(client, h)["verdict"] == "untested"
+    # melting is a phase boundary (it is listed) but no evidence of a ferroic transition
+    body = verdict(client, h)
+    assert body["verdict"] == "untested"
+    assert body["verdict_evidence"]["computed"]["transitions"][0]["transition_class"] == "isotropisation"
     # A solid-solid peak with dS = R ln 2: 5.763 J/(mol K) x 300 K / 264.3 g/mol = 6.54 J/g (by hand).
     solid = dsc_trace([{"t_K": 300.0, "dh_J_g": 6.54, "width_K": 4.0, "kind": "gaussian"}], t_start_K=250,
                       t_end_K=350, rate_K_min=10, mass_mg=4.0)

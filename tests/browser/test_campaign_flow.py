@@ -36,7 +36,7 @@ from tests.factories import PASSWORD
 
 pytestmark = pytest.mark.browser
 
-SWITCHING, NO_SWITCHING, UNTESTED = "switching_phase_unknown", "no_switching_seen", "untested"
+SWITCHING, NO_SWITCHING, UNTESTED = "loop_switching_only", "no_switching_seen", "untested"
 
 
 @dataclass(frozen=True)

@@ -57,12 +57,12 @@ def test_archive_and_restore_measurement_and_batch(client, session):
     client.post("/api/v1/compounds/RVZ-00001/batches", json={}, headers=h)
     m = client.post("/api/v1/batches/RVZ-00001-B01/measurements", data={"kind": "pe_loop"},
                     files={"file": ("l.csv", to_csv_bytes(miller_loop(10, 8, 50, 300)))}, headers=h).json()
-    assert client.get("/api/v1/compounds/RVZ-00001", headers=h).json()["verdict"] == "switching_phase_unknown"
+    assert client.get("/api/v1/compounds/RVZ-00001", headers=h).json()["verdict"] == "loop_switching_only"
     assert client.post(f"/api/v1/measurements/{m['id']}/archive", headers=h).json()["archived"] is True
     assert client.get("/api/v1/compounds/RVZ-00001", headers=h).json()["verdict"] == "untested"
     assert client.get("/api/v1/measurements?compound=RVZ-00001", headers=h).json()["total"] == 0
     assert client.get(f"/api/v1/measurements/{m['id']}/raw", headers=h).status_code == 200  # raw kept
     client.post(f"/api/v1/measurements/{m['id']}/restore", headers=h)
-    assert client.get("/api/v1/compounds/RVZ-00001", headers=h).json()["verdict"] == "switching_phase_unknown"
+    assert client.get("/api/v1/compounds/RVZ-00001", headers=h).json()["verdict"] == "loop_switching_only"
     assert client.post("/api/v1/batches/RVZ-00001-B01/archive", headers=h).json()["archived"] is True
     assert client.post("/api/v1/batches/RVZ-00001-B01/restore", headers=h).json()["archived"] is False

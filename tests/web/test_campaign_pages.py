@@ -43,7 +43,7 @@ def test_explorer_points(client, session, data):
     assert fig["layout"]["xaxis"]["title"]["text"] == "side-chain carbons"
     assert fig["layout"]["yaxis"]["title"]["text"] == "barrier, measured (kcal/mol)"
     names = {t["name"].split(" (")[0] for t in markers}
-    assert names == {LABELS["switching_phase_unknown"], LABELS["untested"]}
+    assert names == {LABELS["loop_switching_only"], LABELS["untested"]}
     # Pr at a chosen temperature uses the loops measured within 5 K of it.
     at = soup(client.get("/explorer?x=carbons&y=pr&t=300+K").text)
     fig = json.loads(at.find("script", id="explorer-figure").string)
@@ -60,7 +60,7 @@ def test_outcome_map_counts_and_links(client, session, data):
     rows = page.select("#outcome-map tbody tr")
     assert [r.th.text.strip() for r in rows] == ["C2 alkoxy", "C4 alkoxy", "C6 alkoxy", "C8 alkoxy"]
     c2 = rows[0].find("td")
-    assert c2["data-best"] == "switching_phase_unknown"
+    assert c2["data-best"] == "loop_switching_only"
     link = c2.find("a")["href"]
     assert "main_kind=alkoxy" in link and "main_c=2" in link and "scaffold=BWL-C" in link
     table = soup(client.get(link).text)
@@ -87,6 +87,8 @@ def test_status_public_and_embargo(client, anon, session, data, app):
     assert anon.get("/compounds").status_code in (303, 200) and "C8O" not in anon.get("/compounds").text
     tiles = {t.find_all("span")[1].text: int(t.find("span").text) for t in soup(html).select(".tile")}
     assert tiles["registered"] == 4 and tiles["switching tested"] == 2
+    # both switching compounds have loops at 300 K only: counted apart (issue 15)
+    assert tiles["tested at one temperature only"] == 2
 
 
 def test_timeline(client, session, data):
@@ -96,3 +98,15 @@ def test_timeline(client, session, data):
     actions = [li.find("strong").text for li in page.select("ol.timeline li")]
     assert actions[-1] == "compound create"
     assert "measurement create" in actions and "barrier create" in actions and "batch create" in actions
+
+
+def test_compound_page_lists_criteria_and_qualifier(client, session, data):
+    # Issue 15: each criterion shown met / unmet / untested; a loop alone leaves PUND switching untested
+    # (Scott 2008), and loops at one temperature carry that qualifier.
+    login_as(client, session)
+    _, made = data
+    page = soup(client.get(f"/compounds/{made[2]}").text)
+    rows = {r.find_all("td")[0].text: r.find_all("td")[1].text for r in page.select("table.criteria tbody tr")}
+    assert rows["switching shown by PUND"] == "untested"
+    assert rows["saturated loop"] == "met"
+    assert "Tested at one temperature only." in page.select_one("#verdict").text

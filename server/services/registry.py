@@ -266,7 +266,7 @@ def compound_read(session: Session, compound: Compound, *, actor: Optional[Actor
         created_at=compound.created_at,
         created_by=compound.created_by,
         verdict=verdicts.effective_code(compound),
-        verdict_evidence=verdicts.verdict_read(compound),
+        verdict_evidence=verdicts.verdict_read(compound, withheld=hide),
     )
 
 

@@ -128,7 +128,15 @@ def set_override(*, session: Session, compound: Compound, code: Optional[str], r
     return compound
 
 
-def verdict_read(compound: Compound) -> dict[str, Any]:
+def verdict_read(compound: Compound, *, withheld: bool = False) -> dict[str, Any]:
+    """The verdict and its evidence. ``withheld``: for a caller who may not see an embargoed
+    compound, only the codes; the reasons, criteria and phases quote values derived from its
+    structure (molar quantities, entropy per chain CH2) and are left out (``server/access.py``)."""
+    if withheld:
+        return {"computed": {"code": compound.verdict_code, "label": LABELS.get(compound.verdict_code, "")},
+                "override": ({"code": compound.override_code, "label": LABELS.get(compound.override_code, "")}
+                             if compound.override_code else None),
+                "criteria": [], "phases": [], "withheld": True}
     computed = compound.verdict or {"code": compound.verdict_code, "label": LABELS.get(compound.verdict_code, "")}
     # criteria and phases are shown at the top level of verdict_evidence (issue 15 API keys)
     out: dict[str, Any] = {"computed": computed, "override": None,

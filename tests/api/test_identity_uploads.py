@@ -16,6 +16,7 @@ from server.ingest.table import to_csv_bytes
 from server.models import Measurement, RawFile
 from server.synth.identity import elemental_file, hrms_profile
 from tests.api.test_measurements import batch, post, uploader  # noqa: F401 - fixtures
+from tests.factories import bearer, make_token
 
 
 def test_hrms_upload(client, batch, uploader):  # noqa: F811
@@ -43,3 +44,31 @@ def test_elemental_upload_and_over_100_refused(client, session, batch, uploader)
     bad = post(client, batch, "elemental", elemental_file({"C": 80.0, "H": 25.0}), uploader)
     assert bad.status_code == 422 and "over 100" in bad.json()["detail"]
     assert len(session.exec(select(Measurement)).all()) == 1
+
+
+def test_identity_summary_and_si_paragraph(client, session, batch, uploader):  # noqa: F811
+    reader = uploader
+    empty = client.get(f"/api/v1/batches/{batch}/identity", headers=reader).json()
+    assert empty["status"] == "no identity evidence" and empty["si_text"] is None
+    frame = hrms_profile("C12H18O6", "[M+Na]+", rng=np.random.default_rng(13), error_ppm=1.0)
+    assert post(client, batch, "hrms", to_csv_bytes(frame, {"ion": "[M+Na]+"}), uploader).status_code == 201
+    assert post(client, batch, "elemental", elemental_file({"C": 55.70, "H": 7.10}), uploader).status_code == 201
+    got = client.get(f"/api/v1/batches/{batch}/identity", headers=reader).json()
+    assert got["status"] == "HRMS and elemental analysis agree"
+    assert got["evidence"]["hrms"]["pass"] is True and got["evidence"]["elemental"]["pass"] is True
+    text = got["si_text"]
+    # calcd 281.09955899 printed with four decimals; found about 1 ppm higher (281.0999 or 281.1000)
+    assert "HRMS m/z: [M + Na]+ calcd for C12H18NaO6+ 281.0996; found 281.099" in text or \
+        "HRMS m/z: [M + Na]+ calcd for C12H18NaO6+ 281.0996; found 281.1000" in text, text
+    assert "Anal. Calcd for C12H18O6: C, 55.81; H, 7.03. Found: C, 55.70; H, 7.10." in text
+    assert "C<sub>12</sub>H<sub>18</sub>O<sub>6</sub>" in got["si_markdown"]
+
+
+def test_identity_of_an_embargoed_compound_hides_the_formula(client, session, uploader):  # noqa: F811
+    writer = bearer(make_token(session, scope="write", name="registrar"))
+    client.post("/api/v1/compounds", json={"smiles": "COc1ccccc1OC", "embargoed": True}, headers=writer)
+    code = client.post("/api/v1/compounds/RVZ-00001/batches", json={"chemist": "lab"}, headers=writer).json()["code"]
+    assert post(client, code, "elemental", elemental_file({"C": 69.50, "H": 7.30}), uploader).status_code == 201
+    got = client.get(f"/api/v1/batches/{code}/identity", headers=uploader).json()
+    assert got["evidence"]["elemental"] == {"measurement": got["evidence"]["elemental"]["measurement"], "pass": True}
+    assert got["si_text"] is None and got["si_markdown"] is None

@@ -8,6 +8,8 @@ units, sampling, conditions) and adds its noise, from the numpy Generator it is 
 
 from __future__ import annotations
 
+import re
+
 from dataclasses import dataclass
 from typing import Callable
 
@@ -21,6 +23,7 @@ from server.synth.dielectric import curie_weiss_scan
 from server.synth.dsc import dsc_trace
 from server.synth.ferro import leaky_capacitor, miller_loop, pund_train, raw_vq
 from server.synth.nmr import rate_table
+from server.synth.identity import elemental_file, elemental_found, hrms_profile
 
 from .scenario import CompoundPlan, Measurement
 
@@ -38,6 +41,8 @@ INSTRUMENTS = (
     Instrument("dsc-bench", ("dsc",), "Heat-flux DSC, nitrogen purge"),
     Instrument("nmr-vt-500", ("nmr_rates",), "Variable-temperature NMR; rates from line-shape fits"),
     Instrument("xrd-micro", ("crystal",), "Single-crystal diffractometer, 150 K"),
+    Instrument("hrms-esi", ("hrms",), "High-resolution ESI mass spectrometer, resolving power 60 000"),
+    Instrument("chns-combustion", ("elemental",), "CHNS combustion analyser"),
 )
 INSTRUMENT_FOR = {kind: inst for inst in INSTRUMENTS for kind in inst.kinds}
 
@@ -221,6 +226,35 @@ def crystal(c: CompoundPlan, m: Measurement, rng: np.random.Generator, name: str
     return Upload("crystal", f"{name}.cif", cif, _base(c, m, operator), content_type="chemical/x-cif")
 
 
+def _formula(c: CompoundPlan) -> str:
+    from rdkit import Chem
+    from rdkit.Chem.rdMolDescriptors import CalcMolFormula
+
+    return CalcMolFormula(Chem.MolFromSmiles(c.smiles))
+
+
+def hrms(c: CompoundPlan, m: Measurement, rng: np.random.Generator, name: str, operator: str) -> Upload:
+    """[M+Na]+ at resolving power 60 000, within 2 ppm; the "missing_chalcogen" sample lacks one S."""
+    formula = _formula(c)
+    sample = re.sub(r"S(\d*)(?![a-z])", lambda g: f"S{int(g.group(1) or 1) - 1}" if int(g.group(1) or 1) > 1 else "",
+                    formula, count=1) if m.variant == "missing_chalcogen" else formula
+    frame = hrms_profile(sample, "[M+Na]+", rng=rng, error_ppm=float(rng.uniform(-2.0, 2.0)),
+                         window=(-1.5, 40.0) if sample != formula else (-1.5, 4.5))
+    form = {"instrument": INSTRUMENT_FOR[m.kind].name, "operator": operator}
+    return Upload("hrms", f"{name}.csv", to_csv_bytes(frame, {"ion": "[M+Na]+"}), form)
+
+
+def elemental(c: CompoundPlan, m: Measurement, rng: np.random.Generator, name: str, operator: str) -> Upload:
+    """C, H (and S for chalcogen bowls) with 0.1 % scatter; the "hemihydrate" sample holds 0.5 H2O."""
+    formula = _formula(c)
+    els = ("C", "H", "S") if "S" in re.findall(r"[A-Z][a-z]?", formula) else ("C", "H")
+    solvate = ("H2O", 0.5) if m.variant == "hemihydrate" else None
+    found = elemental_found(formula, rng=rng, elements=els, scatter_pct=0.1, solvate=solvate)
+    meta = {"solvate": "0.5 H2O"} if solvate else {}
+    form = {"instrument": INSTRUMENT_FOR[m.kind].name, "operator": operator}
+    return Upload("elemental", f"{name}.csv", elemental_file(found, meta), form)
+
+
 WRITERS: dict[str, Callable[..., Upload]] = {
     "pe_loop": pe_loop,
     "pund": pund,
@@ -228,6 +262,8 @@ WRITERS: dict[str, Callable[..., Upload]] = {
     "dsc": dsc,
     "nmr_rates": nmr_rates,
     "crystal": crystal,
+    "hrms": hrms,
+    "elemental": elemental,
 }
 
 

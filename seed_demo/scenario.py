@@ -172,6 +172,7 @@ class Measurement:
     temperature_K: float | None = None
     leaky: bool = False
     impure: bool = False
+    variant: str = ""  # identity evidence: "missing_chalcogen" (HRMS), "hemihydrate" (EA)
 
 
 @dataclass(frozen=True)
@@ -425,8 +426,19 @@ def _dates(n: int) -> list[date]:
     return [CAMPAIGN_START + timedelta(days=round(i * span / max(n - 1, 1))) for i in range(n)]
 
 
-def _measurements_full(c: CompoundPlan) -> tuple[Measurement, ...]:
-    out: list[Measurement] = []
+# The identity evidence with a story: the first S-bridged compound's HRMS sample lost one bridge S
+# (a dithia bowl by-product), and the compound of index 3 crystallised as a hemihydrate.
+HEMIHYDRATE_INDEX = 3
+
+
+def _identity(c: CompoundPlan, *, first_of_bowl: bool) -> list[Measurement]:
+    hrms = "missing_chalcogen" if first_of_bowl and c.bowl.bridge == "S" else ""
+    ea = "hemihydrate" if c.index == HEMIHYDRATE_INDEX else ""
+    return [Measurement("hrms", variant=hrms), Measurement("elemental", variant=ea)]
+
+
+def _measurements_full(c: CompoundPlan, *, first_of_bowl: bool = False) -> tuple[Measurement, ...]:
+    out: list[Measurement] = _identity(c, first_of_bowl=first_of_bowl)
     for t in c.loop_temperatures_K:
         out.append(Measurement("pe_loop", t, leaky=c.leaky))
     t_pund = round(0.8 * c.tc_K) if c.tc_K else 300.0
@@ -441,14 +453,15 @@ def _measurements_full(c: CompoundPlan) -> tuple[Measurement, ...]:
 
 def _measurements_repeat(c: CompoundPlan) -> tuple[Measurement, ...]:
     t = round(0.8 * c.tc_K) if c.tc_K else 300.0
-    return (Measurement("pe_loop", t, leaky=c.leaky), Measurement("dsc"))
+    return (Measurement("hrms"), Measurement("pe_loop", t, leaky=c.leaky), Measurement("dsc"))
 
 
 def _measurements_impure() -> tuple[Measurement, ...]:
     return (Measurement("pe_loop", 300.0, leaky=True, impure=True), Measurement("dsc", impure=True))
 
 
-def _batches(c: CompoundPlan, made: date, rng: np.random.Generator) -> tuple[BatchPlan, ...]:
+def _batches(c: CompoundPlan, made: date, rng: np.random.Generator, *, first_of_bowl: bool = False
+             ) -> tuple[BatchPlan, ...]:
     n = 1 + int(rng.random() < 0.45) + int(rng.random() < 0.12)
     states: list[str] = []
     for i in range(n):
@@ -474,7 +487,7 @@ def _batches(c: CompoundPlan, made: date, rng: np.random.Generator) -> tuple[Bat
             y, p = round(float(rng.uniform(35, 82)), 1), round(float(rng.uniform(97.0, 99.8)), 1)
             first_good = seq - 1 == good_first
             notes = "Recrystallised twice; single crystals from toluene/heptane." if c.crystal and first_good else ""
-            ms = _measurements_full(c) if first_good else _measurements_repeat(c)
+            ms = _measurements_full(c, first_of_bowl=first_of_bowl) if first_good else _measurements_repeat(c)
         out.append(BatchPlan(seq, min(day, CAMPAIGN_END), chemist, scale, y, p, state, notes, ms))
         day = day + timedelta(days=int(rng.integers(5, 21)))
     return tuple(out)
@@ -519,7 +532,8 @@ def build(scale: float = 1.0) -> Scenario:
         # the smallest molecule of each bowl gets a queued GFN2-xTB estimate (4 jobs)
         queue = tag == "O1" and queued < 4
         queued += int(queue)
-        compounds.append(replace(draft, queue_estimate=queue, batches=_batches(draft, made[i], rng)))
+        compounds.append(replace(draft, queue_estimate=queue, batches=_batches(draft, made[i], rng,
+                                                                                  first_of_bowl=not any(x.bowl_key == bowl_key for x in compounds))))
     return Scenario(tuple(compounds))
 
 

@@ -178,7 +178,7 @@ def test_full_demo_on_sqlite(sqlite_template, tmp_path):
     try:
         assert 55 <= len(report.compounds) <= 65
         assert 90 <= report.batches <= 115
-        assert 380 <= sum(report.measurements.values()) <= 520
+        assert 500 <= sum(report.measurements.values()) <= 680  # about 600, identity evidence included
         states = {b.state for c in plan.compounds for b in c.batches}
         assert states == {"made", "impure", "failed", "used_up"}
         assert 3 <= sum(c.embargoed for c in plan.compounds) <= 6

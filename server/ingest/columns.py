@@ -93,6 +93,12 @@ QUANTITIES: tuple[CanonicalQuantity, ...] = (
     CanonicalQuantity("heat_flow_mW", "heat flow", "heat_flow", _HEAT_FLOW_ALIASES, "mW"),
     CanonicalQuantity("heat_flow_W_g", "specific heat flow", "heat_flow", _HEAT_FLOW_ALIASES, "W/g"),
     CanonicalQuantity("k_per_s", "rate constant", "k", ("k", "rate", "rate constant"), "1/s"),
+    # mass spectra: m/z is dimensionless (mass in u over charge number), intensity in arbitrary units
+    CanonicalQuantity("mz", "mass-to-charge ratio", "m/z", ("m/z", "mz", "mass to charge", "m z"), "",
+                      unit_optional=True),
+    CanonicalQuantity("intensity", "intensity", "intensity",
+                      ("intensity", "int", "abundance", "counts", "relative intensity", "rel intensity"), "",
+                      unit_optional=True),
 )
 
 BY_NAME: dict[str, CanonicalQuantity] = {q.name: q for q in QUANTITIES}

@@ -97,10 +97,10 @@ def test_canonical_table_matches_contract() -> None:
     expected = {
         "E_kV_cm": "kV/cm", "P_uC_cm2": "uC/cm^2", "V_V": "V", "Q_uC": "uC", "I_A": "A", "t_s": "s",
         "T_K": "K", "f_Hz": "Hz", "C_F": "F", "tan_delta": "", "eps_r": "", "eps_i": "",
-        "heat_flow_mW": "mW", "heat_flow_W_g": "W/g", "k_per_s": "1/s",
+        "heat_flow_mW": "mW", "heat_flow_W_g": "W/g", "k_per_s": "1/s", "mz": "", "intensity": "",
     }  # fmt: skip
     assert {q.name: q.unit for q in QUANTITIES} == expected
-    assert {q.name for q in QUANTITIES if q.unit_optional} == {"tan_delta", "eps_r", "eps_i"}
+    assert {q.name for q in QUANTITIES if q.unit_optional} == {"tan_delta", "eps_r", "eps_i", "mz", "intensity"}
 
 
 @pytest.mark.parametrize(

@@ -13,7 +13,7 @@ from ... import access
 from ...deps import Admin, Offset, Reader, SessionDep, SettingsDep, Writer
 from ...models import BatchCreate, BatchRead, CompoundCreate, CompoundPage, CompoundRead, CompoundUpdate
 from ...errors import InputError
-from ...services import accounts, registry, verdicts, views
+from ...services import accounts, identity, registry, verdicts, views
 from ...services.errors import NotFound
 from .responses import AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND
 
@@ -151,6 +151,14 @@ def restore_batch(code: str, session: SessionDep, actor: Writer) -> BatchRead:
 @router.get("/batches/{code}", response_model=BatchRead, responses={**AUTH_ERRORS, **NOT_FOUND})
 def get_batch(code: str, session: SessionDep, actor: Reader) -> BatchRead:
     return registry.batch_read(session, registry.get_batch(session, code))
+
+
+@router.get("/batches/{code}/identity", responses={**AUTH_ERRORS, **NOT_FOUND})
+def get_batch_identity(code: str, session: SessionDep, actor: Reader) -> dict:
+    """The batch's identity evidence (latest live HRMS and elemental analysis), its status and the
+    supporting-information paragraph (``si_text``, ``si_markdown``). Calculated values reveal the
+    formula, so a caller who may not see an embargoed structure gets only the passes."""
+    return identity.batch_identity(session=session, code=code, actor=actor)
 
 
 class OverrideIn(BaseModel):

@@ -21,7 +21,6 @@ Method
 
 from __future__ import annotations
 
-import math
 import re
 from dataclasses import dataclass, field
 from typing import Optional

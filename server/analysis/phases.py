@@ -36,7 +36,6 @@ Transition classes (the rule is stated with each transition), from the heating-p
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
 from typing import Any, Mapping, Sequence
 

@@ -78,8 +78,9 @@ SHORT: dict[str, str] = {v.code: v.short for v in VERDICTS}
 #: an API client that still sends one is told the new name.
 RETIRED: dict[str, str] = {"proven_ferroelectric": "polar_switching_supported"}
 
-#: Verdicts the status page counts as hits: switching seen, with or without a known polar structure.
-HITS: tuple[str, ...] = ("polar_switching_supported", "switching_phase_unknown")
+#: Verdicts the status page counts as hits: switching seen (by PUND or, weaker, by saturated loops alone),
+#: with or without a known polar structure; the page shows each hit's class beside it.
+HITS: tuple[str, ...] = ("polar_switching_supported", "switching_phase_unknown", "loop_switching_only")
 UNTESTED = "untested"
 CONFLICTING = "conflicting"
 

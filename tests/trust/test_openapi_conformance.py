@@ -70,6 +70,22 @@ def _requests(code: str, batch: str) -> list[tuple[str, str, dict]]:
         ("GET", "/api/v1/tokens", {}),
         ("POST", "/api/v1/tokens", {"json": {"name": "xrd-pc", "scope": "upload"}}),
         ("POST", "/api/v1/tokens/1/revoke", {}),
+        # Samples, series and corrections (issue 13); the batch's first upload made its default sample S01.
+        ("GET", f"/api/v1/batches/{batch}/samples", {}),
+        ("POST", f"/api/v1/batches/{batch}/samples", {"json": {"form": "pellet", "thickness": "150 um",
+                                                               "electrode_area": "7.85 mm^2"}}),
+        ("POST", f"/api/v1/batches/{batch}/samples", {"json": {"form": "pellet", "thickness": "0 um"}}),  # 422
+        ("GET", f"/api/v1/samples/{batch}-S01", {}),
+        ("GET", f"/api/v1/samples/{batch}-S01/series", {}),
+        ("POST", f"/api/v1/samples/{batch}-S02/measurements",
+         {"data": {"kind": "pe_loop"}, "files": {"file": ("loop8.csv", loop_bytes(8), "text/csv")}}),
+        ("POST", f"/api/v1/samples/{batch}-S01/series", {"json": {"variable": "temperature", "measurements": [1]}}),
+        # Identity and outputs (issues 17 and 19).
+        ("GET", f"/api/v1/batches/{batch}/identity", {}),
+        ("GET", "/api/v1/measurements/1/figure.svg", {}),
+        ("GET", f"/api/v1/compounds/{code}/figures/switching.svg", {}),
+        ("GET", f"/api/v1/compounds/{code}/report.zip", {}),
+        ("POST", "/api/v1/measurements/1/revise", {"data": {"thickness": "300 um"}}),
         ("POST", f"/api/v1/batches/{batch}/archive", {}),
         ("POST", f"/api/v1/batches/{batch}/measurements", loop),  # archived: 409
         ("POST", f"/api/v1/batches/{batch}/restore", {}),
@@ -91,6 +107,7 @@ def test_every_api_answer_matches_the_openapi_document(client, anon, session, ap
         (client, "POST", "/api/v1/compounds", {"json": {"smiles": 5, "embargoed": "perhaps"},
                                                 "headers": {"X-CSRF-Token": csrf}}),  # 422, FastAPI validation
         (client, "GET", "/api/v1/compounds?limit=0", {"headers": {"X-CSRF-Token": csrf}}),  # 422
+        (anon, "GET", "/api/v1/digest.atom", {"headers": bearer(reader)}),
     ]
     for http, method, path, kwargs in calls:
         response = http.request(method, path, **kwargs)

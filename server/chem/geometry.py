@@ -6,7 +6,7 @@ Definitions (one place, so computed and crystal bowl depths are the same quantit
   at least one atom), the bridges' five-membered rings included.
 * **hub**: the ring of the core, of any size, whose atoms sit in the most rings on
   average (in a C3-symmetric bowl of three benzo rings and three bridges around a central
-  benzene, each hub atom is in three rings; in a corannulene-type bowl the central
+  benzene, each hub atom is in three rings; in a bowl built on a five-membered hub the central
   five-membered ring is the hub, each of its atoms in three rings).
 * **rim**: core atoms that are not hub atoms, lie on one six-membered ring only, and carry
   a hydrogen or a bond to an atom outside the core ring system (the peripheral positions

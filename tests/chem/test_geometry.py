@@ -55,11 +55,11 @@ def test_rim_of_a_substituted_bowl_is_where_the_chains_sit():
     assert set(found.rim) == oxygen_bearing
 
 
-def test_five_membered_hub_of_a_corannulene_bowl():
-    # Corannulene: a central five-membered ring fused to five benzene rings (issue 16, defect 7).
+def test_five_membered_hub_of_a_pentagonal_bowl():
+    # A pentagonal bowl: a central five-membered ring fused to five benzene rings (issue 16, defect 7).
     # Hub = the five atoms in three rings (counted here from RDKit ring membership); rim = the ten
-    # CH carbons. With the hub in the plane z = 0 and the rim at z = 0.87 A (a corannulene-like
-    # depth, memory: about 0.87 A in the crystal), the depth is 0.87 A by construction.
+    # CH carbons. With the hub in the plane z = 0 and the rim at z = 0.87 A (about the depth such a
+    # bowl has in its crystal, from memory), the depth is 0.87 A by construction.
     import numpy as np
 
     from server.chem.geometry import bowl_depth_A

@@ -90,10 +90,16 @@ def upload(
 ):
     """Post a raw instrument file to a batch; it is stored unchanged under the batch's default
     sample (created on first use) and analysed at once. The same bytes with other conditions: 409."""
-    batch = registry.get_batch(session, batch_code)
+    return store_upload(session, settings, actor, batch=registry.get_batch(session, batch_code), sample=None,
+                        kind=kind, file=file, form=form)
+
+
+def store_upload(session, settings, actor, *, batch, sample, kind: str, file: UploadFile, form: dict) -> JSONResponse:  # noqa: ANN001
+    """The one upload answer of the batch and sample routes: 201 new, 200 the same bytes and conditions again;
+    the body as the caller may see it (a receipt for an embargoed compound, no names for upload tokens)."""
     raw = measurements.read_upload(file, settings.max_upload_bytes)
     m, created = measurements.upload_measurement(
-        session=session, batch=batch, kind_name=kind, raw=raw, filename=file.filename, form=form,
+        session=session, batch=batch, sample=sample, kind_name=kind, raw=raw, filename=file.filename, form=form,
         actor=actor.label, allowed_kinds=actor.kinds if actor.scope == "upload" else None,
     )
     body = accounts.hide_people(measurements.measurement_as_seen(session, m, actor), sees_people=actor.sees_people)

@@ -5,14 +5,13 @@ from __future__ import annotations
 from typing import Annotated, Any, Optional
 
 from fastapi import APIRouter, File, Form, UploadFile
-from fastapi.responses import JSONResponse
 from pydantic import BaseModel, ConfigDict, Field
 
 from ...deps import MAX_ID, Reader, SessionDep, SettingsDep, Uploader, Writer
 from ...kinds import KINDS
 from ...models import SampleCreate
-from ...services import measurements, registry, samples, series
-from .measurements import UPLOAD_RESPONSES, ConditionFields, MeasurementOut
+from ...services import registry, samples, series
+from .measurements import UPLOAD_RESPONSES, ConditionFields, MeasurementOut, store_upload
 from .responses import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND
 
 router = APIRouter(tags=["samples"])
@@ -96,13 +95,8 @@ def upload_to_sample(
     """Post a raw file measured on this sample. Area and thickness default from the sample; a
     value given with the file wins (`conditions.sources` says `form`, `file` or `sample`)."""
     sample = samples.get_sample(session, sample_code)
-    batch = samples.batch_of(session, sample)
-    raw = measurements.read_upload(file, settings.max_upload_bytes)
-    m, created = measurements.upload_measurement(
-        session=session, batch=batch, sample=sample, kind_name=kind, raw=raw, filename=file.filename, form=form,
-        actor=actor.label, allowed_kinds=actor.kinds if actor.scope == "upload" else None,
-    )
-    return JSONResponse(measurements.measurement_as_seen(session, m, actor), status_code=201 if created else 200)
+    return store_upload(session, settings, actor, batch=samples.batch_of(session, sample), sample=sample,
+                        kind=kind, file=file, form=form)
 
 
 @router.get("/samples/{sample_code}/series", response_model=list[SeriesOut], responses={**AUTH_ERRORS, **NOT_FOUND})

@@ -100,6 +100,7 @@ def test_every_api_answer_matches_the_openapi_document(client, anon, session, ap
     reader = make_token(session, scope="read", name="reader-pc")
     # the document the app serves at /openapi.json, built in process (a loaded CI machine must not time out)
     schema = schemathesis.openapi.from_dict(app.openapi())
+    assert client.get("/openapi.json").json() == schema.raw_schema, "/openapi.json is not the app's document"
     covered, failures = set(), []
     calls = [(client, m, p, {"headers": {"X-CSRF-Token": csrf}, **kw}) for m, p, kw in _requests(code, batch)]
     calls += [

@@ -29,7 +29,8 @@ def explorer_figure(points, *, x_title: str, y_title: str, with_trend: bool = Fa
     """One trace per group (colour and symbol both differ, so it reads without colour too).
 
     ``colours`` fixes the colour of named groups (verdict groups take their badge colours);
-    other groups take the Okabe-Ito series in turn.
+    other groups take the Okabe-Ito series in turn. Points of mixed-chain molecules (``p.mixed``)
+    are drawn open, name their chains on hover and stay out of the trend lines.
     """
     fig = go.Figure()
     groups = sorted({p.group for p in points})
@@ -38,14 +39,17 @@ def explorer_figure(points, *, x_title: str, y_title: str, with_trend: bool = Fa
         colour, symbol = (colours or {}).get(g, SERIES[i % len(SERIES)]), SYMBOLS[i % len(SYMBOLS)]
         fig.add_trace(go.Scatter(
             x=[p.x for p in pts], y=[p.y for p in pts], mode="markers", name=f"{g} ({len(pts)})",
-            marker=dict(color=colour, symbol=symbol, size=10, line=dict(width=1, color="#333")),
-            customdata=[[p.code, p.label] for p in pts],
-            hovertemplate="<b>%{customdata[0]}</b> %{customdata[1]}<br>x %{x:.4g}<br>y %{y:.4g}<extra></extra>",
+            marker=dict(color=colour, symbol=[symbol + "-open" if p.mixed else symbol for p in pts],
+                        size=10, line=dict(width=1, color="#333")),
+            customdata=[[p.code, p.label, p.chains] for p in pts],
+            hovertemplate="<b>%{customdata[0]}</b> %{customdata[1]}<br>%{customdata[2]}"
+                          "<br>x %{x:.4g}<br>y %{y:.4g}<extra></extra>",
         ))
-        fit = trend([p.x for p in pts], [p.y for p in pts]) if with_trend else None
+        pure = [p for p in pts if not p.mixed]
+        fit = trend([p.x for p in pure], [p.y for p in pure]) if with_trend else None
         if fit:
             a, b, r2 = fit
-            xs = np.linspace(min(p.x for p in pts), max(p.x for p in pts), 20)
+            xs = np.linspace(min(p.x for p in pure), max(p.x for p in pure), 20)
             fig.add_trace(go.Scatter(x=xs, y=a + b * xs, mode="lines", line=dict(color=colour, dash="dot"),
                                      name=f"{g}: y = {a:.3g} {'+' if b >= 0 else '−'} {abs(b):.3g} x, r² = {r2:.2f}",
                                      hoverinfo="skip"))

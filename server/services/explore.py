@@ -14,11 +14,23 @@ from ..models import Batch, Measurement, live_measurement
 from ..plots import figure_json
 from ..plots.explorer import explorer_figure
 from ..verdict_codes import LABELS as VERDICT_LABELS, VERDICTS, strongest
-from .views import ViewQuery, ViewRow, query_view
+from .views import NO_BRIDGE, ChainSet, ViewQuery, ViewRow, query_view
 
 
 def _stat(name: str) -> Callable[[ViewRow], Optional[float]]:
     return lambda r: getattr(r.stats, name) if r.stats is not None else None
+
+
+def chain_set(r: ViewRow) -> ChainSet:
+    return ChainSet.of(r.compound.side_chains or [])
+
+
+def _pure_chain_stat(name: str) -> Callable[[ViewRow], Optional[float]]:
+    """A side-chain figure that only a molecule with one kind of side chain has: for a mixed-chain
+    molecule (e.g. three C2 and three C12 chains) "the" chain length is not defined, so it is not
+    plotted at its most frequent chain's length."""
+    get = _stat(name)
+    return lambda r: None if chain_set(r).mixed else get(r)
 
 
 @dataclass(frozen=True)
@@ -28,6 +40,7 @@ class Property:
     unit: str
     get: Callable[[ViewRow], Optional[float]]
     temperature_dependent: bool = False  # Pr, Ec: at their maximum, or at a chosen temperature
+    chain_defined: bool = False  # defined only for molecules with one kind of side chain
 
     @property
     def title(self) -> str:
@@ -35,7 +48,7 @@ class Property:
 
 
 PROPERTIES: dict[str, Property] = {p.key: p for p in (
-    Property("carbons", "side-chain carbons", "", _stat("chain_carbons")),
+    Property("carbons", "side-chain carbons", "", _pure_chain_stat("chain_carbons"), chain_defined=True),
     Property("chain_count", "side chains per molecule", "", _stat("chain_count")),
     Property("mw", "molar mass", "g/mol", lambda r: r.compound.mw),
     Property("barrier_measured", "barrier, measured", "kcal/mol", _stat("barrier_measured_kcal_mol")),
@@ -59,7 +72,9 @@ GROUPINGS: dict[str, tuple[str, Callable[[ViewRow], str]]] = {
     "verdict": ("verdict", lambda r: VERDICT_LABELS.get(r.verdict, r.verdict)),
     "scaffold": ("scaffold", lambda r: r.scaffold or "no scaffold"),
     "bridge": ("bridge", lambda r: r.bridge or "unknown bridge"),
-    "chain_kind": ("side-chain kind", lambda r: (r.stats.chain_kind if r.stats and r.stats.chain_kind else "none")),
+    "chain_kind": ("side-chain kind", lambda r: ("mixed" if chain_set(r).mixed else
+                                                 r.stats.chain_kind if r.stats and r.stats.chain_kind else "none")),
+    "chains": ("side chains", lambda r: chain_set(r).label),
 }
 
 
@@ -81,6 +96,8 @@ class Point:
     x: float
     y: float
     group: str
+    chains: str = ""  # the side chains, e.g. "C2 / C12 alkoxy, mixed"
+    mixed: bool = False  # drawn as an open marker and left out of trend lines
 
 
 def _loops_at(session: Session, compound_ids: list[int], t_K: float) -> dict[int, dict[str, Any]]:
@@ -126,9 +143,18 @@ def explore(session: Session, view: ViewQuery, *, actor: Optional[Actor], x: str
         vx, vy = value(x, r), value(y, r)
         if vx is None or vy is None:
             continue
+        chains = chain_set(r)
         points.append(Point(code=r.compound.code, label=r.compound.label, x=float(vx), y=float(vy),
-                            group=GROUPINGS[group][1](r)))
+                            group=GROUPINGS[group][1](r), chains=chains.label, mixed=chains.mixed))
     return points
+
+
+def mixed_left_out(session: Session, view: ViewQuery, *, actor: Optional[Actor], x: str, y: str) -> int:
+    """How many mixed-chain compounds of the view an axis defined only for one kind of chain leaves out."""
+    if not (PROPERTIES[x].chain_defined or PROPERTIES[y].chain_defined):
+        return 0
+    rows = query_view(session, view, actor=actor, paged=False, structures_only=True).rows
+    return sum(1 for r in rows if chain_set(r).mixed)
 
 
 def explorer_figure_json(points: list[Point], *, x: str, y: str, t_K: Optional[float], with_trend: bool,
@@ -156,33 +182,43 @@ class Cell:
         return sum(self.counts.values())
 
 
+NO_COLUMN = {"scaffold": "no scaffold", "bridge": "no named bridge"}
+
+
 @dataclass(frozen=True)
 class OutcomeMap:
-    rows: list[tuple[str, int, bool]]  # (kind, carbons, branched)
+    rows: list[ChainSet]  # one per distinct set of side chains: a pure chain, or a mixture
     columns: list[str]
-    cells: dict[tuple[tuple[str, int, bool], str], Cell]
+    cells: dict[tuple[ChainSet, str], Cell]
     by: str
 
 
 def outcome_map(session: Session, view: ViewQuery, *, actor: Optional[Actor], by: str = "scaffold") -> OutcomeMap:
-    """Verdict counts per side chain and scaffold (or bridge), over compounds ``actor`` may see."""
+    """Verdict counts per set of side chains and scaffold (or bridge), over compounds ``actor`` may see.
+
+    A molecule with one kind of side chain counts in that chain's row; a molecule with several (three C2
+    and three C12 alkoxy chains, say) counts in a row of its own ("C2 / C12 alkoxy, mixed"), never under
+    one of its chains. Each cell links to exactly the compounds it counts (the ``chains`` filter).
+    """
     if by not in ("scaffold", "bridge"):
         raise InputError("columns are by scaffold or by bridge", field="by")
     rows = query_view(session, view, actor=actor, paged=False, structures_only=True).rows
     counts: dict[tuple, Counter] = defaultdict(Counter)
     for r in rows:
-        if r.stats is None or not r.stats.chain_kind:
+        key = chain_set(r)
+        if not key.types:
             continue
-        key = (r.stats.chain_kind, r.stats.chain_carbons, bool(r.stats.chain_branched))
-        column = (r.scaffold if by == "scaffold" else r.bridge) or "none"
+        column = (r.scaffold if by == "scaffold" else r.bridge) or NO_COLUMN[by]
         counts[(key, column)][r.verdict] += 1
-    row_keys = sorted({k for k, _ in counts}, key=lambda k: (k[0], k[1], k[2]))
+    row_keys = sorted({k for k, _ in counts}, key=lambda k: k.types)
     columns = sorted({c for _, c in counts})
     cells = {}
     for (key, column), counter in counts.items():
         best = strongest(code for code, n in counter.items() if n)
-        params = {"main_kind": key[0], "main_c": key[1], "main_branched": "yes" if key[2] else "no",
-                  **({"scaffold": column} if by == "scaffold" else {"bridge": column})}
-        cells[(key, column)] = Cell(counts=dict(counter), best=best,
-                                    link=view.link(**params, page=None))
+        if column == NO_COLUMN[by]:  # compounds without a (bridged) scaffold
+            where = {"no_scaffold": "yes"} if by == "scaffold" else {"bridge": NO_BRIDGE}
+        else:
+            where = {"scaffold": column} if by == "scaffold" else {"bridge": column}
+        params = {"chains": str(key), **where}
+        cells[(key, column)] = Cell(counts=dict(counter), best=best, link=view.link(**params, page=None))
     return OutcomeMap(rows=row_keys, columns=columns, cells=cells, by=by)

@@ -9,6 +9,7 @@ SQLAlchemy expressions, whose literals travel as bound parameters.
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass, field
 from datetime import date, datetime, time, timedelta, timezone
 from typing import Any, Callable, Mapping, Optional, Sequence
@@ -20,6 +21,7 @@ from sqlmodel import Session, select
 
 from .. import access
 from ..access import Actor
+from ..chem.sidechains import KINDS as CHAIN_KINDS
 from ..bounds import CARBONS, MAX_ROW_ID, PAGE, whole_number
 from ..errors import InputError
 from ..models import BATCH_STATES, Compound, CompoundSideChain, CompoundStats, Scaffold
@@ -97,6 +99,85 @@ def _chain_exists(values: Mapping[str, Any]) -> Optional[ColumnElement]:
     return exists().where(CompoundSideChain.compound_id == Compound.id, *conds)
 
 
+NO_BRIDGE = "-"  # the ``bridge`` filter's value for compounds without a named bridge
+MAX_CHAIN_TYPES = 12  # distinct side chains named in one ``chains`` filter
+
+
+@dataclass(frozen=True, order=True)
+class ChainType:
+    """One distinct side chain of a molecule: kind, carbon count, branched or not."""
+
+    kind: str
+    carbons: int
+    branched: bool
+
+    def __str__(self) -> str:
+        return f"{self.kind}:{self.carbons}{'b' if self.branched else ''}"
+
+    @property
+    def label(self) -> str:
+        return f"C{self.carbons} {self.kind}{' (branched)' if self.branched else ''}"
+
+
+@dataclass(frozen=True)
+class ChainSet:
+    """The set of distinct side chains of a molecule (one element: a pure compound; more: mixed chains).
+
+    Written in a query string as ``kind:carbons[b]`` items joined by commas, e.g. ``alkoxy:2,alkoxy:12``.
+    """
+
+    types: tuple[ChainType, ...]
+
+    @classmethod
+    def of(cls, side_chains: Sequence[Mapping[str, Any]]) -> "ChainSet":
+        return cls(tuple(sorted({ChainType(c["kind"], int(c["carbons"]), bool(c["branched"])) for c in side_chains})))
+
+    @property
+    def mixed(self) -> bool:
+        return len(self.types) > 1
+
+    @property
+    def label(self) -> str:
+        """``C12 alkoxy`` for a pure compound; ``C2 / C12 alkoxy, mixed`` (kinds named once when shared)."""
+        if not self.mixed:
+            return self.types[0].label if self.types else "no side chains"
+        kinds = {t.kind for t in self.types}
+        if len(kinds) == 1:
+            parts = [f"C{t.carbons}{' branched' if t.branched else ''}" for t in self.types]
+            return f"{' / '.join(parts)} {next(iter(kinds))}, mixed"
+        return " / ".join(t.label for t in self.types) + ", mixed"
+
+    def __str__(self) -> str:
+        return ",".join(str(t) for t in self.types)
+
+
+def _chain_set(name: str, text: str) -> ChainSet:
+    items = [s.strip() for s in text.split(",") if s.strip()]
+    if not items or len(items) > MAX_CHAIN_TYPES:
+        raise InputError(f"name 1 to {MAX_CHAIN_TYPES} side chains as kind:carbons, e.g. alkoxy:2,alkoxy:12",
+                         field=name)
+    types = []
+    for item in items:
+        m = re.fullmatch(r"([a-z]+):(\d{1,3})(b?)", item)
+        if m is None or m.group(1) not in CHAIN_KINDS:
+            raise InputError(f"{item!r} is not kind:carbons (kind one of {', '.join(CHAIN_KINDS)}; "
+                             "a trailing b for branched), e.g. alkoxy:12", field=name)
+        types.append(ChainType(m.group(1), _carbons(name, m.group(2)), m.group(3) == "b"))
+    return ChainSet(tuple(sorted(set(types))))
+
+
+def _chain_set_condition(value: ChainSet, _: Mapping[str, Any]) -> ColumnElement:
+    """Exactly these distinct side chains: each one present and no other."""
+
+    def match(t: ChainType) -> ColumnElement:
+        return and_(CompoundSideChain.kind == t.kind, CompoundSideChain.carbons == t.carbons,
+                    CompoundSideChain.branched == t.branched)
+
+    own = CompoundSideChain.compound_id == Compound.id
+    return and_(*[exists().where(own, match(t)) for t in value.types],
+                ~exists().where(own, ~or_(*[match(t) for t in value.types])))
+
+
 def _barrier_col(values: Mapping[str, Any]):
     src = values.get("barrier_source", "measured")
     return CompoundStats.barrier_computed_kcal_mol if src == "computed" else CompoundStats.barrier_measured_kcal_mol
@@ -117,16 +198,24 @@ def _text(value: str, _: Mapping[str, Any], actor: Optional[Actor] = None) -> Co
 FILTERS: tuple[Filter, ...] = (
     Filter("q", "Text", lambda n, t: t, _text, help="code, label or notes contain"),
     Filter("scaffold", "Scaffold", lambda n, t: t, lambda v, _: Scaffold.code == v),
-    Filter("bridge", "Bridge", lambda n, t: t, lambda v, _: Scaffold.bridge == v),
-    Filter("chain_kind", "Side-chain kind", _choice(lambda: ("alkoxy", "alkylthio", "alkyl", "other"))),
+    # "-": no named bridge (no scaffold, or a scaffold whose bridge atoms were not recognised)
+    Filter("bridge", "Bridge", lambda n, t: t,
+           lambda v, _: or_(Compound.scaffold_id.is_(None), Scaffold.bridge == "") if v == NO_BRIDGE
+           else Scaffold.bridge == v),
+    Filter("no_scaffold", "Without a scaffold", _bool,
+           lambda v, _: Compound.scaffold_id.is_(None) if v else Compound.scaffold_id.is_not(None)),
+    Filter("chain_kind", "Side-chain kind", _choice(lambda: CHAIN_KINDS)),
     Filter("c_min", "Carbons from", _carbons),
     Filter("c_max", "Carbons to", _carbons),
     Filter("branched", "Branched", _bool),
     # The molecule's most frequent side chain (what the outcome map groups by).
-    Filter("main_kind", "Main side-chain kind", _choice(lambda: ("alkoxy", "alkylthio", "alkyl", "other")),
+    Filter("main_kind", "Main side-chain kind", _choice(lambda: CHAIN_KINDS),
            lambda v, _: CompoundStats.chain_kind == v),
     Filter("main_c", "Main side-chain carbons", _carbons, lambda v, _: CompoundStats.chain_carbons == v),
     Filter("main_branched", "Main side chain branched", _bool, lambda v, _: CompoundStats.chain_branched == v),
+    # Exactly this set of distinct side chains (what each row of the outcome map counts).
+    Filter("chains", "Side chains, exactly", _chain_set, _chain_set_condition,
+           help="e.g. alkoxy:12, or alkoxy:2,alkoxy:12 for mixed chains"),
     Filter("batch_state", "Batch state", _choice(lambda: BATCH_STATES),
            lambda v, _: CompoundStats.batch_states.like(f"%,{v},%")),
     Filter("verdict", "Verdict", _choice(lambda: VERDICT_CODES), lambda v, _: EFFECTIVE_CODE.in_(v), multi=True),
@@ -148,7 +237,7 @@ FILTER_BY_NAME = {f.name: f for f in FILTERS}
 # from it): for a caller who may not see embargoed structures they never match an embargoed row
 # (``access.structure_condition``). ``q`` is handled by :func:`_text` (the code stays searchable).
 STRUCTURAL_FILTERS = frozenset({"scaffold", "bridge", "chain_kind", "c_min", "c_max", "branched", "main_kind",
-                                "main_c", "main_branched"})
+                                "main_c", "main_branched", "chains", "no_scaffold"})
 
 # Sortable columns: query-string name -> (label, unit, SQL expression)
 SORTS: dict[str, tuple[str, str, Any]] = {

@@ -24,7 +24,7 @@ router = APIRouter(include_in_schema=False)
 def explorer(request: Request, session: SessionDep, actor: PageActor, x: str = "carbons",
              y: str = "barrier_measured", group: str = "verdict", trend: str = "", t: str = ""):
     """Any numeric property against any other, coloured by a grouping, over the filtered registry."""
-    error, fig, n = None, None, 0
+    error, fig, n, mixed_out = None, None, 0, 0
     t_K: Optional[float] = None
     try:
         q = views.parse_view(request.query_params)
@@ -32,11 +32,12 @@ def explorer(request: Request, session: SessionDep, actor: PageActor, x: str = "
             t_K = parse_quantity(t, field="t", unit="K", example="300 K or 25 degC", temperature=True)
         points = explore.explore(session, q, actor=actor, x=x, y=y, group=group, t_K=t_K)
         n = len(points)
+        mixed_out = explore.mixed_left_out(session, q, actor=actor, x=x, y=y)
         fig = explore.explorer_figure_json(points, x=x, y=y, t_K=t_K, with_trend=bool(trend), group=group)
     except InputError as exc:
         error, q = str(exc), views.ViewQuery()
     return render(request, "pages/explorer.html",
-                  {"figure": fig, "error": error, "n": n, "properties": explore.PROPERTIES,
+                  {"figure": fig, "error": error, "n": n, "mixed_out": mixed_out, "properties": explore.PROPERTIES,
                    "groupings": explore.GROUPINGS, "x": x, "y": y, "group": group, "trend": trend, "t": t,
                    "q": q, "filter_link": q.link(page=None)},
                   partial="partials/explorer_plot.html", actor=actor, status_code=422 if error else 200)

@@ -62,7 +62,7 @@ def test_outcome_map_counts_and_links(client, session, data):
     c2 = rows[0].find("td")
     assert c2["data-best"] == "loop_switching_only"
     link = c2.find("a")["href"]
-    assert "main_kind=alkoxy" in link and "main_c=2" in link and "scaffold=BWL-C" in link
+    assert "chains=alkoxy%3A2" in link and "scaffold=BWL-C" in link
     table = soup(client.get(link).text)
     assert len(table.select("table.registry tbody tr")) == 1
 

@@ -14,7 +14,7 @@ are the compounds of the registry benchmark.
    any query, >= 20 for groups that fewer than 1 % of the molecules carry.
    Memory: resident-size growth of a fresh process while it builds an index of 10 000
    molecules, per molecule (target <= 5 KB); build time per 100 000 molecules (target 10 s).
-   Similarity at Tanimoto >= 0.7 (Morgan radius 2, 512 bits, as the index):
+   Similarity at Tanimoto >= 0.7 (Morgan radius-2 count vectors, as the index):
    ``StructureIndex.similar`` against a loop of ``DataStructs.TanimotoSimilarity`` over
    pre-computed fingerprints (no agreed target; reported).
 2. PostgreSQL with the RDKit cartridge, 10 000 compounds: ``server.services.search.search``
@@ -40,7 +40,7 @@ from sqlalchemy.engine import make_url
 from sqlalchemy.exc import OperationalError
 from sqlmodel import Session
 
-from server.chem.search import MORGAN_FP_SIZE, PATTERN_FP_SIZE, StructureIndex, fingerprint, read_query
+from server.chem.search import PATTERN_FP_SIZE, StructureIndex, fingerprint, read_query
 from server.db import make_engine, upgrade
 from server.settings import Settings
 
@@ -262,10 +262,9 @@ def cartridge(section: Section, lite, records: list[dict], tables: dict, n: int,
         seed.insert_tables(pg, tables, only=("scaffold", "compound"))
         t0 = time.perf_counter()
         with pg.begin() as conn:
-            # As migration 0004 backfills: fingerprint size pinned to the in-process one (512 bits).
-            conn.execute(text("SELECT set_config('rdkit.morgan_fp_size', :n, true)"), {"n": str(MORGAN_FP_SIZE)})
+            # As migrations 0004 and 0021 backfill: the molecule and its Morgan count fingerprint.
             conn.execute(text(
-                "INSERT INTO compound_structure (compound_id, m, mfp) SELECT s.id, s.m, morganbv_fp(s.m, 2) "
+                "INSERT INTO compound_structure (compound_id, m, mcfp) SELECT s.id, s.m, morgan_fp(s.m, 2) "
                 "FROM (SELECT id, mol_from_smiles(smiles::cstring) AS m FROM compound) AS s"))
         t_fill = time.perf_counter() - t0
         with pg.connect() as conn:
@@ -274,7 +273,7 @@ def cartridge(section: Section, lite, records: list[dict], tables: dict, n: int,
         with Session(pg) as s_pg:
             if search_service.backend(s_pg) != search_service.CARTRIDGE:
                 raise RuntimeError("the scratch PostgreSQL database did not get the cartridge back end")
-        section.details.append(f"Cartridge: {n} structures loaded with mol_from_smiles + morganbv_fp and "
+        section.details.append(f"Cartridge: {n} structures loaded with mol_from_smiles + morgan_fp and "
                                f"GiST-indexed in {t_fill:.1f} s.")
 
         def via(engine, **kw):

@@ -30,7 +30,7 @@ depends_on: Union[str, Sequence[str], None] = None
 
 log = logging.getLogger("remanence.migrations")
 
-# Must equal server.chem.search.MORGAN_FP_SIZE (the cartridge default, 512): pinned here so
+# The cartridge default rdkit.morgan_fp_size (512), pinned here so
 # the backfilled fingerprints match the in-process ones whatever the database default is.
 MORGAN_FP_SIZE = 512
 

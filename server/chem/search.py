@@ -10,20 +10,22 @@ does with its default settings:
 * substructure: ``m @> qmol_from_smarts(q)`` / ``m @> mol_from_smiles(q)`` is RDKit's
   ``SubstructMatch`` without chirality (cartridge GUC ``rdkit.do_chiral_sss`` is off by
   default; ``HasSubstructMatch(useChirality=False)`` here);
-* similarity: ``morganbv_fp(m, 2)`` is a Morgan bit vector of radius 2 and
-  ``rdkit.morgan_fp_size`` bits (default 512; checked with ``SHOW rdkit.morgan_fp_size``
-  on the cartridge installed by .ci/run). :data:`MORGAN_FP_SIZE` is that number, and the
-  service also pins the GUC to it in every transaction that computes a fingerprint, so a
-  database whose default was changed still agrees with this module. Tanimoto is the
-  ratio of common on-bits to bits on in either vector, computed the same way (one double
-  division of two integers) by ``tanimoto_sml`` and ``DataStructs.BulkTanimotoSimilarity``.
+* similarity: ``morgan_fp(m, 2)`` is the unfolded Morgan *count* fingerprint of radius 2
+  (an ``sfp``: how often each circular environment occurs, no folding, so no bit collisions and no
+  size setting to agree on), what ``GetMorganGenerator(radius=2).GetSparseCountFingerprint``
+  computes here. Tanimoto on count vectors is sum(min(a_i, b_i)) / (sum a_i + sum b_i - sum min),
+  computed the same way by ``tanimoto_sml`` and ``DataStructs.BulkTanimotoSimilarity``.
+  Counts matter in this registry: bit vectors give Tanimoto 1.0 between the C6, C8, C10 and C12
+  members of one homologous series (a longer chain adds only more of the same CH2 environments),
+  so similarity search could not tell homologues apart; with counts, neighbours in chain length
+  rank nearest.
 
 References
 ----------
 * Morgan algorithm: H. L. Morgan, J. Chem. Doc. 5, 107 (1965), DOI 10.1021/c160017a018;
   circular (ECFP-type) fingerprints: D. Rogers, M. Hahn, J. Chem. Inf. Model. 50, 742
   (2010), DOI 10.1021/ci100050t.
-* Tanimoto coefficient for fingerprint similarity: P. Willett, J. M. Barnard,
+* Tanimoto coefficient for fingerprint similarity, on bit and on count vectors: P. Willett, J. M. Barnard,
   G. M. Downs, J. Chem. Inf. Comput. Sci. 38, 983 (1998), DOI 10.1021/ci9800211;
   D. Bajusz, A. Racz, K. Heberger, J. Cheminform. 7, 20 (2015), DOI 10.1186/s13321-015-0069-3.
 * Screening before atom-by-atom matching: J. M. Barnard, J. Chem. Inf. Comput. Sci. 33,
@@ -49,7 +51,6 @@ from server.errors import ChemistryError
 
 __all__ = [
     "MORGAN_RADIUS",
-    "MORGAN_FP_SIZE",
     "PATTERN_FP_SIZE",
     "Query",
     "read_query",
@@ -61,16 +62,13 @@ __all__ = [
     "StructureIndex",
 ]
 
-# Morgan radius 2 (ECFP4-like, Rogers & Hahn 2010) as in the cartridge call morganbv_fp(m, 2).
+# Morgan radius 2 (ECFP4-like counts, Rogers & Hahn 2010) as in the cartridge call morgan_fp(m, 2).
 MORGAN_RADIUS = 2
-# The cartridge's default rdkit.morgan_fp_size (SHOW rdkit.morgan_fp_size -> 512 on the
-# Debian postgresql-15-rdkit 202209.3 cartridge; also the documented default).
-MORGAN_FP_SIZE = 512
 # Size of the substructure screen (RDKit's default pattern fingerprint length).
 PATTERN_FP_SIZE = 2048
 
 _FIELDS = {"substructure": "substructure", "similarity": "similar"}
-_MORGAN = rdFingerprintGenerator.GetMorganGenerator(radius=MORGAN_RADIUS, fpSize=MORGAN_FP_SIZE)
+_MORGAN = rdFingerprintGenerator.GetMorganGenerator(radius=MORGAN_RADIUS)
 _MORGAN_LOCK = threading.Lock()  # generators are not documented as thread-safe
 _PATTERNS = rdSubstructLibrary.PatternHolder(PATTERN_FP_SIZE)  # only its MakeFingerprint is used
 # Molecules per immutable segment of the index (a registration copies at most one segment).
@@ -197,15 +195,15 @@ def parse_query(text: str, *, kind: str = "substructure") -> Chem.Mol:
     return read_query(text, kind=kind).mol
 
 
-def fingerprint(mol: Chem.Mol) -> DataStructs.ExplicitBitVect:
-    """Morgan bit vector, radius 2, :data:`MORGAN_FP_SIZE` (512) bits.
+def fingerprint(mol: Chem.Mol) -> DataStructs.ULongSparseIntVect:
+    """Unfolded Morgan count fingerprint, radius 2 (environment identifier -> occurrences).
 
-    Bit for bit what the cartridge's ``morganbv_fp(m, 2)`` computes with its default
-    ``rdkit.morgan_fp_size`` (Rogers & Hahn 2010, DOI 10.1021/ci100050t): atom invariants
-    with ring membership, bond types used, no chirality, no counts.
+    Element for element what the cartridge's ``morgan_fp(m, 2)`` and RDKit's legacy
+    ``GetMorganFingerprint(m, 2)`` compute (Rogers & Hahn 2010, DOI 10.1021/ci100050t): atom
+    invariants with ring membership, bond types used, no chirality, counts kept.
     """
     with _MORGAN_LOCK:
-        return _MORGAN.GetFingerprint(mol)
+        return _MORGAN.GetSparseCountFingerprint(mol)
 
 
 def _pattern_fp(mol: Chem.Mol) -> DataStructs.ExplicitBitVect:
@@ -296,7 +294,7 @@ class _Segment:
     ids: tuple[int, ...]
     smiles: tuple[str, ...]
     patterns: tuple[DataStructs.ExplicitBitVect, ...]
-    morgan: tuple[DataStructs.ExplicitBitVect, ...]
+    morgan: tuple[DataStructs.ULongSparseIntVect, ...]  # count fingerprints (:func:`fingerprint`)
     lib: rdSubstructLibrary.SubstructLibrary
 
     @classmethod
@@ -322,7 +320,7 @@ class _Segment:
 _EMPTY = ()  # a snapshot is a tuple of segments
 
 
-def _entry(compound_id: int, smiles: str) -> tuple[int, str, DataStructs.ExplicitBitVect, DataStructs.ExplicitBitVect]:
+def _entry(compound_id: int, smiles: str) -> tuple[int, str, DataStructs.ExplicitBitVect, DataStructs.ULongSparseIntVect]:
     mol = _smiles(smiles)
     if mol is None:
         raise ChemistryError(f"compound {compound_id}: stored SMILES '{smiles}' cannot be read", field="smiles")
@@ -335,7 +333,7 @@ class StructureIndex:
     The structures live in immutable segments of at most :data:`SEGMENT_SIZE` molecules,
     each an RDKit ``SubstructLibrary`` holding trusted canonical SMILES (parsed on demand:
     about 1 KB per molecule in all, against about 70 KB for a parsed molecule) with its
-    pattern-fingerprint screen, plus the Morgan bit vectors for similarity. A search reads
+    pattern-fingerprint screen, plus the Morgan count vectors for similarity. A search reads
     the current tuple of segments once and matches without any lock; a writer (registration,
     catching up with the table) builds the changed segment anew and swaps the tuple in under
     a lock that searches never take (copy-on-write). Matching runs on ``threads`` threads
@@ -473,7 +471,7 @@ class StructureIndex:
     ) -> list[tuple[int, float]]:
         """``(id, Tanimoto)`` of the molecules with similarity >= ``threshold``.
 
-        Sorted by similarity (highest first), then id. Tanimoto on the Morgan bit vectors
+        Sorted by similarity (highest first), then id. Tanimoto on the Morgan count vectors
         of :func:`fingerprint` (Willett et al. 1998).
         """
         q_fp = fingerprint(query)

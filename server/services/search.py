@@ -3,19 +3,17 @@
 Two back ends give the same answers (tests/services/test_search.py checks it):
 
 * **cartridge** - PostgreSQL with the RDKit cartridge (``CREATE EXTENSION rdkit``) and the
-  table ``compound_structure (compound_id, m mol, mfp bfp)`` made by migration 0002, with
-  GiST indexes on ``m`` and ``mfp``. Queries are bound parameters, never pasted into SQL:
-  ``m @> qmol_from_smarts(:q)`` or ``m @> mol_from_smiles(:q)`` and
-  ``tanimoto_sml(morganbv_fp(mol_from_smiles(:q), 2), mfp) >= :t``.
+  table ``compound_structure (compound_id, m mol, mcfp sfp)`` made by migration 0004 (its bit-vector
+  column replaced by counts in migration 0021), with GiST indexes on ``m`` and ``mcfp``. Queries
+  are bound parameters, never pasted into SQL: ``m @> qmol_from_smarts(:q)`` or
+  ``m @> mol_from_smiles(:q)`` and ``tanimoto_sml(morgan_fp(mol_from_smiles(:q), 2), mcfp) >= :t``.
 * **in-process** - SQLite, and PostgreSQL without a working cartridge (migration 0002
   skips the table then, with a warning): one :class:`~server.chem.search.StructureIndex`
   per engine, built lazily from the compound table, brought up to date before each search
   (so compounds registered by other processes are found) and updated on registration.
 
-Which one a database uses: :func:`backend`. Fingerprints are Morgan radius 2 with
-``MORGAN_FP_SIZE`` (512) bits in both; on the cartridge every transaction that computes one
-pins ``rdkit.morgan_fp_size`` to that number with ``set_config(..., true)``, so a changed
-database default cannot make the two back ends disagree.
+Which one a database uses: :func:`backend`. Fingerprints are unfolded Morgan count vectors of
+radius 2 in both (``server.chem.search.fingerprint``), which no setting of the database changes.
 """
 
 from __future__ import annotations
@@ -33,7 +31,7 @@ from sqlalchemy.engine import Connection, Engine
 from sqlalchemy.exc import DBAPIError
 from sqlmodel import Session, select
 
-from ..chem.search import MORGAN_FP_SIZE, MORGAN_RADIUS, Query, QueryTooGeneral, StructureIndex, read_query
+from ..chem.search import MORGAN_RADIUS, Query, QueryTooGeneral, StructureIndex, read_query
 from ..errors import InputError
 from ..models import Compound
 
@@ -159,10 +157,6 @@ def _drop_pending(session: Session) -> None:
 # --- registration hook -------------------------------------------------------------------------
 
 
-def _pin_morgan_size(session: Session) -> None:
-    session.execute(text("SELECT set_config('rdkit.morgan_fp_size', :n, true)"), {"n": str(MORGAN_FP_SIZE)})
-
-
 def index_compound(session: Session, compound: Compound) -> None:
     """Make a newly flushed compound searchable, in the caller's transaction.
 
@@ -173,13 +167,12 @@ def index_compound(session: Session, compound: Compound) -> None:
     if compound.id is None:
         raise ValueError("index_compound needs a flushed compound (with an id)")
     if backend(session) == CARTRIDGE:
-        _pin_morgan_size(session)
         unreadable = session.execute(
             text(
-                f"INSERT INTO {STRUCTURE_TABLE} (compound_id, m, mfp) "
-                f"SELECT :id, s.m, morganbv_fp(s.m, {MORGAN_RADIUS}) "
+                f"INSERT INTO {STRUCTURE_TABLE} (compound_id, m, mcfp) "
+                f"SELECT :id, s.m, morgan_fp(s.m, {MORGAN_RADIUS}) "
                 "FROM (SELECT mol_from_smiles(CAST(:smiles AS text)) AS m) AS s "
-                "ON CONFLICT (compound_id) DO UPDATE SET m = EXCLUDED.m, mfp = EXCLUDED.mfp "
+                "ON CONFLICT (compound_id) DO UPDATE SET m = EXCLUDED.m, mcfp = EXCLUDED.mcfp "
                 "RETURNING m IS NULL"
             ),
             {"id": compound.id, "smiles": compound.smiles},
@@ -234,7 +227,7 @@ def search(
     substructure : str, optional
         SMARTS, or SMILES (see :func:`server.chem.search.read_query`). Blank counts as not given.
     similar : str, optional
-        SMILES (or MOL block) to compare with: Morgan radius-2, 512-bit fingerprints,
+        SMILES (or MOL block) to compare with: Morgan radius-2 count fingerprints,
         Tanimoto similarity (Rogers & Hahn 2010, DOI 10.1021/ci100050t; Willett et al.
         1998, DOI 10.1021/ci9800211).
     threshold : float
@@ -293,12 +286,11 @@ def _search_cartridge(session, sub_q: Query | None, sim_q: Query | None, t: floa
         where.append(f"s.m @> {reader}")
         params["sub"] = sub_q.text
     if sim_q is not None:
-        _pin_morgan_size(session)
         session.execute(text("SELECT set_config('rdkit.tanimoto_threshold', :g, true)"),
                         {"g": repr(max(0.0, t - _SCREEN_SLACK))})
-        query_fp = f"morganbv_fp(mol_from_smiles(CAST(:sim AS text)), {MORGAN_RADIUS})"
-        sim_column = f"tanimoto_sml({query_fp}, s.mfp)"
-        where.append(f"s.mfp % {query_fp}")  # GiST-indexed screen at the slackened threshold
+        query_fp = f"morgan_fp(mol_from_smiles(CAST(:sim AS text)), {MORGAN_RADIUS})"
+        sim_column = f"tanimoto_sml({query_fp}, s.mcfp)"
+        where.append(f"s.mcfp % {query_fp}")  # GiST-indexed screen at the slackened threshold
         where.append(f"{sim_column} >= CAST(:t AS double precision)")
         params.update(sim=sim_q.text, t=t)
         order = "similarity DESC, c.id"
@@ -409,19 +401,17 @@ def enable_cartridge(engine: Engine) -> CartridgeState:
                 if conn.execute(text("SELECT to_regclass(:t)"), {"t": STRUCTURE_TABLE}).scalar_one() is not None:
                     created = False
                 else:
-                    # The statements of migration 0004 (kept there as that revision's record).
+                    # The statements of migrations 0004 and 0021 (kept there as those revisions' record).
                     conn.execute(text(
-                        f"CREATE TABLE {STRUCTURE_TABLE} (compound_id integer NOT NULL, m mol, mfp bfp, "
+                        f"CREATE TABLE {STRUCTURE_TABLE} (compound_id integer NOT NULL, m mol, mcfp sfp, "
                         f"CONSTRAINT pk_{STRUCTURE_TABLE} PRIMARY KEY (compound_id), "
                         f"CONSTRAINT fk_{STRUCTURE_TABLE}_compound_id_compound FOREIGN KEY (compound_id) "
                         "REFERENCES compound (id))"))
                     conn.execute(text(f"CREATE INDEX ix_{STRUCTURE_TABLE}_m ON {STRUCTURE_TABLE} USING gist (m)"))
-                    conn.execute(text(f"CREATE INDEX ix_{STRUCTURE_TABLE}_mfp ON {STRUCTURE_TABLE} USING gist (mfp)"))
-                    conn.execute(text("SELECT set_config('rdkit.morgan_fp_size', :n, true)"),
-                                 {"n": str(MORGAN_FP_SIZE)})
+                    conn.execute(text(f"CREATE INDEX ix_{STRUCTURE_TABLE}_mcfp ON {STRUCTURE_TABLE} USING gist (mcfp)"))
                     conn.execute(text(
-                        f"INSERT INTO {STRUCTURE_TABLE} (compound_id, m, mfp) "
-                        f"SELECT s.id, s.m, morganbv_fp(s.m, {MORGAN_RADIUS}) "
+                        f"INSERT INTO {STRUCTURE_TABLE} (compound_id, m, mcfp) "
+                        f"SELECT s.id, s.m, morgan_fp(s.m, {MORGAN_RADIUS}) "
                         "FROM (SELECT id, mol_from_smiles(smiles::cstring) AS m FROM compound) AS s"))
                     created = True
         except DBAPIError as exc:

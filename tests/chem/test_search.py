@@ -2,9 +2,10 @@
 
 The references are independent of the code under test: substructure hits come from
 ``Chem.MolFromSmarts``/``MolFromSmiles`` + ``HasSubstructMatch`` on every molecule (no
-screen), similarities from RDKit's legacy Morgan implementation
-(``rdMolDescriptors.GetMorganFingerprintAsBitVect``, not the generator the module uses) and
-``DataStructs.TanimotoSimilarity`` pair by pair.
+screen), similarities from RDKit's legacy Morgan count implementation
+(``rdMolDescriptors.GetMorganFingerprint``, not the generator the module uses) and the Tanimoto
+coefficient on count vectors written out by hand, sum(min) / (sum a + sum b - sum min) (Willett,
+Barnard & Downs 1998, DOI 10.1021/ci9800211), pair by pair.
 """
 
 from __future__ import annotations
@@ -16,7 +17,6 @@ from rdkit.Chem import rdMolDescriptors
 
 from server.chem.scaffold import PARENT_BOWLS, attach_side_chains, build_from_scaffold
 from server.chem.search import (
-    MORGAN_FP_SIZE,
     StructureIndex,
     fingerprint,
     parse_query,
@@ -91,15 +91,22 @@ def brute_substructure(query: Chem.Mol, ids=None) -> list[int]:
     return [i for i, s in zip(IDS, MOLECULES) if i in keep and Chem.MolFromSmiles(s).HasSubstructMatch(query)]
 
 
-def legacy_fp(smiles: str):
+def legacy_fp(smiles: str) -> dict[int, int]:
+    """Morgan radius-2 environment counts from RDKit's legacy (pre-generator) implementation."""
     with quiet_rdkit():  # the legacy call logs a deprecation notice
-        return rdMolDescriptors.GetMorganFingerprintAsBitVect(Chem.MolFromSmiles(smiles), 2, nBits=512)
+        return rdMolDescriptors.GetMorganFingerprint(Chem.MolFromSmiles(smiles), 2).GetNonzeroElements()
+
+
+def count_tanimoto(a: dict[int, int], b: dict[int, int]) -> float:
+    """Tanimoto on count vectors: sum min(a_i, b_i) / (sum a_i + sum b_i - sum min) (Willett et al. 1998)."""
+    common = sum(min(n, b[k]) for k, n in a.items() if k in b)
+    return common / (sum(a.values()) + sum(b.values()) - common)
 
 
 def brute_similar(query_smiles: str, threshold: float, ids=None) -> dict[int, float]:
     keep = set(IDS if ids is None else ids)
     q = legacy_fp(query_smiles)
-    sims = {i: DataStructs.TanimotoSimilarity(q, legacy_fp(s)) for i, s in zip(IDS, MOLECULES) if i in keep}
+    sims = {i: count_tanimoto(q, legacy_fp(s)) for i, s in zip(IDS, MOLECULES) if i in keep}
     return {i: v for i, v in sims.items() if v >= threshold}
 
 
@@ -162,22 +169,37 @@ def test_similarity_with_candidates_and_self_match(index):
     assert got[0] == (IDS[4], 1.0)
 
 
-def test_fingerprint_matches_the_legacy_implementation_bit_for_bit():
-    assert MORGAN_FP_SIZE == 512  # the cartridge default rdkit.morgan_fp_size (see tests/services)
+def test_fingerprint_matches_the_legacy_implementation_element_for_element():
     for smi in MOLECULES:
-        ours = fingerprint(Chem.MolFromSmiles(smi))
-        assert ours.GetNumBits() == 512
-        assert list(ours.GetOnBits()) == list(legacy_fp(smi).GetOnBits())
+        assert fingerprint(Chem.MolFromSmiles(smi)).GetNonzeroElements() == legacy_fp(smi)
 
 
-def test_benzene_has_one_identifier_per_radius():
+def test_benzene_has_one_identifier_per_radius_six_times():
     # Morgan/ECFP (Rogers & Hahn 2010): all six benzene atoms are equivalent, so iterations 0, 1
-    # and 2 give one distinct identifier each: 3 on-bits at radius 2 (reasoned from the algorithm).
-    assert fingerprint(Chem.MolFromSmiles("c1ccccc1")).GetNumOnBits() == 3
+    # and 2 give one distinct identifier each, each seen at six atoms (reasoned from the algorithm).
+    assert sorted(fingerprint(Chem.MolFromSmiles("c1ccccc1")).GetNonzeroElements().values()) == [6, 6, 6]
     # Cyclohexane's atoms carry two hydrogens and single bonds: no identifier in common -> Tanimoto 0.
     a = fingerprint(Chem.MolFromSmiles("c1ccccc1"))
     b = fingerprint(Chem.MolFromSmiles("C1CCCCC1"))
     assert DataStructs.TanimotoSimilarity(a, b) == 0.0
+
+
+def test_homologues_rank_by_chain_length():
+    # Issue 22: bit vectors give Tanimoto 1.0 between C6, C8, C10 and C12 homologues (a longer chain
+    # only repeats CH2 environments); count vectors must rank the nearest chain length first.
+    series = {n: build_from_scaffold(PARENT_BOWLS["CH2"], "alkoxy", n, None) for n in (4, 6, 8, 10, 12)}
+    bits = [rdMolDescriptors.GetMorganFingerprintAsBitVect(Chem.MolFromSmiles(s), 2, nBits=512)
+            for s in series.values()]
+    assert all(DataStructs.TanimotoSimilarity(bits[1], b) == 1.0 for b in bits[1:])  # the blindness fixed here
+    idx = StructureIndex()
+    for n, smi in series.items():
+        idx.add(n, smi)
+    ranked = [n for n, _ in idx.similar(Chem.MolFromSmiles(series[6]), 0.1)]
+    assert ranked[0] == 6 and set(ranked[1:3]) == {4, 8} and ranked[3:] == [10, 12]
+    got = dict(idx.similar(Chem.MolFromSmiles(series[8]), 0.1))
+    assert got[6] > got[4] and got[10] > got[12] and got[8] == 1.0
+    for n, sim in got.items():
+        assert sim == pytest.approx(count_tanimoto(legacy_fp(series[8]), legacy_fp(series[n])), abs=1e-12)
 
 
 def test_remove_and_replace():

@@ -2,8 +2,9 @@
 
 Compounds are registered through the JSON API, as a chemist would. Expected answers come
 from brute force outside the code under test: ``HasSubstructMatch`` on every registered
-molecule and ``DataStructs.TanimotoSimilarity`` of RDKit's legacy Morgan implementation
-(``rdMolDescriptors.GetMorganFingerprintAsBitVect``, radius 2, 512 bits) for every pair.
+molecule and the count-vector Tanimoto of RDKit's legacy Morgan count implementation
+(``rdMolDescriptors.GetMorganFingerprint``, radius 2) for every pair, written out in
+tests/chem/test_search.py.
 The last test registers the same 40 molecules in both back ends and compares the answers.
 """
 
@@ -15,18 +16,17 @@ import shutil
 import pytest
 import sqlalchemy as sa
 from fastapi.testclient import TestClient
-from server.chem.identity import quiet_rdkit
 from rdkit import Chem, DataStructs, rdBase
-from rdkit.Chem import rdMolDescriptors
 from sqlmodel import Session, select
 
 from server.app import create_app
-from server.chem.search import MORGAN_FP_SIZE, fingerprint
+from server.chem.scaffold import PARENT_BOWLS, build_from_scaffold
+from server.chem.search import fingerprint
 from server.errors import ChemistryError, InputError
 from server.models import Compound
 from server.services import search as structure_search
 from server.settings import Settings
-from tests.chem.test_search import MOLECULES, RING_QUERIES, SMARTS_QUERIES
+from tests.chem.test_search import MOLECULES, RING_QUERIES, SMARTS_QUERIES, count_tanimoto, legacy_fp
 from tests.conftest import _empty_pg
 from tests.factories import bearer, make_token
 
@@ -34,11 +34,6 @@ from tests.factories import bearer, make_token
 SMALL = [m for i, m in enumerate(MOLECULES[:21]) if i % 7 in (0, 1, 3, 6)] + MOLECULES[21:27]
 QUERIES = ["c1ccccc1", "[#34]", "c1ccsc1", "[OX2][CH2][CH2]", "[CH2;R]", "C1=CC=CC=C1", "*~*"]
 SIMILAR = [(MOLECULES[1], 0.5), (MOLECULES[8], 0.3), ("COc1ccccc1", 0.25), ("c1ccccc1", 1.0)]
-
-
-def legacy_fp(smiles: str):
-    with quiet_rdkit():  # the legacy call logs a deprecation notice
-        return rdMolDescriptors.GetMorganFingerprintAsBitVect(Chem.MolFromSmiles(smiles), 2, nBits=512)
 
 
 def register(client, token_headers, smiles_list) -> dict[str, str]:
@@ -62,7 +57,7 @@ def brute_sub(compounds, text: str, *, kekule_smiles: bool = False) -> list[int]
 
 def brute_sim(compounds, smiles: str, threshold: float) -> list[tuple[int, float]]:
     q = legacy_fp(smiles)
-    pairs = [(c.id, DataStructs.TanimotoSimilarity(q, legacy_fp(c.smiles))) for c in compounds]
+    pairs = [(c.id, count_tanimoto(q, legacy_fp(c.smiles))) for c in compounds]
     return sorted([p for p in pairs if p[1] >= threshold], key=lambda p: (-p[1], p[0]))
 
 
@@ -82,18 +77,16 @@ def test_backend_is_the_cartridge_on_postgresql(session, small_set):
     expected = "cartridge" if name == "postgresql" else "in-process"
     assert structure_search.backend(session) == expected
     if name == "postgresql":
-        # The cartridge default that MORGAN_FP_SIZE must equal (RDKit cartridge docs: 512), read on a
-        # fresh connection once the library is loaded (its GUCs exist only from then on).
-        with session.get_bind().engine.connect() as conn:
-            conn.execute(sa.text("SELECT rdkit_version()"))
-            assert conn.execute(sa.text("SHOW rdkit.morgan_fp_size")).scalar_one() == str(MORGAN_FP_SIZE)
+        probe = small_set[0].smiles
         rows = session.execute(sa.text(
-            "SELECT compound_id, bfp_to_binary_text(mfp) FROM compound_structure ORDER BY compound_id"
-        )).all()
+            "SELECT compound_id, tanimoto_sml(mcfp, morgan_fp(mol_from_smiles(CAST(:q AS text)), 2)), "
+            "tanimoto_sml(mcfp, mcfp) FROM compound_structure ORDER BY compound_id"), {"q": probe}).all()
         assert [r[0] for r in rows] == [c.id for c in small_set]  # every registration indexed
-        for (compound_id, bits), c in zip(rows, small_set):
-            # The cartridge's fingerprint of each compound, bit for bit the in-process one.
-            assert bytes(bits) == DataStructs.BitVectToBinaryText(fingerprint(Chem.MolFromSmiles(c.smiles)))
+        q = fingerprint(Chem.MolFromSmiles(probe))
+        for (compound_id, sim, own), c in zip(rows, small_set):
+            # The cartridge's count fingerprint of each compound compares exactly as the in-process one.
+            assert own == 1.0
+            assert sim == DataStructs.TanimotoSimilarity(q, fingerprint(Chem.MolFromSmiles(c.smiles)))
 
 
 def test_substructure_and_similarity_equal_brute_force(session, small_set):
@@ -286,3 +279,18 @@ def test_searches_are_rate_limited_per_caller(tmp_path, db_url, session):
             assert c.get("/api/v1/compounds", params={"substructure": "c1ccccc1"}, headers=one).status_code == 429
     finally:
         app.state.engine.dispose()
+
+
+def test_homologues_are_told_apart_on_both_back_ends(client, writer, session):
+    # Issue 22, item 5: with bit vectors the C6...C12 alkoxy bowls all scored 1.0; counts rank the
+    # nearest chain length first, and both back ends give the same numbers (reference: the count
+    # Tanimoto of the legacy implementation, tests/chem/test_search.py).
+    series = {n: build_from_scaffold(PARENT_BOWLS["S"], "alkoxy", n, None) for n in (6, 8, 10, 12)}
+    codes = register(client, writer, list(series.values()))
+    by_smiles = {smi: code for code, smi in codes.items()}
+    hits = structure_search.search(session, similar=series[8], threshold=0.3)
+    ref = {by_smiles[series[n]]: count_tanimoto(legacy_fp(series[8]), legacy_fp(series[n])) for n in series}
+    assert [h.code for h in hits] == sorted(ref, key=lambda code: -ref[code])  # C8, C10, C6, C12
+    for h in hits:
+        assert h.similarity == pytest.approx(ref[h.code], abs=1e-12)
+    assert hits[1].similarity < 1.0 and hits[-1].code == by_smiles[series[12]]

@@ -25,11 +25,16 @@ def _figure(parsed, result):
 
 
 def _stats(ms: Sequence[Any]) -> dict[str, Any]:
-    """The strongest switching loop: its Pr, Ec and Ps (loops judged ferroelectric only)."""
-    loops = [m.results for m in ms if m.verdict == "ferroelectric"]
-    best = max(loops, key=lambda r: r.get("pr_uC_cm2") or 0, default={})
-    return {"pr_max_uC_cm2": best.get("pr_uC_cm2"), "ec_kV_cm": best.get("ec_kV_cm"),
-            "ps_uC_cm2": best.get("ps_uC_cm2")}
+    """The strongest switching loop (loops judged ferroelectric only; the first of equals): its Pr, Ec and
+    Ps, and the conditions it was measured at (temperature, field amplitude, the loop itself), because a
+    maximum over temperatures, fields and specimens means little without them."""
+    loops = [m for m in ms if m.verdict == "ferroelectric"]
+    best = max(loops, key=lambda m: m.results.get("pr_uC_cm2") or 0, default=None)
+    r = best.results if best is not None else {}
+    return {"pr_max_uC_cm2": r.get("pr_uC_cm2"), "ec_kV_cm": r.get("ec_kV_cm"), "ps_uC_cm2": r.get("ps_uC_cm2"),
+            "pr_max_t_K": best.temperature_K if best is not None else None,
+            "pr_max_emax_kV_cm": r.get("emax_kV_cm"),
+            "pr_max_measurement_id": best.id if best is not None else None}
 
 
 def _example() -> Example:

@@ -13,7 +13,7 @@ from typing import Any, Optional
 from sqlalchemy import func
 from sqlmodel import Session, select
 
-from ..access import Actor, may_see_structure
+from ..access import Actor, may_see_structure, structure_visible
 from ..verdict_codes import CONFLICTING, HITS, LABELS, UNTESTED
 from ..models import (
     live_measurement,
@@ -24,6 +24,7 @@ from ..models import (
     CompoundStats,
     Job,
     Measurement,
+    Sample,
     SiteSetting,
     utcnow,
 )
@@ -48,6 +49,27 @@ def set_public_status(*, session: Session, enabled: bool, actor: str) -> None:
     audit.record(session, actor=actor, action="site.public_status", entity="site", code=PUBLIC_KEY,
                  before={"value": before}, after={"value": enabled})
     session.commit()
+
+
+# How "current hits" are ranked, in words the page shows beside the table.
+HITS_RULE = ("Ranked by the largest remanent polarisation Pr of a live loop judged ferroelectric, over every "
+             "temperature, field amplitude and specimen measured; each row names the temperature, field "
+             "amplitude and specimen of that loop, so unlike conditions are visible. Loops whose values are "
+             "only apparent (leaky or lossy) are not ranked.")
+MAX_HITS = 12
+
+
+@dataclass(frozen=True)
+class Hit:
+    """One ranked hit and the conditions of the loop that ranked it."""
+
+    compound: "CompoundRef"
+    pr_uC_cm2: Optional[float]
+    ec_kV_cm: Optional[float]
+    t_K: Optional[float]
+    emax_kV_cm: Optional[float]
+    specimen: str  # the sample code of that loop ("" when no loop ranked it)
+    measurement_id: Optional[int]
 
 
 @dataclass(frozen=True)
@@ -92,10 +114,23 @@ def summary(session: Session, *, actor: Optional[Actor], days: int = 7) -> dict[
     }
     new_compounds = [_ref(c, actor=actor) for c in session.exec(
         select(Compound).where(live, Compound.created_at >= since).order_by(Compound.number.desc()).limit(12)).all()]
-    hits = session.exec(
-        select(Compound, CompoundStats).join(CompoundStats, CompoundStats.compound_id == Compound.id, isouter=True)
-        .where(live, EFFECTIVE_CODE.in_(HITS))
-        .order_by(CompoundStats.pr_max_uC_cm2.desc().nulls_last(), Compound.number.desc()).limit(12)).all()
+    # Figures of merit of embargoed compounds are not shown to a caller who may not see them, and the
+    # ranking must not depend on them either: such a caller gets the ranked open hits, then the
+    # embargoed hits by code alone (code and verdict class, in code order).
+    hit_rows = session.exec(
+        select(Compound, CompoundStats, Sample.code)
+        .join(CompoundStats, CompoundStats.compound_id == Compound.id, isouter=True)
+        .join(Measurement, Measurement.id == CompoundStats.pr_max_measurement_id, isouter=True)
+        .join(Sample, Sample.id == Measurement.sample_id, isouter=True)
+        .where(live, EFFECTIVE_CODE.in_(HITS), structure_visible(actor))
+        .order_by(CompoundStats.pr_max_uC_cm2.desc().nulls_last(), Compound.number.desc()).limit(MAX_HITS)).all()
+    hits = [Hit(compound=_ref(c, actor=actor), pr_uC_cm2=s.pr_max_uC_cm2 if s else None,
+                ec_kV_cm=s.ec_kV_cm if s else None, t_K=s.pr_max_t_K if s else None,
+                emax_kV_cm=s.pr_max_emax_kV_cm if s else None, specimen=sample or "",
+                measurement_id=s.pr_max_measurement_id if s else None) for c, s, sample in hit_rows]
+    withheld_hits = [_ref(c, actor=actor) for c in session.exec(
+        select(Compound).where(live, EFFECTIVE_CODE.in_(HITS), ~structure_visible(actor))
+        .order_by(Compound.number).limit(MAX_HITS)).all()]
     review = [_ref(c, actor=actor) for c in session.exec(
         select(Compound).where(live, Compound.verdict_code == CONFLICTING, Compound.override_code.is_(None))
         .order_by(Compound.number.desc()).limit(20)).all()]
@@ -118,7 +153,9 @@ def summary(session: Session, *, actor: Optional[Actor], days: int = 7) -> dict[
         "week": week,
         "days": days,
         "new_compounds": new_compounds,
-        "hits": [(_ref(c, actor=actor), s) for c, s in hits],
+        "hits": hits,
+        "hits_rule": HITS_RULE,
+        "withheld_hits": withheld_hits,
         "review": review,
         "inconclusive_measurements": flagged,
         "jobs": jobs,

@@ -58,20 +58,36 @@ def outcomes(request: Request, session: SessionDep, actor: PageActor, by: str = 
 
 
 @router.get("/status", response_class=HTMLResponse)
-def status_page(request: Request, session: SessionDep, settings: SettingsDep, actor: OptionalActor):
-    """The group status page; public when the admin (or REMANENCE_PUBLIC_STATUS) says so."""
+def status_page(request: Request, session: SessionDep, settings: SettingsDep, actor: OptionalActor,
+                view: str = ""):
+    """The group status page; public when the admin (or REMANENCE_PUBLIC_STATUS) says so.
+
+    A visitor without a login who follows the address before it is public is told that the page is
+    private (403), not shown a bare login form. ``?view=visitor`` shows an admin exactly what a visitor
+    would see (the preview of the publish panel)."""
     public = status.public_status_enabled(session, settings)
     if actor is None and not public:
-        raise access.NotLoggedIn("/status")
-    data = status.summary(session, actor=actor)
-    return render(request, "pages/status.html", {"s": data, "public": public},
-                  partial="partials/status_body.html", actor=actor)
+        return render(request, "pages/status_private.html", {}, actor=None, status_code=403)
+    preview = view == "visitor" and access.allows(actor, access.ADMIN)
+    data = status.summary(session, actor=None if preview else actor)
+    return render(request, "pages/status.html",
+                  {"s": data, "public": public, "preview": preview, "error": None,
+                   "public_url": str(request.url_for("status_page"))},
+                  partial="partials/status_body.html", actor=None if preview else actor)
 
 
 @router.post("/status/public")
-async def toggle_public(request: Request, session: SessionDep, actor: PageAdmin):
+async def toggle_public(request: Request, session: SessionDep, settings: SettingsDep, actor: PageAdmin):
+    """Publish or withdraw the status page; publishing needs the confirmation box ticked."""
     form = await request.form()
-    status.set_public_status(session=session, enabled=form.get("enabled") == "on", actor=actor.label)
+    enabled = form.get("enabled") == "on"
+    if enabled and form.get("confirm") != "on" and not status.public_status_enabled(session, settings):
+        return render(request, "pages/status.html",
+                      {"s": status.summary(session, actor=actor), "public": False, "preview": False,
+                       "public_url": str(request.url_for("status_page")),
+                       "error": "Tick the confirmation (you have looked at the visitor's preview) to publish."},
+                      actor=actor, status_code=422)
+    status.set_public_status(session=session, enabled=enabled, actor=actor.label)
     return redirect("/status", request)
 
 

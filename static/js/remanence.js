@@ -28,3 +28,23 @@ document.addEventListener("drop", function (evt) {
   var input = zone.querySelector('input[type="file"]');
   if (input && evt.dataTransfer && evt.dataTransfer.files.length) { input.files = evt.dataTransfer.files; }
 });
+
+// A button with data-copy="<selector>" copies that field's value and says so on the button.
+document.addEventListener("click", function (evt) {
+  var button = evt.target.closest && evt.target.closest("button[data-copy]");
+  if (!button) return;
+  var field = document.querySelector(button.getAttribute("data-copy"));
+  if (!field) return;
+  var done = function () {
+    var before = button.textContent;
+    button.textContent = "Copied";
+    setTimeout(function () { button.textContent = before; }, 1500);
+  };
+  if (navigator.clipboard && window.isSecureContext) {
+    navigator.clipboard.writeText(field.value).then(done, function () { field.select(); });
+  } else {
+    field.select();
+    document.execCommand("copy");
+    done();
+  }
+});

@@ -274,10 +274,20 @@ def test_export_csv_matches_the_table(page: Page, member, campaign):
 def test_public_status_page_keeps_the_embargo(page: Page, browser, live, login, campaign, browser_log):
     login("admin")
     page.goto("/status")
-    page.get_by_label("readable without login").check()
+    panel = page.locator("#publish")
+    expect(panel).to_contain_text("Private")
+    expect(panel.locator("#public-url")).to_have_value(re.compile(r"/status$"))
+    panel.get_by_label("readable without login").check()
+    browser_log.expect_status(422)
+    panel.get_by_role("button", name="Save").click()
+    # Publishing asks for the confirmation first (issue 22: a visible, confirmed step).
+    expect(page.get_by_role("alert")).to_contain_text("confirmation")
+    panel.get_by_label("readable without login").check()
+    panel.get_by_label("I have looked at the visitor's preview").check()
     with page.expect_navigation():
-        page.get_by_role("button", name="Save").click()
+        panel.get_by_role("button", name="Save").click()
     expect(page.get_by_label("readable without login")).to_be_checked()
+    expect(page.locator("#publish")).to_contain_text("Public:")
 
     embargoed = campaign.code["b_c10"]
     with live.session() as s:

@@ -101,7 +101,7 @@ def test_every_part_works_on_the_kinds_own_example(name, analysed):
     if kind.evidence is not None:
         assert isinstance(kind.evidence(done.results, 300.0), Evidence)
     if kind.stats is not None:
-        row = type("Row", (), {"results": done.results, "verdict": done.verdict, "id": 1})()
+        row = type("Row", (), {"results": done.results, "verdict": done.verdict, "id": 1, "temperature_K": 300.0})()
         fields = kind.stats([row])
         assert fields and set(fields) <= set(CompoundStats.model_fields)
         assert set(kind.stats([])) == set(fields), "stats returns every field it owns, even with no measurement"

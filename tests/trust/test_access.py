@@ -344,9 +344,10 @@ def test_web_routes_follow_the_access_table(app, client, world):
 
 def test_status_page_is_public_only_when_published(app, client, session, world):
     anon = TestClient(app)
-    assert anon.get("/status", follow_redirects=False).status_code == 303
+    private = anon.get("/status", follow_redirects=False)
+    assert private.status_code == 403 and "This page is private" in private.text  # issue 22: not a bare login form
     admin, csrf = world["sessions"]["admin"]
-    assert admin.post("/status/public", data={"enabled": "on", "csrf_token": csrf}).status_code == 200
+    assert admin.post("/status/public", data={"enabled": "on", "confirm": "on", "csrf_token": csrf}).status_code == 200
     assert anon.get("/status", follow_redirects=False).status_code == 200
     anon.close()
 
@@ -366,7 +367,7 @@ def embargoed_world(client, session, world):
     job = client.post(f"/api/v1/compounds/{c['code']}/estimates", json={}, headers=writer)
     assert job.status_code == 202, job.text
     admin, csrf = world["sessions"]["admin"]
-    admin.post("/status/public", data={"enabled": "on", "csrf_token": csrf})  # so visitors reach it too
+    admin.post("/status/public", data={"enabled": "on", "confirm": "on", "csrf_token": csrf})  # so visitors reach it too
     return {"params": {**world["params"], "fmt": "csv", "code": c["code"], "batch_code": batch["code"],
                        "measurement_id": m.json()["id"], "sample_code": m.json()["sample"], "job_id": job.json()["job"]},
             "giveaways": {"SMILES": SECRET, "InChIKey": c["inchikey"], "formula": c["formula"],

@@ -80,7 +80,7 @@ def _build(settings, which: str) -> tuple[dict, dict]:  # noqa: ANN001
             w = bearer(make_token(session, scope="write", name="registrar"))
             up = bearer(make_token(session, scope="upload", name="instrument-pc"))
             admin_csrf = login_as(client, session, role="admin", name="boss")
-            assert client.post("/status/public", data={"enabled": "on", "csrf_token": admin_csrf}).status_code == 200
+            assert client.post("/status/public", data={"enabled": "on", "confirm": "on", "csrf_token": admin_csrf}).status_code == 200
             for code, bridge in (("BWL-C", "CH2"), ("BWL-S", "S")):
                 r = client.post("/api/v1/scaffolds", json={"code": code, "name": f"{bridge} bowl",
                                                            "smiles": PARENT_BOWLS[bridge]}, headers=w)

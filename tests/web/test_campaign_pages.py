@@ -69,9 +69,9 @@ def test_outcome_map_counts_and_links(client, session, data):
 
 def test_status_public_and_embargo(client, anon, session, data, app):
     h, made = data
-    assert anon.get("/status", follow_redirects=False).status_code == 303  # private by default
+    assert anon.get("/status", follow_redirects=False).status_code == 403  # private by default: "this page is private"
     csrf = login_as(client, session, role="admin")
-    assert client.post("/status/public", data={"enabled": "on", "csrf_token": csrf}).status_code == 200
+    assert client.post("/status/public", data={"enabled": "on", "confirm": "on", "csrf_token": csrf}).status_code == 200
     page = anon.get("/status")
     assert page.status_code == 200
     html = page.text

@@ -71,6 +71,7 @@ class Actor:
     token_id: Optional[int] = None
     via_cookie: bool = False
     embargo_grant: bool = False  # read tokens: granted to see embargoed compounds
+    profile: str = ""  # upload tokens bound to an import profile read every file through it
 
     @property
     def label(self) -> str:

@@ -60,6 +60,7 @@ def _token_actor(session: Session, raw: str) -> Actor:
         scope=token.scope,
         kinds=tuple(token.kinds) if token.kinds else None,
         embargo_grant=bool(token.sees_embargoed),
+        profile=token.profile or "",
         token_id=token.id,
     )
 

@@ -132,6 +132,12 @@ for _q in QUANTITIES:
         _ALIAS_INDEX.setdefault(_alias, []).append(_q)
 
 
+def quantities_named(name: str) -> list[CanonicalQuantity]:
+    """The canonical quantities a header name (symbol or alias, any case) may mean; several when only
+    the unit tells them apart (``t``: time or temperature)."""
+    return list(_ALIAS_INDEX.get(_norm_name(name), []))
+
+
 def accepted_names() -> str:
     """A one-line summary of the accepted column names, for error messages."""
     parts = []

@@ -63,6 +63,8 @@ _ENDO_ALIASES = ("endo", "endo direction", "endotherm")
 
 #: The condition fields a measurement kind may say it needs (``server/kinds``).
 CONDITION_FIELDS: tuple[str, ...] = tuple(s.field for s in _SPECS) + ("endo",)
+#: The text conditions (instrument, operator, notes ...).
+TEXT_FIELDS: tuple[str, ...] = tuple(_TEXT_FIELDS)
 #: How to write each quantity (form placeholders, error messages).
 CONDITION_EXAMPLES: dict[str, str] = {s.field: s.example for s in _SPECS}
 #: Every field of the upload form besides ``kind`` and ``file``.

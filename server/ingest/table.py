@@ -59,6 +59,7 @@ _ZIP_ERRORS = (zipfile.BadZipFile, zipfile.LargeZipFile, OSError, ValueError, EO
 _NUMBER_RE = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
 _META_RE = re.compile(r"\s*([^:]{1,80}?)\s*:\s*(.*?)\s*")
 _DELIMITERS = ("\t", ";", ",")
+_DECIMAL_COMMA_RE = re.compile(r"[+-]?\d+,\d+(?:[eE][+-]?\d+)?")
 # A blank (whitespace-only) or '#' line anywhere in the data part.
 _SKIP_LINE_RE = re.compile(r"^\s*(?:#|$)", re.MULTILINE)
 _SNIFF_ROWS = 20
@@ -235,6 +236,9 @@ def _cell_error(text: str, line: int, column: str) -> IngestError:
         return IngestError(
             f"'{shown}' is not a number (NaN and infinity are not accepted)", line=line, column=column
         )
+    if _DECIMAL_COMMA_RE.fullmatch(text):
+        return IngestError(f"'{shown}' is not a number; the numbers look like decimal commas: read the file "
+                           "through an import profile with \"decimal\": \",\"", line=line, column=column)
     return IngestError(f"'{shown}' is not a number", line=line, column=column)
 
 
@@ -399,8 +403,12 @@ def _read_text(text: str, notes: list[str]) -> ParsedTable:
         for line, no in zip(data, linenos):
             got = line.count(delimiter) + 1
             if got != n_fields:
+                hint = ""
+                if delimiter == "," and got == 2 * n_fields and _DECIMAL_COMMA_RE.search(line):
+                    hint = ("; the numbers look like decimal commas: read the file through an import profile "
+                            "with \"decimal\": \",\" and another delimiter")
                 return IngestError(
-                    f"this row has {got} field{'s' if got != 1 else ''} but the header has {n_fields} columns",
+                    f"this row has {got} field{'s' if got != 1 else ''} but the header has {n_fields} columns{hint}",
                     line=no,
                 )
         return None

@@ -5,7 +5,7 @@ from sqlmodel import SQLModel
 from .accounts import ROLES, SCOPES, ApiToken, LoginThrottle, User, WebSession
 from .audit import AuditEvent
 from .jobs import JOB_STATES, Job
-from .measurements import (SAMPLE_FORMS, SERIES_VARIABLES, BarrierEstimate, CrystalPhase, Measurement,
+from .measurements import (SAMPLE_FORMS, SERIES_VARIABLES, BarrierEstimate, CrystalPhase, ImportProfile, Measurement,
                            MeasurementSeries, RawFile, Sample, SampleCreate, SamplePreparation,
                            live_measurement)
 from .registry import (
@@ -35,7 +35,7 @@ __all__ = [
     "ApiToken", "AuditEvent", "CompoundSideChain", "CompoundStats", "BATCH_STATES", "BarrierEstimate", "Batch", "BatchCreate", "BatchRead", "CodeCounter", "Compound",
     "CompoundCreate", "CompoundPage", "CompoundRead", "CompoundUpdate", "CrystalPhase", "ScaffoldCreate",
     "ScaffoldRead", "SiteSetting", "SideChainRead", "SideChainSpec",
-    "JOB_STATES", "Job", "LoginThrottle", "WebSession", "Measurement", "MeasurementSeries", "SAMPLE_FORMS", "SERIES_VARIABLES", "Sample", "SampleCreate", "SamplePreparation",
+    "ImportProfile", "JOB_STATES", "Job", "LoginThrottle", "WebSession", "Measurement", "MeasurementSeries", "SAMPLE_FORMS", "SERIES_VARIABLES", "Sample", "SampleCreate", "SamplePreparation",
     "live_measurement", "ROLES", "RawFile", "SCOPES", "Scaffold", "UTCDateTime", "User",
     "metadata", "utcnow",
 ]

@@ -38,6 +38,8 @@ class ApiToken(SQLModel, table=True):
     expires_at: Optional[datetime] = Field(default=None, sa_type=UTCDateTime)  # None: never expires
     # Read tokens only: may see embargoed compounds (server/access.py); off unless an admin grants it.
     sees_embargoed: bool = Field(default=False)
+    # Upload tokens may be bound to an import profile: the instrument PC posts its files unchanged.
+    profile: str = Field(default="", max_length=60)
     revoked_at: Optional[datetime] = Field(default=None, sa_type=UTCDateTime)
 
 

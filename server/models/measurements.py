@@ -115,11 +115,16 @@ class Measurement(SQLModel, table=True):
     created_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
     analysed_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
     created_by: str = Field(default="", max_length=120)
+    # Read through an import profile: its name and version (re-analysis reads with the same version),
+    # and which block of a multi-block file (0 for a file of one table).
+    profile_name: str = Field(default="", max_length=60)
+    profile_version: Optional[int] = None
+    block: int = Field(default=0)
 
     __table_args__ = (
-        # The same bytes of one kind are stored once per sample while they are live; archived or
-        # superseded copies do not count, so the same file can be stored again after them.
-        sa.Index("uq_measurement_live_sample_sha_kind", "sample_id", "sha256", "kind", unique=True,
+        # The same bytes of one kind are stored once per sample and block while they are live; archived
+        # or superseded copies do not count, so the same file can be stored again after them.
+        sa.Index("uq_measurement_live_sample_sha_kind", "sample_id", "sha256", "kind", "block", unique=True,
                  sqlite_where=sa.text("NOT archived AND superseded_by_id IS NULL"),
                  postgresql_where=sa.text("NOT archived AND superseded_by_id IS NULL")),
     )
@@ -137,6 +142,23 @@ def live_measurement() -> Any:
 
 #: The variables a series can sweep.
 SERIES_VARIABLES: tuple[str, ...] = ("temperature", "frequency", "field")
+
+
+class ImportProfile(SQLModel, table=True):
+    """One version of an import profile: how to read one instrument's export (``server/ingest/profiles.py``).
+
+    Versions are never changed: an edit adds the next version, and measurements name the version
+    they were read with."""
+
+    id: Optional[int] = Field(default=None, primary_key=True)
+    name: str = Field(max_length=60, index=True)
+    version: int
+    kind: str = Field(max_length=30)
+    spec: dict[str, Any] = Field(default_factory=dict, sa_type=sa.JSON)
+    created_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
+    created_by: str = Field(default="", max_length=120)
+
+    __table_args__ = (sa.UniqueConstraint("name", "version", name="uq_importprofile_name_version"),)
 
 
 class MeasurementSeries(SQLModel, table=True):

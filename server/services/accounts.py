@@ -20,7 +20,7 @@ from .. import access
 from ..errors import InputError
 from ..models import ROLES, SCOPES, ApiToken, LoginThrottle, User, UTCDateTime, utcnow
 from ..security import hash_password, hash_token, needs_rehash, new_token, verify_dummy, verify_password
-from . import audit, sessions
+from . import audit, import_profiles, sessions
 from .errors import Duplicate, NotFound
 
 # Login throttling (see authenticate): attempts per window, per user name and per client address.
@@ -183,7 +183,7 @@ def parse_lifetime(text: Optional[str], *, field: str = "expires") -> Optional[t
 
 def create_token(
     *, session: Session, name: str, scope: str, actor: str, kinds: Optional[Sequence[str]] = None,
-    expires_in: Optional[timedelta] = None, sees_embargoed: bool = False,
+    expires_in: Optional[timedelta] = None, sees_embargoed: bool = False, profile: Optional[str] = None,
 ) -> tuple[ApiToken, str]:
     """Create a token; returns the row and the secret, which is never stored and shown only once.
     ``expires_in`` (see :func:`parse_lifetime`) makes it answer 401 "token expired" after that long."""
@@ -197,8 +197,17 @@ def create_token(
     if sees_embargoed and scope != "read":
         # Write tokens see embargoed compounds anyway; upload tokens never do (server/access.py).
         raise InputError("only read tokens take the embargoed grant", field="sees_embargoed")
+    profile = (profile or "").strip()
+    if profile:
+        if scope not in ("upload", "write"):
+            raise InputError("only tokens that upload can be bound to an import profile", field="profile")
+        try:
+            import_profiles.get_profile(session, profile)
+        except NotFound:
+            raise InputError(f"no import profile {profile!r}", field="profile") from None
     secret = new_token()
     token = ApiToken(
+        profile=profile,
         name=name,
         token_hash=hash_token(secret),
         prefix=secret[:10],

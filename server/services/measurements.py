@@ -24,7 +24,7 @@ from ..ingest.conditions import FORM_FIELDS, Conditions, form_value_as_given, pa
 from ..kinds import KINDS, Context, Kind
 from ..models import Batch, Compound, Measurement, RawFile, Sample, live_measurement, utcnow
 from ..plots import figure_json
-from . import audit, samples, stats, verdicts
+from . import audit, import_profiles, samples, stats, verdicts
 from .errors import Archived, Duplicate, Forbidden, NotFound, TooLarge
 
 __all__ = ["FORM_FIELDS", "upload_measurement", "revise_measurement", "reanalyse", "reanalyse_one", "set_archived",
@@ -72,21 +72,23 @@ def context_for(compound: Compound) -> Context:
 
 
 def read(kind: Kind, raw: bytes, *, filename: str | None, form: Mapping[str, Optional[str]],
-         defaults: Mapping[str, Optional[float]] | None = None) -> tuple[Any, Conditions]:
+         defaults: Mapping[str, Optional[float]] | None = None, parsed: Any = None) -> tuple[Any, Conditions]:
     """Read one file and its conditions (pure): the form wins over the file's ``# key: value``
-    lines, which win over ``defaults`` (the sample's geometry, source ``"sample"``)."""
+    lines, which win over ``defaults`` (the sample's geometry, source ``"sample"``). ``parsed``: the
+    table read already (a block read through an import profile)."""
     if not raw:
         raise InputError("the file is empty", field="file")
-    parsed = kind.read(raw, filename)
+    if parsed is None:
+        parsed = kind.read(raw, filename)
     metadata = parsed.metadata if kind.table else {}
     conditions = with_defaults(parse_conditions(form, metadata), defaults or {}, source="sample")
     return parsed, conditions
 
 
 def analyse(kind: Kind, raw: bytes, *, filename: str | None, form: Mapping[str, Optional[str]], context: Context,
-            defaults: Mapping[str, Optional[float]] | None = None) -> Analysed:
+            defaults: Mapping[str, Optional[float]] | None = None, parsed: Any = None) -> Analysed:
     """Read and analyse one file (pure: no database). Raises InputError on bad input."""
-    parsed, conditions = read(kind, raw, filename=filename, form=form, defaults=defaults)
+    parsed, conditions = read(kind, raw, filename=filename, form=form, defaults=defaults, parsed=parsed)
     result = kind.analyse(parsed, conditions, context)
     return Analysed(kind=kind, parsed=parsed, conditions=conditions, result=result)
 
@@ -110,9 +112,10 @@ def same_conditions(stored: Mapping[str, Any], new: Conditions, *, given_only: b
     return True
 
 
-def _live_copy(session: Session, sample_id: int, sha: str, kind: str) -> Optional[Measurement]:
+def _live_copy(session: Session, sample_id: int, sha: str, kind: str, block: int = 0) -> Optional[Measurement]:
     return session.exec(select(Measurement).where(Measurement.sample_id == sample_id, Measurement.sha256 == sha,
-                                                  Measurement.kind == kind, live_measurement())).first()
+                                                  Measurement.kind == kind, Measurement.block == block,
+                                                  live_measurement())).first()
 
 
 def _same_or_conflict(existing: Measurement, conditions: Conditions) -> Measurement:
@@ -186,7 +189,8 @@ def upload_measurement(
 
 
 def _store(session: Session, *, batch: Batch, sample: Sample, done: Analysed, raw: bytes, sha: str,
-           filename: str | None, actor: str, supersedes: Optional[int] = None) -> Measurement:
+           filename: str | None, actor: str, supersedes: Optional[int] = None, profile_name: str = "",
+           profile_version: Optional[int] = None, block: int = 0) -> Measurement:
     """Add the raw file (once per checksum) and the measurement to the session (not flushed)."""
     rawfile = session.exec(select(RawFile).where(RawFile.sha256 == sha)).first()
     if rawfile is None:
@@ -212,9 +216,21 @@ def _store(session: Session, *, batch: Batch, sample: Sample, done: Analysed, ra
         notes=c.notes or "",
         supersedes_id=supersedes,
         created_by=actor,
+        profile_name=profile_name,
+        profile_version=profile_version,
+        block=block,
     )
     session.add(m)
     return m
+
+
+def stored_table(session: Session, m: Measurement, raw: bytes) -> Any:
+    """A measurement's table read again as it was first read: through its import profile version and
+    block, or None (the kind's own reader)."""
+    if not m.profile_name:
+        return None
+    return import_profiles.stored_block(session, name=m.profile_name, version=m.profile_version, block=m.block,
+                                        raw=raw).table
 
 
 def newest_of(session: Session, m: Measurement) -> Measurement:
@@ -266,12 +282,12 @@ def revise_measurement(
     name = filename if raw is not None else old_raw.filename
     sha = hashlib.sha256(data).hexdigest()
     done = analyse(kind, data, filename=name, form=merged, context=context_for(compound),
-                   defaults=samples.sample_defaults(sample))
+                   defaults=samples.sample_defaults(sample), parsed=stored_table(session, m, data))
     if sha == m.sha256 and same_conditions(m.conditions, done.conditions):
         raise InputError("the revision changes nothing: give a condition that differs from the stored one, "
                          "or a replacement file", field="conditions")
     if sha != m.sha256:
-        other = _live_copy(session, sample.id, sha, kind.name)
+        other = _live_copy(session, sample.id, sha, kind.name, m.block)
         if other is not None:
             raise Duplicate(f"the replacement file is stored already for this sample as measurement {other.id}",
                             existing=other.id)
@@ -282,7 +298,7 @@ def revise_measurement(
     session.add(m)
     session.flush()
     new = _store(session, batch=batch, sample=sample, done=done, raw=data, sha=sha, filename=name, actor=actor,
-                 supersedes=m.id)
+                 supersedes=m.id, profile_name=m.profile_name, profile_version=m.profile_version, block=m.block)
     session.flush()
     m.superseded_by_id = new.id
     session.add(m)
@@ -365,7 +381,7 @@ def reanalyse_one(session: Session, m: Measurement) -> Analysed:
     form = {key: form_value_as_given(m.conditions, key) for key in FORM_FIELDS}
     defaults = samples.sample_defaults(session.get(Sample, m.sample_id))
     return analyse(get_kind(m.kind), raw.data, filename=raw.filename, form=form, context=context_for(compound),
-                   defaults=defaults)
+                   defaults=defaults, parsed=stored_table(session, m, raw.data))
 
 
 @dataclass(frozen=True)
@@ -454,6 +470,9 @@ def measurement_read(session: Session, m: Measurement) -> dict[str, Any]:
         "superseded_by": m.superseded_by_id,
         "created_at": m.created_at.isoformat(),
         "created_by": m.created_by,
+        "profile": m.profile_name or None,
+        "profile_version": m.profile_version,
+        "block": m.block,
     }
 
 

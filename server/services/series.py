@@ -180,9 +180,10 @@ def sample_series(session: Session, sample: Sample) -> list[dict[str, Any]]:
 
 
 def state_series(*, session: Session, sample: Sample, variable: str, measurement_ids: Iterable[int],
-                 direction: Optional[str] = None, notes: str = "", actor: str) -> MeasurementSeries:
+                 direction: Optional[str] = None, notes: str = "", actor: str, commit: bool = True) -> MeasurementSeries:
     """Record that these measurements of ``sample`` form one series (an import profile's blocks,
-    or a person's statement); ids are kept in the order given."""
+    or a person's statement); ids are kept in the order given. ``commit=False``: part of the caller's
+    transaction (the upload that stored the blocks commits once)."""
     ids = list(dict.fromkeys(int(i) for i in measurement_ids))
     if variable not in SERIES_VARIABLES:
         raise InputError(f"variable must be one of {', '.join(SERIES_VARIABLES)}", field="variable")
@@ -209,8 +210,9 @@ def state_series(*, session: Session, sample: Sample, variable: str, measurement
     batch = session.get(Batch, sample.batch_id)
     audit.record(session, actor=actor, action="series.create", entity="sample", code=sample.code,
                  compound_id=batch.compound_id, after=audit.snapshot(row))
-    session.commit()
-    session.refresh(row)
+    if commit:
+        session.commit()
+        session.refresh(row)
     return row
 
 

@@ -19,10 +19,28 @@ from tests.factories import bearer, login_as, make_token  # noqa: E402
 from .conftest import loop_bytes, seed_batch  # noqa: E402
 
 SCAFFOLD_SMILES = "[*:1]c1ccc([*:2])cc1"
+PROFILE = {"name": "semi", "kind": "pe_loop", "delimiter": ";", "decimal": ",",
+           "columns": {"U": {"to": "E", "unit": "kV/cm"}, "C": {"to": "P", "unit": "uC/cm^2"}},
+           "conditions": {"A": {"to": "area", "unit": "cm^2"}, "d": {"to": "thickness", "unit": "um"},
+                          "f": {"to": "frequency", "unit": "Hz"}, "T": {"to": "temperature", "unit": "K"}},
+           "blocks": {"separator": "blank_line", "varies": "temperature"}}
+
+
+def _semi_file() -> bytes:
+    """Two loops of the conftest's loop file in the profile's own dialect, at 300 K and 320 K."""
+    from server.ingest.table import read_table
+
+    frame = read_table(loop_bytes(9)).frame
+    rows = [";".join(f"{v!r}".replace(".", ",") for v in row) for row in frame[["E_kV_cm", "P_uC_cm2"]].to_numpy()]
+    out = ["A: 0,0785", "d: 150", "f: 100"]
+    for t in (300, 320):
+        out += ["", f"T: {t}", "U;C", *rows]
+    return ("\n".join(out) + "\n").encode()
 
 
 def _requests(code: str, batch: str) -> list[tuple[str, str, dict]]:
     """(method, path, httpx keyword arguments), in an order where each needs only what came before."""
+    semi = _semi_file()
     loop = {"data": {"kind": "pe_loop"}, "files": {"file": ("loop.csv", loop_bytes(7), "text/csv")}}
     return [
         ("POST", "/api/v1/compounds", {"json": {"smiles": "CCOc1ccc(OCC)cc1", "label": "diethoxy"}}),
@@ -80,6 +98,22 @@ def _requests(code: str, batch: str) -> list[tuple[str, str, dict]]:
         ("POST", f"/api/v1/samples/{batch}-S02/measurements",
          {"data": {"kind": "pe_loop"}, "files": {"file": ("loop8.csv", loop_bytes(8), "text/csv")}}),
         ("POST", f"/api/v1/samples/{batch}-S01/series", {"json": {"variable": "temperature", "measurements": [1]}}),
+        # Import profiles, profiled uploads and dry runs (issue 14).
+        ("POST", "/api/v1/import-profiles", {"json": PROFILE}),
+        ("POST", "/api/v1/import-profiles", {"json": PROFILE}),  # 409
+        ("POST", "/api/v1/import-profiles", {"json": {**PROFILE, "name": "x", "columns": {"C": {"to": "Q",
+                                                                                               "unit": "mm"}}}}),  # 422
+        ("GET", "/api/v1/import-profiles", {}),
+        ("GET", "/api/v1/import-profiles/semi", {}),
+        ("GET", "/api/v1/import-profiles/nobody", {}),  # 404
+        ("PATCH", "/api/v1/import-profiles/semi", {"json": {"skip_lines": 1}}),  # 201, a new version
+        ("PATCH", "/api/v1/import-profiles/semi", {"json": {"skip_lines": 1}}),  # 200, nothing changed
+        ("PATCH", "/api/v1/import-profiles/semi", {"json": {"skip_lines": 0}}),
+        ("POST", f"/api/v1/batches/{batch}/measurements?dry_run=true", {**loop}),  # 200 preview
+        ("POST", f"/api/v1/batches/{batch}/measurements",
+         {"data": {"profile": "semi"}, "files": {"file": ("semi.csv", semi, "text/csv")}}),  # 201, two blocks
+        ("POST", f"/api/v1/samples/{batch}-S01/measurements?dry_run=true",
+         {"data": {"profile": "semi"}, "files": {"file": ("semi.csv", semi, "text/csv")}}),
         # Identity and outputs (issues 17 and 19).
         ("GET", f"/api/v1/batches/{batch}/identity", {}),
         ("GET", "/api/v1/measurements/1/figure.svg", {}),

@@ -2,13 +2,14 @@
 
 from fastapi import APIRouter
 
-from . import admin, barriers, compounds, jobs, measurements, outputs, samples, scaffolds
+from . import admin, barriers, compounds, import_profiles, jobs, measurements, outputs, samples, scaffolds
 
 router = APIRouter(prefix="/api/v1")
 router.include_router(compounds.router)
 router.include_router(scaffolds.router)
 router.include_router(measurements.router)
 router.include_router(samples.router)
+router.include_router(import_profiles.router)
 router.include_router(barriers.router)
 router.include_router(jobs.router)
 router.include_router(admin.router)

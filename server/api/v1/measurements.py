@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from typing import Annotated, Any, Optional
+from typing import Annotated, Any, Optional, Union
 
 from fastapi import APIRouter, Depends, File, Form, Query, UploadFile
 from fastapi.responses import JSONResponse, Response
@@ -11,7 +11,7 @@ from pydantic import BaseModel
 from ...deps import Offset, Reader, RowId, SessionDep, SettingsDep, Uploader, Writer
 from ...kinds import KINDS
 from ...models import RawFile
-from ...services import accounts, measurements, registry
+from ...services import accounts, measurements, profiled_uploads, registry
 from ...services.errors import Forbidden
 from .responses import ARCHIVED, AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND, ErrorOut
 
@@ -42,6 +42,9 @@ class MeasurementOut(BaseModel):
     superseded_by: Optional[int] = None
     created_at: str
     created_by: str
+    profile: Optional[str] = None
+    profile_version: Optional[int] = None
+    block: int = 0
 
 
 class MeasurementPage(BaseModel):
@@ -71,33 +74,88 @@ def condition_fields(
             "sweep": sweep, "spectrometer": spectrometer, "nucleus": nucleus, "solvent": solvent}
 
 
+class ProfiledUploadOut(BaseModel):
+    """A file read through an import profile: one measurement per block; two or more blocks whose
+    profile says which condition varies are stated as a series of the sample."""
+
+    measurements: list[MeasurementOut]
+    series: Optional[dict[str, Any]] = None
+
+
+class PreviewOut(BaseModel):
+    columns: list[str]
+    units: list[str]
+    rows_head: list[list[float]]
+    rows_total: int
+    conditions: dict[str, Any]
+    blocks: list[dict[str, Any]]
+    conversions: list[str]
+    notes: list[str]
+    profile: Optional[dict[str, Any]] = None
+
+
+class DryRunOut(BaseModel):
+    """What the upload would store (the first block's results; each block has its own in `preview.blocks`)."""
+
+    preview: PreviewOut
+    results: dict[str, Any]
+    verdict: Optional[str]
+    flags: list[dict[str, str]]
+
+
 ConditionFields = Annotated[dict, Depends(condition_fields)]
+UploadKind = Annotated[Optional[str], Form(description="one of " + ", ".join(KINDS) + " (optional with a profile)")]
+UploadProfile = Annotated[Optional[str], Form(max_length=60, description="read the file through this import profile")]
+DryRun = Annotated[bool, Query(description="read and analyse only: store nothing, answer a preview (200)")]
 UPLOAD_RESPONSES = {**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS, **DUPLICATE, **ARCHIVED,
-                    200: {"model": MeasurementOut, "description": "the same bytes and conditions were stored already"},
+                    200: {"model": Union[MeasurementOut, ProfiledUploadOut, DryRunOut],
+                          "description": "the same bytes and conditions were stored already; or the dry run's preview"},
+                    201: {"model": Union[MeasurementOut, ProfiledUploadOut],
+                          "description": "stored: one measurement, or one per block of a profiled file"},
                     413: {"model": ErrorOut, "description": "file too large"}}
 
 
-@router.post("/batches/{batch_code}/measurements", status_code=201, response_model=MeasurementOut,
+@router.post("/batches/{batch_code}/measurements", status_code=201, response_model=None,
              responses=UPLOAD_RESPONSES)
 def upload(
     batch_code: str,
     session: SessionDep,
     settings: SettingsDep,
     actor: Uploader,
-    kind: Annotated[str, Form(description="one of " + ", ".join(KINDS))],
     file: Annotated[UploadFile, File(description="the instrument's raw file (CSV, TSV, XLSX or CIF)")],
     form: ConditionFields,
+    kind: UploadKind = None,
+    profile: UploadProfile = None,
+    dry_run: DryRun = False,
 ):
     """Post a raw instrument file to a batch; it is stored unchanged under the batch's default
-    sample (created on first use) and analysed at once. The same bytes with other conditions: 409."""
+    sample (created on first use) and analysed at once. The same bytes with other conditions: 409.
+    With `profile` the file is read through that import profile (a token bound to a profile always
+    is); a file of several blocks answers `{"measurements": [...], "series": ...}`. With
+    `dry_run=true` nothing is stored: 200 with the preview."""
     return store_upload(session, settings, actor, batch=registry.get_batch(session, batch_code), sample=None,
-                        kind=kind, file=file, form=form)
+                        kind=kind, file=file, form=form, profile=profile, dry_run=dry_run)
 
 
-def store_upload(session, settings, actor, *, batch, sample, kind: str, file: UploadFile, form: dict) -> JSONResponse:  # noqa: ANN001
-    """The one upload answer of the batch and sample routes: 201 new, 200 the same bytes and conditions again;
-    the body as the caller may see it (a receipt for an embargoed compound, no names for upload tokens)."""
+def store_upload(session, settings, actor, *, batch, sample, kind: Optional[str], file: UploadFile, form: dict,  # noqa: ANN001
+                 profile: Optional[str] = None, dry_run: bool = False) -> JSONResponse:
+    """The one upload answer of the batch and sample routes: 201 new, 200 the same bytes and conditions again
+    (or the dry run's preview); the body as the caller may see it (a receipt for an embargoed compound, no
+    names for upload tokens)."""
     raw = measurements.read_upload(file, settings.max_upload_bytes)
+    profile_row, kind = profiled_uploads.resolve_profile(session, profile_name=profile, kind_name=kind,
+                                                         bound=actor.profile)
+    allowed = actor.kinds if actor.scope == "upload" else None
+    if dry_run:
+        return JSONResponse(profiled_uploads.dry_run(
+            session=session, batch=batch, sample=sample, kind_name=kind, profile_row=profile_row, raw=raw,
+            filename=file.filename, form=form, actor=actor, allowed_kinds=allowed), status_code=200)
+    if profile_row is not None:
+        body, created = profiled_uploads.upload_profiled(
+            session=session, batch=batch, sample=sample, profile_row=profile_row, raw=raw, filename=file.filename,
+            form=form, actor=actor, allowed_kinds=allowed)
+        body["measurements"] = accounts.hide_people(body["measurements"], sees_people=actor.sees_people)
+        return JSONResponse(body, status_code=201 if created else 200)
     m, created = measurements.upload_measurement(
         session=session, batch=batch, sample=sample, kind_name=kind, raw=raw, filename=file.filename, form=form,
         actor=actor.label, allowed_kinds=actor.kinds if actor.scope == "upload" else None,

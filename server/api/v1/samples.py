@@ -11,7 +11,7 @@ from ...deps import MAX_ID, Reader, SessionDep, SettingsDep, Uploader, Writer
 from ...kinds import KINDS
 from ...models import SampleCreate
 from ...services import registry, samples, series
-from .measurements import UPLOAD_RESPONSES, ConditionFields, MeasurementOut, store_upload
+from .measurements import UPLOAD_RESPONSES, ConditionFields, DryRun, MeasurementOut, UploadKind, UploadProfile, store_upload
 from .responses import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND
 
 router = APIRouter(tags=["samples"])
@@ -81,22 +81,25 @@ def get_sample(sample_code: str, session: SessionDep, actor: Reader):
     return samples.sample_read(session, samples.get_sample(session, sample_code))
 
 
-@router.post("/samples/{sample_code}/measurements", status_code=201, response_model=MeasurementOut,
+@router.post("/samples/{sample_code}/measurements", status_code=201, response_model=None,
              responses=UPLOAD_RESPONSES)
 def upload_to_sample(
     sample_code: str,
     session: SessionDep,
     settings: SettingsDep,
     actor: Uploader,
-    kind: Annotated[str, Form(description="one of " + ", ".join(KINDS))],
     file: Annotated[UploadFile, File(description="the instrument's raw file (CSV, TSV, XLSX or CIF)")],
     form: ConditionFields,
+    kind: UploadKind = None,
+    profile: UploadProfile = None,
+    dry_run: DryRun = False,
 ):
     """Post a raw file measured on this sample. Area and thickness default from the sample; a
-    value given with the file wins (`conditions.sources` says `form`, `file` or `sample`)."""
+    value given with the file wins (`conditions.sources` says `form`, `file` or `sample`).
+    `profile` and `dry_run` as for the batch route."""
     sample = samples.get_sample(session, sample_code)
     return store_upload(session, settings, actor, batch=samples.batch_of(session, sample), sample=sample,
-                        kind=kind, file=file, form=form)
+                        kind=kind, file=file, form=form, profile=profile, dry_run=dry_run)
 
 
 @router.get("/samples/{sample_code}/series", response_model=list[SeriesOut], responses={**AUTH_ERRORS, **NOT_FOUND})

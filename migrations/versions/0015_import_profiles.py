@@ -2,7 +2,7 @@
 to a profile; the live-copy index counts the block, so one file may give several measurements
 
 Revision ID: 0015
-Revises: 0014
+Revises: 0023
 Create Date: 2026-12-02 13:33:07
 """
 from typing import Sequence, Union
@@ -14,7 +14,7 @@ import server.models.types
 
 
 revision: str = '0015'
-down_revision: Union[str, None] = '0014'
+down_revision: Union[str, None] = '0023'
 branch_labels: Union[str, Sequence[str], None] = None
 depends_on: Union[str, Sequence[str], None] = None
 

@@ -97,7 +97,15 @@ QUANTITIES: tuple[CanonicalQuantity, ...] = (
     CanonicalQuantity("mz", "mass-to-charge ratio", "m/z", ("m/z", "mz", "mass to charge", "m z"), "",
                       unit_optional=True),
     CanonicalQuantity("intensity", "intensity", "intensity",
-                      ("intensity", "int", "abundance", "counts", "relative intensity", "rel intensity"), "",
+                      ("intensity", "int", "abundance", "counts", "relative intensity", "rel intensity", "i"), "",
+                      unit_optional=True),
+    # diffraction and scattering: the scattering angle 2theta and the scattering vector q = 4 pi sin(theta)/lambda
+    CanonicalQuantity("two_theta_deg", "scattering angle 2theta", "2theta",
+                      ("2theta", "2 theta", "two theta", "2\u03b8", "2th", "angle"), "deg"),
+    CanonicalQuantity("q_per_nm", "scattering vector", "q", ("q", "scattering vector", "momentum transfer"), "1/nm"),
+    # second-harmonic generation: signal over that of a reference powder under the same beam
+    CanonicalQuantity("shg_ratio", "SHG intensity over the reference's", "SHG/ref",
+                      ("shg/ref", "shg ratio", "shg", "i shg/i ref", "shg intensity ratio", "i(2w)/i ref"), "",
                       unit_optional=True),
 )
 

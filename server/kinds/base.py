@@ -39,6 +39,9 @@ class Context:
     formula: Optional[str] = None
     molar_mass_g_mol: Optional[float] = None
     smiles: Optional[str] = None
+    #: The compound's live crystal structures (``server.analysis.pxrd.ReferenceStructure``), given only
+    #: to kinds with ``needs_structures``.
+    structures: tuple[Any, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -139,6 +142,7 @@ class Kind:
     stats: Optional[Callable[[Sequence[Any]], dict[str, Any]]] = None  # Measurement rows
     derive: Optional[Callable[..., None]] = None
     no_figure_reason: str = ""  # says why ``figure`` is None
+    needs_structures: bool = False  # the analysis compares with the compound's CIFs (Context.structures)
     content_type: str = "text/plain"
 
     @property

@@ -18,6 +18,7 @@ from sqlmodel import Session, select
 
 from .. import access
 from ..access import Actor
+from ..analysis.pxrd import ReferenceStructure
 from ..analysis.results import jsonable
 from ..errors import InputError
 from ..ingest.conditions import FORM_FIELDS, Conditions, form_value_as_given, parse_conditions, with_defaults
@@ -67,8 +68,26 @@ def get_kind(name: str) -> Kind:
         raise InputError(f"unknown kind {name!r}; use one of {', '.join(KINDS)}", field="kind") from None
 
 
-def context_for(compound: Compound) -> Context:
-    return Context(formula=compound.formula, molar_mass_g_mol=compound.mw, smiles=compound.smiles)
+def context_for(compound: Compound, *, session: Optional[Session] = None, kind: Optional[Kind] = None) -> Context:
+    """What the registry knows about the compound; a kind that compares with crystal structures
+    (``Kind.needs_structures``) also gets every live CIF registered for the compound."""
+    structures: tuple[ReferenceStructure, ...] = ()
+    if session is not None and kind is not None and kind.needs_structures:
+        rows = session.exec(
+            select(Measurement, RawFile).join(RawFile, RawFile.id == Measurement.raw_file_id)
+            .join(Batch, Batch.id == Measurement.batch_id)
+            .where(Batch.compound_id == compound.id, Measurement.kind == "crystal", live_measurement())
+            .order_by(Measurement.id)).all()
+        structures = tuple(ReferenceStructure(m.id, _structure_label(m), raw.data) for m, raw in rows)
+    return Context(formula=compound.formula, molar_mass_g_mol=compound.mw, smiles=compound.smiles,
+                   structures=structures)
+
+
+def _structure_label(m: Measurement) -> str:
+    """``CIF #12 (P 1 21 1, 150 K)``: how a reference structure is named on pages."""
+    parts = [p for p in (m.results.get("space_group"),
+                         f"{m.results['temperature_K']:.0f} K" if m.results.get("temperature_K") else "") if p]
+    return f"CIF #{m.id}" + (f" ({', '.join(parts)})" if parts else "")
 
 
 def read(kind: Kind, raw: bytes, *, filename: str | None, form: Mapping[str, Optional[str]],
@@ -163,7 +182,8 @@ def upload_measurement(
         if existing is not None:
             _, conditions = read(kind, raw, filename=filename, form=form, defaults=defaults)
             return _same_or_conflict(existing, conditions), False
-    done = analyse(kind, raw, filename=filename, form=form, context=context_for(compound), defaults=defaults)
+    context = context_for(compound, session=session, kind=kind)
+    done = analyse(kind, raw, filename=filename, form=form, context=context, defaults=defaults)
 
     if sample is None:
         sample = samples.ensure_default_sample(session, batch, actor=actor)  # first: it may roll back a lost race
@@ -281,7 +301,7 @@ def revise_measurement(
     data = raw if raw is not None else old_raw.data
     name = filename if raw is not None else old_raw.filename
     sha = hashlib.sha256(data).hexdigest()
-    done = analyse(kind, data, filename=name, form=merged, context=context_for(compound),
+    done = analyse(kind, data, filename=name, form=merged, context=context_for(compound, session=session, kind=kind),
                    defaults=samples.sample_defaults(sample), parsed=stored_table(session, m, data))
     if sha == m.sha256 and same_conditions(m.conditions, done.conditions):
         raise InputError("the revision changes nothing: give a condition that differs from the stored one, "
@@ -380,8 +400,10 @@ def reanalyse_one(session: Session, m: Measurement) -> Analysed:
     compound = session.get(Compound, batch.compound_id)
     form = {key: form_value_as_given(m.conditions, key) for key in FORM_FIELDS}
     defaults = samples.sample_defaults(session.get(Sample, m.sample_id))
-    return analyse(get_kind(m.kind), raw.data, filename=raw.filename, form=form, context=context_for(compound),
-                   defaults=defaults, parsed=stored_table(session, m, raw.data))
+    kind = get_kind(m.kind)
+    return analyse(kind, raw.data, filename=raw.filename, form=form,
+                   context=context_for(compound, session=session, kind=kind), defaults=defaults,
+                   parsed=stored_table(session, m, raw.data))
 
 
 @dataclass(frozen=True)

@@ -101,7 +101,7 @@ def upload_profiled(*, session: Session, batch: Batch, sample: Optional[Sample],
         sample = samples.default_sample(session, batch)
     defaults = samples.sample_defaults(sample)
     read = read_profiled(raw, profile)
-    done = _analyse_blocks(kind, read, raw, filename=filename, form=form, context=context_for(compound),
+    done = _analyse_blocks(kind, read, raw, filename=filename, form=form, context=context_for(compound, session=session, kind=kind),
                            defaults=defaults)
     if sample is None:
         sample = samples.ensure_default_sample(session, batch, actor=actor.label)
@@ -220,7 +220,7 @@ def dry_run(*, session: Session, batch: Batch, sample: Optional[Sample], kind_na
     if not raw:
         raise InputError("the file is empty", field="file")
     defaults = samples.sample_defaults(sample if sample is not None else samples.default_sample(session, batch))
-    context = context_for(compound)
+    context = context_for(compound, session=session, kind=kind)
     notes: Sequence[str] = ()
     if profile_row is not None:
         read = read_profiled(raw, import_profiles.profile_of(profile_row))

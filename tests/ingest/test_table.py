@@ -98,9 +98,20 @@ def test_canonical_table_matches_contract() -> None:
         "E_kV_cm": "kV/cm", "P_uC_cm2": "uC/cm^2", "V_V": "V", "Q_uC": "uC", "I_A": "A", "t_s": "s",
         "T_K": "K", "f_Hz": "Hz", "C_F": "F", "tan_delta": "", "eps_r": "", "eps_i": "",
         "heat_flow_mW": "mW", "heat_flow_W_g": "W/g", "k_per_s": "1/s", "mz": "", "intensity": "",
+        "two_theta_deg": "deg", "q_per_nm": "1/nm", "shg_ratio": "",
     }  # fmt: skip
     assert {q.name: q.unit for q in QUANTITIES} == expected
-    assert {q.name for q in QUANTITIES if q.unit_optional} == {"tan_delta", "eps_r", "eps_i", "mz", "intensity"}
+    assert {q.name for q in QUANTITIES if q.unit_optional} == {"tan_delta", "eps_r", "eps_i", "mz", "intensity",
+                                                                 "shg_ratio"}
+
+
+@pytest.mark.parametrize(("header", "canonical"), [
+    ("2theta (deg)", "two_theta_deg"), ("2θ (°)", "two_theta_deg"), ("I ()", "intensity"), ("I (A)", "I_A"),
+    ("q (1/nm)", "q_per_nm"), ("q (1/angstrom)", "q_per_nm"), ("Q (uC)", "Q_uC"), ("SHG/ref ()", "shg_ratio"),
+])
+def test_diffraction_and_shg_headers(header: str, canonical: str) -> None:
+    # I () is an intensity and I (A) a current; q (1/nm) a scattering vector and Q (uC) a charge: the unit decides
+    assert parse_header(header).canonical == canonical
 
 
 @pytest.mark.parametrize(

@@ -1,0 +1,97 @@
+"""Planning tables: target compounds (their plan), reagents with entered hazard data, synthesis routes
+(ordered steps of a batch) and lineage (which batches a batch was made from).
+
+A compound's life state is ``planned`` -> ``in_synthesis`` -> ``made`` (derived: a live batch that is
+made, impure or used up) or ``abandoned`` (with a reason). A compound registered without a plan and
+without batches is ``registered``. The stored part is :class:`CompoundPlan`; the derived state lives in
+``CompoundStats.life_state`` (``server/services/planning.life_state``) so views filter on it with SQL.
+"""
+
+from __future__ import annotations
+
+from datetime import datetime
+from typing import Any, Optional
+
+import sqlalchemy as sa
+from sqlmodel import Field, SQLModel
+
+from .types import UTCDateTime, utcnow
+
+PLAN_STATES = ("planned", "in_synthesis", "abandoned")  # what a person sets
+LIFE_STATES = ("registered", "planned", "in_synthesis", "made", "abandoned")  # what the views show
+PRIORITIES = (1, 2, 3, 4, 5)  # 1 = make first
+
+
+class CompoundPlan(SQLModel, table=True):
+    """The plan of a target compound: state, rationale, priority, who has claimed it."""
+
+    compound_id: int = Field(foreign_key="compound.id", primary_key=True)
+    state: str = Field(default="planned", max_length=20, index=True)
+    rationale: str = Field(default="", sa_type=sa.Text)
+    priority: int = 3
+    assignee: str = Field(default="", max_length=120)
+    reason: str = Field(default="", sa_type=sa.Text)  # why it was abandoned
+    updated_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
+    updated_by: str = Field(default="", max_length=120)
+
+
+class Reagent(SQLModel, table=True):
+    """A reagent the group uses, with the GHS hazard data a person entered from the supplier's SDS.
+
+    Nothing here is filled in by the program: empty ``hazard_codes`` means "no hazard data entered".
+    """
+
+    id: Optional[int] = Field(default=None, primary_key=True)
+    name: str = Field(max_length=200, unique=True, index=True)
+    smiles: str = Field(default="", sa_type=sa.Text)
+    hazard_codes: list[str] = Field(default_factory=list, sa_type=sa.JSON)  # e.g. H250, EUH014
+    hazard_statements: str = Field(default="", sa_type=sa.Text)  # the SDS wording, as entered
+    pictograms: list[str] = Field(default_factory=list, sa_type=sa.JSON)  # GHS01 ... GHS09
+    sds_source: str = Field(default="", max_length=400)  # supplier, product number, SDS revision date
+    entered_by: str = Field(default="", max_length=120)
+    entered_at: Optional[datetime] = Field(default=None, sa_type=UTCDateTime)
+    created_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
+
+
+class SynthesisStep(SQLModel, table=True):
+    """One step of the route recorded for a batch, in order."""
+
+    id: Optional[int] = Field(default=None, primary_key=True)
+    batch_id: int = Field(foreign_key="batch.id", index=True)
+    position: int
+    description: str = Field(default="", sa_type=sa.Text)
+    # [{"reagent": name, "reagent_id": id|None, "smiles": str, "amount": "2.5 mmol", "amount_value": 2.5,
+    #   "amount_unit": "mmol", "amount_dimension": "amount"|"mass"|"volume", "equivalents": 1.1|None}]
+    reagents: list[dict[str, Any]] = Field(default_factory=list, sa_type=sa.JSON)
+    solvent: str = Field(default="", max_length=200)
+    temperature_K: Optional[float] = None
+    time_h: Optional[float] = None
+    yield_pct: Optional[float] = None
+
+    __table_args__ = (sa.UniqueConstraint("batch_id", "position", name="uq_step_batch_position"),)
+
+
+class BatchPrecursor(SQLModel, table=True):
+    """Lineage: ``batch_id`` was made from ``precursor_id`` (a batch of a registered intermediate)."""
+
+    id: Optional[int] = Field(default=None, primary_key=True)
+    batch_id: int = Field(foreign_key="batch.id", index=True)
+    precursor_id: int = Field(foreign_key="batch.id", index=True)
+
+    __table_args__ = (sa.UniqueConstraint("batch_id", "precursor_id", name="uq_batch_precursor"),)
+
+
+MADE_BATCH_STATES = ("made", "impure", "used_up")  # a batch in one of these means the compound exists
+
+
+def life_state(plan_state: Optional[str], batch_states: set[str] | frozenset[str]) -> str:
+    """A compound's life state from its plan (None: never planned) and its live batches' states.
+
+    Abandoned wins (a person said so, with a reason); else a live batch that was made makes the
+    compound ``made``; else the plan's state; a compound never planned and never made is ``registered``.
+    """
+    if plan_state == "abandoned":
+        return "abandoned"
+    if set(batch_states) & set(MADE_BATCH_STATES):
+        return "made"
+    return plan_state or "registered"

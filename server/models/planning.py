@@ -95,3 +95,59 @@ def life_state(plan_state: Optional[str], batch_states: set[str] | frozenset[str
     if set(batch_states) & set(MADE_BATCH_STATES):
         return "made"
     return plan_state or "registered"
+
+
+# --- API shapes ---------------------------------------------------------------------------------
+
+
+class RankingItem(SQLModel):
+    rank: int
+    code: str
+    score: Optional[float] = Field(description="the goal's acquisition value (see `rule`)")
+    expected_improvement: Optional[float] = Field(description="in the property's unit")
+    p_switch: Optional[float] = Field(description="predicted probability of a switching verdict")
+    predicted: Optional[float] = Field(description="predicted value of the property, in `unit`")
+    sd: Optional[float]
+    low: Optional[float] = Field(description="95 % interval of a new measurement, low end")
+    high: Optional[float]
+    explanation: str
+
+
+class ModelSummary(SQLModel):
+    property: str
+    unit: str
+    n: int = Field(description="measured compounds the model was fitted to")
+    enough_data: bool
+    message: str
+    model: Optional[str] = Field(description="gp or scaffold_mean: the one of lower leave-one-out error")
+    features: list[str]
+    loo_rmse: Optional[float] = Field(description="leave-one-out RMSE of the Gaussian process")
+    loo_rmse_scaffold_mean: Optional[float]
+    loo_coverage_95: Optional[float] = Field(description="fraction of left-out values inside their 95 % interval")
+    best_measured: Optional[float]
+    best_code: Optional[str]
+
+
+class SwitchingSummary(SQLModel):
+    n: int
+    n_switching: int
+    enough_data: bool
+    message: str
+    model: Optional[str] = Field(description="gp or bridge_rate: the one of lower leave-one-out Brier score")
+    loo_brier: Optional[float]
+    loo_brier_bridge_rate: Optional[float]
+
+
+class RankingRead(SQLModel):
+    goal: str
+    goal_label: str
+    rule: str = Field(description="the acquisition rule the ranking follows")
+    property: Optional[str]
+    unit: Optional[str]
+    enough_data: bool
+    notes: list[str]
+    model: Optional[ModelSummary]
+    switching_model: SwitchingSummary
+    items: list[RankingItem]
+    method: str
+    version: str

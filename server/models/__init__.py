@@ -26,7 +26,7 @@ from .registry import (
     SideChainSpec,
 )
 from .planning import (LIFE_STATES, PLAN_STATES, PRIORITIES, BatchPrecursor, CompoundPlan, RankingRead, Reagent,
-                       SynthesisStep)
+                       ReagentCreate, ReagentRead, ReagentUpdate, RouteCopy, RouteIn, RouteRead, SynthesisStep)
 from .site import SiteSetting
 from .stats import CompoundSideChain, CompoundStats
 from .types import UTCDateTime, utcnow
@@ -40,5 +40,5 @@ __all__ = [
     "JOB_STATES", "Job", "LoginThrottle", "WebSession", "Measurement", "MeasurementSeries", "SAMPLE_FORMS", "SERIES_VARIABLES", "Sample", "SampleCreate", "SamplePreparation",
     "live_measurement", "ROLES", "RawFile", "SCOPES", "Scaffold", "UTCDateTime", "User",
     "metadata", "utcnow",
-    "LIFE_STATES", "PLAN_STATES", "PRIORITIES", "BatchPrecursor", "CompoundPlan", "RankingRead", "Reagent", "SynthesisStep",
+    "LIFE_STATES", "PLAN_STATES", "PRIORITIES", "BatchPrecursor", "CompoundPlan", "RankingRead", "Reagent", "ReagentCreate", "ReagentRead", "ReagentUpdate", "RouteCopy", "RouteIn", "RouteRead", "SynthesisStep",
 ]

@@ -151,3 +151,111 @@ class RankingRead(SQLModel):
     items: list[RankingItem]
     method: str
     version: str
+
+
+class ReagentCreate(SQLModel):
+    name: str = Field(min_length=1, max_length=200)
+    smiles: str = Field(default="", max_length=2000, description="structure, if it has one worth recording")
+    hazard_codes: list[str] = Field(default_factory=list, max_length=60,
+                                    description="GHS hazard-statement codes from the supplier's SDS, e.g. H250")
+    hazard_statements: str = Field(default="", max_length=20000, description="the statements' wording, from the SDS")
+    pictograms: list[str] = Field(default_factory=list, max_length=9, description="GHS01 ... GHS09")
+    sds_source: str = Field(default="", max_length=400, description="supplier, product number, SDS revision date")
+
+
+class ReagentUpdate(SQLModel):
+    smiles: Optional[str] = Field(default=None, max_length=2000)
+    hazard_codes: Optional[list[str]] = Field(default=None, max_length=60)
+    hazard_statements: Optional[str] = Field(default=None, max_length=20000)
+    pictograms: Optional[list[str]] = Field(default=None, max_length=9)
+    sds_source: Optional[str] = Field(default=None, max_length=400)
+
+
+class CautionRead(SQLModel):
+    key: str
+    title: str
+    text: str
+
+
+class ReagentRead(SQLModel):
+    id: int
+    name: str
+    smiles: str
+    hazard_codes: list[str]
+    hazard_statements: str
+    pictograms: list[str]
+    sds_source: str
+    hazard_data_entered: bool
+    notice: str = Field(description="what to do when no hazard data is entered")
+    cautions: list[CautionRead] = Field(description="the campaign's general cautions this structure calls for")
+    entered_by: str
+    entered_at: Optional[datetime]
+
+
+class ReagentUse(SQLModel):
+    reagent: str = Field(min_length=1, max_length=200, description="a reagent's name (from the reagent table, or new)")
+    smiles: str = Field(default="", max_length=2000)
+    amount: Optional[str] = Field(default=None, max_length=60, description="amount, mass or volume, e.g. '2.5 mmol'")
+    equivalents: Optional[float] = Field(default=None, gt=0, le=1000)
+
+
+class RouteStepIn(SQLModel):
+    description: str = Field(default="", max_length=20000)
+    reagents: list[ReagentUse] = Field(default_factory=list, max_length=40)
+    solvent: str = Field(default="", max_length=200)
+    temperature: Optional[str] = Field(default=None, max_length=60, description="e.g. '-78 degC' or '353 K'")
+    time: Optional[str] = Field(default=None, max_length=60, description="e.g. '12 h' or '30 min'")
+    yield_pct: Optional[float] = Field(default=None, ge=0, le=100)
+
+
+class RouteIn(SQLModel):
+    steps: list[RouteStepIn] = Field(default_factory=list, max_length=50)
+    precursors: list[str] = Field(default_factory=list, max_length=20,
+                                  description="codes of the batches (of registered intermediates) this batch was made from")
+
+
+class RouteCopy(SQLModel):
+    source: str = Field(min_length=1, max_length=50, description="code of the batch whose route is the template")
+
+
+class ReagentUseRead(SQLModel):
+    reagent: str
+    smiles: str
+    amount: Optional[str]
+    amount_value: Optional[float]
+    amount_unit: Optional[str]
+    amount_dimension: Optional[str] = Field(description="amount, mass or volume")
+    equivalents: Optional[float]
+    hazard_codes: list[str]
+    hazard_statements: str
+    pictograms: list[str]
+    hazard_data_entered: bool
+    notice: str
+    cautions: list[CautionRead]
+
+
+class RouteStepRead(SQLModel):
+    position: int
+    description: str
+    reagents: list[ReagentUseRead]
+    solvent: str
+    temperature_K: Optional[float]
+    time_h: Optional[float]
+    yield_pct: Optional[float]
+
+
+class LineageRead(SQLModel):
+    batch: str
+    compound: str
+    depth: int = Field(description="1 = directly made from / into; 2 = one step further ...")
+
+
+class RouteRead(SQLModel):
+    batch: str
+    compound: str
+    withheld: bool = Field(description="true when the route of an embargoed compound is hidden from this caller")
+    steps: list[RouteStepRead]
+    precursors: list[LineageRead] = Field(description="what this batch was made from, upstream")
+    products: list[LineageRead] = Field(description="every batch made from this one, downstream")
+    cautions: list[CautionRead] = Field(description="general cautions for this campaign's chemistry")
+    defer: str

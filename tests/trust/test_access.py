@@ -77,7 +77,7 @@ def world(app, client, session):
     yield {
         "params": {"code": code, "batch_code": batch, "job_id": job.json()["job"], "measurement_id": m.json()["id"],
                    "sample_code": m.json()["sample"],
-                   "username": "spare-user", "token_id": spare.id},
+                   "username": "spare-user", "token_id": spare.id, "reagent_id": 1},
         "code": code,
         "batch": batch,
         # The read token is granted the embargo (it is the positive control of the embargo tests).

@@ -93,6 +93,19 @@ def _requests(code: str, batch: str) -> list[tuple[str, str, dict]]:
         ("PATCH", f"/api/v1/compounds/{code}", {"json": {"state": "abandoned"}}),  # 422: no reason
         ("GET", "/api/v1/planning/ranking?goal=tc", {}),
         ("GET", "/api/v1/planning/ranking?goal=cheapest", {}),  # 422
+        ("POST", "/api/v1/reagents", {"json": {"name": "sodium hydride", "pictograms": ["GHS02"], "hazard_codes": ["H260"]}}),
+        ("POST", "/api/v1/reagents", {"json": {"name": "Sodium hydride"}}),  # 409
+        ("POST", "/api/v1/reagents", {"json": {"name": "x", "pictograms": ["GHS99"]}}),  # 422
+        ("GET", "/api/v1/reagents", {}),
+        ("PATCH", "/api/v1/reagents/1", {"json": {"sds_source": "supplier, rev. 2026"}}),
+        ("PATCH", "/api/v1/reagents/999", {"json": {}}),  # 404
+        ("PUT", f"/api/v1/batches/{batch}/route", {"json": {"steps": [{"solvent": "DMF", "temperature": "80 degC",
+                                                                        "reagents": [{"reagent": "sodium hydride",
+                                                                                      "amount": "2 mmol"}]}]}}),
+        ("PUT", f"/api/v1/batches/{batch}/route", {"json": {"precursors": [batch]}}),  # 422: a cycle
+        ("GET", f"/api/v1/batches/{batch}/route", {}),
+        ("GET", "/api/v1/batches/NO-SUCH/route", {}),  # 404
+        ("POST", f"/api/v1/batches/{batch}/route/copy", {"json": {"source": batch}}),  # 422
         ("POST", f"/api/v1/batches/{batch}/archive", {}),
         ("POST", f"/api/v1/batches/{batch}/measurements", loop),  # archived: 409
         ("POST", f"/api/v1/batches/{batch}/restore", {}),

@@ -26,7 +26,7 @@ from ..errors import InputError
 from ..ingest.conditions import parse_quantity
 from ..ingest.units import UNIT_PARSE_ERRORS, normalise_unit_text, parse_unit
 from ..models import Batch, BatchPrecursor, Compound, Reagent, SynthesisStep, utcnow
-from ..models.planning import ReagentCreate, ReagentUpdate, RouteIn
+from ..models.planning import ReagentCreate, ReagentUpdate, RouteIn, RouteStepIn
 from . import audit
 from .errors import Duplicate, NotFound
 
@@ -287,3 +287,45 @@ def route_read(session: Session, batch: Batch, *, actor: Optional[Actor]) -> dic
                        "reagents": [_use_read(session, u) for u in s.reagents]} for s in steps],
             "precursors": lineage(_walk(session, batch, upstream=True)),
             "products": lineage(_walk(session, batch, upstream=False))}
+
+
+def batches_with_routes(session: Session) -> list[Batch]:
+    """Batches that have recorded steps (the templates a new route can be copied from), by code."""
+    ids = select(SynthesisStep.batch_id).distinct()
+    return list(session.exec(select(Batch).where(Batch.id.in_(ids)).order_by(Batch.code)).all())
+
+
+def add_step(*, session: Session, batch: Batch, step: RouteStepIn, actor: str) -> Batch:
+    """Append one step to a batch's route (the page's form); validated before anything is stored."""
+    new = _steps_from(RouteIn(steps=[step]), session, batch)[0]
+    last = session.exec(select(func.max(SynthesisStep.position)).where(SynthesisStep.batch_id == batch.id)).one()
+    new.position = (last or 0) + 1
+    before = _snapshot(session, batch)
+    session.add(new)
+    session.flush()
+    audit.record(session, actor=actor, action="batch.route", entity="batch", code=batch.code,
+                 compound_id=batch.compound_id, before=before, after=_snapshot(session, batch))
+    session.commit()
+    session.refresh(batch)
+    return batch
+
+
+def add_precursor(*, session: Session, batch: Batch, precursor_code: str, actor: str) -> Batch:
+    """Record that ``batch`` was made from the batch ``precursor_code`` (refused if it would close a cycle)."""
+    p = session.exec(select(Batch).where(Batch.code == precursor_code.strip())).first()
+    if p is None:
+        raise InputError(f"no batch {precursor_code}", field="precursor")
+    if p.id == batch.id or _upstream_reaches(session, [p.id], batch.id):
+        raise InputError(f"{p.code} is made from {batch.code} (directly or further up): a batch cannot be its own "
+                         "precursor", field="precursor")
+    if session.exec(select(BatchPrecursor).where(BatchPrecursor.batch_id == batch.id,
+                                                 BatchPrecursor.precursor_id == p.id)).first() is not None:
+        return batch
+    before = _snapshot(session, batch)
+    session.add(BatchPrecursor(batch_id=batch.id, precursor_id=p.id))
+    session.flush()
+    audit.record(session, actor=actor, action="batch.route", entity="batch", code=batch.code,
+                 compound_id=batch.compound_id, before=before, after=_snapshot(session, batch))
+    session.commit()
+    session.refresh(batch)
+    return batch

@@ -37,6 +37,7 @@ from .web import compare as compare_pages
 from .web import compounds as compound_pages
 from .web import digest as digest_pages
 from .web import measurements as measurement_pages
+from .web import planning as planning_pages
 from .web import samples as sample_pages
 from .web import scaffolds as scaffold_pages
 from .web.render import render
@@ -192,7 +193,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(api_router)
     app.include_router(api_docs_page.router)
     for pages in (auth_pages, compound_pages, batch_pages, scaffold_pages, measurement_pages, sample_pages,
-                  campaign_pages, admin_pages, digest_pages, compare_pages):
+                  campaign_pages, admin_pages, digest_pages, compare_pages, planning_pages):
         app.include_router(pages.router)
     app.mount("/static", StaticFiles(directory=str(static_dir())), name="static")
 

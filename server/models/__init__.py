@@ -25,6 +25,8 @@ from .registry import (
     SideChainRead,
     SideChainSpec,
 )
+from .planning import (LIFE_STATES, PLAN_STATES, PRIORITIES, BatchPrecursor, CompoundPlan, RankingRead, Reagent,
+                       ReagentCreate, ReagentRead, ReagentUpdate, RouteCopy, RouteIn, RouteRead, SynthesisStep)
 from .site import SiteSetting
 from .stats import CompoundSideChain, CompoundStats
 from .types import UTCDateTime, utcnow
@@ -38,4 +40,5 @@ __all__ = [
     "ImportProfile", "JOB_STATES", "Job", "LoginThrottle", "WebSession", "Measurement", "MeasurementSeries", "SAMPLE_FORMS", "SERIES_VARIABLES", "Sample", "SampleCreate", "SamplePreparation",
     "live_measurement", "ROLES", "RawFile", "SCOPES", "Scaffold", "UTCDateTime", "User",
     "metadata", "utcnow",
+    "LIFE_STATES", "PLAN_STATES", "PRIORITIES", "BatchPrecursor", "CompoundPlan", "RankingRead", "Reagent", "ReagentCreate", "ReagentRead", "ReagentUpdate", "RouteCopy", "RouteIn", "RouteRead", "SynthesisStep",
 ]

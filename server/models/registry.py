@@ -110,6 +110,10 @@ class CompoundCreate(SQLModel):
     )
     notes: str = Field(default="", max_length=20000)
     embargoed: bool = False
+    state: Optional[str] = Field(default=None, description="'planned' registers a target compound before any batch")
+    rationale: str = Field(default="", max_length=20000, description="why this target (planned compounds)")
+    priority: Optional[int] = Field(default=None, ge=1, le=5, description="1 = make first ... 5 = last")
+    assignee: str = Field(default="", max_length=120, description="who will make it")
 
 
 class CompoundUpdate(SQLModel):
@@ -117,6 +121,11 @@ class CompoundUpdate(SQLModel):
     notes: Optional[str] = Field(default=None, max_length=20000)
     scaffold: Optional[str] = None
     embargoed: Optional[bool] = None
+    state: Optional[str] = Field(default=None, description="planned, in_synthesis or abandoned (made follows from batches)")
+    reason: Optional[str] = Field(default=None, max_length=20000, description="why it was abandoned (needed then)")
+    rationale: Optional[str] = Field(default=None, max_length=20000)
+    priority: Optional[int] = Field(default=None, ge=1, le=5)
+    assignee: Optional[str] = Field(default=None, max_length=120)
 
 
 class SideChainRead(SQLModel):
@@ -146,6 +155,11 @@ class CompoundRead(SQLModel):
     created_by: str
     verdict: Optional[str] = None
     verdict_evidence: Optional[dict[str, Any]] = None
+    state: str = Field(default="registered", description="registered, planned, in_synthesis, made or abandoned")
+    rationale: str = ""
+    priority: Optional[int] = None
+    assignee: str = ""
+    state_reason: str = Field(default="", description="why it was abandoned")
 
 
 class CompoundPage(SQLModel):

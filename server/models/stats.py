@@ -57,5 +57,6 @@ class CompoundStats(SQLModel, table=True):
     yield_best_pct: Optional[float] = None
     purity_best_pct: Optional[float] = None
     polar_phase: Optional[bool] = None
+    life_state: str = Field(default="registered", max_length=20, index=True)  # server/models/planning.py
     space_groups: str = Field(default="", max_length=200)
     last_activity_at: Optional[datetime] = Field(default=None, sa_type=UTCDateTime, index=True)

@@ -284,7 +284,7 @@ def list_tokens(session: Session) -> list[ApiToken]:
 # Who did what is for people of the group: an upload token (the instrument PC's) gets answers with the names
 # of accounts, tokens and workers replaced. Fields that hold an actor label, and the free-text fields that
 # may quote one ("cancelled by user:ana"). Labels are "user:<name>", "token:<id> (<name>)", "worker:<name>".
-PEOPLE_FIELDS = frozenset({"created_by", "by", "actor", "updated_by", "worker", "workers"})
+PEOPLE_FIELDS = frozenset({"created_by", "by", "actor", "updated_by", "worker", "workers", "assignee", "entered_by"})
 QUOTING_FIELDS = frozenset({"message"})
 HIDDEN_NAME = "(hidden)"
 _LABEL = re.compile(r"\b(?:user|token|worker):(?:\d+ \([^)]*\)|\S+)")

@@ -56,7 +56,7 @@ def check_estimable(smiles: str, *, truncate_side_chains: bool = True) -> str:
     return Chem.MolToSmiles(mol)
 
 
-def _params(compound: Compound, truncate_side_chains: bool) -> dict[str, Any]:
+def job_params(compound: Compound, truncate_side_chains: bool) -> dict[str, Any]:
     return {"compound_id": compound.id, "smiles": compound.smiles, "truncate_side_chains": bool(truncate_side_chains)}
 
 
@@ -114,7 +114,7 @@ def queue_estimates(*, session: Session, compounds: Sequence[Compound], truncate
         _lock(session, compound)
         job = active_estimate(session, compound, truncate_side_chains=truncate_side_chains)
         if job is None:
-            job = queue.add_job(session, kind=KIND, params=_params(compound, truncate_side_chains),
+            job = queue.add_job(session, kind=KIND, params=job_params(compound, truncate_side_chains),
                                 compound_id=compound.id, actor=actor)
         seen[compound.id] = job
         jobs.append(job)

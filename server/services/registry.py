@@ -30,7 +30,7 @@ from ..models import (
 )
 from ..access import Actor, may_see_structure, structure_visible
 from ..settings import Settings
-from . import audit, codes, search, stats, verdicts
+from . import audit, codes, planning, search, stats, verdicts
 from .errors import Duplicate, NotFound
 
 
@@ -104,6 +104,8 @@ def register_compound(*, session: Session, settings: Settings, data: CompoundCre
         embargoed=data.embargoed,
         created_by=actor,
     )
+    if data.state is not None:  # a target: its plan is checked before anything is stored
+        planning.check_new_state(data.state)
     session.add(compound)
     try:
         session.flush()
@@ -115,9 +117,15 @@ def register_compound(*, session: Session, settings: Settings, data: CompoundCre
             raise Duplicate(f"this molecule is registered already as {dup.code}", existing=dup.code) from None
         raise
     search.index_compound(session, compound)
+    plan = None
+    if data.state is not None:
+        plan = planning.new_plan(compound, state=data.state, rationale=data.rationale, priority=data.priority,
+                                 assignee=data.assignee, actor=actor)
+        session.add(plan)
+        planning.queue_estimate_of_target(session, compound, actor=actor)
     audit.record(
         session, actor=actor, action="compound.create", entity="compound", code=compound.code,
-        compound_id=compound.id, after=audit.snapshot(compound),
+        compound_id=compound.id, after={**audit.snapshot(compound), **({"plan": audit.snapshot(plan)} if plan else {})},
     )
     stats.refresh(session, compound)
     session.commit()
@@ -141,7 +149,11 @@ def get_scaffold(session: Session, code: str) -> Scaffold:
 
 def update_compound(*, session: Session, compound: Compound, data: CompoundUpdate, actor: str) -> Compound:
     before = audit.snapshot(compound)
+    old_plan = planning.plan_of(session, compound)
+    if old_plan is not None:
+        before["plan"] = audit.snapshot(old_plan)
     changes = data.model_dump(exclude_unset=True)
+    plan = planning.apply_changes(session, compound, changes, actor=actor)
     if "scaffold" in changes:
         code = changes.pop("scaffold")
         compound.scaffold_id = get_scaffold(session, code).id if code else None
@@ -150,8 +162,11 @@ def update_compound(*, session: Session, compound: Compound, data: CompoundUpdat
             setattr(compound, key, value.strip() if isinstance(value, str) else value)
     compound.updated_at = utcnow()
     session.add(compound)
+    after = audit.snapshot(compound)
+    if plan is not None:
+        after["plan"] = audit.snapshot(plan)
     audit.record(session, actor=actor, action="compound.update", entity="compound", code=compound.code,
-                 compound_id=compound.id, before=before, after=audit.snapshot(compound))
+                 compound_id=compound.id, before=before, after=after)
     stats.refresh(session, compound)
     session.commit()
     session.refresh(compound)
@@ -247,6 +262,7 @@ def compound_read(session: Session, compound: Compound, *, actor: Optional[Actor
     hide = not may_see_structure(actor, compound)
     scaffold_code = session.get(Scaffold, compound.scaffold_id).code if compound.scaffold_id else None
     n_batches = session.exec(select(func.count()).select_from(Batch).where(Batch.compound_id == compound.id)).one()
+    plan = planning.plan_of(session, compound)
     return CompoundRead(
         code=compound.code,
         label="" if hide else compound.label,
@@ -267,6 +283,11 @@ def compound_read(session: Session, compound: Compound, *, actor: Optional[Actor
         created_by=compound.created_by,
         verdict=verdicts.effective_code(compound),
         verdict_evidence=verdicts.verdict_read(compound, withheld=hide),
+        state=planning.state_of(session, compound),
+        rationale="" if hide or plan is None else plan.rationale,
+        priority=plan.priority if plan else None,
+        assignee=plan.assignee if plan else "",
+        state_reason="" if hide or plan is None else plan.reason,
     )
 
 

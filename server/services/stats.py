@@ -13,7 +13,9 @@ from sqlalchemy import delete, func
 from sqlmodel import Session, select
 
 from ..kinds import KINDS
-from ..models import BarrierEstimate, Batch, Compound, CompoundSideChain, CompoundStats, Measurement, live_measurement
+from ..models import (BarrierEstimate, Batch, Compound, CompoundPlan, CompoundSideChain, CompoundStats, Measurement,
+                      live_measurement)
+from ..models.planning import life_state
 
 MEASURED_METHODS = ("coalescence", "eyring")  # barriers measured by dynamic NMR
 
@@ -51,6 +53,8 @@ def refresh(session: Session, compound: Compound) -> CompoundStats:
     stats.batch_states = "," + ",".join(states) + "," if states else ""
     stats.yield_best_pct = _max(b.yield_pct for b in batches)
     stats.purity_best_pct = _max(b.purity_pct for b in batches)
+    plan = session.get(CompoundPlan, cid)
+    stats.life_state = life_state(plan.state if plan else None, set(states))
 
     ms = session.exec(
         select(Measurement).join(Batch, Batch.id == Measurement.batch_id)

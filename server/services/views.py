@@ -24,7 +24,7 @@ from ..access import Actor
 from ..chem.sidechains import KINDS as CHAIN_KINDS
 from ..bounds import CARBONS, MAX_ROW_ID, PAGE, whole_number
 from ..errors import InputError
-from ..models import BATCH_STATES, Compound, CompoundSideChain, CompoundStats, Scaffold
+from ..models import BATCH_STATES, LIFE_STATES, Compound, CompoundSideChain, CompoundStats, Scaffold
 from ..kinds import KINDS
 from ..verdict_codes import CODES as VERDICT_CODES
 from .verdicts import EFFECTIVE_CODE, effective_code
@@ -218,6 +218,8 @@ FILTERS: tuple[Filter, ...] = (
            help="e.g. alkoxy:12, or alkoxy:2,alkoxy:12 for mixed chains"),
     Filter("batch_state", "Batch state", _choice(lambda: BATCH_STATES),
            lambda v, _: CompoundStats.batch_states.like(f"%,{v},%")),
+    Filter("state", "Life state", _choice(lambda: LIFE_STATES), lambda v, _: CompoundStats.life_state.in_(v),
+           multi=True),
     Filter("verdict", "Verdict", _choice(lambda: VERDICT_CODES), lambda v, _: EFFECTIVE_CODE.in_(v), multi=True),
     Filter("polar", "Polar phase", _choice(lambda: ("yes", "no", "unknown")),
            lambda v, _: {"yes": CompoundStats.polar_phase.is_(True), "no": CompoundStats.polar_phase.is_(False),
@@ -449,6 +451,7 @@ EXPORT_COLUMNS: tuple[tuple[str, Callable[[ViewRow], Any]], ...] = (
     ("side chains", lambda r: r.compound.side_chain_summary),
     ("chain carbons", lambda r: r.stats.chain_carbons if r.stats else None),
     ("verdict", lambda r: r.verdict),
+    ("state", lambda r: r.stats.life_state if r.stats else "registered"),
     ("batches", lambda r: r.stats.n_batches if r.stats else 0),
     ("measurements", lambda r: r.stats.n_measurements if r.stats else 0),
     ("barrier measured (kcal/mol)", lambda r: r.stats.barrier_measured_kcal_mol if r.stats else None),
@@ -489,6 +492,7 @@ def filter_choices(session: Session) -> dict[str, list[str]]:
         "bridge": sorted({b for b in session.exec(select(Scaffold.bridge)).all() if b}),
         "chain_kind": ["alkoxy", "alkylthio", "alkyl", "other"],
         "batch_state": list(BATCH_STATES),
+        "state": list(LIFE_STATES),
         "verdict": list(VERDICT_CODES),
         "has": list(KINDS),
     }

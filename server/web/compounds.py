@@ -17,7 +17,7 @@ from ..ingest.conditions import parse_quantity
 from ..jobs import queue
 from ..models import CompoundCreate, CompoundUpdate, SideChainSpec
 from ..bounds import BUILT_CHAIN_CARBONS, whole_number
-from ..services import barriers, estimates, exports, registry, status, verdicts, views
+from ..services import barriers, estimates, exports, planning_pages, registry, status, verdicts, views
 from ..services.compound_page import compound_page as compound_page_data
 from ..services.errors import Duplicate
 from ..kinds import KINDS
@@ -97,10 +97,14 @@ def _compound_create(form: dict) -> CompoundCreate:
         side_chain=chain,
         notes=form.get("notes", ""),
         embargoed=form.get("embargoed") in ("on", "true", "1"),
+        state="planned" if form.get("planned") in ("on", "true", "1") else None,
+        rationale=form.get("rationale", ""),
+        priority=whole_number("priority", form.get("priority"), lo=1, hi=5) if form.get("priority") else None,
     )
 
 
-FORM_FIELDS = ("smiles", "label", "scaffold", "chain_kind", "chain_carbons", "branched_form", "notes", "embargoed")
+FORM_FIELDS = ("smiles", "label", "scaffold", "chain_kind", "chain_carbons", "branched_form", "notes", "embargoed",
+               "planned", "rationale", "priority")
 
 
 async def _form_dict(request: Request) -> dict:
@@ -153,7 +157,7 @@ async def compound_create(request: Request, session: SessionDep, settings: Setti
 def compound_page(code: str, request: Request, session: SessionDep, actor: PageActor):
     compound = registry.get_compound(session, code)
     ctx = compound_page_data(session, compound, actor=actor)
-    ctx.update(kinds=KINDS)
+    ctx.update(kinds=KINDS, planning=planning_pages.compound_section(session, compound, actor=actor))
     return render(request, "pages/compound.html", ctx, actor=actor)
 
 

@@ -77,7 +77,7 @@ def world(app, client, session):
     yield {
         "params": {"code": code, "batch_code": batch, "job_id": job.json()["job"], "measurement_id": m.json()["id"],
                    "sample_code": m.json()["sample"],
-                   "username": "spare-user", "token_id": spare.id, "name": "no-such-profile"},
+                   "username": "spare-user", "token_id": spare.id, "name": "no-such-profile", "reagent_id": 1},
         "code": code,
         "batch": batch,
         # The read token is granted the embargo (it is the positive control of the embargo tests).
@@ -262,14 +262,17 @@ WEB_READ = {("GET", p) for p in (
     "/compounds", "/compounds/export.{fmt}", "/compounds/{code}", "/compounds/{code}/timeline",
     "/compounds/{code}/rates", "/scaffolds", "/measurements/{measurement_id}", "/explorer", "/outcomes",
     "/calibration", "/jobs/{job_id}/panel", "/queue", "/digest", "/digest.md", "/compare",
-    "/compare.{fmt}", "/samples/{code}")}
+    "/compare.{fmt}", "/samples/{code}", "/planning", "/planning/routes/{batch_code}", "/planning/reagents")}
 WEB_WRITE = {("GET", "/compounds/new"), ("POST", "/compounds/preview"), ("POST", "/compounds/new"),
              ("POST", "/compounds/{code}/edit"), ("POST", "/compounds/{code}/archive"),
              ("POST", "/compounds/{code}/barriers"), ("POST", "/compounds/{code}/estimate"),
              ("GET", "/compounds/{code}/batches/new"), ("POST", "/compounds/{code}/batches/new"),
              ("POST", "/scaffolds"), ("GET", "/batches/{code}/upload"), ("POST", "/batches/{code}/upload"),
              ("POST", "/jobs/{job_id}/cancel"), ("POST", "/queue"),
-             ("POST", "/measurements/{measurement_id}/revise"), ("POST", "/measurements/{measurement_id}/archive")}
+             ("POST", "/measurements/{measurement_id}/revise"), ("POST", "/measurements/{measurement_id}/archive"),
+             ("POST", "/planning/{code}/claim"), ("POST", "/planning/routes/{batch_code}/steps"),
+             ("POST", "/planning/routes/{batch_code}/precursors"), ("POST", "/planning/routes/{batch_code}/copy"),
+             ("POST", "/planning/reagents")}
 WEB_ADMIN = {("POST", "/compounds/{code}/verdict"), ("POST", "/status/public"), ("GET", "/admin"),
              ("POST", "/admin/users"), ("POST", "/admin/users/{username}/deactivate"), ("POST", "/admin/tokens"),
              ("POST", "/admin/tokens/{token_id}/revoke")}

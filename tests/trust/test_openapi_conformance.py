@@ -120,6 +120,26 @@ def _requests(code: str, batch: str) -> list[tuple[str, str, dict]]:
         ("GET", f"/api/v1/compounds/{code}/figures/switching.svg", {}),
         ("GET", f"/api/v1/compounds/{code}/report.zip", {}),
         ("POST", "/api/v1/measurements/1/revise", {"data": {"thickness": "300 um"}}),
+        # Planning (issue 20): a target, its state, the ranking (too few data here), a bad goal.
+        ("POST", "/api/v1/compounds", {"json": {"smiles": "CCCOc1ccc(OCCC)cc1", "state": "planned", "priority": 1,
+                                                "rationale": "propoxy analogue"}}),
+        ("POST", "/api/v1/compounds", {"json": {"smiles": "CCCCOc1ccc(OCCCC)cc1", "state": "made"}}),  # 422
+        ("PATCH", f"/api/v1/compounds/{code}", {"json": {"state": "abandoned"}}),  # 422: no reason
+        ("GET", "/api/v1/planning/ranking?goal=tc", {}),
+        ("GET", "/api/v1/planning/ranking?goal=cheapest", {}),  # 422
+        ("POST", "/api/v1/reagents", {"json": {"name": "sodium hydride", "pictograms": ["GHS02"], "hazard_codes": ["H260"]}}),
+        ("POST", "/api/v1/reagents", {"json": {"name": "Sodium hydride"}}),  # 409
+        ("POST", "/api/v1/reagents", {"json": {"name": "x", "pictograms": ["GHS99"]}}),  # 422
+        ("GET", "/api/v1/reagents", {}),
+        ("PATCH", "/api/v1/reagents/1", {"json": {"sds_source": "supplier, rev. 2026"}}),
+        ("PATCH", "/api/v1/reagents/999", {"json": {}}),  # 404
+        ("PUT", f"/api/v1/batches/{batch}/route", {"json": {"steps": [{"solvent": "DMF", "temperature": "80 degC",
+                                                                        "reagents": [{"reagent": "sodium hydride",
+                                                                                      "amount": "2 mmol"}]}]}}),
+        ("PUT", f"/api/v1/batches/{batch}/route", {"json": {"precursors": [batch]}}),  # 422: a cycle
+        ("GET", f"/api/v1/batches/{batch}/route", {}),
+        ("GET", "/api/v1/batches/NO-SUCH/route", {}),  # 404
+        ("POST", f"/api/v1/batches/{batch}/route/copy", {"json": {"source": batch}}),  # 422
         ("POST", f"/api/v1/batches/{batch}/archive", {}),
         ("POST", f"/api/v1/batches/{batch}/measurements", loop),  # archived: 409
         ("POST", f"/api/v1/batches/{batch}/restore", {}),

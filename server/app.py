@@ -23,6 +23,7 @@ from .errors import InputError
 from .access import NotLoggedIn, Refused, may_see_structure
 from .services.errors import Archived, Duplicate, Forbidden, NotFound, TooLarge
 from .package_files import static_dir, templates_dir
+from .plots.alt import figure_alt
 from .ratelimit import TokenBuckets, caller_key
 from .serving import BodyDeadline
 from .settings import Settings, get_settings
@@ -155,6 +156,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     templates.env.globals.update(version=__version__, static_url=static_url, plotly_bundle=PLOTLY_BUNDLE,
                                  may_see_structure=may_see_structure)
     format_filters.install(templates.env)
+    templates.env.filters["figure_alt"] = figure_alt  # a figure's axes and data tables (figure_block macro)
     app.state.templates = templates
 
     @app.middleware("http")

@@ -5,7 +5,6 @@ from __future__ import annotations
 from typing import Any
 
 from .. import verdict_codes
-from ..plots.alt import figure_alt
 from ..precision import significant
 
 # Suffix of a key (after the quantity) -> unit as printed. Longest suffixes first.
@@ -106,7 +105,6 @@ def install(env) -> None:  # noqa: ANN001 - a jinja2 Environment
     env.filters["who"] = shown_name  # {{ label | who(actor) }}: names hidden from upload tokens and visitors
     env.filters["unquoted"] = shown_text  # {{ message | unquoted(actor) }}: quoted labels likewise
     env.filters["scalar_items"] = scalar_items
-    env.filters["figure_alt"] = figure_alt  # a figure's caption axes and data tables (server/plots/alt.py)
     env.globals["split_key"] = split_key
     env.globals["digits_of"] = digits_of
     env.globals["measurement_summary"] = summary

@@ -4,18 +4,16 @@ from __future__ import annotations
 
 import math
 from contextlib import asynccontextmanager
-from pathlib import Path
 from urllib.parse import quote
 
-import plotly
 from fastapi import FastAPI, Request
 from fastapi.exceptions import RequestValidationError
-from fastapi.responses import FileResponse, JSONResponse, RedirectResponse, Response
-from fastapi.staticfiles import StaticFiles
+from fastapi.responses import JSONResponse, RedirectResponse, Response
 from fastapi.templating import Jinja2Templates
 from sqlalchemy import text
 from sqlalchemy.exc import OperationalError
 from starlette.exceptions import HTTPException as StarletteHTTPException
+from starlette.middleware.gzip import GZipMiddleware
 
 from . import __version__
 from .api import docs_page as api_docs_page
@@ -25,6 +23,7 @@ from .errors import InputError
 from .access import NotLoggedIn, Refused, may_see_structure
 from .services.errors import Archived, Duplicate, Forbidden, NotFound, TooLarge
 from .package_files import static_dir, templates_dir
+from .plots.alt import figure_alt
 from .ratelimit import TokenBuckets, caller_key
 from .serving import BodyDeadline
 from .settings import Settings, get_settings
@@ -40,15 +39,17 @@ from .web import measurements as measurement_pages
 from .web import planning as planning_pages
 from .web import samples as sample_pages
 from .web import scaffolds as scaffold_pages
+from .web.assets import PLOTLY_BUNDLE, VersionedStaticFiles, static_url
 from .web.render import render
 
-PLOTLY_JS = Path(plotly.__file__).parent / "package_data" / "plotly.min.js"
-PLOTLY_VERSION = plotly.__version__
-
+# The browser itself refuses to send anything to another host: scripts, fetches (connect-src),
+# form posts (form-action) and images come only from this server; no page may be framed. blob: images
+# are the PNGs a plot's "download" button makes in the browser (plotly.js draws the SVG into one).
 CSP = (
-    "default-src 'self'; script-src 'self'; style-src 'self' 'unsafe-inline'; img-src 'self' data:; "
-    "object-src 'none'; base-uri 'self'; frame-ancestors 'none'; form-action 'self'"
+    "default-src 'self'; script-src 'self'; connect-src 'self'; style-src 'self' 'unsafe-inline'; "
+    "img-src 'self' data: blob:; object-src 'none'; base-uri 'self'; frame-ancestors 'none'; form-action 'self'"
 )
+GZIP_MIN_BYTES = 1024  # smaller answers gain nothing from compression
 
 
 def _is_api(request: Request) -> bool:
@@ -153,9 +154,10 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.state.settings = settings
     app.state.engine = engine
     templates = Jinja2Templates(directory=str(templates_dir()))
-    templates.env.globals.update(version=__version__, plotly_version=PLOTLY_VERSION,
+    templates.env.globals.update(version=__version__, static_url=static_url, plotly_bundle=PLOTLY_BUNDLE,
                                  may_see_structure=may_see_structure)
     format_filters.install(templates.env)
+    templates.env.filters["figure_alt"] = figure_alt  # a figure's axes and data tables (figure_block macro)
     app.state.templates = templates
 
     @app.middleware("http")
@@ -184,6 +186,9 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         return await call_next(request)
 
     app.add_middleware(CookieMiddleware)  # writes the session, pre-login and device cookies (server/cookies.py)
+    # Pages, JSON and text assets go compressed to browsers that ask; the CSRF token in pages is masked
+    # per response (security.mask_token), so compression leaks nothing about it (BREACH).
+    app.add_middleware(GZipMiddleware, minimum_size=GZIP_MIN_BYTES)
     # Added last, so outermost of our middleware: a slow body is cut off before other work is done for it.
     app.add_middleware(BodyDeadline, seconds=settings.body_timeout_s)
     _install_error_handlers(app)
@@ -195,13 +200,8 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     for pages in (auth_pages, compound_pages, batch_pages, scaffold_pages, measurement_pages, sample_pages,
                   campaign_pages, admin_pages, digest_pages, compare_pages, planning_pages):
         app.include_router(pages.router)
-    app.mount("/static", StaticFiles(directory=str(static_dir())), name="static")
-
-    @app.get(f"/assets/plotly-{PLOTLY_VERSION}.min.js", include_in_schema=False)
-    def plotly_js() -> FileResponse:
-        # Served from the installed plotly package: no CDN, no internet at run time.
-        return FileResponse(PLOTLY_JS, media_type="text/javascript",
-                            headers={"Cache-Control": "public, max-age=31536000, immutable"})
+    # Versioned addresses (server/web/assets.py) are cached for a year, anything else revalidated.
+    app.mount("/static", VersionedStaticFiles(directory=str(static_dir())), name="static")
 
     @app.get("/healthz", include_in_schema=False)
     def healthz() -> Response:

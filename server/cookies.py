@@ -24,7 +24,7 @@ from sqlalchemy.exc import OperationalError
 from sqlmodel import Session
 
 from .models import User
-from .security import device_mark, device_nonce, prelogin_csrf, same_token
+from .security import device_mark, device_nonce, mask_token, prelogin_csrf, same_token, unmask_token
 from .services import sessions
 
 SESSION_COOKIE = "remanence_session"
@@ -91,20 +91,24 @@ def current(request: Request) -> Optional[sessions.LiveSession]:
 
 
 def csrf_token(request: Request) -> str:
-    """The CSRF token for forms on this response: the session's, or before login the HMAC of the nonce."""
+    """The CSRF token for forms on this response: the session's, or before login the HMAC of the nonce.
+
+    Masked afresh on every call (``security.mask_token``), so compressed pages do not repeat a secret (BREACH).
+    """
     live = current(request)
     if live is not None:
-        return live.csrf_token
+        return mask_token(live.csrf_token)
     nonce = request.scope.get("remanence.prelogin") or request.cookies.get(PRELOGIN_COOKIE, "")
     if not nonce or len(nonce) > 64:
         nonce = secrets.token_urlsafe(24)
         queue_cookie(request, PRELOGIN_COOKIE, nonce, max_age_s=PRELOGIN_HOURS * 3600)
     request.scope["remanence.prelogin"] = nonce
-    return prelogin_csrf(request.app.state.settings.secret_key, nonce)
+    return mask_token(prelogin_csrf(request.app.state.settings.secret_key, nonce))
 
 
 def csrf_matches(request: Request, sent: Optional[str]) -> bool:
-    """Whether ``sent`` is this browser's CSRF token (of its login session, else of its pre-login nonce)."""
+    """Whether ``sent`` is this browser's CSRF token, masked (of its login session, else of its pre-login nonce)."""
+    sent = unmask_token(sent)
     live = current(request)
     if live is not None:
         return same_token(sent, live.csrf_token)

@@ -12,6 +12,11 @@
   ``csrf_token``) or htmx request (header ``X-CSRF-Token``) and compared in constant time.
   Before login, the token is an HMAC of a random nonce held in a cookie (the "signed double-submit
   cookie" of the OWASP CSRF Prevention Cheat Sheet), so anonymous visitors cost no database row.
+  Pages are served gzip-compressed, so a secret repeated in every page next to reflected input
+  (a search box) could be guessed a byte at a time from response sizes (BREACH, Gluck, Harris and
+  Prado, Black Hat USA 2013). The token is therefore masked afresh for every response
+  (:func:`mask_token`: a random pad and the token XOR the pad, the mitigation the BREACH paper
+  names "randomizing secrets per request"); :func:`unmask_token` recovers it for the comparison.
 * Known-device marks: after a successful login the browser gets a long-lived cookie
   ``nonce.issued.tag`` whose tag is an HMAC-SHA256 (RFC 2104) over the account id, the current
   password hash, the nonce and the issue time. It names no account; a password change voids it.
@@ -70,6 +75,30 @@ def hash_token(token: str) -> str:
 
 def new_csrf_token() -> str:
     return secrets.token_urlsafe(32)
+
+
+def mask_token(token: str) -> str:
+    """``token`` masked with a fresh random pad: ``base64url(pad || pad XOR token)``; differs every call."""
+    raw = token.encode()
+    pad = secrets.token_bytes(len(raw))
+    return base64.urlsafe_b64encode(pad + bytes(a ^ b for a, b in zip(pad, raw))).rstrip(b"=").decode()
+
+
+def unmask_token(masked: str | None) -> str | None:
+    """The token inside a :func:`mask_token` value; None for anything that is not one."""
+    if not masked or len(masked) > 256:
+        return None
+    try:
+        data = base64.urlsafe_b64decode(masked + "=" * (-len(masked) % 4))
+    except (ValueError, TypeError):
+        return None
+    half = len(data) // 2
+    if not half or len(data) % 2:
+        return None
+    try:
+        return bytes(a ^ b for a, b in zip(data[:half], data[half:])).decode("ascii")
+    except UnicodeDecodeError:
+        return None
 
 
 def same_token(a: str | None, b: str | None) -> bool:

@@ -1,6 +1,22 @@
 // Draw every plotly figure on the page from its JSON block (no inline scripts: CSP).
 // Explorer plots show the structure of the hovered compound and open it on click.
 (function () {
+  // The one plotly configuration every figure uses. Nothing on a plot may talk to a host other than
+  // ours: plotly.js 4 shows a "Share chart..." button by default (showSendToCloud) that posts the whole
+  // figure, data included, to the vendor's hosted service, and its logo links there. Both are off, and
+  // the cloud buttons are removed by name as well, in case a later plotly.js brings them back under a
+  // new default. The content security policy (server/app.py: connect-src, form-action) refuses such
+  // requests as a second line. Saving a PNG stays: it is made in the browser.
+  var CONFIG = {
+    responsive: true,
+    displaylogo: false,
+    showLink: false,
+    showSendToCloud: false,
+    showEditInChartStudio: false,
+    plotlyServerURL: "",
+    modeBarButtonsToRemove: ["sendChartToCloud", "sendDataToCloud", "editInChartStudio"],
+    toImageButtonOptions: { format: "png", scale: 2 }
+  };
   var tip = null;
   function structureTip() {
     if (!tip) {
@@ -36,7 +52,7 @@
       var src = document.getElementById(el.dataset.figure);
       if (!src || !window.Plotly) { return; }
       var fig = JSON.parse(src.textContent);
-      window.Plotly.newPlot(el, fig.data, fig.layout, { responsive: true, displaylogo: false }).then(function () { wire(el); });
+      window.Plotly.newPlot(el, fig.data, fig.layout, CONFIG).then(function () { wire(el); });
       el.dataset.drawn = "1";
     });
   }

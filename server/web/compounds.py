@@ -17,7 +17,7 @@ from ..ingest.conditions import parse_quantity
 from ..jobs import queue
 from ..models import CompoundCreate, CompoundUpdate, SideChainSpec
 from ..bounds import BUILT_CHAIN_CARBONS, whole_number
-from ..services import barriers, estimates, exports, registry, status, verdicts, views
+from ..services import barriers, comments, estimates, exports, registry, status, verdicts, views
 from ..services.compound_page import compound_page as compound_page_data
 from ..services.errors import Duplicate
 from ..kinds import KINDS
@@ -153,7 +153,8 @@ async def compound_create(request: Request, session: SessionDep, settings: Setti
 def compound_page(code: str, request: Request, session: SessionDep, actor: PageActor):
     compound = registry.get_compound(session, code)
     ctx = compound_page_data(session, compound, actor=actor)
-    ctx.update(kinds=KINDS)
+    ctx.update(kinds=KINDS, thread=comments.thread_panel(session, comments.resolve(session, "compound", compound.code),
+                                                         actor=actor))
     return render(request, "pages/compound.html", ctx, actor=actor)
 
 

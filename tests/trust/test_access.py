@@ -77,7 +77,10 @@ def world(app, client, session):
     yield {
         "params": {"code": code, "batch_code": batch, "job_id": job.json()["job"], "measurement_id": m.json()["id"],
                    "sample_code": m.json()["sample"],
-                   "username": "spare-user", "token_id": spare.id},
+                   "username": "spare-user", "token_id": spare.id,
+                   # No such comment: only its author or an admin may change one (tests/api/test_comments.py),
+                   # so the matrix's positive controls aim past that rule and test the access table alone.
+                   "comment_id": 999999},
         "code": code,
         "batch": batch,
         # The read token is granted the embargo (it is the positive control of the embargo tests).
@@ -269,7 +272,10 @@ WEB_WRITE = {("GET", "/compounds/new"), ("POST", "/compounds/preview"), ("POST",
              ("GET", "/compounds/{code}/batches/new"), ("POST", "/compounds/{code}/batches/new"),
              ("POST", "/scaffolds"), ("GET", "/batches/{code}/upload"), ("POST", "/batches/{code}/upload"),
              ("POST", "/jobs/{job_id}/cancel"), ("POST", "/queue"),
-             ("POST", "/measurements/{measurement_id}/revise"), ("POST", "/measurements/{measurement_id}/archive")}
+             ("POST", "/measurements/{measurement_id}/revise"), ("POST", "/measurements/{measurement_id}/archive"),
+             ("POST", "/compounds/{code}/comments"), ("POST", "/batches/{code}/comments"),
+             ("POST", "/samples/{code}/comments"), ("POST", "/measurements/{measurement_id}/comments"),
+             ("POST", "/comments/{comment_id}/edit"), ("POST", "/comments/{comment_id}/archive")}
 WEB_ADMIN = {("POST", "/compounds/{code}/verdict"), ("POST", "/status/public"), ("GET", "/admin"),
              ("POST", "/admin/users"), ("POST", "/admin/users/{username}/deactivate"), ("POST", "/admin/tokens"),
              ("POST", "/admin/tokens/{token_id}/revoke")}

@@ -85,6 +85,21 @@ def _requests(code: str, batch: str) -> list[tuple[str, str, dict]]:
         ("GET", "/api/v1/measurements/1/figure.svg", {}),
         ("GET", f"/api/v1/compounds/{code}/figures/switching.svg", {}),
         ("GET", f"/api/v1/compounds/{code}/report.zip", {}),
+        # Comment threads (issue 23).
+        ("POST", f"/api/v1/compounds/{code}/comments", {"json": {"body": "**first** @admin1"}}),
+        ("POST", f"/api/v1/compounds/{code}/comments", {"json": {"body": ""}}),  # 422
+        ("GET", f"/api/v1/compounds/{code}/comments", {}),
+        ("POST", f"/api/v1/batches/{batch}/comments", {"json": {"body": "batch note"}}),
+        ("GET", f"/api/v1/batches/{batch}/comments", {}),
+        ("POST", f"/api/v1/samples/{batch}-S01/comments", {"json": {"body": "sample note"}}),
+        ("GET", f"/api/v1/samples/{batch}-S01/comments", {}),
+        ("POST", "/api/v1/measurements/1/comments", {"json": {"body": "loop note"}}),
+        ("GET", "/api/v1/measurements/1/comments", {}),
+        ("GET", "/api/v1/measurements/999/comments", {}),  # 404
+        ("PATCH", "/api/v1/comments/1", {"json": {"body": "**first**, edited"}}),
+        ("GET", "/api/v1/comments/1/history", {}),
+        ("POST", "/api/v1/comments/1/archive", {}),
+        ("POST", "/api/v1/comments/1/restore", {}),
         ("POST", "/api/v1/measurements/1/revise", {"data": {"thickness": "300 um"}}),
         ("POST", f"/api/v1/batches/{batch}/archive", {}),
         ("POST", f"/api/v1/batches/{batch}/measurements", loop),  # archived: 409

@@ -56,3 +56,47 @@ class CommentRead(SQLModel):
 class CommentPage(SQLModel):
     items: list[CommentRead]
     withheld: bool = Field(description="true when the compound is embargoed and the caller may not see it")
+
+
+# --- paper freezes -----------------------------------------------------------------------------
+
+
+class PaperFreeze(SQLModel, table=True):
+    """A named set of compounds frozen for a paper: what the paper used, kept apart from the live rows
+    (re-analysis rewrites ``measurement.results``; the frozen copies in ``paperfreezecompound`` stay)."""
+
+    id: Optional[int] = Field(default=None, primary_key=True)
+    name: str = Field(max_length=200, unique=True)
+    created_by: str = Field(max_length=160)
+    created_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
+    dataset_doi: str = Field(default="", max_length=200)
+    # [{"number": "CCDC 2345678", "measurement": 12}]: deposited structures, each naming its crystal measurement
+    depositions: list[dict[str, Any]] = Field(default_factory=list, sa_type=sa.JSON)
+
+
+class PaperFreezeCompound(SQLModel, table=True):
+    """One compound of a freeze: its verdict then, and every live measurement then (id, raw-file
+    SHA-256, kind, analysis version, results, verdict, flag codes), copied, never updated."""
+
+    id: Optional[int] = Field(default=None, primary_key=True)
+    freeze_id: int = Field(foreign_key="paperfreeze.id", index=True)
+    compound_id: int = Field(foreign_key="compound.id", index=True)
+    verdict: dict[str, Any] = Field(default_factory=dict, sa_type=sa.JSON)
+    measurements: list[dict[str, Any]] = Field(default_factory=list, sa_type=sa.JSON)
+
+    __table_args__ = (sa.UniqueConstraint("freeze_id", "compound_id", name="uq_paperfreezecompound"),)
+
+
+class FreezeCreate(SQLModel):
+    """``POST /api/v1/freezes``."""
+
+    name: str = Field(min_length=1, max_length=200, description='e.g. "bowl-chains manuscript"')
+    compounds: list[str] = Field(min_length=1, max_length=200, description="compound codes")
+
+
+class FreezePublication(SQLModel):
+    """``POST /api/v1/freezes/{freeze_id}/publication``: what was deposited once published."""
+
+    dataset_doi: Optional[str] = Field(default=None, max_length=200, description="e.g. 10.5281/zenodo.1234567")
+    depositions: Optional[list[dict[str, Any]]] = Field(
+        default=None, max_length=200, description='[{"number": "CCDC 2345678", "measurement": 12}]')

@@ -256,7 +256,7 @@ def freeze_pack(session: Session, freeze: PaperFreeze, *, actor: Optional[Actor]
         compound = session.get(Compound, r.compound_id)
         with zipfile.ZipFile(io.BytesIO(report_pack.report_pack(session, compound, actor=actor))) as inner:
             for info in inner.infolist():
-                files[f"current/{compound.code}/{info.filename}"] = inner.read(info)
+                files[f"current/{info.filename}"] = inner.read(info)  # its paths start with the code
     manifest = {"pack": PACK_VERSION, "freeze": freeze.id, "name": freeze.name,
                 "generated_at": datetime.now(timezone.utc).replace(microsecond=0).isoformat(),
                 "dataset_doi": freeze.dataset_doi, "depositions": freeze.depositions,

@@ -85,10 +85,12 @@ def _build(settings, which: str) -> tuple[dict, dict]:  # noqa: ANN001
                 r = client.post("/api/v1/scaffolds", json={"code": code, "name": f"{bridge} bowl",
                                                            "smiles": PARENT_BOWLS[bridge]}, headers=w)
                 assert r.status_code == 201, r.text
+            open_codes = []
             for n in (2, 6):
                 r = client.post("/api/v1/compounds", json={"scaffold": "BWL-C", "label": f"open C{n}",
                                                            "side_chain": {"kind": "alkoxy", "carbons": n}}, headers=w)
                 assert r.status_code == 201, r.text
+                open_codes.append(r.json()["code"])
             r = client.post("/api/v1/compounds", json={**WORLDS[which], "embargoed": True}, headers=w)
             assert r.status_code == 201, r.text
             secret = r.json()
@@ -122,7 +124,12 @@ def _build(settings, which: str) -> tuple[dict, dict]:  # noqa: ANN001
                                 json={"body": f"**{WORLDS[which]['label']}**: {WORLDS[which]['notes']}"})
                 assert r.status_code == 201, r.text
                 comment_ids.append(r.json()["id"])
-            params = {"code": code, "batch_code": batch["code"], "measurement_id": dsc.json()["id"],
+            # A paper freeze holding the embargoed compound beside an open one (issue 23).
+            fz = client.post("/api/v1/freezes", json={"name": "bowl-chains manuscript",
+                                                      "compounds": [open_codes[0], code]}, headers=w)
+            assert fz.status_code == 201, fz.text
+            params = {"freeze_id": fz.json()["id"], "code": code, "batch_code": batch["code"],
+                      "measurement_id": dsc.json()["id"],
                       "sample_code": sample, "comment_id": comment_ids[0],
                       "job_id": row.id, "fmt": "csv", "kind": "dsc", "scaffold": "BWL-S"}
             info = {"code": code, "pe": pe.json()["id"], "dsc": dsc.json()["id"], "secret": secret,

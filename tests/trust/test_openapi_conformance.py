@@ -100,6 +100,16 @@ def _requests(code: str, batch: str) -> list[tuple[str, str, dict]]:
         ("GET", "/api/v1/comments/1/history", {}),
         ("POST", "/api/v1/comments/1/archive", {}),
         ("POST", "/api/v1/comments/1/restore", {}),
+        # Paper freezes (issue 23).
+        ("POST", "/api/v1/freezes", {"json": {"name": "bowl-chains manuscript", "compounds": [code]}}),
+        ("POST", "/api/v1/freezes", {"json": {"name": "bowl-chains manuscript", "compounds": [code]}}),  # 409
+        ("POST", "/api/v1/freezes", {"json": {"name": "other", "compounds": ["RVZ-99999"]}}),  # 422
+        ("GET", "/api/v1/freezes", {}),
+        ("GET", "/api/v1/freezes/1", {}),
+        ("GET", "/api/v1/freezes/99", {}),  # 404
+        ("POST", "/api/v1/freezes/1/publication", {"json": {"dataset_doi": "10.5281/zenodo.1234567"}}),
+        ("POST", "/api/v1/freezes/1/publication", {"json": {"dataset_doi": "nope"}}),  # 422
+        ("GET", "/api/v1/freezes/1/pack.zip", {}),
         ("POST", "/api/v1/measurements/1/revise", {"data": {"thickness": "300 um"}}),
         ("POST", f"/api/v1/batches/{batch}/archive", {}),
         ("POST", f"/api/v1/batches/{batch}/measurements", loop),  # archived: 409

@@ -2,7 +2,7 @@
 
 from fastapi import APIRouter
 
-from . import admin, barriers, comments, compounds, jobs, measurements, outputs, samples, scaffolds
+from . import admin, barriers, comments, compounds, freezes, jobs, measurements, outputs, samples, scaffolds
 
 router = APIRouter(prefix="/api/v1")
 router.include_router(compounds.router)
@@ -14,3 +14,4 @@ router.include_router(jobs.router)
 router.include_router(admin.router)
 router.include_router(outputs.router)
 router.include_router(comments.router)
+router.include_router(freezes.router)

@@ -200,3 +200,8 @@ def job_as_seen(job: dict, withheld: frozenset[str]) -> dict:
     if job.get("compound") not in withheld:
         return job
     return {**job, "result": None, "message": "", "error": "withheld (embargoed compound)" if job.get("error") else None}
+
+
+def may_change_comment(actor: Optional[Actor], created_by: str) -> bool:
+    """Edit or archive a comment: its author (same actor label) if they may still write, or an admin."""
+    return allows(actor, WRITE) and (actor.is_admin or actor.label == created_by)

@@ -65,6 +65,8 @@ def world(app, client, session):
     m = client.post(f"/api/v1/batches/{batch}/measurements", data={"kind": "pe_loop"},
                     files={"file": ("m.csv", loop_bytes(77), "text/csv")}, headers=writer)
     assert m.status_code == 201, m.text
+    freeze = client.post("/api/v1/freezes", json={"name": "matrix freeze", "compounds": [code]}, headers=writer)
+    assert freeze.status_code == 201, freeze.text
     # Sacrificial targets for the admin endpoints, so the positive controls revoke nothing we use.
     make_user(session, name="spare-user", role="viewer")
     spare, _ = accounts.create_token(session=session, name="spare-pc", scope="read", actor="test")
@@ -77,7 +79,10 @@ def world(app, client, session):
     yield {
         "params": {"code": code, "batch_code": batch, "job_id": job.json()["job"], "measurement_id": m.json()["id"],
                    "sample_code": m.json()["sample"],
-                   "username": "spare-user", "token_id": spare.id, "name": "no-such-profile", "reagent_id": 1},
+                   "username": "spare-user", "token_id": spare.id, "name": "no-such-profile", "reagent_id": 1,
+                   # No such comment: only its author or an admin may change one (tests/api/test_comments.py),
+                   # so the matrix's positive controls aim past that rule and test the access table alone.
+                   "comment_id": 999999, "freeze_id": freeze.json()["id"]},
         "code": code,
         "batch": batch,
         # The read token is granted the embargo (it is the positive control of the embargo tests).
@@ -262,7 +267,8 @@ WEB_READ = {("GET", p) for p in (
     "/compounds", "/compounds/export.{fmt}", "/compounds/{code}", "/compounds/{code}/timeline",
     "/compounds/{code}/rates", "/scaffolds", "/measurements/{measurement_id}", "/explorer", "/outcomes",
     "/calibration", "/jobs/{job_id}/panel", "/queue", "/digest", "/digest.md", "/compare",
-    "/compare.{fmt}", "/samples/{code}", "/planning", "/planning/routes/{batch_code}", "/planning/reagents")}
+    "/compare.{fmt}", "/samples/{code}", "/planning", "/planning/routes/{batch_code}", "/planning/reagents",
+    "/freezes", "/freezes/{freeze_id}")}
 WEB_WRITE = {("GET", "/compounds/new"), ("POST", "/compounds/preview"), ("POST", "/compounds/new"),
              ("POST", "/compounds/{code}/edit"), ("POST", "/compounds/{code}/archive"),
              ("POST", "/compounds/{code}/barriers"), ("POST", "/compounds/{code}/estimate"),
@@ -272,7 +278,11 @@ WEB_WRITE = {("GET", "/compounds/new"), ("POST", "/compounds/preview"), ("POST",
              ("POST", "/measurements/{measurement_id}/revise"), ("POST", "/measurements/{measurement_id}/archive"),
              ("POST", "/planning/{code}/claim"), ("POST", "/planning/routes/{batch_code}/steps"),
              ("POST", "/planning/routes/{batch_code}/precursors"), ("POST", "/planning/routes/{batch_code}/copy"),
-             ("POST", "/planning/reagents")}
+             ("POST", "/planning/reagents"),
+             ("POST", "/compounds/{code}/comments"), ("POST", "/batches/{code}/comments"),
+             ("POST", "/samples/{code}/comments"), ("POST", "/measurements/{measurement_id}/comments"),
+             ("POST", "/comments/{comment_id}/edit"), ("POST", "/comments/{comment_id}/archive"),
+             ("POST", "/freezes"), ("POST", "/freezes/{freeze_id}/publication")}
 WEB_ADMIN = {("POST", "/compounds/{code}/verdict"), ("POST", "/status/public"), ("GET", "/admin"),
              ("POST", "/admin/users"), ("POST", "/admin/users/{username}/deactivate"), ("POST", "/admin/tokens"),
              ("POST", "/admin/tokens/{token_id}/revoke")}

@@ -85,10 +85,12 @@ def _build(settings, which: str) -> tuple[dict, dict]:  # noqa: ANN001
                 r = client.post("/api/v1/scaffolds", json={"code": code, "name": f"{bridge} bowl",
                                                            "smiles": PARENT_BOWLS[bridge]}, headers=w)
                 assert r.status_code == 201, r.text
+            open_codes = []
             for n in (2, 6):
                 r = client.post("/api/v1/compounds", json={"scaffold": "BWL-C", "label": f"open C{n}",
                                                            "side_chain": {"kind": "alkoxy", "carbons": n}}, headers=w)
                 assert r.status_code == 201, r.text
+                open_codes.append(r.json()["code"])
             r = client.post("/api/v1/compounds", json={**WORLDS[which], "embargoed": True}, headers=w)
             assert r.status_code == 201, r.text
             secret = r.json()
@@ -113,10 +115,28 @@ def _build(settings, which: str) -> tuple[dict, dict]:  # noqa: ANN001
             row.result = {"smiles_used": comp.smiles, "barrier_kcal_mol": comp.mw / 50.0, "bowl_depth_A": 0.9}
             session.add(row)
             session.commit()
-            params = {"code": code, "batch_code": batch["code"], "measurement_id": dsc.json()["id"],
+            # Comments on the compound, its batch, sample and measurement that give the structure away.
+            sample = pe.json()["sample"]
+            comment_ids = []
+            for plural, ref in (("compounds", code), ("batches", batch["code"]), ("samples", sample),
+                                ("measurements", dsc.json()["id"])):
+                r = client.post(f"/api/v1/{plural}/{ref}/comments", headers=w,
+                                json={"body": f"**{WORLDS[which]['label']}**: {WORLDS[which]['notes']}"})
+                assert r.status_code == 201, r.text
+                comment_ids.append(r.json()["id"])
+            # A paper freeze holding the embargoed compound beside an open one (issue 23).
+            fz = client.post("/api/v1/freezes", json={"name": "bowl-chains manuscript",
+                                                      "compounds": [open_codes[0], code]}, headers=w)
+            assert fz.status_code == 201, fz.text
+            params = {"freeze_id": fz.json()["id"], "code": code, "batch_code": batch["code"],
+                      "measurement_id": dsc.json()["id"],
+                      "sample_code": sample, "comment_id": comment_ids[0],
                       "job_id": row.id, "fmt": "csv", "kind": "dsc", "scaffold": "BWL-S"}
             info = {"code": code, "pe": pe.json()["id"], "dsc": dsc.json()["id"], "secret": secret,
-                    "mw": comp.mw, "formula": comp.formula, "up": up}
+                    "mw": comp.mw, "formula": comp.formula, "up": up,
+                    "comments": [client.get(f"/api/v1/{p}/{r}/comments", headers=w).json()["items"][0]["body"]
+                                 for p, r in (("compounds", code), ("batches", batch["code"]), ("samples", sample),
+                                              ("measurements", dsc.json()["id"]))]}
             for path in sorted(_get_routes(app)):
                 url = _url(path, params)
                 queries = VIEW_QUERIES if path in VIEW_ROUTES else ("",)
@@ -156,6 +176,10 @@ def _url(path: str, params: dict) -> str:
     url = re.sub(r"\{(\w+)(:\w+)?\}", lambda m: str(params.get(m.group(1), "1")), path)
     if path.startswith("/batches/{code}"):
         url = url.replace(f"/batches/{params['code']}/", f"/batches/{params['batch_code']}/")
+    if path.startswith("/api/v1/batches/{code}/comments"):
+        url = url.replace(f"/batches/{params['code']}/", f"/batches/{params['batch_code']}/")
+    if path.startswith("/samples/{code}"):
+        url = url.replace(f"/samples/{params['code']}", f"/samples/{params['sample_code']}")
     return url
 
 
@@ -166,6 +190,7 @@ def test_no_answer_depends_on_an_embargoed_structure(settings, db_url, sqlite_te
     # The worlds really differ, so the comparison below can fail (and a member would see the difference).
     assert info_a["code"] == info_b["code"] and info_a["mw"] != info_b["mw"]
     assert info_a["formula"] != info_b["formula"] and info_a["secret"]["scaffold"] != info_b["secret"]["scaffold"]
+    assert all(ca != cb for ca, cb in zip(info_a["comments"], info_b["comments"], strict=True))  # a member sees them
     assert a.keys() == b.keys() and len(a) > 150, len(a)
     differ = sorted(k for k in a if a[k] != b[k])
     assert not differ, f"{len(differ)} answers depend on the embargoed structure, e.g.:\n" + "\n".join(differ[:40])

@@ -119,6 +119,31 @@ def _requests(code: str, batch: str) -> list[tuple[str, str, dict]]:
         ("GET", "/api/v1/measurements/1/figure.svg", {}),
         ("GET", f"/api/v1/compounds/{code}/figures/switching.svg", {}),
         ("GET", f"/api/v1/compounds/{code}/report.zip", {}),
+        # Comment threads (issue 23).
+        ("POST", f"/api/v1/compounds/{code}/comments", {"json": {"body": "**first** @admin1"}}),
+        ("POST", f"/api/v1/compounds/{code}/comments", {"json": {"body": ""}}),  # 422
+        ("GET", f"/api/v1/compounds/{code}/comments", {}),
+        ("POST", f"/api/v1/batches/{batch}/comments", {"json": {"body": "batch note"}}),
+        ("GET", f"/api/v1/batches/{batch}/comments", {}),
+        ("POST", f"/api/v1/samples/{batch}-S01/comments", {"json": {"body": "sample note"}}),
+        ("GET", f"/api/v1/samples/{batch}-S01/comments", {}),
+        ("POST", "/api/v1/measurements/1/comments", {"json": {"body": "loop note"}}),
+        ("GET", "/api/v1/measurements/1/comments", {}),
+        ("GET", "/api/v1/measurements/999/comments", {}),  # 404
+        ("PATCH", "/api/v1/comments/1", {"json": {"body": "**first**, edited"}}),
+        ("GET", "/api/v1/comments/1/history", {}),
+        ("POST", "/api/v1/comments/1/archive", {}),
+        ("POST", "/api/v1/comments/1/restore", {}),
+        # Paper freezes (issue 23).
+        ("POST", "/api/v1/freezes", {"json": {"name": "bowl-chains manuscript", "compounds": [code]}}),
+        ("POST", "/api/v1/freezes", {"json": {"name": "bowl-chains manuscript", "compounds": [code]}}),  # 409
+        ("POST", "/api/v1/freezes", {"json": {"name": "other", "compounds": ["RVZ-99999"]}}),  # 422
+        ("GET", "/api/v1/freezes", {}),
+        ("GET", "/api/v1/freezes/1", {}),
+        ("GET", "/api/v1/freezes/99", {}),  # 404
+        ("POST", "/api/v1/freezes/1/publication", {"json": {"dataset_doi": "10.5281/zenodo.1234567"}}),
+        ("POST", "/api/v1/freezes/1/publication", {"json": {"dataset_doi": "nope"}}),  # 422
+        ("GET", "/api/v1/freezes/1/pack.zip", {}),
         ("POST", "/api/v1/measurements/1/revise", {"data": {"thickness": "300 um"}}),
         # Planning (issue 20): a target, its state, the ranking (too few data here), a bad goal.
         ("POST", "/api/v1/compounds", {"json": {"smiles": "CCCOc1ccc(OCCC)cc1", "state": "planned", "priority": 1,

@@ -1,0 +1,102 @@
+"""Working together: comment threads on compounds, batches, samples and measurements."""
+
+from __future__ import annotations
+
+from datetime import datetime
+from typing import Any, Optional
+
+import sqlalchemy as sa
+from sqlmodel import Field, SQLModel
+
+from .types import UTCDateTime, utcnow
+
+#: What a comment can be written on; every target belongs to exactly one compound (the embargo's unit).
+COMMENT_TARGETS: tuple[str, ...] = ("compound", "batch", "sample", "measurement")
+
+
+class Comment(SQLModel, table=True):
+    """One comment, Markdown source as written (rendered safely when shown); edits keep their
+    history in the audit trail, and a comment is archived, never deleted."""
+
+    id: Optional[int] = Field(default=None, primary_key=True)
+    target: str = Field(max_length=20)  # one of COMMENT_TARGETS
+    target_id: int
+    compound_id: int = Field(foreign_key="compound.id", index=True)
+    body: str = Field(sa_type=sa.Text)
+    created_by: str = Field(max_length=160)  # the actor label, "user:alice" or "token:7 (script)"
+    author_user_id: Optional[int] = Field(default=None, foreign_key="user.id")
+    mentions: list[str] = Field(default_factory=list, sa_type=sa.JSON)  # user names resolved at the last write
+    created_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
+    edited_at: Optional[datetime] = Field(default=None, sa_type=UTCDateTime)
+    archived: bool = False
+
+    __table_args__ = (sa.Index("ix_comment_target", "target", "target_id"),)
+
+
+class CommentIn(SQLModel):
+    """``POST /api/v1/{compounds|batches|samples|measurements}/{ref}/comments`` and comment edits."""
+
+    body: str = Field(min_length=1, max_length=20000, description="Markdown; raw HTML is shown as text")
+
+
+class CommentRead(SQLModel):
+    id: int
+    target: str
+    ref: str = Field(description="the code (compound, batch, sample) or id (measurement) commented on")
+    compound: str
+    body: str
+    html: str = Field(description="the body rendered from Markdown, sanitised")
+    created_by: str
+    mentions: list[str]
+    created_at: datetime
+    edited_at: Optional[datetime]
+    archived: bool
+
+
+class CommentPage(SQLModel):
+    items: list[CommentRead]
+    withheld: bool = Field(description="true when the compound is embargoed and the caller may not see it")
+
+
+# --- paper freezes -----------------------------------------------------------------------------
+
+
+class PaperFreeze(SQLModel, table=True):
+    """A named set of compounds frozen for a paper: what the paper used, kept apart from the live rows
+    (re-analysis rewrites ``measurement.results``; the frozen copies in ``paperfreezecompound`` stay)."""
+
+    id: Optional[int] = Field(default=None, primary_key=True)
+    name: str = Field(max_length=200, unique=True)
+    created_by: str = Field(max_length=160)
+    created_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
+    dataset_doi: str = Field(default="", max_length=200)
+    # [{"number": "CCDC 2345678", "measurement": 12}]: deposited structures, each naming its crystal measurement
+    depositions: list[dict[str, Any]] = Field(default_factory=list, sa_type=sa.JSON)
+
+
+class PaperFreezeCompound(SQLModel, table=True):
+    """One compound of a freeze: its verdict then, and every live measurement then (id, raw-file
+    SHA-256, kind, analysis version, results, verdict, flag codes), copied, never updated."""
+
+    id: Optional[int] = Field(default=None, primary_key=True)
+    freeze_id: int = Field(foreign_key="paperfreeze.id", index=True)
+    compound_id: int = Field(foreign_key="compound.id", index=True)
+    verdict: dict[str, Any] = Field(default_factory=dict, sa_type=sa.JSON)
+    measurements: list[dict[str, Any]] = Field(default_factory=list, sa_type=sa.JSON)
+
+    __table_args__ = (sa.UniqueConstraint("freeze_id", "compound_id", name="uq_paperfreezecompound"),)
+
+
+class FreezeCreate(SQLModel):
+    """``POST /api/v1/freezes``."""
+
+    name: str = Field(min_length=1, max_length=200, description='e.g. "bowl-chains manuscript"')
+    compounds: list[str] = Field(min_length=1, max_length=200, description="compound codes")
+
+
+class FreezePublication(SQLModel):
+    """``POST /api/v1/freezes/{freeze_id}/publication``: what was deposited once published."""
+
+    dataset_doi: Optional[str] = Field(default=None, max_length=200, description="e.g. 10.5281/zenodo.1234567")
+    depositions: Optional[list[dict[str, Any]]] = Field(
+        default=None, max_length=200, description='[{"number": "CCDC 2345678", "measurement": 12}]')

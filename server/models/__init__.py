@@ -26,13 +26,13 @@ from .registry import (
     SideChainSpec,
 )
 from .site import SiteSetting
-from .stats import CompoundSideChain, CompoundStats
+from .stats import IDENTITY_STATES, CompoundSideChain, CompoundStats
 from .types import UTCDateTime, utcnow
 
 metadata = SQLModel.metadata
 
 __all__ = [
-    "ApiToken", "AuditEvent", "CompoundSideChain", "CompoundStats", "BATCH_STATES", "BarrierEstimate", "Batch", "BatchCreate", "BatchRead", "CodeCounter", "Compound",
+    "ApiToken", "AuditEvent", "CompoundSideChain", "CompoundStats", "IDENTITY_STATES", "BATCH_STATES", "BarrierEstimate", "Batch", "BatchCreate", "BatchRead", "CodeCounter", "Compound",
     "CompoundCreate", "CompoundPage", "CompoundRead", "CompoundUpdate", "CrystalPhase", "ScaffoldCreate",
     "ScaffoldRead", "SiteSetting", "SideChainRead", "SideChainSpec",
     "JOB_STATES", "Job", "LoginThrottle", "WebSession", "Measurement", "MeasurementSeries", "SAMPLE_FORMS", "SERIES_VARIABLES", "Sample", "SampleCreate", "SamplePreparation",

@@ -24,7 +24,7 @@ from ..access import Actor
 from ..chem.sidechains import KINDS as CHAIN_KINDS
 from ..bounds import CARBONS, MAX_ROW_ID, PAGE, whole_number
 from ..errors import InputError
-from ..models import BATCH_STATES, Compound, CompoundSideChain, CompoundStats, Scaffold
+from ..models import BATCH_STATES, IDENTITY_STATES, Compound, CompoundSideChain, CompoundStats, Scaffold
 from ..kinds import KINDS
 from ..precision import rounded
 from ..verdict_codes import CODES as VERDICT_CODES
@@ -220,6 +220,8 @@ FILTERS: tuple[Filter, ...] = (
            help="e.g. alkoxy:12, or alkoxy:2,alkoxy:12 for mixed chains"),
     Filter("batch_state", "Batch state", _choice(lambda: BATCH_STATES),
            lambda v, _: CompoundStats.batch_states.like(f"%,{v},%")),
+    Filter("identity", "Identity", _choice(lambda: IDENTITY_STATES),
+           lambda v, _: CompoundStats.identity_status == v, help="whether the live batches' identity is confirmed"),
     Filter("verdict", "Verdict", _choice(lambda: VERDICT_CODES), lambda v, _: EFFECTIVE_CODE.in_(v), multi=True),
     Filter("polar", "Polar phase", _choice(lambda: ("yes", "no", "unknown")),
            lambda v, _: {"yes": CompoundStats.polar_phase.is_(True), "no": CompoundStats.polar_phase.is_(False),
@@ -450,6 +452,7 @@ EXPORT_COLUMNS: tuple[tuple[str, Callable[[ViewRow], Any]], ...] = (
     ("molar mass (g/mol)", lambda r: r.compound.mw),
     ("side chains", lambda r: r.compound.side_chain_summary),
     ("chain carbons", lambda r: r.stats.chain_carbons if r.stats else None),
+    ("identity", lambda r: r.stats.identity_status if r.stats else "no batches"),
     ("verdict", lambda r: VERDICT_LABELS.get(r.verdict, r.verdict)),
     ("verdict code", lambda r: r.verdict),
     ("batches", lambda r: r.stats.n_batches if r.stats else 0),
@@ -509,6 +512,7 @@ def filter_choices(session: Session) -> dict[str, list[str]]:
         "bridge": sorted({b for b in session.exec(select(Scaffold.bridge)).all() if b}),
         "chain_kind": ["alkoxy", "alkylthio", "alkyl", "other"],
         "batch_state": list(BATCH_STATES),
+        "identity": list(IDENTITY_STATES),
         "verdict": list(VERDICT_CODES),
         "has": list(KINDS),
     }

@@ -30,6 +30,14 @@ def significant(value: Any, digits: int = 4) -> str:
     return str(value)
 
 
+def rounded(value: Any, digits: int = 4) -> Any:
+    """A number kept as a number, rounded to ``digits`` significant digits (the digits
+    :func:`significant` prints); None, non-finite numbers and non-numbers pass unchanged."""
+    if isinstance(value, bool) or not isinstance(value, float) or not math.isfinite(value) or value == 0:
+        return value
+    return round(value, digits - 1 - math.floor(math.log10(abs(value))))
+
+
 def with_uncertainty(value: Optional[float], err: Optional[float], digits: int = 4) -> tuple[str, str]:
     """``(value, uncertainty)`` as text, the value rounded to the last digit of the uncertainty,
     the uncertainty to :data:`UNCERTAINTY_DIGITS` significant digits (JCGM 100:2008, 7.2.6).

@@ -546,6 +546,32 @@ def hill_formula(mol: Chem.Mol) -> str:
     return formula
 
 
+def formula_runs(formula: str) -> list[tuple[str, bool]]:
+    """A formula as it is printed: runs of text, each marked True where it is subscript.
+
+    ``C33H36O6`` -> ``[("C", False), ("33", True), ("H", False), ...]``; a decimal count (a solvate's
+    ``O6.5``) stays one subscript; a middle dot and what follows a space are ordinary text, and a leading
+    count (``0.5H2O``) is a multiplier, not a subscript. A trailing charge (``+``, ``2-``) is left as text;
+    callers that print superscripts handle it.
+    """
+    runs: list[tuple[str, bool]] = []
+    for piece in re.finditer(r"(\d+(?:\.\d+)?)|([^\d]+)", formula):
+        digits, text = piece.groups()
+        if digits is not None:
+            before = formula[:piece.start()]
+            sub = bool(before) and (before[-1].isalpha() or before[-1] == ")")
+            runs.append((digits, sub))
+        else:
+            runs.append((text, False))
+    merged: list[tuple[str, bool]] = []
+    for text, sub in runs:
+        if merged and merged[-1][1] == sub:
+            merged[-1] = (merged[-1][0] + text, sub)
+        else:
+            merged.append((text, sub))
+    return merged
+
+
 def identify(mol: Chem.Mol) -> Identity:
     """Canonical identifiers and masses of a sanitised molecule.
 

@@ -30,13 +30,13 @@ from .registry import (
 from .planning import (LIFE_STATES, PLAN_STATES, PRIORITIES, BatchPrecursor, CompoundPlan, RankingRead, Reagent,
                        ReagentCreate, ReagentRead, ReagentUpdate, RouteCopy, RouteIn, RouteRead, SynthesisStep)
 from .site import SiteSetting
-from .stats import CompoundSideChain, CompoundStats
+from .stats import IDENTITY_STATES, CompoundSideChain, CompoundStats
 from .types import UTCDateTime, utcnow
 
 metadata = SQLModel.metadata
 
 __all__ = [
-    "ApiToken", "AuditEvent", "COMMENT_TARGETS", "Comment", "CommentIn", "CommentPage", "CommentRead", "FreezeCreate", "FreezePublication", "PaperFreeze", "PaperFreezeCompound", "CompoundSideChain", "CompoundStats", "BATCH_STATES", "BarrierEstimate", "Batch", "BatchCreate", "BatchRead", "CodeCounter", "Compound",
+    "ApiToken", "AuditEvent", "COMMENT_TARGETS", "Comment", "CommentIn", "CommentPage", "CommentRead", "FreezeCreate", "FreezePublication", "PaperFreeze", "PaperFreezeCompound", "CompoundSideChain", "CompoundStats", "IDENTITY_STATES", "BATCH_STATES", "BarrierEstimate", "Batch", "BatchCreate", "BatchRead", "CodeCounter", "Compound",
     "CompoundCreate", "CompoundPage", "CompoundRead", "CompoundUpdate", "CrystalPhase", "ScaffoldCreate",
     "ScaffoldRead", "SiteSetting", "SideChainRead", "SideChainSpec",
     "ImportProfile", "JOB_STATES", "Job", "LoginThrottle", "WebSession", "Measurement", "MeasurementSeries", "SAMPLE_FORMS", "SERIES_VARIABLES", "Sample", "SampleCreate", "SamplePreparation",

@@ -86,6 +86,12 @@ class Batch(SQLModel, table=True):
     archived: bool = False
     created_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
     created_by: str = Field(default="", max_length=120)
+    # "identity confirmed": a member's judgement on the batch's identity evidence (services/identity.py);
+    # every confirmation and withdrawal is an AuditEvent, these columns hold the current state.
+    identity_confirmed: bool = False
+    identity_confirmed_at: Optional[datetime] = Field(default=None, sa_type=UTCDateTime)
+    identity_confirmed_by: str = Field(default="", max_length=120)
+    identity_note: str = Field(default="", sa_type=sa.Text)
 
     __table_args__ = (sa.UniqueConstraint("compound_id", "seq", name="uq_batch_compound_seq"),)
 
@@ -190,6 +196,7 @@ class BatchRead(SQLModel):
     notes: str
     archived: bool
     created_at: datetime
+    identity_confirmed: bool = False
     measurements: int = 0
 
 

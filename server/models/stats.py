@@ -26,12 +26,18 @@ class CompoundSideChain(SQLModel, table=True):
     count: int = 1
 
 
+#: A compound's identity status over its live batches (the registry's column and filter).
+IDENTITY_STATES: tuple[str, ...] = ("confirmed", "partly confirmed", "unconfirmed", "no batches")
+
+
 class CompoundStats(SQLModel, table=True):
     compound_id: int = Field(foreign_key="compound.id", primary_key=True)
     n_batches: int = 0
     n_measurements: int = 0
     kinds: str = Field(default="", max_length=200)  # ",pe_loop,dsc," for LIKE filters
     batch_states: str = Field(default="", max_length=200)  # ",made,failed,"
+    # IDENTITY_STATES: whether the live batches' identity is confirmed (all, some, none, no batches)
+    identity_status: str = Field(default="no batches", max_length=20, index=True)
     chain_kind: str = Field(default="", max_length=20, index=True)  # the most frequent side-chain kind
     chain_carbons: Optional[int] = Field(default=None, index=True)  # carbons of that chain
     chain_carbons_min: Optional[int] = None

@@ -7,6 +7,10 @@ CSV injection (OWASP Foundation, "CSV Injection", owasp.org/www-community/attack
 every *text* cell starting with one of those characters is written with a single quote in
 front, which makes it plain text. Numbers stay numbers: a negative value in a numeric column
 is written as a number, never as text. Every export goes through :func:`table_bytes`.
+
+Chemical formulas (the columns named in ``formula_columns``) are written as plain text in CSV
+(``C33H36O6``) and with subscripts as XLSX rich text; the column header says which
+(:data:`FORMULA_HEADERS`).
 """
 
 from __future__ import annotations
@@ -14,8 +18,12 @@ from __future__ import annotations
 import io
 from typing import Any
 
+import openpyxl
 import pandas as pd
+from openpyxl.cell.rich_text import CellRichText, TextBlock
+from openpyxl.cell.text import InlineFont
 
+from ..chem.identity import formula_runs
 from ..errors import InputError
 
 FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
@@ -23,6 +31,16 @@ MEDIA_TYPES = {
     "csv": "text/csv; charset=utf-8",
     "xlsx": "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet",
 }
+
+
+#: How a formula column's header says what its cells are, by format.
+FORMULA_HEADERS = {"csv": "{name} (plain text)", "xlsx": "{name} (subscripts, rich text)"}
+_SUBSCRIPT = InlineFont(vertAlign="subscript")
+
+
+def formula_rich_text(formula: str) -> CellRichText:
+    """``C33H36O6`` as an XLSX rich-text cell with the counts as subscripts."""
+    return CellRichText([TextBlock(_SUBSCRIPT, t) if sub else t for t, sub in formula_runs(formula)])
 
 
 def neutralise(value: Any) -> Any:
@@ -41,13 +59,29 @@ def neutralise_frame(frame: pd.DataFrame) -> pd.DataFrame:
     return out
 
 
-def table_bytes(frame: pd.DataFrame, fmt: str, *, sheet: str) -> tuple[bytes, str]:
-    """``frame`` as CSV or XLSX bytes (text cells neutralised) and the media type."""
+def table_bytes(frame: pd.DataFrame, fmt: str, *, sheet: str,
+                formula_columns: tuple[str, ...] = ()) -> tuple[bytes, str]:
+    """``frame`` as CSV or XLSX bytes (text cells neutralised) and the media type; the columns in
+    ``formula_columns`` are renamed by :data:`FORMULA_HEADERS` and, in XLSX, written as rich text."""
     if fmt not in MEDIA_TYPES:
         raise InputError("export as csv or xlsx", field="format")
     safe = neutralise_frame(frame)
+    present = [c for c in formula_columns if c in safe.columns]
+    safe = safe.rename(columns={c: FORMULA_HEADERS[fmt].format(name=c) for c in present})
     if fmt == "csv":
         return safe.to_csv(index=False).encode("utf-8"), MEDIA_TYPES[fmt]
     buf = io.BytesIO()
     safe.to_excel(buf, index=False, sheet_name=sheet)
-    return buf.getvalue(), MEDIA_TYPES[fmt]
+    if not present:
+        return buf.getvalue(), MEDIA_TYPES[fmt]
+    book = openpyxl.load_workbook(io.BytesIO(buf.getvalue()), rich_text=True)
+    ws = book[sheet]
+    for c in present:
+        col = list(safe.columns).index(FORMULA_HEADERS[fmt].format(name=c)) + 1
+        for row in range(2, ws.max_row + 1):
+            cell = ws.cell(row=row, column=col)
+            if isinstance(cell.value, str) and cell.value and not cell.value.startswith("'"):
+                cell.value = formula_rich_text(cell.value)
+    out = io.BytesIO()
+    book.save(out)
+    return out.getvalue(), MEDIA_TYPES[fmt]

@@ -14,10 +14,18 @@ from typing import Any, Optional
 from sqlmodel import Session, select
 
 from .. import access
-from ..models import Batch, Compound, Measurement
+from ..chem.identity import formula_runs
+from ..errors import InputError
+from ..models import Batch, Compound, Measurement, utcnow
+from . import audit, stats
+from .accounts import shown_name, shown_text
+from .errors import Archived
 from .registry import get_batch
 
 IDENTITY_KINDS = ("hrms", "elemental")
+#: Evidence statuses under which a member may confirm a batch's identity without saying why.
+AGREEING = ("HRMS and elemental analysis agree", "partial evidence agrees")
+MAX_NOTE = 2000
 
 
 def _latest(ms: list[Measurement], kind: str) -> Optional[Measurement]:
@@ -29,7 +37,7 @@ def _latest(ms: list[Measurement], kind: str) -> Optional[Measurement]:
 def _formula_md(formula: str) -> str:
     """``C27H24O6.5`` -> ``C<sub>27</sub>H<sub>24</sub>O<sub>6.5</sub>``; a trailing charge as superscript."""
     body, charge = re.match(r"(.*?)([+-]\d*)?$", formula).groups()
-    out = re.sub(r"(\d+(?:\.\d+)?)", r"<sub>\1</sub>", body)
+    out = "".join(f"<sub>{t}</sub>" if sub else t for t, sub in formula_runs(body))
     return out + (f"<sup>{charge}</sup>" if charge else "")
 
 
@@ -102,7 +110,7 @@ def identity_summary(session: Session, batch: Batch, *, formula: Optional[str]) 
               "evidence contradicts the structure" if not all(passes) else
               "HRMS and elemental analysis agree" if len(passes) == 2 else "partial evidence agrees")
     out: dict[str, Any] = {"batch": batch.code, "status": status, "evidence": evidence,
-                           "si_text": None, "si_markdown": None}
+                           "identity_confirmed": batch.identity_confirmed, "si_text": None, "si_markdown": None}
     if formula is not None and passes:
         h, e = (hrms.results if hrms else None), (ea.results if ea else None)
         out["si_text"] = si_paragraph(formula, h, e)
@@ -116,4 +124,80 @@ def batch_identity(*, session: Session, code: str, actor: Optional[access.Actor]
     batch = get_batch(session, code)
     compound = session.get(Compound, batch.compound_id)
     visible = access.may_see_structure(actor, compound)
-    return identity_summary(session, batch, formula=compound.formula if visible else None)
+    out = identity_summary(session, batch, formula=compound.formula if visible else None)
+    out["confirmation"] = confirmation(batch, actor=actor, visible=visible)
+    return out
+
+
+def confirmation(batch: Batch, *, actor: Optional[access.Actor], visible: bool) -> Optional[dict[str, Any]]:
+    """Who confirmed the batch's identity, when, and why (None while unconfirmed). The note is free text
+    about the compound, so like its notes it is left out for a caller who may not see an embargoed
+    structure; names follow :func:`server.services.accounts.shown_name`."""
+    if not batch.identity_confirmed:
+        return None
+    return {"by": shown_name(batch.identity_confirmed_by, actor),
+            "at": batch.identity_confirmed_at.isoformat() if batch.identity_confirmed_at else None,
+            "note": shown_text(batch.identity_note, actor) if visible else None}
+
+
+def set_identity(*, session: Session, code: str, confirmed: bool, note: str,
+                 actor: access.Actor) -> dict[str, Any]:
+    """Confirm (``confirmed=True``) or withdraw the identity of batch ``code``; one commit, one AuditEvent
+    (``batch.identity_confirm`` / ``batch.identity_withdraw``) with the state before and after.
+
+    A member confirms on the evidence: when the stored evidence does not agree (none, or an HRMS or EA
+    that fails) the note must say what the confirmation rests on; a withdrawal always gives its reason.
+    Setting the state the batch already has changes nothing and writes no event. An archived batch -> 409.
+    """
+    batch = get_batch(session, code)
+    if batch.archived:
+        raise Archived(f"batch {code} is archived: restore it first")
+    note = (note or "").strip()
+    if len(note) > MAX_NOTE:
+        raise InputError(f"the note is longer than {MAX_NOTE} characters", field="note")
+    if batch.identity_confirmed == confirmed:
+        return batch_identity(session=session, code=code, actor=actor)
+    compound = session.get(Compound, batch.compound_id)
+    if confirmed and not note and identity_summary(session, batch, formula=None)["status"] not in AGREEING:
+        raise InputError("the stored evidence does not show the identity: say in a note what the "
+                         "confirmation rests on", field="note")
+    if not confirmed and not note:
+        raise InputError("say why the confirmation is withdrawn", field="note")
+    before = {"identity_confirmed": batch.identity_confirmed, "note": batch.identity_note}
+    batch.identity_confirmed = confirmed
+    batch.identity_confirmed_at = utcnow() if confirmed else None
+    batch.identity_confirmed_by = actor.label if confirmed else ""
+    batch.identity_note = note if confirmed else ""
+    session.add(batch)
+    audit.record(session, actor=actor.label, action="batch.identity_confirm" if confirmed else "batch.identity_withdraw",
+                 entity="batch", code=batch.code, compound_id=compound.id, before=before,
+                 after={"identity_confirmed": confirmed, "note": note})
+    stats.refresh(session, compound)
+    session.commit()
+    session.refresh(batch)
+    return batch_identity(session=session, code=code, actor=actor)
+
+
+def batch_page(*, session: Session, code: str, actor: Optional[access.Actor]) -> dict[str, Any]:
+    """Everything the batch page shows: the batch, its compound's code, the identity summary with its
+    confirmation, and the history of confirmations and withdrawals (newest first). For a caller who may
+    not see an embargoed structure the batch notes and the confirmation notes are left out, as the
+    compound's notes are."""
+    from ..models import AuditEvent
+
+    batch = get_batch(session, code)
+    compound = session.get(Compound, batch.compound_id)
+    visible = access.may_see_structure(actor, compound)
+    events = session.exec(select(AuditEvent).where(
+        AuditEvent.entity == "batch", AuditEvent.entity_code == batch.code,
+        AuditEvent.action.in_(("batch.identity_confirm", "batch.identity_withdraw")))
+        .order_by(AuditEvent.id.desc())).all()
+    history = [{"at": e.at, "confirmed": e.action == "batch.identity_confirm", "by": shown_name(e.actor, actor),
+                "note": shown_text((e.after or {}).get("note", ""), actor) if visible else None} for e in events]
+    n_physical = session.exec(select(Measurement.id).where(
+        Measurement.batch_id == batch.id, Measurement.kind.not_in(IDENTITY_KINDS),
+        Measurement.archived == False)).all()  # noqa: E712
+    return {"batch": batch, "compound_code": compound.code, "visible": visible,
+            "notes": batch.notes if visible else None,
+            "identity": batch_identity(session=session, code=code, actor=actor), "history": history,
+            "physical_measurements": len(n_physical), "agreeing": AGREEING}

@@ -51,6 +51,9 @@ def refresh(session: Session, compound: Compound) -> CompoundStats:
     stats.n_batches = len(batches)
     states = sorted({b.state for b in batches})
     stats.batch_states = "," + ",".join(states) + "," if states else ""
+    confirmed = sum(b.identity_confirmed for b in batches)
+    stats.identity_status = ("no batches" if not batches else "confirmed" if confirmed == len(batches)
+                             else "partly confirmed" if confirmed else "unconfirmed")
     stats.yield_best_pct = _max(b.yield_pct for b in batches)
     stats.purity_best_pct = _max(b.purity_pct for b in batches)
     plan = session.get(CompoundPlan, cid)

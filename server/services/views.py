@@ -24,9 +24,11 @@ from ..access import Actor
 from ..chem.sidechains import KINDS as CHAIN_KINDS
 from ..bounds import CARBONS, MAX_ROW_ID, PAGE, whole_number
 from ..errors import InputError
-from ..models import BATCH_STATES, LIFE_STATES, Compound, CompoundSideChain, CompoundStats, Scaffold
+from ..models import BATCH_STATES, IDENTITY_STATES, LIFE_STATES, Compound, CompoundSideChain, CompoundStats, Scaffold
 from ..kinds import KINDS
+from ..precision import rounded
 from ..verdict_codes import CODES as VERDICT_CODES
+from ..verdict_codes import LABELS as VERDICT_LABELS
 from .verdicts import EFFECTIVE_CODE, effective_code
 
 
@@ -220,6 +222,8 @@ FILTERS: tuple[Filter, ...] = (
            lambda v, _: CompoundStats.batch_states.like(f"%,{v},%")),
     Filter("state", "Life state", _choice(lambda: LIFE_STATES), lambda v, _: CompoundStats.life_state.in_(v),
            multi=True),
+    Filter("identity", "Identity", _choice(lambda: IDENTITY_STATES),
+           lambda v, _: CompoundStats.identity_status == v, help="whether the live batches' identity is confirmed"),
     Filter("verdict", "Verdict", _choice(lambda: VERDICT_CODES), lambda v, _: EFFECTIVE_CODE.in_(v), multi=True),
     Filter("polar", "Polar phase", _choice(lambda: ("yes", "no", "unknown")),
            lambda v, _: {"yes": CompoundStats.polar_phase.is_(True), "no": CompoundStats.polar_phase.is_(False),
@@ -450,7 +454,9 @@ EXPORT_COLUMNS: tuple[tuple[str, Callable[[ViewRow], Any]], ...] = (
     ("molar mass (g/mol)", lambda r: r.compound.mw),
     ("side chains", lambda r: r.compound.side_chain_summary),
     ("chain carbons", lambda r: r.stats.chain_carbons if r.stats else None),
-    ("verdict", lambda r: r.verdict),
+    ("identity", lambda r: r.stats.identity_status if r.stats else "no batches"),
+    ("verdict", lambda r: VERDICT_LABELS.get(r.verdict, r.verdict)),
+    ("verdict code", lambda r: r.verdict),
     ("state", lambda r: r.stats.life_state if r.stats else "registered"),
     ("batches", lambda r: r.stats.n_batches if r.stats else 0),
     ("measurements", lambda r: r.stats.n_measurements if r.stats else 0),
@@ -469,6 +475,20 @@ EXPORT_COLUMNS: tuple[tuple[str, Callable[[ViewRow], Any]], ...] = (
 )
 
 
+#: Significant digits each numeric export column is written with, the digits the pages print (barriers and
+#: temperatures four; Pr, Ec, Curie constant, bowl depth three); the molar mass to 0.01 g/mol, as papers print it.
+EXPORT_DECIMALS: dict[str, int] = {"molar mass (g/mol)": 2}
+EXPORT_DIGITS: dict[str, int] = {
+    "barrier measured (kcal/mol)": 4, "barrier computed (kcal/mol)": 4,
+    "bowl depth (A)": 3, "Pr largest (uC/cm^2)": 3, "Pr largest at T (K)": 4,
+    "Pr largest at field amplitude (kV/cm)": 3, "Ec of that loop (kV/cm)": 3, "permittivity peak T (K)": 4,
+    "Curie constant (K)": 3, "DSC transition T (K)": 4,
+}
+
+#: Columns holding a chemical formula: subscripts in XLSX rich text, plain in CSV (exports.table_bytes).
+EXPORT_FORMULA_COLUMNS = ("formula",)
+
+
 # What an export leaves empty for an embargoed row and a caller who may not see it: the structure and
 # everything derived from it (scaffold, side chains, masses, xtb results computed from the structure).
 EXPORT_STRUCTURAL_COLUMNS = ("label", "scaffold", "smiles", "inchikey", "formula", "molar mass (g/mol)",
@@ -476,10 +496,13 @@ EXPORT_STRUCTURAL_COLUMNS = ("label", "scaffold", "smiles", "inchikey", "formula
 
 
 def export_frame(result: ViewResult, *, actor: Optional[Actor]) -> pd.DataFrame:
-    """The rows as a table; what ``actor`` may not see of an embargoed compound is left empty."""
+    """The rows as a table at display precision (:data:`EXPORT_DIGITS`, :data:`EXPORT_DECIMALS`), the verdict as its label with the
+    code in ``verdict code``; what ``actor`` may not see of an embargoed compound is left empty."""
     records = []
     for r in result.rows:
         rec = {name: get(r) for name, get in EXPORT_COLUMNS}
+        rec.update({name: rounded(rec[name], d) for name, d in EXPORT_DIGITS.items()})
+        rec.update({name: round(rec[name], d) for name, d in EXPORT_DECIMALS.items() if rec[name] is not None})
         if not access.may_see_structure(actor, r.compound):
             rec.update({name: None for name in EXPORT_STRUCTURAL_COLUMNS})
         records.append(rec)
@@ -493,6 +516,7 @@ def filter_choices(session: Session) -> dict[str, list[str]]:
         "chain_kind": ["alkoxy", "alkylthio", "alkyl", "other"],
         "batch_state": list(BATCH_STATES),
         "state": list(LIFE_STATES),
+        "identity": list(IDENTITY_STATES),
         "verdict": list(VERDICT_CODES),
         "has": list(KINDS),
     }

@@ -1,4 +1,5 @@
-"""Batch pages: the form that records a new batch of a compound."""
+"""Batch pages: the form that records a new batch of a compound; the batch page (identity evidence, its SI
+paragraph, and the member's confirmation)."""
 
 from __future__ import annotations
 
@@ -9,10 +10,10 @@ from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse
 from pydantic import ValidationError
 
-from ..deps import PageWriter, SessionDep
+from ..deps import PageActor, PageWriter, SessionDep
 from ..errors import InputError
 from ..models import BATCH_STATES, BatchCreate
-from ..services import registry
+from ..services import identity, registry
 from .render import redirect, render
 
 router = APIRouter(include_in_schema=False)
@@ -65,3 +66,26 @@ async def batch_create(code: str, request: Request, session: SessionDep, actor: 
                       {"c": compound, "form": form, "error": str(exc), "states": BATCH_STATES},
                       status_code=422, actor=actor)
     return redirect(f"/compounds/{quote(code)}", request)
+
+
+
+@router.get("/batches/{code}", response_class=HTMLResponse)
+def batch_page(code: str, request: Request, session: SessionDep, actor: PageActor):
+    return render(request, "pages/batch.html", {**identity.batch_page(session=session, code=code, actor=actor),
+                                                "error": None}, actor=actor)
+
+
+@router.post("/batches/{code}/identity", response_class=HTMLResponse)
+async def batch_identity_set(code: str, request: Request, session: SessionDep, actor: PageWriter):
+    """The confirm / withdraw form (``action`` = ``confirm`` or ``withdraw``, ``note``)."""
+    form = await request.form()
+    action, note = str(form.get("action", "")), str(form.get("note", ""))
+    try:
+        if action not in ("confirm", "withdraw"):
+            raise InputError("action must be confirm or withdraw", field="action")
+        identity.set_identity(session=session, code=code, confirmed=action == "confirm", note=note, actor=actor)
+    except InputError as exc:
+        return render(request, "pages/batch.html",
+                      {**identity.batch_page(session=session, code=code, actor=actor), "error": str(exc),
+                       "note": note}, status_code=422, actor=actor)
+    return redirect(f"/batches/{quote(code)}", request)

@@ -59,7 +59,7 @@ def compound_export(fmt: str, request: Request, session: SessionDep, actor: Page
     """The current view (all pages) as CSV or XLSX, units in the column headers."""
     q = views.parse_view(request.query_params)
     frame = views.export_frame(views.query_view(session, q, actor=actor, paged=False), actor=actor)
-    body, media = exports.table_bytes(frame, fmt, sheet="compounds")
+    body, media = exports.table_bytes(frame, fmt, sheet="compounds", formula_columns=views.EXPORT_FORMULA_COLUMNS)
     return Response(body, media_type=media,
                     headers={"Content-Disposition": f'attachment; filename="remanence-compounds.{fmt}"'})
 

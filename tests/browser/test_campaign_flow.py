@@ -263,9 +263,9 @@ def test_export_csv_matches_the_table(page: Page, member, campaign):
     # Gutowsky-Holm check value (docs/methods.md): Tc 298.15 K, dnu 100 Hz -> 59.629 kJ/mol / 4.184 = 14.2517 kcal/mol.
     assert float(by_code[campaign.code["a_c6"]]["barrier measured (kcal/mol)"]) == pytest.approx(14.2517, abs=2e-3)
     # Hand count: CH2 bowl C21H12 with 6 H replaced by O-C6H13 -> C57H84O6.
-    assert by_code[campaign.code["a_c6"]]["formula"] == "C57H84O6"
-    assert by_code[campaign.code["a_c6"]]["verdict"] == SWITCHING
-    assert by_code[campaign.code["a_c8"]]["verdict"] == NO_SWITCHING
+    assert by_code[campaign.code["a_c6"]]["formula (plain text)"] == "C57H84O6"
+    assert by_code[campaign.code["a_c6"]]["verdict code"] == SWITCHING
+    assert by_code[campaign.code["a_c8"]]["verdict code"] == NO_SWITCHING
 
 
 # --- the public status page --------------------------------------------------------------------

@@ -51,3 +51,47 @@ def test_the_registry_export_writes_no_live_formula(client, session, settings):
     assert all(c.data_type == "s" for row in ws.iter_rows() for c in row if c.value is not None
                and not isinstance(c.value, (int, float)))
     assert not any(c.data_type == "f" for row in ws.iter_rows() for c in row)
+
+
+# --- exports fit for papers (issue 19, item 4) ---------------------------------------------------
+
+
+def test_formula_runs_mark_counts_as_subscripts_and_keep_multipliers_plain():
+    from server.chem.identity import formula_runs
+
+    assert formula_runs("C33H36O6") == [("C", False), ("33", True), ("H", False), ("36", True), ("O", False),
+                                        ("6", True)]
+    # A solvate multiplier after the middle dot is ordinary text; its own counts are subscripts.
+    assert formula_runs("C27H24O6·0.5H2O")[-4:] == [("6", True), ("·0.5H", False), ("2", True), ("O", False)]
+
+
+def test_rounded_keeps_numbers_and_their_significant_digits():
+    from server.precision import rounded
+
+    assert rounded(14.25172, 4) == 14.25 and rounded(1234.5678, 6) == 1234.57 and rounded(0.0123456, 3) == 0.0123
+    assert rounded(None, 3) is None and rounded(3, 3) == 3 and rounded(float("nan"), 3) != rounded(float("nan"), 3)
+
+
+def test_registry_export_is_fit_for_a_paper(client, session, settings):
+    login_as(client, session, "member")
+    # Hexamethoxy CH2-bridged triphenylene bowl; C27H24O6 counted by hand (21 ring/bridge C + 6 OCH3).
+    registry.register_compound(session=session, settings=settings, actor="test",
+                               data=CompoundCreate(smiles="COc1c(OC)c2c3c4c1Cc1c(OC)c(OC)c5c(c14)c1c(c(OC)c(OC)c(c31)C2)C5"))
+    rows = list(csv.DictReader(io.StringIO(client.get("/compounds/export.csv").text)))
+    row = rows[0]
+    assert row["formula (plain text)"] == "C27H24O6" and "formula" not in row
+    assert row["verdict"] == "No conclusive evidence yet" and row["verdict code"] == "untested"
+    # Molar mass of C27H24O6 from IUPAC standard atomic weights (C 12.011, H 1.008, O 15.999): 444.483 g/mol,
+    # printed to 0.01 g/mol, never as a 16-digit float.
+    assert row["molar mass (g/mol)"] == "444.48"
+    wb = openpyxl.load_workbook(io.BytesIO(client.get("/compounds/export.xlsx").content), rich_text=True)
+    ws = wb.active
+    headers = [c.value for c in ws[1]]
+    col = headers.index("formula (subscripts, rich text)")
+    cell = ws[2][col].value
+    from openpyxl.cell.rich_text import CellRichText
+
+    assert isinstance(cell, CellRichText) and str(cell) == "C27H24O6"
+    subs = [b.text for b in cell if not isinstance(b, str) and b.font.vertAlign == "subscript"]
+    assert subs == ["27", "24", "6"]
+    assert ws[2][headers.index("verdict code")].value == "untested"

@@ -268,13 +268,13 @@ WEB_READ = {("GET", p) for p in (
     "/compounds/{code}/rates", "/scaffolds", "/measurements/{measurement_id}", "/explorer", "/outcomes",
     "/calibration", "/jobs/{job_id}/panel", "/queue", "/digest", "/digest.md", "/compare",
     "/compare.{fmt}", "/samples/{code}", "/planning", "/planning/routes/{batch_code}", "/planning/reagents",
-    "/freezes", "/freezes/{freeze_id}")}
+    "/freezes", "/freezes/{freeze_id}", "/batches/{code}")}
 WEB_WRITE = {("GET", "/compounds/new"), ("POST", "/compounds/preview"), ("POST", "/compounds/new"),
              ("POST", "/compounds/{code}/edit"), ("POST", "/compounds/{code}/archive"),
              ("POST", "/compounds/{code}/barriers"), ("POST", "/compounds/{code}/estimate"),
              ("GET", "/compounds/{code}/batches/new"), ("POST", "/compounds/{code}/batches/new"),
              ("POST", "/scaffolds"), ("GET", "/batches/{code}/upload"), ("POST", "/batches/{code}/upload"),
-             ("POST", "/jobs/{job_id}/cancel"), ("POST", "/queue"),
+             ("POST", "/jobs/{job_id}/cancel"), ("POST", "/queue"), ("POST", "/batches/{code}/identity"),
              ("POST", "/measurements/{measurement_id}/revise"), ("POST", "/measurements/{measurement_id}/archive"),
              ("POST", "/planning/{code}/claim"), ("POST", "/planning/routes/{batch_code}/steps"),
              ("POST", "/planning/routes/{batch_code}/precursors"), ("POST", "/planning/routes/{batch_code}/copy"),
@@ -308,7 +308,7 @@ def web_routes(app) -> list[tuple[str, str]]:
 def web_call(c: TestClient, method: str, path: str, params: dict, headers: dict | None = None):
     url = re.sub(r"\{(\w+)\}", lambda m: str(params[m.group(1)]), path)
     if path.startswith("/batches/{code}"):
-        url = url.replace(f"/batches/{params['code']}/", f"/batches/{params['batch_code']}/")
+        url = re.sub(r"^/batches/[^/]+", f"/batches/{params['batch_code']}", url)
     if path.startswith("/samples/{code}"):
         url = url.replace(f"/samples/{params['code']}", f"/samples/{params['sample_code']}")
     return c.request(method, url, data={} if method == "POST" else None, headers=headers or {},

@@ -175,7 +175,7 @@ def _get_routes(app) -> set[str]:  # noqa: ANN001
 def _url(path: str, params: dict) -> str:
     url = re.sub(r"\{(\w+)(:\w+)?\}", lambda m: str(params.get(m.group(1), "1")), path)
     if path.startswith("/batches/{code}"):
-        url = url.replace(f"/batches/{params['code']}/", f"/batches/{params['batch_code']}/")
+        url = re.sub(r"^/batches/[^/]+", f"/batches/{params['batch_code']}", url)
     if path.startswith("/api/v1/batches/{code}/comments"):
         url = url.replace(f"/batches/{params['code']}/", f"/batches/{params['batch_code']}/")
     if path.startswith("/samples/{code}"):

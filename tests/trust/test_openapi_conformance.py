@@ -116,6 +116,9 @@ def _requests(code: str, batch: str) -> list[tuple[str, str, dict]]:
          {"data": {"profile": "semi"}, "files": {"file": ("semi.csv", semi, "text/csv")}}),
         # Identity and outputs (issues 17 and 19).
         ("GET", f"/api/v1/batches/{batch}/identity", {}),
+        ("POST", f"/api/v1/batches/{batch}/identity/confirm", {"json": {}}),  # no agreeing evidence, no note: 422
+        ("POST", f"/api/v1/batches/{batch}/identity/confirm", {"json": {"note": "NMR matches batch B01"}}),
+        ("POST", f"/api/v1/batches/{batch}/identity/withdraw", {"json": {"note": "EA of the dried batch fails"}}),
         ("GET", "/api/v1/measurements/1/figure.svg", {}),
         ("GET", f"/api/v1/compounds/{code}/figures/switching.svg", {}),
         ("GET", f"/api/v1/compounds/{code}/report.zip", {}),

@@ -15,7 +15,7 @@ from ...models import BatchCreate, BatchRead, CompoundCreate, CompoundPage, Comp
 from ...errors import InputError
 from ...services import accounts, identity, registry, verdicts, views
 from ...services.errors import NotFound
-from .responses import AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND
+from .responses import ARCHIVED, AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND
 
 router = APIRouter(tags=["compounds"])
 
@@ -159,6 +159,24 @@ def get_batch_identity(code: str, session: SessionDep, actor: Reader) -> dict:
     supporting-information paragraph (``si_text``, ``si_markdown``). Calculated values reveal the
     formula, so a caller who may not see an embargoed structure gets only the passes."""
     return identity.batch_identity(session=session, code=code, actor=actor)
+
+
+class IdentityNoteIn(BaseModel):
+    note: str = Field(default="", max_length=2000,
+                      description="what the confirmation rests on (required when the stored evidence does "
+                                  "not agree), or why it is withdrawn (always required)")
+
+
+@router.post("/batches/{code}/identity/confirm", responses={**AUTH_ERRORS, **NOT_FOUND, **ARCHIVED, **INPUT_ERRORS})
+def confirm_batch_identity(code: str, body: IdentityNoteIn, session: SessionDep, actor: Writer) -> dict:
+    """Set the batch state "identity confirmed" (audited); answers the batch's identity summary."""
+    return identity.set_identity(session=session, code=code, confirmed=True, note=body.note, actor=actor)
+
+
+@router.post("/batches/{code}/identity/withdraw", responses={**AUTH_ERRORS, **NOT_FOUND, **ARCHIVED, **INPUT_ERRORS})
+def withdraw_batch_identity(code: str, body: IdentityNoteIn, session: SessionDep, actor: Writer) -> dict:
+    """Withdraw the batch's identity confirmation, with the reason (audited)."""
+    return identity.set_identity(session=session, code=code, confirmed=False, note=body.note, actor=actor)
 
 
 class OverrideIn(BaseModel):

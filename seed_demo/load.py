@@ -27,7 +27,7 @@ from server.app import create_app
 from server.services import accounts
 from server.settings import Settings
 
-from . import instruments, scenario
+from . import instruments, phase_id, scenario
 from .scenario import DS_ACT_J_MOLK, CompoundPlan
 
 #: Password of the extra demo accounts (the admin 'demo' gets its own from the CLI).
@@ -51,6 +51,7 @@ class LoadReport:
     samples: list[str] = field(default_factory=list)  # codes of the described samples
     specimen_loops: int = 0  # live loops on them (beside the scenario's measurements)
     corrected: list[tuple[int, int]] = field(default_factory=list)  # (old id, correction id)
+    phase_id: dict[str, int] = field(default_factory=dict)  # pxrd / saxs / shg files (seed_demo/phase_id.py)
     seconds: float = 0.0
 
 
@@ -187,6 +188,7 @@ def load(settings: Settings, *, scale: float = 1.0, echo: Callable[[str], None] 
                 _progress("measurements", done, plan.measurements, echo)
 
         _load_specimens(client, writer, upload_secrets, plan, report, batch_codes, echo)
+        report.phase_id = phase_id.load(client, writer, plan, batch_codes, echo).uploads
         _load_barriers(client, writer, plan, report, echo)
         _queue_estimates(client, writer, plan, report, echo)
 

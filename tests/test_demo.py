@@ -62,8 +62,9 @@ def _check_against_scenario(report, client, reader, plan: scenario.Scenario) -> 
     assert embargoed == {code for code, c in by_code.items() if c.embargoed}
 
     everything = _all_measurements(client, reader)
-    assert len(everything) == plan.measurements + report.specimen_loops
-    items = [m for m in everything if m["sample"] not in report.samples]  # the scenario's own files
+    assert len(everything) == plan.measurements + report.specimen_loops + sum(report.phase_id.values())
+    # the scenario's own files (not the described samples' loops, not seed_demo/phase_id.py's files)
+    items = [m for m in everything if m["sample"] not in report.samples and m["kind"] not in report.phase_id]
     assert len(items) == plan.measurements
     seen = {"ferroelectric": 0, "lossy": 0, "polar_xtal": 0}
     for m in items:
@@ -152,6 +153,21 @@ def _check_specimens(report, client, reader, plan: scenario.Scenario) -> None:
     assert fixed["supersedes"] == old and fixed["conditions"]["thickness_um"] == pytest.approx(80.0)
 
 
+def _check_phase_id(report, client, reader) -> None:
+    """seed_demo/phase_id.py: the powder patterns match their CIFs (one shows the solvate), the VT set changes
+    phase above Tc, the long-chain compounds are hexagonal columnar, SHG runs vanish."""
+    got = [m for m in _all_measurements(client, reader) if m["kind"] in report.phase_id]
+    assert {k: sum(m["kind"] == k for m in got) for k in report.phase_id} == report.phase_id
+    full = {m["id"]: client.get(f"/api/v1/measurements/{m['id']}", headers=reader).json() for m in got}
+    pxrd = [f["results"] for f in full.values() if f["kind"] == "pxrd"]
+    assert {"matches", "extra_phase"} <= {r["verdict"] for r in pxrd}
+    # above Tc the VT set is the P2_1/c packing, which is no registered structure of the compound
+    assert "no_match" in {r["verdict"] for r in pxrd}
+    saxs = [f["results"] for f in full.values() if f["kind"] == "saxs"]
+    assert len(saxs) == 2 and all(r["lattice"] == "hexagonal" and abs(r["stacking_A"] - 3.5) < 0.05 for r in saxs)
+    assert "vanishes" in {f["results"]["verdict"] for f in full.values() if f["kind"] == "shg"}
+
+
 def test_demo_loads_and_agrees_with_scenario(settings):
     plan = scenario.build(SCALE)
     report, app, client, reader = _loaded(settings, SCALE)
@@ -161,6 +177,7 @@ def test_demo_loads_and_agrees_with_scenario(settings):
         assert sum(report.measurements.values()) == plan.measurements
         _check_against_scenario(report, client, reader, plan)
         _check_specimens(report, client, reader, plan)
+        _check_phase_id(report, client, reader)
     finally:
         client.close()
         app.state.engine.dispose()

@@ -13,7 +13,7 @@ from ..access import Actor
 from ..jobs import queue
 from ..models import Compound
 from ..plots import figure_json, summary
-from . import barriers, estimates, measurements, registry, samples, series, verdicts
+from . import barriers, estimates, measurements, phase_id, registry, samples, series, verdicts
 
 # The conditions the barrier table starts at (room temperature, the common 1 kHz of P-E loops).
 DEFAULT_T_K = 298.15
@@ -63,6 +63,7 @@ def compound_page(session: Session, compound: Compound, *, actor: Optional[Actor
         "tc_estimate": series.combine_series_tc(all_series),
         "summary_figure": figure_json(fig) if fig else None,
         "transitions": summary.transitions_table(items),
+        "phase_map": phase_id.phase_map(session, compound, actor=actor),
         "barriers": barriers.barrier_rows(session, compound, t_K=DEFAULT_T_K, frequency_Hz=DEFAULT_F_HZ),
         "t": "298.15 K", "f": "1 kHz", "t_K": DEFAULT_T_K, "f_Hz": DEFAULT_F_HZ, "rate_error": None,
         "estimates": [] if hide else estimates.estimates_of(session, compound),

@@ -28,6 +28,7 @@ from server.services import accounts
 from server.settings import Settings
 
 from . import instruments, scenario
+from . import planning as demo_planning
 from .scenario import DS_ACT_J_MOLK, CompoundPlan
 
 #: Password of the extra demo accounts (the admin 'demo' gets its own from the CLI).
@@ -51,6 +52,7 @@ class LoadReport:
     samples: list[str] = field(default_factory=list)  # codes of the described samples
     specimen_loops: int = 0  # live loops on them (beside the scenario's measurements)
     corrected: list[tuple[int, int]] = field(default_factory=list)  # (old id, correction id)
+    planning: demo_planning.PlanningReport = field(default_factory=demo_planning.PlanningReport)
     seconds: float = 0.0
 
 
@@ -159,6 +161,7 @@ def load(settings: Settings, *, scale: float = 1.0, echo: Callable[[str], None] 
                           201, f"compound {c.label}")
             report.compounds[c.index] = body["code"]
             _progress("compounds", n, total, echo)
+        demo_planning.register_targets(client, writer, report.planning)
 
         batch_codes: list[tuple[CompoundPlan, scenario.BatchPlan, str]] = []
         for c in plan.compounds:
@@ -173,6 +176,7 @@ def load(settings: Settings, *, scale: float = 1.0, echo: Callable[[str], None] 
                 _progress("batches", report.batches, plan.batches, echo)
 
         done = 0
+        checkpoints = {plan.measurements // 2: "half the measurements"}
         for c, b, bcode in batch_codes:
             for j, m in enumerate(b.measurements):
                 up = instruments.write(c, b.seq, j, m, b.chemist, bcode)
@@ -185,10 +189,14 @@ def load(settings: Settings, *, scale: float = 1.0, echo: Callable[[str], None] 
                 report.measurements[m.kind] += 1
                 done += 1
                 _progress("measurements", done, plan.measurements, echo)
+                if done in checkpoints:  # the next-to-make ranking as the campaign's data arrive
+                    demo_planning.snapshot_ranking(client, writer, report.planning, checkpoints[done])
 
         _load_specimens(client, writer, upload_secrets, plan, report, batch_codes, echo)
         _load_barriers(client, writer, plan, report, echo)
         _queue_estimates(client, writer, plan, report, echo)
+        demo_planning.snapshot_ranking(client, writer, report.planning, "all measurements")
+        demo_planning.record_routes(client, writer, report.planning, batch_codes, echo)
 
     app.state.engine.dispose()
     report.seconds = time.perf_counter() - started

@@ -11,7 +11,7 @@ from ..errors import InputError
 from ..ingest.conditions import CONDITION_EXAMPLES
 from ..kinds import KINDS, needed_by
 from ..models import SAMPLE_FORMS, Batch, Compound, SampleCreate
-from ..services import measurements, registry, samples
+from ..services import measurements, planning_pages, registry, samples
 from ..services.errors import Archived, Duplicate, Forbidden
 from .render import redirect, render
 
@@ -116,7 +116,8 @@ def _measurement_page(request: Request, session, m, actor, *, revise_error: Opti
             fig, fig_error = None, str(exc)
     return render(request, "pages/measurement.html",
                   {"m": info, "kind": kind, "figure": fig, "figure_error": fig_error, "revise_error": revise_error,
-                   "revise_fields": REVISE_FIELDS, "examples": CONDITION_EXAMPLES}, actor=actor,
+                   "revise_fields": REVISE_FIELDS, "examples": CONDITION_EXAMPLES,
+                   "heating": planning_pages.measurement_heating(session, m, actor=actor)}, actor=actor,
                   status_code=status_code)
 
 

@@ -28,6 +28,7 @@ from server.services import accounts
 from server.settings import Settings
 
 from . import instruments, phase_id, scenario
+from . import planning as demo_planning
 from .scenario import DS_ACT_J_MOLK, CompoundPlan
 
 #: Password of the extra demo accounts (the admin 'demo' gets its own from the CLI).
@@ -52,6 +53,7 @@ class LoadReport:
     specimen_loops: int = 0  # live loops on them (beside the scenario's measurements)
     corrected: list[tuple[int, int]] = field(default_factory=list)  # (old id, correction id)
     phase_id: dict[str, int] = field(default_factory=dict)  # pxrd / saxs / shg files (seed_demo/phase_id.py)
+    planning: demo_planning.PlanningReport = field(default_factory=demo_planning.PlanningReport)
     seconds: float = 0.0
 
 
@@ -160,6 +162,7 @@ def load(settings: Settings, *, scale: float = 1.0, echo: Callable[[str], None] 
                           201, f"compound {c.label}")
             report.compounds[c.index] = body["code"]
             _progress("compounds", n, total, echo)
+        demo_planning.register_targets(client, writer, report.planning)
 
         batch_codes: list[tuple[CompoundPlan, scenario.BatchPlan, str]] = []
         for c in plan.compounds:
@@ -174,6 +177,7 @@ def load(settings: Settings, *, scale: float = 1.0, echo: Callable[[str], None] 
                 _progress("batches", report.batches, plan.batches, echo)
 
         done = 0
+        checkpoints = {plan.measurements // 2: "half the measurements"}
         for c, b, bcode in batch_codes:
             for j, m in enumerate(b.measurements):
                 up = instruments.write(c, b.seq, j, m, b.chemist, bcode)
@@ -186,11 +190,15 @@ def load(settings: Settings, *, scale: float = 1.0, echo: Callable[[str], None] 
                 report.measurements[m.kind] += 1
                 done += 1
                 _progress("measurements", done, plan.measurements, echo)
+                if done in checkpoints:  # the next-to-make ranking as the campaign's data arrive
+                    demo_planning.snapshot_ranking(client, writer, report.planning, checkpoints[done])
 
         _load_specimens(client, writer, upload_secrets, plan, report, batch_codes, echo)
         report.phase_id = phase_id.load(client, writer, plan, batch_codes, echo).uploads
         _load_barriers(client, writer, plan, report, echo)
         _queue_estimates(client, writer, plan, report, echo)
+        demo_planning.snapshot_ranking(client, writer, report.planning, "all measurements")
+        demo_planning.record_routes(client, writer, report.planning, batch_codes, echo)
 
     app.state.engine.dispose()
     report.seconds = time.perf_counter() - started

@@ -56,7 +56,9 @@ def _check_against_scenario(report, client, reader, plan: scenario.Scenario) -> 
     by_index = {c.index: c for c in plan.compounds}
     by_code = {report.compounds[i]: c for i, c in by_index.items()}
     compounds = client.get("/api/v1/compounds", params={"limit": 500}, headers=reader).json()
-    assert compounds["total"] == len(plan.compounds)
+    planned = set(report.planning.targets) | set(report.planning.intermediate_compounds)  # seed_demo/planning.py
+    assert compounds["total"] == len(plan.compounds) + len(planned)
+    compounds["items"] = [c for c in compounds["items"] if c["code"] not in planned]
     assert {c["label"] for c in compounds["items"]} == {c.label for c in plan.compounds}
     embargoed = {c["code"] for c in compounds["items"] if c["embargoed"]}
     assert embargoed == {code for code, c in by_code.items() if c.embargoed}
@@ -166,6 +168,27 @@ def _check_phase_id(report, client, reader) -> None:
     saxs = [f["results"] for f in full.values() if f["kind"] == "saxs"]
     assert len(saxs) == 2 and all(r["lattice"] == "hexagonal" and abs(r["stacking_A"] - 3.5) < 0.05 for r in saxs)
     assert "vanishes" in {f["results"]["verdict"] for f in full.values() if f["kind"] == "shg"}
+def _check_planning(report, client, reader) -> None:
+    """Targets in every state, routes through shared intermediates, a ranking that moved as data arrived."""
+    from seed_demo import planning as demo_planning
+
+    states = {client.get(f"/api/v1/compounds/{code}", headers=reader).json()["state"] for code in report.planning.targets}
+    assert states == {"planned", "in_synthesis", "abandoned"}
+    assert client.get("/api/v1/compounds", params={"state": "made"}, headers=reader).json()["total"] > 0
+    assert report.planning.routes >= 2
+    downstream = [len(client.get(f"/api/v1/batches/{b}/route", headers=reader).json()["products"])
+                  for b in report.planning.intermediates]
+    assert sum(downstream) == report.planning.routes
+    names = {r["name"]: r for r in client.get("/api/v1/reagents", headers=reader).json()}
+    assert all(names[r["name"]]["hazard_data_entered"] for r in demo_planning.DEMO_REAGENTS)
+    ranks = {(m, g): codes for m, g, codes in report.planning.rankings}
+    after = ranks[("all measurements", "switch")]
+    # The ranking moved as the later measurements arrived; once the Se series is measured (no Se bowl
+    # switches in the scenario), the Se target is the least likely to switch.
+    assert ranks[("half the measurements", "switch")] != after
+    se_target = list(report.planning.targets)[[t.bowl_key for t in demo_planning.TARGETS].index("Se")]
+    assert after[-1] == se_target
+    assert sorted(after) == sorted(c for c, s in report.planning.targets.items() if s != "abandoned")
 
 
 def test_demo_loads_and_agrees_with_scenario(settings):
@@ -178,6 +201,7 @@ def test_demo_loads_and_agrees_with_scenario(settings):
         _check_against_scenario(report, client, reader, plan)
         _check_specimens(report, client, reader, plan)
         _check_phase_id(report, client, reader)
+        _check_planning(report, client, reader)
     finally:
         client.close()
         app.state.engine.dispose()

@@ -96,3 +96,19 @@ def route_page(session: Session, batch: Batch, *, actor: Optional[Actor]) -> dic
 def reagents_page(session: Session) -> dict[str, Any]:
     return {"reagents": [routes.reagent_read(r) for r in routes.list_reagents(session)],
             "pictograms": hazards.PICTOGRAMS, "no_data": hazards.NO_DATA, "defer": hazards.DEFER}
+
+
+#: Kinds whose runs heat a sample (the heating caution shows on their pages for S/Se compounds).
+HEATED_KINDS = ("dsc", "dielectric")
+
+
+def measurement_heating(session: Session, m: Measurement, *, actor: Optional[Actor]) -> Optional[dict[str, Any]]:
+    """For a DSC or permittivity run of an S- or Se-containing compound the caller may see: the heating
+    caution and the highest temperature the batch has been taken to; else None."""
+    if m.kind not in HEATED_KINDS:
+        return None
+    batch = session.get(Batch, m.batch_id)
+    compound = session.get(Compound, batch.compound_id)
+    if not may_see_structure(actor, compound) or not hazards.formula_has_chalcogen(compound.formula):
+        return None
+    return {"text": hazards.HEATING_CHALCOGEN, "batch": batch.code, "highest_K": highest_temperature_K(session, batch)}

@@ -11,7 +11,7 @@ from ..errors import InputError
 from ..ingest.conditions import CONDITION_EXAMPLES
 from ..kinds import KINDS, needed_by
 from ..models import SAMPLE_FORMS, Batch, Compound, SampleCreate
-from ..services import comments, measurements, registry, samples
+from ..services import comments, measurements, planning_pages, registry, samples
 from ..services.errors import Archived, Duplicate, Forbidden
 from .render import redirect, render
 
@@ -117,7 +117,8 @@ def _measurement_page(request: Request, session, m, actor, *, revise_error: Opti
     return render(request, "pages/measurement.html",
                   {"m": info, "kind": kind, "figure": fig, "figure_error": fig_error, "revise_error": revise_error,
                    "revise_fields": REVISE_FIELDS, "examples": CONDITION_EXAMPLES,
-                   "thread": comments.thread_panel(session, comments.resolve(session, "measurement", str(m.id)), actor=actor)}, actor=actor,
+                   "thread": comments.thread_panel(session, comments.resolve(session, "measurement", str(m.id)), actor=actor),
+                   "heating": planning_pages.measurement_heating(session, m, actor=actor)}, actor=actor,
                   status_code=status_code)
 
 

@@ -19,7 +19,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from server.analysis import calibration, crystal, dielectric, dsc, hysteresis, kinetics, pund, verdict, xtb
+from server.analysis import calibration, crystal, dielectric, dsc, hysteresis, kinetics, prediction, pund, verdict, xtb
 from server.analysis.results import Flag, Result
 
 PINS = Path(__file__).with_name("result_json_pins.json")
@@ -29,6 +29,7 @@ RESULT_TYPES = (
     dielectric.DielectricPeak, dielectric.DielectricResult, dsc.DscPeak, dsc.DscSegment, dsc.DscResult,
     xtb.XtbEstimate, kinetics.CoalescenceResult, kinetics.EyringFit, kinetics.RateSummary,
     kinetics.ImportedBarrier, verdict.UsedEvidence, verdict.Conflict, verdict.CompoundVerdict,
+    prediction.RegressionResult, prediction.ClassificationResult,
 )
 # Values a type needs to exercise its own branches (e.g. a fitted calibration computes residuals).
 OVERRIDES = {

@@ -80,3 +80,20 @@ def test_route_page_steps_hazards_lineage_and_heating_caution(client, session, d
     assert len(page.select("#steps .no-hazard-data")) == 1 and "GHS02" in page.select_one("#steps").get_text()
     bad = client.post("/planning/reagents", data={"csrf_token": csrf, "name": "x", "hazard_codes": "H9"})
     assert bad.status_code == 422
+
+
+def test_dsc_of_a_sulfur_compound_shows_the_heating_caution_with_the_highest_temperature(client, session, data):
+    from server.ingest.table import to_csv_bytes
+    from server.synth.dsc import dsc_trace
+
+    login_as(client, session)
+    # A heating run to 450 K (invented melting peak at 400 K): the batch has been taken to 450 K.
+    trace = dsc_trace([{"kind": "melting", "t_K": 400.0, "dh_J_g": 80.0, "width_K": 1.5}], t_start_K=330,
+                      t_end_K=450, rate_K_min=10.0, mass_mg=5.0)
+    r = client.post(f"/api/v1/batches/{data['batch']}/measurements", data={"kind": "dsc", "mass": "5 mg"},
+                    files={"file": ("dsc.csv", to_csv_bytes(trace), "text/csv")}, headers=data["h"])
+    assert r.status_code == 201, r.text
+    text = soup(client.get(f"/measurements/{r.json()['id']}").text).select_one("#heating-caution").get_text()
+    assert "TGA" in text and "450" in text
+    # The batch's route page says the same.
+    assert "450" in soup(client.get(f"/planning/routes/{data['batch']}").text).select_one("#heating-caution").get_text()

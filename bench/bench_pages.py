@@ -14,6 +14,12 @@ first load filled. Baseline: the same page with the plotting bundle refused (the
 figure), time to its ``load`` event, cold and warm. Figure: with figure / without figure, no
 agreed target. The bytes that crossed the wire (``transferSize`` of the navigation and every
 resource) are reported beside the times.
+
+Measured on the shared 2-core build machine (2026-12-02, other jobs running, so times vary by ~1.7x
+between runs; bytes do not): with the full plotly.js bundle and no compression, first load 18.2 s
+against 0.66 s without the figure (ratio 28), 4 848 430 bytes; with the gzip-compressed basic bundle,
+4.2-7.1 s against 0.9-1.3 s (ratio 4.7-5.7), 410 000 bytes. Second load 3.25 s (ratio 4.2) before,
+2.7-3.7 s (ratio 3.1-3.5) after.
 """
 
 from __future__ import annotations

@@ -48,3 +48,80 @@ document.addEventListener("click", function (evt) {
     done();
   }
 });
+
+// Keyboard and screen readers (issue 24).
+(function () {
+  var FOCUSABLE = "a[href], button, input, select, textarea, summary, [tabindex]";
+
+  // A card whose content is wider than the screen scrolls sideways inside itself; with nothing focusable
+  // in it a keyboard could not scroll it, so it becomes a named, focusable region while (and only while)
+  // it overflows.
+  function reachable(root) {
+    (root || document).querySelectorAll(".card, .scroll").forEach(function (el) {
+      var overflows = el.scrollWidth > el.clientWidth + 1;
+      if (overflows && !el.hasAttribute("tabindex") && !el.querySelector(FOCUSABLE)) {
+        var heading = el.querySelector("h1, h2, h3, caption");
+        el.setAttribute("tabindex", "0");
+        el.dataset.madeReachable = "1";
+        if (!el.getAttribute("role")) { el.setAttribute("role", "region"); }
+        if (!el.getAttribute("aria-label")) {
+          el.setAttribute("aria-label", heading ? heading.textContent.trim() : "scrolling content");
+        }
+      } else if (!overflows && el.dataset.madeReachable) {
+        el.removeAttribute("tabindex");
+        delete el.dataset.madeReachable;
+      }
+    });
+  }
+  var resizeTimer = null;
+  window.addEventListener("resize", function () {
+    clearTimeout(resizeTimer);
+    resizeTimer = setTimeout(function () { reachable(document); }, 150);
+  });
+  document.addEventListener("DOMContentLoaded", function () { reachable(document); });
+
+  // A region that polls itself (hx-trigger "every ...") is not redrawn while focus is inside it:
+  // the request is skipped until the user leaves, so a keyboard user is never thrown to the page top.
+  document.addEventListener("htmx:beforeRequest", function (evt) {
+    var el = evt.detail.elt;
+    var trigger = (el.getAttribute && el.getAttribute("hx-trigger")) || "";
+    if (trigger.indexOf("every ") === -1) { return; }
+    var target = evt.detail.target || el;
+    if (target.contains(document.activeElement) && document.activeElement !== document.body) {
+      evt.preventDefault();
+    }
+  });
+
+  // After a swap, focus goes where the user's attention should: htmx itself puts it back on an element
+  // with the same id (sort headers and pager links have stable ids); when it was lost instead, it moves
+  // to the error in the new content, else to the swapped region (made focusable for the purpose).
+  var lost = false;
+  document.addEventListener("htmx:beforeSwap", function (evt) {
+    var active = document.activeElement;
+    lost = !!(active && active !== document.body && evt.detail.target.contains(active));
+  });
+  document.addEventListener("htmx:afterSettle", function (evt) {
+    var target = evt.detail.target;
+    reachable(target.parentNode || document);
+    var active = document.activeElement;
+    if (!lost || (active && active !== document.body && document.contains(active))) { return; }
+    lost = false;
+    var error = target.querySelector('[role="alert"], .error');
+    var goal = error || target;
+    if (!goal.matches(FOCUSABLE)) { goal.setAttribute("tabindex", "-1"); }
+    goal.focus({ preventScroll: false });
+  });
+})();
+
+// Phones: the main navigation folds behind a "Menu" button (CSS shows the button below 600 px only).
+document.addEventListener("DOMContentLoaded", function () {
+  var bar = document.querySelector(".topbar");
+  var toggle = bar && bar.querySelector(".navtoggle");
+  if (!toggle) { return; }
+  bar.classList.add("collapsible");
+  toggle.hidden = false;
+  toggle.addEventListener("click", function () {
+    var open = bar.classList.toggle("open");
+    toggle.setAttribute("aria-expanded", open ? "true" : "false");
+  });
+});

@@ -47,6 +47,7 @@ MAX_MAPPED = 40
 _NAME_RE = re.compile(r"[a-z0-9][a-z0-9_.-]{0,59}")
 _CONDITION_LINE_RE = re.compile(r"\s*([^:=]{1,80}?)\s*[:=]\s*(.*?)\s*")
 _NUMBER_START = re.compile(r"\s*\"?[+-]?(?:\d|[.,]\d)")
+_BLANK_RE = re.compile(r"^[ \t]*$", re.MULTILINE)
 _BARE_NUMBER = re.compile(r"[+-]?(?:\d+[.,]?\d*|[.,]\d+)(?:[eE][+-]?\d+)?")
 
 
@@ -389,6 +390,32 @@ def _matches_header(cells: Sequence[str], profile: Profile) -> bool:
     return all(i in found for i in range(len(sources)))
 
 
+def _blank_lines(lines: list[str], delimiter: str) -> list[int]:
+    """Indices of the blank lines (nothing but spaces and delimiters), found by one regular-expression
+    scan of the joined text rather than a Python loop over a million lines."""
+    text = "\n".join(lines)
+    if any(mark in text for mark in ("\n ", "\n\t", "\n" + delimiter)) or (lines and _blank(lines[0], delimiter)):
+        pattern = re.compile(r"^[ \t%s]*$" % re.escape(delimiter), re.MULTILINE)
+        starts = (m.start() for m in pattern.finditer(text))
+    else:  # only empty lines can be blank: plain substring search
+        starts = _empty_line_starts(text)
+    out, line, last = [], 0, 0
+    for start in starts:
+        line += text.count("\n", last, start)
+        last = start
+        out.append(line)
+    return out
+
+
+def _empty_line_starts(text: str):  # noqa: ANN202
+    pos = text.find("\n\n")
+    while pos != -1:
+        yield pos + 1
+        pos = text.find("\n\n", pos + 1)
+    if text.endswith("\n"):
+        yield len(text)
+
+
 @dataclass
 class _Segment:
     start: int  # 1-based file line of lines[0]
@@ -402,9 +429,7 @@ def _segments(lines: list[str], first_no: int, profile: Profile) -> list[_Segmen
         return [_Segment(first_no, lines)]
     cuts: list[int] = [0]
     if sep == "blank_line":
-        d = profile.delimiter
-        blank = [i for i, line in enumerate(lines) if _blank(line, d)] if any(
-            _blank(line, d) for line in lines) else []
+        blank = _blank_lines(lines, profile.delimiter)
         segs: list[_Segment] = []
         begin = 0
         for i in blank + [len(lines)]:
@@ -628,7 +653,8 @@ def _read_block(seg: _Segment, profile: Profile, header, data_start: int, data: 
     if not data:
         raise IngestError(f"{profile.label}: the header row has no data rows below it", line=first_no - 1)
     region = "\n".join(data)
-    if any(not line.strip() for line in data):  # blank lines inside a block (no blank-line separator)
+    if "\n\n" in region or ((" " in region or "\t" in region) and _BLANK_RE.search(region)):
+        # blank lines inside a block (no blank-line separator)
         keep = [i for i, line in enumerate(data) if line.strip()]
         data = [data[i] for i in keep]
         linenos: Sequence[int] = [first_no + i for i in keep]

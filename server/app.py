@@ -34,6 +34,7 @@ from .web import auth as auth_pages
 from .web import batches as batch_pages
 from .web import campaign as campaign_pages
 from .web import compare as compare_pages
+from .web import import_profiles as import_profile_pages
 from .web import compounds as compound_pages
 from .web import digest as digest_pages
 from .web import measurements as measurement_pages
@@ -192,7 +193,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(api_router)
     app.include_router(api_docs_page.router)
     for pages in (auth_pages, compound_pages, batch_pages, scaffold_pages, measurement_pages, sample_pages,
-                  campaign_pages, admin_pages, digest_pages, compare_pages):
+                  campaign_pages, admin_pages, digest_pages, compare_pages, import_profile_pages):
         app.include_router(pages.router)
     app.mount("/static", StaticFiles(directory=str(static_dir())), name="static")
 

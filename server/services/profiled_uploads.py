@@ -22,6 +22,7 @@ from ..ingest.columns import BY_NAME
 from ..ingest.profiles import ProfiledRead, read_profiled
 from ..ingest.units import UNIT_PARSE_ERRORS, parse_unit
 from ..plots import figure_json
+from ..kinds import Context
 from ..models import SERIES_VARIABLES, Batch, Compound, Measurement, Sample
 from . import audit, import_profiles, samples, series
 from .errors import Archived, Duplicate, Forbidden
@@ -259,3 +260,23 @@ def dry_run(*, session: Session, batch: Batch, sample: Optional[Sample], kind_na
             for e in preview["blocks"]]}, "results": {}, "verdict": first.verdict or None,
             "flags": [{"code": f.get("code", "")} for f in first.flags]}
     return body
+
+
+def preview_profile(spec: Mapping[str, Any], raw: bytes) -> dict[str, Any]:
+    """A profile not yet saved tried on a file (the profile editor): checked, read, and each block analysed
+    with no registry context (pure: no database, nothing stored)."""
+    profile = import_profiles.check_profile(spec)
+    kind = get_kind(profile.kind)
+    read = read_profiled(raw, profile)
+    blocks = []
+    figure = None
+    for i, b in enumerate(read.blocks):
+        d = analyse(kind, raw, filename=None, form={}, context=Context(), parsed=b.table)
+        if i == 0 and kind.figure is not None:
+            figure = figure_json(kind.figure(d.parsed, d.result))
+        blocks.append({"block": i, "first_line": b.first_line, "last_line": b.last_line, "rows": int(b.table.n_rows),
+                       "conditions": d.conditions.to_dict(), **_result_part(d)})
+    first = read.blocks[0].table
+    return {"preview": {**_table_preview(first), "conversions": _conversions(first), "blocks": blocks,
+                        "notes": list(read.notes), "profile": None, "conditions": blocks[0]["conditions"]},
+            "kind": kind.name, "figure": figure}

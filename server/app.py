@@ -35,6 +35,7 @@ from .web import campaign as campaign_pages
 from .web import comments as comment_pages
 from .web import compare as compare_pages
 from .web import freezes as freeze_pages
+from .web import import_profiles as import_profile_pages
 from .web import compounds as compound_pages
 from .web import digest as digest_pages
 from .web import measurements as measurement_pages
@@ -201,7 +202,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(api_docs_page.router)
     for pages in (auth_pages, compound_pages, batch_pages, scaffold_pages, measurement_pages, sample_pages,
                   campaign_pages, admin_pages, digest_pages, compare_pages, planning_pages, comment_pages,
-                  freeze_pages):
+                  freeze_pages, import_profile_pages):
         app.include_router(pages.router)
     # Versioned addresses (server/web/assets.py) are cached for a year, anything else revalidated.
     app.mount("/static", VersionedStaticFiles(directory=str(static_dir())), name="static")

@@ -5,7 +5,7 @@
     remanence demo [--load-only]           fresh demo database, then serve it
     remanence user add NAME --role R       add an account (password from a prompt or --password-stdin)
     remanence user password NAME           change a password (ends the account's sessions)
-    remanence token create --name N --scope S [--kinds K,...] [--embargoed]
+    remanence token create --name N --scope S [--kinds K,...] [--embargoed] [--profile P]
                                            create an API token; prints it alone on the last line
     remanence token revoke ID              revoke a token at once
     remanence reanalyze [--kind K]         recompute stored measurements from their raw files
@@ -187,12 +187,13 @@ def cmd_token_create(args: argparse.Namespace) -> int:
         try:
             token, secret = accounts.create_token(session=session, name=args.name, scope=args.scope, kinds=kinds,
                                                   expires_in=accounts.parse_lifetime(args.expires), actor="cli",
-                                                  sees_embargoed=args.embargo_grant)
+                                                  sees_embargoed=args.embargo_grant, profile=args.profile)
         except InputError as exc:
             print(f"error: {exc}", file=sys.stderr)
             return 2
     print(f"token {token.id} '{token.name}' scope {token.scope}" + (f" kinds {','.join(kinds)}" if kinds else "")
           + (" sees embargoed compounds" if token.sees_embargoed else "")
+          + (f" reads files through profile {token.profile}" if token.profile else "")
           + (f" expires {token.expires_at:%Y-%m-%d %H:%M} UTC" if token.expires_at else " never expires"))
     print("shown once; store it on the instrument PC now:")
     print(secret)
@@ -392,6 +393,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--expires", help="lifetime, e.g. 90d, 12h or 8w (default: never expires)")
     p.add_argument("--embargoed", dest="embargo_grant", action="store_true",
                    help="read tokens: may see embargoed compounds (default: they may not)")
+    p.add_argument("--profile", help="upload tokens: read every file through this import profile")
     p.set_defaults(func=cmd_token_create)
     p = token.add_parser("revoke", help="revoke a token")
     p.add_argument("id", type=int)

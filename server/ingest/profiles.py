@@ -47,6 +47,7 @@ MAX_MAPPED = 40
 _NAME_RE = re.compile(r"[a-z0-9][a-z0-9_.-]{0,59}")
 _CONDITION_LINE_RE = re.compile(r"\s*([^:=]{1,80}?)\s*[:=]\s*(.*?)\s*")
 _NUMBER_START = re.compile(r"\s*\"?[+-]?(?:\d|[.,]\d)")
+_BLANK_RE = re.compile(r"^[ \t]*$", re.MULTILINE)
 _BARE_NUMBER = re.compile(r"[+-]?(?:\d+[.,]?\d*|[.,]\d+)(?:[eE][+-]?\d+)?")
 
 
@@ -285,17 +286,58 @@ class ProfiledRead:
 
 
 def _decode_for(raw: bytes, profile: Profile) -> tuple[str, list[str]]:
-    if profile.encoding == "auto":
+    return _decode_as(raw, profile.encoding, profile.label)
+
+
+def _decode_as(raw: bytes, encoding: str, label: str) -> tuple[str, list[str]]:
+    if encoding == "auto":
         return _decode(raw)
-    if b"\x00" in raw[:4096] and not profile.encoding.lower().startswith("utf-16"):
+    if b"\x00" in raw[:4096] and not encoding.lower().startswith("utf-16"):
         _decode(raw)  # raises the plain reader's binary-file error
     try:
-        text = raw.decode(profile.encoding)
+        text = raw.decode(encoding)
     except UnicodeDecodeError as exc:
         line = raw[: exc.start].count(b"\n") + 1
-        raise IngestError(f"{profile.label}: byte {raw[exc.start]:#04x} is not {profile.encoding} text",
+        raise IngestError(f"{label}: byte {raw[exc.start]:#04x} is not {encoding} text",
                           line=line, field="encoding") from exc
-    return text.lstrip("\ufeff"), [f"read as {profile.encoding} text"]
+    except LookupError as exc:
+        raise IngestError(f"unknown encoding '{encoding}'", field="encoding") from exc
+    return text.lstrip("\ufeff"), [f"read as {encoding} text"]
+
+
+def sketch(raw: bytes, *, encoding: str = "auto", delimiter: str = ",", skip_lines: int = 0,
+           start_after: str | None = None, units_row: bool = False, max_lines: int = 40) -> dict[str, Any]:
+    """A first look at a file for writing its profile: its first lines (numbered), the header row where the
+    table would start with these settings, its cells (and the units row's), and the ``KEY: VALUE`` lines
+    above it that could be conditions."""
+    text, _ = _decode_as(raw, encoding, "this file")
+    lines = text.replace("\r\n", "\n").replace("\r", "\n").split("\n")
+    d = DELIMITERS.get(delimiter, delimiter)
+    start = 0
+    if start_after:
+        pattern = re.compile(_check_pattern(start_after, "start_after"))
+        found = next((i for i, line in enumerate(lines) if pattern.search(line)), None)
+        if found is None:
+            raise IngestError(f"no line matches the start pattern '{start_after}'", field="start_after")
+        start = found + 1
+    start += max(0, int(skip_lines))
+    at = next((i for i in range(start, len(lines)) if lines[i].strip()), None)
+    if at is None:
+        raise IngestError("nothing follows the start of the table", field="skip_lines")
+    above = []
+    for i in range(at):
+        m = _CONDITION_LINE_RE.fullmatch(lines[i].strip().lstrip("#").strip())
+        cells = [c for c in _cells(lines[i], d) if c]
+        if m:
+            above.append((i + 1, m.group(1), m.group(2)))
+        elif len(cells) >= 2:
+            above.append((i + 1, cells[0], " ".join(cells[1:])))
+    header = [c for c in _cells(lines[at], d)]
+    units = _cells(lines[at + 1], d) if units_row and at + 1 < len(lines) else None
+    return {"lines": [(i + 1, line[:200]) for i, line in enumerate(lines[:max_lines])], "header_line": at + 1,
+            "header": [(c, split_header(c)[0], _file_unit(units[i] if units and i < len(units) else
+                                                           split_header(c)[1])) for i, c in enumerate(header) if c],
+            "conditions": above[:20]}
 
 
 def _cells(line: str, delimiter: str) -> list[str]:
@@ -389,6 +431,32 @@ def _matches_header(cells: Sequence[str], profile: Profile) -> bool:
     return all(i in found for i in range(len(sources)))
 
 
+def _blank_lines(lines: list[str], delimiter: str) -> list[int]:
+    """Indices of the blank lines (nothing but spaces and delimiters), found by one regular-expression
+    scan of the joined text rather than a Python loop over a million lines."""
+    text = "\n".join(lines)
+    if any(mark in text for mark in ("\n ", "\n\t", "\n" + delimiter)) or (lines and _blank(lines[0], delimiter)):
+        pattern = re.compile(r"^[ \t%s]*$" % re.escape(delimiter), re.MULTILINE)
+        starts = (m.start() for m in pattern.finditer(text))
+    else:  # only empty lines can be blank: plain substring search
+        starts = _empty_line_starts(text)
+    out, line, last = [], 0, 0
+    for start in starts:
+        line += text.count("\n", last, start)
+        last = start
+        out.append(line)
+    return out
+
+
+def _empty_line_starts(text: str):  # noqa: ANN202
+    pos = text.find("\n\n")
+    while pos != -1:
+        yield pos + 1
+        pos = text.find("\n\n", pos + 1)
+    if text.endswith("\n"):
+        yield len(text)
+
+
 @dataclass
 class _Segment:
     start: int  # 1-based file line of lines[0]
@@ -402,9 +470,7 @@ def _segments(lines: list[str], first_no: int, profile: Profile) -> list[_Segmen
         return [_Segment(first_no, lines)]
     cuts: list[int] = [0]
     if sep == "blank_line":
-        d = profile.delimiter
-        blank = [i for i, line in enumerate(lines) if _blank(line, d)] if any(
-            _blank(line, d) for line in lines) else []
+        blank = _blank_lines(lines, profile.delimiter)
         segs: list[_Segment] = []
         begin = 0
         for i in blank + [len(lines)]:
@@ -628,7 +694,8 @@ def _read_block(seg: _Segment, profile: Profile, header, data_start: int, data: 
     if not data:
         raise IngestError(f"{profile.label}: the header row has no data rows below it", line=first_no - 1)
     region = "\n".join(data)
-    if any(not line.strip() for line in data):  # blank lines inside a block (no blank-line separator)
+    if "\n\n" in region or ((" " in region or "\t" in region) and _BLANK_RE.search(region)):
+        # blank lines inside a block (no blank-line separator)
         keep = [i for i, line in enumerate(data) if line.strip()]
         data = [data[i] for i in keep]
         linenos: Sequence[int] = [first_no + i for i in keep]

@@ -267,6 +267,7 @@ def user_read(user: User) -> dict:
 def token_read(token: ApiToken) -> dict:
     return {"id": token.id, "name": token.name, "prefix": token.prefix, "scope": token.scope, "kinds": token.kinds,
             "sees_embargoed": access.token_sees_embargoed(token.scope, token.sees_embargoed),
+            "profile": token.profile or None,
             "created_by": token.created_by, "created_at": token.created_at.isoformat(),
             "last_used_at": token.last_used_at.isoformat() if token.last_used_at else None,
             "expires_at": token.expires_at.isoformat() if token.expires_at else None,

@@ -133,3 +133,45 @@ def stored_block(session: Session, *, name: str, version: int, block: int, raw: 
         raise InputError(f"profile {name!r} version {version} finds {len(read.blocks)} blocks in this file, "
                          f"not block {block + 1}", field="file")
     return read.blocks[block]
+
+
+#: The most columns and header lines the profile editor maps.
+EDITOR_SLOTS = 40
+
+
+def spec_from_form(form: Mapping[str, str]) -> dict[str, Any]:
+    """A profile's JSON from the editor's fields: ``source_i``/``to_i``/``unit_i`` per column of the header
+    (``to_i`` "ignore" leaves it out, empty leaves it unmapped), ``cond_key_i``/``cond_to_i``/``cond_unit_i``
+    per header line; the rest as in the JSON. Checked by :func:`check_profile` when used."""
+    def text(key: str) -> str:
+        return str(form.get(key) or "").strip()
+
+    spec: dict[str, Any] = {"name": text("name"), "kind": text("kind"), "delimiter": text("delimiter") or ",",
+                            "decimal": text("decimal") or ".", "encoding": text("encoding") or "auto",
+                            "units_row": text("units_row") in ("on", "true", "1")}
+    skip = text("skip_lines") or "0"
+    if not skip.isdigit():
+        raise InputError("the number of lines to skip is a whole number", field="skip_lines")
+    spec["skip_lines"] = int(skip)
+    if text("start_after"):
+        spec["start_after"] = text("start_after")
+    columns: dict[str, Any] = {}
+    ignore: list[str] = []
+    conditions: dict[str, Any] = {}
+    for i in range(EDITOR_SLOTS):
+        source, to, unit = text(f"source_{i}"), text(f"to_{i}"), text(f"unit_{i}")
+        if source and to == "ignore":
+            ignore.append(source)
+        elif source and to:
+            columns[source] = {"to": to, **({"unit": unit} if unit else {})}
+        key, cto, cunit = text(f"cond_key_{i}"), text(f"cond_to_{i}"), text(f"cond_unit_{i}")
+        if key and cto:
+            conditions[key] = {"to": cto, **({"unit": cunit} if cunit else {})}
+    spec["columns"] = columns
+    if ignore:
+        spec["ignore"] = ignore
+    if conditions:
+        spec["conditions"] = conditions
+    if text("separator"):
+        spec["blocks"] = {"separator": text("separator"), **({"varies": text("varies")} if text("varies") else {})}
+    return spec

@@ -21,6 +21,8 @@ from ..errors import InputError
 from ..ingest.columns import BY_NAME
 from ..ingest.profiles import ProfiledRead, read_profiled
 from ..ingest.units import UNIT_PARSE_ERRORS, parse_unit
+from ..plots import figure_json
+from ..kinds import Context
 from ..models import SERIES_VARIABLES, Batch, Compound, Measurement, Sample
 from . import audit, import_profiles, samples, series
 from .errors import Archived, Duplicate, Forbidden
@@ -210,12 +212,13 @@ def _result_part(d: Analysed) -> dict[str, Any]:
 
 def dry_run(*, session: Session, batch: Batch, sample: Optional[Sample], kind_name: str, profile_row: Any,
             raw: bytes, filename: Optional[str], form: Mapping[str, Optional[str]], actor: Actor,
-            allowed_kinds: Optional[Sequence[str]] = None) -> dict[str, Any]:
+            allowed_kinds: Optional[Sequence[str]] = None, with_figure: bool = False) -> dict[str, Any]:
     """What an upload would store, read and analysed, without storing anything or writing an audit row.
 
     ``preview`` holds the first block's canonical columns and units, the head of its rows, the row
     count, the conditions as read, each conversion and one entry per block; ``results``, ``verdict``
-    and ``flags`` are the first block's (each block entry has its own)."""
+    and ``flags`` are the first block's (each block entry has its own). ``with_figure``: also the first
+    block's figure as Plotly JSON under ``figure`` (the upload page draws it)."""
     compound, kind = _check_target(session, batch, kind_name, allowed_kinds)
     if not raw:
         raise InputError("the file is empty", field="file")
@@ -248,6 +251,8 @@ def dry_run(*, session: Session, batch: Batch, sample: Optional[Sample], kind_na
          "conditions": d.conditions.to_dict(), **_result_part(d)}
         for i, (d, (a, b)) in enumerate(zip(done, spans))]
     body = {"preview": preview, **_result_part(first)}
+    if with_figure and kind.figure is not None:
+        body["figure"] = figure_json(kind.figure(first.parsed, first.result))
     if not access.may_see_structure(actor, compound):
         # the same boundary as a stored measurement's receipt (measurements.measurement_as_seen)
         body = {"preview": {**preview, "rows_head": [], "conditions": {}, "blocks": [
@@ -255,3 +260,23 @@ def dry_run(*, session: Session, batch: Batch, sample: Optional[Sample], kind_na
             for e in preview["blocks"]]}, "results": {}, "verdict": first.verdict or None,
             "flags": [{"code": f.get("code", "")} for f in first.flags]}
     return body
+
+
+def preview_profile(spec: Mapping[str, Any], raw: bytes) -> dict[str, Any]:
+    """A profile not yet saved tried on a file (the profile editor): checked, read, and each block analysed
+    with no registry context (pure: no database, nothing stored)."""
+    profile = import_profiles.check_profile(spec)
+    kind = get_kind(profile.kind)
+    read = read_profiled(raw, profile)
+    blocks = []
+    figure = None
+    for i, b in enumerate(read.blocks):
+        d = analyse(kind, raw, filename=None, form={}, context=Context(), parsed=b.table)
+        if i == 0 and kind.figure is not None:
+            figure = figure_json(kind.figure(d.parsed, d.result))
+        blocks.append({"block": i, "first_line": b.first_line, "last_line": b.last_line, "rows": int(b.table.n_rows),
+                       "conditions": d.conditions.to_dict(), **_result_part(d)})
+    first = read.blocks[0].table
+    return {"preview": {**_table_preview(first), "conversions": _conversions(first), "blocks": blocks,
+                        "notes": list(read.notes), "profile": None, "conditions": blocks[0]["conditions"]},
+            "kind": kind.name, "figure": figure}

@@ -8,7 +8,7 @@ from fastapi.responses import HTMLResponse
 from ..deps import PageAdmin, RowId, SessionDep
 from ..errors import InputError
 from ..models import utcnow
-from ..services import accounts
+from ..services import accounts, import_profiles
 from ..services.errors import Duplicate, NotFound
 from ..kinds import KINDS
 from .render import redirect, render
@@ -19,7 +19,8 @@ router = APIRouter(include_in_schema=False)
 def _page(request, session, actor, *, error=None, new_token=None, status_code=200):  # noqa: ANN001
     return render(request, "pages/admin.html",
                   {"users": accounts.list_users(session), "tokens": accounts.list_tokens(session), "error": error,
-                   "new_token": new_token, "kinds": KINDS, "now": utcnow()}, status_code=status_code, actor=actor)
+                   "new_token": new_token, "kinds": KINDS, "now": utcnow(),
+                   "profiles": import_profiles.list_profiles(session)}, status_code=status_code, actor=actor)
 
 
 @router.get("/admin", response_class=HTMLResponse)
@@ -56,7 +57,8 @@ async def create_token(request: Request, session: SessionDep, actor: PageAdmin):
         token, secret = accounts.create_token(session=session, name=str(form.get("name", "")),
                                               scope=str(form.get("scope", "")), kinds=kinds, actor=actor.label,
                                               expires_in=accounts.parse_lifetime(str(form.get("expires", ""))),
-                                              sees_embargoed=form.get("sees_embargoed") == "on")
+                                              sees_embargoed=form.get("sees_embargoed") == "on",
+                                              profile=str(form.get("profile", "")))
     except InputError as exc:
         return _page(request, session, actor, error=str(exc), status_code=422)
     # Rendered directly (no redirect) so the secret is shown once and never stored or put in a URL.

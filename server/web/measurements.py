@@ -11,7 +11,7 @@ from ..errors import InputError
 from ..ingest.conditions import CONDITION_EXAMPLES
 from ..kinds import KINDS, needed_by
 from ..models import SAMPLE_FORMS, Batch, Compound, SampleCreate
-from ..services import comments, measurements, planning_pages, registry, samples
+from ..services import comments, import_profiles, measurements, planning_pages, profiled_uploads, registry, samples
 from ..services.errors import Archived, Duplicate, Forbidden
 from .render import redirect, render
 
@@ -21,10 +21,12 @@ FIELDS = measurements.FORM_FIELDS
 NEW_SAMPLE = "new"  # the sample choice that describes a new sample inline
 
 
-def _upload_context(session, batch: Batch, compound: Compound, form: dict, error: Optional[str] = None) -> dict:
+def _upload_context(session, batch: Batch, compound: Compound, form: dict, error: Optional[str] = None,
+                    preview: Optional[dict] = None) -> dict:
     return {"batch": batch, "c": compound, "kinds": KINDS, "needed_by": needed_by(), "examples": CONDITION_EXAMPLES,
             "form": form, "error": error, "samples": samples.samples_of_batch(session, batch),
-            "sample_forms": SAMPLE_FORMS, "new_sample": NEW_SAMPLE}
+            "sample_forms": SAMPLE_FORMS, "new_sample": NEW_SAMPLE, "preview": preview,
+            "profiles": import_profiles.list_profiles(session)}
 
 
 @router.get("/batches/{code}/upload", response_class=HTMLResponse)
@@ -60,6 +62,8 @@ def upload(
     solvent: Annotated[str, Form()] = "",
     sweep: Annotated[str, Form()] = "",
     sample: Annotated[str, Form()] = "",
+    profile: Annotated[str, Form(max_length=60)] = "",
+    action: Annotated[str, Form()] = "",
     new_form: Annotated[str, Form()] = "",
     new_thickness: Annotated[str, Form()] = "",
     new_electrode_area: Annotated[str, Form()] = "",
@@ -71,11 +75,41 @@ def upload(
     form = {"kind": kind, "area": area, "thickness": thickness, "mass": mass, "rate": rate,
             "temperature": temperature, "frequency": frequency, "instrument": instrument, "operator": operator,
             "notes": notes, "endo": endo, "sweep": sweep, "spectrometer": spectrometer, "nucleus": nucleus,
-            "solvent": solvent}
+            "solvent": solvent, "profile": profile}
     new = {"form": new_form, "thickness": new_thickness, "electrode_area": new_electrode_area,
            "electrode": new_electrode, "axis": new_axis}
+    conditions = {k: (v or None) for k, v in form.items() if k not in ("kind", "profile")}
+    if action == "preview":
+        # The dry run: read and analysed as the upload would be, nothing stored; the form stays as filled.
+        try:
+            raw = measurements.read_upload(file, settings.max_upload_bytes)
+            row, kind_name = profiled_uploads.resolve_profile(session, profile_name=profile, kind_name=None if profile
+                                                              else kind)
+            target = samples.get_sample_of_batch(session, batch, sample) if sample and sample != NEW_SAMPLE else None
+            preview = profiled_uploads.dry_run(session=session, batch=batch, sample=target, kind_name=kind_name,
+                                               profile_row=row, raw=raw, filename=file.filename, form=conditions,
+                                               actor=actor, with_figure=True)
+            preview["kind"] = kind_name
+            error = None
+        except (InputError, Forbidden, Archived) as exc:
+            preview, error = None, str(exc)
+        return render(request, "pages/upload.html",
+                      _upload_context(session, batch, compound, {**form, "sample": sample,
+                                                                 **{f"new_{k}": v for k, v in new.items()}},
+                                      preview=preview or {"error": error}),
+                      partial="partials/upload_preview.html", status_code=200 if preview else 422, actor=actor)
     try:
         raw = measurements.read_upload(file, settings.max_upload_bytes)
+        if profile:
+            row, _ = profiled_uploads.resolve_profile(session, profile_name=profile, kind_name=None)
+            if sample == NEW_SAMPLE:
+                raise InputError("describe the new sample first, then upload a profiled file to it", field="sample")
+            target = samples.get_sample_of_batch(session, batch, sample) if sample else None
+            body, _ = profiled_uploads.upload_profiled(session=session, batch=batch, sample=target, profile_row=row,
+                                                       raw=raw, filename=file.filename, form=conditions, actor=actor)
+            ms = body["measurements"]
+            return redirect(f"/measurements/{ms[0]['id']}" if len(ms) == 1 else f"/samples/{ms[0]['sample']}",
+                            request)
         if sample == NEW_SAMPLE:
             # Described inline: added in the upload's own transaction, so a refused file leaves no sample.
             data = SampleCreate(**{k: (v.strip() or None) for k, v in new.items() if k != "form"},
@@ -85,7 +119,7 @@ def upload(
             target = samples.get_sample_of_batch(session, batch, sample) if sample else None
         m, _ = measurements.upload_measurement(
             session=session, batch=batch, sample=target, kind_name=kind, raw=raw, filename=file.filename,
-            form={k: (v or None) for k, v in form.items() if k != "kind"}, actor=actor.label,
+            form=conditions, actor=actor.label,
         )
     except (InputError, Forbidden, Duplicate, Archived) as exc:
         session.rollback()

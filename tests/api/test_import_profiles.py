@@ -209,3 +209,17 @@ def test_a_token_cannot_be_bound_to_a_missing_profile(session):
     with pytest.raises(InputError) as err:
         accounts.create_token(session=session, name="pc", scope="upload", actor="test", profile="nobody")
     assert err.value.field == "profile"
+
+
+def test_a_block_is_corrected_through_its_profile_version(client, writer, batch):
+    profile, raw = corpus("pe_loop_sweep_blank_lines")
+    client.post("/api/v1/import-profiles", json=profile, headers=writer)
+    ms = post(client, batch, raw, writer, profile="sweep-d").json()["measurements"]
+    r = client.post(f"/api/v1/measurements/{ms[1]['id']}/revise", data={"thickness": "300 um"}, headers=writer)
+    assert r.status_code == 201, r.text
+    new = r.json()
+    assert (new["profile"], new["profile_version"], new["block"]) == ("sweep-d", 1, 1)
+    assert new["temperature_K"] == 320.0 and new["supersedes"] == ms[1]["id"]
+    # the same charge over twice the thickness: half the field, the same polarization
+    assert new["results"]["pr_uC_cm2"] == pytest.approx(ms[1]["results"]["pr_uC_cm2"], rel=1e-6)
+    assert new["results"]["ec_kV_cm"] == pytest.approx(ms[1]["results"]["ec_kV_cm"] / 2, rel=1e-6)

@@ -66,3 +66,24 @@ def test_archive_and_restore_measurement_and_batch(client, session):
     assert client.get("/api/v1/compounds/RVZ-00001", headers=h).json()["verdict"] == "loop_switching_only"
     assert client.post("/api/v1/batches/RVZ-00001-B01/archive", headers=h).json()["archived"] is True
     assert client.post("/api/v1/batches/RVZ-00001-B01/restore", headers=h).json()["archived"] is False
+
+
+def test_an_upload_token_is_bound_to_an_import_profile_on_the_admin_page(client, session):
+    import json
+    from pathlib import Path
+
+    from server.services import import_profiles
+
+    spec = json.loads((Path(__file__).parent.parent / "data" / "exports" / "pund_semicolon_cp1252.profile.json")
+                      .read_text())
+    import_profiles.create_profile(session=session, data=spec, actor="test")
+    csrf = login_as(client, session, role="admin", name="root-p")
+    page = soup(client.get("/admin").text)
+    options = [o["value"] for o in page.select("select[name=profile] option")]
+    assert options == ["", "pulse-g"]
+    r = client.post("/admin/tokens", data={"csrf_token": csrf, "name": "pulse-pc", "scope": "upload",
+                                           "profile": "pulse-g", "expires": "90d"})
+    assert r.status_code == 200, r.text
+    session.expire_all()
+    token = session.exec(select(ApiToken).where(ApiToken.name == "pulse-pc")).one()
+    assert token.profile == "pulse-g"

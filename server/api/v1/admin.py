@@ -25,6 +25,8 @@ class TokenIn(BaseModel):
     scope: str = Field(description="upload, write or read")
     kinds: Optional[list[str]] = Field(None, description="upload tokens: the measurement kinds allowed")
     sees_embargoed: bool = Field(False, description="read tokens: may see embargoed compounds")
+    profile: Optional[str] = Field(None, max_length=60,
+                                   description="upload tokens: read every file through this import profile")
     expires: Optional[str] = Field(None, max_length=20,
                                    description="lifetime such as 90d, 12h or 8w; empty or never: no expiry")
 
@@ -64,7 +66,7 @@ def create_token(data: TokenIn, session: SessionDep, actor: Admin) -> dict[str, 
             raise InputError(f"unknown kind {k!r}; use {', '.join(KINDS)}", field="kinds")
     token, secret = accounts.create_token(session=session, name=data.name, scope=data.scope, kinds=data.kinds,
                                           expires_in=accounts.parse_lifetime(data.expires), actor=actor.label,
-                                          sees_embargoed=data.sees_embargoed)
+                                          sees_embargoed=data.sees_embargoed, profile=data.profile)
     return {**accounts.token_read(token), "token": secret}
 
 

@@ -25,8 +25,8 @@ def _figure(parsed, result):
 
 
 def _stats(ms: Sequence[Any]) -> dict[str, Any]:
-    """The strongest switching loop: its Pr, Ec and Ps (loops judged ferroelectric only)."""
-    loops = [m.results for m in ms if m.verdict == "ferroelectric"]
+    """The strongest switching loop: its Pr, Ec and Ps (saturated switching loops only)."""
+    loops = [m.results for m in ms if m.verdict == "switching"]
     best = max(loops, key=lambda r: r.get("pr_uC_cm2") or 0, default={})
     return {"pr_max_uC_cm2": best.get("pr_uC_cm2"), "ec_kV_cm": best.get("ec_kV_cm"),
             "ps_uC_cm2": best.get("ps_uC_cm2")}

@@ -241,7 +241,7 @@ def _stats_row(cid: int, chains: list[dict], batches: list[dict], ms: list[dict]
                purity_best_pct=max((b["purity_pct"] for b in batches if b["purity_pct"] is not None), default=None))
     kinds = sorted({m["kind"] for m in ms})
     row.update(n_measurements=len(ms), kinds="," + ",".join(kinds) + "," if kinds else "")
-    loops = [m["results"] for m in ms if m["kind"] == "pe_loop" and m["verdict"] == "ferroelectric"]
+    loops = [m["results"] for m in ms if m["kind"] == "pe_loop" and m["verdict"] == "switching"]
     best = max(loops, key=lambda r: r.get("pr_uC_cm2") or 0, default=None)
     row.update(pr_max_uC_cm2=best["pr_uC_cm2"] if best else None, ec_kV_cm=best["ec_kV_cm"] if best else None,
                ps_uC_cm2=best["ps_uC_cm2"] if best else None)
@@ -272,7 +272,7 @@ def _measurement_results(rng: random.Random, kind: str, barrier: float) -> tuple
     """(results, verdict, temperature_K) with the keys the analyses write."""
     if kind == "pe_loop":
         pr = rng.uniform(0.2, 8.0)
-        verdict = "ferroelectric" if rng.random() < 0.55 else rng.choice(("paraelectric", "lossy_dielectric",
+        verdict = "switching" if rng.random() < 0.55 else rng.choice(("paraelectric", "lossy_dielectric",
                                                                            "inconclusive"))
         return ({"pr_uC_cm2": pr, "ec_kV_cm": rng.uniform(2.0, 40.0), "ps_uC_cm2": pr * rng.uniform(1.1, 1.5),
                  "frequency_Hz": 100.0}, verdict, 298.15)

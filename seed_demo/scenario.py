@@ -542,7 +542,7 @@ def expected_loop_verdict(c: CompoundPlan, m: Measurement) -> set[str]:
     if m.leaky:
         return {"lossy_dielectric"}
     if c.tc_K is not None and m.temperature_K < c.tc_K:
-        return {"ferroelectric"}
+        return {"switching"}
     return {"linear_dielectric", "paraelectric"}
 
 

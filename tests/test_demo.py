@@ -68,7 +68,7 @@ def _check_against_scenario(report, client, reader, plan: scenario.Scenario) -> 
     # the scenario's own files (not the described samples' loops, not seed_demo/phase_id.py's files)
     items = [m for m in everything if m["sample"] not in report.samples and m["kind"] not in report.phase_id]
     assert len(items) == plan.measurements
-    seen = {"ferroelectric": 0, "lossy": 0, "polar_xtal": 0}
+    seen = {"switching": 0, "lossy": 0, "polar_xtal": 0}
     for m in items:
         c = by_code[m["compound"]]
         seq = int(m["batch"].rsplit("-B", 1)[1])
@@ -82,8 +82,8 @@ def _check_against_scenario(report, client, reader, plan: scenario.Scenario) -> 
         where = f"{c.label} {m['batch']} {m['kind']} at {t} K: {v} {[f['code'] for f in m['flags']]}"
         if m["kind"] == "pe_loop":
             assert v in scenario.expected_loop_verdict(c, p), where
-            if v == "ferroelectric":
-                seen["ferroelectric"] += 1
+            if v == "switching":
+                seen["switching"] += 1
                 # Landau: Pr = P0 sqrt(1 - T/Tc) (scenario physics); the loop analysis must recover it
                 assert r["pr_uC_cm2"] == pytest.approx(c.pr_uC_cm2(t), rel=0.1), where
             if v == "lossy_dielectric":
@@ -113,7 +113,7 @@ def _check_against_scenario(report, client, reader, plan: scenario.Scenario) -> 
                 assert order["n_states"] == pytest.approx(2.0, rel=0.2), where
         elif m["kind"] == "nmr_rates":
             assert r["dg298_kcal_mol"] == pytest.approx(c.dg_kcal_mol, abs=0.3), where
-    assert seen["ferroelectric"] > 0 and seen["lossy"] > 0
+    assert seen["switching"] > 0 and seen["lossy"] > 0
     assert sum(1 for c in plan.compounds if c.crystal and c.crystal.head_to_tail) == seen["polar_xtal"]
 
     if not any("barriers" in line for line in report.skipped):
@@ -303,7 +303,7 @@ def test_example_file_uploads(client, session, example_batch, kind):
     assert r.status_code == 201, r.text
     body = r.json()
     model = example.model
-    expected = {"pe_loop": "ferroelectric", "pund": "switching", "crystal": "polar"}
+    expected = {"pe_loop": "switching", "pund": "switching", "crystal": "polar"}
     if kind in expected:
         assert body["verdict"] == expected[kind]
     if kind == "pe_loop":  # the Miller loop's own Pr and Ec, within the 0.4 % noise and sampling

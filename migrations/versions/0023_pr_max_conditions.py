@@ -6,7 +6,8 @@ Create Date: 2026-12-02 13:40:00
 
 ``compoundstats`` gains ``pr_max_t_K``, ``pr_max_emax_kV_cm`` and ``pr_max_measurement_id``, filled
 here for existing rows from the loop that gave ``pr_max_uC_cm2`` (the live ``pe_loop`` measurement
-judged ferroelectric with the largest Pr, the first of equals), as server/kinds/pe_loop.py does for
+judged ferroelectric (the name of a saturated switching loop until migration 0019, which runs after
+this one) with the largest Pr, the first of equals), as server/kinds/pe_loop.py does for
 new measurements.
 """
 from typing import Sequence, Union

@@ -8,6 +8,7 @@ honest 95 % prediction interval.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass, field
@@ -22,9 +23,10 @@ from server.errors import AnalysisError
 METHOD = (
     "Ordinary least-squares line measured = a + b * computed with the textbook 95 % "
     "prediction interval (Montgomery, Peck and Vining, Introduction to Linear Regression "
-    "Analysis, Wiley)."
+    "Analysis, Wiley); pairs whose computed minimum is planar left out, a line per bridge type from five "
+    "pairs, no calibrated value whose 95 % interval is wider than 3 kcal/mol."
 )
-VERSION = "calibration/1.0"
+VERSION = "calibration/1.1"  # 1.1: planar minima left out, lines per bridge type, interval limit
 
 MIN_PAIRS = 3
 FEW_PAIRS = 5  # below this the prediction band is very wide (t with <= 2 dof); common practice
@@ -233,3 +235,110 @@ def calibrate(
         flags=tuple(flags),
         **base,
     )
+
+
+# ----------------------------------------------------------------------------- which pairs, which line
+
+#: A computed barrier at or below this (kcal/mol) means the optimised minimum collapsed to planar: the
+#: "barrier" is then no barrier of the bowl and must not set a calibration line (our rule; the xtb estimate
+#: also says so in its ``planar`` field).
+PLANAR_BARRIER_KCAL = 0.1
+#: A bridge type gets a line of its own from this many pairs (the same five pairs as :data:`FEW_PAIRS`:
+#: with fewer the band rests on two or fewer degrees of freedom; common practice, see above).
+MIN_PAIRS_PER_BRIDGE = FEW_PAIRS
+#: No calibrated value is shown whose 95 % prediction interval is wider than this, end to end (kcal/mol).
+#: Our limit: at 298 K, 3 kcal/mol is a factor of about 160 in an Eyring rate (exp(3 / 0.593)), so a wider
+#: interval no longer says whether a bowl inverts on the time scale of a measurement.
+INTERVAL_LIMIT_KCAL = 3.0
+
+
+@dataclass(frozen=True)
+class CalibrationPair:
+    """One compound with a measured and a computed barrier (kcal/mol), its bridge type and whether the
+    computed minimum was planar."""
+
+    label: str
+    measured_kcal_mol: float
+    computed_kcal_mol: float
+    bridge: str | None = None
+    planar: bool = False
+
+    @property
+    def collapsed(self) -> bool:
+        """The computed minimum is planar (flagged by the estimate, or a barrier of at most
+        :data:`PLANAR_BARRIER_KCAL`): not a barrier of the bowl."""
+        return self.planar or self.computed_kcal_mol <= PLANAR_BARRIER_KCAL
+
+
+@dataclass(frozen=True)
+class CalibrationSet:
+    """The pooled line over the usable pairs and one line per bridge type with enough pairs."""
+
+    pooled: Calibration
+    by_bridge: dict[str, Calibration]
+    excluded: tuple[CalibrationPair, ...]
+    used: tuple[CalibrationPair, ...]
+
+    def line_for(self, bridge: str | None) -> tuple[Calibration, str]:
+        """The line for a compound of this bridge type, and which one it is (``"bridge CH2"`` or ``"pooled"``)."""
+        if bridge and bridge in self.by_bridge and self.by_bridge[bridge].ok:
+            return self.by_bridge[bridge], f"bridge {bridge}"
+        return self.pooled, "pooled"
+
+    def predict(self, computed_kcal_mol: float, bridge: str | None = None, *,
+                planar: bool = False) -> dict[str, Any]:
+        """A calibrated barrier for a new computed one: ``{"calibrated", "lower", "upper", "line", "shown",
+        "reason"}`` (kcal/mol). ``shown`` is False, with no numbers, when the computed minimum is planar,
+        there is no line, or the 95 % prediction interval is wider than :data:`INTERVAL_LIMIT_KCAL`."""
+        out: dict[str, Any] = {"calibrated": None, "lower": None, "upper": None, "line": None, "shown": False,
+                               "reason": ""}
+        if CalibrationPair("", 0.0, float(computed_kcal_mol), planar=planar).collapsed:
+            out["reason"] = "the computed minimum is planar: no barrier to calibrate"
+            return out
+        cal, which = self.line_for(bridge)
+        out["line"] = which
+        if not cal.ok:
+            out["reason"] = cal.message
+            return out
+        y, lo, hi = cal.predict(computed_kcal_mol)
+        if hi - lo > INTERVAL_LIMIT_KCAL:
+            out["reason"] = (f"the 95 % prediction interval ({hi - lo:.1f} kcal/mol wide) is wider than the "
+                             f"{INTERVAL_LIMIT_KCAL:g} kcal/mol limit")
+            return out
+        out.update(calibrated=y, lower=lo, upper=hi, shown=True)
+        return out
+
+
+def calibrate_pairs(pairs: Sequence[CalibrationPair]) -> CalibrationSet:
+    """Calibration lines from compound pairs, with the rules a referee would ask for.
+
+    1. Pairs whose computed minimum collapsed to planar are left out (:attr:`CalibrationPair.collapsed`):
+       a planar-constrained energy difference of about zero measures a failed optimisation, not the
+       bowl's barrier, and two such points at the origin would set the slope of the line.
+    2. A bridge type with at least :data:`MIN_PAIRS_PER_BRIDGE` usable pairs gets its own line (the
+       barrier of a bowl depends strongly on its bridge atoms, so one line for all can hide two trends);
+       others use the pooled line over all usable pairs.
+    3. Predictions (:meth:`CalibrationSet.predict`) show no value whose 95 % interval is wider than
+       :data:`INTERVAL_LIMIT_KCAL`.
+
+    Each line is the ordinary least-squares fit of :func:`calibrate` (Montgomery, Peck and Vining 2012).
+    """
+    used = tuple(p for p in pairs if not p.collapsed)
+    excluded = tuple(p for p in pairs if p.collapsed)
+
+    def line(ps: Sequence[CalibrationPair]) -> Calibration:
+        return calibrate([p.measured_kcal_mol for p in ps], [p.computed_kcal_mol for p in ps],
+                         labels=[p.label for p in ps])
+
+    pooled = line(used)
+    if excluded:
+        pooled = dataclasses.replace(pooled, flags=pooled.flags + (Flag(
+            "planar_excluded",
+            f"{len(excluded)} pair(s) left out because the computed minimum is planar: "
+            f"{', '.join(p.label for p in excluded)}"),))
+    bridges: dict[str, list[CalibrationPair]] = {}
+    for p in used:
+        if p.bridge:
+            bridges.setdefault(p.bridge, []).append(p)
+    by_bridge = {b: line(ps) for b, ps in sorted(bridges.items()) if len(ps) >= MIN_PAIRS_PER_BRIDGE}
+    return CalibrationSet(pooled=pooled, by_bridge=by_bridge, excluded=excluded, used=used)

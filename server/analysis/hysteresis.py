@@ -26,9 +26,12 @@ METHOD = (
     "linear part, loss as the closed integral of E dP (IEEE Std 180-1986 definitions), with shape "
     "tests that reject lossy-dielectric ellipses (J. F. Scott, J. Phys.: Condens. Matter 20, 021001 (2008))."
 )
-VERSION = "hysteresis/1.1"
+VERSION = "hysteresis/1.2"  # 1.2: a saturated remanent loop is "switching" (was "ferroelectric")
 
-VERDICTS = ("ferroelectric", "paraelectric", "linear_dielectric", "lossy_dielectric", "inconclusive")
+#: ``switching``: a saturated remanent loop. A loop shows switching at most; whether the compound is
+#: ferroelectric is the compound verdict's question (server/analysis/verdict.py; migration 0019 renamed
+#: the stored ``ferroelectric``).
+VERDICTS = ("switching", "paraelectric", "linear_dielectric", "lossy_dielectric", "inconclusive")
 
 MIN_POINTS_PER_CYCLE = 20
 
@@ -46,7 +49,7 @@ NOISY = 0.20  # noise / half the 5-95 % range of P above this: shapes cannot be 
 
 
 # Keys that are only apparent values (what a closed curve gives, not a switched
-# polarization or a coercive field) unless the verdict is "ferroelectric".
+# polarization or a coercive field) unless the verdict is "switching".
 APPARENT_KEYS = ("pr_pos_uC_cm2", "pr_neg_uC_cm2", "pr_uC_cm2", "ec_pos_kV_cm", "ec_neg_kV_cm", "ec_kV_cm")
 
 
@@ -345,7 +348,7 @@ def analyse_loop(
         (None otherwise, with ``squareness``);
         ``loss_mJ_cm3`` = closed integral of E dP (1 uC/cm^2 x 1 kV/cm = 1 mJ/cm^3; positive
         for the usual counter-clockwise loop); ``squareness`` = Pr / Ps; ``apparent`` = the
-        Pr and Ec keys when the verdict is not ``ferroelectric`` (they are then only what
+        Pr and Ec keys when the verdict is not ``switching`` (they are then only what
         the closed curve gives, not a switched polarization or a coercive field);
         ``cycles_found`` (drive periods in the record), ``cycle_used`` (1-based, always the
         last complete one), ``points``
@@ -651,8 +654,8 @@ def analyse_loop(
                 flags.append(Flag("clockwise", "The loop runs clockwise (negative area): the sign of the charge or "
                                   "the field is probably inverted."))
             good = saturated and merged and not rounded and not untested and not is_open and not clockwise
-            verdict = "ferroelectric" if good else "inconclusive"
-    if abs(imprint) > 0.05 * abs(ec) and verdict == "ferroelectric":
+            verdict = "switching" if good else "inconclusive"
+    if abs(imprint) > 0.05 * abs(ec) and verdict == "switching":
         flags.append(Flag("imprint", f"The loop is shifted along E by {imprint:.3g} kV/cm (imprint)."))
 
     # Ps (and Pr/Ps) exist only for a switching loop that saturates: extrapolating the top
@@ -672,7 +675,7 @@ def analyse_loop(
         loss_mJ_cm3=loss,
         squareness=(pr / ps) if ps_defined else None,
         p_offset_uC_cm2=p_offset,
-        apparent=() if verdict == "ferroelectric" else APPARENT_KEYS,
+        apparent=() if verdict == "switching" else APPARENT_KEYS,
         cycles_found=cyc.cycles_found,
         cycle_used=cyc.cycles_found,
         points=int(e.size),

@@ -114,6 +114,8 @@ class PrVanishing(Result):
     t_K: float
     err_K: float
     measurement_ids: tuple[int, ...]
+    #: "bracket" (two loops either side, :func:`pr_vanishing`) or "series fit" (Tc of Pr(T) fits)
+    basis: str = "bracket"
 
 
 @dataclass(frozen=True)
@@ -284,6 +286,7 @@ def build(
     loops: Sequence[LoopPoint] = (),
     point_temperatures: Mapping[int, float] | None = None,
     chain_ch2: int | None = None,
+    series_tc: PrVanishing | None = None,
 ) -> PhaseModel:
     """Transitions from all evidence, classed, and the phases between them.
 
@@ -296,9 +299,13 @@ def build(
     point_temperatures : measurement id -> temperature of single-temperature evidence (structures,
         loops, PUND), so that each phase names the measurements inside it.
     chain_ch2 : number of CH2 groups in all side chains (None when unknown).
+    series_tc : the Curie temperature fitted to the compound's Pr(T) series (power law
+        Pr = A (Tc - T)^beta, :mod:`server.analysis.series`), with its standard error and the
+        measurements of the series. It takes the place of the bracket of :func:`pr_vanishing`: a fit
+        over a whole series says more than the two loops either side of Tc.
     """
     all_scans = list(scans) + series_scans(loops)
-    prz = pr_vanishing(loops)
+    prz = series_tc if series_tc is not None else pr_vanishing(loops)
 
     # 1. DSC: heating/cooling pairs
     raw: list[dict[str, Any]] = []
@@ -421,6 +428,18 @@ def _phases(transitions: Sequence[PhaseTransition], scans: Sequence[Scan],
         else:
             out.append(piece)
     return out
+
+
+def scanned_phase(model: PhaseModel, t_K: float | None) -> Phase | None:
+    """The scanned phase that holds ``t_K`` (within 0.5 K of its edges), or None when no scan reached
+    that temperature (its phase is only inferred) or the temperature is unknown. Scanned phases are
+    maximal: two neighbouring scanned pieces are merged unless a transition separates them."""
+    if t_K is None:
+        return None
+    for p in model.phases:
+        if p.scanned and p.t_from_K - 0.5 <= t_K <= p.t_to_K + 0.5:
+            return p
+    return None
 
 
 def continuity(model: PhaseModel, t1: float | None, t2: float | None) -> Continuity:

@@ -8,7 +8,7 @@ So the evidence must show both
 * a **polar phase**: a crystal structure in one of the ten polar classes
   (International Tables for Crystallography Vol. A), and
 * **switching** in that phase: a PUND difference (switched minus non-switched charge) or a
-  saturated P-E loop judged ferroelectric. Closed loops alone can come from leakage or
+  saturated P-E loop (per-loop verdict ``switching``; weaker). Closed loops alone can come from leakage or
   dielectric loss (J. F. Scott, J. Phys.: Condens. Matter 20, 021001 (2008),
   DOI 10.1088/0953-8984/20/02/021001), so a PUND without switching at the same temperature
   overrides nothing: it is reported as a conflict for a person to look at.
@@ -51,15 +51,15 @@ METHOD = (
     "are both shown in one scanned phase; phases delimited by paired DSC peaks, non-dispersive permittivity maxima "
     "and Pr -> 0, and only scanned intervals without a transition count as one phase."
 )
-VERSION = "verdict/2.0"  # 2.0: phase model with scanned intervals, criteria, PUND needed for the top codes
+VERSION = "verdict/2.1"  # 2.0: phase model with scanned intervals, criteria, PUND needed for the top codes;
+# 2.1: the conclusion with its range and scanned phase; Pr -> 0 from the Pr(T) series fits
 
 SAME_TEMPERATURE_K = phases.SAME_TEMPERATURE_K
 
 
 _KIND_NAMES = {"pe_loop": "P-E loop", "pund": "PUND", "dielectric": "dielectric", "dsc": "DSC", "crystal": "crystal"}
-#: Loop verdicts that mean a saturated remanent loop (``ferroelectric`` is the stored name of loops
-#: analysed before the per-loop verdict was renamed ``switching``).
-_SATURATED_LOOP = ("switching", "ferroelectric")
+#: Loop verdicts that mean a saturated remanent loop (migration 0019 renamed the stored ``ferroelectric``).
+_SATURATED_LOOP = ("switching",)
 #: Transition classes that can be a ferroic (order-disorder or displacive) transition; chain melting,
 #: isotropisation and decomposition are phase boundaries but no evidence of one.
 FERROIC_CANDIDATES = ("solid_solid", "unclassified")
@@ -75,8 +75,7 @@ FLAT_BOWL_A = 0.2
 class Evidence:
     """One analysed measurement, as the verdict needs it.
 
-    ``verdict`` is the analysis verdict (pe_loop: ``"switching"`` (stored earlier as
-    ``"ferroelectric"``), ``"inconclusive"``, ...; pund: ``"switching"`` / ``"no_switching"``;
+    ``verdict`` is the analysis verdict (pe_loop: ``"switching"``, ``"inconclusive"``, ...; pund: ``"switching"`` / ``"no_switching"``;
     crystal: ``"polar"`` / ``"centrosymmetric"`` / ``"non_polar_acentric"``). ``details`` carries the
     kind's facts (see each ``server/kinds`` module's ``evidence``): DSC ``peaks`` and ``segments``,
     dielectric ``t_peak_K``, ``t_min_K``, ``t_max_K``; loop/PUND fields; crystal ``space_group``.
@@ -132,6 +131,26 @@ class PhaseRow(Result):
 
 
 @dataclass(frozen=True)
+class Conclusion(Result):
+    """The verdict in one sentence, with the temperature range it speaks for and its criteria.
+
+    ``t_from_K``-``t_to_K`` is the range the deciding measurements cover (switching temperatures, or
+    the temperatures of a negative test, or of the structure); ``scanned_from_K``-``scanned_to_K`` the
+    scanned, transition-free phase holding that range (None when no scan reached it: the phase there is
+    only inferred). The claim never reaches beyond what was measured.
+    """
+
+    text: str
+    t_from_K: float | None = None
+    t_to_K: float | None = None
+    scanned_from_K: float | None = None
+    scanned_to_K: float | None = None
+    criteria_met: tuple[str, ...] = ()
+    criteria_unmet: tuple[str, ...] = ()
+    criteria_untested: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
 class CompoundVerdict(Result):
     """The verdict, why, and which measurements it rests on."""
 
@@ -146,6 +165,7 @@ class CompoundVerdict(Result):
     criteria: tuple[Criterion, ...] = ()
     phases: tuple[PhaseRow, ...] = ()
     qualifiers: tuple[str, ...] = ()
+    conclusion: Conclusion | None = None
     version: str = VERSION
 
 
@@ -186,7 +206,20 @@ def _positive(value: Any, ev: Evidence, key: str) -> float:
     return t
 
 
-def phase_model(evidence: Sequence[Evidence], chain_ch2: int | None = None) -> PhaseModel:
+def series_vanishing(series_tc: Mapping[str, Any] | None) -> phases.PrVanishing | None:
+    """The compound's fitted Pr(T) Curie temperature (``{"tc_K", "tc_err_K", "measurement_ids"}``, from
+    :func:`server.services.series.compound_tc`) as the phase model's Pr -> 0; None without a Tc and error."""
+    if not series_tc or series_tc.get("tc_K") is None or not series_tc.get("tc_err_K"):
+        return None
+    ids = tuple(int(i) for i in series_tc.get("measurement_ids") or ())
+    if not ids:
+        return None
+    return phases.PrVanishing(t_K=float(series_tc["tc_K"]), err_K=float(series_tc["tc_err_K"]),
+                              measurement_ids=ids, basis="series fit")
+
+
+def phase_model(evidence: Sequence[Evidence], chain_ch2: int | None = None,
+                series_tc: Mapping[str, Any] | None = None) -> PhaseModel:
     """The compound's :class:`~server.analysis.phases.PhaseModel` from its evidence."""
     peaks: list[phases.ThermalPeak] = []
     scans: list[phases.Scan] = []
@@ -219,7 +252,7 @@ def phase_model(evidence: Sequence[Evidence], chain_ch2: int | None = None) -> P
                 loops.append(phases.LoopPoint(ev.measurement_id, ev.temperature_K, ev.verdict in _SATURATED_LOOP,
                                               d.get("pr_uC_cm2")))
     return phases.build(dsc_peaks=peaks, scans=scans, permittivity=maxima, loops=loops, point_temperatures=points,
-                        chain_ch2=chain_ch2)
+                        chain_ch2=chain_ch2, series_tc=series_vanishing(series_tc))
 
 
 def _same_temperature(t1: float | None, t2: float | None) -> bool:
@@ -332,7 +365,7 @@ def _pick_phase(model: PhaseModel, switching: Sequence[Evidence], structures: Se
 
 
 def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
-           rates: Sequence[Mapping[str, Any]] = ()) -> CompoundVerdict:
+           rates: Sequence[Mapping[str, Any]] = (), series_tc: Mapping[str, Any] | None = None) -> CompoundVerdict:
     """Combine the analysed measurements of one compound into a verdict.
 
     Parameters
@@ -344,6 +377,9 @@ def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
     rates : sequence of mappings, optional
         Measured inversion barriers ``{"measurement_id", "dh_kJ_mol", "ds_J_molK"}`` (Eyring), for the rate
         consistency flag.
+    series_tc : mapping, optional
+        The compound's Curie temperature fitted to its Pr(T) series ``{"tc_K", "tc_err_K", "measurement_ids"}``
+        (:func:`series_vanishing`): the phase model's Pr -> 0 temperature.
 
     Returns
     -------
@@ -351,7 +387,9 @@ def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
         ``code`` and ``label`` (see module table), ``reason``, ``switching_temperatures_K``, ``transitions_K``
         (one per physical transition), ``transitions`` (classed, with their rule), ``used``, ``conflicts``
         (each with a suggested explanation), ``criteria`` (met / unmet / untested with measurement ids),
-        ``phases`` (intervals, scanned or inferred) and ``qualifiers`` (e.g. "tested at one temperature only").
+        ``phases`` (intervals, scanned or inferred), ``qualifiers`` (e.g. "tested at one temperature only") and
+        ``conclusion`` (:class:`Conclusion`: the sentence with its temperature range, the scanned phase holding
+        it and the criteria by state).
 
     Notes
     -----
@@ -378,7 +416,7 @@ def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
                 field="temperature",
             )
     roles = [(ev, _role(ev)) for ev in evidence]
-    model = phase_model(evidence, chain_ch2)
+    model = phase_model(evidence, chain_ch2, series_tc)
     transitions = model.transitions
     used = tuple(UsedEvidence(ev.measurement_id, ev.kind, role, ev.temperature_K) for ev, role in roles)
 
@@ -457,8 +495,10 @@ def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
     )
 
     def verdict(code: str, reason: str, conf: Sequence[Conflict] | None = None) -> CompoundVerdict:
+        concl = conclusion(code, model, criteria, switching=switching, pund_sw=pund_sw, negatives=negatives,
+                           polar=polar, nonpolar=nonpolar)
         return CompoundVerdict(code=code, label=LABELS[code], reason=reason,
-                               conflicts=tuple(conflicts if conf is None else conf), **common)
+                               conflicts=tuple(conflicts if conf is None else conf), conclusion=concl, **common)
 
     listed = f" Inconclusive P-E loops ({_ids(inconclusive)}) were not counted." if inconclusive else ""
     if model.relaxor_maxima_K:
@@ -555,6 +595,75 @@ def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
     if inconclusive:
         return verdict("untested", f"Only inconclusive P-E loops ({_ids(inconclusive)}) so far.{listed}")
     return verdict("untested", f"No polarity, switching or transition measurements analysed yet.{listed}")
+
+
+#: What each code claims, as the opening of its conclusion.
+_CLAIMS = {
+    "polar_switching_supported": "polar structure and PUND switching in one scanned phase",
+    "switching_phase_unknown": "PUND switching, polar structure of that phase not shown",
+    "loop_switching_only": "saturated loops, switching not confirmed by PUND",
+    "polar_unswitched": "polar structure, switching not shown",
+    "nonpolar": "only non-polar structures",
+    "transition_only": "phase transition, no polarity evidence",
+    "no_switching_seen": "no switching seen",
+    "conflicting": "conflicting evidence",
+    "untested": "nothing conclusive",
+}
+
+
+def conclusion(code: str, model: PhaseModel, criteria: Sequence[Criterion], *, switching: Sequence[Evidence],
+               pund_sw: Sequence[Evidence], negatives: Sequence[Evidence], polar: Sequence[Evidence],
+               nonpolar: Sequence[Evidence]) -> Conclusion:
+    """The verdict's conclusion: what is claimed, over which temperatures, in which scanned phase, by which
+    criteria. A positive claim speaks for its switching temperatures only (and, where a transition bounds them,
+    up to Tc, :func:`switching_range_text`); a negative one keeps its temperature and highest field; neither is
+    carried into a stretch of temperature that no DSC, permittivity or series scan reached (the referee's
+    question "was the phase between these temperatures looked at?", Lines and Glass 1977 ch. 1)."""
+    if code in ("polar_switching_supported", "switching_phase_unknown", "loop_switching_only", "conflicting") \
+            and switching:
+        deciding = pund_sw if (pund_sw and code != "loop_switching_only") else switching
+        temps = [e.temperature_K for e in deciding if e.temperature_K is not None]
+        what = switching_range_text(temps, model.transitions) if temps else "switches (temperature not recorded)"
+    elif code in ("no_switching_seen", "polar_unswitched", "nonpolar") and negatives:
+        temps = [e.temperature_K for e in negatives if e.temperature_K is not None]
+        what = _negative_text(negatives)
+    elif code in ("polar_unswitched", "nonpolar"):
+        sts = polar if code == "polar_unswitched" else nonpolar
+        temps = [e.temperature_K for e in sts if e.temperature_K is not None]
+        what = "; ".join(_structure_phrase(e) for e in sts[:2])
+    elif code == "transition_only" and model.transitions:
+        temps = [t.t_K for t in model.transitions]
+        what = "transitions at " + ", ".join(f"{t.t_K:.0f} K" for t in model.transitions)
+    else:
+        temps, what = [], ""
+    lo = min(temps) if temps else None
+    hi = max(temps) if temps else None
+    scope = ""
+    sc_lo = sc_hi = None
+    if lo is not None:
+        p_lo, p_hi = phases.scanned_phase(model, lo), phases.scanned_phase(model, hi)
+        if p_lo is not None and p_lo is p_hi:
+            sc_lo, sc_hi = p_lo.t_from_K, p_lo.t_to_K
+            scope = f"in the phase scanned from {sc_lo:.0f} K to {sc_hi:.0f} K"
+        elif p_lo is None and p_hi is None:
+            scope = (f"no DSC, permittivity or series scan reached {_t_range(temps)}: the phase there is "
+                     "inferred only")
+        else:
+            unscanned = [t for t, p in ((lo, p_lo), (hi, p_hi)) if p is None]
+            scope = ("spanning more than one phase" if not unscanned else
+                     f"the phase at {unscanned[0]:.0f} K was not scanned (inferred only)")
+    by_state = {st: tuple(c.name for c in criteria if c.state == st) for st in ("met", "unmet", "untested")}
+    parts = [_CLAIMS[code] + (f": {what}" if what else "")]
+    if scope:
+        parts.append(scope)
+    crit = []
+    for st, word in (("met", "met"), ("unmet", "unmet"), ("untested", "not tested")):
+        if by_state[st]:
+            crit.append(f"{word}: {', '.join(by_state[st])}")
+    text = _cap("; ".join(parts)) + "." + (f" Criteria {'; '.join(crit)}." if crit else "")
+    return Conclusion(text=text, t_from_K=lo, t_to_K=hi, scanned_from_K=sc_lo, scanned_to_K=sc_hi,
+                      criteria_met=by_state["met"], criteria_unmet=by_state["unmet"],
+                      criteria_untested=by_state["untested"])
 
 
 def _eyring_rate_s(rate: Mapping[str, Any], t_K: float | None) -> float | None:

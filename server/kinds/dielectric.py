@@ -1,4 +1,6 @@
-"""Dielectric spectroscopy: permittivity peaks against temperature and a Curie-Weiss fit."""
+"""Permittivity versus temperature at fixed frequencies: the maximum, its dispersion, loss and a Curie-Weiss fit.
+
+Not dielectric spectroscopy (permittivity against frequency, fitted by server/analysis/relaxation.py)."""
 
 from __future__ import annotations
 
@@ -51,7 +53,7 @@ def _example() -> Example:
 
 KIND = Kind(
     name="dielectric",
-    label="Dielectric spectroscopy",
+    label="Permittivity versus temperature",
     analysis=dielectric,
     analyse=_analyse,
     column_sets=(("T_K", "f_Hz", "C_F", "tan_delta"), ("T_K", "f_Hz", "eps_r", "eps_i")),

@@ -8,10 +8,11 @@ from pydantic import BaseModel, Field
 from sqlmodel import Session, select
 
 from ..analysis import kinetics
-from ..analysis.calibration import calibrate
+from ..analysis.calibration import (INTERVAL_LIMIT_KCAL, MIN_PAIRS_PER_BRIDGE, CalibrationPair, CalibrationSet,
+                                    calibrate_pairs)
 from ..analysis.results import jsonable
 from ..errors import InputError
-from ..models import BarrierEstimate, Compound, Measurement
+from ..models import BarrierEstimate, Compound, Measurement, Scaffold
 from ..plots import figure_json
 from ..plots.kinetics import calibration_figure
 from . import audit, stats
@@ -185,8 +186,15 @@ def _latest(rows: list[BarrierEstimate], methods: tuple[str, ...]) -> Optional[B
     return chosen[-1] if chosen else None
 
 
+def _bridge(session: Session, compound: Compound) -> Optional[str]:
+    """The compound's bridge type (its scaffold's bridge, e.g. ``CH2`` or ``S``); None without a scaffold."""
+    sc = session.get(Scaffold, compound.scaffold_id) if compound.scaffold_id else None
+    return (sc.bridge or None) if sc else None
+
+
 def calibration_pairs(session: Session) -> list[dict[str, Any]]:
-    """Per compound, its latest measured barrier (dynamic NMR) and latest GFN2-xTB estimate."""
+    """Per compound, its latest measured barrier (dynamic NMR) and latest GFN2-xTB estimate, with the
+    bridge type and whether the computed minimum was planar."""
     rows = session.exec(select(BarrierEstimate).order_by(BarrierEstimate.id)).all()
     by_compound: dict[int, list[BarrierEstimate]] = {}
     for r in rows:
@@ -198,13 +206,21 @@ def calibration_pairs(session: Session) -> list[dict[str, Any]]:
             compound = session.get(Compound, cid)
             if compound.archived:
                 continue
+            pair = CalibrationPair(compound.code, m.dg_kcal_mol, c.dg_kcal_mol, bridge=_bridge(session, compound),
+                                   planar=bool((c.results or {}).get("planar")))
             pairs.append({"code": compound.code, "measured": m.dg_kcal_mol, "computed": c.dg_kcal_mol,
-                          "measured_method": m.method})
+                          "measured_method": m.method, "bridge": pair.bridge, "planar": pair.collapsed})
     return sorted(pairs, key=lambda p: p["code"])
 
 
-def calibrated_estimates(session: Session, cal) -> list[dict[str, Any]]:  # noqa: ANN001 - a Calibration
-    """Every compound's latest computed barrier beside its calibrated value and 95 % prediction interval."""
+def _calibration_set(pairs: list[dict[str, Any]]) -> CalibrationSet:
+    return calibrate_pairs([CalibrationPair(p["code"], p["measured"], p["computed"], bridge=p["bridge"],
+                                            planar=p["planar"]) for p in pairs])
+
+
+def calibrated_estimates(session: Session, cal: CalibrationSet) -> list[dict[str, Any]]:
+    """Every compound's latest computed barrier beside its calibrated value and 95 % prediction interval
+    (:meth:`CalibrationSet.predict`: none for a planar minimum or an interval wider than the limit)."""
     rows = session.exec(select(BarrierEstimate).where(BarrierEstimate.method == "gfn2-xtb",
                                                       BarrierEstimate.archived == False)  # noqa: E712
                         .order_by(BarrierEstimate.id)).all()
@@ -212,10 +228,8 @@ def calibrated_estimates(session: Session, cal) -> list[dict[str, Any]]:  # noqa
     out = []
     for cid, r in sorted(latest.items()):
         compound = session.get(Compound, cid)
-        item = {"code": compound.code, "computed": r.dg_kcal_mol, "calibrated": None, "lower": None, "upper": None}
-        if cal.ok:
-            item["calibrated"], item["lower"], item["upper"] = cal.predict(r.dg_kcal_mol)
-        out.append(item)
+        pred = cal.predict(r.dg_kcal_mol, _bridge(session, compound), planar=bool((r.results or {}).get("planar")))
+        out.append({"code": compound.code, "computed": r.dg_kcal_mol, **pred})
     return out
 
 
@@ -231,18 +245,30 @@ def barrier_rows(session: Session, compound: Compound, *, t_K: float,
     return rows
 
 
-def current_calibration(session: Session):  # noqa: ANN201 - a Calibration or None
-    """The current calibration (measured = a + b computed), or None with fewer than three pairs."""
-    pairs = calibration_pairs(session)
-    cal = calibrate([p["measured"] for p in pairs], [p["computed"] for p in pairs])
-    return cal if cal.ok else None
+def current_calibration(session: Session) -> CalibrationSet:
+    """The current calibration lines (pooled, and per bridge type with enough pairs)."""
+    return _calibration_set(calibration_pairs(session))
+
+
+def calibrated_for(session: Session, compound: Compound,
+                   estimates: list[BarrierEstimate]) -> dict[int, dict[str, Any]]:
+    """Estimate id -> its calibrated value (:meth:`CalibrationSet.predict`) for the compound's computed
+    estimates; empty when no line can be fitted."""
+    cal = current_calibration(session)
+    bridge = _bridge(session, compound)
+    if not (cal.pooled.ok or (bridge and bridge in cal.by_bridge)):
+        return {}
+    return {e.id: cal.predict(e.dg_kcal_mol, bridge, planar=bool((e.results or {}).get("planar")))
+            for e in estimates if e.dg_kcal_mol is not None}
 
 
 def calibration_view(session: Session) -> dict[str, Any]:
-    """The calibration page's data: pairs, the fit with its prediction band (as a figure) and the
-    calibrated estimates of compounds without a measured barrier."""
+    """The calibration page's data: pairs (planar ones marked as left out), the pooled fit with its
+    prediction band (as a figure), the per-bridge lines and the calibrated estimates."""
     pairs = calibration_pairs(session)
-    codes = [p["code"] for p in pairs]
-    cal = calibrate([p["measured"] for p in pairs], [p["computed"] for p in pairs], labels=codes)
-    fig = figure_json(calibration_figure(cal, codes)) if pairs else None
-    return {"cal": cal, "pairs": pairs, "figure": fig, "predictions": calibrated_estimates(session, cal)}
+    cset = _calibration_set(pairs)
+    cal = cset.pooled
+    fig = figure_json(calibration_figure(cal, list(cal.labels))) if cset.used else None
+    return {"cal": cal, "pairs": pairs, "figure": fig, "by_bridge": cset.by_bridge,
+            "predictions": calibrated_estimates(session, cset), "limit_kcal_mol": INTERVAL_LIMIT_KCAL,
+            "min_pairs_per_bridge": MIN_PAIRS_PER_BRIDGE}

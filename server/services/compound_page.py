@@ -52,6 +52,7 @@ def compound_page(session: Session, compound: Compound, *, actor: Optional[Actor
     fig = None if hide else summary.switching_by_series(lines, loose)
     jobs, _ = queue.list_jobs(session, compound_id=compound.id, limit=5)
     withheld = access.withheld_codes(session, actor)
+    own_estimates = [] if hide else estimates.estimates_of(session, compound)
     return {
         "c": registry.compound_read(session, compound, actor=actor),
         "batches": batches,
@@ -66,8 +67,8 @@ def compound_page(session: Session, compound: Compound, *, actor: Optional[Actor
         "phase_map": phase_id.phase_map(session, compound, actor=actor),
         "barriers": barriers.barrier_rows(session, compound, t_K=DEFAULT_T_K, frequency_Hz=DEFAULT_F_HZ),
         "t": "298.15 K", "f": "1 kHz", "t_K": DEFAULT_T_K, "f_Hz": DEFAULT_F_HZ, "rate_error": None,
-        "estimates": [] if hide else estimates.estimates_of(session, compound),
-        "calibrated": barriers.current_calibration(session),
+        "estimates": own_estimates,
+        "calibrated": barriers.calibrated_for(session, compound, own_estimates),
         "active_jobs": [access.job_as_seen(queue.job_read(j, session=session), withheld)
                         for j in jobs if j.state in ("queued", "running")],
     }

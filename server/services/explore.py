@@ -101,11 +101,11 @@ class Point:
 
 
 def _loops_at(session: Session, compound_ids: list[int], t_K: float) -> dict[int, dict[str, Any]]:
-    """The ferroelectric loop closest to t_K (within SAME_T_K) per compound."""
+    """The saturated switching loop closest to t_K (within SAME_T_K) per compound."""
     rows = session.exec(
         select(Batch.compound_id, Measurement.temperature_K, Measurement.results)
         .join(Batch, Batch.id == Measurement.batch_id)
-        .where(Measurement.kind == "pe_loop", Measurement.verdict == "ferroelectric",
+        .where(Measurement.kind == "pe_loop", Measurement.verdict == "switching",
                live_measurement(), Batch.compound_id.in_(compound_ids),  # noqa: E712
                Measurement.temperature_K.is_not(None),
                Measurement.temperature_K >= t_K - SAME_T_K, Measurement.temperature_K <= t_K + SAME_T_K)

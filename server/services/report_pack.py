@@ -150,6 +150,7 @@ def _verdict(compound: Compound) -> dict[str, Any]:
     effective = verdicts.effective_code(compound)
     return {"code": effective, "label": LABELS.get(effective, effective), "computed": computed,
             "override": read["override"], "reason": computed.get("reason", ""),
+            "conclusion": computed.get("conclusion"),
             "conflicts": [c.get("message", "") for c in computed.get("conflicts") or []],
             "used": computed.get("used") or []}
 
@@ -168,6 +169,8 @@ def _summary_pdf(data: dict[str, Any], structure_png: Optional[bytes]) -> bytes:
         lines += [("h", "Verdict"), ("t", v["label"])]
         if v["override"]:
             lines.append(("t", f"set by hand: {v['override']['reason']}"))
+        if v["conclusion"]:
+            lines.append(("t", f"conclusion: {v['conclusion']['text']}"))
         if v["reason"]:
             lines.append(("t", v["reason"]))
         lines += [("t", f"conflict: {c}") for c in v["conflicts"]]

@@ -264,7 +264,7 @@ def sample_history(session: Session, sample: Sample, *, transition_K: Optional[d
         if field is not None:
             max_field = field if max_field is None else max(max_field, field)
             ec = (m.results or {}).get("ec_kV_cm")
-            if m.verdict == "ferroelectric" and (not isinstance(ec, (int, float)) or field > abs(ec)):
+            if m.verdict == "switching" and (not isinstance(ec, (int, float)) or field > abs(ec)):
                 poled = True
         if t is not None:
             max_t = t if max_t is None else max(max_t, t)

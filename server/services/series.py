@@ -135,8 +135,8 @@ def fit_series(kind: str, variable: str, members: Sequence[Measurement]) -> dict
     ec = [(m.results or {}).get("ec_kV_cm") for m in members]
     out: dict[str, Any] = {"method": fits.METHOD, "analysis_version": fits.VERSION}
     if variable == "temperature":
-        # A loop the analysis does not judge ferroelectric has no remanence to speak of: Pr = 0 there.
-        pr = [((m.results or {}).get(pr_key) or 0.0) if (m.verdict == "ferroelectric" or kind == "pund") else 0.0
+        # A loop the analysis does not judge switching has no remanence to speak of: Pr = 0 there.
+        pr = [((m.results or {}).get(pr_key) or 0.0) if (m.verdict == "switching" or kind == "pund") else 0.0
               for m in members]
         out["pr_T"] = fits.fit_pr_temperature(x, pr).to_dict()
         if kind == "pe_loop":
@@ -228,22 +228,33 @@ def _pr_fits(entries: Sequence[dict[str, Any]]) -> list[fits.PrTemperatureFit]:
 
 
 def combine_series_tc(entries: Sequence[dict[str, Any]]) -> Optional[dict[str, Any]]:
-    """A Curie temperature estimate from series entries (:func:`sample_series`)."""
-    return fits.combine_tc(_pr_fits(entries))
+    """A Curie temperature estimate from series entries (:func:`sample_series`), with the
+    ``measurement_ids`` of the series that gave a Tc."""
+    est = fits.combine_tc(_pr_fits(entries))
+    if est is None:
+        return None
+    ids = sorted({i for e in entries if ((e["fit"].get("pr_T") or {}).get("tc_K") is not None
+                                         and (e["fit"].get("pr_T") or {}).get("tc_err_K"))
+                  for i in e["measurements"]})
+    return {**est, "measurement_ids": ids}
 
 
 def compound_tc(session: Session, compound: Compound) -> Optional[dict[str, Any]]:
     """The compound's Curie temperature estimated from every Pr(T) series of its samples
     (:func:`server.analysis.series.combine_tc`); None when no series gives a Tc with an error.
     The verdict can use it as the compound's transition temperature."""
-    entries = [e for s, _ in samples_of_compound(session, compound) for e in sample_series(session, s)]
-    return combine_series_tc(entries)
+    return combine_series_tc(compound_series_entries(session, compound))
+
+
+def compound_series_entries(session: Session, compound: Compound) -> list[dict[str, Any]]:
+    """Every series of every sample of the compound (:func:`sample_series`)."""
+    return [e for s, _ in samples_of_compound(session, compound) for e in sample_series(session, s)]
 
 
 def transition_K(session: Session, sample: Sample) -> Optional[dict[str, Any]]:
     """The transition temperature the sample's history is judged against: its own Pr(T) series,
     else the compound's estimate; None when neither gives one."""
-    own = fits.combine_tc(_pr_fits(sample_series(session, sample)))
+    own = combine_series_tc(sample_series(session, sample))
     if own is not None:
         return {**own, "from": "this sample's Pr(T) series"}
     batch = session.get(Batch, sample.batch_id)

@@ -52,7 +52,7 @@ def set_public_status(*, session: Session, enabled: bool, actor: str) -> None:
 
 
 # How "current hits" are ranked, in words the page shows beside the table.
-HITS_RULE = ("Ranked by the largest remanent polarisation Pr of a live loop judged ferroelectric, over every "
+HITS_RULE = ("Ranked by the largest remanent polarisation Pr of a live, saturated switching loop, over every "
              "temperature, field amplitude and specimen measured; each row names the temperature, field "
              "amplitude and specimen of that loop, so unlike conditions are visible. Loops whose values are "
              "only apparent (leaky or lossy) are not ranked.")

@@ -14,6 +14,7 @@ from ..verdict_codes import LABELS, RETIRED, effective
 from ..analysis.constants import CAL_J
 from ..models import Batch, Compound, CompoundSideChain, Measurement, utcnow, live_measurement
 from . import audit
+from .series import combine_series_tc, compound_series_entries
 
 
 def evidence_kinds() -> tuple[str, ...]:
@@ -62,7 +63,13 @@ def measured_rates(session: Session, compound: Compound) -> list[dict[str, Any]]
 
 
 def decide_for(session: Session, compound: Compound, evidence: list[rules.Evidence]) -> rules.CompoundVerdict:
-    return rules.decide(evidence, chain_ch2=chain_ch2(session, compound), rates=measured_rates(session, compound))
+    """The verdict from ``evidence``, with the compound's chain CH2 count, measured rates and the Curie
+    temperature of its Pr(T) series (:func:`server.services.series.compound_tc`, limited to the series
+    whose measurements are among ``evidence``, so a batch verdict uses its own series only)."""
+    ids = {ev.measurement_id for ev in evidence}
+    entries = [e for e in compound_series_entries(session, compound) if set(e["measurements"]) <= ids]
+    return rules.decide(evidence, chain_ch2=chain_ch2(session, compound), rates=measured_rates(session, compound),
+                        series_tc=combine_series_tc(entries))
 
 
 def batch_verdicts(session: Session, compound: Compound) -> dict[int, rules.CompoundVerdict]:

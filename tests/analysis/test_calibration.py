@@ -120,3 +120,58 @@ def test_predict_rejects_non_finite():
         cal.predict(float("nan"))
     with pytest.raises(AnalysisError):
         cal.band([1.0, float("inf")])
+
+
+# ----------------------------------------------------------------------------- rules (issue 16, item 9)
+
+from server.analysis.calibration import (INTERVAL_LIMIT_KCAL, CalibrationPair,  # noqa: E402
+                                         calibrate_pairs)
+
+
+def _pairs(rng, bridge, a, b, xs, noise=0.25):
+    """Pairs on measured = a + b computed with Gaussian noise (kcal/mol): generated, known line."""
+    return [CalibrationPair(f"{bridge}-{i}", a + b * x + noise * rng.standard_normal(), x, bridge=bridge)
+            for i, x in enumerate(xs)]
+
+
+def test_planar_minima_are_left_out_of_the_line():
+    # The reproduced case: four pairs, two of them collapsed to planar (computed 0 and 0.07 kcal/mol). With
+    # them, the line is set by two points at the origin; without them, too few pairs remain for a line.
+    pairs = [CalibrationPair("A", 9.8, 8.0), CalibrationPair("B", 12.1, 10.5),
+             CalibrationPair("C", 15.2, 0.0, planar=True), CalibrationPair("D", 16.0, 0.07)]
+    naive = calibrate([p.measured_kcal_mol for p in pairs], [p.computed_kcal_mol for p in pairs])
+    assert naive.ok and naive.b < 0  # the failed computations turn the slope over
+    s = calibrate_pairs(pairs)
+    assert [p.label for p in s.excluded] == ["C", "D"]
+    assert s.pooled.status == "insufficient" and s.pooled.n == 2
+    assert "planar_excluded" in {f.code for f in s.pooled.flags}
+    assert s.predict(9.0)["shown"] is False
+    assert "planar" in s.predict(0.05)["reason"]
+
+
+def test_a_bridge_type_with_five_pairs_gets_its_own_line():
+    # Two generated families: CH2-bridged bowls on measured = 2.0 + 0.90 computed, S-bridged ones on
+    # measured = 6.0 + 0.60 computed. Six CH2 pairs (>= 5) get their own line; three S pairs use the pooled one.
+    rng = np.random.default_rng(4)
+    ch2 = _pairs(rng, "CH2", 2.0, 0.90, [8.0, 9.5, 11.0, 12.5, 14.0, 15.5])
+    s_pairs = _pairs(rng, "S", 6.0, 0.60, [7.0, 10.0, 13.0])
+    s = calibrate_pairs(ch2 + s_pairs)
+    assert set(s.by_bridge) == {"CH2"}
+    cal = s.by_bridge["CH2"]
+    assert abs(cal.b - 0.90) < 3 * cal.b_err and abs(cal.a_kcal_mol - 2.0) < 3 * cal.a_err_kcal_mol
+    assert s.line_for("CH2")[1] == "bridge CH2" and s.line_for("S")[1] == "pooled"
+    p = s.predict(12.0, "CH2")
+    assert p["shown"] and p["line"] == "bridge CH2"
+    assert p["lower"] < 2.0 + 0.9 * 12.0 < p["upper"]
+    assert p["upper"] - p["lower"] <= INTERVAL_LIMIT_KCAL
+
+
+def test_no_calibrated_value_with_an_interval_wider_than_the_limit():
+    # Three noisy pairs (1 dof, t = 12.7): the 95 % prediction interval is far wider than 3 kcal/mol.
+    rng = np.random.default_rng(9)
+    s = calibrate_pairs(_pairs(rng, "CH2", 2.0, 0.9, [8.0, 11.0, 14.0], noise=0.4))
+    assert s.pooled.ok
+    y, lo, hi = s.pooled.predict(11.0)
+    assert hi - lo > INTERVAL_LIMIT_KCAL
+    p = s.predict(11.0, "CH2")
+    assert p["shown"] is False and p["calibrated"] is None and "wider than" in p["reason"]

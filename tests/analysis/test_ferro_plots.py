@@ -28,7 +28,7 @@ def test_loop_figure_marks_pr_and_ec():
     assert all("kV/cm" in s for s in ec.text)
     loop = fig.data[0]
     assert np.asarray(loop.x).size == r.points
-    assert "ferroelectric" in loop.name
+    assert "switching" in loop.name
 
 
 def test_pund_figure_labels_the_five_pulses():

@@ -54,7 +54,7 @@ def test_miller_loop_gives_pr_ec_and_no_imprint():
     assert r.ec_neg_kV_cm == pytest.approx(-50.00, rel=2e-3)
     assert abs(r.imprint_kV_cm) < 0.02 * 50
     assert r.emax_kV_cm == pytest.approx(300.0)
-    assert r.verdict == "ferroelectric"
+    assert r.verdict == "switching"
     assert not codes(r) & {"elliptical", "no_saturation", "rounded_tips", "leaky", "open_loop"}
 
 
@@ -70,7 +70,7 @@ def test_imprint_shifts_both_coercive_fields():
     d = miller_delta(10, 8, 50)
     assert r.pr_pos_uC_cm2 == pytest.approx(10 * math.tanh(45 / (2 * d)), rel=2e-3)
     assert r.pr_neg_uC_cm2 == pytest.approx(10 * math.tanh(-55 / (2 * d)), rel=2e-3)
-    assert r.verdict == "ferroelectric"
+    assert r.verdict == "switching"
     assert "imprint" in codes(r)
 
 
@@ -89,7 +89,7 @@ def test_ps_with_linear_background():
     assert r.ps_uC_cm2 == pytest.approx(10.0, rel=5e-3)
     assert r.pmax_uC_cm2 == pytest.approx(10.0 + EPS0 * 200 * 3e7 * 100, rel=1e-3)
     assert r.pr_uC_cm2 == pytest.approx(8.0, rel=2e-3)  # the background adds nothing at E = 0
-    assert r.verdict == "ferroelectric"
+    assert r.verdict == "switching"
 
 
 def test_loss_matches_the_analytic_tanh_integral():
@@ -115,13 +115,13 @@ def test_triangular_drive_and_noise_keep_the_numbers():
     r = analyse_loop(canon(miller_loop(10, 8, 50, 300, drive="triangle")))
     assert r.pr_uC_cm2 == pytest.approx(8.0, rel=2e-3)
     assert r.ec_kV_cm == pytest.approx(50.0, rel=2e-3)
-    assert r.verdict == "ferroelectric"
+    assert r.verdict == "switching"
     noisy = analyse_loop(canon(miller_loop(10, 8, 50, 300, noise_uC_cm2=0.1, rng=np.random.default_rng(7))))
     assert noisy.pr_uC_cm2 == pytest.approx(8.0, rel=0.02)  # brief: within 2 %
     assert noisy.ec_kV_cm == pytest.approx(50.0, rel=0.02)
     assert noisy.shape["noise_uC_cm2"] == pytest.approx(0.1, rel=0.2)  # the noise we added
     assert noisy.pmax_uC_cm2 == pytest.approx(10.0, abs=0.15)  # not inflated by ~3 sigma
-    assert noisy.verdict == "ferroelectric"
+    assert noisy.verdict == "switching"
 
 
 # ---------------------------------------------------------------- non-ferroelectric loops
@@ -135,7 +135,7 @@ def test_scott_ellipse_is_a_lossy_dielectric_not_a_ferroelectric():
     assert r.pmax_uC_cm2 == pytest.approx(0.088983, rel=1e-3)
     assert r.pr_uC_cm2 == pytest.approx(0.0088542, rel=1e-3)
     assert r.ec_kV_cm == pytest.approx(9.9504, rel=1e-3)
-    assert r.verdict != "ferroelectric"
+    assert r.verdict != "switching"
     assert r.verdict == "lossy_dielectric"
     assert "elliptical" in codes(r)
 
@@ -225,7 +225,7 @@ def test_drifting_loop_is_open_and_not_ferroelectric():
     frame["P_uC_cm2"] = frame["P_uC_cm2"] + 2.0 * np.arange(len(frame)) / 500
     r = analyse_loop(frame)
     assert "open_loop" in codes(r)
-    assert r.verdict != "ferroelectric"
+    assert r.verdict != "switching"
 
 
 def test_noise_swamping_the_loop_is_inconclusive():
@@ -273,7 +273,7 @@ def test_vit_input_integrates_the_current():
     assert r.ec_kV_cm == pytest.approx(50.0, rel=5e-3)
     assert abs(r.pr_pos_uC_cm2 + r.pr_neg_uC_cm2) < 0.05  # centred
     assert r.frequency_Hz == pytest.approx(f, rel=1e-6)
-    assert r.verdict == "ferroelectric"
+    assert r.verdict == "switching"
     # the synthetic helper (numerical derivative) round-trips too
     raw = canon(raw_vi(miller_loop(ps, pr, ec, emax, cycles=2, points_per_cycle=2000), area, d_um))
     assert analyse_loop(raw, area_cm2=area, thickness_um=d_um).pr_uC_cm2 == pytest.approx(8.0, rel=5e-3)
@@ -339,7 +339,7 @@ def test_e_p_file_with_an_offset_is_centred_and_the_offset_reported():
     assert r.to_dict()["p_offset_uC_cm2"] == pytest.approx(20.0, abs=0.01)
     assert r.pr_pos_uC_cm2 == pytest.approx(8.0, rel=2e-3)
     assert r.ec_pos_kV_cm == pytest.approx(50.0, rel=2e-3)
-    assert r.verdict == "ferroelectric"
+    assert r.verdict == "switching"
 
 
 def test_unipolar_drive_is_refused():
@@ -436,7 +436,7 @@ def test_integrator_charge_from_zero_is_centred():
     assert abs(r.imprint_kV_cm) < 0.3
     assert r.pr_uC_cm2 == pytest.approx(8.0, rel=0.02)
     assert r.p_offset_uC_cm2 == pytest.approx(-frame["P (uC/cm^2)"].iloc[0], abs=0.02)
-    assert r.verdict == "ferroelectric"
+    assert r.verdict == "switching"
     # the same with a sine that starts at zero field on the ascending branch (P = -Pr there):
     # the integrator's zero sits at -Pr, so the offset removed is +Pr = 8
     loop = sine_from_zero(10, 8, 18, 100, 2, 1000, noise=0.03, seed=4)
@@ -445,7 +445,7 @@ def test_integrator_charge_from_zero_is_centred():
     assert r2.ec_pos_kV_cm == pytest.approx(18.0, rel=0.02)
     assert r2.ec_neg_kV_cm == pytest.approx(-18.0, rel=0.02)
     assert r2.p_offset_uC_cm2 == pytest.approx(8.0, abs=0.1)
-    assert r2.verdict == "ferroelectric"
+    assert r2.verdict == "switching"
 
 
 def test_three_period_sine_is_three_cycles_and_complete():
@@ -479,7 +479,7 @@ def test_saturated_loop_stays_ferroelectric_under_noise(drive, raw):
             else:
                 r = analyse_loop(canon(frame))
             where = f"noise {level:.1%} of Ps, seed {seed}"
-            assert r.verdict == "ferroelectric", (where, [f.code for f in r.flags], r.shape)
+            assert r.verdict == "switching", (where, [f.code for f in r.flags], r.shape)
             assert r.pr_uC_cm2 == pytest.approx(8.0, rel=0.03), where
             assert r.ec_kV_cm == pytest.approx(50.0, rel=0.03), where
             assert r.ps_uC_cm2 is not None and r.apparent == ()
@@ -503,7 +503,7 @@ def test_ps_and_squareness_only_for_a_saturated_switching_loop():
     s_curve = 10 * np.tanh(e / 80)
     para = analyse_loop(pd.DataFrame({"E_kV_cm": np.r_[e, e[::-1][1:]], "P_uC_cm2": np.r_[s_curve, s_curve[::-1][1:]]}))
     for r in (ellipse, minor, para):
-        assert r.verdict != "ferroelectric"
+        assert r.verdict != "switching"
         assert r.ps_uC_cm2 is None and r.squareness is None
         d = r.to_dict()
         assert d["ps_uC_cm2"] is None and d["squareness"] is None

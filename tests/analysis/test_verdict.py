@@ -99,7 +99,7 @@ def test_unscanned_gap_leaves_phase_continuity_not_shown():
 
 def test_loop_only_compound_gets_the_weaker_class():
     # Scott 2008: a closed loop alone can come from leakage or loss; without PUND switching is not confirmed.
-    v = decide([loop(1, "switching", 295.0), loop(2, "ferroelectric", 310.0)])
+    v = decide([loop(1, "switching", 295.0), loop(2, "switching", 310.0)])
     assert v.code == "loop_switching_only"
     assert v.switching_temperatures_K == (295.0, 310.0)
     assert "no PUND shows switching" in v.reason
@@ -342,3 +342,67 @@ def test_quality_flags_lower_a_structures_weight_but_keep_it():
     v1 = decide([flagged, pund(3, "switching", 300.0), dsc(4, [])])
     assert v1.code == "polar_switching_supported"
     assert "weight lowered by density implausible, column too long" in v1.reason
+
+
+# ----------------------------------------------------------------------------- conclusions (issue 15, item 3)
+
+
+def test_series_tc_joins_the_permittivity_peak_and_the_dsc_anomaly_as_one_transition():
+    # Lines and Glass 1977 ch. 1: at Tc the remanent polarisation vanishes, the permittivity peaks and the
+    # DSC shows the latent heat. A Pr(T) power-law fit (Tc = 356 +- 2 K, from the series of loops 1-4) is
+    # the series' Pr -> 0, with no non-switching loop above Tc to bracket it.
+    ev = [loop(i, "switching", t) for i, t in enumerate((302.0, 320.0, 335.0, 350.0), start=1)]
+    ev += [pund(5, "switching", 320.0), crystal(6, "polar", 320.0, "Pna2_1"),
+           dsc(7, [{"peak_K": 360.0, "onset_K": 357.0, "scan": "heating", "endothermic": True, "ds_J_molK": 6.0}]),
+           dielectric(8, 359.0, scan=(250.0, 400.0))]
+    v = decide(ev, series_tc={"tc_K": 356.0, "tc_err_K": 2.0, "measurement_ids": [1, 2, 3, 4]})
+    assert v.code == "polar_switching_supported"
+    assert len(v.transitions) == 1
+    tr = v.transitions[0]
+    assert set(tr.sources) == {"dsc", "dielectric", "series"} and tr.t_pr_zero_K == 356.0
+    assert {1, 2, 3, 4, 7, 8} <= set(tr.measurement_ids)
+    pr_criterion = next(c for c in v.criteria if c.name.startswith("Pr vanishes"))
+    assert pr_criterion.state == "met"
+    # the conclusion states the range up to Tc with each observation of it
+    c = v.conclusion
+    assert "switches between 320 K and Tc = 357 ± 2 K" in c.text, c.text
+    assert "permittivity peak 359 K, DSC onset 357 K, Pr -> 0 at 356 K" in c.text
+    assert (c.t_from_K, c.t_to_K) == (320.0, 320.0)
+    assert c.scanned_from_K == 240.0 and c.scanned_to_K == 360.0  # DSC from 240 K, up to the transition
+    assert "Pr vanishes at the permittivity peak and the DSC anomaly" in c.criteria_met
+
+
+def test_series_tc_without_an_error_is_not_used():
+    ev = [loop(1, "switching", 300.0), loop(2, "switching", 310.0)]
+    v = decide(ev, series_tc={"tc_K": 356.0, "tc_err_K": None, "measurement_ids": [1, 2]})
+    assert v.transitions == ()
+
+
+def test_conclusion_never_reaches_into_an_unscanned_phase():
+    # The reproduced case of issue 15: a P2_1 structure at 150 K, PUND switching at 302 K, DSC from 240 K.
+    # The conclusion speaks for 302 K within the scanned 240-420 K phase and names the gap, not 150 K.
+    ev = [crystal(1, "polar", 150.0, "P2_1"), pund(2, "switching", 302.0), dsc(3, [], scan=(240.0, 420.0))]
+    v = decide(ev)
+    assert v.code == "switching_phase_unknown"
+    c = v.conclusion
+    assert (c.t_from_K, c.t_to_K) == (302.0, 302.0)
+    assert (c.scanned_from_K, c.scanned_to_K) == (240.0, 420.0)
+    assert "150" not in c.text
+    assert "polar structure in the switching phase" in c.criteria_untested
+    assert "phase continuity not shown between 150 K and 240 K" in v.reason
+
+
+def test_conclusion_of_a_switching_temperature_no_scan_reached_says_inferred():
+    v = decide([loop(1, "switching", 300.0), dsc(2, [], scan=(320.0, 400.0))])
+    assert v.code == "loop_switching_only"
+    assert v.conclusion.scanned_from_K is None
+    assert "no DSC, permittivity or series scan reached 300 K: the phase there is inferred only" in v.conclusion.text
+
+
+def test_negative_conclusion_keeps_temperature_and_highest_field():
+    # A negative result is only as wide as its test: "not switched at 300 K up to 60 kV/cm".
+    v = decide([pund(1, "no_switching", 300.0, e_pulse_kV_cm=60.0), dsc(2, [], scan=(250.0, 400.0))])
+    assert v.code == "no_switching_seen"
+    assert "not switched at 300 K up to 60 kV/cm" in v.conclusion.text
+    assert "in the phase scanned from 250 K to 400 K" in v.conclusion.text
+    assert v.conclusion.criteria_unmet == ("switching shown by PUND",)

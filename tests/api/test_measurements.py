@@ -49,7 +49,7 @@ def test_loop_upload_stores_raw_and_results(client, session, batch, uploader):
     assert body["sha256"] == hashlib.sha256(raw).hexdigest()
     assert body["results"]["pr_uC_cm2"] == pytest.approx(8.0, rel=0.02)
     assert body["results"]["ec_kV_cm"] == pytest.approx(50.0, rel=0.02)
-    assert body["verdict"] == "ferroelectric"
+    assert body["verdict"] == "switching"
     assert body["analysis_version"].startswith("hysteresis/")
     assert body["temperature_K"] == 300.0  # from the file's '# temperature: 300 K' line
     got = client.get(f"/api/v1/measurements/{body['id']}/raw", headers=uploader)
@@ -65,7 +65,7 @@ def test_leaky_capacitor_is_not_ferroelectric(client, batch, uploader):
     # Scott, J. Phys.: Condens. Matter 20, 021001 (2008): a lossy linear dielectric draws an ellipse.
     raw = to_csv_bytes(leaky_capacitor(10, 1, 100, frequency_Hz=100))
     body = post(client, batch, "pe_loop", raw, uploader).json()
-    assert body["verdict"] != "ferroelectric"
+    assert body["verdict"] != "switching"
     assert "elliptical" in {f["code"] for f in body["flags"]}
 
 

@@ -228,7 +228,7 @@ def test_history_flags(client, session, batch, writer):
                thickness="150 um").json()
     d = upload(client, where, vq_loop(emax=300.0, t_K=300, seed=3), writer, area="0.0785 cm^2",
                thickness="150 um").json()
-    assert a["verdict"] == "ferroelectric", (a["verdict"], a["flags"], a["results"]["ec_kV_cm"], a["results"]["emax_kV_cm"])
+    assert a["verdict"] == "switching", (a["verdict"], a["flags"], a["results"]["ec_kV_cm"], a["results"]["emax_kV_cm"])
     sample = sample_service.get_sample(session, f"{batch}-S01")
     got = sample_service.sample_history(session, sample, transition_K={"tc_K": 340.0})
     by_id = {e["measurement"]: e for e in got["history"]}
@@ -254,3 +254,18 @@ def test_stated_series_bad_ids_are_refused(client, batch, writer):
     r = client.post(f"/api/v1/samples/{batch}-S01/series", headers=writer,
                     json={"variable": "temperature", "measurements": [1, 99]})
     assert r.status_code == 422 and r.json()["field"] == "measurements"
+
+
+def test_the_series_tc_is_the_verdict_s_pr_to_zero(client, batch, writer):
+    # Issue 15: the Pr(T) fit of the series (Landau Pr = A (Tc - T)^(1/2), Tc = 340 K; Lines and Glass 1977,
+    # ch. 3) is the phase model's Pr -> 0 temperature, and the verdict's conclusion states its range.
+    _heating_then_cooling(client, f"batches/{batch}", writer)
+    computed = client.get("/api/v1/compounds/RVZ-00001", headers=writer).json()["verdict_evidence"]["computed"]
+    series_tr = [t for t in computed["transitions"] if "series" in t["sources"]]
+    assert len(series_tr) == 1 and abs(series_tr[0]["t_pr_zero_K"] - 340.0) < 10.0
+    assert computed["code"] == "loop_switching_only"
+    concl = computed["conclusion"]
+    assert concl["t_from_K"] == 300.0 and concl["t_to_K"] == 332.0
+    assert "Tc = " in concl["text"] and "Pr -> 0 at" in concl["text"]
+    # the loops 8 K apart scan the interval between them (a series scan), so the claim stays inside it
+    assert concl["scanned_from_K"] == 300.0

@@ -13,7 +13,7 @@ from ...kinds import KINDS
 from ...models import RawFile
 from ...services import accounts, measurements, registry
 from ...services.errors import Forbidden
-from .responses import ARCHIVED, AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND, ErrorOut
+from .responses import ARCHIVED, AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND, QUOTA_ERRORS, ErrorOut, LimitOut
 
 router = APIRouter(tags=["measurements"])
 
@@ -74,7 +74,8 @@ def condition_fields(
 ConditionFields = Annotated[dict, Depends(condition_fields)]
 UPLOAD_RESPONSES = {**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS, **DUPLICATE, **ARCHIVED,
                     200: {"model": MeasurementOut, "description": "the same bytes and conditions were stored already"},
-                    413: {"model": ErrorOut, "description": "file too large"}}
+                    413: {"model": LimitOut, "description": "file too large or past a bound on work; `limit` names it"},
+                    **QUOTA_ERRORS}
 
 
 @router.post("/batches/{batch_code}/measurements", status_code=201, response_model=MeasurementOut,
@@ -110,7 +111,8 @@ def store_upload(session, settings, actor, *, batch, sample, kind: str, file: Up
              responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS,
                         409: {"model": ErrorOut, "description": "corrected already (names the newest) or the "
                                                                   "replacement file is stored already"},
-                        413: {"model": ErrorOut, "description": "file too large"}})
+                        413: {"model": LimitOut, "description": "file too large or past a bound on work; `limit` names it"},
+                    **QUOTA_ERRORS})
 def revise(
     measurement_id: RowId,
     session: SessionDep,

@@ -1,7 +1,7 @@
 """Run the ratio benchmarks and write bench/results/latest.md.
 
     python -m bench                       all benchmarks (about 7 minutes on a 2-core machine)
-    python -m bench registry search       only these (registry, search, analysis, estimate, upload)
+    python -m bench registry search       only these (registry, search, analysis, crystal, estimate, upload)
     python -m bench --quick               smaller sizes, for a check that everything runs
     python -m bench search --large        search also over 100 000 molecules (several minutes more)
 
@@ -29,7 +29,7 @@ from typing import Callable
 from .results import RESULTS_DIR, Row, Section, ratio_text
 
 BENCH_DIR = Path(__file__).resolve().parent
-NAMES = ("registry", "search", "analysis", "estimate", "upload")
+NAMES = ("registry", "search", "analysis", "crystal", "estimate", "upload")
 
 
 # ------------------------------------------------------------------ benchmarks kept as scripts
@@ -153,7 +153,12 @@ def _runners(args: argparse.Namespace) -> dict[str, Callable[[], Section]]:
 
         return bench_analysis.run(quick=args.quick)
 
-    return {"registry": registry, "search": search, "analysis": analysis,
+    def crystal() -> Section:
+        from . import bench_crystal
+
+        return bench_crystal.run(quick=args.quick)
+
+    return {"registry": registry, "search": search, "analysis": analysis, "crystal": crystal,
             "estimate": lambda: run_estimate(args.quick), "upload": lambda: run_upload(args.quick)}
 
 

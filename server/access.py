@@ -15,6 +15,9 @@ The access table (a caller is a logged-in user with a role, or an API token with
 | token, scope upload    | yes  | no                       | yes (its kinds)     | no           | no    |
 | token, scope write     | yes  | yes                      | yes                 | yes          | no    |
 
+A queued or running job may be cancelled only by whoever queued it (same account or token) or
+an admin (:func:`may_cancel_job`).
+
 A read token sees embargoed compounds only when an admin grants it at creation
 (``remanence token create --scope read --embargoed``, or the box on the admin page); a read token
 without the grant is treated like an upload token for the embargo.
@@ -191,6 +194,19 @@ def withheld_codes(session, actor: Optional[Actor]) -> frozenset[str]:  # noqa: 
     from sqlmodel import select
 
     return frozenset(session.exec(select(Compound.code).where(Compound.embargoed == True)).all())  # noqa: E712
+
+
+#: Why a caller who neither queued a job nor is an admin may not cancel it (403 ``detail``).
+NOT_JOB_OWNER = "only the account or token that queued this job, or an admin, may cancel it"
+
+
+def may_cancel_job(actor: Optional[Actor], created_by: str) -> bool:
+    """Whether ``actor`` may cancel a job queued by ``created_by`` (an actor label, ``Job.created_by``):
+    the caller who queued it (the same account, or the same token) or an admin. Other writers may
+    not, so one account cannot empty another's queue."""
+    if actor is None:
+        return False
+    return actor.is_admin or (bool(created_by) and created_by == actor.label)
 
 
 def job_as_seen(job: dict, withheld: frozenset[str]) -> dict:

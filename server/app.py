@@ -19,7 +19,7 @@ from . import __version__
 from .api import docs_page as api_docs_page
 from .cookies import CookieMiddleware
 from .db import make_engine
-from .errors import InputError
+from .errors import InputError, OverLimit
 from .access import NotLoggedIn, Refused, may_see_structure
 from .services.errors import Archived, Duplicate, Forbidden, NotFound, TooLarge
 from .package_files import static_dir, templates_dir
@@ -97,6 +97,11 @@ def _install_error_handlers(app: FastAPI) -> None:
     @app.exception_handler(OperationalError)
     async def db_down(request: Request, exc: OperationalError) -> Response:
         return _error(request, 503, "the database is busy or unreachable; try again in a moment")
+
+    @app.exception_handler(OverLimit)
+    async def over_limit(request: Request, exc: OverLimit) -> Response:
+        body = exc.to_dict()
+        return _error(request, exc.status, body.pop("detail"), body)
 
     @app.exception_handler(TooLarge)
     async def too_large(request: Request, exc: TooLarge) -> Response:

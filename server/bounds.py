@@ -22,6 +22,12 @@ MAX_ROW_ID = 2_147_483_647  # the largest 32-bit signed integer (SQL INTEGER on 
 BUILT_CHAIN_CARBONS = (1, 30)  # linear chains the registry builds onto a scaffold
 CARBONS = (0, 100)  # carbons of one side chain: filters c_min, c_max, main_c
 PAGE = (1, 1_000_000)  # registry pages
+
+# Bounds on queued work (issue 12, item 10). Common practice for a group's shared server, not
+# measured limits: a campaign of one scaffold is tens to a few hundred compounds, and one xtb
+# estimate takes minutes, so more than this many waiting jobs of one account is a mistake or abuse.
+MAX_BULK_ESTIMATES = 200  # compounds one bulk-estimate request may name (413 beyond)
+MAX_ACTIVE_JOBS_PER_ACCOUNT = 100  # queued + running jobs one account or token may have (429 beyond)
 SIGNED_DIGITS = re.compile(r"[+-]?[0-9]{1,12}")  # ASCII digits only: no "1_000", no other scripts' digits
 
 

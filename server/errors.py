@@ -59,3 +59,29 @@ class IngestError(InputError):
 
 class AnalysisError(InputError):
     """Data that were read but cannot be analysed (too few points, no zero crossing...)."""
+
+
+class OverLimit(RemanenceError):
+    """A request past one of the bounds on work (HTTP 413, or 429 for a per-account quota).
+
+    ``limit`` names the bound (e.g. ``"cif_sites"``, ``"bulk_estimates"``, ``"job_quota"``) and
+    ``value`` is its size, so a client can tell which limit it met; the message says the same for
+    a person. Nothing is stored when one is raised.
+    """
+
+    status = 413
+
+    def __init__(self, message: str, *, limit: str, value: float | int) -> None:
+        self.message = message
+        self.limit = limit
+        self.value = value
+        super().__init__(message)
+
+    def to_dict(self) -> dict:
+        return {"detail": self.message, "limit": self.limit, "limit_value": self.value}
+
+
+class QuotaExceeded(OverLimit):
+    """A per-account (or per-caller) quota is used up for now (HTTP 429)."""
+
+    status = 429

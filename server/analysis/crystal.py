@@ -27,11 +27,12 @@ from typing import Any
 import gemmi
 import numpy as np
 from rdkit import Chem
+from scipy.spatial import cKDTree
 
 from server.analysis.results import Flag, Result
 from server.analysis.constants import NA_PER_MOL
 from server.chem import geometry
-from server.errors import AnalysisError
+from server.errors import AnalysisError, OverLimit
 
 METHOD = (
     "Space group read with gemmi and classified by point group (International Tables for "
@@ -74,6 +75,13 @@ MAX_MOLECULE_ATOMS = 2000
 #: 1972, the "18 A^3 rule"; value from memory); the range leaves room for solvent voids and
 #: dense inorganic counter-ions, and refuses cells no crystal of molecules can have.
 MAX_CELL_EDGE_A = 500.0
+#: Bounds on the work one CIF may ask for (our choice, common practice for small-molecule
+#: crystallography, not a published limit): a bowl molecule with its side chains has tens to a
+#: hundred atoms, Z' rarely exceeds 4 and solvent adds a few more, so 1000 atom sites in the
+#: asymmetric unit and 20 000 atoms in the cell leave wide room while refusing a protein-sized or
+#: hostile file before its work grows (answered 413 naming ``cif_sites`` or ``cell_atoms``).
+MAX_CIF_SITES = 1000
+MAX_CELL_ATOMS = 20_000
 ATOM_VOLUME_RANGE_A3 = (5.0, 150.0)
 
 _SG_HM_TAGS = ("_space_group_name_H-M_alt", "_symmetry_space_group_name_H-M")
@@ -447,19 +455,31 @@ def _op_matrices(sg: gemmi.SpaceGroup) -> list[tuple[np.ndarray, np.ndarray]]:
 def _expand(
     sites: list[gemmi.SmallStructure.Site], ops: list[tuple[np.ndarray, np.ndarray]], orth: np.ndarray
 ) -> list[_CellAtom]:
-    """All atoms in the unit cell (fractional coordinates wrapped to [0, 1)), special positions merged."""
+    """All atoms in the unit cell (fractional coordinates wrapped to [0, 1)), special positions merged.
+
+    Images of one site closer than 0.1 A (after wrapping) are one atom; the first in the order of
+    the space group's operations is kept. Refuses (:class:`OverLimit`, ``cell_atoms``) a cell of
+    more than :data:`MAX_CELL_ATOMS` atoms as soon as it is reached.
+    """
+    rots = np.array([rot for rot, _ in ops])
+    trans = np.array([tran for _, tran in ops])
     atoms: list[_CellAtom] = []
     for k, site in enumerate(sites):
         f0 = np.array([site.fract.x, site.fract.y, site.fract.z])
-        images: list[np.ndarray] = []
-        for rot, tran in ops:
-            f = rot @ f0 + tran
-            f = f - np.floor(f + 1e-9)
-            if any(np.linalg.norm(orth @ ((f - g) - np.round(f - g))) < 0.1 for g in images):
-                continue
-            images.append(f)
-        for f in images:
-            atoms.append(_CellAtom(site=k, element=site.element.name, frac=f, occ=float(site.occ)))
+        f = rots @ f0 + trans
+        f = f - np.floor(f + 1e-9)
+        diff = f[:, None, :] - f[None, :, :]
+        diff -= np.round(diff)
+        close = np.linalg.norm(diff @ orth.T, axis=2) < 0.1
+        keep = ~np.any(np.tril(close, k=-1), axis=1)  # not within 0.1 A of an earlier image
+        # An image close only to a dropped image is kept by this rule but was dropped by the
+        # sequential rule; for a 0.1 A merge radius both agree (images of one site on a special
+        # position coincide exactly).
+        for g in f[keep]:
+            atoms.append(_CellAtom(site=k, element=site.element.name, frac=g, occ=float(site.occ)))
+        if len(atoms) > MAX_CELL_ATOMS:
+            raise OverLimit(f"the unit cell holds more than {MAX_CELL_ATOMS} atoms; this registry analyses "
+                            "small-molecule crystals only", limit="cell_atoms", value=MAX_CELL_ATOMS)
     return atoms
 
 
@@ -472,29 +492,64 @@ class _Molecule:
     polymeric: bool
 
 
-def _grow_molecule(seed: int, atoms: list[_CellAtom], orth: np.ndarray) -> _Molecule:
-    """Breadth-first search over bonded atoms and their lattice images, starting at ``seed``."""
+_SHIFTS = np.array(list(product((-1, 0, 1), repeat=3)), dtype=float)
+
+
+@dataclass
+class _BondGraph:
+    """Covalent bonds between the cell's atoms and their lattice images: ``pairs[i]`` lists
+    ``(j, shift)`` for atom ``j`` at ``frac[j] + shift`` bonded to atom ``i`` at ``frac[i]``."""
+
+    pairs: list[list[tuple[int, np.ndarray]]]
+
+
+def _bond_graph(atoms: list[_CellAtom], orth: np.ndarray) -> _BondGraph:
+    """Bonds by covalent radii (sum + :data:`BOND_TOLERANCE_A`), found with a k-d tree.
+
+    Neighbour search: every atom and its 26 neighbouring lattice images go into one
+    ``scipy.spatial.cKDTree`` and each atom of the cell asks for the points within the largest
+    possible bond length (Bentley, Commun. ACM 18, 509, 1975; SciPy's cKDTree). The cost grows as
+    N log N instead of the N^2 of comparing all pairs. As before, a bond longer than the shortest
+    cell edge (impossible for real cells) is not seen.
+    """
     table = Chem.GetPeriodicTable()
-    frac = np.array([a.frac for a in atoms])
+    n = len(atoms)
+    frac = np.array([a.frac for a in atoms]).reshape(n, 3)
     radii = np.array([table.GetRcovalent(a.element) for a in atoms])
-    shifts = np.array(list(product((-1, 0, 1), repeat=3)), dtype=float)
+    if n == 0:
+        return _BondGraph(pairs=[])
+    images = (frac[None, :, :] + _SHIFTS[:, None, :]).reshape(-1, 3) @ orth.T  # index s * n + j
+    tree = cKDTree(images)
+    centre = frac @ orth.T
+    reach = 2.0 * float(radii.max()) + BOND_TOLERANCE_A
+    pairs: list[list[tuple[int, np.ndarray]]] = []
+    for i, found in enumerate(tree.query_ball_point(centre, r=reach)):
+        found = np.asarray(found, dtype=int)
+        j, s = found % n, found // n
+        dist = np.linalg.norm(images[found] - centre[i], axis=1)
+        ok = (dist < radii[j] + radii[i] + BOND_TOLERANCE_A) & (dist > 0.1)
+        pairs.append([(int(jj), _SHIFTS[ss]) for jj, ss in zip(j[ok], s[ok])])
+    return _BondGraph(pairs=pairs)
+
+
+def _grow_molecule(seed: int, atoms: list[_CellAtom], orth: np.ndarray,
+                   graph: _BondGraph | None = None) -> _Molecule:
+    """Breadth-first search over bonded atoms and their lattice images, starting at ``seed``."""
+    graph = graph or _bond_graph(atoms, orth)
+    frac = np.array([a.frac for a in atoms])
     placed: dict[int, np.ndarray] = {seed: frac[seed].copy()}
     order = [seed]
+    position = {seed: 0}
     bonds: set[tuple[int, int]] = set()
     polymeric = False
     queue = [seed]
-    while queue:
-        i = queue.pop(0)
-        p = placed[i]
-        d = frac - p
-        d -= np.round(d)
-        # all 27 images around the nearest one, so short cell edges cannot hide a bond
-        cand = p[None, None, :] + d[:, None, :] + shifts[None, :, :]
-        dist = np.linalg.norm((cand - p) @ orth.T, axis=2)
-        limit = (radii + radii[i] + BOND_TOLERANCE_A)[:, None]
-        hits = np.argwhere((dist < limit) & (dist > 0.1))
-        for j, s in hits:
-            q = cand[j, s]
+    head = 0
+    while head < len(queue):
+        i = queue[head]
+        head += 1
+        offset = np.round(placed[i] - frac[i])  # the lattice translation the placed atom sits at
+        for j, shift in graph.pairs[i]:
+            q = frac[j] + shift + offset
             if j in placed:
                 if np.linalg.norm(orth @ (placed[j] - q)) > 0.1:
                     polymeric = True
@@ -504,9 +559,10 @@ def _grow_molecule(seed: int, atoms: list[_CellAtom], orth: np.ndarray) -> _Mole
                     polymeric = True
                     continue
                 placed[j] = q
+                position[j] = len(order)
                 order.append(j)
                 queue.append(j)
-            a, b = sorted((order.index(i), order.index(j)))
+            a, b = sorted((position[i], position[j]))
             bonds.add((a, b))
     cart = np.array([orth @ placed[j] for j in order])
     return _Molecule(
@@ -756,6 +812,9 @@ def analyse_cif(
     sites = list(small.sites)
     if not sites:
         raise AnalysisError("the CIF lists no atom sites", field="cif")
+    if len(sites) > MAX_CIF_SITES:
+        raise OverLimit(f"the CIF lists {len(sites)} atom sites; at most {MAX_CIF_SITES} are analysed (small-molecule "
+                        "crystals have far fewer)", limit="cif_sites", value=MAX_CIF_SITES)
     groups = sorted({s.disorder_group for s in sites if s.disorder_group > 0})
     if groups:
         flags.append(
@@ -898,7 +957,8 @@ def _cell_counts(cell_atoms: list[_CellAtom]) -> dict[str, float]:
     return counts
 
 
-def _estimate_z(cell_atoms: list[_CellAtom], counts: dict[str, float] | None, orth: np.ndarray) -> int | None:
+def _estimate_z(cell_atoms: list[_CellAtom], counts: dict[str, float] | None, orth: np.ndarray,
+                graph: _BondGraph | None = None) -> int | None:
     """Z from atoms in the cell / atoms in the formula, else the number of molecules in the cell."""
     if counts:
         heavy_cell = sum(v for k, v in _cell_counts(cell_atoms).items() if k != "H")
@@ -910,10 +970,11 @@ def _estimate_z(cell_atoms: list[_CellAtom], counts: dict[str, float] | None, or
             return None
     seen: set[int] = set()
     n = 0
+    graph = graph or _bond_graph(cell_atoms, orth)
     for i in range(len(cell_atoms)):
         if i in seen:
             continue
-        mol = _grow_molecule(i, cell_atoms, orth)
+        mol = _grow_molecule(i, cell_atoms, orth, graph)
         seen.update(mol.cell_indices)
         n += 1
     return n or None
@@ -948,10 +1009,11 @@ def _analyse_molecules(
     covered: set[int] = set()
     best: tuple[int, Chem.Mol, np.ndarray, geometry.CoreAtoms] | None = None
     n_cores = 0
+    graph = _bond_graph(cell_atoms, orth)
     for k in range(len(sites)):
         if k in covered:
             continue
-        mol = _grow_molecule(first_image[k], cell_atoms, orth)
+        mol = _grow_molecule(first_image[k], cell_atoms, orth, graph)
         covered.update(cell_atoms[j].site for j in mol.cell_indices)
         if mol.polymeric:
             flags.append(Flag("polymeric", "atoms bond to their own lattice images: a network, not molecules"))

@@ -25,14 +25,19 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from server.errors import IngestError
+from server.errors import IngestError, OverLimit
 from server.ingest.columns import BY_NAME, ColumnSpec, convert_to_canonical, parse_headers
 
 BINARY_MESSAGE = "this looks like a binary file, not a CSV/TSV/XLSX table"
 NO_HEADER_MESSAGE = "no header row: the first row must name each column as 'name (unit)'"
 
-# An XLSX holds compressed XML; refuse archives that would unpack to more than this.
-MAX_XLSX_UNCOMPRESSED_BYTES = 512 * 1024 * 1024
+# An XLSX holds compressed XML, and reading it costs far more per value than CSV (openpyxl
+# parses every cell's XML). Bounds on one workbook (our choice, common practice: an instrument's
+# export of a P-E loop or a DSC run is a few thousand to some 10^5 rows of a few columns); past
+# them the upload is refused with 413 naming the limit, and the user is told to export CSV.
+MAX_XLSX_UNCOMPRESSED_BYTES = 64 * 1024 * 1024
+MAX_XLSX_ROWS = 200_000
+MAX_XLSX_CELLS = 2_000_000
 # Share of control characters above which decoded "text" is taken for binary data.
 MAX_CONTROL_SHARE = 0.01
 
@@ -503,7 +508,8 @@ def _read_xlsx(raw: bytes, notes: list[str]) -> ParsedTable:
             "this is a zip archive but not an XLSX workbook (is it .ods or .docx?); save it as .xlsx or CSV"
         )
     if unpacked > MAX_XLSX_UNCOMPRESSED_BYTES:
-        raise IngestError("this workbook unpacks to more than 512 MB; export the sheet as CSV")
+        raise OverLimit(f"this workbook unpacks to more than {MAX_XLSX_UNCOMPRESSED_BYTES // (1024 * 1024)} MiB; "
+                        "export the sheet as CSV", limit="xlsx_unpacked_bytes", value=MAX_XLSX_UNCOMPRESSED_BYTES)
     try:
         wb = openpyxl.load_workbook(io.BytesIO(raw), read_only=True, data_only=True)
     except Exception as exc:  # openpyxl raises many types on malformed workbooks; re-raised as IngestError
@@ -515,12 +521,30 @@ def _read_xlsx(raw: bytes, notes: list[str]) -> ParsedTable:
         if len(wb.worksheets) > 1:
             notes.append(f"read the first worksheet ('{ws.title}') of {len(wb.worksheets)}")
         try:
-            rows = [tuple(r) for r in ws.iter_rows(values_only=True)]
+            rows = _bounded_rows(ws)
+        except OverLimit:
+            raise
         except Exception as exc:  # malformed sheet XML; re-raised as IngestError
             raise IngestError(f"the first worksheet cannot be read ({type(exc).__name__}: {exc})") from exc
     finally:
         wb.close()
     return _rows_to_table(rows, notes)
+
+
+def _bounded_rows(ws) -> list[tuple[Any, ...]]:  # noqa: ANN001 - an openpyxl read-only worksheet
+    """The sheet's rows, refused (:class:`OverLimit`) as soon as they pass the row or cell bound."""
+    rows: list[tuple[Any, ...]] = []
+    cells = 0
+    for r in ws.iter_rows(values_only=True):
+        rows.append(tuple(r))
+        cells += len(r)
+        if len(rows) > MAX_XLSX_ROWS:
+            raise OverLimit(f"the worksheet has more than {MAX_XLSX_ROWS} rows; export it as CSV",
+                            limit="xlsx_rows", value=MAX_XLSX_ROWS)
+        if cells > MAX_XLSX_CELLS:
+            raise OverLimit(f"the worksheet has more than {MAX_XLSX_CELLS} cells; export the columns you need "
+                            "as CSV", limit="xlsx_cells", value=MAX_XLSX_CELLS)
+    return rows
 
 
 def _rows_to_table(rows: list[tuple[Any, ...]], notes: list[str]) -> ParsedTable:

@@ -15,8 +15,9 @@ same job: whoever's UPDATE matches no row has lost the race and is told so (``Fa
 No lock is held while a handler computes; the worker only touches the row to claim it,
 to heartbeat, and to record the outcome.
 
-Claiming: on PostgreSQL ``SELECT ... FOR UPDATE SKIP LOCKED LIMIT 1`` picks the oldest
-queued job that no other worker is claiming at the same moment, and the same transaction
+Claiming: on PostgreSQL ``SELECT ... FOR UPDATE SKIP LOCKED LIMIT 1`` picks the next
+queued job (fewest running jobs of its account first, then oldest: :func:`_fair_order`) that
+no other worker is claiming at the same moment, and the same transaction
 marks it running. On SQLite a single conditional ``UPDATE ... WHERE id = (SELECT oldest
 queued) AND state = 'queued' RETURNING id``: SQLite serialises writers, so the subquery and
 the update see the same database and a job is never claimed twice (one worker is the
@@ -44,9 +45,10 @@ from typing import Any, Literal, Optional, Union
 
 import sqlalchemy as sa
 from sqlalchemy.engine import Engine
-from sqlalchemy.orm import object_session
+from sqlalchemy.orm import aliased, object_session
 from sqlmodel import Session, select
 
+from ..access import NOT_JOB_OWNER, Refused
 from ..analysis.results import jsonable
 from ..errors import InputError
 from ..models import JOB_STATES, Compound, Job, utcnow
@@ -151,14 +153,19 @@ def get_job(session: Session, job_id: int) -> Job:
     return job
 
 
-def cancel(session: Session, job_id: int, *, actor: str) -> Job:
+def cancel(session: Session, job_id: int, *, actor: str, allowed: Optional[Callable[[str], bool]] = None) -> Job:
     """Cancel a job: a queued one at once, a running one by asking its worker to stop.
+
+    ``allowed(created_by)`` (the routers pass ``access.may_cancel_job`` for the caller) decides
+    whether this caller may cancel the job; a refusal raises :class:`access.Refused` (403).
 
     A running job gets ``cancel_requested``; its worker sees that at its next check (within
     about a second for the xtb estimate), stops and marks the job cancelled. A job that has
     ended already cannot be cancelled (InputError, 422).
     """
     job = get_job(session, job_id)
+    if allowed is not None and not allowed(job.created_by):
+        raise Refused(NOT_JOB_OWNER)
     if job.state in FINAL_STATES:
         raise InputError(f"job {job_id} is {job.state} already; only queued or running jobs can be cancelled",
                          field="job")
@@ -194,8 +201,22 @@ def cancel(session: Session, job_id: int, *, actor: str) -> Job:
 # --------------------------------------------------------------------------- worker side
 
 
+def _fair_order() -> tuple:
+    """Claim order: first the accounts with the fewest jobs running now, then the oldest job.
+
+    So one account's long queue cannot hold every worker: while its job runs, another account's
+    younger job goes first (fair scheduling across accounts, issue 12 item 10). Served by the
+    index on ``job(created_by, state)`` (migration 0020).
+    """
+    other = aliased(Job)
+    running = (select(sa.func.count(other.id)).where(other.created_by == Job.created_by, other.state == "running")
+               .correlate(Job).scalar_subquery())
+    return running, Job.id
+
+
 def claim(engine: Bind, *, worker: str, kinds: Optional[Iterable[str]] = None) -> Optional[Job]:
-    """Take the oldest queued job (of one of ``kinds``, default any) for ``worker``, atomically.
+    """Take the next queued job (of one of ``kinds``, default any) for ``worker``, atomically:
+    the oldest one of the accounts with the fewest running jobs (:func:`_fair_order`).
 
     The job comes back running, with ``worker``, ``started_at``, ``heartbeat_at`` set,
     ``attempts`` counted up and progress reset; ``None`` when nothing is queued.
@@ -211,7 +232,8 @@ def claim(engine: Bind, *, worker: str, kinds: Optional[Iterable[str]] = None) -
                    message="started", attempts=Job.attempts + 1)
     with Session(engine, expire_on_commit=False) as session:
         if _is_postgres(engine):
-            stmt = select(Job.id).where(Job.state == "queued").order_by(Job.id).limit(1).with_for_update(skip_locked=True)
+            stmt = (select(Job.id).where(Job.state == "queued").order_by(*_fair_order()).limit(1)
+                    .with_for_update(skip_locked=True, of=Job))
             if kinds is not None:
                 stmt = stmt.where(Job.kind.in_(kinds))
             job_id = session.exec(stmt).first()
@@ -221,7 +243,7 @@ def claim(engine: Bind, *, worker: str, kinds: Optional[Iterable[str]] = None) -
             oldest = select(Job.id).where(Job.state == "queued")
             if kinds is not None:
                 oldest = oldest.where(Job.kind.in_(kinds))
-            oldest = oldest.order_by(Job.id).limit(1).scalar_subquery()
+            oldest = oldest.order_by(*_fair_order()).limit(1).scalar_subquery()
             job_id = session.execute(
                 _update(Job.id == oldest, Job.state == "queued").values(**running).returning(Job.id)
             ).scalar_one_or_none()

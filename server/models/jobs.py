@@ -14,6 +14,9 @@ JOB_STATES = ("queued", "running", "done", "failed", "cancelled")
 
 
 class Job(SQLModel, table=True):
+    # Per-account quotas and fair claiming count an account's jobs by state (server/jobs/queue.py).
+    __table_args__ = (sa.Index("ix_job_created_by_state", "created_by", "state"),)
+
     id: Optional[int] = Field(default=None, primary_key=True)
     kind: str = Field(max_length=40)
     state: str = Field(default="queued", max_length=20, index=True)

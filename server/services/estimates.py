@@ -17,12 +17,12 @@ from rdkit import Chem
 from sqlalchemy import func
 from sqlmodel import Session, select
 
-from .. import access
+from .. import access, bounds
 from ..access import Actor
 from ..analysis import xtb
 from ..analysis.results import jsonable
 from ..chem.geometry import core_atoms
-from ..errors import AnalysisError, ChemistryError, InputError
+from ..errors import AnalysisError, ChemistryError, InputError, OverLimit, QuotaExceeded
 from ..jobs import queue
 from ..models import JOB_STATES, BarrierEstimate, Compound, Job
 from . import audit, stats
@@ -87,6 +87,31 @@ def _lock(session: Session, compound: Compound) -> None:
     session.exec(select(Compound.id).where(Compound.id == compound.id).with_for_update()).one()
 
 
+def check_bulk(count: int) -> None:
+    """Refuse (413, limit ``bulk_estimates``) a bulk request naming more compounds than
+    :data:`server.bounds.MAX_BULK_ESTIMATES`, before any of them is looked up."""
+    if count > bounds.MAX_BULK_ESTIMATES:
+        raise OverLimit(f"{count} compounds in one request; at most {bounds.MAX_BULK_ESTIMATES} estimates may be "
+                        "queued at once: split the list", limit="bulk_estimates", value=bounds.MAX_BULK_ESTIMATES)
+
+
+def active_jobs_of(session: Session, actor: str) -> int:
+    """Queued and running jobs that ``actor`` (an actor label) queued."""
+    return int(session.exec(select(func.count(Job.id)).where(Job.created_by == actor,
+                                                             Job.state.in_(queue.ACTIVE_STATES))).one())
+
+
+def _check_quota(session: Session, actor: str, new_jobs: int) -> None:
+    if new_jobs <= 0:
+        return
+    active = active_jobs_of(session, actor)
+    quota = bounds.MAX_ACTIVE_JOBS_PER_ACCOUNT
+    if active + new_jobs > quota:
+        raise QuotaExceeded(f"{active} of your jobs are queued or running and this request adds {new_jobs}; "
+                            f"one account may have at most {quota} waiting: wait for some to finish or cancel them",
+                            limit="job_quota", value=quota)
+
+
 def queue_estimate(*, session: Session, compound: Compound, truncate_side_chains: bool = True, actor: str) -> Job:
     """Queue a GFN2-xTB estimate of ``compound`` (or return its queued/running one); commits."""
     return queue_estimates(session=session, compounds=[compound], truncate_side_chains=truncate_side_chains,
@@ -99,14 +124,17 @@ def queue_estimates(*, session: Session, compounds: Sequence[Compound], truncate
 
     Compounds with a queued or running estimate with the same options get their existing job
     (a compound listed twice gets one job). Every compound is checked before anything is
-    queued: one that cannot be estimated refuses the whole request (InputError naming it).
+    queued: one that cannot be estimated refuses the whole request (InputError naming it), and so
+    does a request past the bulk limit (413) or past the account's job quota (429).
     """
     if not compounds:
         raise InputError("choose at least one compound", field="compounds")
+    check_bulk(len(compounds))
     for compound in compounds:
         _validate(compound, truncate_side_chains)
     jobs: list[Job] = []
     seen: dict[int, Job] = {}
+    new: list[Compound] = []
     for compound in compounds:
         if compound.id in seen:
             jobs.append(seen[compound.id])
@@ -114,10 +142,14 @@ def queue_estimates(*, session: Session, compounds: Sequence[Compound], truncate
         _lock(session, compound)
         job = active_estimate(session, compound, truncate_side_chains=truncate_side_chains)
         if job is None:
-            job = queue.add_job(session, kind=KIND, params=job_params(compound, truncate_side_chains),
-                                compound_id=compound.id, actor=actor)
+            new.append(compound)
         seen[compound.id] = job
         jobs.append(job)
+    _check_quota(session, actor, len(new))  # before anything is added: all or nothing
+    for compound in new:
+        seen[compound.id] = queue.add_job(session, kind=KIND, params=job_params(compound, truncate_side_chains),
+                                          compound_id=compound.id, actor=actor)
+    jobs = [seen[c.id] for c in compounds]
     session.commit()
     for job in seen.values():
         session.refresh(job)

@@ -20,7 +20,7 @@ from .. import access
 from ..access import Actor
 from ..analysis.pxrd import ReferenceStructure
 from ..analysis.results import jsonable
-from ..errors import InputError
+from ..errors import InputError, OverLimit
 from ..ingest.conditions import FORM_FIELDS, Conditions, form_value_as_given, parse_conditions, with_defaults
 from ..kinds import KINDS, Context, Kind
 from ..models import Batch, Compound, Measurement, RawFile, Sample, live_measurement, utcnow
@@ -440,7 +440,7 @@ def reanalyse(*, session: Session, kind: str | None = None, actor: str = "cli:re
     for m in session.exec(query).all():
         try:
             done = reanalyse_one(session, m)
-        except InputError as exc:
+        except (InputError, OverLimit) as exc:
             changes.append(Change(m.id, m.kind, m.analysis_version, m.analysis_version, {}, error=str(exc)))
             continue
         touched.append(m)  # read again: its derived rows are refreshed even when nothing moved

@@ -10,7 +10,7 @@ from fastapi.responses import HTMLResponse
 
 from .. import access
 from ..deps import OptionalActor, PageActor, PageAdmin, PageWriter, RowId, SessionDep, SettingsDep
-from ..errors import InputError
+from ..errors import InputError, OverLimit
 from ..ingest.conditions import parse_quantity
 from ..jobs import queue
 from ..services import barriers, estimates, explore, registry, status, views
@@ -115,7 +115,8 @@ def job_panel(job_id: RowId, request: Request, session: SessionDep, actor: PageA
 @router.post("/jobs/{job_id}/cancel", response_class=HTMLResponse)
 async def cancel_job(job_id: RowId, request: Request, session: SessionDep, actor: PageWriter):
     try:
-        job = queue.cancel(session, job_id, actor=actor.label)
+        job = queue.cancel(session, job_id, actor=actor.label,
+                           allowed=lambda created_by: access.may_cancel_job(actor, created_by))
     except InputError as exc:
         return render(request, "pages/error.html", {"status": 422, "detail": str(exc)}, status_code=422, actor=actor)
     return fragment_or_redirect(request, "partials/job.html", _job_context(session, job, actor), "/queue", actor=actor)
@@ -136,6 +137,7 @@ async def queue_many(request: Request, session: SessionDep, actor: PageWriter):
     scaffold = str(form.get("scaffold", "")).strip()
     try:
         if codes:
+            estimates.check_bulk(len(codes))
             compounds = [registry.get_compound(session, c) for c in codes]
         elif scaffold:
             compounds = estimates.live_compounds_of_scaffold(session, scaffold)
@@ -143,8 +145,8 @@ async def queue_many(request: Request, session: SessionDep, actor: PageWriter):
             raise InputError("choose a scaffold or list compound codes", field="codes")
         estimates.queue_estimates(session=session, compounds=compounds,
                                   truncate_side_chains=form.get("full_chains") != "on", actor=actor.label)
-    except (InputError, NotFound) as exc:
+    except (InputError, NotFound, OverLimit) as exc:
         return render(request, "pages/queue.html",
                       {"summary": estimates.queue_summary(session, actor), "scaffolds": registry.list_scaffolds(session),
-                       "error": str(exc)}, status_code=422, actor=actor)
+                       "error": str(exc)}, status_code=exc.status if isinstance(exc, OverLimit) else 422, actor=actor)
     return redirect("/queue", request)

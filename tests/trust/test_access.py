@@ -21,6 +21,7 @@ import pytest
 from fastapi.testclient import TestClient
 from sqlmodel import select
 
+from server import access
 from server.ingest.table import to_csv_bytes
 from server.models import ApiToken
 from server.services import accounts
@@ -36,6 +37,9 @@ UPLOADS = {UPLOAD, ("post", "/api/v1/samples/{sample_code}/measurements")}  # an
 # require_admin's own message. These are known to be admin-only; others are found by that message.
 ADMIN_ONLY = {("post", "/api/v1/compounds/{code}/verdict/override"), ("post", "/api/v1/compounds/{code}/verdict/clear")}
 ADMIN_DETAIL = "only an admin may do this"
+# Owner-or-admin (access.may_cancel_job): the world's job was queued by the "registrar" token, so a
+# member session and another write token are refused with NOT_JOB_OWNER; an admin is not.
+OWNER_ONLY = {("post", "/api/v1/jobs/{job_id}/cancel")}
 
 PLAIN = "COc1c(OC)c(OC)c(OC)c(OC)c1OC"  # invented hexa-methoxy benzene (C12H18O6)
 SECRET = "CSc1c(SC)c(SC)c(SC)c(SC)c1SC"  # invented hexa-methylthio benzene, registered under embargo
@@ -158,6 +162,10 @@ def test_allowed_callers_are_not_refused(app, client, world):
             r = call(c, method, path, params, headers)
             if who != "admin session" and r.status_code == 403 and r.json().get("detail") == ADMIN_DETAIL:
                 admin_only.add((method, path, who))
+                continue
+            if (method, path) in OWNER_ONLY and who != "admin session":
+                if r.status_code != 403 or r.json().get("detail") != access.NOT_JOB_OWNER:
+                    failures.append(f"{who} cancelled a job it did not queue: {r.status_code} {r.text[:160]}")
                 continue
             if r.status_code in (401, 403) or r.status_code >= 500:
                 failures.append(f"{who:>15} {method.upper():5} {path}: {r.status_code} {r.text[:160]}")
@@ -287,6 +295,7 @@ WEB_WRITE = {("GET", "/compounds/new"), ("POST", "/compounds/preview"), ("POST",
 WEB_ADMIN = {("POST", "/compounds/{code}/verdict"), ("POST", "/status/public"), ("GET", "/admin"),
              ("POST", "/admin/users"), ("POST", "/admin/users/{username}/deactivate"), ("POST", "/admin/tokens"),
              ("POST", "/admin/tokens/{token_id}/revoke")}
+WEB_OWNER_ONLY = {("POST", "/jobs/{job_id}/cancel")}
 SECRET_LABEL = "hexakis-methylsulfanyl benzene, Q-7"  # an invented label that spells out the structure
 SECRET_NOTES = "made from hexachlorobenzene and sodium thiomethoxide"  # invented
 
@@ -347,6 +356,8 @@ def test_web_routes_follow_the_access_table(app, client, world):
                    "read token": (client, tokens["read"]), "upload token": (client, tokens["upload"]),
                    "write token": (client, tokens["write"])}
         may = {"read": set(callers), "write": {"member", "admin", "write token"}, "admin": {"admin"}}[need]
+        if (method, path) in WEB_OWNER_ONLY:
+            may = {"admin"}  # the world's job was queued by another token (access.may_cancel_job)
         for who, (c, headers) in callers.items():
             expect(who, allowed if who in may else refused, web_call(c, method, path, p, headers), method, path)
         if method == "POST":

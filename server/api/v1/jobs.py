@@ -12,7 +12,7 @@ from ...deps import Offset, Reader, RowId, SessionDep, Writer
 from ...errors import InputError
 from ...jobs import queue
 from ...services import accounts, estimates, registry
-from .responses import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND
+from .responses import AUTH_ERRORS, INPUT_ERRORS, LIMIT_ERRORS, NOT_FOUND, QUOTA_ERRORS
 
 router = APIRouter(tags=["estimates and jobs"])
 
@@ -36,7 +36,8 @@ def _visible_job(job: dict[str, Any], actor, withheld: frozenset[str]) -> dict[s
     return accounts.hide_people(job, sees_people=actor.sees_people)
 
 
-@router.post("/compounds/{code}/estimates", status_code=202, responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS})
+@router.post("/compounds/{code}/estimates", status_code=202,
+             responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS, **QUOTA_ERRORS})
 def queue_estimate(code: str, session: SessionDep, actor: Writer, data: Optional[EstimateIn] = None) -> dict[str, Any]:
     """Queue a GFN2-xTB estimate of the barrier, bowl depth and dipole; answers the job to poll."""
     data = data or EstimateIn()
@@ -46,10 +47,12 @@ def queue_estimate(code: str, session: SessionDep, actor: Writer, data: Optional
     return {"job": job.id, **queue.job_read(job, session=session)}
 
 
-@router.post("/estimates", status_code=202, responses={**AUTH_ERRORS, **INPUT_ERRORS})
+@router.post("/estimates", status_code=202,
+             responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS, **LIMIT_ERRORS, **QUOTA_ERRORS})
 def queue_many(data: BulkEstimateIn, session: SessionDep, actor: Writer) -> dict[str, Any]:
     """Queue estimates for many compounds at once: a list of codes, or every compound of a scaffold."""
     if data.compounds:
+        estimates.check_bulk(len(data.compounds))
         compounds = [registry.get_compound(session, c) for c in data.compounds]
     elif data.scaffold:
         compounds = estimates.live_compounds_of_scaffold(session, data.scaffold)
@@ -88,4 +91,7 @@ def get_job(job_id: RowId, session: SessionDep, actor: Reader) -> dict[str, Any]
 
 @router.post("/jobs/{job_id}/cancel", responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS})
 def cancel_job(job_id: RowId, session: SessionDep, actor: Writer) -> dict[str, Any]:
-    return queue.job_read(queue.cancel(session, job_id, actor=actor.label), session=session)
+    """Only whoever queued the job (same account or token) or an admin may cancel it (403 otherwise)."""
+    job = queue.cancel(session, job_id, actor=actor.label,
+                       allowed=lambda created_by: access.may_cancel_job(actor, created_by))
+    return queue.job_read(job, session=session)

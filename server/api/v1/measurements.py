@@ -13,7 +13,7 @@ from ...kinds import KINDS
 from ...models import RawFile
 from ...services import accounts, measurements, profiled_uploads, registry
 from ...services.errors import Forbidden
-from .responses import ARCHIVED, AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND, ErrorOut
+from .responses import ARCHIVED, AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND, QUOTA_ERRORS, ErrorOut, LimitOut
 
 router = APIRouter(tags=["measurements"])
 
@@ -112,7 +112,8 @@ UPLOAD_RESPONSES = {**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS, **DUPLICATE, **A
                           "description": "the same bytes and conditions were stored already; or the dry run's preview"},
                     201: {"model": Union[MeasurementOut, ProfiledUploadOut],
                           "description": "stored: one measurement, or one per block of a profiled file"},
-                    413: {"model": ErrorOut, "description": "file too large"}}
+                    413: {"model": LimitOut, "description": "file too large or past a bound on work; `limit` names it"},
+                    **QUOTA_ERRORS}
 
 
 @router.post("/batches/{batch_code}/measurements", status_code=201, response_model=None,
@@ -168,7 +169,8 @@ def store_upload(session, settings, actor, *, batch, sample, kind: Optional[str]
              responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS,
                         409: {"model": ErrorOut, "description": "corrected already (names the newest) or the "
                                                                   "replacement file is stored already"},
-                        413: {"model": ErrorOut, "description": "file too large"}})
+                        413: {"model": LimitOut, "description": "file too large or past a bound on work; `limit` names it"},
+                    **QUOTA_ERRORS})
 def revise(
     measurement_id: RowId,
     session: SessionDep,

@@ -17,6 +17,15 @@ class DuplicateOut(BaseModel):
     existing: str | int  # a code, or a measurement id
 
 
+class LimitOut(BaseModel):
+    detail: str
+    limit: str | None = None  # which bound was met (server/errors.py OverLimit), e.g. "cif_sites"
+    limit_value: float | int | None = None  # the bound itself
+
+
+LIMIT_ERRORS = {413: {"model": LimitOut, "description": "past a bound on work; `limit` names it"}}
+QUOTA_ERRORS = {429: {"model": LimitOut, "description": "a per-account quota is used up; `limit` names it"}}
+
 AUTH_ERRORS = {
     401: {"model": ErrorOut, "description": "no or an invalid token/session"},
     403: {"model": ErrorOut, "description": "the caller's role or token scope does not allow this"},

@@ -26,7 +26,7 @@ from datetime import datetime, timezone
 from pathlib import Path
 from typing import Callable
 
-from .results import RESULTS_DIR, Row, Section, ratio_text
+from .common import RESULTS_DIR, Row, Section, ratio_text
 
 BENCH_DIR = Path(__file__).resolve().parent
 NAMES = ("registry", "search", "analysis", "crystal", "estimate", "upload")

@@ -26,7 +26,7 @@ from server.analysis.hysteresis import analyse_loop
 from server.ingest.table import read_table, to_csv_bytes
 from server.synth.ferro import miller_loop
 
-from .results import RESULTS_DIR, Row, Section, fmt_s, paired, repeat, top_costs
+from .common import RESULTS_DIR, Row, Section, fmt_s, paired, repeat, top_costs
 
 LOOP = {"ps_uC_cm2": 8.0, "pr_uC_cm2": 6.0, "ec_kV_cm": 12.0, "emax_kV_cm": 40.0}
 DATA_VERSION = "1"

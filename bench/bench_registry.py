@@ -47,7 +47,7 @@ from server.settings import PROJECT_ROOT
 from server.web import format as format_filters
 
 from . import seed
-from .results import Row, Section, fmt_s, median, paired, top_costs
+from .common import Row, Section, fmt_s, median, paired, top_costs
 
 QUERY = {"chain_kind": "alkoxy", "c_min": "6", "sort": "barrier", "dir": "desc"}
 PATH = "/compounds?chain_kind=alkoxy&c_min=6&sort=barrier&dir=desc"

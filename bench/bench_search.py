@@ -45,7 +45,7 @@ from server.db import make_engine, upgrade
 from server.settings import Settings
 
 from . import seed
-from .results import Row, Section, fmt_s, paired, repeat
+from .common import Row, Section, fmt_s, paired, repeat
 
 # (label, query text as a chemist types it)
 SUBSTRUCTURE_QUERIES: tuple[tuple[str, str], ...] = (

@@ -52,7 +52,7 @@ from server.services import accounts
 from server.analysis.constants import R_J_MOLK
 from server.settings import Settings
 
-from .results import RESULTS_DIR
+from .common import RESULTS_DIR
 
 SEED_VERSION = "1"
 SEED = 20261201

@@ -128,7 +128,7 @@ def test_add_batch_through_the_form(page: Page, live, login, browser_log):
     expect(cells.nth(4)).to_have_text("55.0")
     expect(cells.nth(5)).to_have_text("98.5")
     expect(cells.nth(6)).to_have_text("impure")
-    expect(cells.nth(9)).to_have_text("recrystallised once from hexane")
+    expect(cells.nth(10)).to_have_text("recrystallised once from hexane")
     expect(rows.first.get_by_role("link", name="Upload")).to_have_attribute("href", f"/batches/{code}-B01/upload")
 
 

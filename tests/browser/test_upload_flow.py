@@ -92,7 +92,7 @@ def test_measurement_page_draws_the_loop_with_pr_and_ec_markers(page: Page, live
     mid = live.measurement(batch, "pe_loop", _loop_file(tmp_path).read_bytes(), "loop_300K.csv", temperature="300 K")
     login("member")
     page.goto(f"/compounds/{code}")
-    page.locator("#measurements").get_by_role("link", name=str(mid)).click()
+    page.locator("#measurements").get_by_role("link", name=str(mid), exact=True).click()
     expect(page).to_have_url(re.compile(rf"/measurements/{mid}$"))
     expect(page.locator("h1 .sub")).to_contain_text(batch)
 

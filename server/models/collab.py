@@ -3,9 +3,10 @@
 from __future__ import annotations
 
 from datetime import datetime
-from typing import Any, Optional
+from typing import Annotated, Any, Optional
 
 import sqlalchemy as sa
+from pydantic import StringConstraints
 from sqlmodel import Field, SQLModel
 
 from .types import UTCDateTime, utcnow
@@ -91,7 +92,9 @@ class FreezeCreate(SQLModel):
     """``POST /api/v1/freezes``."""
 
     name: str = Field(min_length=1, max_length=200, description='e.g. "bowl-chains manuscript"')
-    compounds: list[str] = Field(min_length=1, max_length=200, description="compound codes")
+    # Codes are letters, digits and - _ . (e.g. RVZ-00012); anything else is refused (422) before a query.
+    compounds: list[Annotated[str, StringConstraints(min_length=1, max_length=60, pattern=r"^[A-Za-z0-9._-]+$")]] = \
+        Field(min_length=1, max_length=200, description="compound codes")
 
 
 class FreezePublication(SQLModel):

@@ -4,10 +4,11 @@ from __future__ import annotations
 
 from typing import Any, Optional
 
-from fastapi import APIRouter, Body
+from fastapi import APIRouter, Body, Query
 from fastapi.responses import JSONResponse
 from pydantic import BaseModel, ConfigDict
 
+from ...bounds import MAX_ROW_ID
 from ...deps import Reader, SessionDep, Writer
 from ...services import import_profiles
 from .responses import AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND
@@ -54,7 +55,8 @@ def list_profiles(session: SessionDep, actor: Reader):
 
 
 @router.get("/import-profiles/{name}", response_model=ImportProfileOut, responses={**AUTH_ERRORS, **NOT_FOUND})
-def get_profile(name: str, session: SessionDep, actor: Reader, version: Optional[int] = None):
+def get_profile(name: str, session: SessionDep, actor: Reader,
+                version: Optional[int] = Query(default=None, ge=1, le=MAX_ROW_ID)):
     """The newest version of the profile, or `version=N`."""
     return import_profiles.profile_read(import_profiles.get_profile(session, name, version))
 

@@ -11,7 +11,7 @@ from fastapi.exceptions import RequestValidationError
 from fastapi.responses import JSONResponse, RedirectResponse, Response
 from fastapi.templating import Jinja2Templates
 from sqlalchemy import text
-from sqlalchemy.exc import OperationalError
+from sqlalchemy.exc import DataError, OperationalError
 from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.middleware.gzip import GZipMiddleware
 
@@ -27,6 +27,7 @@ from .plots.alt import figure_alt
 from .ratelimit import TokenBuckets, caller_key
 from .serving import BodyDeadline
 from .settings import Settings, get_settings
+from . import text_guard
 from .web import format as format_filters
 from .web import admin as admin_pages
 from .web import auth as auth_pages
@@ -97,6 +98,14 @@ def _install_error_handlers(app: FastAPI) -> None:
     @app.exception_handler(OperationalError)
     async def db_down(request: Request, exc: OperationalError) -> Response:
         return _error(request, 503, "the database is busy or unreachable; try again in a moment")
+
+    @app.exception_handler(DataError)
+    async def unstorable(request: Request, exc: DataError) -> Response:
+        # The last line behind server.text_guard and the schemas' bounds: a value the database's column type
+        # refuses (NUL in text, an integer past its width) is the caller's input, not a server fault.
+        lines = str(getattr(exc, "orig", None) or exc).strip().splitlines()
+        reason = lines[0] if lines else ""
+        return _error(request, 422, f"a value cannot be stored: {reason or 'the database refused it'}")
 
     @app.exception_handler(OverLimit)
     async def over_limit(request: Request, exc: OverLimit) -> Response:
@@ -176,6 +185,18 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         response.headers.setdefault("X-Frame-Options", "DENY")
         response.headers.setdefault("Referrer-Policy", "same-origin")
         return response
+
+    @app.middleware("http")
+    async def refuse_nul(request: Request, call_next):
+        # NUL (U+0000) in a path, query string, JSON or form body is 422 before any handler (server/text_guard.py).
+        field = text_guard.nul_in_query(request.url.path, request.query_params.multi_items())
+        if field is None and request.method in ("POST", "PUT", "PATCH", "DELETE"):
+            content_type = request.headers.get("content-type", "")
+            if text_guard.reads(content_type):
+                field = text_guard.nul_in_body(content_type, await request.body())
+        if field is not None:
+            return _error(request, 422, text_guard.refusal(field), {"field": field})
+        return await call_next(request)
 
     search_buckets = TokenBuckets(settings.search_per_minute, settings.search_burst)
 

@@ -180,6 +180,17 @@ def _snapshot(session: Session, batch: Batch) -> dict[str, Any]:
     return {"steps": [audit.snapshot(s) for s in steps], "precursors": list(pre)}
 
 
+def _record_route_change(session: Session, batch: Batch, before: dict[str, Any], actor: str, *,
+                         action: str = "batch.route", extra: Optional[dict[str, Any]] = None) -> Batch:
+    """The one tail of every route change: flush, audit before/after, commit, refresh."""
+    session.flush()
+    audit.record(session, actor=actor, action=action, entity="batch", code=batch.code,
+                 compound_id=batch.compound_id, before=before, after={**_snapshot(session, batch), **(extra or {})})
+    session.commit()
+    session.refresh(batch)
+    return batch
+
+
 def set_route(*, session: Session, batch: Batch, data: RouteIn, actor: str) -> Batch:
     """Replace a batch's route and precursors (validated whole first; one commit, audited)."""
     steps = _steps_from(data, session, batch)
@@ -199,12 +210,7 @@ def set_route(*, session: Session, batch: Batch, data: RouteIn, actor: str) -> B
     session.flush()
     session.add_all(steps)
     session.add_all(BatchPrecursor(batch_id=batch.id, precursor_id=pid) for pid in precursor_ids)
-    session.flush()
-    audit.record(session, actor=actor, action="batch.route", entity="batch", code=batch.code,
-                 compound_id=batch.compound_id, before=before, after=_snapshot(session, batch))
-    session.commit()
-    session.refresh(batch)
-    return batch
+    return _record_route_change(session, batch, before, actor)
 
 
 def copy_route(*, session: Session, batch: Batch, source: Batch, actor: str) -> Batch:
@@ -222,13 +228,8 @@ def copy_route(*, session: Session, batch: Batch, source: Batch, actor: str) -> 
     session.add_all(SynthesisStep(batch_id=batch.id, position=s.position, description=s.description,
                                   reagents=[dict(u) for u in s.reagents], solvent=s.solvent,
                                   temperature_K=s.temperature_K, time_h=s.time_h, yield_pct=None) for s in src)
-    session.flush()
-    audit.record(session, actor=actor, action="batch.route_copy", entity="batch", code=batch.code,
-                 compound_id=batch.compound_id, before=before,
-                 after={**_snapshot(session, batch), "template": source.code})
-    session.commit()
-    session.refresh(batch)
-    return batch
+    return _record_route_change(session, batch, before, actor, action="batch.route_copy",
+                                extra={"template": source.code})
 
 
 def _walk(session: Session, batch: Batch, *, upstream: bool) -> list[tuple[Batch, int]]:
@@ -302,12 +303,7 @@ def add_step(*, session: Session, batch: Batch, step: RouteStepIn, actor: str) -
     new.position = (last or 0) + 1
     before = _snapshot(session, batch)
     session.add(new)
-    session.flush()
-    audit.record(session, actor=actor, action="batch.route", entity="batch", code=batch.code,
-                 compound_id=batch.compound_id, before=before, after=_snapshot(session, batch))
-    session.commit()
-    session.refresh(batch)
-    return batch
+    return _record_route_change(session, batch, before, actor)
 
 
 def add_precursor(*, session: Session, batch: Batch, precursor_code: str, actor: str) -> Batch:
@@ -323,9 +319,4 @@ def add_precursor(*, session: Session, batch: Batch, precursor_code: str, actor:
         return batch
     before = _snapshot(session, batch)
     session.add(BatchPrecursor(batch_id=batch.id, precursor_id=p.id))
-    session.flush()
-    audit.record(session, actor=actor, action="batch.route", entity="batch", code=batch.code,
-                 compound_id=batch.compound_id, before=before, after=_snapshot(session, batch))
-    session.commit()
-    session.refresh(batch)
-    return batch
+    return _record_route_change(session, batch, before, actor)

@@ -20,6 +20,7 @@ from server import merit
 from server.ingest.table import to_csv_bytes
 from server.models import Compound, CompoundStats
 from server.services import compound_page
+from server.web.format import number
 from server.synth.ferro import leaky_capacitor, miller_loop, pund_train
 from tests.factories import bearer, login_as, make_token, soup
 
@@ -50,10 +51,7 @@ def pellet(client, session):
     good = up("pe_loop", _loop(6.0, 300.0, 300, 1))
     leaky = up("pe_loop", _loop(9.0, 360.0, 320, 2))
     assert good["verdict"] == leaky["verdict"] == "switching"  # by its own shape the second loop switches
-    train = pund_train(1.0, 2.0, 1.0, 360.0, switching=False, eps_r_background=6.0, leak_sigma_S_m=3e-8,
-                       noise_uC_cm2=2e-4, points=3000, rng=np.random.default_rng(5), area_cm2=0.00785,
-                       thickness_um=100.0)
-    pund = up("pund", to_csv_bytes(train, {"temperature": "321 K", **GEOMETRY}))
+    pund = up("pund", _no_switching_pund(321, 5))
     assert pund["verdict"] == "no_switching"
     ellipse = leaky_capacitor(6.0, 4.0, 300.0, frequency_Hz=100.0, sigma_S_m=2.5e-6, noise_uC_cm2=0.05,
                               rng=np.random.default_rng(3)).drop(columns=["t (s)"])
@@ -96,9 +94,11 @@ def test_apparent_loops_are_greyed_and_labelled_on_the_pages(client, session, pe
     good_page = soup(client.get(f"/measurements/{good['id']}").text)
     assert good_page.find(attrs={"data-field": "apparent-reason"}) is None and "Pr" in {
         tr.th.text for tr in good_page.select("table.results tr") if tr.th}
-    # the registry's Pr column reads the same best value (the loop at 300 K)
-    reg = client.get("/api/v1/compounds", headers=bearer(make_token(session, scope="read"))).json()
-    assert reg  # listing works; the largest Pr itself is CompoundStats, checked above
+    # the registry's Pr column shows the loop at 300 K, not the larger apparent values
+    registry_page = soup(client.get("/compounds").text)
+    cells = [td.get_text(" ", strip=True) for tr in registry_page.select("tbody tr")
+             if tr.find("a", string=code) for td in tr.find_all("td")]
+    assert f"{number(good['results']['pr_uC_cm2'], 3)} at 300 K" in cells
 
 
 def _m(i, kind, verdict, t, sample="S1", **results):
@@ -117,3 +117,29 @@ def test_the_rule_itself():
                                            _m(6, "pund", "no_switching", 306.0)])
     assert merit.apparent_reasons([loop, none_here]) == {1: merit.apparent_reason(loop, [none_here])}
     assert "pr_uC_cm2" in merit.apparent_keys(loop, "any reason") and not merit.apparent_keys(loop, None)
+
+
+def _no_switching_pund(t_K, seed):
+    train = pund_train(1.0, 2.0, 1.0, 360.0, switching=False, eps_r_background=6.0, leak_sigma_S_m=3e-8,
+                       noise_uC_cm2=2e-4, points=3000, rng=np.random.default_rng(seed), area_cm2=0.00785,
+                       thickness_um=100.0)
+    return to_csv_bytes(train, {"temperature": f"{t_K} K", **GEOMETRY})
+
+
+def test_the_comparison_table_marks_a_loop_pund_contradicts(client, session, pellet):
+    code, good, leaky, pund, lossy = pellet
+    from server.services import compare
+
+    h = bearer(make_token(session, scope="write"))
+    # a second compound whose one loop switches by its shape, at 300 K, where PUND of the batch's
+    # default sample switches nothing
+    other = client.post("/api/v1/compounds", json={"smiles": BOWL.replace("OC", "OCC")}, headers=h).json()["code"]
+    assert client.post(f"/api/v1/compounds/{other}/batches", json={}, headers=h).status_code == 201
+    for kind, raw in (("pe_loop", _loop(9.5, 360.0, 300, 9)), ("pund", _no_switching_pund(300, 11))):
+        r = client.post(f"/api/v1/batches/{other}-B01/measurements", data={"kind": kind},
+                        files={"file": (f"{kind}.csv", raw)}, headers=h)
+        assert r.status_code == 201, r.text
+    rows = {row["code"]: row for row in compare.comparison(session, [code, other], "pe_loop", actor=None)["rows"]}
+    assert all(v.endswith("(apparent)") for v in rows[other]["values"])
+    shown = rows[code]["measurement"]  # whichever loop the comparison shows of the first compound
+    assert any(v.endswith("(apparent)") for v in rows[code]["values"]) == (shown in (leaky["id"], lossy["id"]))

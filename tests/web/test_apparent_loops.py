@@ -73,6 +73,11 @@ def test_apparent_loops_raise_no_best_value_and_no_plot_point(client, session, p
     pr_drawn = [y for trace in json.loads(page["summary_figure"])["data"] if trace.get("yaxis", "y") == "y"
                 for y in trace["y"]]
     assert max(pr_drawn) == pytest.approx(good["results"]["pr_uC_cm2"])
+    # the explorer's loop at a temperature follows the same rule: none at 320 K, the good one at 300 K
+    from server.services import explore
+
+    assert explore._loops_at(session, [compound.id], 320.0) == {}
+    assert explore._loops_at(session, [compound.id], 300.0)[compound.id]["pr_uC_cm2"] == good["results"]["pr_uC_cm2"]
 
 
 def test_apparent_loops_are_greyed_and_labelled_on_the_pages(client, session, pellet):

@@ -231,6 +231,19 @@ def cmd_reanalyze(args: argparse.Namespace) -> int:
     return 1 if any(ch.error for ch in changes) else 0
 
 
+def cmd_rematch_scaffolds(args: argparse.Namespace) -> int:
+    from .db import make_engine
+    from .services.registry import rematch_scaffolds
+
+    with Session(make_engine(_settings().database_url)) as session:
+        changes = rematch_scaffolds(session=session, apply=not args.dry_run, actor="cli")
+    for ch in changes:
+        print(f"{ch.code}: scaffold {ch.before or 'none'} -> {ch.after} ({ch.note})")
+    verb = "would be filed" if args.dry_run else "filed"
+    print(f"{len(changes)} compound(s) {verb} under a scaffold")
+    return 0
+
+
 def cmd_worker(args: argparse.Namespace) -> int:
     from .db import upgrade
     from .jobs.worker import run_worker
@@ -402,6 +415,11 @@ def build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("reanalyze", help="recompute every stored measurement from its raw file")
     p.add_argument("--kind", help="only measurements of this kind")
     p.set_defaults(func=cmd_reanalyze)
+
+    p = sub.add_parser("rematch-scaffolds", help="file compounds without a scaffold under the largest registered "
+                       "scaffold they are built on")
+    p.add_argument("--dry-run", action="store_true", help="list the changes, write nothing")
+    p.set_defaults(func=cmd_rematch_scaffolds)
 
     p = sub.add_parser("worker", help="run background jobs (computed estimates) until stopped")
     p.add_argument("--name", help="worker name shown on the queue page (default host:pid)")

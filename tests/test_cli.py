@@ -80,3 +80,24 @@ def test_reanalyze_command(env, client, session, capsys):
     assert main(["reanalyze", "--kind", "pe_loop"]) == 0
     out = capsys.readouterr().out
     assert f"measurement {mid} (pe_loop) hysteresis/0.1 -> {hysteresis.VERSION}" in out and "1 measurement(s) changed" in out
+
+
+def test_rematch_scaffolds_command_dry_run_then_apply(env, client, session, capsys):
+    from server.chem.scaffold import PARENT_BOWLS, build_from_scaffold
+    from server.models import Compound
+    from tests.factories import bearer, make_token
+
+    h = bearer(make_token(session, scope="write"))
+    code = client.post("/api/v1/compounds", json={"smiles": build_from_scaffold(PARENT_BOWLS["Se"], "alkoxy", 4)},
+                       headers=h).json()["code"]
+    assert client.post("/api/v1/scaffolds", json={"code": "TB-SE", "name": "Se bowl", "smiles": PARENT_BOWLS["Se"]},
+                       headers=h).status_code == 201
+    assert main(["rematch-scaffolds", "--dry-run"]) == 0
+    out = capsys.readouterr().out
+    assert f"{code}: scaffold none -> TB-SE (built on TB-SE" in out and "1 compound(s) would be filed" in out
+    session.expire_all()
+    assert session.exec(select(Compound)).one().scaffold_id is None
+    assert main(["rematch-scaffolds"]) == 0
+    assert "1 compound(s) filed under a scaffold" in capsys.readouterr().out
+    assert client.get(f"/api/v1/compounds/{code}", headers=h).json()["scaffold"] == "TB-SE"
+    assert main(["rematch-scaffolds"]) == 0 and "0 compound(s) filed" in capsys.readouterr().out

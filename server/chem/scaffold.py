@@ -16,6 +16,8 @@ References
 * SMILES with atom maps and dummy atoms: D. Weininger, J. Chem. Inf. Comput. Sci. 28, 31
   (1988), DOI 10.1021/ci00057a005; Daylight Theory Manual (reaction/atom-map notation).
 * ``Chem.molzip``: RDKit documentation, rdkit.Chem.rdmolops.molzip (https://www.rdkit.org).
+* Matching a structure to a scaffold: RDKit R-group decomposition
+  (rdkit.Chem.rdRGroupDecomposition, ``onlyMatchAtRGroups``), https://www.rdkit.org.
 * Substituent names (2-ethylhexyl, sec-butyl, ...): IUPAC, Nomenclature of Organic
   Chemistry, Recommendations 2013 (RSC 2014), P-29.
 """
@@ -40,6 +42,10 @@ __all__ = [
     "side_chain_smiles",
     "attach_side_chains",
     "build_from_scaffold",
+    "ScaffoldMatch",
+    "match_scaffold",
+    "match_scaffolds",
+    "describe_match",
 ]
 
 # Attachment points numbered around the rim, two per outer benzo ring (1,2), (3,4), (5,6).
@@ -348,3 +354,107 @@ def build_from_scaffold(
     fragment = side_chain_smiles(kind, carbons, branched_form)
     maps = _attachment_maps(parse_smiles(scaffold_smiles, allow_dummies=True, field="scaffold"), "scaffold")
     return attach_side_chains(scaffold_smiles, {n: fragment for n in maps})
+
+
+# --- matching a structure against registered scaffolds ------------------------------------------
+
+
+@dataclass(frozen=True)
+class ScaffoldMatch:
+    """A structure found to be built on a scaffold.
+
+    Attributes
+    ----------
+    code : str
+        The scaffold's code.
+    core_atoms : int
+        Heavy atoms of the scaffold core (dummies not counted): the size by which the largest
+        of several matching scaffolds is chosen.
+    substituents : tuple of (int, str)
+        For every attachment point ``n`` (1..n), the substituent there as a fragment SMILES with
+        ``*`` where the core was (``"*OCCCCCC"``), or ``"[H]"`` for an unsubstituted position.
+    """
+
+    code: str
+    core_atoms: int
+    substituents: tuple[tuple[int, str], ...]
+
+    def substituted(self) -> int:
+        return sum(1 for _, s in self.substituents if s != "[H]")
+
+
+def _decomposition_options():  # noqa: ANN202 - an RDKit parameters object
+    from rdkit.Chem import rdRGroupDecomposition as rgd
+
+    p = rgd.RGroupDecompositionParameters()
+    p.onlyMatchAtRGroups = True  # a substituent anywhere but an attachment point: no match
+    p.removeHydrogensPostMatch = True
+    p.labels = rgd.RGroupLabels.AtomMapLabels
+    p.alignment = rgd.RGroupCoreAlignment.NoAlignment
+    return p
+
+
+def _fragment(smiles: str) -> str:
+    """An R group as RGD writes it (``CCO[*:2]``) -> canonical SMILES with a bare ``*``."""
+    frag = Chem.MolFromSmiles(smiles)
+    for atom in frag.GetAtoms():
+        atom.SetAtomMapNum(0)
+    return Chem.MolToSmiles(frag)
+
+
+def match_scaffold(mol: Chem.Mol, code: str, scaffold_smiles: str) -> ScaffoldMatch | None:
+    """Whether ``mol`` is built on the scaffold: its core is a substructure of ``mol`` and every
+    atom of ``mol`` outside the core hangs from an attachment point ``[*:n]``.
+
+    Parameters
+    ----------
+    mol : rdkit.Chem.Mol
+        A sanitised molecule (``identity.parse_structure``).
+    code, scaffold_smiles : str
+        The scaffold's code and its SMILES with ``[*:1]`` ... ``[*:n]``.
+
+    Returns
+    -------
+    ScaffoldMatch or None
+
+    Notes
+    -----
+    RDKit's R-group decomposition with ``onlyMatchAtRGroups`` does the matching (RDKit
+    documentation, rdkit.Chem.rdRGroupDecomposition); an attachment point left as hydrogen counts
+    as a match, so the parent bowl (C21H12) is built on its scaffold. For a symmetric core the
+    numbering of equivalent points is one of the symmetry-equivalent choices.
+    """
+    from rdkit.Chem import rdRGroupDecomposition as rgd
+
+    core = Chem.MolFromSmiles(scaffold_smiles)
+    if core is None:  # a stored scaffold was checked on creation; nothing to match against
+        return None
+    n = sum(1 for a in core.GetAtoms() if a.GetAtomicNum() == 0)
+    with captured_rdkit_log():
+        groups, unmatched = rgd.RGroupDecompose([core], [Chem.RemoveHs(mol)], asSmiles=True,
+                                                options=_decomposition_options())
+    if unmatched or not groups:
+        return None
+    row = groups[0]
+    subs = tuple((i, _fragment(row[f"R{i}"]) if f"R{i}" in row else "[H]") for i in range(1, n + 1))
+    return ScaffoldMatch(code=code, core_atoms=core.GetNumAtoms() - n, substituents=subs)
+
+
+def match_scaffolds(mol: Chem.Mol, scaffolds: Mapping[str, str]) -> list[ScaffoldMatch]:
+    """Every scaffold (code -> SMILES) ``mol`` is built on, the largest core first (then more
+    attachment points, then code): the first is the one a compound is filed under."""
+    found = [m for code, smi in scaffolds.items() if (m := match_scaffold(mol, code, smi)) is not None]
+    return sorted(found, key=lambda m: (-m.core_atoms, -len(m.substituents), m.code))
+
+
+def describe_match(matches: list[ScaffoldMatch]) -> str:
+    """Words for the registration form and the audit trail: which scaffold, and why that one."""
+    if not matches:
+        return "built on no registered scaffold"
+    best = matches[0]
+    text = (f"built on {best.code} ({best.core_atoms} core atoms; {best.substituted()} of "
+            f"{len(best.substituents)} attachment points substituted)")
+    if len(matches) > 1:
+        others = ", ".join(f"{m.code} ({m.core_atoms})" for m in matches[1:])
+        text += f"; also matches {others}: the largest core is chosen"
+    return text

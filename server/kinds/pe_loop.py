@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from typing import Any, Sequence
 
+from .. import merit
 from ..analysis import hysteresis
 from ..plots.ferro import loop_figure
 from ..synth.ferro import miller_loop, raw_vq
@@ -25,10 +26,10 @@ def _figure(parsed, result):
 
 
 def _stats(ms: Sequence[Any]) -> dict[str, Any]:
-    """The strongest switching loop (saturated switching loops only; the first of equals): its Pr, Ec and
-    Ps, and the conditions it was measured at (temperature, field amplitude, the loop itself), because a
-    maximum over temperatures, fields and specimens means little without them."""
-    loops = [m for m in ms if m.verdict == "switching"]
+    """The strongest loop whose numbers are figures of merit (``server/merit.py``; the first of equals): its
+    Pr, Ec and Ps, and the conditions it was measured at (temperature, field amplitude, the loop itself),
+    because a maximum over temperatures, fields and specimens means little without them."""
+    loops = [m for m in ms if merit.is_figure_of_merit(m)]
     best = max(loops, key=lambda m: m.results.get("pr_uC_cm2") or 0, default=None)
     r = best.results if best is not None else {}
     return {"pr_max_uC_cm2": r.get("pr_uC_cm2"), "ec_kV_cm": r.get("ec_kV_cm"), "ps_uC_cm2": r.get("ps_uC_cm2"),

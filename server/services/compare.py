@@ -14,13 +14,13 @@ from typing import Any, Optional
 import plotly.graph_objects as go
 from sqlmodel import Session
 
-from .. import access
+from .. import access, merit
 from ..access import Actor
 from ..errors import InputError
 from ..kinds import KINDS
 from ..plots import SERIES, base_layout, summary, vector
 from ..precision import significant
-from . import figures_vector, measurements, registry
+from . import figures_vector, measurements, registry, samples
 from .errors import NotFound
 
 #: Kinds with one main curve to overlay, and whether their x axis is a temperature.
@@ -62,6 +62,8 @@ def comparison(session: Session, codes: list[str], kind: str, *, actor: Optional
             missing.append(code)
             continue
         m = live[-1]
+        # apparent values (server/merit.py: by the loop's own shape or by PUND of its sample) say so
+        shown = merit.apparent_keys(m, samples.apparent_reason(session, m))
         plot = figures_vector.measurement_plot(session, m)
         main = next(tr for tr in plot.data if (tr.xaxis or "x") == "x" and (tr.yaxis or "y") == "y")
         x = list(vector.trace_values(main.x))
@@ -83,19 +85,19 @@ def comparison(session: Session, codes: list[str], kind: str, *, actor: Optional
                                  line=dict(color=SERIES[i % len(SERIES)], width=2)))
         rows.append({"code": code, "measurement": m.id, "tc_K": significant(tc, 5) if tc else "",
                      "t": significant(m.temperature_K, 5) if m.temperature_K else "",
-                     "values": [_value(m.results, k) for k in keys]})
+                     "values": [_value(m.results, k, shown) for k in keys]})
     if reduced:
         x_title = "T/Tc (1)"
     base_layout(fig, x_title=x_title, y_title=y_title)
     return {"figure": fig, "rows": rows, "keys": keys, "missing": missing, "kind": spec}
 
 
-def _value(results: dict[str, Any], rk: Any) -> str:
+def _value(results: dict[str, Any], rk: Any, apparent: frozenset[str] = frozenset()) -> str:
     value = results.get(rk.key)
     if isinstance(value, list):
         return str(len(value))
     text = significant(value, rk.digits) if value is not None else "—"
-    return f"{text} (apparent)" if rk.key in (results.get("apparent") or ()) and value is not None else text
+    return f"{text} (apparent)" if rk.key in apparent and value is not None else text
 
 
 def figure_as_json(data: dict) -> str:

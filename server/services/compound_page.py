@@ -8,7 +8,7 @@ from typing import Any, Optional
 
 from sqlmodel import Session
 
-from .. import access
+from .. import access, merit
 from ..access import Actor
 from ..jobs import queue
 from ..models import Compound
@@ -22,8 +22,10 @@ DEFAULT_F_HZ = 1000.0
 
 def switching_lines(session: Session, items: list[dict[str, Any]], sample_rows) -> tuple[list, list, list]:  # noqa: ANN001
     """The compound's loops for the Pr/Ec-against-T figure: one line per temperature series of a
-    sample, the loops in no series apart (never one line through every loop); also every series."""
-    by_id = {m["id"]: m for m in items}
+    sample, the loops in no series apart (never one line through every loop); also every series.
+    Loops whose numbers are only apparent (``server/merit.py``) are left out of the figure."""
+    apparent = merit.apparent_reasons(items)
+    by_id = {m["id"]: m for m in items if m["id"] not in apparent}
     lines, in_series = [], set()
     all_series = []
     for sample, _ in sample_rows:
@@ -33,7 +35,7 @@ def switching_lines(session: Session, items: list[dict[str, Any]], sample_rows) 
                 lines.append((f"{sample.code} {s['direction'] or ''}".strip(), [by_id[i] for i in s["measurements"]
                                                                                    if i in by_id]))
                 in_series.update(s["measurements"])
-    loose = [m for m in items if m["kind"] == "pe_loop" and m["id"] not in in_series]
+    loose = [m for m in items if m["kind"] == "pe_loop" and m["id"] not in in_series and m["id"] not in apparent]
     return lines, loose, all_series
 
 
@@ -47,6 +49,10 @@ def compound_page(session: Session, compound: Compound, *, actor: Optional[Actor
     # (computed from the structure) and jobs without results (``server/access.py``).
     hide = not access.may_see_structure(actor, compound)
     items = [measurements.measurement_as_seen(session, m, actor) for m in rows]
+    apparent = {} if hide else merit.apparent_reasons(items)  # receipts carry no results to grey
+    for m in items:  # the key-results column greys these and labels them apparent
+        m["apparent_reason"] = apparent.get(m["id"])
+        m["apparent_keys"] = sorted(merit.apparent_keys(m, apparent.get(m["id"])))
     sample_rows = samples.samples_of_compound(session, compound)
     lines, loose, all_series = switching_lines(session, items, sample_rows)
     fig = None if hide else summary.switching_by_series(lines, loose)
@@ -63,6 +69,7 @@ def compound_page(session: Session, compound: Compound, *, actor: Optional[Actor
                     for s, n in samples.with_counts(session, [s for s, _ in sample_rows])],
         "tc_estimate": series.combine_series_tc(all_series),
         "summary_figure": figure_json(fig) if fig else None,
+        "apparent_loops": sum(1 for m in items if m["apparent_reason"]),
         "transitions": summary.transitions_table(items),
         "phase_map": phase_id.phase_map(session, compound, actor=actor),
         "barriers": barriers.barrier_rows(session, compound, t_K=DEFAULT_T_K, frequency_Hz=DEFAULT_F_HZ),

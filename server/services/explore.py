@@ -8,6 +8,7 @@ from typing import Any, Callable, Optional
 
 from sqlmodel import Session, select
 
+from .. import merit
 from ..access import Actor
 from ..errors import InputError
 from ..models import Batch, Measurement, live_measurement
@@ -101,17 +102,22 @@ class Point:
 
 
 def _loops_at(session: Session, compound_ids: list[int], t_K: float) -> dict[int, dict[str, Any]]:
-    """The saturated switching loop closest to t_K (within SAME_T_K) per compound."""
+    """The loop closest to t_K (within SAME_T_K) per compound whose numbers are figures of merit
+    (``server/merit.py``: switching, and not contradicted by PUND of its sample)."""
+    margin = SAME_T_K + merit.SAME_TEMPERATURE_K  # the PUND that may contradict a loop lies this far out
     rows = session.exec(
-        select(Batch.compound_id, Measurement.temperature_K, Measurement.results)
+        select(Batch.compound_id, Measurement)
         .join(Batch, Batch.id == Measurement.batch_id)
-        .where(Measurement.kind == "pe_loop", Measurement.verdict == "switching",
+        .where(Measurement.kind.in_(("pe_loop", "pund")),
                live_measurement(), Batch.compound_id.in_(compound_ids),  # noqa: E712
                Measurement.temperature_K.is_not(None),
-               Measurement.temperature_K >= t_K - SAME_T_K, Measurement.temperature_K <= t_K + SAME_T_K)
+               Measurement.temperature_K >= t_K - margin, Measurement.temperature_K <= t_K + margin)
     ).all()
+    punds = [m for _, m in rows if m.kind == "pund"]
     best: dict[int, tuple[float, dict]] = {}
-    for cid, t, results in rows:
+    for cid, t, results in ((cid, m.temperature_K, m.results) for cid, m in rows
+                            if m.kind == "pe_loop" and abs(m.temperature_K - t_K) <= SAME_T_K
+                            and merit.is_figure_of_merit(m, punds)):
         d = abs(t - t_K)
         if cid not in best or d < best[cid][0]:
             best[cid] = (d, results)

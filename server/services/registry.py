@@ -43,6 +43,8 @@ class Preview:
     summary: str
     svg: str
     existing: Optional[str]  # code of a registered compound with the same InChIKey
+    scaffolds: list[scaffolds.ScaffoldMatch]  # registered scaffolds it is built on, the chosen one first
+    scaffold_note: str  # which scaffold, and why (scaffolds.describe_match)
 
 
 def resolve_structure(*, session: Session, data: CompoundCreate) -> str:
@@ -57,17 +59,53 @@ def resolve_structure(*, session: Session, data: CompoundCreate) -> str:
     raise ChemistryError("give a SMILES or MOL block, or a scaffold with a side chain", field="smiles")
 
 
-def preview(*, session: Session, text: str) -> Preview:
+def scaffold_table(session: Session) -> dict[str, str]:
+    """Every registered scaffold, code -> SMILES. Scaffolds are the group's cores, not compounds: no
+    embargo applies to them, and matching against them reads nothing of any registered compound."""
+    return dict(session.exec(select(Scaffold.code, Scaffold.smiles).order_by(Scaffold.code)).all())
+
+
+def scaffold_matches(session: Session, mol: Chem.Mol) -> list[scaffolds.ScaffoldMatch]:
+    """The registered scaffolds ``mol`` is built on, the one it is filed under first (largest core)."""
+    return scaffolds.match_scaffolds(mol, scaffold_table(session))
+
+
+def _chosen_scaffold(session: Session, mol: Chem.Mol, data: CompoundCreate) -> tuple[Optional[str], str]:
+    """The scaffold a new compound is filed under and the words saying why: the one named, which
+    the structure must be built on, else the largest registered scaffold it is built on."""
+    if data.scaffold:
+        sc = get_scaffold(session, data.scaffold)
+        if data.smiles and data.smiles.strip() and scaffolds.match_scaffold(mol, sc.code, sc.smiles) is None:
+            raise ChemistryError(
+                f"the structure is not built on scaffold {sc.code}: its core is missing, or something is "
+                "attached where the scaffold has no attachment point; leave the scaffold empty to have it "
+                "matched", field="scaffold")
+        return sc.code, f"scaffold {sc.code} as given"
+    matches = scaffold_matches(session, mol)
+    return (matches[0].code if matches else None), scaffolds.describe_match(matches)
+
+
+def preview(*, session: Session, text: str, scaffold: Optional[str] = None) -> Preview:
     mol = identity.parse_structure(text)
     ident = identity.identify(mol)
     chains = sidechains.perceive_side_chains(mol)
+    # Members and write tokens alone reach the preview, and they see every structure (server/access.py).
     existing = session.exec(select(Compound.code).where(Compound.inchikey == ident.inchikey)).first()
+    matches = scaffold_matches(session, mol)
+    note = scaffolds.describe_match(matches)
+    if scaffold:
+        chosen = [m for m in matches if m.code == scaffold]
+        note = (f"scaffold {scaffold} as given" if chosen
+                else f"not built on the chosen scaffold {scaffold}; {note}")
+        matches = chosen + [m for m in matches if m.code != scaffold]
     return Preview(
         identity=ident,
         side_chains=chains,
         summary=sidechains.describe_side_chains(chains),
         svg=draw.depict_svg(mol),
         existing=existing,
+        scaffolds=matches,
+        scaffold_note=note,
     )
 
 
@@ -83,7 +121,8 @@ def register_compound(*, session: Session, settings: Settings, data: CompoundCre
     existing = session.exec(select(Compound).where(Compound.inchikey == ident.inchikey)).first()
     if existing is not None:
         raise Duplicate(f"this molecule is registered already as {existing.code}", existing=existing.code)
-    scaffold_id = get_scaffold(session, data.scaffold).id if data.scaffold else None
+    scaffold_code, scaffold_note = _chosen_scaffold(session, mol, data)
+    scaffold_id = get_scaffold(session, scaffold_code).id if scaffold_code else None
     chains = sidechains.perceive_side_chains(mol)
     number = codes.allocate(session, codes.COMPOUND_SERIES)
     compound = Compound(
@@ -125,12 +164,51 @@ def register_compound(*, session: Session, settings: Settings, data: CompoundCre
         planning.queue_estimate_of_target(session, compound, actor=actor)
     audit.record(
         session, actor=actor, action="compound.create", entity="compound", code=compound.code,
-        compound_id=compound.id, after={**audit.snapshot(compound), **({"plan": audit.snapshot(plan)} if plan else {})},
+        compound_id=compound.id, after={**audit.snapshot(compound), "scaffold_match": scaffold_note,
+                                        **({"plan": audit.snapshot(plan)} if plan else {})},
     )
     stats.refresh(session, compound)
     session.commit()
     session.refresh(compound)
     return compound
+
+
+@dataclass(frozen=True)
+class ScaffoldChange:
+    """What re-matching does to one compound: its scaffold before and after, and why."""
+
+    code: str
+    before: Optional[str]
+    after: Optional[str]
+    note: str
+
+
+def rematch_scaffolds(*, session: Session, apply: bool, actor: str) -> list[ScaffoldChange]:
+    """File every compound without a scaffold under the largest registered scaffold it is built on
+    (``scaffolds.match_scaffolds``); compounds already filed are left alone. With ``apply`` False
+    (a dry run) nothing is written; else each change is audited and everything commits once."""
+    table = scaffold_table(session)
+    ids = {code: sid for sid, code in session.exec(select(Scaffold.id, Scaffold.code)).all()}
+    changes = []
+    for compound in session.exec(select(Compound).where(Compound.scaffold_id.is_(None))
+                                 .order_by(Compound.number)).all():
+        matches = scaffolds.match_scaffolds(Chem.MolFromSmiles(compound.smiles), table)
+        if not matches:
+            continue
+        note = scaffolds.describe_match(matches)
+        changes.append(ScaffoldChange(compound.code, None, matches[0].code, note))
+        if apply:
+            before = audit.snapshot(compound)
+            compound.scaffold_id = ids[matches[0].code]
+            compound.updated_at = utcnow()
+            session.add(compound)
+            audit.record(session, actor=actor, action="compound.update", entity="compound", code=compound.code,
+                         compound_id=compound.id, before=before,
+                         after={**audit.snapshot(compound), "scaffold_match": note})
+            stats.refresh(session, compound)
+    if apply and changes:
+        session.commit()
+    return changes
 
 
 def get_compound(session: Session, code: str) -> Compound:

@@ -15,6 +15,7 @@ from sqlalchemy import func
 from sqlalchemy.exc import IntegrityError
 from sqlmodel import Session, select
 
+from .. import merit
 from ..errors import InputError
 from ..ingest.conditions import parse_quantity
 from ..models import (SAMPLE_FORMS, Batch, Compound, Measurement, Sample, SampleCreate, live_measurement)
@@ -184,6 +185,14 @@ def live_measurements(session: Session, sample: Sample) -> list[Measurement]:
     place of the measurement it corrects)."""
     rows = list(session.exec(select(Measurement).where(Measurement.sample_id == sample.id, live_measurement())).all())
     return sorted(rows, key=lambda m: (_taken_at(session, m), m.id))
+
+
+def apparent_reason(session: Session, m: Measurement) -> Optional[str]:
+    """Why this measurement's loop numbers are only apparent (``server/merit.py``, read against the
+    live measurements of its sample), or None when they are figures of merit or it is no loop."""
+    if m.kind not in merit.MERIT_KEYS:
+        return None
+    return merit.apparent_reason(m, live_measurements(session, session.get(Sample, m.sample_id)))
 
 
 def _taken_at(session: Session, m: Measurement):

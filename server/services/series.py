@@ -16,6 +16,7 @@ from typing import Any, Iterable, Optional, Sequence
 
 from sqlmodel import Session, select
 
+from .. import merit
 from ..analysis import series as fits
 from ..errors import InputError
 from ..models import SERIES_VARIABLES, Batch, Compound, Measurement, MeasurementSeries, Sample
@@ -126,8 +127,10 @@ def _other_series(ms: Sequence[Measurement], variable: str) -> list[dict[str, An
     return out
 
 
-def fit_series(kind: str, variable: str, members: Sequence[Measurement]) -> dict[str, Any]:
-    """The fits a series of this kind and variable has (empty when none applies)."""
+def fit_series(kind: str, variable: str, members: Sequence[Measurement],
+               beside: Sequence[Measurement] = ()) -> dict[str, Any]:
+    """The fits a series of this kind and variable has (empty when none applies); ``beside``: the
+    sample's other measurements, whose PUND can make a loop's numbers apparent (``server/merit.py``)."""
     pr_key = PR_KEYS.get(kind)
     if pr_key is None:
         return {}
@@ -135,9 +138,9 @@ def fit_series(kind: str, variable: str, members: Sequence[Measurement]) -> dict
     ec = [(m.results or {}).get("ec_kV_cm") for m in members]
     out: dict[str, Any] = {"method": fits.METHOD, "analysis_version": fits.VERSION}
     if variable == "temperature":
-        # A loop the analysis does not judge switching has no remanence to speak of: Pr = 0 there.
-        pr = [((m.results or {}).get(pr_key) or 0.0) if (m.verdict == "switching" or kind == "pund") else 0.0
-              for m in members]
+        # A loop whose Pr is only apparent (server/merit.py) has no remanence to speak of: Pr = 0 there.
+        pr = [((m.results or {}).get(pr_key) or 0.0) if (kind == "pund" or merit.is_figure_of_merit(m, beside))
+              else 0.0 for m in members]
         out["pr_T"] = fits.fit_pr_temperature(x, pr).to_dict()
         if kind == "pe_loop":
             out["ec_T"] = fits.fit_ec_trend(x, ec, variable="temperature").to_dict()
@@ -146,12 +149,13 @@ def fit_series(kind: str, variable: str, members: Sequence[Measurement]) -> dict
     return out
 
 
-def _entry(kind: str, s: dict[str, Any], stated_id: Optional[int] = None) -> dict[str, Any]:
+def _entry(kind: str, s: dict[str, Any], stated_id: Optional[int] = None,
+           beside: Sequence[Measurement] = ()) -> dict[str, Any]:
     members = s["members"]
     return {"variable": s["variable"], "direction": s["direction"], "direction_from": s["direction_from"],
             "kind": kind, "measurements": [m.id for m in members], "stated": stated_id is not None,
             "id": stated_id, "values": [_value(m, s["variable"]) for m in members],
-            "fit": fit_series(kind, s["variable"], members)}
+            "fit": fit_series(kind, s["variable"], members, beside)}
 
 
 def sample_series(session: Session, sample: Sample) -> list[dict[str, Any]]:
@@ -169,13 +173,13 @@ def sample_series(session: Session, sample: Sample) -> list[dict[str, Any]]:
         stated_sets.add((row.kind, row.variable, frozenset(m.id for m in members)))
         out.append(_entry(row.kind, {"variable": row.variable, "direction": row.direction or None,
                                      "direction_from": "stated" if row.direction else None,
-                                     "members": members}, stated_id=row.id))
+                                     "members": members}, stated_id=row.id, beside=ms))
     for kind in sorted({m.kind for m in ms}):
         of_kind = [m for m in ms if m.kind == kind]
         found = _temperature_series(of_kind) + _other_series(of_kind, "frequency") + _other_series(of_kind, "field")
         for s in found:
             if (kind, s["variable"], frozenset(m.id for m in s["members"])) not in stated_sets:
-                out.append(_entry(kind, s))
+                out.append(_entry(kind, s, beside=ms))
     return out
 
 

@@ -12,6 +12,7 @@ from typing import Iterable, Optional
 from sqlalchemy import delete, func
 from sqlmodel import Session, select
 
+from .. import merit
 from ..kinds import KINDS
 from ..models import (BarrierEstimate, Batch, Compound, CompoundPlan, CompoundSideChain, CompoundStats, Measurement,
                       live_measurement)
@@ -67,10 +68,12 @@ def refresh(session: Session, compound: Compound) -> CompoundStats:
     stats.n_measurements = len(ms)
     kinds = sorted({m.kind for m in ms})
     stats.kinds = "," + ",".join(kinds) + "," if kinds else ""
-    # Each kind fills its own fields from its live measurements (Kind.stats in server/kinds/).
+    # Each kind fills its own fields from its live measurements (Kind.stats in server/kinds/); loops whose
+    # numbers are only apparent, by themselves or because PUND contradicts them, never reach a best value.
+    apparent = merit.apparent_reasons(ms)
     for kind in KINDS.values():
         if kind.stats is not None:
-            for name, value in kind.stats([m for m in ms if m.kind == kind.name]).items():
+            for name, value in kind.stats([m for m in ms if m.kind == kind.name and m.id not in apparent]).items():
                 setattr(stats, name, value)
 
     bars = session.exec(select(BarrierEstimate).where(BarrierEstimate.compound_id == cid,

@@ -119,14 +119,15 @@ def compound_new_form(request: Request, session: SessionDep, actor: PageWriter):
 
 @router.post("/compounds/preview", response_class=HTMLResponse)
 async def compound_preview(request: Request, session: SessionDep, actor: PageWriter):
-    """Live preview for the registration form (htmx): drawing, formula, masses, side chains, or the error."""
+    """Live preview for the registration form (htmx): drawing, formula, masses, side chains, the scaffold
+    the structure is built on (the largest registered one, saying so when several match), or the error."""
     form = await _form_dict(request)
     preview, error, built = None, None, None
     try:
         data = _compound_create(form)
         text = registry.resolve_structure(session=session, data=data)
         built = None if data.smiles else text
-        preview = registry.preview(session=session, text=text)
+        preview = registry.preview(session=session, text=text, scaffold=data.scaffold)
     except InputError as exc:
         error = str(exc) if (form.get("smiles") or form.get("chain_kind")) else None
     return render(request, "partials/preview.html",

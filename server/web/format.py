@@ -64,10 +64,12 @@ def number(value: Any, digits: int = 4) -> str:
     return significant(value, digits)
 
 
-def scalar_items(results: dict[str, Any], kind: str | None = None) -> list[tuple[str, str, Any, int]]:
-    """(label, unit, value, significant digits) for the scalar results, in the analysis's own order."""
+def scalar_items(results: dict[str, Any], kind: str | None = None,
+                 apparent_keys: Any = None) -> list[tuple[str, str, Any, int]]:
+    """(label, unit, value, significant digits) for the scalar results, in the analysis's own order;
+    apparent values (the analysis's list, or ``apparent_keys`` from ``server/merit.py``) are labelled so."""
     out = []
-    apparent = set(results.get("apparent") or ())
+    apparent = set(results.get("apparent") or ()) | set(apparent_keys or ())
     for key, value in results.items():
         if isinstance(value, (int, float, str, bool)):
             if key in ("verdict", "source"):
@@ -77,13 +79,14 @@ def scalar_items(results: dict[str, Any], kind: str | None = None) -> list[tuple
     return out
 
 
-def summary(kind: str, results: dict[str, Any]) -> str:
-    """The one-line summary of a measurement: its kind's summary keys, labelled (lists are counted)."""
+def summary(kind: str, results: dict[str, Any], apparent_keys: Any = None) -> str:
+    """The one-line summary of a measurement: its kind's summary keys, labelled (lists are counted);
+    apparent values (the analysis's list, or ``apparent_keys`` from ``server/merit.py``) say so."""
     from ..kinds import KINDS
 
     if kind not in KINDS:
         return ""
-    apparent = set(results.get("apparent") or ())
+    apparent = set(results.get("apparent") or ()) | set(apparent_keys or ())
     parts = []
     for rk, value in KINDS[kind].summary_items(results):
         label = f"apparent {rk.label}" if rk.key in apparent else rk.label

@@ -7,6 +7,7 @@ from typing import Annotated, Optional
 from fastapi import APIRouter, File, Form, Request, UploadFile
 from fastapi.responses import HTMLResponse
 from ..deps import PageActor, PageWriter, RowId, SessionDep, SettingsDep
+from .. import merit
 from ..errors import InputError
 from ..ingest.conditions import CONDITION_EXAMPLES
 from ..kinds import KINDS, needed_by
@@ -139,7 +140,9 @@ REVISE_FIELDS = (("area", "Electrode area", "area_cm2", "cm^2"), ("thickness", "
 def _measurement_page(request: Request, session, m, actor, *, revise_error: Optional[str] = None, status_code=200):
     info = measurements.measurement_as_seen(session, m, actor)
     kind = KINDS.get(m.kind)
-    if not measurements.may_download_raw(session, m, actor):
+    seen = measurements.may_download_raw(session, m, actor)
+    apparent = samples.apparent_reason(session, m) if seen else None
+    if not seen:
         # A receipt (embargoed compound, caller who may not see it): no figure either, it draws the results.
         fig, fig_error = None, measurements.RECEIPT_WITHHELD
     else:
@@ -149,7 +152,8 @@ def _measurement_page(request: Request, session, m, actor, *, revise_error: Opti
         except InputError as exc:
             fig, fig_error = None, str(exc)
     return render(request, "pages/measurement.html",
-                  {"m": info, "kind": kind, "figure": fig, "figure_error": fig_error, "revise_error": revise_error,
+                  {"m": info, "kind": kind, "figure": fig, "apparent_reason": apparent,
+                   "apparent_keys": sorted(merit.apparent_keys(info, apparent)), "figure_error": fig_error, "revise_error": revise_error,
                    "revise_fields": REVISE_FIELDS, "examples": CONDITION_EXAMPLES,
                    "thread": comments.thread_panel(session, comments.resolve(session, "measurement", str(m.id)), actor=actor),
                    "heating": planning_pages.measurement_heating(session, m, actor=actor)}, actor=actor,

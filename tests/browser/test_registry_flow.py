@@ -179,3 +179,30 @@ def test_build_from_scaffold_preview_follows_the_choices(page: Page, login):
     facts = page.locator("dl.facts").first
     expect(facts.locator("dt", has_text="Scaffold").locator("xpath=following-sibling::dd[1]")).to_have_text("BWL-S")
     expect(facts.locator("dt", has_text="Formula").locator("xpath=following-sibling::dd[1]")).to_have_text("C66H102S9")
+
+
+def test_a_pasted_bowl_is_matched_to_its_scaffold_in_the_preview(page: Page, login):
+    login("member")
+    page.goto("/scaffolds")
+    page.get_by_label("Code").fill("BWL-SE")
+    page.get_by_label("Name").fill("Se-bridged bowl")
+    page.get_by_label("Core SMILES with attachment points").fill(PARENT_BOWLS["Se"])
+    page.get_by_role("button", name="Add scaffold").click()
+    expect(page).to_have_url(re.compile(r"/scaffolds$"))
+
+    page.set_viewport_size({"width": 390, "height": 844})
+    page.goto("/compounds/new")
+    # Pasted, not built: the Se bowl with six ethoxy chains and no scaffold chosen (the case of issue 22).
+    smiles = PARENT_BOWLS["Se"]
+    for n in range(1, 7):
+        smiles = smiles.replace(f"[*:{n}]", "OCC")
+    page.locator('#new-compound textarea[name="smiles"]').fill(smiles)
+    scaffold = page.locator('#preview [data-field="scaffold"]')
+    expect(scaffold.locator("[data-scaffold]")).to_have_text("BWL-SE")
+    expect(scaffold.locator('[data-field="scaffold_note"]')).to_contain_text("6 of 6 attachment points substituted")
+    # nothing in the preview pushes the phone-width page sideways
+    assert page.evaluate("() => document.documentElement.scrollWidth <= document.documentElement.clientWidth + 1")
+    page.get_by_role("button", name="Register").click()
+    expect(page).to_have_url(CODE_URL)
+    facts = page.locator("dl.facts").first
+    expect(facts.locator("dt", has_text="Scaffold").locator("xpath=following-sibling::dd[1]")).to_have_text("BWL-SE")

@@ -68,7 +68,7 @@ def compound_page(session: Session, compound: Compound, *, actor: Optional[Actor
         "barriers": barriers.barrier_rows(session, compound, t_K=DEFAULT_T_K, frequency_Hz=DEFAULT_F_HZ),
         "t": "298.15 K", "f": "1 kHz", "t_K": DEFAULT_T_K, "f_Hz": DEFAULT_F_HZ, "rate_error": None,
         "estimates": own_estimates,
-        "calibrated": barriers.calibrated_for(session, compound, own_estimates),
+        "calibrated": barriers.calibrated_for(session, compound, own_estimates, actor=actor),
         "active_jobs": [access.job_as_seen(queue.job_read(j, session=session), withheld)
                         for j in jobs if j.state in ("queued", "running")],
     }

@@ -28,7 +28,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Sequence
+from typing import Any, Sequence
 
 import numpy as np
 import pandas as pd
@@ -136,7 +136,7 @@ class RelaxationResult(Result):
     ea_kcal_mol: float | None
     tau0_s: float | None
     flags: tuple[Flag, ...] = ()
-    spectra: tuple | None = field(default=None, repr=False, compare=False)
+    spectra: tuple[Any, ...] | None = field(default=None, repr=False, compare=False)
 
 
 # ----------------------------------------------------------------------------- one isotherm

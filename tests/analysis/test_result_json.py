@@ -19,7 +19,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from server.analysis import calibration, crystal, dielectric, dsc, hysteresis, kinetics, prediction, pund, verdict, xtb
+from server.analysis import (calibration, crystal, dielectric, dsc, hysteresis, kinetics, prediction, pund, pxrd,
+                             relaxation, saxs, shg, verdict, xtb)
 from server.analysis.results import Flag, Result
 
 PINS = Path(__file__).with_name("result_json_pins.json")
@@ -30,6 +31,8 @@ RESULT_TYPES = (
     xtb.XtbEstimate, kinetics.CoalescenceResult, kinetics.EyringFit, kinetics.RateSummary,
     kinetics.ImportedBarrier, verdict.UsedEvidence, verdict.Conflict, verdict.CompoundVerdict,
     prediction.RegressionResult, prediction.ClassificationResult,
+    pxrd.Reflection, pxrd.MeasuredPeak, pxrd.Comparison, pxrd.PxrdResult, pxrd.PatternChange, saxs.SaxsResult,
+    shg.ShgResult, relaxation.Isotherm, relaxation.TemperatureFit, relaxation.RelaxationResult,
 )
 # Values a type needs to exercise its own branches (e.g. a fitted calibration computes residuals).
 OVERRIDES = {

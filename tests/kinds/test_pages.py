@@ -41,7 +41,9 @@ def test_measurement_and_compound_pages_use_the_kinds_labels(client, session):
     label = KINDS["nmr_rates"].result_key("dg298_kcal_mol")
     assert rows[label.label][1] == label.unit == "kcal/mol"
     # dH = 78.5 kJ/mol, dS = -6 J/(mol K): dG(298.15 K) = (78.5 + 1.789) / 4.184 = 19.19 kcal/mol (Eyring 1935)
-    assert abs(float(rows[label.label][0]) - 19.19) < 0.3
+    value, err = rows[label.label][0].split("±")  # digits follow the standard error (JCGM 100:2008, 7.2.6)
+    assert abs(float(value) - 19.19) < 0.3 and float(err) > 0
+    assert "ΔG‡(298 K) error" not in rows  # folded into the value's row
     compound = soup(client.get("/compounds/RVZ-00001").text)
     cells = [tr.find_all("td")[4].text for tr in compound.select("#measurements tbody tr")]
     assert any(c.startswith("Pr ") and "µC/cm²" in c and ", Ec " in c for c in cells), cells

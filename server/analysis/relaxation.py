@@ -35,7 +35,7 @@ import pandas as pd
 from scipy import optimize, stats
 
 from server.analysis.constants import CAL_J, EPS0_F_M as EPSILON_0, R_J_MOLK as R
-from server.analysis.dielectric import permittivity_from_capacitance
+from server.analysis.dielectric import _column, permittivity_from_capacitance
 from server.analysis.results import Flag, Result
 from server.errors import AnalysisError
 
@@ -326,16 +326,6 @@ def analyse(isotherm_data: Sequence[tuple[float, Sequence[float], Sequence[float
 # ----------------------------------------------------------------------------- a spectrum file
 
 
-def _numbers(frame: pd.DataFrame, name: str) -> np.ndarray:
-    values = pd.to_numeric(frame[name], errors="coerce").to_numpy(dtype=float)
-    bad = ~np.isfinite(values)
-    if bad.any():
-        first = int(np.flatnonzero(bad)[0])
-        raise AnalysisError(f"{int(bad.sum())} value(s) in the {name} column are missing or not numbers (first at "
-                            f"data row {first + 1}); fix or remove those rows", column=name)
-    return values
-
-
 def isotherms_from_frame(frame: pd.DataFrame, *, area_cm2: float | None = None, thickness_um: float | None = None
                          ) -> list[tuple[float, np.ndarray, np.ndarray, np.ndarray]]:
     """A long table (``T_K``, ``f_Hz`` and ``eps_r``/``eps_i``, or ``C_F``/``tan_delta`` with the geometry) as
@@ -345,15 +335,15 @@ def isotherms_from_frame(frame: pd.DataFrame, *, area_cm2: float | None = None, 
     for col in ("T_K", "f_Hz"):
         if col not in frame.columns:
             raise AnalysisError(f"the file has no {col} column", column=col)
-    t = _numbers(frame, "T_K")
-    f = _numbers(frame, "f_Hz")
+    t = _column(frame, "T_K", "T")
+    f = _column(frame, "f_Hz", "f")
     if "eps_r" in frame.columns and "eps_i" in frame.columns:
-        er, ei = _numbers(frame, "eps_r"), _numbers(frame, "eps_i")
+        er, ei = _column(frame, "eps_r", "eps'"), _column(frame, "eps_i", "eps''")
     elif "C_F" in frame.columns and "tan_delta" in frame.columns:
         if area_cm2 is None or thickness_um is None:
             raise AnalysisError("capacitance needs the electrode area and the sample thickness", field="area")
-        er = permittivity_from_capacitance(_numbers(frame, "C_F"), area_cm2=area_cm2, thickness_um=thickness_um)
-        ei = er * _numbers(frame, "tan_delta")
+        er = permittivity_from_capacitance(_column(frame, "C_F", "capacitance"), area_cm2=area_cm2, thickness_um=thickness_um)
+        ei = er * _column(frame, "tan_delta", "loss tangent")
     else:
         raise AnalysisError("the file needs eps_r and eps_i, or C and D (tan delta), beside T and f")
     order = np.argsort(t, kind="stable")

@@ -74,14 +74,21 @@ def test_calibration_leaves_out_planar_minima_and_fits_the_bridge_with_enough_pa
     assert "wider than the 3 kcal/mol limit" in text
 
 
+def _set(session, compound, *, embargoed: bool, archived: bool) -> None:
+    compound.embargoed = embargoed
+    session.add(compound)
+    for b in session.exec(select(BarrierEstimate).where(BarrierEstimate.compound_id == compound.id)).all():
+        b.archived = archived
+        session.add(b)
+    session.commit()
+
+
 def test_an_embargoed_pair_never_reaches_a_caller_who_may_not_see_it(client, session, pairs):
     # The embargo is a data boundary (server/access.py): a computed barrier comes from the structure, so an
     # embargoed compound's pair must not move the line that calibrates what a reader is shown.
     secret = pairs[1]
     row = session.exec(select(Compound).where(Compound.code == secret)).one()
-    row.embargoed = True
-    session.add(row)
-    session.commit()
+    _set(session, row, embargoed=True, archived=False)
     for outsider in (READER, None):
         view = barriers.calibration_view(session, actor=outsider)
         assert secret not in {p["code"] for p in view["pairs"]}
@@ -90,19 +97,9 @@ def test_an_embargoed_pair_never_reaches_a_caller_who_may_not_see_it(client, ses
     inside = barriers.calibration_view(session, actor=MEMBER)
     assert secret in {p["code"] for p in inside["pairs"]} and inside["by_bridge"]["CH2"].n == 6
     # The line a reader gets is the one fitted as if the embargoed compound did not exist.
-    row.embargoed = False
-    session.add(row)
-    for b in session.exec(select(BarrierEstimate).where(BarrierEstimate.compound_id == row.id)).all():
-        b.archived = True
-        session.add(b)
-    session.commit()
+    _set(session, row, embargoed=False, archived=True)
     without = barriers.current_calibration(session, actor=MEMBER).by_bridge["CH2"]
-    row.embargoed = True
-    session.add(row)
-    for b in session.exec(select(BarrierEstimate).where(BarrierEstimate.compound_id == row.id)).all():
-        b.archived = False
-        session.add(b)
-    session.commit()
+    _set(session, row, embargoed=True, archived=False)
     seen = barriers.current_calibration(session, actor=READER).by_bridge["CH2"]
     assert (seen.a_kcal_mol, seen.b) == pytest.approx((without.a_kcal_mol, without.b), rel=1e-12)
     # the visible compound's calibrated value on its page follows the reader's line too

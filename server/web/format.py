@@ -138,6 +138,7 @@ def install(env) -> None:  # noqa: ANN001 - a jinja2 Environment
     env.filters["scalar_items"] = scalar_items
     env.globals["split_key"] = split_key
     env.globals["digits_of"] = digits_of
+    env.globals["with_uncertainty"] = with_uncertainty
     env.globals["measurement_summary"] = summary
     # The verdict vocabulary (server.verdict_codes): rows in strength order, sentence and short labels.
     env.globals["verdicts"] = verdict_codes.VERDICTS

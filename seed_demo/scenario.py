@@ -448,6 +448,7 @@ def _measurements_full(c: CompoundPlan, *, first_of_bowl: bool = False) -> tuple
     out.append(Measurement("nmr_rates"))
     if c.crystal:
         out.append(Measurement("crystal", 150.0))
+    out.append(Measurement("dielectric_spectrum"))  # last: the earlier files keep their noise seeds
     return tuple(out)
 
 

@@ -54,3 +54,17 @@ def with_uncertainty(value: Optional[float], err: Optional[float], digits: int =
     step = 10.0 ** exponent
     value_r = round(value / step) * step
     return f"{value_r:.{decimals}f}", f"{round(err / step) * step:.{decimals}f}"
+
+
+#: Sub-second times printed in the unit the trade uses (a 0.95 ms pulse, not 9.463e-04 s).
+_TIME_UNITS = ((1.0, 1.0, "s"), (1e-3, 1e3, "ms"), (1e-6, 1e6, "µs"), (1e-9, 1e9, "ns"))
+
+
+def time_unit(value_s: float) -> tuple[float, str]:
+    """``(factor, unit)`` to print a time in seconds: the largest of s, ms, µs, ns in which it reads at least
+    0.1 (``9.463e-4`` -> 0.9463 ms, ``2e-5`` -> 20 µs, ``0.5`` -> 0.5 s)."""
+    a = abs(value_s)
+    for scale, factor, unit in _TIME_UNITS:
+        if a >= 0.1 * scale:
+            return factor, unit
+    return _TIME_UNITS[-1][1], _TIME_UNITS[-1][2]

@@ -27,13 +27,15 @@ barrier from dynamic NMR; a difference between them is a finding (packing), not 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
-from typing import Sequence
+from dataclasses import dataclass, field
+from typing import Any, Sequence
 
 import numpy as np
+import pandas as pd
 from scipy import optimize, stats
 
 from server.analysis.constants import CAL_J, EPS0_F_M as EPSILON_0, R_J_MOLK as R
+from server.analysis.dielectric import _column, permittivity_from_capacitance
 from server.analysis.results import Flag, Result
 from server.errors import AnalysisError
 
@@ -50,6 +52,8 @@ MIN_TEMPERATURES_ARRHENIUS = 3
 MIN_TEMPERATURES_VF = 4
 #: The loss peak must lie inside the measured window (our rule: a tau fitted from a flank is an extrapolation).
 F_TEST_LEVEL = 0.05
+#: Rows whose temperatures differ by less than this belong to one isotherm (controller drift; our rule).
+ISOTHERM_TOLERANCE_K = 0.5
 
 
 def havriliak_negami(f_Hz: np.ndarray, eps_inf: float, d_eps: float, tau_s: float, alpha: float = 1.0,
@@ -70,7 +74,10 @@ def loss_peak_tau_s(tau_s: float, alpha: float, beta: float) -> float:
 
 @dataclass(frozen=True)
 class Isotherm(Result):
-    """One temperature's fit; ``None`` where undefined. Errors are one standard error."""
+    """One temperature's fit; ``None`` where undefined. Errors are one standard error. Its flags name the
+    temperature and are listed with the whole result's, not in each row of the table."""
+
+    JSON_OMIT = ("flags",)
 
     t_K: float
     model: str
@@ -117,7 +124,10 @@ class TemperatureFit(Result):
 
 @dataclass(frozen=True)
 class RelaxationResult(Result):
-    """Per-temperature fits and the relaxation-time map; the headline keys are those of the Arrhenius fit."""
+    """Per-temperature fits and the relaxation-time map; the headline keys are those of the Arrhenius fit.
+    ``spectra`` holds the ``(t_K, f_Hz, eps', eps'')`` isotherms for the figure (not in ``to_dict``)."""
+
+    JSON_OMIT = ("spectra",)  # plot data
 
     model: str
     isotherms: tuple[Isotherm, ...]
@@ -126,6 +136,7 @@ class RelaxationResult(Result):
     ea_kcal_mol: float | None
     tau0_s: float | None
     flags: tuple[Flag, ...] = ()
+    spectra: tuple[Any, ...] | None = field(default=None, repr=False, compare=False)
 
 
 # ----------------------------------------------------------------------------- one isotherm
@@ -307,5 +318,44 @@ def analyse(isotherm_data: Sequence[tuple[float, Sequence[float], Sequence[float
     tf = fit_temperature([i.t_K for i in usable], [i.tau_peak_s for i in usable],
                          [i.tau_err_s / i.tau_s * i.tau_peak_s for i in usable])
     flags = tuple(f for i in fits for f in i.flags) + tf.flags
-    return RelaxationResult(model=model, isotherms=fits, arrhenius=tf, ea_kJ_mol=tf.ea_kJ_mol,
-                            ea_kcal_mol=tf.ea_kcal_mol, tau0_s=tf.tau0_s, flags=flags)
+    return RelaxationResult(model=model, isotherms=fits, arrhenius=tf,
+                            ea_kJ_mol=tf.ea_kJ_mol, ea_kcal_mol=tf.ea_kcal_mol, tau0_s=tf.tau0_s, flags=flags,
+                            spectra=tuple(sorted(isotherm_data, key=lambda x: x[0])))
+
+
+# ----------------------------------------------------------------------------- a spectrum file
+
+
+def isotherms_from_frame(frame: pd.DataFrame, *, area_cm2: float | None = None, thickness_um: float | None = None
+                         ) -> list[tuple[float, np.ndarray, np.ndarray, np.ndarray]]:
+    """A long table (``T_K``, ``f_Hz`` and ``eps_r``/``eps_i``, or ``C_F``/``tan_delta`` with the geometry) as
+    ``(t_K, f_Hz, eps', eps'')`` isotherms. Temperatures within :data:`ISOTHERM_TOLERANCE_K` of their neighbour
+    form one isotherm, at their mean. Capacitance is turned into permittivity with eps' = C d / (eps0 A) and
+    eps'' = eps' tan(delta) (:func:`server.analysis.dielectric.permittivity_from_capacitance`)."""
+    for col in ("T_K", "f_Hz"):
+        if col not in frame.columns:
+            raise AnalysisError(f"the file has no {col} column", column=col)
+    t = _column(frame, "T_K", "T")
+    f = _column(frame, "f_Hz", "f")
+    if "eps_r" in frame.columns and "eps_i" in frame.columns:
+        er, ei = _column(frame, "eps_r", "eps'"), _column(frame, "eps_i", "eps''")
+    elif "C_F" in frame.columns and "tan_delta" in frame.columns:
+        if area_cm2 is None or thickness_um is None:
+            raise AnalysisError("capacitance needs the electrode area and the sample thickness", field="area")
+        er = permittivity_from_capacitance(_column(frame, "C_F", "capacitance"), area_cm2=area_cm2, thickness_um=thickness_um)
+        ei = er * _column(frame, "tan_delta", "loss tangent")
+    else:
+        raise AnalysisError("the file needs eps_r and eps_i, or C and D (tan delta), beside T and f")
+    order = np.argsort(t, kind="stable")
+    breaks = np.flatnonzero(np.diff(t[order]) >= ISOTHERM_TOLERANCE_K) + 1
+    out = []
+    for idx in np.split(order, breaks):
+        out.append((float(np.mean(t[idx])), f[idx], er[idx], ei[idx]))
+    return out
+
+
+def analyse_spectrum(frame: pd.DataFrame, *, area_cm2: float | None = None, thickness_um: float | None = None,
+                     model: str = "havriliak_negami", conductivity: bool = False) -> RelaxationResult:
+    """:func:`analyse` of a spectrum file read by :func:`isotherms_from_frame`."""
+    return analyse(isotherms_from_frame(frame, area_cm2=area_cm2, thickness_um=thickness_um), model=model,
+                   conductivity=conductivity)

@@ -7,6 +7,8 @@ from typing import Any, Literal, Optional, Union
 from pydantic import BaseModel, Field
 from sqlmodel import Session, select
 
+from .. import access
+from ..access import Actor
 from ..analysis import kinetics
 from ..analysis.calibration import (INTERVAL_LIMIT_KCAL, MIN_PAIRS_PER_BRIDGE, CalibrationPair, CalibrationSet,
                                     calibrate_pairs)
@@ -181,6 +183,25 @@ def rates(row: BarrierEstimate, *, t_K: float, frequency_Hz: Optional[float]) ->
     return out
 
 
+def solid_against_solution(items: list[dict[str, Any]], barrier_rows: list[dict[str, Any]]) -> Optional[dict[str, Any]]:
+    """The latest live dielectric-relaxation Ea (solid) beside the latest measured ΔH‡ from an Eyring fit of
+    NMR rates (solution), with the difference Ea − ΔH‡ and its combined standard error. For one molecular
+    process Ea = ΔH‡ + RT (Eyring 1935; RT is 0.5 kcal/mol near 250 K, inside the usual errors): a larger
+    difference is a finding about the packing, not an error. None without both."""
+    solid = [m for m in items if m.get("kind") == "dielectric_spectrum" and not m.get("archived")
+             and (m.get("results") or {}).get("ea_kcal_mol") is not None]
+    solution = [b for b in barrier_rows if b.get("measured") and (b.get("results") or {}).get("dh_kcal_mol") is not None]
+    if not solid or not solution:
+        return None
+    m, b = solid[-1], solution[-1]
+    ea = m["results"]["ea_kcal_mol"]
+    ea_err = (m["results"].get("arrhenius") or {}).get("ea_err_kcal_mol")
+    dh, dh_err = b["results"]["dh_kcal_mol"], b["results"].get("dh_err_kcal_mol")
+    err = (ea_err ** 2 + dh_err ** 2) ** 0.5 if ea_err is not None and dh_err is not None else None
+    return {"measurement": m["id"], "ea_kcal_mol": ea, "ea_err_kcal_mol": ea_err, "barrier": b["id"],
+            "dh_kcal_mol": dh, "dh_err_kcal_mol": dh_err, "difference_kcal_mol": ea - dh, "difference_err_kcal_mol": err}
+
+
 def _latest(rows: list[BarrierEstimate], methods: tuple[str, ...]) -> Optional[BarrierEstimate]:
     chosen = [r for r in rows if r.method in methods and r.dg_kcal_mol is not None and not r.archived]
     return chosen[-1] if chosen else None
@@ -192,10 +213,19 @@ def _bridge(session: Session, compound: Compound) -> Optional[str]:
     return (sc.bridge or None) if sc else None
 
 
-def calibration_pairs(session: Session) -> list[dict[str, Any]]:
-    """Per compound, its latest measured barrier (dynamic NMR) and latest GFN2-xTB estimate, with the
-    bridge type and whether the computed minimum was planar."""
-    rows = session.exec(select(BarrierEstimate).order_by(BarrierEstimate.id)).all()
+def _barriers_seen_by(session: Session, actor: Optional[Actor], *conditions: Any) -> list[BarrierEstimate]:
+    """Barrier rows of compounds whose structure ``actor`` may see (``access.structure_visible``): a computed
+    barrier comes from the structure, and a calibration line pooled over an embargoed pair would carry it into
+    every calibrated value shown to a caller who may not see that compound."""
+    stmt = (select(BarrierEstimate).join(Compound, Compound.id == BarrierEstimate.compound_id)
+            .where(access.structure_visible(actor), *conditions).order_by(BarrierEstimate.id))
+    return list(session.exec(stmt).all())
+
+
+def calibration_pairs(session: Session, *, actor: Optional[Actor]) -> list[dict[str, Any]]:
+    """Per compound ``actor`` may see, its latest measured barrier (dynamic NMR) and latest GFN2-xTB estimate,
+    with the bridge type and whether the computed minimum was planar."""
+    rows = _barriers_seen_by(session, actor)
     by_compound: dict[int, list[BarrierEstimate]] = {}
     for r in rows:
         by_compound.setdefault(r.compound_id, []).append(r)
@@ -218,12 +248,11 @@ def _calibration_set(pairs: list[dict[str, Any]]) -> CalibrationSet:
                                             planar=p["planar"]) for p in pairs])
 
 
-def calibrated_estimates(session: Session, cal: CalibrationSet) -> list[dict[str, Any]]:
-    """Every compound's latest computed barrier beside its calibrated value and 95 % prediction interval
+def calibrated_estimates(session: Session, cal: CalibrationSet, *, actor: Optional[Actor]) -> list[dict[str, Any]]:
+    """Every visible compound's latest computed barrier beside its calibrated value and 95 % prediction interval
     (:meth:`CalibrationSet.predict`: none for a planar minimum or an interval wider than the limit)."""
-    rows = session.exec(select(BarrierEstimate).where(BarrierEstimate.method == "gfn2-xtb",
-                                                      BarrierEstimate.archived == False)  # noqa: E712
-                        .order_by(BarrierEstimate.id)).all()
+    rows = _barriers_seen_by(session, actor, BarrierEstimate.method == "gfn2-xtb",
+                             BarrierEstimate.archived == False)  # noqa: E712
     latest: dict[int, BarrierEstimate] = {r.compound_id: r for r in rows if r.dg_kcal_mol is not None}
     out = []
     for cid, r in sorted(latest.items()):
@@ -245,16 +274,16 @@ def barrier_rows(session: Session, compound: Compound, *, t_K: float,
     return rows
 
 
-def current_calibration(session: Session) -> CalibrationSet:
-    """The current calibration lines (pooled, and per bridge type with enough pairs)."""
-    return _calibration_set(calibration_pairs(session))
+def current_calibration(session: Session, *, actor: Optional[Actor]) -> CalibrationSet:
+    """The calibration lines (pooled, and per bridge type with enough pairs) from the pairs ``actor`` may see."""
+    return _calibration_set(calibration_pairs(session, actor=actor))
 
 
-def calibrated_for(session: Session, compound: Compound,
-                   estimates: list[BarrierEstimate]) -> dict[int, dict[str, Any]]:
+def calibrated_for(session: Session, compound: Compound, estimates: list[BarrierEstimate], *,
+                   actor: Optional[Actor]) -> dict[int, dict[str, Any]]:
     """Estimate id -> its calibrated value (:meth:`CalibrationSet.predict`) for the compound's computed
-    estimates; empty when no line can be fitted."""
-    cal = current_calibration(session)
+    estimates, on the lines ``actor`` may see; empty when no line can be fitted."""
+    cal = current_calibration(session, actor=actor)
     bridge = _bridge(session, compound)
     if not (cal.pooled.ok or (bridge and bridge in cal.by_bridge)):
         return {}
@@ -262,13 +291,14 @@ def calibrated_for(session: Session, compound: Compound,
             for e in estimates if e.dg_kcal_mol is not None}
 
 
-def calibration_view(session: Session) -> dict[str, Any]:
-    """The calibration page's data: pairs (planar ones marked as left out), the pooled fit with its
-    prediction band (as a figure), the per-bridge lines and the calibrated estimates."""
-    pairs = calibration_pairs(session)
+def calibration_view(session: Session, *, actor: Optional[Actor]) -> dict[str, Any]:
+    """The calibration page's data, from the compounds ``actor`` may see: pairs (planar ones marked as left
+    out), the pooled fit with its prediction band (as a figure), the per-bridge lines and the calibrated
+    estimates."""
+    pairs = calibration_pairs(session, actor=actor)
     cset = _calibration_set(pairs)
     cal = cset.pooled
     fig = figure_json(calibration_figure(cal, list(cal.labels))) if cset.used else None
     return {"cal": cal, "pairs": pairs, "figure": fig, "by_bridge": cset.by_bridge,
-            "predictions": calibrated_estimates(session, cset), "limit_kcal_mol": INTERVAL_LIMIT_KCAL,
+            "predictions": calibrated_estimates(session, cset, actor=actor), "limit_kcal_mol": INTERVAL_LIMIT_KCAL,
             "min_pairs_per_bridge": MIN_PAIRS_PER_BRIDGE}

@@ -59,6 +59,7 @@ def compound_page(session: Session, compound: Compound, *, actor: Optional[Actor
     jobs, _ = queue.list_jobs(session, compound_id=compound.id, limit=5)
     withheld = access.withheld_codes(session, actor)
     own_estimates = [] if hide else estimates.estimates_of(session, compound)
+    barrier_list = barriers.barrier_rows(session, compound, t_K=DEFAULT_T_K, frequency_Hz=DEFAULT_F_HZ)
     return {
         "c": registry.compound_read(session, compound, actor=actor),
         "batches": batches,
@@ -72,10 +73,11 @@ def compound_page(session: Session, compound: Compound, *, actor: Optional[Actor
         "apparent_loops": sum(1 for m in items if m["apparent_reason"]),
         "transitions": summary.transitions_table(items),
         "phase_map": phase_id.phase_map(session, compound, actor=actor),
-        "barriers": barriers.barrier_rows(session, compound, t_K=DEFAULT_T_K, frequency_Hz=DEFAULT_F_HZ),
+        "barriers": barrier_list,
+        "solid_vs_solution": barriers.solid_against_solution(items, barrier_list),
         "t": "298.15 K", "f": "1 kHz", "t_K": DEFAULT_T_K, "f_Hz": DEFAULT_F_HZ, "rate_error": None,
         "estimates": own_estimates,
-        "calibrated": barriers.calibrated_for(session, compound, own_estimates),
+        "calibrated": barriers.calibrated_for(session, compound, own_estimates, actor=actor),
         "active_jobs": [access.job_as_seen(queue.job_read(j, session=session), withheld)
                         for j in jobs if j.state in ("queued", "running")],
     }

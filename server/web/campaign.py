@@ -94,7 +94,7 @@ async def toggle_public(request: Request, session: SessionDep, settings: Setting
 @router.get("/calibration", response_class=HTMLResponse)
 def calibration_page(request: Request, session: SessionDep, actor: PageActor):
     """Measured against computed barriers across compounds, with the fit and its prediction band."""
-    return render(request, "pages/calibration.html", barriers.calibration_view(session), actor=actor)
+    return render(request, "pages/calibration.html", barriers.calibration_view(session, actor=actor), actor=actor)
 
 
 # --- computed estimates and the queue ----------------------------------------------------------

@@ -5,7 +5,9 @@ from __future__ import annotations
 from typing import Any
 
 from .. import verdict_codes
-from ..precision import significant
+import math
+
+from ..precision import significant, time_unit, with_uncertainty
 
 # Suffix of a key (after the quantity) -> unit as printed. Longest suffixes first.
 UNIT_SUFFIXES: tuple[tuple[str, str], ...] = (
@@ -64,18 +66,47 @@ def number(value: Any, digits: int = 4) -> str:
     return significant(value, digits)
 
 
+def error_key(key: str, results: dict[str, Any]) -> str | None:
+    """The key of ``key``'s standard error in ``results``, by the house naming (``ea_kJ_mol`` ->
+    ``ea_err_kJ_mol``, ``eps_inf`` -> ``eps_inf_err``), if present."""
+    cuts = [i for i, ch in enumerate(key) if ch == "_"] + [len(key)]
+    for i in cuts:
+        cand = key[:i] + "_err" + key[i:]
+        if cand in results and cand != key:
+            return cand
+    return None
+
+
+def _finite(value: Any) -> bool:
+    return isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
+
+
 def scalar_items(results: dict[str, Any], kind: str | None = None,
-                 apparent_keys: Any = None) -> list[tuple[str, str, Any, int]]:
-    """(label, unit, value, significant digits) for the scalar results, in the analysis's own order;
-    apparent values (the analysis's list, or ``apparent_keys`` from ``server/merit.py``) are labelled so."""
+                 apparent_keys: Any = None) -> list[tuple[str, str, Any, int, str]]:
+    """(label, unit, value, significant digits, uncertainty) for the scalar results, in the analysis's order;
+    apparent values (the analysis's list, or ``apparent_keys`` from ``server/merit.py``) are labelled so.
+
+    A value with its standard error beside it is printed with the error's last digit and the error with two
+    significant digits (:func:`server.precision.with_uncertainty`), and the error row is folded into it; a
+    time under a second is printed in ms, µs or ns (:func:`server.precision.time_unit`)."""
     out = []
     apparent = set(results.get("apparent") or ()) | set(apparent_keys or ())
+    errors = {e for k in results if (e := error_key(k, results))}
     for key, value in results.items():
-        if isinstance(value, (int, float, str, bool)):
-            if key in ("verdict", "source"):
-                continue
-            label, unit = split_key(key, kind)
-            out.append((f"apparent {label}" if key in apparent else label, unit, value, digits_of(key, kind)))
+        if not isinstance(value, (int, float, str, bool)) or key in ("verdict", "source") or key in errors:
+            continue
+        label, unit = split_key(key, kind)
+        label = f"apparent {label}" if key in apparent else label
+        err = results.get(error_key(key, results) or "")
+        if unit == "s" and _finite(value) and value != 0:
+            factor, unit = time_unit(float(value))
+            value = float(value) * factor
+            err = float(err) * factor if _finite(err) else None
+        if _finite(value) and _finite(err) and err > 0:
+            text, err_text = with_uncertainty(float(value), float(err))
+            out.append((label, unit, text, digits_of(key, kind), err_text))
+        else:
+            out.append((label, unit, value, digits_of(key, kind), ""))
     return out
 
 
@@ -110,6 +141,7 @@ def install(env) -> None:  # noqa: ANN001 - a jinja2 Environment
     env.filters["scalar_items"] = scalar_items
     env.globals["split_key"] = split_key
     env.globals["digits_of"] = digits_of
+    env.globals["with_uncertainty"] = with_uncertainty
     env.globals["measurement_summary"] = summary
     # The verdict vocabulary (server.verdict_codes): rows in strength order, sentence and short labels.
     env.globals["verdicts"] = verdict_codes.VERDICTS

@@ -90,3 +90,52 @@ def test_a_peak_outside_the_window_is_left_out_of_the_map():
     assert not r.isotherms[0].peak_in_window
     assert "peak_outside_window" in {f.code for f in r.flags}
     assert r.arrhenius.temperatures == 3
+
+
+# --- a spectrum file: long table, C and D with geometry, cryostat drift -----------------------------------------
+
+def _spectrum_frame(**kw):
+    import pandas as pd
+
+    from server.ingest.table import read_table, to_csv_bytes
+    from server.synth.relaxation import relaxation_spectra
+
+    frame = relaxation_spectra((220.0, 235.0, 250.0, 265.0, 280.0), tau0_s=1e-13, ea_kJ_mol=45.0, d_eps=8.0,
+                               eps_inf=3.0, noise_rel=0.02, drift_K=0.2, rng=np.random.default_rng(7), **kw)
+    assert isinstance(frame, pd.DataFrame)
+    return read_table(to_csv_bytes(frame, {}), filename="s.csv").frame
+
+
+def test_spectrum_from_capacitance_and_loss_tangent_recovers_the_arrhenius_law():
+    # Debye relaxation with Arrhenius tau (tau0 1e-13 s, Ea 45 kJ/mol = 10.755 kcal/mol, computed with
+    # 1 cal = 4.184 J), written as C (pF) and D () of a 0.2 cm^2, 300 um pellet: eps' = C d / (eps0 A).
+    from server.analysis.relaxation import analyse_spectrum, isotherms_from_frame
+
+    frame = _spectrum_frame(as_capacitance=True, area_cm2=0.2, thickness_um=300.0)
+    iso = isotherms_from_frame(frame, area_cm2=0.2, thickness_um=300.0)
+    assert [round(t) for t, *_ in iso] == [220, 235, 250, 265, 280]  # drift of 0.2 K stays within one isotherm
+    r = analyse_spectrum(frame, area_cm2=0.2, thickness_um=300.0, model="debye")
+    a = r.arrhenius
+    assert abs(a.ea_kJ_mol - 45.0) < 3 * a.ea_err_kJ_mol + 0.3
+    assert r.ea_kcal_mol == pytest.approx(45.0 / 4.184, abs=3 * a.ea_err_kcal_mol + 0.08)
+    for i in r.isotherms:
+        assert i.d_eps == pytest.approx(8.0, rel=0.04) and i.eps_inf == pytest.approx(3.0, rel=0.06)
+    assert r.spectra is not None and "spectra" not in r.to_dict()
+
+
+def test_spectrum_with_capacitance_but_no_geometry_is_refused():
+    from server.analysis.relaxation import analyse_spectrum
+    from server.errors import AnalysisError
+
+    with pytest.raises(AnalysisError, match="area"):
+        analyse_spectrum(_spectrum_frame(as_capacitance=True))
+
+
+def test_debye_loss_peak_sits_at_omega_tau_one():
+    # Debye: eps'' = d_eps w tau / (1 + w^2 tau^2) has its maximum d_eps / 2 at w tau = 1 (Debye 1929).
+    tau = 1e-3
+    f = np.logspace(0, 4, 4001)
+    loss = -havriliak_negami(f, 3.0, 8.0, tau).imag
+    f_max = f[int(np.argmax(loss))]
+    assert 2 * math.pi * f_max * tau == pytest.approx(1.0, rel=2e-3)
+    assert loss.max() == pytest.approx(4.0, rel=1e-5)

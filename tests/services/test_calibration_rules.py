@@ -11,6 +11,7 @@ import numpy as np
 import pytest
 from sqlmodel import select
 
+from server.access import Actor
 from server.chem.scaffold import PARENT_BOWLS, attach_side_chains, side_chain_smiles
 from server.models import BarrierEstimate, Compound
 from server.services import barriers
@@ -47,8 +48,12 @@ def pairs(client, session):
     return codes
 
 
+MEMBER = Actor("user", "member", role="member")
+READER = Actor("token", "reader", scope="read", token_id=9)  # a read token without the embargo grant
+
+
 def test_calibration_leaves_out_planar_minima_and_fits_the_bridge_with_enough_pairs(client, session, pairs):
-    view = barriers.calibration_view(session)
+    view = barriers.calibration_view(session, actor=MEMBER)
     excluded = [p["code"] for p in view["pairs"] if p["planar"]]
     assert excluded == pairs[-2:]  # the 0 (flagged planar) and 0.07 kcal/mol (collapsed) minima
     assert view["cal"].n == 8 and "planar_excluded" in {f.code for f in view["cal"].flags}
@@ -67,3 +72,40 @@ def test_calibration_leaves_out_planar_minima_and_fits_the_bridge_with_enough_pa
     text = page.get_text(" ", strip=True)
     assert "no: planar minimum" in text and "Bridge CH2:" in text
     assert "wider than the 3 kcal/mol limit" in text
+
+
+def _set(session, compound, *, embargoed: bool, archived: bool) -> None:
+    compound.embargoed = embargoed
+    session.add(compound)
+    for b in session.exec(select(BarrierEstimate).where(BarrierEstimate.compound_id == compound.id)).all():
+        b.archived = archived
+        session.add(b)
+    session.commit()
+
+
+def test_an_embargoed_pair_never_reaches_a_caller_who_may_not_see_it(client, session, pairs):
+    # The embargo is a data boundary (server/access.py): a computed barrier comes from the structure, so an
+    # embargoed compound's pair must not move the line that calibrates what a reader is shown.
+    secret = pairs[1]
+    row = session.exec(select(Compound).where(Compound.code == secret)).one()
+    _set(session, row, embargoed=True, archived=False)
+    for outsider in (READER, None):
+        view = barriers.calibration_view(session, actor=outsider)
+        assert secret not in {p["code"] for p in view["pairs"]}
+        assert secret not in {p["code"] for p in view["predictions"]}
+        assert secret not in view["cal"].labels and view["by_bridge"]["CH2"].n == 5
+    inside = barriers.calibration_view(session, actor=MEMBER)
+    assert secret in {p["code"] for p in inside["pairs"]} and inside["by_bridge"]["CH2"].n == 6
+    # The line a reader gets is the one fitted as if the embargoed compound did not exist.
+    _set(session, row, embargoed=False, archived=True)
+    without = barriers.current_calibration(session, actor=MEMBER).by_bridge["CH2"]
+    _set(session, row, embargoed=True, archived=False)
+    seen = barriers.current_calibration(session, actor=READER).by_bridge["CH2"]
+    assert (seen.a_kcal_mol, seen.b) == pytest.approx((without.a_kcal_mol, without.b), rel=1e-12)
+    # the visible compound's calibrated value on its page follows the reader's line too
+    visible = pairs[2]
+    vrow = session.exec(select(Compound).where(Compound.code == visible)).one()
+    est = session.exec(select(BarrierEstimate).where(BarrierEstimate.compound_id == vrow.id,
+                                                     BarrierEstimate.method == "gfn2-xtb")).all()
+    got = barriers.calibrated_for(session, vrow, est, actor=READER)[est[0].id]
+    assert got == barriers.current_calibration(session, actor=READER).predict(est[0].dg_kcal_mol, "CH2", planar=False)

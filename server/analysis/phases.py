@@ -135,9 +135,11 @@ class PhaseTransition(Result):
     rule: str
     sources: tuple[str, ...]
     measurement_ids: tuple[int, ...]
+    #: midpoint of the two patterns of a PXRD run between which the pattern changed (None: no PXRD change)
+    t_pattern_change_K: float | None = None
 
     def label(self) -> str:
-        names = {"dsc": "DSC", "dielectric": "permittivity", "series": "Pr -> 0"}
+        names = {"dsc": "DSC", "dielectric": "permittivity", "series": "Pr -> 0", "pxrd": "PXRD pattern change"}
         text = f"{self.t_K:.0f} K ({', '.join(names.get(s, s) for s in self.sources)}"
         if self.hysteresis_K is not None:
             text += f", cooling {self.t_cooling_K:.0f} K, hysteresis {self.hysteresis_K:.0f} K"
@@ -287,6 +289,7 @@ def build(
     point_temperatures: Mapping[int, float] | None = None,
     chain_ch2: int | None = None,
     series_tc: PrVanishing | None = None,
+    pattern_changes: Sequence[Any] = (),
 ) -> PhaseModel:
     """Transitions from all evidence, classed, and the phases between them.
 
@@ -303,6 +306,15 @@ def build(
         Pr = A (Tc - T)^beta, :mod:`server.analysis.series`), with its standard error and the
         measurements of the series. It takes the place of the bracket of :func:`pr_vanishing`: a fit
         over a whole series says more than the two loops either side of Tc.
+    pattern_changes : where the powder pattern of a variable-temperature run changes
+        (:func:`server.analysis.pxrd.pattern_changes`, objects with ``t_below_K``, ``t_above_K``, ``t_K``,
+        ``scan`` and ``measurement_ids``). A changed pattern is a changed structure, so each is a phase
+        boundary (Pecharsky and Zavalij 2009, ch. 2: the pattern is the fingerprint of the crystal phase).
+        It joins another observation of the same transition when that lies inside the bracket of the two
+        patterns (widened by :data:`SAME_TEMPERATURE_K`, and on cooling by the thermal hysteresis
+        :data:`PAIR_MAX_HYSTERESIS_K` below a heating temperature); else it is a transition of its own at
+        the midpoint. The steps of a run where nothing changed come in ``scans`` (kind ``"pxrd"``,
+        :func:`pattern_scans`).
     """
     all_scans = list(scans) + series_scans(loops)
     prz = series_tc if series_tc is not None else pr_vanishing(loops)
@@ -336,11 +348,48 @@ def build(
             if e.get("prz") is not None:
                 e["ids"].update(prz.measurement_ids)
 
+    # 4. powder-pattern changes: heating runs first, so a cooling change can join its heating partner
+    for ch in sorted(pattern_changes, key=lambda c: (c.scan == "cooling", c.t_K)):
+        _attach_pattern_change(raw, ch)
+
     raw.sort(key=lambda e: e["t"])
     transitions = _classify(raw, chain_ch2)
     phases = _phases(transitions, all_scans, point_temperatures or {})
     return PhaseModel(transitions=tuple(transitions), phases=tuple(phases), scans=tuple(all_scans),
                       relaxor_maxima_K=relaxor, pr_vanishing=prz)
+
+
+def pattern_scans(run: Sequence[tuple[int, float]], changes: Sequence[Any], scan: str = "") -> list[Scan]:
+    """The steps of one PXRD run, ``(measurement id, t_K)`` in any order, between which the pattern did not
+    change and which are at most :data:`SERIES_STEP_MAX_K` apart: a structural transition would have changed
+    the pattern there (our rule, as for a loop series)."""
+    pts = sorted(run, key=lambda p: p[1])
+    changed = {tuple(sorted(c.measurement_ids)) for c in changes}
+    return [Scan(b[0], "pxrd", a[1], b[1], scan) for a, b in zip(pts, pts[1:])
+            if 0 < b[1] - a[1] <= SERIES_STEP_MAX_K and tuple(sorted((a[0], b[0]))) not in changed]
+
+
+def _attach_pattern_change(raw: list[dict[str, Any]], ch: Any) -> None:
+    lo, hi = sorted((ch.t_below_K, ch.t_above_K))
+    ids = set(ch.measurement_ids)
+    for e in raw:
+        temps = [x for x in (e["th"], e["eps"], e["prz"], e.get("xrd")) if x is not None]
+        inside = any(lo - SAME_TEMPERATURE_K <= x <= hi + SAME_TEMPERATURE_K for x in temps)
+        if ch.scan == "cooling" and not inside:
+            inside = (e["tc"] is not None and lo - SAME_TEMPERATURE_K <= e["tc"] <= hi + SAME_TEMPERATURE_K) or any(
+                lo - SAME_TEMPERATURE_K <= x <= hi + PAIR_MAX_HYSTERESIS_K for x in temps)
+        if inside:
+            e["sources"].add("pxrd")
+            e["ids"].update(ids)
+            if ch.scan == "cooling":
+                e["xrd_cool"] = e.get("xrd_cool") or ch.t_K
+            else:
+                e["xrd"] = e.get("xrd") or ch.t_K
+            return
+    entry = dict(t=ch.t_K, th=None, tc=None, onset=None, ds=None, exo_on_heating=False, reversible=False,
+                 cooling_covered=False, sources={"pxrd"}, ids=ids, eps=None, prz=None)
+    entry["xrd_cool" if ch.scan == "cooling" else "xrd"] = ch.t_K
+    raw.append(entry)
 
 
 def _attach(raw: list[dict[str, Any]], t: float, source: str, mid: int, key: str, tol: float = SAME_TEMPERATURE_K):
@@ -401,8 +450,8 @@ def _classify(raw: list[dict[str, Any]], chain_ch2: int | None) -> list[PhaseTra
             onset_K=e["onset"], t_permittivity_K=e["eps"], t_pr_zero_K=e["prz"], ds_J_molK=ds,
             ds_per_ch2_J_molK=(ds / chain_ch2) if (ds is not None and chain_ch2) else None,
             transition_class=cls, rule=rule,
-            sources=tuple(s for s in ("dsc", "dielectric", "series") if s in e["sources"]),
-            measurement_ids=tuple(sorted(e["ids"]))))
+            sources=tuple(s for s in ("dsc", "dielectric", "series", "pxrd") if s in e["sources"]),
+            measurement_ids=tuple(sorted(e["ids"])), t_pattern_change_K=e.get("xrd") or e.get("xrd_cool")))
     return out
 
 

@@ -467,7 +467,7 @@ def analyse_pxrd(frame: pd.DataFrame, *, wavelength_A: float | None, temperature
         raise AnalysisError(f"peak width {fwhm:g} deg is outside 0.005-2 deg", field="peak width")
     x, y = _grid(frame)
     bkg = background(x, y)
-    net = np.clip(y - bkg, 0.0, None)
+    net = np.clip(y - bkg, 0.0, None)  # the same as net_pattern(frame)
     # counting statistics: weights 1/y (y the total counts, floored at one count)
     counts = bool(np.all(y >= 0) and np.allclose(y, np.round(y)))
     weights = 1.0 / np.clip(y, 1.0, None) if counts else np.ones_like(y)
@@ -519,6 +519,13 @@ def analyse_pxrd(frame: pd.DataFrame, *, wavelength_A: float | None, temperature
 #: expansion, correlates at 0.99 or more; two packings of one bowl molecule at about 0.91, as their
 #: strongest low-angle lines share the column spacing).
 SAME_PHASE_SCORE = 0.97
+
+
+def net_pattern(frame: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
+    """2theta and the background-subtracted intensity, as :func:`analyse_pxrd` reads a pattern: the input of
+    :func:`pattern_changes`."""
+    x, y = _grid(frame)
+    return x, np.clip(y - background(x, y), 0.0, None)
 
 
 @dataclass(frozen=True)

@@ -39,7 +39,7 @@ import math
 from dataclasses import dataclass, field
 from typing import Any, Mapping, Sequence
 
-from server.analysis import phases
+from server.analysis import phases, verdict_phase_id
 from server.analysis.phases import Continuity, PhaseModel, PhaseTransition
 from server.analysis.results import Flag, Result
 from server.errors import AnalysisError
@@ -51,8 +51,9 @@ METHOD = (
     "are both shown in one scanned phase; phases delimited by paired DSC peaks, non-dispersive permittivity maxima "
     "and Pr -> 0, and only scanned intervals without a transition count as one phase."
 )
-VERSION = "verdict/2.1"  # 2.0: phase model with scanned intervals, criteria, PUND needed for the top codes;
-# 2.1: the conclusion with its range and scanned phase; Pr -> 0 from the Pr(T) series fits
+VERSION = "verdict/2.2"  # 2.0: phase model with scanned intervals, criteria, PUND needed for the top codes;
+# 2.1: the conclusion with its range and scanned phase; Pr -> 0 from the Pr(T) series fits;
+# 2.2: SHG, powder patterns (matches and pattern changes) and columnar lattices as criteria and conflicts
 
 SAME_TEMPERATURE_K = phases.SAME_TEMPERATURE_K
 
@@ -192,6 +193,14 @@ def _role(ev: Evidence) -> str:
         return "transition" if (ev.details.get("peaks") or ev.details.get("peak_K")) else "no_transition"
     if kind == "dielectric":
         return "transition" if ev.details.get("t_peak_K") is not None else "no_transition"
+    if kind == "pxrd":
+        return {"matches": "pattern_matches", "extra_phase": "pattern_extra_phase",
+                "no_match": "pattern_no_match"}.get(v, "pattern_not_compared")
+    if kind == "saxs":
+        return "not_used" if ev.details.get("lattice") in (None, "", "undetermined") else "mesophase_lattice"
+    if kind == "shg":
+        points = ev.details.get("points") or []
+        return "shg_active" if any(p.get("active") for p in points) else ("shg_silent" if points else "not_used")
     return "not_used"
 
 
@@ -219,10 +228,12 @@ def series_vanishing(series_tc: Mapping[str, Any] | None) -> phases.PrVanishing 
 
 
 def phase_model(evidence: Sequence[Evidence], chain_ch2: int | None = None,
-                series_tc: Mapping[str, Any] | None = None) -> PhaseModel:
-    """The compound's :class:`~server.analysis.phases.PhaseModel` from its evidence."""
+                series_tc: Mapping[str, Any] | None = None, pattern_changes: Sequence[Any] = (),
+                pattern_scans: Sequence[phases.Scan] = ()) -> PhaseModel:
+    """The compound's :class:`~server.analysis.phases.PhaseModel` from its evidence, with the pattern changes of
+    its variable-temperature PXRD runs and the unchanged steps of those runs (``pattern_scans``)."""
     peaks: list[phases.ThermalPeak] = []
-    scans: list[phases.Scan] = []
+    scans: list[phases.Scan] = list(pattern_scans)
     maxima: list[phases.PermittivityMaximum] = []
     loops: list[phases.LoopPoint] = []
     points: dict[int, float] = {}
@@ -252,7 +263,7 @@ def phase_model(evidence: Sequence[Evidence], chain_ch2: int | None = None,
                 loops.append(phases.LoopPoint(ev.measurement_id, ev.temperature_K, ev.verdict in _SATURATED_LOOP,
                                               d.get("pr_uC_cm2")))
     return phases.build(dsc_peaks=peaks, scans=scans, permittivity=maxima, loops=loops, point_temperatures=points,
-                        chain_ch2=chain_ch2, series_tc=series_vanishing(series_tc))
+                        chain_ch2=chain_ch2, series_tc=series_vanishing(series_tc), pattern_changes=pattern_changes)
 
 
 def _same_temperature(t1: float | None, t2: float | None) -> bool:
@@ -365,7 +376,8 @@ def _pick_phase(model: PhaseModel, switching: Sequence[Evidence], structures: Se
 
 
 def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
-           rates: Sequence[Mapping[str, Any]] = (), series_tc: Mapping[str, Any] | None = None) -> CompoundVerdict:
+           rates: Sequence[Mapping[str, Any]] = (), series_tc: Mapping[str, Any] | None = None,
+           pattern_changes: Sequence[Any] = (), pattern_scans: Sequence[phases.Scan] = ()) -> CompoundVerdict:
     """Combine the analysed measurements of one compound into a verdict.
 
     Parameters
@@ -380,6 +392,9 @@ def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
     series_tc : mapping, optional
         The compound's Curie temperature fitted to its Pr(T) series ``{"tc_K", "tc_err_K", "measurement_ids"}``
         (:func:`series_vanishing`): the phase model's Pr -> 0 temperature.
+    pattern_changes, pattern_scans : sequence, optional
+        Where the powder pattern of a variable-temperature run changes (phase boundaries) and the steps where it
+        did not (scanned intervals); see :func:`server.analysis.phases.build`.
 
     Returns
     -------
@@ -399,7 +414,10 @@ def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
     a closed loop alone can come from leakage or loss (Scott 2008). Conflicts: switching against a PUND
     without switching at the same temperature; switching in a phase shown to hold only non-polar structures;
     a flat bowl against switching by bowl inversion; an Eyring inversion rate at the loop temperature
-    slower than the drive frequency or the PUND pulse rate while switching is seen.
+    slower than the drive frequency or the PUND pulse rate while switching is seen; and the phase-identification
+    conflicts of :mod:`server.analysis.verdict_phase_id` (SHG silent where a polar claim is made, SHG active in a
+    centrosymmetric phase, a powder pattern that is not the claimed polar structure, a columnar mesophase where a
+    crystal structure is counted as the switching phase).
 
     References
     ----------
@@ -416,7 +434,7 @@ def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
                 field="temperature",
             )
     roles = [(ev, _role(ev)) for ev in evidence]
-    model = phase_model(evidence, chain_ch2, series_tc)
+    model = phase_model(evidence, chain_ch2, series_tc, pattern_changes, pattern_scans)
     transitions = model.transitions
     used = tuple(UsedEvidence(ev.measurement_id, ev.kind, role, ev.temperature_K) for ev, role in roles)
 
@@ -479,9 +497,12 @@ def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
                     "field-assisted or collective switching (the field lowers the barrier), or wrong data",
                     blocking=False))
 
+    id_criteria, id_conflicts = _phase_identity(model, evidence, switching, polar, structures)
+    conflicts += id_conflicts
+
     switch_temps = [s.temperature_K for s in switching if s.temperature_K is not None]
     switching_range = (min(switch_temps), max(switch_temps)) if switch_temps else None
-    criteria = _criteria(model, pairs, pund_sw, pund_none, loops_sat, loops_neg, structures)
+    criteria = _criteria(model, pairs, pund_sw, pund_none, loops_sat, loops_neg, structures) + id_criteria
     tested_temps = {round(ev.temperature_K) for ev in switching + negatives if ev.temperature_K is not None}
     qualifiers = ("tested at one temperature only",) if len(tested_temps) == 1 else ()
     common = dict(
@@ -504,6 +525,8 @@ def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
     if model.relaxor_maxima_K:
         listed += (" Permittivity maxima that move with frequency (relaxor-like, at "
                    f"{', '.join(f'{t:.0f} K' for t in model.relaxor_maxima_K)}) are not taken as transitions.")
+    for note in verdict_phase_id.mesophase_notes(model, evidence, switching):
+        listed += f" {_cap(note)}."
     if qualifiers:
         listed += " Tested at one temperature only."
 
@@ -666,6 +689,13 @@ def conclusion(code: str, model: PhaseModel, criteria: Sequence[Criterion], *, s
                       criteria_untested=by_state["untested"])
 
 
+def _phase_identity(model: PhaseModel, evidence, switching, polar, structures):  # noqa: ANN001
+    """Criteria and conflicts from SHG, PXRD and X-ray scattering (:mod:`server.analysis.verdict_phase_id`)."""
+    crit, conf = verdict_phase_id.findings(model, evidence, switching=switching, polar=polar, structures=structures)
+    return (tuple(Criterion(c.name, c.state, c.measurements) for c in crit),
+            [Conflict(c.message, c.measurements, c.suggestion) for c in conf])
+
+
 def _eyring_rate_s(rate: Mapping[str, Any], t_K: float | None) -> float | None:
     """k = kB T / h exp(dS/R) exp(-dH / (R T)) (Eyring 1935), s^-1; None without the numbers."""
     if t_K is None or rate.get("dh_kJ_mol") is None or rate.get("ds_J_molK") is None:
@@ -712,9 +742,8 @@ def _criteria(model: PhaseModel, pairs, pund_sw, pund_none, loops_sat, loops_neg
             c4 = Criterion(name4, "met", tr.measurement_ids)
         else:
             c4 = Criterion(name4, "unmet", tr.measurement_ids if tr else prz.measurement_ids)
-    # 5. a second polarity test: no measurement kind for SHG exists yet, so it is untested
-    c5 = Criterion("second polarity test (SHG)", "untested", ())
-    return (c1, c2, c3, c4, c5)
+    # 5.- SHG, PXRD and X-ray scattering: _phase_identity
+    return (c1, c2, c3, c4)
 
 
 def _at(t: float | None) -> str:

@@ -18,7 +18,7 @@ from ..ingest.conditions import parse_quantity
 from ..plots.pxrd import pxrd_figure
 from ..synth.cif import bowl_crystal
 from ..synth.pxrd import powder_pattern
-from .base import EXAMPLE_SMILES, Example, Kind, Need, ResultKey, example_csv, rng_for
+from .base import EXAMPLE_SMILES, Evidence, Example, Kind, Need, ResultKey, example_csv, rng_for
 
 # The example: the example bowl's P2_1 structure (the crystal kind's example), measured with Cu Ka1
 # at 295 K with a zero error of +0.06 deg; compared with the structure itself it matches.
@@ -93,6 +93,13 @@ _PEAK_KEYS = (
     ResultKey("calc_i_rel_pct", "I/I₀ calculated", "%", 2),
 )
 
+def _evidence(results: dict[str, Any], temperature_K: Optional[float]) -> Evidence:
+    """The comparison with the compound's structures at the pattern's temperature (for the verdict's PXRD
+    criterion; pattern changes of a run come from the raw patterns, :mod:`server.services.pattern_runs`)."""
+    return Evidence(results.get("temperature_K") or temperature_K,
+                    {k: results.get(k) for k in ("reference", "reference_label", "space_group")})
+
+
 KIND = Kind(
     name="pxrd",
     label="Powder X-ray diffraction pattern",
@@ -125,6 +132,7 @@ KIND = Kind(
     ),
     summary_keys=("verdict", "reference_label", "score", "zero_shift_deg"),
     figure=_figure,
+    evidence=_evidence,
     example=_example,
     needs_structures=True,
 )

@@ -9,7 +9,7 @@ from __future__ import annotations
 from ..analysis import saxs
 from ..plots.saxs import saxs_figure
 from ..synth.saxs import mesophase_curve
-from .base import Example, Kind, Need, ResultKey, example_csv, rng_for
+from .base import Evidence, Example, Kind, Need, ResultKey, example_csv, rng_for
 from .pxrd import wavelength_A
 
 # The example: a hexagonal columnar mesophase, a = 3.2 nm, pi-stacking at 3.5 A and the chain halo at 4.5 A,
@@ -32,6 +32,12 @@ def _example() -> Example:
                             halo_A=e["halo_A"])
     return Example("saxs.csv", example_csv(frame, {"temperature": f"{e['temperature_K']:g} K"},
                                            {"geometry": "transmission, 1.5 mm capillary"}), dict(e))
+
+
+def _evidence(results, temperature_K):  # noqa: ANN001
+    """The lattice at the measurement's temperature: a mesophase for the verdict (:mod:`server.analysis.verdict_phase_id`)."""
+    return Evidence(results.get("temperature_K") or temperature_K,
+                    {k: results.get(k) for k in ("lattice", "a_nm", "b_nm", "stacking_A")})
 
 
 KIND = Kind(
@@ -65,5 +71,6 @@ KIND = Kind(
     ),
     summary_keys=("verdict", "a_nm", "stacking_A"),
     figure=_figure,
+    evidence=_evidence,
     example=_example,
 )

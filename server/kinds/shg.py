@@ -13,7 +13,7 @@ from ..analysis import shg
 from ..errors import AnalysisError
 from ..plots.shg import shg_figure
 from ..synth.shg import shg_run
-from .base import Example, Kind, Need, ResultKey, example_csv, rng_for
+from .base import Evidence, Example, Kind, Need, ResultKey, example_csv, rng_for
 
 # The example: a signal 0.8 times the reference's at 300 K vanishing at Tc = 432 K (the DSC example's
 # order-disorder transition), heated in 10 K steps, against quartz powder.
@@ -60,6 +60,13 @@ def _example() -> Example:
     return Example("shg.csv", example_csv(frame, {"sweep": "heating"}, meta), dict(e))
 
 
+def _evidence(results, temperature_K):  # noqa: ANN001
+    """Every point's activity and where the signal vanishes, for the verdict's SHG criteria."""
+    return Evidence(results.get("temperature_K") or temperature_K,
+                    {"points": [{"T_K": p.get("T_K"), "active": p.get("active")} for p in results.get("points") or []],
+                     "t_vanish_K": results.get("t_vanish_K"), "t_vanish_resolution_K": results.get("t_vanish_resolution_K")})
+
+
 KIND = Kind(
     name="shg",
     label="Second-harmonic generation",
@@ -89,5 +96,6 @@ KIND = Kind(
     ),
     summary_keys=("verdict", "ratio_max", "t_vanish_K"),
     figure=_figure,
+    evidence=_evidence,
     example=_example,
 )

@@ -63,7 +63,9 @@ def phase_map(session: Session, compound: Compound, *, actor: Optional[Actor]) -
     facts = facts_of(session, compound, evidence)
     if not any(f.kind in _PHASE_KINDS for f in facts):
         return None
-    model = rules.phase_model(evidence, verdicts.chain_ch2(session, compound))
+    # the verdict's own phase model: Pr(T) series and PXRD pattern changes included
+    model = rules.phase_model(evidence, verdicts.chain_ch2(session, compound),
+                              **verdicts.model_inputs(session, compound, evidence))
     ident = identification.identify(model, facts)
     return {"phases": ident.phases, "criteria": ident.criteria,
             "figure": figure_json(phase_map_figure(ident, model, facts))}

@@ -13,7 +13,7 @@ from ..kinds import KINDS
 from ..verdict_codes import LABELS, RETIRED, effective
 from ..analysis.constants import CAL_J
 from ..models import Batch, Compound, CompoundSideChain, Measurement, utcnow, live_measurement
-from . import audit
+from . import audit, pattern_runs
 from .series import combine_series_tc, compound_series_entries
 
 
@@ -63,13 +63,21 @@ def measured_rates(session: Session, compound: Compound) -> list[dict[str, Any]]
 
 
 def decide_for(session: Session, compound: Compound, evidence: list[rules.Evidence]) -> rules.CompoundVerdict:
-    """The verdict from ``evidence``, with the compound's chain CH2 count, measured rates and the Curie
-    temperature of its Pr(T) series (:func:`server.services.series.compound_tc`, limited to the series
-    whose measurements are among ``evidence``, so a batch verdict uses its own series only)."""
+    """The verdict from ``evidence``, with the compound's chain CH2 count, measured rates, the Curie
+    temperature of its Pr(T) series (:func:`server.services.series.compound_tc`) and the pattern changes of its
+    variable-temperature PXRD runs (:mod:`server.services.pattern_runs`), both limited to the series whose
+    measurements are among ``evidence``, so a batch verdict uses its own series only."""
+    return rules.decide(evidence, chain_ch2=chain_ch2(session, compound), rates=measured_rates(session, compound),
+                        **model_inputs(session, compound, evidence))
+
+
+def model_inputs(session: Session, compound: Compound, evidence: list[rules.Evidence]) -> dict[str, Any]:
+    """The series-derived inputs of the phase model for ``evidence``: ``series_tc``, ``pattern_changes`` and
+    ``pattern_scans`` (keywords of :func:`server.analysis.verdict.decide` and ``phase_model``)."""
     ids = {ev.measurement_id for ev in evidence}
     entries = [e for e in compound_series_entries(session, compound) if set(e["measurements"]) <= ids]
-    return rules.decide(evidence, chain_ch2=chain_ch2(session, compound), rates=measured_rates(session, compound),
-                        series_tc=combine_series_tc(entries))
+    changes, scans = pattern_runs.runs_of(session, entries)
+    return {"series_tc": combine_series_tc(entries), "pattern_changes": changes, "pattern_scans": scans}
 
 
 def batch_verdicts(session: Session, compound: Compound) -> dict[int, rules.CompoundVerdict]:

@@ -58,3 +58,28 @@ def test_pattern_without_wavelength_is_refused_and_nothing_stored(client, sessio
     bad = post(client, bowl_batch, "pxrd", to_csv_bytes(frame, {"wavelength": "Ag Kb"}), uploader)
     assert bad.status_code == 422 and "anode line" in bad.json()["detail"]
     assert session.exec(select(Measurement)).all() == [] and session.exec(select(RawFile)).all() == []
+
+
+def test_vt_pxrd_run_places_a_phase_boundary_in_the_verdict(client, session, bowl_batch, uploader):  # noqa: F811
+    # A heating run in 20 K steps (counting noise, thermal expansion) whose structure changes between 340 and
+    # 360 K: the changed pattern is a changed phase (Pecharsky and Zavalij 2009), so the verdict's phase model
+    # has a transition at 350 K from the PXRD run alone, and the unchanged steps count as scanned.
+    # The verdict recomputes on each upload; the run is re-read from the raw files (server/services/pattern_runs.py).
+    from server.models import Compound
+
+    low = example_structure()
+    high = bowl_crystal(EXAMPLE_SMILES, "P-1", stacking_A=4.2, head_to_tail=False, seed=7).cif
+    for i, t in enumerate((300.0, 320.0, 340.0, 360.0, 380.0)):
+        frame = powder_pattern([(low if t < 350 else high, 1.0)], rng=np.random.default_rng(20 + i),
+                               lattice_strain=1e-4 * (t - 300))
+        raw = to_csv_bytes(frame, {"temperature": f"{t:g} K", "wavelength": "Cu Ka1", "sweep": "heating"})
+        assert post(client, bowl_batch, "pxrd", raw, uploader, filename=f"vt{i}.csv").status_code == 201
+    comp = session.exec(select(Compound)).one()
+    session.refresh(comp)
+    v = comp.verdict
+    assert v["transitions_K"] == [350.0]
+    assert v["transitions"][0]["sources"] == ["pxrd"]
+    assert v["code"] == "transition_only"
+    # 300-340 K unchanged (scanned); the step holding the change, and above it, only bracketed
+    rows = [(p["t_from_K"], p["t_to_K"], p["scanned"]) for p in v["phases"]]
+    assert rows[0] == (300.0, 340.0, True) and (360.0, 380.0, True) in rows

@@ -1,7 +1,7 @@
 """Run the ratio benchmarks and write bench/results/latest.md.
 
     python -m bench                       all benchmarks (about 7 minutes on a 2-core machine)
-    python -m bench registry search       only these (registry, search, analysis, crystal, estimate, upload)
+    python -m bench registry search       only these (registry, search, analysis, crystal, estimate, upload, group)
     python -m bench --quick               smaller sizes, for a check that everything runs
     python -m bench search --large        search also over 100 000 molecules (several minutes more)
 
@@ -29,7 +29,7 @@ from typing import Callable
 from .common import RESULTS_DIR, Row, Section, ratio_text
 
 BENCH_DIR = Path(__file__).resolve().parent
-NAMES = ("registry", "search", "analysis", "crystal", "estimate", "upload")
+NAMES = ("registry", "search", "analysis", "crystal", "estimate", "upload", "group")
 
 
 # ------------------------------------------------------------------ benchmarks kept as scripts
@@ -137,6 +137,32 @@ def run_upload(quick: bool) -> Section:
     return section
 
 
+def run_group(quick: bool) -> Section:
+    """bench/bench_group.py (two app processes on one PostgreSQL database) in a child process."""
+    section = Section("group")
+    if not os.environ.get("REMANENCE_TEST_PG_URL"):
+        section.rows.append(Row("group upload (bench/bench_group.py)", "—", "—", None,
+                                verdict_override="not run: needs REMANENCE_TEST_PG_URL"))
+        return section
+    cmd = [sys.executable, str(_script("group"))] + (["--uploads", "16"] if quick else [])
+    proc = subprocess.run(cmd, capture_output=True, text=True, cwd=BENCH_DIR.parent)
+    section.details.append(f"Output of bench/bench_group.py ({' '.join(cmd[2:]) or 'no options'}):")
+    section.details.extend(f"    {line}" for line in proc.stdout.strip().splitlines())
+    rows = _markdown_rows(proc.stdout) if proc.returncode == 0 else []
+    if not rows:
+        section.details.extend(f"    {line}" for line in proc.stderr.strip().splitlines()[-15:])
+        section.rows.append(Row("group upload (bench/bench_group.py)", "—", "—", None,
+                                verdict_override=f"failed (exit {proc.returncode})"))
+    for cells in rows:
+        ratio = cells["ratio two/one"]
+        section.rows.append(Row(
+            benchmark=f"{cells['benchmark']}: two serve processes / one (uploads/s)",
+            measured=f"{cells['uploads/s two processes']} uploads/s", baseline=f"{cells['uploads/s one process']} uploads/s",
+            ratio=_number(ratio), ratio_text=ratio, target=None,
+            verdict_override=None if cells.get("ok", "").lower() == "yes" else "checks failed"))
+    return section
+
+
 def _runners(args: argparse.Namespace) -> dict[str, Callable[[], Section]]:
     def registry() -> Section:
         from . import bench_registry
@@ -159,7 +185,8 @@ def _runners(args: argparse.Namespace) -> dict[str, Callable[[], Section]]:
         return bench_crystal.run(quick=args.quick)
 
     return {"registry": registry, "search": search, "analysis": analysis, "crystal": crystal,
-            "estimate": lambda: run_estimate(args.quick), "upload": lambda: run_upload(args.quick)}
+            "estimate": lambda: run_estimate(args.quick), "upload": lambda: run_upload(args.quick),
+            "group": lambda: run_group(args.quick)}
 
 
 # ------------------------------------------------------------------ report

@@ -12,11 +12,13 @@ PostgreSQL: one database per test session, migrated once, emptied before each te
 
 from __future__ import annotations
 
+import contextlib
 import os
 import re
 import shutil
 import uuid
 from pathlib import Path
+from typing import Iterator
 
 import pytest
 import sqlalchemy as sa
@@ -40,29 +42,41 @@ def sqlite_template(tmp_path_factory) -> Path:
     return path
 
 
-@pytest.fixture(scope="session")
-def pg_database():
-    """A freshly created and migrated PostgreSQL database for this test session."""
+@contextlib.contextmanager
+def fresh_pg_database(prefix: str = "remanence_test") -> Iterator[str]:
+    """Create a new, empty database on REMANENCE_TEST_PG_URL's server; yields its URL, drops it after.
+
+    Skips without PostgreSQL (fails instead when REMANENCE_REQUIRE_PG=1). Not migrated.
+    """
     if not PG_URL:
         if REQUIRE_PG:
             pytest.fail("REMANENCE_REQUIRE_PG=1 but REMANENCE_TEST_PG_URL is not set")
         pytest.skip("PostgreSQL tests need REMANENCE_TEST_PG_URL")
     server_url = make_url(PG_URL)
-    name = f"remanence_test_{uuid.uuid4().hex[:10]}"
+    name = f"{prefix}_{uuid.uuid4().hex[:10]}"
     admin = sa.create_engine(server_url, isolation_level="AUTOCOMMIT")
     try:
         with admin.connect() as conn:
             conn.execute(sa.text(f'CREATE DATABASE "{name}"'))
     except sa.exc.OperationalError as exc:
+        admin.dispose()
         if REQUIRE_PG:
             pytest.fail(f"PostgreSQL at {server_url.render_as_string()} unreachable: {exc}")
         pytest.skip(f"PostgreSQL unreachable: {exc}")
-    url = server_url.set(database=name).render_as_string(hide_password=False)
-    upgrade(url)
-    yield url
-    with admin.connect() as conn:
-        conn.execute(sa.text(f'DROP DATABASE IF EXISTS "{name}" WITH (FORCE)'))
-    admin.dispose()
+    try:
+        yield server_url.set(database=name).render_as_string(hide_password=False)
+    finally:
+        with admin.connect() as conn:
+            conn.execute(sa.text(f'DROP DATABASE IF EXISTS "{name}" WITH (FORCE)'))
+        admin.dispose()
+
+
+@pytest.fixture(scope="session")
+def pg_database():
+    """A freshly created and migrated PostgreSQL database for this test session."""
+    with fresh_pg_database() as url:
+        upgrade(url)
+        yield url
 
 
 def _empty_pg(url: str) -> None:

@@ -7,6 +7,8 @@
   (the approach of ``tests/browser/conftest.py``).
 * :class:`ServerProcess` runs the server as a real child process (so it can be SIGKILLed), on a
   socket the test binds on 127.0.0.1 and hands over, with the settings in its environment.
+* :class:`CliProcess` runs ``remanence serve`` or ``remanence worker`` itself, as a service manager
+  would (the group-server layout: several of each on one PostgreSQL database).
 * :func:`counts` and :func:`orphans` read the storage through a fresh connection, never through a
   long-lived session (a SQLite read transaction would keep an old snapshot).
 
@@ -139,6 +141,82 @@ uvicorn.Server(uvicorn_config(app, settings, log_level="warning", access_log=Fal
 """
 
 
+def child_env(database_url: str, data_dir: Path, extra: Optional[dict[str, str]] = None) -> dict[str, str]:
+    """The environment of a server or worker child: the settings an administrator's env file would set."""
+    env = {k: v for k, v in os.environ.items() if not k.startswith("REMANENCE_")}
+    env.update(REMANENCE_DATABASE_URL=database_url, REMANENCE_DATA_DIR=str(data_dir),
+               REMANENCE_EMBEDDED_WORKER="false", REMANENCE_SECRET_KEY="trust-test-secret-not-for-production",
+               PYTHONPATH=str(ROOT), OMP_NUM_THREADS="1")
+    env.update(extra or {})
+    return env
+
+
+@dataclass
+class CliProcess:
+    """``remanence serve`` or ``remanence worker`` as the administrator starts it (``python -m server.cli``).
+
+    ``serve`` listens on a port picked free just before the start (the command binds by number, not
+    by an inherited socket); should another program take it in between, the start is tried again on
+    a new port, at most three times.
+    """
+
+    command: str  # "serve" or "worker"
+    database_url: str
+    data_dir: Path
+    name: str
+    extra_env: dict[str, str] = field(default_factory=dict)
+    proc: Optional[subprocess.Popen] = None
+    url: str = ""
+    logfile: Optional[Path] = None
+
+    def _popen(self, args: list[str]) -> None:
+        self.logfile = self.data_dir / f"{self.name}.log"
+        with open(self.logfile, "ab") as out:
+            self.proc = subprocess.Popen([sys.executable, "-m", "server.cli", *args], cwd=ROOT,
+                                         env=child_env(self.database_url, self.data_dir, self.extra_env),
+                                         stdout=out, stderr=subprocess.STDOUT)
+
+    def start(self, timeout_s: float = 120.0) -> "CliProcess":
+        if self.command == "worker":
+            self._popen(["worker", "--name", self.name])
+            return self
+        for _attempt in range(3):
+            sock = bound_socket()
+            port = sock.getsockname()[1]
+            sock.close()
+            self._popen(["serve", "--host", "127.0.0.1", "--port", str(port), "--log-level", "warning"])
+            self.url = f"http://127.0.0.1:{port}"
+            deadline = time.monotonic() + timeout_s
+            while time.monotonic() < deadline and self.proc.poll() is None:
+                try:
+                    if httpx.get(f"{self.url}/healthz", timeout=1.0).status_code == 200:
+                        return self
+                except httpx.TransportError:
+                    pass
+                time.sleep(0.1)
+            if self.proc.poll() is None:
+                self.stop()
+                pytest.fail(f"{self.name} did not answer /healthz within {timeout_s} s:\n{self.output()}")
+            if "address already in use" not in self.output().lower():
+                pytest.fail(f"{self.name} exited with {self.proc.returncode}:\n{self.output()}")
+        pytest.fail(f"{self.name}: no free port after three tries")
+
+    def alive(self) -> bool:
+        return self.proc is not None and self.proc.poll() is None
+
+    def stop(self) -> None:
+        if self.alive():
+            self.proc.send_signal(signal.SIGTERM)
+            try:
+                self.proc.wait(timeout=15)
+            except subprocess.TimeoutExpired:
+                os.kill(self.proc.pid, signal.SIGKILL)
+                self.proc.wait(timeout=10)
+
+    def output(self) -> str:
+        return self.logfile.read_text(errors="replace")[-4000:] if self.logfile and self.logfile.exists() else ""
+
+
 @dataclass
 class ServerProcess:
     """The server as a child process on a SQLite file or a PostgreSQL database (already migrated)."""
@@ -152,12 +230,7 @@ class ServerProcess:
     _n: itertools.count = field(default_factory=lambda: itertools.count(1))
 
     def env(self) -> dict[str, str]:
-        env = {k: v for k, v in os.environ.items() if not k.startswith("REMANENCE_")}
-        env.update(REMANENCE_DATABASE_URL=self.database_url, REMANENCE_DATA_DIR=str(self.data_dir),
-                   REMANENCE_EMBEDDED_WORKER="false", REMANENCE_SECRET_KEY="trust-test-secret-not-for-production",
-                   PYTHONPATH=str(ROOT), OMP_NUM_THREADS="1")
-        env.update(self.extra_env)
-        return env
+        return child_env(self.database_url, self.data_dir, self.extra_env)
 
     def start(self, timeout_s: float = 120.0) -> str:
         assert self.proc is None or self.proc.poll() is not None, "already running"

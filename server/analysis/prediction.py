@@ -13,6 +13,18 @@ Pure: descriptor records and measured values in, frozen dataclasses out (no data
 * Baselines: the mean of the compounds on the same bridge (the scaffold mean) for values, and the
   rule of succession (k + 1) / (n + 2) per bridge for the switching probability (a Beta(1, 1) prior;
   Gelman et al., Bayesian Data Analysis, 3rd ed., 2013, sec. 2.4).
+* Pr at a reference temperature (:func:`pr_at_reference`): Pr depends on temperature (it falls to zero
+  at Tc, Lines & Glass 1977, ch. 3), so the modelled value is Pr at one stated temperature, never a
+  maximum over temperatures. The rule: the mean Pr of the saturated switching loops within
+  :data:`SAME_T_K` of the reference; failing that, linear interpolation between the nearest switching
+  loops on either side, when they are at most :data:`MAX_BRACKET_K` apart and no loop between them
+  fails to switch. Otherwise the compound has no Pr at that temperature and is left out of the model
+  (counted, never extrapolated). The window and the span are our choices (common practice for a
+  tabulated "Pr at T" is a measurement near T).
+* Computed estimates as features (GFN2-xTB barrier and bowl depth, where present): a second GP with
+  them is fitted on the compounds that have them and kept only when its leave-one-out error beats the
+  structure-only GP and the scaffold mean on the same compounds; targets with estimates are predicted by it, the others by
+  the structure-only model, and each prediction names its feature set.
 * Ranking: expected improvement over the best value measured so far (Jones, Schonlau & Welch 1998,
   eq. 15), times the predicted probability of switching when the goal is a ferroelectric property.
 
@@ -46,6 +58,12 @@ MIN_COMPOUNDS = 6
 #: Fewest of each class (switches / does not) the classifier needs.
 MIN_PER_CLASS = 2
 CHAIN_KINDS = ("alkoxy", "alkylthio", "alkyl")
+#: The computed estimates used as features where present (GFN2-xTB jobs): name -> unit.
+ESTIMATE_FEATURES: dict[str, str] = {"barrier_computed_kcal_mol": "kcal/mol", "bowl_depth_computed_A": "Å"}
+#: A loop within this of the reference temperature is "at" it (our choice; as the explorer's window).
+SAME_T_K = 5.0
+#: Interpolate Pr only between switching loops at most this far apart (our choice).
+MAX_BRACKET_K = 80.0
 Z95 = stats.norm.ppf(0.975)
 
 
@@ -59,20 +77,74 @@ class Descriptor:
     code: str
     bridge: str
     chains: tuple[Mapping[str, Any], ...]  # {"kind", "carbons", "branched", "count"}
+    estimates: Mapping[str, float] = field(default_factory=dict)  # ESTIMATE_FEATURES present for it
+
+    @property
+    def has_estimates(self) -> bool:
+        return all(isinstance(self.estimates.get(k), (int, float)) and math.isfinite(self.estimates[k])
+                   for k in ESTIMATE_FEATURES)
 
 
-def feature_names(bridges: Sequence[str]) -> list[str]:
+def feature_names(bridges: Sequence[str], *, estimates: bool = False) -> list[str]:
     return ([f"bridge {b}" for b in bridges] + ["mean chain carbons"]
-            + [f"fraction {k}" for k in CHAIN_KINDS] + ["fraction branched"])
+            + [f"fraction {k}" for k in CHAIN_KINDS] + ["fraction branched"]
+            + ([f"{k} (GFN2-xTB)" for k in ESTIMATE_FEATURES] if estimates else []))
 
 
-def features(d: Descriptor, bridges: Sequence[str]) -> np.ndarray:
-    """Bridge one-hot; count-weighted mean chain carbons; fraction of chains of each kind; fraction branched."""
+def features(d: Descriptor, bridges: Sequence[str], *, estimates: bool = False) -> np.ndarray:
+    """Bridge one-hot; count-weighted mean chain carbons; fraction of chains of each kind; fraction branched;
+    with ``estimates``, the computed estimates (the caller passes only descriptors that have them)."""
     n = sum(int(c["count"]) for c in d.chains) or 1
     carbons = sum(int(c["count"]) * int(c["carbons"]) for c in d.chains) / n
     kinds = [sum(int(c["count"]) for c in d.chains if c["kind"] == k) / n for k in CHAIN_KINDS]
     branched = sum(int(c["count"]) for c in d.chains if c["branched"]) / n
-    return np.array([1.0 if d.bridge == b else 0.0 for b in bridges] + [carbons] + kinds + [branched])
+    extra = [float(d.estimates[k]) for k in ESTIMATE_FEATURES] if estimates else []
+    return np.array([1.0 if d.bridge == b else 0.0 for b in bridges] + [carbons] + kinds + [branched] + extra)
+
+
+# --- Pr at a reference temperature ----------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Loop:
+    """One live P-E loop of a compound: its temperature, whether it was judged switching, its Pr."""
+
+    t_K: float
+    switching: bool
+    pr_uC_cm2: Optional[float]
+
+
+@dataclass(frozen=True)
+class PrAtT:
+    value_uC_cm2: Optional[float]
+    how: str  # "measured", "interpolated" or "none"
+    reason: str
+
+
+def pr_at_reference(loops: Sequence[Loop], t_ref_K: float) -> PrAtT:
+    """Pr at ``t_ref_K`` by the rule in the module docstring; ``value_uC_cm2`` None when the loops do not
+    give one (the reason says why)."""
+    ok = [lp for lp in loops if lp.switching and lp.pr_uC_cm2 is not None and math.isfinite(lp.pr_uC_cm2)]
+    near = [lp.pr_uC_cm2 for lp in ok if abs(lp.t_K - t_ref_K) <= SAME_T_K]
+    if near:
+        return PrAtT(float(np.mean(near)), "measured",
+                     f"mean of {len(near)} switching loop{'s' if len(near) > 1 else ''} within {SAME_T_K:g} K")
+    below = [lp for lp in ok if lp.t_K < t_ref_K]
+    above = [lp for lp in ok if lp.t_K > t_ref_K]
+    if not below or not above:
+        side = "above" if not above else "below"
+        return PrAtT(None, "none", f"no switching loop within {SAME_T_K:g} K and none {side} {t_ref_K:g} K "
+                                   "(Pr is not extrapolated)")
+    t_lo, t_hi = max(lp.t_K for lp in below), min(lp.t_K for lp in above)
+    if t_hi - t_lo > MAX_BRACKET_K:
+        return PrAtT(None, "none", f"the nearest switching loops ({t_lo:g} K and {t_hi:g} K) are more than "
+                                   f"{MAX_BRACKET_K:g} K apart")
+    if any(not lp.switching and t_lo < lp.t_K < t_hi for lp in loops):
+        return PrAtT(None, "none", f"a loop between {t_lo:g} K and {t_hi:g} K does not switch")
+    p_lo = float(np.mean([lp.pr_uC_cm2 for lp in ok if abs(lp.t_K - t_lo) <= SAME_T_K]))
+    p_hi = float(np.mean([lp.pr_uC_cm2 for lp in ok if abs(lp.t_K - t_hi) <= SAME_T_K]))
+    value = p_lo + (p_hi - p_lo) * (t_ref_K - t_lo) / (t_hi - t_lo)
+    return PrAtT(value, "interpolated", f"interpolated between switching loops at {t_lo:g} K and {t_hi:g} K")
 
 
 # --- Gaussian-process regression ----------------------------------------------------------------
@@ -279,6 +351,7 @@ class Prediction:
     sd: float
     low: float  # 95 % interval of a new measurement
     high: float
+    with_estimates: bool = False  # predicted by the model that also uses the computed estimates
 
 
 @dataclass(frozen=True)
@@ -299,6 +372,13 @@ class RegressionResult(Result):
     best_code: str = ""
     predictions: tuple[Prediction, ...] = ()
     flags: tuple[str, ...] = ()
+    # The computed estimates as extra features: on how many measured compounds they are present, the
+    # LOO RMSE with and without them on those compounds, whether the model with them is used.
+    n_with_estimates: int = 0
+    loo_rmse_with_estimates: Optional[float] = None
+    loo_rmse_without_estimates: Optional[float] = None
+    estimates_used: bool = False
+    estimates_message: str = ""
 
 
 @dataclass(frozen=True)
@@ -321,7 +401,8 @@ def _rmse(a: np.ndarray, b: np.ndarray) -> float:
 def predict_property(train: Sequence[tuple[Descriptor, float]], targets: Sequence[Descriptor], *, prop: str,
                      unit: str) -> RegressionResult:
     """Fit the GP and the scaffold mean to ``train`` (measured compounds), validate both by leave-one-out,
-    and predict ``targets`` with the one of lower LOO error. Fewer than :data:`MIN_COMPOUNDS`: no prediction."""
+    and predict ``targets`` with the one of lower LOO error. Fewer than :data:`MIN_COMPOUNDS`: no prediction.
+    Where the computed estimates are present, a GP with them competes as the module docstring says."""
     n = len(train)
     if n < MIN_COMPOUNDS:
         return RegressionResult(property=prop, unit=unit, n=n, enough_data=False,
@@ -337,23 +418,57 @@ def predict_property(train: Sequence[tuple[Descriptor, float]], targets: Sequenc
     coverage = float(np.mean(np.abs(loo_mu - y) <= Z95 * loo_sd))
     rmse_sm = _rmse(scaffold_mean_loo(tb, y), y)
     use_gp = rmse_gp < rmse_sm
-    if targets:
+    est = _estimates_model(train, bridges)
+    preds: dict[str, Prediction] = {}
+    rest = list(targets)
+    if est["used"]:
+        with_e = [d for d in targets if d.has_estimates]
+        rest = [d for d in targets if not d.has_estimates]
+        if with_e:
+            mu, sd = est["gp"].predict(np.array([features(d, bridges, estimates=True) for d in with_e]))
+            preds.update({d.code: Prediction(d.code, float(m), float(s), float(m - Z95 * s), float(m + Z95 * s), True)
+                          for d, m, s in zip(with_e, mu, sd)})
+    if rest:
         if use_gp:
-            mu, sd = gp.predict(np.array([features(d, bridges) for d in targets]))
+            mu, sd = gp.predict(np.array([features(d, bridges) for d in rest]))
             q = Z95
         else:
             sm = fit_scaffold_mean(tb, y)
-            mu, sd = sm.predict([d.bridge for d in targets])
+            mu, sd = sm.predict([d.bridge for d in rest])
             q = float(stats.t.ppf(0.975, sm.dof))
-        preds = tuple(Prediction(d.code, float(m), float(s), float(m - q * s), float(m + q * s))
-                      for d, m, s in zip(targets, mu, sd))
-    else:
-        preds = ()
+        preds.update({d.code: Prediction(d.code, float(m), float(s), float(m - q * s), float(m + q * s))
+                      for d, m, s in zip(rest, mu, sd)})
     best = int(np.argmax(y))
     return RegressionResult(property=prop, unit=unit, n=n, enough_data=True, model="gp" if use_gp else "scaffold_mean",
-                            features=tuple(feature_names(bridges)), loo_rmse_gp=rmse_gp, loo_rmse_scaffold_mean=rmse_sm,
-                            loo_coverage_gp=coverage, best_measured=float(y[best]), best_code=train[best][0].code,
-                            predictions=preds)
+                            features=tuple(feature_names(bridges, estimates=est["used"])), loo_rmse_gp=rmse_gp,
+                            loo_rmse_scaffold_mean=rmse_sm, loo_coverage_gp=coverage, best_measured=float(y[best]),
+                            best_code=train[best][0].code, predictions=tuple(preds[d.code] for d in targets),
+                            n_with_estimates=est["n"], loo_rmse_with_estimates=est["rmse_with"],
+                            loo_rmse_without_estimates=est["rmse_without"], estimates_used=est["used"],
+                            estimates_message=est["message"])
+
+
+def _estimates_model(train: Sequence[tuple[Descriptor, float]], bridges: Sequence[str]) -> dict[str, Any]:
+    """The GP with the computed estimates, fitted on the measured compounds that have them, and whether its
+    LOO RMSE beats the structure-only GP and the scaffold mean on the same compounds (then it is used)."""
+    sub = [(d, v) for d, v in train if d.has_estimates]
+    out: dict[str, Any] = {"n": len(sub), "used": False, "gp": None, "rmse_with": None, "rmse_without": None}
+    if len(sub) < MIN_COMPOUNDS:
+        out["message"] = (f"computed estimates on {len(sub)} measured compound{'s' if len(sub) != 1 else ''}; "
+                          f"using them needs at least {MIN_COMPOUNDS}")
+        return out
+    y = np.array([v for _, v in sub], dtype=float)
+    gp_with = fit_gp_regression(np.array([features(d, bridges, estimates=True) for d, _ in sub]), y)
+    gp_without = fit_gp_regression(np.array([features(d, bridges) for d, _ in sub]), y)
+    out["rmse_with"] = _rmse(gp_with.loo()[0], y)
+    # Without them: the better of the structure-only GP and the scaffold mean, on the same compounds.
+    out["rmse_without"] = min(_rmse(gp_without.loo()[0], y), _rmse(scaffold_mean_loo([d.bridge for d, _ in sub], y), y))
+    out["used"] = out["rmse_with"] < out["rmse_without"]
+    out["gp"] = gp_with
+    out["message"] = (f"computed estimates on {len(sub)} measured compounds: leave-one-out RMSE "
+                      f"{out['rmse_with']:.3g} with them, {out['rmse_without']:.3g} without; "
+                      + ("used for targets that have them" if out["used"] else "not used (they do not help)"))
+    return out
 
 
 def predict_switching(train: Sequence[tuple[Descriptor, bool]], targets: Sequence[Descriptor]) -> ClassificationResult:

@@ -126,6 +126,11 @@ class ModelSummary(SQLModel):
     loo_coverage_95: Optional[float] = Field(description="fraction of left-out values inside their 95 % interval")
     best_measured: Optional[float]
     best_code: Optional[str]
+    n_with_estimates: int = Field(0, description="measured compounds with computed (GFN2-xTB) estimates")
+    estimates_used: bool = Field(False, description="whether a model with the estimates predicts the targets "
+                                 "that have them (its leave-one-out error is lower)")
+    loo_rmse_with_estimates: Optional[float] = None
+    loo_rmse_without_estimates: Optional[float] = None
 
 
 class SwitchingSummary(SQLModel):
@@ -144,6 +149,7 @@ class RankingRead(SQLModel):
     rule: str = Field(description="the acquisition rule the ranking follows")
     property: Optional[str]
     unit: Optional[str]
+    reference_t_K: Optional[float] = Field(None, description="the temperature the Pr goal's values are at")
     enough_data: bool
     notes: list[str]
     model: Optional[ModelSummary]

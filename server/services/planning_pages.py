@@ -34,15 +34,17 @@ def estimate_status(session: Session, compound: Compound) -> dict[str, Any]:
     return {"state": "none"}
 
 
-def planning_page(session: Session, *, actor: Optional[Actor], goal: str, state: str) -> dict[str, Any]:
+def planning_page(session: Session, *, actor: Optional[Actor], goal: str, state: str,
+                  t_ref_K: Optional[float] = None) -> dict[str, Any]:
     states = ("planned", "in_synthesis") if state == "open" else (state,)
-    rank = prediction.ranking(session, actor=actor, goal=goal)
+    rank = prediction.ranking(session, actor=actor, goal=goal, t_ref_K=t_ref_K)
     by_code = {it["code"]: it for it in rank["items"]}
     rows = []
     for c, plan, life in planning.targets(session, actor=actor, states=states):
         rows.append({"compound": c, "plan": plan, "state": life, "rank": by_code.get(c.code),
                      "estimate": estimate_status(session, c) if life in ("planned", "in_synthesis") else None})
     return {"rows": rows, "ranking": rank, "goals": prediction.GOALS, "goal": goal, "state": state,
+            "t_ref_K": prediction.check_reference(t_ref_K),
             "states": ("open",) + LIFE_STATES[1:], "cautions": hazards.CAMPAIGN_CAUTIONS, "defer": hazards.DEFER}
 
 

@@ -3,6 +3,8 @@ step and precursor forms and the copy of an earlier route), and the reagent tabl
 
 from __future__ import annotations
 
+from typing import Optional
+
 from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse
 from pydantic import ValidationError
@@ -18,12 +20,14 @@ router = APIRouter(include_in_schema=False)
 
 
 @router.get("/planning", response_class=HTMLResponse)
-def planning_page(request: Request, session: SessionDep, actor: PageActor, goal: str = "tc", state: str = "open"):
-    """Targets by priority with predictions and estimate status; the ranking by the chosen goal."""
+def planning_page(request: Request, session: SessionDep, actor: PageActor, goal: str = "tc", state: str = "open",
+                  t_ref_K: Optional[float] = None):
+    """Targets by priority with predictions and estimate status; the ranking by the chosen goal (Pr at
+    ``t_ref_K``)."""
     try:
         if state != "open":
             planning.targets(session, actor=actor, states=(state,))  # checks the state name
-        ctx = planning_pages.planning_page(session, actor=actor, goal=goal, state=state)
+        ctx = planning_pages.planning_page(session, actor=actor, goal=goal, state=state, t_ref_K=t_ref_K)
     except InputError as exc:
         return render(request, "pages/error.html", {"status": 422, "detail": str(exc)}, status_code=422, actor=actor)
     return render(request, "pages/planning.html", ctx, actor=actor)

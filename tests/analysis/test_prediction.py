@@ -108,3 +108,50 @@ def test_scaffold_mean_interval_uses_students_t():
     mu, sd = sm.predict(["A", "C"])
     assert list(mu) == [10.0, 15.0] and sm.pooled_sd == pytest.approx(1.0) and sm.dof == 4
     assert sd[0] == pytest.approx(math.sqrt(1 + 1 / 3))
+
+
+def test_pr_at_reference_measured_interpolated_or_none():
+    L = pr.Loop
+    # Within 5 K: the mean of the switching loops there (two specimens), the far loop ignored.
+    at = pr.pr_at_reference([L(298.0, True, 4.0), L(302.0, True, 4.4), L(250.0, True, 9.0)], 300.0)
+    assert at.how == "measured" and at.value_uC_cm2 == pytest.approx(4.2)
+    # Either side: linear interpolation, (300 - 280) / (330 - 280) = 0.4 of the way from 5.0 to 2.5 -> 4.0 (computed).
+    at = pr.pr_at_reference([L(280.0, True, 5.0), L(330.0, True, 2.5)], 300.0)
+    assert at.how == "interpolated" and at.value_uC_cm2 == pytest.approx(4.0)
+    # Only below (above Tc at 300 K nothing switches): no value, never extrapolated.
+    assert pr.pr_at_reference([L(250.0, True, 6.0), L(270.0, True, 5.0), L(320.0, False, 0.02)], 300.0).value_uC_cm2 is None
+    # A loop between the two that does not switch: the transition may lie between them.
+    none = pr.pr_at_reference([L(280.0, True, 5.0), L(305.0, False, 0.1), L(330.0, True, 2.5)], 300.0)
+    assert none.value_uC_cm2 is None and "does not switch" in none.reason
+    # Too far apart to interpolate.
+    assert pr.pr_at_reference([L(200.0, True, 5.0), L(330.0, True, 2.5)], 300.0).value_uC_cm2 is None
+    # A loop that does not switch near the temperature gives no Pr (its apparent Pr is not one).
+    assert pr.pr_at_reference([L(300.0, False, 0.3)], 300.0).value_uC_cm2 is None
+
+
+def _with_estimate(code, bridge, carbons, barrier, depth):
+    chains = ({"kind": "alkoxy", "carbons": carbons, "branched": False, "count": 6},)
+    est = {} if barrier is None else {"barrier_computed_kcal_mol": barrier, "bowl_depth_computed_A": depth}
+    return pr.Descriptor(code, bridge, chains, est)
+
+
+def test_computed_estimates_are_used_where_present_and_only_when_they_help():
+    # Invented: the property follows the computed barrier (1.5 K per kcal/mol, 3 % noise), not the chains.
+    rng = np.random.default_rng(5)
+    barriers = rng.uniform(8.0, 30.0, 14)
+    train = [(_with_estimate(f"M{i}", "CH2", int(c), b, 0.8 + 0.01 * b), 300.0 + 1.5 * b * (1 + rng.normal(0, 0.03)))
+             for i, (c, b) in enumerate(zip(rng.integers(2, 12, 14), barriers))]
+    targets = [_with_estimate("T1", "CH2", 4, 28.0, 1.08), _with_estimate("T2", "CH2", 4, None, None)]
+    r = pr.predict_property(train, targets, prop="tc", unit="K")
+    assert r.n_with_estimates == 14 and r.estimates_used
+    assert r.loo_rmse_with_estimates < 0.5 * r.loo_rmse_without_estimates
+    assert "barrier_computed_kcal_mol (GFN2-xTB)" in r.features
+    t1, t2 = r.predictions
+    assert t1.with_estimates and t1.low < 300 + 1.5 * 28 < t1.high
+    assert not t2.with_estimates  # no estimate: the structure-only model, with its wider interval
+    assert (t2.high - t2.low) > (t1.high - t1.low)
+    # Estimates on too few measured compounds: not used, and the message says how many there are.
+    few = [(d if i < 3 else pr.Descriptor(d.code, d.bridge, d.chains), v) for i, (d, v) in enumerate(train)]
+    r = pr.predict_property(few, targets, prop="tc", unit="K")
+    assert not r.estimates_used and r.n_with_estimates == 3 and "at least" in r.estimates_message
+    assert not any(p.with_estimates for p in r.predictions)

@@ -103,3 +103,45 @@ def test_embargoed_compounds_do_not_move_the_ranking_for_those_who_may_not_see_t
     assert after_up == before_up
     assert after_w != before_w and hidden in [it["code"] for it in after_w["items"]]
     assert after_w["model"]["best_measured"] == 520.0
+
+
+def _loop(client, headers, code, t_K, pr_uC_cm2):
+    """A P-E loop of a batch of ``code`` at ``t_K`` (Miller et al. 1990 analytic loop, server/synth/ferro.py)."""
+    from server.synth.ferro import miller_loop
+    from server.ingest.table import to_csv_bytes
+
+    batch = f"{code}-B01"
+    if client.get(f"/api/v1/batches/{batch}", headers=headers).status_code == 404:
+        assert client.post(f"/api/v1/compounds/{code}/batches", json={}, headers=headers).status_code == 201
+    r = client.post(f"/api/v1/batches/{batch}/measurements", data={"kind": "pe_loop", "temperature": f"{t_K:g} K"},
+                    files={"file": ("l.csv", to_csv_bytes(miller_loop(pr_uC_cm2 / 0.8, pr_uC_cm2, 50, 300)))},
+                    headers=headers)
+    assert r.status_code == 201, r.text
+    return r.json()
+
+
+def test_pr_goal_is_at_the_reference_temperature_and_names_what_it_leaves_out(client, world):
+    w = world["w"]
+    switching = sorted(code for code, (_, s) in world["measured"].items() if s)
+    # Six compounds measured at 300 K or either side of it; two only at 250 K (no Pr at 300 K there).
+    pr = {code: 6.0 - 0.4 * i for i, code in enumerate(switching)}
+    for code in switching[:3]:
+        _loop(client, w, code, 300, pr[code])
+    for code in switching[3:6]:
+        _loop(client, w, code, 280, pr[code] + 0.5)
+        _loop(client, w, code, 320, pr[code] - 0.5)
+    for code in switching[6:]:
+        _loop(client, w, code, 250, pr[code])
+    body = client.get("/api/v1/planning/ranking", params={"goal": "pr"}, headers=w).json()
+    assert body["reference_t_K"] == 300.0 and body["model"]["n"] == 6
+    note = next(n for n in body["notes"] if n.startswith("Pr at 300 K"))
+    assert "2 compounds" in note and all(code in note for code in switching[6:])
+    assert body["enough_data"] and all("at 300 K" in it["explanation"] for it in body["items"])
+    # Measured-within-5-K values enter as measured, interpolated ones at the midpoint (pr, the line's centre).
+    assert body["model"]["best_measured"] == pytest.approx(pr[switching[0]], rel=0.03)
+    # At 250 K only two compounds give a Pr: too few to predict, and the page says why.
+    cold = client.get("/api/v1/planning/ranking", params={"goal": "pr", "t_ref_K": 250}, headers=w).json()
+    assert cold["reference_t_K"] == 250.0 and not cold["enough_data"] and cold["items"] == []
+    assert cold["model"]["n"] == 2
+    bad = client.get("/api/v1/planning/ranking", params={"goal": "pr", "t_ref_K": 0}, headers=w)
+    assert bad.status_code == 422 and bad.json()["field"] == "t_ref_K"

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from typing import Optional
+
 from fastapi import APIRouter, Query
 
 from ...deps import Reader, RowId, SessionDep, Writer
@@ -14,11 +16,15 @@ router = APIRouter(tags=["planning"])
 
 @router.get("/planning/ranking", response_model=RankingRead, responses={**AUTH_ERRORS, **INPUT_ERRORS})
 def get_ranking(session: SessionDep, actor: Reader,
-                goal: str = Query("tc", max_length=20, description="tc, pr, switch or barrier")) -> RankingRead:
+                goal: str = Query("tc", max_length=20, description="tc, pr, switch or barrier"),
+                t_ref_K: Optional[float] = Query(None, description="reference temperature of the pr goal (K); "
+                                                 "default 300")) -> RankingRead:
     """Planned and in-synthesis compounds ordered by the goal's acquisition rule (expected improvement over
     the best measured value, times the probability of switching for tc and pr), with predictions, 95 %
-    intervals and the models' leave-one-out errors. With too few data: `enough_data` false, no items."""
-    return RankingRead(**prediction.ranking(session, actor=actor, goal=goal))
+    intervals and the models' leave-one-out errors. With too few data: `enough_data` false, no items.
+    Pr is at `t_ref_K`: a switching loop within 5 K, or interpolated between switching loops either side;
+    compounds without one are left out and named in `notes`."""
+    return RankingRead(**prediction.ranking(session, actor=actor, goal=goal, t_ref_K=t_ref_K))
 
 
 # --- reagents (hazard data entered by the group from the supplier's SDS) -------------------------

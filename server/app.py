@@ -20,7 +20,7 @@ from .api import docs_page as api_docs_page
 from .cookies import CookieMiddleware
 from .db import make_engine
 from .errors import InputError, OverLimit
-from .access import NotLoggedIn, Refused, may_see_structure
+from .access import NotLoggedIn, Refused, may_cancel_job, may_see_structure
 from .services.errors import Archived, Duplicate, Forbidden, NotFound, TooLarge
 from .package_files import static_dir, templates_dir
 from .plots.alt import figure_alt
@@ -172,7 +172,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.state.engine = engine
     templates = Jinja2Templates(directory=str(templates_dir()))
     templates.env.globals.update(version=__version__, static_url=static_url, plotly_bundle=PLOTLY_BUNDLE,
-                                 may_see_structure=may_see_structure)
+                                 may_see_structure=may_see_structure, may_cancel_job=may_cancel_job)
     format_filters.install(templates.env)
     templates.env.filters["figure_alt"] = figure_alt  # a figure's axes and data tables (figure_block macro)
     app.state.templates = templates

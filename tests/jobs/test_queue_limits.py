@@ -65,6 +65,23 @@ def test_a_member_cannot_cancel_another_members_job_from_the_page(app, client, s
     assert client.get(f"/api/v1/jobs/{job}", headers=owner).json()["state"] == "queued"
 
 
+def test_the_cancel_button_shows_only_to_who_may_cancel(app, client, session):
+    """The job panel (compound page, queue) offers Cancel to the job's owner or an admin, not to other members."""
+    from fastapi.testclient import TestClient
+
+    owner = bearer(make_token(session, scope="write", name="owner-pc"))
+    code = _register(client, owner, SMILES[2])
+    job = client.post(f"/api/v1/compounds/{code}/estimates", json={}, headers=owner).json()["job"]
+    with TestClient(app) as member:
+        login_as(member, session, role="member", name="member-c")
+        panel = member.get(f"/jobs/{job}/panel")
+        assert panel.status_code == 200 and f"/jobs/{job}/cancel" not in panel.text
+        assert f"/jobs/{job}/cancel" not in member.get(f"/compounds/{code}").text
+    with TestClient(app) as admin:
+        login_as(admin, session, role="admin", name="admin-c")
+        assert f"/jobs/{job}/cancel" in admin.get(f"/jobs/{job}/panel").text
+
+
 def test_a_bulk_request_past_the_limit_is_refused_before_any_lookup(client, session):
     writer = bearer(make_token(session, scope="write", name="bulk-pc"))
     codes = [f"NOPE-{i:05d}" for i in range(bounds.MAX_BULK_ESTIMATES + 1)]  # none exists: no lookup may run

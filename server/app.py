@@ -27,7 +27,7 @@ from .plots.alt import figure_alt
 from .ratelimit import TokenBuckets, caller_key
 from .serving import BodyDeadline
 from .settings import Settings, get_settings
-from . import text_guard
+from . import hazards, text_guard
 from .web import format as format_filters
 from .web import admin as admin_pages
 from .web import auth as auth_pages
@@ -172,7 +172,8 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.state.engine = engine
     templates = Jinja2Templates(directory=str(templates_dir()))
     templates.env.globals.update(version=__version__, static_url=static_url, plotly_bundle=PLOTLY_BUNDLE,
-                                 may_see_structure=may_see_structure, may_cancel_job=may_cancel_job)
+                                 may_see_structure=may_see_structure, may_cancel_job=may_cancel_job,
+                                 form_cautions=hazards.form_cautions, hazard_defer=hazards.DEFER)
     format_filters.install(templates.env)
     templates.env.filters["figure_alt"] = figure_alt  # a figure's axes and data tables (figure_block macro)
     app.state.templates = templates

@@ -67,6 +67,30 @@ HEATING_CHALCOGEN = ("This compound contains sulfur or selenium: check its decom
                      "it far, since decomposing chalcogen compounds can release toxic hydrides.")
 
 
+#: High voltage at the P-E / PUND tester (common practice; the upload form repeats it).
+HIGH_VOLTAGE = Caution("high_voltage", "High voltage",
+                       "P-E loops and PUND drive samples with hundreds to thousands of volts. Use the tester's "
+                       "interlocks and shielding, keep hands off the sample stage while a measurement is armed, "
+                       "and follow your laboratory's high-voltage rules and its trained staff.")
+
+#: Which cautions each form where work is recorded or planned shows (the batch form: the synthesis; the upload
+#: form: the measurement). One table, so the wording lives here only.
+FORM_CAUTIONS: dict[str, tuple[Caution, ...]] = {
+    "batch": (CAUTIONS_BY_KEY["organolithium"], CAUTIONS_BY_KEY["chalcogen"]),
+    "upload": (HIGH_VOLTAGE, CAUTIONS_BY_KEY["hot_bath_high_voltage"]),
+}
+
+
+def form_cautions(form: str, formula: str | None = None) -> list[Caution]:
+    """The cautions of one form (:data:`FORM_CAUTIONS`), plus the heating caution when the compound's formula
+    holds S or Se. Pass the formula only when the caller may see the compound's structure (the embargo): for
+    anyone else the compound-specific caution would say something about the structure."""
+    out = list(FORM_CAUTIONS[form])
+    if formula and formula_has_chalcogen(formula):
+        out.append(Caution("heating_chalcogen", "Heating a sulfur or selenium compound", HEATING_CHALCOGEN))
+    return out
+
+
 def check_hazard_codes(codes: list[str]) -> list[str]:
     """Upper-cased codes, each checked against the GHS code pattern; raises ValueError naming a bad one."""
     out = []

@@ -365,7 +365,8 @@ def _pick_phase(model: PhaseModel, switching: Sequence[Evidence], structures: Se
 
 
 def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
-           rates: Sequence[Mapping[str, Any]] = (), series_tc: Mapping[str, Any] | None = None) -> CompoundVerdict:
+           rates: Sequence[Mapping[str, Any]] = (), series_tc: Mapping[str, Any] | None = None,
+           identity: Mapping[int, bool] | None = None) -> CompoundVerdict:
     """Combine the analysed measurements of one compound into a verdict.
 
     Parameters
@@ -380,6 +381,9 @@ def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
     series_tc : mapping, optional
         The compound's Curie temperature fitted to its Pr(T) series ``{"tc_K", "tc_err_K", "measurement_ids"}``
         (:func:`series_vanishing`): the phase model's Pr -> 0 temperature.
+    identity : mapping, optional
+        Measurement id -> whether its batch's identity is confirmed (issue 17): adds the criterion of
+        :func:`identity_criterion`. The code does not depend on it (the verdict still counts the measurements).
 
     Returns
     -------
@@ -482,6 +486,8 @@ def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
     switch_temps = [s.temperature_K for s in switching if s.temperature_K is not None]
     switching_range = (min(switch_temps), max(switch_temps)) if switch_temps else None
     criteria = _criteria(model, pairs, pund_sw, pund_none, loops_sat, loops_neg, structures)
+    if identity is not None:
+        criteria += (identity_criterion([ev for ev, r in roles if r != "not_used"], identity),)
     tested_temps = {round(ev.temperature_K) for ev in switching + negatives if ev.temperature_K is not None}
     qualifiers = ("tested at one temperature only",) if len(tested_temps) == 1 else ()
     common = dict(
@@ -715,6 +721,25 @@ def _criteria(model: PhaseModel, pairs, pund_sw, pund_none, loops_sat, loops_neg
     # 5. a second polarity test: no measurement kind for SHG exists yet, so it is untested
     c5 = Criterion("second polarity test (SHG)", "untested", ())
     return (c1, c2, c3, c4, c5)
+
+
+IDENTITY_CRITERION = "identity of every measured batch confirmed"
+
+
+def identity_criterion(counted: Sequence[Evidence], identity: Mapping[int, bool]) -> Criterion:
+    """Whether the batches of the counted measurements have a confirmed identity (issue 17).
+
+    A physical result describes the compound only if the batch measured is the compound: journals ask for
+    identity and purity evidence (HRMS, elemental analysis, NMR) before physical data are discussed. The
+    criterion is ``met`` when every counted measurement comes from a confirmed batch, ``unmet`` (listing the
+    measurements on unconfirmed batches) when one does not, ``untested`` when nothing is counted yet.
+    """
+    ids = sorted({ev.measurement_id for ev in counted})
+    if not ids:
+        return Criterion(IDENTITY_CRITERION, "untested", ())
+    unconfirmed = tuple(i for i in ids if not identity.get(i))
+    return Criterion(IDENTITY_CRITERION, "unmet", unconfirmed) if unconfirmed else \
+        Criterion(IDENTITY_CRITERION, "met", tuple(ids))
 
 
 def _at(t: float | None) -> str:

@@ -69,7 +69,16 @@ def decide_for(session: Session, compound: Compound, evidence: list[rules.Eviden
     ids = {ev.measurement_id for ev in evidence}
     entries = [e for e in compound_series_entries(session, compound) if set(e["measurements"]) <= ids]
     return rules.decide(evidence, chain_ch2=chain_ch2(session, compound), rates=measured_rates(session, compound),
-                        series_tc=combine_series_tc(entries))
+                        series_tc=combine_series_tc(entries), identity=identity_of(session, ids))
+
+
+def identity_of(session: Session, measurement_ids: set[int]) -> dict[int, bool]:
+    """Measurement id -> whether its batch's identity is confirmed (the verdict's identity criterion)."""
+    if not measurement_ids:
+        return {}
+    rows = session.exec(select(Measurement.id, Batch.identity_confirmed).join(Batch, Batch.id == Measurement.batch_id)
+                        .where(Measurement.id.in_(sorted(measurement_ids)))).all()
+    return {mid: bool(ok) for mid, ok in rows}
 
 
 def batch_verdicts(session: Session, compound: Compound) -> dict[int, rules.CompoundVerdict]:

@@ -51,9 +51,10 @@ METHOD = (
     "are both shown in one scanned phase; phases delimited by paired DSC peaks, non-dispersive permittivity maxima "
     "and Pr -> 0, and only scanned intervals without a transition count as one phase."
 )
-VERSION = "verdict/2.2"  # 2.0: phase model with scanned intervals, criteria, PUND needed for the top codes;
+VERSION = "verdict/2.3"  # 2.0: phase model with scanned intervals, criteria, PUND needed for the top codes;
 # 2.1: the conclusion with its range and scanned phase; Pr -> 0 from the Pr(T) series fits;
-# 2.2: SHG, powder patterns (matches and pattern changes) and columnar lattices as criteria and conflicts
+# 2.2: SHG, powder patterns (matches and pattern changes) and columnar lattices as criteria and conflicts;
+# 2.3: the identity criterion (every counted measurement from a batch of confirmed identity)
 
 SAME_TEMPERATURE_K = phases.SAME_TEMPERATURE_K
 
@@ -377,7 +378,8 @@ def _pick_phase(model: PhaseModel, switching: Sequence[Evidence], structures: Se
 
 def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
            rates: Sequence[Mapping[str, Any]] = (), series_tc: Mapping[str, Any] | None = None,
-           pattern_changes: Sequence[Any] = (), pattern_scans: Sequence[phases.Scan] = ()) -> CompoundVerdict:
+           pattern_changes: Sequence[Any] = (), pattern_scans: Sequence[phases.Scan] = (),
+           identity: Mapping[int, bool] | None = None) -> CompoundVerdict:
     """Combine the analysed measurements of one compound into a verdict.
 
     Parameters
@@ -395,6 +397,9 @@ def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
     pattern_changes, pattern_scans : sequence, optional
         Where the powder pattern of a variable-temperature run changes (phase boundaries) and the steps where it
         did not (scanned intervals); see :func:`server.analysis.phases.build`.
+    identity : mapping, optional
+        Measurement id -> whether its batch's identity is confirmed (issue 17): adds the criterion of
+        :func:`identity_criterion`. The code does not depend on it (the verdict still counts the measurements).
 
     Returns
     -------
@@ -503,6 +508,8 @@ def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
     switch_temps = [s.temperature_K for s in switching if s.temperature_K is not None]
     switching_range = (min(switch_temps), max(switch_temps)) if switch_temps else None
     criteria = _criteria(model, pairs, pund_sw, pund_none, loops_sat, loops_neg, structures) + id_criteria
+    if identity is not None:
+        criteria += (identity_criterion([ev for ev, r in roles if r != "not_used"], identity),)
     tested_temps = {round(ev.temperature_K) for ev in switching + negatives if ev.temperature_K is not None}
     qualifiers = ("tested at one temperature only",) if len(tested_temps) == 1 else ()
     common = dict(
@@ -744,6 +751,25 @@ def _criteria(model: PhaseModel, pairs, pund_sw, pund_none, loops_sat, loops_neg
             c4 = Criterion(name4, "unmet", tr.measurement_ids if tr else prz.measurement_ids)
     # 5.- SHG, PXRD and X-ray scattering: _phase_identity
     return (c1, c2, c3, c4)
+
+
+IDENTITY_CRITERION = "identity of every measured batch confirmed"
+
+
+def identity_criterion(counted: Sequence[Evidence], identity: Mapping[int, bool]) -> Criterion:
+    """Whether the batches of the counted measurements have a confirmed identity (issue 17).
+
+    A physical result describes the compound only if the batch measured is the compound: journals ask for
+    identity and purity evidence (HRMS, elemental analysis, NMR) before physical data are discussed. The
+    criterion is ``met`` when every counted measurement comes from a confirmed batch, ``unmet`` (listing the
+    measurements on unconfirmed batches) when one does not, ``untested`` when nothing is counted yet.
+    """
+    ids = sorted({ev.measurement_id for ev in counted})
+    if not ids:
+        return Criterion(IDENTITY_CRITERION, "untested", ())
+    unconfirmed = tuple(i for i in ids if not identity.get(i))
+    return Criterion(IDENTITY_CRITERION, "unmet", unconfirmed) if unconfirmed else \
+        Criterion(IDENTITY_CRITERION, "met", tuple(ids))
 
 
 def _at(t: float | None) -> str:

@@ -17,7 +17,7 @@ from .. import access
 from ..chem.identity import formula_runs
 from ..errors import InputError
 from ..models import Batch, Compound, Measurement, utcnow
-from . import audit, stats
+from . import audit, stats, verdicts
 from .accounts import shown_name, shown_text
 from .errors import Archived
 from .registry import get_batch
@@ -148,6 +148,7 @@ def set_identity(*, session: Session, code: str, confirmed: bool, note: str,
     A member confirms on the evidence: when the stored evidence does not agree (none, or an HRMS or EA
     that fails) the note must say what the confirmation rests on; a withdrawal always gives its reason.
     Setting the state the batch already has changes nothing and writes no event. An archived batch -> 409.
+    The compound verdict is recomputed: its criterion "identity of every measured batch confirmed" follows.
     """
     batch = get_batch(session, code)
     if batch.archived:
@@ -172,6 +173,7 @@ def set_identity(*, session: Session, code: str, confirmed: bool, note: str,
     audit.record(session, actor=actor.label, action="batch.identity_confirm" if confirmed else "batch.identity_withdraw",
                  entity="batch", code=batch.code, compound_id=compound.id, before=before,
                  after={"identity_confirmed": confirmed, "note": note})
+    verdicts.recompute(session, compound, actor=actor.label)  # the verdict's identity criterion changes
     stats.refresh(session, compound)
     session.commit()
     session.refresh(batch)

@@ -68,6 +68,7 @@ def decide_for(session: Session, compound: Compound, evidence: list[rules.Eviden
     variable-temperature PXRD runs (:mod:`server.services.pattern_runs`), both limited to the series whose
     measurements are among ``evidence``, so a batch verdict uses its own series only."""
     return rules.decide(evidence, chain_ch2=chain_ch2(session, compound), rates=measured_rates(session, compound),
+                        identity=identity_of(session, {ev.measurement_id for ev in evidence}),
                         **model_inputs(session, compound, evidence))
 
 
@@ -78,6 +79,15 @@ def model_inputs(session: Session, compound: Compound, evidence: list[rules.Evid
     entries = [e for e in compound_series_entries(session, compound) if set(e["measurements"]) <= ids]
     changes, scans = pattern_runs.runs_of(session, entries)
     return {"series_tc": combine_series_tc(entries), "pattern_changes": changes, "pattern_scans": scans}
+
+
+def identity_of(session: Session, measurement_ids: set[int]) -> dict[int, bool]:
+    """Measurement id -> whether its batch's identity is confirmed (the verdict's identity criterion)."""
+    if not measurement_ids:
+        return {}
+    rows = session.exec(select(Measurement.id, Batch.identity_confirmed).join(Batch, Batch.id == Measurement.batch_id)
+                        .where(Measurement.id.in_(sorted(measurement_ids)))).all()
+    return {mid: bool(ok) for mid, ok in rows}
 
 
 def batch_verdicts(session: Session, compound: Compound) -> dict[int, rules.CompoundVerdict]:

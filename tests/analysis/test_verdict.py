@@ -406,3 +406,19 @@ def test_negative_conclusion_keeps_temperature_and_highest_field():
     assert "not switched at 300 K up to 60 kV/cm" in v.conclusion.text
     assert "in the phase scanned from 250 K to 400 K" in v.conclusion.text
     assert v.conclusion.criteria_unmet == ("switching shown by PUND",)
+
+
+def test_identity_criterion_lists_measurements_on_unconfirmed_batches_and_keeps_the_code():
+    # Issue 17: physical data on a batch whose identity nobody confirmed still count, but the verdict says so.
+    ev = [crystal(1, "polar", 300.0, "P2_1"), pund(2, "switching", 300.0), dsc(3, [], scan=(250.0, 400.0))]
+    plain = decide(ev)
+    assert "identity of every measured batch confirmed" not in {c.name for c in plain.criteria}
+    part = decide(ev, identity={1: True, 2: False, 3: True})
+    assert part.code == plain.code == "polar_switching_supported"
+    crit = {c.name: (c.state, c.measurements) for c in part.criteria}
+    assert crit["identity of every measured batch confirmed"] == ("unmet", (2,))
+    assert "identity of every measured batch confirmed" in part.conclusion.criteria_unmet
+    assert "unmet: identity of every measured batch confirmed" in part.conclusion.text
+    full = decide(ev, identity={1: True, 2: True, 3: True})
+    assert "identity of every measured batch confirmed" in full.conclusion.criteria_met
+    assert decide([], identity={}).criteria[-1].state == "untested"

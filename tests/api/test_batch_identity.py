@@ -89,3 +89,27 @@ def test_batch_page_shows_evidence_state_and_history_and_a_member_confirms(clien
     assert bad.status_code == 422 and "why" in soup(bad.text).find(role="alert").text
     compound = soup(client.get("/compounds/RVZ-00001").text)
     assert compound.select_one(f"#batches a[href='/batches/{batch}']") is not None
+
+
+def test_verdict_criterion_follows_the_identity_confirmation(client, session, batch, uploader):  # noqa: F811
+    # Issue 17: the verdict's evidence says when physical data rest on an unconfirmed identity.
+    from server.kinds import KINDS
+
+    r = post(client, batch, "pund", KINDS["pund"].example().raw, uploader, filename="pund.csv", temperature="300 K")
+    assert r.status_code == 201, r.text
+    w = _writer(session)
+    code = "RVZ-00001"
+
+    def criterion():
+        body = client.get(f"/api/v1/compounds/{code}", headers=w).json()
+        crit = {c["name"]: c for c in body["verdict_evidence"]["criteria"]}
+        return crit["identity of every measured batch confirmed"], body["verdict_evidence"]["computed"]
+
+    crit, computed = criterion()
+    assert crit["state"] == "unmet" and crit["measurements"] == [r.json()["id"]]
+    assert "unmet: identity of every measured batch confirmed" in computed["conclusion"]["text"]
+    before = computed["code"]
+    assert client.post(f"/api/v1/batches/{batch}/identity/confirm", json={"note": "1H NMR matches"},
+                       headers=w).status_code == 200
+    crit, computed = criterion()
+    assert crit["state"] == "met" and computed["code"] == before

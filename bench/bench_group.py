@@ -35,12 +35,11 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-import httpx  # noqa: E402
 import sqlalchemy as sa  # noqa: E402
 from sqlalchemy.engine import make_url  # noqa: E402
 from sqlmodel import Session  # noqa: E402
 
-from bench.bench_upload import SMILES, loop_file, post_all  # noqa: E402
+from bench.bench_upload import SMILES, loop_file, post_all, server_env, wait_healthy  # noqa: E402
 from server.db import make_engine, upgrade  # noqa: E402
 from server.models import BatchCreate, CompoundCreate  # noqa: E402
 from server.services import accounts, registry  # noqa: E402
@@ -52,27 +51,15 @@ def start_serve(db_url: str, data_dir: Path, name: str) -> tuple[subprocess.Pope
     sock.bind(("127.0.0.1", 0))
     port = sock.getsockname()[1]
     sock.close()  # `remanence serve` binds by number
-    env = {k: v for k, v in os.environ.items() if not k.startswith("REMANENCE_")}
-    env.update(REMANENCE_DATABASE_URL=db_url, REMANENCE_DATA_DIR=str(data_dir), REMANENCE_EMBEDDED_WORKER="false",
-               REMANENCE_SECRET_KEY="bench-secret-not-for-production", PYTHONPATH=str(ROOT), OMP_NUM_THREADS="1")
+    env = server_env(db_url, data_dir)
     log = data_dir / f"{name}.log"
     with open(log, "wb") as out:
         proc = subprocess.Popen([sys.executable, "-m", "server.cli", "serve", "--host", "127.0.0.1", "--port",
                                  str(port), "--log-level", "warning"], cwd=ROOT, env=env, stdout=out,
                                 stderr=subprocess.STDOUT)
     url = f"http://127.0.0.1:{port}"
-    deadline = time.monotonic() + 120
-    while time.monotonic() < deadline:
-        if proc.poll() is not None:
-            raise SystemExit(f"{name} exited: {log.read_text()[-2000:]}")
-        try:
-            if httpx.get(f"{url}/healthz", timeout=1.0).status_code == 200:
-                return proc, url
-        except httpx.TransportError:
-            pass
-        time.sleep(0.1)
-    proc.kill()
-    raise SystemExit(f"{name} did not start within 120 s")
+    wait_healthy(proc, url, log, name, timeout_s=120)
+    return proc, url
 
 
 def spread(urls: list[str], batch: str, files: list[bytes], tokens: list[str], timeout_s: float):

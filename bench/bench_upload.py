@@ -72,31 +72,43 @@ def loop_file(i: int, points_per_cycle: int) -> bytes:
     return to_csv_bytes(frame, {"temperature": "300 K", "frequency": "100 Hz", "sample": f"bench-{i}"})
 
 
+def server_env(db_url: str, data_dir: Path) -> dict[str, str]:
+    """The environment of a benchmarked server process: this one's, without its REMANENCE_ settings, plus the bench's."""
+    env = {k: v for k, v in os.environ.items() if not k.startswith("REMANENCE_")}
+    env.update(REMANENCE_DATABASE_URL=db_url, REMANENCE_DATA_DIR=str(data_dir), REMANENCE_EMBEDDED_WORKER="false",
+               REMANENCE_SECRET_KEY="bench-secret-not-for-production", PYTHONPATH=str(ROOT), OMP_NUM_THREADS="1")
+    return env
+
+
+def wait_healthy(proc: subprocess.Popen, url: str, log: Path, name: str, *, timeout_s: float) -> None:
+    """Wait until ``url``/healthz answers 200; a process that exits or never answers ends the bench with its log."""
+    deadline = time.monotonic() + timeout_s
+    while time.monotonic() < deadline:
+        if proc.poll() is not None:
+            raise SystemExit(f"{name} exited: {log.read_text()[-2000:]}")
+        try:
+            if httpx.get(f"{url}/healthz", timeout=1.0).status_code == 200:
+                return
+        except httpx.TransportError:
+            pass
+        time.sleep(0.1)
+    proc.kill()
+    raise SystemExit(f"{name} did not start within {timeout_s:g} s")
+
+
 def start_server(db_url: str, data_dir: Path) -> tuple[subprocess.Popen, str, Path]:
     sock = socket.socket(socket.AF_INET, socket.SOCK_STREAM)
     sock.bind(("127.0.0.1", 0))
     port = sock.getsockname()[1]
-    env = {k: v for k, v in os.environ.items() if not k.startswith("REMANENCE_")}
-    env.update(REMANENCE_DATABASE_URL=db_url, REMANENCE_DATA_DIR=str(data_dir), REMANENCE_EMBEDDED_WORKER="false",
-               REMANENCE_SECRET_KEY="bench-secret-not-for-production", PYTHONPATH=str(ROOT), OMP_NUM_THREADS="1")
+    env = server_env(db_url, data_dir)
     log = data_dir / "server.log"
     with open(log, "wb") as out:
         proc = subprocess.Popen([sys.executable, "-c", CHILD, str(sock.fileno())], cwd=ROOT, env=env,
                                 pass_fds=(sock.fileno(),), stdout=out, stderr=subprocess.STDOUT)
     sock.close()
     url = f"http://127.0.0.1:{port}"
-    deadline = time.monotonic() + 60
-    while time.monotonic() < deadline:
-        if proc.poll() is not None:
-            raise SystemExit(f"server exited: {log.read_text()[-2000:]}")
-        try:
-            if httpx.get(f"{url}/healthz", timeout=1.0).status_code == 200:
-                return proc, url, log
-        except httpx.TransportError:
-            pass
-        time.sleep(0.1)
-    proc.kill()
-    raise SystemExit("server did not start within 60 s")
+    wait_healthy(proc, url, log, "server", timeout_s=60)
+    return proc, url, log
 
 
 def post_all(url: str, batch: str, files: list[bytes], tokens: list[str], timeout_s: float) -> tuple[float, list]:

@@ -61,7 +61,7 @@ def comparison(session: Session, codes: list[str], kind: str, *, actor: Optional
         if not live:
             missing.append(code)
             continue
-        m = live[-1]
+        m = measurements.newest(live)
         # apparent values (server/merit.py: by the loop's own shape or by PUND of its sample) say so
         shown = merit.apparent_keys(m, samples.apparent_reason(session, m))
         plot = figures_vector.measurement_plot(session, m)

@@ -373,6 +373,15 @@ def list_measurements(
     return list(rows), session.exec(count).one()
 
 
+def newest(ms: Sequence[Measurement]) -> Optional[Measurement]:
+    """The most recently stored of ``ms`` (by ``created_at``, then id), whatever order they come in.
+
+    Lists of measurements come newest-first (:func:`list_measurements`) or oldest-first (a compound's
+    plots), so "the latest" is never taken by position.
+    """
+    return max(ms, key=lambda m: (m.created_at, m.id)) if ms else None
+
+
 def refresh_derived(session: Session, changed: Sequence[Measurement], *, actor: str) -> None:
     """The one path after measurements are stored, archived, restored or re-analysed.
 

@@ -36,22 +36,40 @@ def _settings() -> Settings:
     return Settings.from_env()
 
 
-def cmd_init(args: argparse.Namespace) -> int:
-    from .db import upgrade
-
-    from .db import make_engine
+def _prepare_database(settings: Settings):
+    """Upgrade the schema, then rebuild stored figures that follow an older rule (``services/stats.py``:
+    once, then never again); returns the engine for the caller to use and dispose."""
+    from .db import make_engine, upgrade
     from .services import stats
 
-    settings = _settings()
     upgrade(settings.database_url)
     engine = make_engine(settings.database_url)
     with Session(engine) as session:
-        if stats.missing(session):
-            print(f"rebuilt the figures of {stats.refresh_all(session)} compound(s)")
+        n = stats.ensure_current(session)
+    if n:
+        print(f"rebuilt the figures of {n} compound(s) under {stats.RULE}")
+    return engine
+
+
+def cmd_init(args: argparse.Namespace) -> int:
+    settings = _settings()
+    engine = _prepare_database(settings)
     if engine.dialect.name == "postgresql":
         _report_cartridge(engine)
     engine.dispose()
     print(f"database ready: {_display_url(settings.database_url)}")
+    return 0
+
+
+def cmd_rebuild_stats(args: argparse.Namespace) -> int:
+    from .db import make_engine
+    from .services import stats
+
+    engine = make_engine(_settings().database_url)
+    with Session(engine) as session:
+        n = stats.refresh_all(session)
+    engine.dispose()
+    print(f"rebuilt the figures of {n} compound(s) under {stats.RULE}")
     return 0
 
 
@@ -81,11 +99,10 @@ def cmd_serve(args: argparse.Namespace) -> int:
     import uvicorn
 
     from .app import create_app
-    from .db import upgrade
     from .serving import uvicorn_config
 
     settings = _settings()
-    upgrade(settings.database_url)
+    _prepare_database(settings).dispose()
     app = create_app(settings)
     print(f"Remanence at http://{args.host}:{args.port}", flush=True)
     uvicorn.Server(uvicorn_config(app, settings, host=args.host, port=args.port, log_level=args.log_level)).run()
@@ -421,6 +438,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--dry-run", action="store_true", help="list the changes, write nothing")
     p.set_defaults(func=cmd_rematch_scaffolds)
 
+    sub.add_parser("rebuild-stats", help="recompute every compound's stored figures (largest Pr, counts, "
+                   "barriers) from its live evidence").set_defaults(func=cmd_rebuild_stats)
     p = sub.add_parser("worker", help="run background jobs (computed estimates) until stopped")
     p.add_argument("--name", help="worker name shown on the queue page (default host:pid)")
     p.add_argument("--once", action="store_true", help="run at most one job, then exit")

@@ -12,6 +12,7 @@ from server.cli import main
 from server.db import make_engine
 from server.models import ApiToken, User
 from server.security import hash_token, verify_password
+from tests.web.test_apparent_loops import pellet  # noqa: F401 - the fixture: one pellet, a leaky loop PUND contradicts
 
 
 @pytest.fixture
@@ -101,3 +102,40 @@ def test_rematch_scaffolds_command_dry_run_then_apply(env, client, session, caps
     assert "1 compound(s) filed under a scaffold" in capsys.readouterr().out
     assert client.get(f"/api/v1/compounds/{code}", headers=h).json()["scaffold"] == "TB-SE"
     assert main(["rematch-scaffolds"]) == 0 and "0 compound(s) filed" in capsys.readouterr().out
+
+
+def test_init_rebuilds_stale_largest_pr_once(env, client, session, pellet, capsys):
+    """A "largest Pr" stored before apparent loops were left out (issue 22 item 2): the leaky loop's
+    Pr, which PUND on the same pellet contradicts, sits in CompoundStats from an older rule. ``init``
+    rebuilds it once to the good loop's value; a second ``init`` rebuilds nothing."""
+    from server.models import Compound, CompoundStats, SiteSetting
+    from server.services import stats
+
+    code, good, leaky, _pund, _lossy = pellet
+    cid = session.exec(select(Compound).where(Compound.code == code)).one().id
+    row = session.get(CompoundStats, cid)
+    row.pr_max_uC_cm2, row.pr_max_t_K, row.pr_max_measurement_id = leaky["results"]["pr_uC_cm2"], 320.0, leaky["id"]
+    session.add(row)
+    old = session.get(SiteSetting, stats.RULE_KEY)
+    if old is not None:
+        session.delete(old)  # a database from before the rule was recorded
+    session.commit()
+    assert leaky["results"]["pr_uC_cm2"] > good["results"]["pr_uC_cm2"]
+    assert main(["init"]) == 0
+    assert f"rebuilt the figures of 1 compound(s) under {stats.RULE}" in capsys.readouterr().out
+    session.expire_all()
+    row = session.get(CompoundStats, cid)
+    assert (row.pr_max_measurement_id, row.pr_max_t_K) == (good["id"], 300)
+    assert row.pr_max_uC_cm2 == pytest.approx(good["results"]["pr_uC_cm2"])
+    assert stats.stored_rule(session) == stats.RULE
+    # idempotent: the rows follow the rule now, so nothing is rebuilt, even a value changed by hand
+    row.pr_max_uC_cm2 = 99.0
+    session.add(row)
+    session.commit()
+    assert main(["init"]) == 0 and "rebuilt" not in capsys.readouterr().out
+    session.expire_all()
+    assert session.get(CompoundStats, cid).pr_max_uC_cm2 == 99.0
+    # the explicit command rebuilds whatever the record says
+    assert main(["rebuild-stats"]) == 0 and "rebuilt the figures of 1 compound(s)" in capsys.readouterr().out
+    session.expire_all()
+    assert session.get(CompoundStats, cid).pr_max_uC_cm2 == pytest.approx(good["results"]["pr_uC_cm2"])

@@ -3,6 +3,11 @@
 ``refresh(session, compound)`` recomputes one compound's row from its batches,
 measurements and barriers (a few small queries); services call it before they commit,
 so the registry table and the explorer never read stale figures.
+
+Rows stored under an older rule (say, a "largest Pr" taken before apparent loops were left out,
+``server/merit.py``) are rebuilt once: the database records the :data:`RULE` its rows were last
+built under, and :func:`ensure_current` (run by ``remanence init`` and ``remanence serve``) rebuilds
+every row when that differs. ``remanence rebuild-stats`` rebuilds them whatever the record says.
 """
 
 from __future__ import annotations
@@ -15,10 +20,17 @@ from sqlmodel import Session, select
 from .. import merit
 from ..kinds import KINDS
 from ..models import (BarrierEstimate, Batch, Compound, CompoundPlan, CompoundSideChain, CompoundStats, Measurement,
-                      live_measurement)
+                      SiteSetting, live_measurement, utcnow)
 from ..models.planning import life_state
 
 MEASURED_METHODS = ("coalescence", "eyring")  # barriers measured by dynamic NMR
+
+#: The rule the stored rows follow; change it whenever :func:`refresh` (or a kind's ``stats``) would
+#: fill a row differently from the same evidence, so stored rows are rebuilt once. History:
+#: ``stats/1`` took loops' numbers whatever their shape; ``stats/2`` leaves apparent loops out of
+#: every best value (``server/merit.py``: leaky and lossy loops, and loops PUND contradicts).
+RULE = "stats/2"
+RULE_KEY = "stats_rule"
 
 
 def _max(values: Iterable[Optional[float]]) -> Optional[float]:
@@ -95,13 +107,31 @@ def refresh(session: Session, compound: Compound) -> CompoundStats:
 
 
 def refresh_all(session: Session) -> int:
-    """Rebuild every compound's stats (after an upgrade, or a restore); returns how many."""
+    """Rebuild every compound's stats (after an upgrade, or a restore), record that they follow
+    :data:`RULE`, and commit; returns how many."""
     n = 0
     for compound in session.exec(select(Compound).order_by(Compound.id)).all():
         refresh(session, compound)
         n += 1
+    row = session.get(SiteSetting, RULE_KEY) or SiteSetting(key=RULE_KEY)
+    row.value, row.updated_by, row.updated_at = RULE, "stats rebuild", utcnow()
+    session.add(row)
     session.commit()
     return n
+
+
+def stored_rule(session: Session) -> Optional[str]:
+    """The rule the stored rows were last rebuilt under; None for a database from before the record."""
+    row = session.get(SiteSetting, RULE_KEY)
+    return row.value if row is not None else None
+
+
+def ensure_current(session: Session) -> int:
+    """Rebuild every row once when some are missing or were built under another rule; returns how many
+    were rebuilt (0 when nothing was stale, so running it again changes nothing)."""
+    if stored_rule(session) == RULE and not missing(session):
+        return 0
+    return refresh_all(session)
 
 
 def missing(session: Session) -> int:

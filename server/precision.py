@@ -7,6 +7,7 @@ paper exports print numbers through these functions.
 from __future__ import annotations
 
 import math
+import re
 from typing import Any, Optional
 
 #: Significant digits an uncertainty is quoted with (JCGM 100:2008, "Guide to the expression of
@@ -68,3 +69,64 @@ def time_unit(value_s: float) -> tuple[float, str]:
         if a >= 0.1 * scale:
             return factor, unit
     return _TIME_UNITS[-1][1], _TIME_UNITS[-1][2]
+
+
+#: The space between the factors of a unit on a page: U+202F NARROW NO-BREAK SPACE, a thin space the
+#: line never breaks at (SI Brochure, 9th ed. (2019), 5.4.6: a space or a half-high dot between factors).
+UNIT_SPACE = "\u202f"
+_SUPERSCRIPT = str.maketrans("0123456789-", "⁰¹²³⁴⁵⁶⁷⁸⁹⁻")
+_PLAIN = str.maketrans("⁰¹²³⁴⁵⁶⁷⁸⁹⁻", "0123456789-")
+_FACTOR = re.compile(r"(?P<base>[^\s^⁰¹²³⁴⁵⁶⁷⁸⁹⁻]+)(?:\^(?P<caret>[+-]?\d+)|(?P<sup>[⁻⁰¹²³⁴⁵⁶⁷⁸⁹]+))?")
+#: Unit words printed as the trade writes them.
+_WORDS = {"uC": "µC", "um": "µm", "us": "µs", "deg": "°"}
+
+
+def _factors(text: str) -> list[tuple[str, int]]:
+    out = []
+    for token in text.replace("·", " ").split():
+        m = _FACTOR.fullmatch(token)
+        if m is None:
+            raise ValueError(token)
+        exp = m["caret"] or (m["sup"].translate(_PLAIN) if m["sup"] else "1")
+        out.append((_WORDS.get(m["base"], m["base"]), int(exp)))
+    return out
+
+
+def trade_unit(unit: str, space: str = UNIT_SPACE) -> str:
+    """A unit as the trade prints it: a quotient as factors with negative superscript powers, joined by
+    a thin space (``space``; a plain one for figure fonts), the minus a true superscript minus.
+
+    ``µC/cm²`` -> ``µC cm⁻²``, ``kV/cm`` -> ``kV cm⁻¹``, ``J/(mol K)`` -> ``J mol⁻¹ K⁻¹``, ``1/nm`` ->
+    ``nm⁻¹``, ``s^-1`` -> ``s⁻¹``; units without a quotient or power (``K``, ``Å``, ``%``) and text that is
+    not a unit pass unchanged (IUPAC Green Book, 3rd ed. (2007), 1.3; SI Brochure, 9th ed., 5.4.6).
+    """
+    text = (unit or "").strip()
+    if not text or text.count("/") > 1 or not re.search(r"[/^]", text):
+        return _WORDS.get(text, text)
+    num, _, den = text.partition("/")
+    if "(" in num:
+        return text
+    den = den.strip()
+    if den.startswith("(") and den.endswith(")"):
+        den = den[1:-1]
+    try:
+        factors = [f for f in _factors(num) if f[0] != "1"] + [(b, -e) for b, e in _factors(den)]
+    except ValueError:
+        return text
+    if not factors:
+        return text
+    return space.join(b + (str(e).translate(_SUPERSCRIPT) if e != 1 else "") for b, e in factors)
+
+
+#: A unit in parentheses after a space (an axis title's ``(µC/cm²)``), or a quotient unit after a number
+#: (``ΔH = 5.6 J/g``); quotients elsewhere (``T/Tc``, ``ln(k/T)``) are quantities, not units.
+_TEXT_UNIT = re.compile(r"(?:(?<=\s)|^)\(((?:[^()]|\([^()]*\))+)\)|(?<=\d )([A-Za-zµ]+[²³]?/[A-Za-zµ]+[²³]?)(?![\w/])")
+
+
+def trade_text(text: str, space: str = UNIT_SPACE) -> str:
+    """Units inside a title or a label printed by :func:`trade_unit`: ``P (µC/cm²)`` -> ``P (µC cm⁻²)``,
+    ``ΔS (J/(mol K))`` -> ``ΔS (J mol⁻¹ K⁻¹)``, ``ΔH = 5.6 J/g`` -> ``ΔH = 5.6 J g⁻¹``; ``T/Tc`` is kept."""
+    def repl(m: re.Match) -> str:
+        return f"({trade_unit(m[1], space)})" if m[1] is not None else trade_unit(m[2], space)
+
+    return _TEXT_UNIT.sub(repl, text or "")

@@ -34,6 +34,29 @@ def test_result_rows_fold_the_error_into_the_value_and_scale_times():
                          "tau_s": 2.0e-5, "tau_err_s": 3.1e-7})
     assert len(rows) == 3  # the two error rows are folded into their values
     (_, ea_unit, ea, _, ea_err), (_, pw_unit, pw, _, _), (_, tau_unit, tau, _, tau_err) = rows
-    assert (ea, ea_err, ea_unit) == ("13.8234", "0.0077", "kJ/mol")
+    assert (ea, ea_err, ea_unit) == ("13.8234", "0.0077", "kJ\u202fmol⁻¹")
     assert pw_unit == "ms" and abs(pw - 0.9463) < 1e-12
     assert (tau, tau_err, tau_unit) == ("20.00", "0.31", "µs")
+
+
+def test_units_print_as_the_trade_writes_them():
+    """Quotients as negative powers, factors apart by a thin space (IUPAC Green Book, 3rd ed. (2007), 1.3
+    and 2.x tables: "µC cm⁻²"; SI Brochure, 9th ed. (2019), 5.4.6), the minus a true superscript minus."""
+    from server.precision import UNIT_SPACE, trade_text, trade_unit
+
+    t = UNIT_SPACE
+    assert UNIT_SPACE == "\u202f"  # narrow no-break: a unit is never split over two lines
+    assert trade_unit("µC/cm²") == trade_unit("uC/cm^2") == f"µC{t}cm⁻²"
+    assert trade_unit("kV/cm") == f"kV{t}cm⁻¹"
+    assert trade_unit("J/(mol K)") == f"J{t}mol⁻¹{t}K⁻¹" and trade_unit("cal/(mol K)") == f"cal{t}mol⁻¹{t}K⁻¹"
+    assert trade_unit("g/cm³") == f"g{t}cm⁻³" and trade_unit("1/nm") == "nm⁻¹" and trade_unit("s^-1") == "s⁻¹"
+    assert "−" not in trade_unit("kV/cm") and "⁻" in trade_unit("kV/cm")  # superscript minus, not a dash
+    for plain in ("K", "Å", "Å³", "%", "ppm", "", "relative permittivity, 1"):
+        assert trade_unit(plain) == plain
+    assert trade_unit("deg") == "°"
+    # in titles and labels: units in parentheses and after numbers, never quantities such as T/Tc
+    assert trade_text("P (µC/cm²)", " ") == "P (µC cm⁻²)"
+    assert trade_text("ΔS (J/(mol K))") == f"ΔS (J{t}mol⁻¹{t}K⁻¹)"
+    assert trade_text("heat flow (W/g), endo up", " ") == "heat flow (W g⁻¹), endo up"
+    assert trade_text("ΔH = 5.6 J/g", " ") == "ΔH = 5.6 J g⁻¹"
+    assert trade_text("T/Tc (1)") == "T/Tc (1)" and trade_text("ln(k/T)") == "ln(k/T)"

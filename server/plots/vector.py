@@ -36,6 +36,8 @@ from matplotlib.figure import Figure  # noqa: E402
 from matplotlib.transforms import blended_transform_factory  # noqa: E402
 from matplotlib.ticker import FormatStrFormatter, NullFormatter  # noqa: E402
 
+from ..precision import trade_text  # noqa: E402
+
 #: Single-column figure width (cm); common practice for two-column journals.
 COLUMN_WIDTH_CM = 8.5
 CM = 1 / 2.54
@@ -62,15 +64,6 @@ STYLE = {
 # Units as the trade writes them: (pattern, replacement), applied in order.
 _UNIT_WORDS = (
     (r"\buC\b", "µC"),
-    (r"µC/cm²", "µC cm⁻²"),
-    (r"kV/cm", "kV cm⁻¹"),
-    (r"W/g", "W g⁻¹"),
-    (r"J/g", "J g⁻¹"),
-    (r"kcal/mol", "kcal mol⁻¹"),
-    (r"kJ/mol", "kJ mol⁻¹"),
-    (r"\(1/K\)", "(K⁻¹)"),
-    (r"s\^-1", "s⁻¹"),
-    (r"K\^-1", "K⁻¹"),
     (r"ε''", "ε″"),
     (r"ε'", "ε′"),
     (r"\s*\(relative permittivity, 1\)", ""),
@@ -83,7 +76,8 @@ def publication_label(title: str) -> str:
     out = re.sub(r"<[^>]+>", "", title or "")
     for pattern, repl in _UNIT_WORDS:
         out = re.sub(pattern, repl, out)
-    return out.strip()
+    # the unit itself by the one rule (server/precision.py), with a plain space: figure fonts lack U+202F
+    return trade_text(out.strip(), " ")
 
 
 _DASH = {"dot": ":", "dash": "--", "dashdot": "-.", "longdash": "--", "solid": "-", None: "-"}

@@ -7,7 +7,7 @@ from typing import Any
 from .. import verdict_codes
 import math
 
-from ..precision import significant, time_unit, with_uncertainty
+from ..precision import significant, time_unit, trade_unit, with_uncertainty
 
 # Suffix of a key (after the quantity) -> unit as printed. Longest suffixes first.
 UNIT_SUFFIXES: tuple[tuple[str, str], ...] = (
@@ -45,14 +45,15 @@ def _result_key(key: str, kind: str | None):
 
 
 def split_key(key: str, kind: str | None = None) -> tuple[str, str]:
-    """('pr_pos_uC_cm2', 'pe_loop') -> ('Pr+', 'µC/cm²'): the kind's own label, else the unit read off the
-    key's suffix (keys without a unit suffix keep an empty unit)."""
+    """('pr_pos_uC_cm2', 'pe_loop') -> ('Pr+', 'µC cm⁻²'): the kind's own label, else the unit read off the
+    key's suffix (keys without a unit suffix keep an empty unit); the unit as the trade prints it
+    (:func:`server.precision.trade_unit`)."""
     rk = _result_key(key, kind)
     if rk is not None:
-        return rk.label, rk.unit
+        return rk.label, trade_unit(rk.unit)
     for suffix, unit in UNIT_SUFFIXES:
         if key.endswith(suffix) and len(key) > len(suffix):
-            return key[: -len(suffix)].replace("_", " "), unit
+            return key[: -len(suffix)].replace("_", " "), trade_unit(unit)
     return key.replace("_", " "), ""
 
 
@@ -124,7 +125,7 @@ def summary(kind: str, results: dict[str, Any], apparent_keys: Any = None) -> st
         if isinstance(value, list):
             parts.append(f"{len(value)} {label}")
         elif isinstance(value, (int, float)) and not isinstance(value, bool):
-            parts.append(f"{label} {number(value, rk.digits)}" + (f" {rk.unit}" if rk.unit else ""))
+            parts.append(f"{label} {number(value, rk.digits)}" + (f" {trade_unit(rk.unit)}" if rk.unit else ""))
         else:
             parts.append(str(value))
     return ", ".join(parts)
@@ -136,6 +137,7 @@ def install(env) -> None:  # noqa: ANN001 - a jinja2 Environment
     from ..services.accounts import shown_name, shown_text
 
     env.filters["number"] = number
+    env.filters["unit"] = trade_unit  # {{ rk.unit | unit }}: µC cm⁻², J mol⁻¹ K⁻¹ (server/precision.py)
     env.filters["who"] = shown_name  # {{ label | who(actor) }}: names hidden from upload tokens and visitors
     env.filters["unquoted"] = shown_text  # {{ message | unquoted(actor) }}: quoted labels likewise
     env.filters["scalar_items"] = scalar_items

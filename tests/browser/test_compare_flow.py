@@ -32,7 +32,7 @@ def test_compare_page_shows_one_trace_per_compound(page: Page, live, login):
     expect(plot.locator(".scatterlayer .trace")).to_have_count(3)
     rows = page.locator("#compare-table tbody tr")
     expect(rows).to_have_count(3)
-    pr_column = page.locator("#compare-table thead th").all_inner_texts().index("Pr (µC/cm²)")
+    pr_column = page.locator("#compare-table thead th").all_inner_texts().index("Pr (µC\u202fcm⁻²)")  # the trade unit (server/precision.py)
     prs = [float(rows.nth(i).locator("td").nth(pr_column).inner_text()) for i in range(3)]
     # the loops as built; the slanter Pr = 4 loop reads about 3 % low from the smoothed cycle
     assert prs == pytest.approx([8.0, 6.0, 4.0], rel=0.05)

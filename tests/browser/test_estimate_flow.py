@@ -113,8 +113,8 @@ def test_estimate_progress_bar_moves_to_done(page: Page, live, login, start_work
     expect(panel).to_have_attribute("data-state", "done")
     expect(panel.locator("progress")).to_have_attribute("value", "1.0")
     result = panel.locator("p", has_text="Barrier")
-    expect(result).to_contain_text(re.compile(r"Barrier \d+(\.\d+)? kcal/mol"))
-    shown_kcal_mol = float(re.search(r"Barrier (\d+(?:\.\d+)?) kcal/mol", result.inner_text()).group(1))
+    expect(result).to_contain_text(re.compile(r"Barrier \d+(\.\d+)? kcal\u202fmol⁻¹"))
+    shown_kcal_mol = float(re.search(r"Barrier (\d+(?:\.\d+)?) kcal\u202fmol⁻¹", result.inner_text()).group(1))
     with live.session() as s:
         stored = s.exec(select(BarrierEstimate).where(BarrierEstimate.job_id == job_id)).one()
     assert stored.method == "gfn2-xtb"

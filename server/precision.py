@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import math
 import re
+from collections.abc import Mapping
 from typing import Any, Optional
 
 #: Significant digits an uncertainty is quoted with (JCGM 100:2008, "Guide to the expression of
@@ -55,6 +56,28 @@ def with_uncertainty(value: Optional[float], err: Optional[float], digits: int =
     step = 10.0 ** exponent
     value_r = round(value / step) * step
     return f"{value_r:.{decimals}f}", f"{round(err / step) * step:.{decimals}f}"
+
+
+def error_key(key: str, results: Mapping[str, Any]) -> Optional[str]:
+    """The key of ``key``'s standard error in ``results``, by the house naming (``ea_kJ_mol`` ->
+    ``ea_err_kJ_mol``, ``eps_inf`` -> ``eps_inf_err``), if present."""
+    cuts = [i for i, ch in enumerate(key) if ch == "_"] + [len(key)]
+    for i in cuts:
+        cand = key[:i] + "_err" + key[i:]
+        if cand in results and cand != key:
+            return cand
+    return None
+
+
+def value_text(value: Any, err: Any = None, digits: int = 4) -> str:
+    """``value ± err`` with the digits following the uncertainty (:func:`with_uncertainty`,
+    ``19.1934, 0.2712`` -> ``19.19 ± 0.27``); without a usable uncertainty, ``digits`` significant digits."""
+    usable = (isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
+              and isinstance(err, (int, float)) and not isinstance(err, bool) and math.isfinite(err) and err > 0)
+    if not usable:
+        return significant(value, digits)
+    text, err_text = with_uncertainty(float(value), float(err))
+    return f"{text} ± {err_text}"
 
 
 #: Sub-second times printed in the unit the trade uses (a 0.95 ms pulse, not 9.463e-04 s).

@@ -28,6 +28,7 @@ import numpy as np
 import plotly.graph_objects as go
 
 from ..ingest.columns import BY_NAME as QUANTITY_BY_NAME
+from ..precision import UNIT_SPACE, error_key, trade_unit, value_text
 from ..ingest.conditions import FORM_FIELDS, Conditions
 from ..ingest.table import read_table, to_csv_bytes
 
@@ -196,6 +197,25 @@ class Kind:
         """The summary keys present in ``results``, with their labels (the web formats the line)."""
         keys = {r.key: r for r in self.results}
         return [(keys[k], results[k]) for k in self.summary_keys if results.get(k) is not None]
+
+    def summary_text(self, results: Mapping[str, Any], apparent_keys: Any = None, space: str = UNIT_SPACE) -> str:
+        """The one-line summary, one home for pages and the report pack: each summary key as ``label value
+        unit``, a value with its standard error beside it as ``value ± error`` (digits follow the error,
+        JCGM 100:2008, 7.2.6), units by :func:`server.precision.trade_unit` (``space`` between their
+        factors); apparent values (the analysis's list, or ``apparent_keys`` from ``server/merit.py``)
+        say so, lists are counted."""
+        apparent = set(results.get("apparent") or ()) | set(apparent_keys or ())
+        parts = []
+        for rk, value in self.summary_items(results):
+            label = f"apparent {rk.label}" if rk.key in apparent else rk.label
+            if isinstance(value, list):
+                parts.append(f"{len(value)} {label}")
+            elif isinstance(value, (int, float)) and not isinstance(value, bool):
+                text = value_text(value, results.get(error_key(rk.key, results) or ""), rk.digits)
+                parts.append(f"{label} {text}" + (f" {trade_unit(rk.unit, space)}" if rk.unit else ""))
+            else:
+                parts.append(str(value))
+        return ", ".join(parts)
 
     def readme_row(self) -> str:
         """This kind's row of the README's table of upload kinds."""

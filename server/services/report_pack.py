@@ -46,7 +46,7 @@ from ..models import Compound, RawFile  # noqa: E402
 from ..package_files import templates_dir  # noqa: E402
 from ..plots import summary as summary_plots  # noqa: E402
 from ..plots import vector  # noqa: E402
-from ..precision import significant, with_uncertainty  # noqa: E402
+from ..precision import error_key, significant, value_text, with_uncertainty  # noqa: E402
 from ..verdict_codes import LABELS  # noqa: E402
 from . import barriers, figures_vector, measurements, registry, verdicts  # noqa: E402
 from .errors import Forbidden  # noqa: E402
@@ -94,7 +94,8 @@ def measurement_table(items: list[dict[str, Any]]) -> bytes:
                (m["verdict"] or "").replace("_", " "), m["analysis_version"]]
         for kind, key, rk in columns:
             value = m["results"].get(key) if m["kind"] == kind else None
-            text = significant(value, rk.digits) if isinstance(value, (int, float)) else ""
+            err = m["results"].get(error_key(key, m["results"]) or "") if m["kind"] == kind else None
+            text = value_text(value, err, rk.digits) if isinstance(value, (int, float)) else ""
             row.append(f"{text} (apparent)" if text and key in apparent else text)
         rows.append(row)
     return _csv(header, rows)
@@ -119,22 +120,10 @@ def transition_table(rows: list[dict[str, Any]]) -> bytes:
 
 
 def _summary_line(kind_name: str, results: dict[str, Any]) -> str:
-    """A measurement's summary keys (its kind's ``summary_items``) as ``label value unit``, apparent
-    values labelled so; lists are counted."""
+    """A measurement's one-line summary (``Kind.summary_text``, value ± error where there is one), with
+    plain spaces in units: the PDF's font has no narrow no-break space."""
     kind = KINDS.get(kind_name)
-    if kind is None:
-        return ""
-    apparent = set(results.get("apparent") or ())
-    parts = []
-    for rk, value in kind.summary_items(results):
-        label = f"apparent {rk.label}" if rk.key in apparent else rk.label
-        if isinstance(value, list):
-            parts.append(f"{len(value)} {label}")
-        elif isinstance(value, (int, float)) and not isinstance(value, bool):
-            parts.append(f"{label} {significant(value, rk.digits)}" + (f" {rk.unit}" if rk.unit else ""))
-        else:
-            parts.append(str(value))
-    return ", ".join(parts)
+    return kind.summary_text(results, space=" ") if kind is not None else ""
 
 
 def _identity(c: Any) -> list[tuple[str, str]]:

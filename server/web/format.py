@@ -7,7 +7,7 @@ from typing import Any
 from .. import verdict_codes
 import math
 
-from ..precision import significant, time_unit, trade_unit, with_uncertainty
+from ..precision import error_key, significant, time_unit, trade_unit, with_uncertainty
 
 # Suffix of a key (after the quantity) -> unit as printed. Longest suffixes first.
 UNIT_SUFFIXES: tuple[tuple[str, str], ...] = (
@@ -67,17 +67,6 @@ def number(value: Any, digits: int = 4) -> str:
     return significant(value, digits)
 
 
-def error_key(key: str, results: dict[str, Any]) -> str | None:
-    """The key of ``key``'s standard error in ``results``, by the house naming (``ea_kJ_mol`` ->
-    ``ea_err_kJ_mol``, ``eps_inf`` -> ``eps_inf_err``), if present."""
-    cuts = [i for i, ch in enumerate(key) if ch == "_"] + [len(key)]
-    for i in cuts:
-        cand = key[:i] + "_err" + key[i:]
-        if cand in results and cand != key:
-            return cand
-    return None
-
-
 def _finite(value: Any) -> bool:
     return isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
 
@@ -112,25 +101,11 @@ def scalar_items(results: dict[str, Any], kind: str | None = None,
 
 
 def summary(kind: str, results: dict[str, Any], apparent_keys: Any = None) -> str:
-    """The one-line summary of a measurement: its kind's summary keys, labelled (lists are counted);
-    apparent values (the analysis's list, or ``apparent_keys`` from ``server/merit.py``) say so."""
+    """The one-line summary of a measurement (:meth:`server.kinds.base.Kind.summary_text`): its kind's
+    summary keys, labelled, values with an uncertainty as value ± error, units as the trade prints them."""
     from ..kinds import KINDS
 
-    if kind not in KINDS:
-        return ""
-    apparent = set(results.get("apparent") or ()) | set(apparent_keys or ())
-    parts = []
-    for rk, value in KINDS[kind].summary_items(results):
-        label = f"apparent {rk.label}" if rk.key in apparent else rk.label
-        if isinstance(value, list):
-            parts.append(f"{len(value)} {label}")
-        elif isinstance(value, (int, float)) and not isinstance(value, bool):
-            parts.append(f"{label} {number(value, rk.digits)}" + (f" {trade_unit(rk.unit)}" if rk.unit else ""))
-        else:
-            parts.append(str(value))
-    return ", ".join(parts)
-
-
+    return KINDS[kind].summary_text(results, apparent_keys) if kind in KINDS else ""
 
 
 def install(env) -> None:  # noqa: ANN001 - a jinja2 Environment

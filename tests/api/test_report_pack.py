@@ -6,6 +6,7 @@ import csv
 import hashlib
 import io
 import json
+import re
 import zipfile
 
 import pytest
@@ -96,6 +97,15 @@ def test_report_pack_parts(client, writer, stocked):
                                                               headers=writer).json()["verdict"]
     assert len(page.find(id="merit").find_all("tr")) == 1 + len(stocked)
     assert pdf_pages(files["summary.pdf"]) == 1
+    # a value with a standard error is printed as value ± error, the value to the error's last digit
+    # (JCGM 100:2008, 7.2.6): the Eyring fit's ΔG‡(298 K) of the example rate table, in the table and the summary
+    nmr = next(r for r in rows if r["kind"] == "nmr_rates")
+    dg = nmr["nmr_rates ΔG‡(298 K) (kcal/mol)"]
+    value, err = re.fullmatch(r"(\d+\.?\d*) ± (\d+\.?\d*)", dg).groups()
+    assert len(err.replace(".", "").lstrip("0")) == 2 and len(value.partition(".")[2]) == len(err.partition(".")[2])
+    assert abs(float(value) - 19.19) < 0.3  # dH 78.5 kJ/mol, dS -6 J/(mol K) (Eyring 1935; the kind's example)
+    merit_rows = [tr.get_text(" ", strip=True) for tr in page.find(id="merit").find_all("tr")]
+    assert any(f"ΔG‡(298 K) {value} ± {err} kcal mol⁻¹" in t for t in merit_rows), merit_rows
 
 
 def test_report_pack_of_an_embargoed_compound_goes_only_to_members(client, session, writer, stocked):

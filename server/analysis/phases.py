@@ -139,7 +139,8 @@ class PhaseTransition(Result):
     t_pattern_change_K: float | None = None
 
     def label(self) -> str:
-        names = {"dsc": "DSC", "dielectric": "permittivity", "series": "Pr -> 0", "pxrd": "PXRD pattern change"}
+        names = {"dsc": "DSC", "dielectric": "permittivity", "series": "Pr -> 0", "pxrd": "PXRD pattern change",
+                 "shg": "SHG vanishes"}
         text = f"{self.t_K:.0f} K ({', '.join(names.get(s, s) for s in self.sources)}"
         if self.hysteresis_K is not None:
             text += f", cooling {self.t_cooling_K:.0f} K, hysteresis {self.hysteresis_K:.0f} K"
@@ -280,6 +281,16 @@ def _covered(scans: Sequence[Scan], lo: float, hi: float, kinds: tuple[str, ...]
 # ----------------------------------------------------------------------------- the model
 
 
+@dataclass(frozen=True)
+class ShgVanishing:
+    """Where an SHG run's signal vanishes on heating (:mod:`server.analysis.shg`): between the last active
+    and the first silent point, ``t_K`` ± ``resolution_K`` (half the step)."""
+
+    measurement_id: int
+    t_K: float
+    resolution_K: float = 0.0
+
+
 def build(
     *,
     dsc_peaks: Sequence[ThermalPeak] = (),
@@ -290,6 +301,7 @@ def build(
     chain_ch2: int | None = None,
     series_tc: PrVanishing | None = None,
     pattern_changes: Sequence[Any] = (),
+    shg_vanishing: Sequence[ShgVanishing] = (),
 ) -> PhaseModel:
     """Transitions from all evidence, classed, and the phases between them.
 
@@ -315,6 +327,11 @@ def build(
         :data:`PAIR_MAX_HYSTERESIS_K` below a heating temperature); else it is a transition of its own at
         the midpoint. The steps of a run where nothing changed come in ``scans`` (kind ``"pxrd"``,
         :func:`pattern_scans`).
+    shg_vanishing : where an SHG signal vanishes on heating. Second-harmonic generation needs a
+        non-centrosymmetric structure, so a signal lost on heating marks the loss of the acentric (polar)
+        phase, a phase boundary (Kurtz and Perry, J. Appl. Phys. 39, 3798 (1968); Dougherty and Kurtz,
+        J. Appl. Cryst. 9, 145 (1976), SHG as a probe of ferroelectric transitions). It joins another
+        observation within :data:`SAME_TEMPERATURE_K` or the run's step, else stands as a transition of its own.
     """
     all_scans = list(scans) + series_scans(loops)
     prz = series_tc if series_tc is not None else pr_vanishing(loops)
@@ -348,7 +365,11 @@ def build(
             if e.get("prz") is not None:
                 e["ids"].update(prz.measurement_ids)
 
-    # 4. powder-pattern changes: heating runs first, so a cooling change can join its heating partner
+    # 4. SHG lost on heating: the acentric phase ends there
+    for v in shg_vanishing:
+        _attach(raw, v.t_K, "shg", v.measurement_id, "shg", tol=max(SAME_TEMPERATURE_K, v.resolution_K))
+
+    # 5. powder-pattern changes: heating runs first, so a cooling change can join its heating partner
     for ch in sorted(pattern_changes, key=lambda c: (c.scan == "cooling", c.t_K)):
         _attach_pattern_change(raw, ch)
 
@@ -373,7 +394,7 @@ def _attach_pattern_change(raw: list[dict[str, Any]], ch: Any) -> None:
     lo, hi = sorted((ch.t_below_K, ch.t_above_K))
     ids = set(ch.measurement_ids)
     for e in raw:
-        temps = [x for x in (e["th"], e["eps"], e["prz"], e.get("xrd")) if x is not None]
+        temps = [x for x in (e["th"], e["eps"], e["prz"], e.get("xrd"), e.get("shg")) if x is not None]
         inside = any(lo - SAME_TEMPERATURE_K <= x <= hi + SAME_TEMPERATURE_K for x in temps)
         if ch.scan == "cooling" and not inside:
             inside = (e["tc"] is not None and lo - SAME_TEMPERATURE_K <= e["tc"] <= hi + SAME_TEMPERATURE_K) or any(
@@ -394,11 +415,11 @@ def _attach_pattern_change(raw: list[dict[str, Any]], ch: Any) -> None:
 
 def _attach(raw: list[dict[str, Any]], t: float, source: str, mid: int, key: str, tol: float = SAME_TEMPERATURE_K):
     for e in raw:
-        temps = [x for x in (e["th"], e["tc"], e["eps"], e["prz"]) if x is not None]
+        temps = [x for x in (e["th"], e["tc"], e["eps"], e["prz"], e.get("shg")) if x is not None]
         if any(abs(t - x) <= tol for x in temps):
             e["sources"].add(source)
             e["ids"].add(mid)
-            if e[key] is None:
+            if e.get(key) is None:
                 e[key] = t
             return
     entry = dict(t=t, th=None, tc=None, onset=None, ds=None, exo_on_heating=False, reversible=False,
@@ -450,7 +471,7 @@ def _classify(raw: list[dict[str, Any]], chain_ch2: int | None) -> list[PhaseTra
             onset_K=e["onset"], t_permittivity_K=e["eps"], t_pr_zero_K=e["prz"], ds_J_molK=ds,
             ds_per_ch2_J_molK=(ds / chain_ch2) if (ds is not None and chain_ch2) else None,
             transition_class=cls, rule=rule,
-            sources=tuple(s for s in ("dsc", "dielectric", "series", "pxrd") if s in e["sources"]),
+            sources=tuple(s for s in ("dsc", "dielectric", "series", "pxrd", "shg") if s in e["sources"]),
             measurement_ids=tuple(sorted(e["ids"])), t_pattern_change_K=e.get("xrd") or e.get("xrd_cool")))
     return out
 

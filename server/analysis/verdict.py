@@ -51,10 +51,12 @@ METHOD = (
     "are both shown in one scanned phase; phases delimited by paired DSC peaks, non-dispersive permittivity maxima "
     "and Pr -> 0, and only scanned intervals without a transition count as one phase."
 )
-VERSION = "verdict/2.3"  # 2.0: phase model with scanned intervals, criteria, PUND needed for the top codes;
+VERSION = "verdict/2.4"  # 2.0: phase model with scanned intervals, criteria, PUND needed for the top codes;
 # 2.1: the conclusion with its range and scanned phase; Pr -> 0 from the Pr(T) series fits;
 # 2.2: SHG, powder patterns (matches and pattern changes) and columnar lattices as criteria and conflicts;
-# 2.3: the identity criterion (every counted measurement from a batch of confirmed identity)
+# 2.3: the identity criterion (every counted measurement from a batch of confirmed identity);
+# 2.4: a computed planar minimum against measured switching or a dynamic-NMR barrier (for review); an SHG
+# signal lost on heating is a phase boundary
 
 SAME_TEMPERATURE_K = phases.SAME_TEMPERATURE_K
 
@@ -71,6 +73,52 @@ QUALITY_FLAGS = ("r_factors_missing", "density_implausible", "column_too_long", 
 #: A bowl shallower than this is flat (Å; common practice: a bowl that inverts must be curved, and
 #: crystal bowl depths of curved bowls are several tenths of an ångström or more; value from memory).
 FLAT_BOWL_A = 0.2
+#: A computed (GFN2-xTB) inversion barrier below this is a planar minimum, kcal/mol: the optimisation found
+#: no bowl (our threshold; the collapsed computations of the campaign gave 0 and 0.07 kcal/mol).
+PLANAR_BARRIER_KCAL_MOL = 0.1
+
+
+def planar_minimum_conflicts(computed: Sequence[Mapping[str, Any]], switching: Sequence["Evidence"],
+                             nmr_barriers: Sequence[Mapping[str, Any]] = ()) -> list["Conflict"]:
+    """A computed planar minimum against measured bowl inversion: one conflict for review per estimate.
+
+    A GFN2-xTB minimum that relaxed to a flat core (``planar``, or a barrier below
+    :data:`PLANAR_BARRIER_KCAL_MOL`) says the bowl does not invert at all, while a switching loop or PUND, or a
+    barrier measured by dynamic NMR (coalescence, Gutowsky and Holm 1956; Eyring rates), says it does. The
+    measurement outweighs the computation, so the flag is not blocking: the class stays, the pair is listed.
+
+    References
+    ----------
+    C. Bannwarth, S. Ehlert and S. Grimme, J. Chem. Theory Comput. 15, 1652 (2019) (GFN2-xTB).
+    H. S. Gutowsky and C. H. Holm, J. Chem. Phys. 25, 1228 (1956).
+    """
+    measured = [b for b in nmr_barriers if isinstance(b.get("dg_kcal_mol"), (int, float))]
+    out = []
+    for est in computed:
+        barrier = est.get("barrier_kcal_mol")
+        planar = bool(est.get("planar")) or (isinstance(barrier, (int, float)) and barrier < PLANAR_BARRIER_KCAL_MOL)
+        if not planar or not (switching or measured):
+            continue
+        depth = est.get("bowl_depth_A")
+        found = ", ".join(p for p in (f"barrier {barrier:.2f} kcal/mol" if isinstance(barrier, (int, float)) else "",
+                                      f"bowl depth {depth:.2f} Å" if isinstance(depth, (int, float)) else "") if p)
+        against = []
+        if switching:
+            against.append(f"switching is measured ({_ids(switching)})")
+        if measured:
+            against.append("dynamic NMR measures an inversion barrier of "
+                           + ", ".join(f"{b['dg_kcal_mol']:.1f} kcal/mol ({b.get('method') or 'NMR'}"
+                                       + (f", measurement {b['measurement_id']})" if b.get("measurement_id") else ")")
+                                       for b in measured))
+        ids = [s.measurement_id for s in switching] + [int(b["measurement_id"]) for b in measured if b.get("measurement_id")]
+        out.append(Conflict(
+            f"the GFN2-xTB estimate #{est.get('estimate_id')} relaxed to a planar minimum"
+            + (f" ({found})" if found else "") + f", yet {' and '.join(against)}",
+            tuple(dict.fromkeys(ids)),
+            "a computation that collapsed to planar (re-run from a deeper start, or with another method), or "
+            "switching and exchange by another mechanism",
+            blocking=False))
+    return out
 
 
 @dataclass(frozen=True)
@@ -238,8 +286,12 @@ def phase_model(evidence: Sequence[Evidence], chain_ch2: int | None = None,
     maxima: list[phases.PermittivityMaximum] = []
     loops: list[phases.LoopPoint] = []
     points: dict[int, float] = {}
+    shg_lost: list[phases.ShgVanishing] = []
     for ev in evidence:
         d = ev.details
+        if ev.kind == "shg" and isinstance(d.get("t_vanish_K"), (int, float)):
+            shg_lost.append(phases.ShgVanishing(ev.measurement_id, _positive(d["t_vanish_K"], ev, "t_vanish_K"),
+                                                float(d.get("t_vanish_resolution_K") or 0.0)))
         if ev.kind == "dsc":
             for p in d.get("peaks") or []:
                 peaks.append(phases.ThermalPeak(
@@ -264,7 +316,8 @@ def phase_model(evidence: Sequence[Evidence], chain_ch2: int | None = None,
                 loops.append(phases.LoopPoint(ev.measurement_id, ev.temperature_K, ev.verdict in _SATURATED_LOOP,
                                               d.get("pr_uC_cm2")))
     return phases.build(dsc_peaks=peaks, scans=scans, permittivity=maxima, loops=loops, point_temperatures=points,
-                        chain_ch2=chain_ch2, series_tc=series_vanishing(series_tc), pattern_changes=pattern_changes)
+                        chain_ch2=chain_ch2, series_tc=series_vanishing(series_tc), pattern_changes=pattern_changes,
+                        shg_vanishing=shg_lost)
 
 
 def _same_temperature(t1: float | None, t2: float | None) -> bool:
@@ -379,7 +432,8 @@ def _pick_phase(model: PhaseModel, switching: Sequence[Evidence], structures: Se
 def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
            rates: Sequence[Mapping[str, Any]] = (), series_tc: Mapping[str, Any] | None = None,
            pattern_changes: Sequence[Any] = (), pattern_scans: Sequence[phases.Scan] = (),
-           identity: Mapping[int, bool] | None = None) -> CompoundVerdict:
+           identity: Mapping[int, bool] | None = None, computed_minima: Sequence[Mapping[str, Any]] = (),
+           nmr_barriers: Sequence[Mapping[str, Any]] = ()) -> CompoundVerdict:
     """Combine the analysed measurements of one compound into a verdict.
 
     Parameters
@@ -400,6 +454,13 @@ def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
     identity : mapping, optional
         Measurement id -> whether its batch's identity is confirmed (issue 17): adds the criterion of
         :func:`identity_criterion`. The code does not depend on it (the verdict still counts the measurements).
+    computed_minima : sequence of mappings, optional
+        GFN2-xTB estimates ``{"estimate_id", "barrier_kcal_mol", "bowl_depth_A", "planar"}``; a planar minimum
+        against measured switching or a dynamic-NMR barrier is a conflict for review
+        (:func:`planar_minimum_conflicts`).
+    nmr_barriers : sequence of mappings, optional
+        Barriers measured by dynamic NMR ``{"estimate_id", "measurement_id" (or None), "method", "dg_kcal_mol"}``
+        (coalescence or Eyring), for the same flag.
 
     Returns
     -------
@@ -501,6 +562,8 @@ def decide(evidence: Sequence[Evidence], *, chain_ch2: int | None = None,
                     (s.measurement_id, int(rate["measurement_id"])),
                     "field-assisted or collective switching (the field lowers the barrier), or wrong data",
                     blocking=False))
+
+    conflicts += planar_minimum_conflicts(computed_minima, switching, nmr_barriers)
 
     id_criteria, id_conflicts = _phase_identity(model, evidence, switching, polar, structures)
     conflicts += id_conflicts

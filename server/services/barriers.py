@@ -17,7 +17,7 @@ from ..errors import InputError
 from ..models import BarrierEstimate, Compound, Measurement, Scaffold
 from ..plots import figure_json
 from ..plots.kinetics import calibration_figure
-from . import audit, stats
+from . import audit, stats, verdicts
 from .stats import MEASURED_METHODS
 from .errors import NotFound
 
@@ -90,6 +90,8 @@ def add_barrier(*, session: Session, compound: Compound, data: BarrierIn, actor:
     audit.record(session, actor=actor, action="barrier.create", entity="barrier", code=str(row.id),
                  compound_id=compound.id, after=audit.snapshot(row))
     stats.refresh(session, compound)
+    # a measured barrier can contradict a computed planar minimum (analysis/verdict.py)
+    verdicts.recompute(session, compound, actor=actor)
     session.commit()
     session.refresh(row)
     return row

@@ -25,7 +25,7 @@ from ..chem.geometry import core_atoms
 from ..errors import AnalysisError, ChemistryError, InputError, OverLimit, QuotaExceeded
 from ..jobs import queue
 from ..models import JOB_STATES, BarrierEstimate, Compound, Job
-from . import audit, stats
+from . import audit, stats, verdicts
 from .registry import get_scaffold
 
 KIND = "xtb_estimate"
@@ -183,7 +183,10 @@ def store_estimate(session: Session, *, job: Job, estimate_dict: dict[str, Any])
     session.flush()
     audit.record(session, actor=job.created_by or f"worker:{job.worker}", action="barrier.create", entity="barrier",
                  code=str(row.id), compound_id=job.compound_id, after=audit.snapshot(row))
-    stats.refresh(session, session.get(Compound, job.compound_id))
+    compound = session.get(Compound, job.compound_id)
+    stats.refresh(session, compound)
+    # a planar minimum can contradict measured switching or NMR barriers (analysis/verdict.py)
+    verdicts.recompute(session, compound, actor=job.created_by or f"worker:{job.worker}")
     return row
 
 

@@ -12,7 +12,8 @@ from ..errors import InputError
 from ..kinds import KINDS
 from ..verdict_codes import LABELS, RETIRED, effective
 from ..analysis.constants import CAL_J
-from ..models import Batch, Compound, CompoundSideChain, Measurement, utcnow, live_measurement
+from ..models import BarrierEstimate, Batch, Compound, CompoundSideChain, Measurement, utcnow, live_measurement
+from .stats import MEASURED_METHODS
 from . import audit, pattern_runs
 from .series import combine_series_tc, compound_series_entries
 
@@ -69,7 +70,21 @@ def decide_for(session: Session, compound: Compound, evidence: list[rules.Eviden
     measurements are among ``evidence``, so a batch verdict uses its own series only."""
     return rules.decide(evidence, chain_ch2=chain_ch2(session, compound), rates=measured_rates(session, compound),
                         identity=identity_of(session, {ev.measurement_id for ev in evidence}),
-                        **model_inputs(session, compound, evidence))
+                        **barrier_inputs(session, compound), **model_inputs(session, compound, evidence))
+
+
+def barrier_inputs(session: Session, compound: Compound) -> dict[str, Any]:
+    """The compound's live barriers as the verdict reads them: ``computed_minima`` (GFN2-xTB estimates with
+    their bowl depth and whether the minimum was planar) and ``nmr_barriers`` (measured by dynamic NMR)."""
+    rows = session.exec(select(BarrierEstimate).where(BarrierEstimate.compound_id == compound.id,
+                                                      BarrierEstimate.archived == False)  # noqa: E712
+                        .order_by(BarrierEstimate.id)).all()
+    computed = [{"estimate_id": b.id, "barrier_kcal_mol": b.dg_kcal_mol,
+                 "bowl_depth_A": (b.results or {}).get("bowl_depth_A"), "planar": bool((b.results or {}).get("planar"))}
+                for b in rows if b.method == "gfn2-xtb"]
+    nmr = [{"estimate_id": b.id, "measurement_id": b.measurement_id, "method": b.method, "dg_kcal_mol": b.dg_kcal_mol}
+           for b in rows if b.method in MEASURED_METHODS and b.dg_kcal_mol is not None]
+    return {"computed_minima": computed, "nmr_barriers": nmr}
 
 
 def model_inputs(session: Session, compound: Compound, evidence: list[rules.Evidence]) -> dict[str, Any]:

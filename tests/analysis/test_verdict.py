@@ -422,3 +422,26 @@ def test_identity_criterion_lists_measurements_on_unconfirmed_batches_and_keeps_
     full = decide(ev, identity={1: True, 2: True, 3: True})
     assert "identity of every measured batch confirmed" in full.conclusion.criteria_met
     assert decide([], identity={}).criteria[-1].state == "untested"
+
+
+def test_planar_computed_minimum_contradicts_measured_inversion():
+    """Issue 15 item 4 / issue 18: a GFN2-xTB minimum that relaxed to planar (barrier about 0, flat core) says the
+    bowl does not invert, while a switching loop or a coalescence barrier says it does (Gutowsky and Holm,
+    J. Chem. Phys. 25, 1228 (1956)). The measurement outweighs the computation: listed for review, class kept."""
+    planar = [{"estimate_id": 11, "barrier_kcal_mol": 0.07, "bowl_depth_A": 0.01, "planar": True}]
+    v = decide([loop(1, "switching", 300.0, frequency_Hz=100.0)], computed_minima=planar)
+    assert v.code == "loop_switching_only"
+    [c] = v.conflicts
+    assert not c.blocking and c.measurement_ids == (1,)
+    assert "#11 relaxed to a planar minimum (barrier 0.07 kcal/mol, bowl depth 0.01 Å)" in c.message
+    assert "collapsed to planar" in c.suggestion
+    # a dynamic-NMR barrier alone (no loop) is contradicted too; the rate table's measurement is named
+    nmr = [{"estimate_id": 12, "measurement_id": 5, "method": "eyring", "dg_kcal_mol": 14.3}]
+    [c2] = decide([], computed_minima=planar, nmr_barriers=nmr).conflicts
+    assert c2.measurement_ids == (5,) and "14.3 kcal/mol (eyring, measurement 5)" in c2.message
+    # a barrier of zero counts as planar even unflagged; a curved minimum, or nothing measured, raises no flag
+    flat_zero = [{"estimate_id": 13, "barrier_kcal_mol": 0.0, "bowl_depth_A": None, "planar": False}]
+    assert len(decide([pund(2, "switching", 300.0)], computed_minima=flat_zero).conflicts) == 1
+    curved = [{"estimate_id": 14, "barrier_kcal_mol": 12.5, "bowl_depth_A": 0.9, "planar": False}]
+    assert decide([loop(1, "switching", 300.0)], computed_minima=curved, nmr_barriers=nmr).conflicts == ()
+    assert decide([loop(3, "no_switching", 300.0)], computed_minima=planar).conflicts == ()

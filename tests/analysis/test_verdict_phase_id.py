@@ -134,3 +134,22 @@ def test_crystal_counted_as_the_phase_of_a_columnar_mesophase_is_a_conflict():
     v = decide(BASE + [saxs(5, 300.0)])
     assert v.code == "conflicting"
     assert "hexagonal mesophase at 300 K" in v.reason and "crystal -> mesophase transition" in v.reason
+
+
+def test_shg_vanishing_on_heating_is_a_phase_boundary():
+    """SHG needs a non-centrosymmetric phase (Boyd 2008, ch. 1.5; Kurtz and Perry, J. Appl. Phys. 39, 3798
+    (1968)), so a signal lost on heating ends the acentric phase: a transition in phases.build, joined to a
+    permittivity peak within the run's step, else a transition of its own (issue 18, SHG as a phase boundary)."""
+    run = shg(4, [(t, t < 345.0) for t in (320.0, 330.0, 340.0, 350.0, 360.0)], t_vanish=345.0, res=5.0)
+    v = decide([loop(1, "switching", 320.0), dsc(3, [], scan=(250.0, 400.0)), run])
+    [tr] = v.transitions
+    assert tr.t_K == 345.0 and tr.sources == ("shg",) and tr.measurement_ids == (4,)
+    assert "SHG vanishes" in tr.label() and v.transitions_K == (345.0,)
+    # a phase boundary: the DSC-scanned range splits at 345 K, so 320 K and 360 K are not one phase
+    assert [(p.t_from_K, p.t_to_K) for p in v.phases if p.scanned][:2] == [(250.0, 345.0), (345.0, 400.0)]
+    # beside a permittivity peak 3 K away it is the same transition, seen by two probes
+    v2 = decide([loop(1, "switching", 320.0), dielectric(5, 348.0, scan=(250.0, 400.0)), run])
+    [tr2] = v2.transitions
+    assert set(tr2.sources) == {"dielectric", "shg"} and tr2.t_K == 348.0 and set(tr2.measurement_ids) == {4, 5}
+    # a run that stays active names no boundary
+    assert decide([loop(1, "switching", 320.0), shg(6, [(320.0, True), (360.0, True)])]).transitions == ()

@@ -121,3 +121,22 @@ def test_coupled_coalescence_stores_nmr_conditions(client, writer):
                       json={"method": "coalescence", "tc_K": 260, "dnu_Hz": 40, "spectrometer_MHz": -400},
                       headers=writer)
     assert bad.status_code == 422
+
+
+def test_planar_computed_minimum_against_a_coalescence_barrier_is_flagged(client, session, writer):
+    """Issue 15 item 4: a GFN2-xTB estimate that relaxed to planar (barrier 0.07 kcal/mol) beside a barrier
+    measured by coalescence (Gutowsky and Holm, J. Chem. Phys. 25, 1228 (1956): Tc 298.15 K, dnu 100 Hz ->
+    14.25 kcal/mol) is a conflict for review in the compound's verdict, raised when the barrier is entered."""
+    from server.models import BarrierEstimate, Compound
+    from sqlmodel import select
+
+    compound = session.exec(select(Compound)).one()
+    session.add(BarrierEstimate(compound_id=compound.id, method="gfn2-xtb", dg_kcal_mol=0.07, model="GFN2-xTB",
+                                results={"barrier_kcal_mol": 0.07, "bowl_depth_A": 0.01, "planar": True}))
+    session.commit()
+    assert client.post("/api/v1/compounds/RVZ-00001/barriers", json={"method": "coalescence", "tc_K": 298.15,
+                                                                      "dnu_Hz": 100}, headers=writer).status_code == 201
+    verdict = client.get("/api/v1/compounds/RVZ-00001", headers=writer).json()["verdict_evidence"]
+    [conflict] = verdict["computed"]["conflicts"]
+    assert "relaxed to a planar minimum" in conflict["message"] and "14.3 kcal/mol (coalescence)" in conflict["message"]
+    assert conflict["blocking"] is False

@@ -196,8 +196,3 @@ def summary(session: Session, *, actor: Optional[Actor], days: int = 7) -> dict[
         "last_updated": last,
     }
 
-
-def timeline(session: Session, compound: Compound, *, limit: int = 200) -> list[AuditEvent]:
-    return list(session.exec(select(AuditEvent).where(AuditEvent.compound_id == compound.id)
-                             .order_by(AuditEvent.at.desc(), AuditEvent.id.desc()).limit(limit)).all())
-

@@ -445,6 +445,14 @@ def check_atom_volume(volume_A3: float, non_h_atoms: float) -> None:
             field="_cell_volume")
 
 
+def main_component(sites: list[gemmi.SmallStructure.Site]) -> tuple[list[gemmi.SmallStructure.Site], list[int]]:
+    """The ordered atoms and the first disorder group (the main component); also every group found."""
+    groups = sorted({s.disorder_group for s in sites if s.disorder_group > 0})
+    if groups:
+        sites = [s for s in sites if s.disorder_group <= 0 or s.disorder_group == groups[0]]
+    return sites, groups
+
+
 def _op_matrices(sg: gemmi.SpaceGroup) -> list[tuple[np.ndarray, np.ndarray]]:
     out = []
     for op in sg.operations():
@@ -815,12 +823,11 @@ def analyse_cif(
     if len(sites) > MAX_CIF_SITES:
         raise OverLimit(f"the CIF lists {len(sites)} atom sites; at most {MAX_CIF_SITES} are analysed (small-molecule "
                         "crystals have far fewer)", limit="cif_sites", value=MAX_CIF_SITES)
-    groups = sorted({s.disorder_group for s in sites if s.disorder_group > 0})
+    sites, groups = main_component(sites)
     if groups:
         flags.append(
             Flag("disorder", f"disorder groups {groups} present; geometry uses group {groups[0]} and ordered atoms")
         )
-        sites = [s for s in sites if s.disorder_group <= 0 or s.disorder_group == groups[0]]
     unknown = sorted({s.type_symbol for s in sites if s.element.atomic_number == 0})
     if unknown:
         raise AnalysisError(f"atom sites with unknown element types: {', '.join(unknown)}", field="cif")

@@ -7,6 +7,8 @@ from typing import Any, Optional, Sequence
 from sqlmodel import select
 
 from ..analysis import crystal
+from ..analysis.crystal_cell import cell_contents
+from ..plots.crystal import packing_figure
 from ..models import CrystalPhase
 from ..synth.cif import bowl_crystal
 from .base import EXAMPLE_SMILES, Evidence, Example, Kind, ResultKey
@@ -44,6 +46,11 @@ def _derive(session, *, compound, batch, measurement, actor):
     row.polar, row.centrosymmetric = r.get("polar"), r.get("centrosymmetric")
     row.temperature_K, row.results, row.archived = r.get("temperature_K"), r, measurement.retired
     session.add(row)
+
+
+def _figure(parsed, result):
+    """The unit cell and its atoms, projected along the shortest edge (``parsed`` is the CIF's bytes)."""
+    return packing_figure(cell_contents(parsed))
 
 
 def _example() -> Example:
@@ -95,7 +102,7 @@ KIND = Kind(
         ResultKey("neighbours_same_direction", "neighbours pointing the same way", "", 3),
     ),
     summary_keys=("space_group",),
-    no_figure_reason="a structure is shown by its numbers; no plot is drawn",
+    figure=_figure,
     evidence=_evidence,
     stats=_stats,
     derive=_derive,

@@ -31,6 +31,34 @@ def base_layout(fig: go.Figure, *, x_title: str, y_title: str, title: str | None
     return fig
 
 
+#: Width of one character of an axis title, in units of the font size: a common approximation for
+#: proportional sans-serif text (an average glyph is about 0.5-0.6 em wide); used to keep a rotated
+#: y-axis title inside its own panel.
+TITLE_EM_PER_CHAR = 0.6
+TITLE_FONT_PX = 13  # base_layout's font size
+
+
+def title_length_px(text: str, *, font_px: float = TITLE_FONT_PX) -> float:
+    """Estimated length of an axis title in CSS pixels (``TITLE_EM_PER_CHAR`` per character)."""
+    return len(text or "") * TITLE_EM_PER_CHAR * font_px
+
+
+def stacked_panels(fig: go.Figure, titles: list[str], spans: list[float], *, min_height_px: int = 420) -> go.Figure:
+    """Size a figure of vertically stacked panels so that no rotated y-axis title outgrows its panel.
+
+    ``titles`` and ``spans`` run top to bottom: each panel's y title and the fraction of the plot area
+    that panel takes (its axis domain length). The figure height becomes the smallest that gives every
+    title its length plus a little air, at least ``min_height_px``; y axes get automatic margins and
+    a title standoff, so titles clear the tick labels beside them instead of overlapping them.
+    """
+    margin = fig.layout.margin
+    t, b = (margin.t or 0), (margin.b or 0)
+    area = max((title_length_px(text) + 2 * TITLE_FONT_PX) / span for text, span in zip(titles, spans))
+    fig.update_layout(height=int(max(min_height_px, area + t + b) + 0.5))
+    fig.update_yaxes(automargin=True, title_standoff=8)
+    return fig
+
+
 def figure_json(fig: go.Figure) -> str:
     """The figure as JSON safe to place inside a ``<script type="application/json">`` block."""
     return fig.to_json().replace("<", "\\u003c").replace(">", "\\u003e").replace("&", "\\u0026")

@@ -7,7 +7,7 @@ import plotly.graph_objects as go
 from plotly.subplots import make_subplots
 
 from server.analysis.dielectric import DielectricResult
-from server.plots import PALETTE, SERIES, base_layout
+from server.plots import PALETTE, SERIES, base_layout, stacked_panels
 
 X_T = "T (K)"
 Y_EPS = "ε' (relative permittivity, 1)"
@@ -41,8 +41,8 @@ def permittivity_figure(result: DielectricResult, *, title: str | None = None) -
     per_f = result.curves["frequencies"]
     has_loss = any(c["eps_i"] is not None for c in per_f)
     rows = 3 if has_loss else 2
-    heights = [0.45, 0.2, 0.35] if has_loss else [0.6, 0.4]
-    fig = make_subplots(rows=rows, cols=1, shared_xaxes=True, row_heights=heights, vertical_spacing=0.05)
+    heights = [0.4, 0.3, 0.3] if has_loss else [0.6, 0.4]
+    fig = make_subplots(rows=rows, cols=1, shared_xaxes=True, row_heights=heights, vertical_spacing=0.06)
     inv_row = rows
     for k, c in enumerate(per_f):
         colour = SERIES[k % len(SERIES)]
@@ -128,4 +128,8 @@ def permittivity_figure(result: DielectricResult, *, title: str | None = None) -
     fig.update_yaxes(title_text=Y_INV, row=inv_row, col=1)
     if title:  # room for the title above the legend row(s)
         fig.update_layout(margin=dict(t=100), title=dict(y=0.99, yanchor="top"))
+    # each y title must fit its own panel (issue 22 item 11: the stacked titles ran into each other)
+    axes = ["yaxis"] + [f"yaxis{k}" for k in range(2, rows + 1)]
+    stacked_panels(fig, [fig.layout[a].title.text for a in axes],
+                   [fig.layout[a].domain[1] - fig.layout[a].domain[0] for a in axes])
     return fig

@@ -39,20 +39,28 @@ def switching_lines(session: Session, items: list[dict[str, Any]], sample_rows) 
     return lines, loose, all_series
 
 
-def compound_page(session: Session, compound: Compound, *, actor: Optional[Actor]) -> dict[str, Any]:
-    """The compound page's data, as ``actor`` may see it."""
-    batch_rows = registry.batches_of(session, compound)
-    per_batch = verdicts.batch_verdicts(session, compound)
-    batches = [registry.batch_read(session, b) for b in batch_rows]
+def measurements_as_seen(session: Session, compound: Compound, *, actor: Optional[Actor]) -> list[dict[str, Any]]:
+    """The compound's live measurements as ``actor`` may see them (receipts for a caller who may not see
+    an embargoed compound), each with ``apparent_reason`` and ``apparent_keys`` for its key results."""
     rows, _ = measurements.list_measurements(session, compound=compound.code, limit=1000)
-    # For a caller who may not see this (embargoed) compound's structure: receipts only, no estimates
-    # (computed from the structure) and jobs without results (``server/access.py``).
     hide = not access.may_see_structure(actor, compound)
     items = [measurements.measurement_as_seen(session, m, actor) for m in rows]
     apparent = {} if hide else merit.apparent_reasons(items)  # receipts carry no results to grey
     for m in items:  # the key-results column greys these and labels them apparent
         m["apparent_reason"] = apparent.get(m["id"])
         m["apparent_keys"] = sorted(merit.apparent_keys(m, apparent.get(m["id"])))
+    return items
+
+
+def compound_page(session: Session, compound: Compound, *, actor: Optional[Actor]) -> dict[str, Any]:
+    """The compound page's data, as ``actor`` may see it."""
+    batch_rows = registry.batches_of(session, compound)
+    per_batch = verdicts.batch_verdicts(session, compound)
+    batches = [registry.batch_read(session, b) for b in batch_rows]
+    # For a caller who may not see this (embargoed) compound's structure: receipts only, no estimates
+    # (computed from the structure) and jobs without results (``server/access.py``).
+    hide = not access.may_see_structure(actor, compound)
+    items = measurements_as_seen(session, compound, actor=actor)
     sample_rows = samples.samples_of_compound(session, compound)
     lines, loose, all_series = switching_lines(session, items, sample_rows)
     fig = None if hide else summary.switching_by_series(lines, loose)

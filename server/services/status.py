@@ -14,7 +14,7 @@ from sqlalchemy import func
 from sqlmodel import Session, select
 
 from ..access import Actor, may_see_structure, structure_visible
-from ..verdict_codes import CONFLICTING, HITS, LABELS, UNTESTED
+from ..verdict_codes import CONFLICTING, HITS, LABELS, SHORT, UNTESTED
 from ..models import (
     live_measurement,
     AuditEvent,
@@ -86,23 +86,57 @@ def _ref(c: Compound, *, actor: Optional[Actor]) -> CompoundRef:
                        show_structure=visible)
 
 
-def summary(session: Session, *, actor: Optional[Actor], days: int = 7) -> dict[str, Any]:
+@dataclass(frozen=True)
+class Tile:
+    """One progress tile: ``n`` distinct live compounds that meet ``rule`` (shown as the tile's title)."""
+
+    key: str
+    name: str
+    n: int
+    rule: str
+
+
+def progress_tiles(session: Session) -> list[Tile]:
+    """The campaign's progress as counts of distinct compounds; archived compounds never count.
+
+    Each compound counts once per tile however many batches, samples or measurements it has. The
+    life state (planned, made) and the measurement count come from ``CompoundStats``, which counts
+    only live batches and live measurements (``services/stats.refresh``); switching and the strongest
+    class read the effective verdict (a reviewed override, else the computed one).
+    """
     live = Compound.archived == False  # noqa: E712 - SQL expression
-    registered = session.exec(select(func.count()).select_from(Compound).where(live)).one()
-    made = session.exec(select(func.count(func.distinct(Batch.compound_id)))
-                        .join(Compound, Compound.id == Batch.compound_id)
-                        .where(live, Batch.state.in_(("made", "impure", "used_up")))).one()
-    characterised = session.exec(select(func.count()).select_from(CompoundStats).join(
-        Compound, Compound.id == CompoundStats.compound_id).where(live, CompoundStats.n_measurements > 0)).one()
-    switching_tested = session.exec(select(func.count()).select_from(CompoundStats).join(
-        Compound, Compound.id == CompoundStats.compound_id).where(
-        live, (CompoundStats.kinds.like("%,pe_loop,%")) | (CompoundStats.kinds.like("%,pund,%")))).one()
-    verdict_reached = session.exec(select(func.count()).select_from(Compound).where(
-        live, EFFECTIVE_CODE != UNTESTED)).one()
+
+    def count(*where) -> int:
+        return session.exec(select(func.count()).select_from(Compound).join(
+            CompoundStats, CompoundStats.compound_id == Compound.id, isouter=True).where(live, *where)).one()
+
+    codes = dict(session.exec(select(EFFECTIVE_CODE, func.count()).where(live).group_by(EFFECTIVE_CODE)).all())
+    reached = [code for code in LABELS if codes.get(code) and code not in (UNTESTED, CONFLICTING)]
+    strongest = reached[0] if reached else None
     # counted apart: a verdict from one temperature says nothing about the rest of the phase diagram
     one_temperature = sum(
         1 for v in session.exec(select(Compound.verdict).where(live, EFFECTIVE_CODE != UNTESTED)).all()
         if "tested at one temperature only" in ((v or {}).get("qualifiers") or ()))
+    return [
+        Tile("registered", "registered", count(), "live compounds in the registry"),
+        Tile("planned", "planned", count(CompoundStats.life_state.in_(("planned", "in_synthesis"))),
+             "planned or in synthesis, no batch made yet"),
+        Tile("made", "made", count(CompoundStats.life_state == "made"),
+             "at least one live batch made (made, impure or used up)"),
+        Tile("measured", "measured", count(CompoundStats.n_measurements > 0), "at least one live measurement"),
+        Tile("switching", "switching", count(EFFECTIVE_CODE.in_(HITS)),
+             "verdict: " + ", ".join(SHORT[c] for c in HITS)),
+        Tile("strongest", f"strongest class: {SHORT[strongest]}" if strongest else "strongest class: none yet",
+             codes.get(strongest, 0) if strongest else 0,
+             LABELS[strongest] if strongest else "no compound has a verdict class yet"),
+        Tile("one_temperature", "tested at one temperature only", one_temperature,
+             "verdict from measurements at a single temperature"),
+    ]
+
+
+def summary(session: Session, *, actor: Optional[Actor], days: int = 7) -> dict[str, Any]:
+    live = Compound.archived == False  # noqa: E712 - SQL expression
+    progress = progress_tiles(session)
     since = utcnow() - timedelta(days=days)
     week = {
         "compounds": session.exec(select(func.count()).select_from(Compound).where(Compound.created_at >= since)).one(),
@@ -147,9 +181,7 @@ def summary(session: Session, *, actor: Optional[Actor], days: int = 7) -> dict[
     by_verdict = dict(session.exec(select(EFFECTIVE_CODE, func.count())
                                    .where(live).group_by(EFFECTIVE_CODE)).all())
     return {
-        "progress": [("registered", registered), ("made", made), ("characterised", characterised),
-                     ("switching tested", switching_tested), ("verdict reached", verdict_reached),
-                     ("tested at one temperature only", one_temperature)],
+        "progress": progress,
         "week": week,
         "days": days,
         "new_compounds": new_compounds,
@@ -163,9 +195,4 @@ def summary(session: Session, *, actor: Optional[Actor], days: int = 7) -> dict[
         "by_verdict": [(code, label, by_verdict.get(code, 0)) for code, label in LABELS.items()],
         "last_updated": last,
     }
-
-
-def timeline(session: Session, compound: Compound, *, limit: int = 200) -> list[AuditEvent]:
-    return list(session.exec(select(AuditEvent).where(AuditEvent.compound_id == compound.id)
-                             .order_by(AuditEvent.at.desc(), AuditEvent.id.desc()).limit(limit)).all())
 

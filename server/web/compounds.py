@@ -17,8 +17,9 @@ from ..ingest.conditions import parse_quantity
 from ..jobs import queue
 from ..models import CompoundCreate, CompoundUpdate, SideChainSpec
 from ..bounds import BUILT_CHAIN_CARBONS, whole_number
-from ..services import barriers, comments, estimates, exports, freezes, planning_pages, registry, status, verdicts, views
+from ..services import barriers, comments, estimates, exports, freezes, planning_pages, registry, verdicts, views
 from ..services.compound_page import compound_page as compound_page_data
+from ..services.timeline import lab_timeline
 from ..services.errors import Duplicate
 from ..kinds import KINDS
 from .render import fragment_or_redirect, redirect, render
@@ -197,8 +198,8 @@ async def compound_archive(code: str, request: Request, session: SessionDep, act
 @router.get("/compounds/{code}/timeline", response_class=HTMLResponse)
 def timeline(code: str, request: Request, session: SessionDep, actor: PageActor):
     compound = registry.get_compound(session, code)
-    events = status.timeline(session, compound)
-    return render(request, "pages/timeline.html", {"c": compound, "events": events},
+    entries = lab_timeline(session, compound, actor=actor)
+    return render(request, "pages/timeline.html", {"c": compound, "entries": entries},
                   partial="partials/timeline.html", actor=actor)
 
 

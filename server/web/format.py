@@ -108,6 +108,18 @@ def summary(kind: str, results: dict[str, Any], apparent_keys: Any = None) -> st
     return KINDS[kind].summary_text(results, apparent_keys) if kind in KINDS else ""
 
 
+def shared_code_prefix(codes: Any) -> str:
+    """The campaign prefix every one of ``codes`` starts with ("RVZ-" for RVZ-00001, RVZ-00002), or ""
+    when they do not all share one (codes of an earlier prefix stay as stored, so a list can mix)."""
+    heads = {code.split("-", 1)[0] + "-" if "-" in code else "" for code in codes}
+    return heads.pop() if len(heads) == 1 else ""
+
+
+def short_code(code: str, prefix: str) -> str:
+    """``code`` without the shared ``prefix`` a table states once in its caption."""
+    return code[len(prefix):] if prefix and code.startswith(prefix) and len(code) > len(prefix) else code
+
+
 def install(env) -> None:  # noqa: ANN001 - a jinja2 Environment
     from ..services.accounts import shown_name, shown_text
 
@@ -116,6 +128,8 @@ def install(env) -> None:  # noqa: ANN001 - a jinja2 Environment
     env.filters["who"] = shown_name  # {{ label | who(actor) }}: names hidden from upload tokens and visitors
     env.filters["unquoted"] = shown_text  # {{ message | unquoted(actor) }}: quoted labels likewise
     env.filters["scalar_items"] = scalar_items
+    env.filters["short_code"] = short_code
+    env.globals["shared_code_prefix"] = shared_code_prefix
     env.globals["split_key"] = split_key
     env.globals["digits_of"] = digits_of
     env.globals["with_uncertainty"] = with_uncertainty

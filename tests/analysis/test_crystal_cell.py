@@ -1,61 +1,58 @@
-"""Impossible cells are refused with the CIF field named (issue 12, item 19)."""
+"""Unit-cell contents and the packing figure of a crystal structure (issue 22 item 11)."""
 
 from __future__ import annotations
 
-import pytest
+import gemmi
+import numpy as np
 
-from server.analysis.crystal import analyse_cif, check_atom_volume, check_cell
-from server.errors import AnalysisError
-
-from .test_crystal import cif
-
-GOOD = {"_cell_length_a": 7.2, "_cell_length_b": 9.4, "_cell_length_c": 8.1,
-        "_cell_angle_alpha": 90.0, "_cell_angle_beta": 104.0, "_cell_angle_gamma": 90.0}
+from server.analysis.crystal_cell import cell_contents
+from server.kinds import KINDS
+from server.plots.crystal import packing_figure, projection_basis, view_axis
 
 
-@pytest.mark.parametrize("old,new,field", [
-    ("_cell_length_a 7.2000(3)", "_cell_length_a 1e30", "_cell_length_a"),
-    ("_cell_length_b 9.4000(4)", "_cell_length_b 0", "_cell_length_b"),
-    ("_cell_length_c 8.1000(3)", "_cell_length_c -8.1", "_cell_length_c"),
-    ("_cell_angle_beta 104.000(2)", "_cell_angle_beta 180", "_cell_angle_beta"),
-    ("_cell_angle_alpha 90", "_cell_angle_alpha -5", "_cell_angle_alpha"),
-])
-def test_impossible_edges_and_angles_name_their_field(old, new, field):
-    with pytest.raises(AnalysisError) as err:
-        analyse_cif(cif(replace={old: new}), formula="C6H6")
-    assert err.value.field == field
+def _gemmi_cell_sites(raw: bytes) -> tuple[list[str], np.ndarray]:
+    """Independent reference: gemmi's own expansion (SmallStructure.get_all_unit_cell_sites)."""
+    small = gemmi.make_small_structure_from_block(gemmi.cif.read_string(raw.decode()).sole_block())
+    sites = small.get_all_unit_cell_sites()
+    frac = np.array([[s.fract.x, s.fract.y, s.fract.z] for s in sites])
+    return [s.element.name for s in sites], frac - np.floor(frac + 1e-9)
 
 
-def test_angles_that_enclose_no_volume():
-    # alpha = beta = gamma = 120 deg: 1 - 3 (1/4) + 2 (-1/8) = 0 (by hand): the three axes are coplanar.
-    with pytest.raises(AnalysisError) as err:
-        check_cell({**GOOD, "_cell_angle_alpha": 120.0, "_cell_angle_beta": 120.0, "_cell_angle_gamma": 120.0})
-    assert "no volume" in str(err.value)
-    # 30, 30, 90 deg: 1 - 3/4 - 3/4 - 0 + 0 < 0 (by hand): no real cell either.
-    with pytest.raises(AnalysisError):
-        check_cell({**GOOD, "_cell_angle_alpha": 30.0, "_cell_angle_beta": 30.0, "_cell_angle_gamma": 90.0})
+def test_cell_contents_match_gemmis_own_expansion():
+    raw = KINDS["crystal"].example().raw
+    c = cell_contents(raw)
+    elements, frac = _gemmi_cell_sites(raw)
+    assert sorted(c.elements) == sorted(elements)
+    # same positions: every atom has a partner within 0.01 A (periodic distance)
+    d = c.frac[:, None, :] - frac[None, :, :]
+    d -= np.round(d)
+    dist = np.linalg.norm(d @ c.orth.T, axis=2)
+    assert dist.min(axis=1).max() < 0.01
+    assert ((c.frac >= 0) & (c.frac < 1)).all()
+    # P2_1 has two general positions: two molecules in the cell
+    assert c.space_group.replace(" ", "") == "P1211" and len(c.elements) % 2 == 0
 
 
-def test_ordinary_cells_pass():
-    check_cell(GOOD)
-    check_cell({**GOOD, "_cell_angle_beta": 90.0, "_cell_angle_gamma": 120.0})  # hexagonal: factor 3/4
-    check_cell({**GOOD, "_cell_angle_alpha": 60.0, "_cell_angle_beta": 60.0, "_cell_angle_gamma": 60.0})  # 1/2
-
-
-@pytest.mark.parametrize("scale", ["10", "0.1"])
-def test_absurd_volume_per_non_hydrogen_atom(scale):
-    # The hand CIF has 531.9 A^3 for 24 C (22 A^3 each, near the 18 A^3 rule of thumb). Scaling all
-    # edges by 10 gives ~22 000 A^3 per atom; by 0.1, ~0.02 A^3: neither is a crystal of molecules.
-    f = float(scale)
-    text = cif(replace={"_cell_length_a 7.2000(3)": f"_cell_length_a {7.2 * f:g}",
-                        "_cell_length_b 9.4000(4)": f"_cell_length_b {9.4 * f:g}",
-                        "_cell_length_c 8.1000(3)": f"_cell_length_c {8.1 * f:g}"})
-    with pytest.raises(AnalysisError) as err:
-        analyse_cif(text, formula="C6H6")
-    assert err.value.field == "_cell_volume"
-
-
-def test_volume_per_atom_bounds():
-    check_atom_volume(531.9, 24)
-    with pytest.raises(AnalysisError):
-        check_atom_volume(531.9, 200)  # 2.7 A^3 per atom
+def test_packing_figure_draws_the_cell_and_every_atom_in_projection():
+    c = cell_contents(KINDS["crystal"].example().raw)
+    fig = packing_figure(c)
+    cell = fig.data[0]
+    assert cell.name == "unit cell"
+    assert sum(1 for x in cell.x if x is None) == 12  # 12 edges, each ended by a gap
+    atoms = [t for t in fig.data[1:]]
+    assert sum(len(t.x) for t in atoms) == len(c.elements)
+    assert {t.name.split(" ")[0] for t in atoms} == set(c.elements)
+    # the projection is orthonormal and perpendicular to the view edge
+    along = view_axis(c)
+    assert c.edges_A[along] == min(c.edges_A)
+    u, v = projection_basis(c.orth, along)
+    w = c.orth[:, along]
+    np.testing.assert_allclose([u @ u, v @ v, u @ v, u @ w, v @ w], [1, 1, 0, 0, 0], atol=1e-12)
+    # an atom's plotted point is its Cartesian position projected
+    first = atoms[0]
+    el = first.name.split(" ")[0]
+    pos = c.cart_A[np.array(c.elements) == el][0]
+    np.testing.assert_allclose([first.x[0], first.y[0]], [pos @ u, pos @ v], atol=1e-9)
+    # equal scales on both axes, so the cell's shape is true; axis titles carry the unit
+    assert fig.layout.yaxis.scaleanchor == "x" and fig.layout.yaxis.scaleratio == 1
+    assert fig.layout.xaxis.title.text.endswith("(Å)") and fig.layout.yaxis.title.text.endswith("(Å)")

@@ -108,3 +108,28 @@ def test_dsc_figure_reanalyses_from_frame_when_curves_missing():
         dsc_figure(bare)
     fig = dsc_figure(bare, canon)
     assert len([t for t in fig.data if t.fill == "toself"]) == 2
+
+
+@pytest.mark.parametrize("with_loss", [True, False])
+def test_permittivity_panels_leave_room_for_their_axis_titles(with_loss):
+    """Issue 22 item 11: the stacked y titles overlapped. Each rotated title's estimated length
+    (0.6 em per character, a common approximation for sans-serif text) fits its panel's height in
+    pixels, and the y axes push the margin out for their tick labels and keep a standoff."""
+    from server.plots import title_length_px
+
+    fig = permittivity_figure(_dielectric_result(as_capacitance=with_loss), title="RVZ-0003 pellet")
+    lay = fig.layout
+    area_px = lay.height - lay.margin.t - lay.margin.b
+    rows = 3 if with_loss else 2
+    axes = ["yaxis"] + [f"yaxis{k}" for k in range(2, rows + 1)]
+    for name in axes:
+        ax = lay[name]
+        panel_px = (ax.domain[1] - ax.domain[0]) * area_px
+        assert title_length_px(ax.title.text) < panel_px, (name, ax.title.text, panel_px)
+        assert ax.automargin is True and ax.title.standoff >= 8
+    # panels do not touch: a gap between each domain and the next
+    domains = sorted((lay[a].domain for a in axes), key=lambda d: d[0])
+    assert all(upper[0] - lower[1] > 0.03 for lower, upper in zip(domains, domains[1:]))
+    # only the bottom panel carries the x title, so no x title sits between panels
+    x_axes = ["xaxis"] + [f"xaxis{k}" for k in range(2, rows + 1)]
+    assert [a for a in x_axes if lay[a].title.text] == [f"xaxis{rows}"]

@@ -54,6 +54,7 @@ EXPECTED_LABELS = {
     "pund": ("t (s)",),
     "dielectric": ("T (K)", "ε′", "tan δ"),
     "dsc": ("T (K)", "W g⁻¹"),
+    "crystal": ("(Å)", "unit cell"),
     "nmr_rates": ("1000/T (K⁻¹)", "ln(k/T)"),
 }
 
@@ -77,11 +78,26 @@ def test_measurement_figure_svg_and_pdf(client, batch, writer, kind):
 
 
 def test_figure_needs_a_reader_and_an_existing_figure(client, batch, writer):
-    example = KINDS["crystal"].example()
-    mid = upload(client, batch, "crystal", example.raw, writer, filename=example.filename)
+    example = KINDS["elemental"].example()
+    mid = upload(client, batch, "elemental", example.raw, writer, filename=example.filename)
     assert client.get(f"/api/v1/measurements/{mid}/figure.svg").status_code == 401
-    assert client.get(f"/api/v1/measurements/{mid}/figure.svg", headers=writer).status_code == 404  # CIF: no figure
+    assert client.get(f"/api/v1/measurements/{mid}/figure.svg", headers=writer).status_code == 404  # no figure
     assert client.get("/api/v1/measurements/999/figure.pdf", headers=writer).status_code == 404
+
+
+def test_no_figure_of_an_embargoed_compound_for_a_caller_who_may_not_see_it(client, session, writer):
+    """A crystal's figure draws its atoms: like its raw file, it is withheld under embargo (server/access.py)."""
+    r = client.post("/api/v1/compounds", json={"smiles": "COc1c(OC)c(OC)c(OC)c(OC)c1OCC", "embargoed": True},
+                    headers=writer)  # an invented test compound
+    code = r.json()["code"]
+    b = client.post(f"/api/v1/compounds/{code}/batches", json={}, headers=writer).json()["code"]
+    example = KINDS["crystal"].example()
+    mid = upload(client, b, "crystal", example.raw, writer, filename=example.filename)
+    assert client.get(f"/api/v1/measurements/{mid}/figure.svg", headers=writer).status_code == 200
+    for scope in ("upload", "read"):
+        other = bearer(make_token(session, scope=scope, name=f"pc-{scope}"))
+        for fmt in ("svg", "pdf"):
+            assert client.get(f"/api/v1/measurements/{mid}/figure.{fmt}", headers=other).status_code == 404
 
 
 def test_compound_switching_figure(client, batch, writer):

@@ -29,6 +29,10 @@ def measurement_figure(measurement_id: RowId, fmt: Literal["svg", "pdf"], sessio
                        actor: Reader) -> Response:
     """The measurement's figure in publication style (8.5 cm wide) as SVG or PDF; 404 for kinds without one."""
     m = measurements.get_measurement(session, measurement_id)
+    # a figure draws the results (a crystal's, the atoms themselves): none for a caller who may not see
+    # the embargoed compound, as for its raw file and its measurement page (server/access.py)
+    if not measurements.may_download_raw(session, m, actor):
+        raise NotFound(f"no figure for measurement {m.id}")
     fig = figures_vector.measurement_plot(session, m)
     return _figure_response(figures_vector.render(fig, fmt), fmt, f"measurement-{m.id}-{m.kind}")
 

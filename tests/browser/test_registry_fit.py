@@ -1,0 +1,43 @@
+"""The registry page fits (issue 22 item 6): no sideways scroll at 1440 and 390 px, and codes, badges and
+tags stay on one line each (a wrapped badge draws a broken outline)."""
+
+from __future__ import annotations
+
+import pytest
+from playwright.sync_api import Page, expect
+
+from server.ingest.table import to_csv_bytes
+from server.synth.ferro import miller_loop
+
+pytestmark = pytest.mark.browser
+
+# Boxes of one line draw one client rectangle; a box broken over lines draws one per line.
+BROKEN = """() => [...document.querySelectorAll(
+    'table.registry td:first-child a, table.registry .verdict-badge, table.registry .tag')]
+  .filter(el => el.getClientRects().length > 1).map(el => el.textContent.trim())"""
+
+
+@pytest.fixture(scope="module")
+def registry(live):
+    codes = []
+    for n in range(2, 8):  # invented test ethers with long labels; the first one switches
+        code = live.compound(f"COc1ccc(O{'C' * n})cc1OC", f"fit ether with a rather long label number {n}")
+        codes.append(code)
+    batch = live.batch(codes[0], state="made")
+    live.measurement(batch, "pe_loop", to_csv_bytes(miller_loop(10, 6.0, 50, 300), {"temperature": "300 K"}),
+                     "loop.csv")
+    return codes
+
+
+@pytest.mark.parametrize("width", (1440, 390))
+def test_registry_fits_and_nothing_wraps(page: Page, live, login, registry, width):
+    page.set_viewport_size({"width": width, "height": 900})
+    login("member")
+    page.goto("/compounds")
+    expect(page.locator("table.registry tbody tr").first).to_be_visible()
+    assert page.evaluate("() => document.documentElement.scrollWidth - document.documentElement.clientWidth") <= 0
+    assert page.evaluate(BROKEN) == []
+    caption = page.locator("table.registry caption")
+    expect(caption).to_contain_text(registry[0].split("-")[0] + "-")
+    link = page.get_by_role("link", name=registry[0], exact=True)
+    expect(link).to_have_text(registry[0].split("-", 1)[1])

@@ -3,17 +3,20 @@
 from __future__ import annotations
 
 import math
+import re
 from contextlib import asynccontextmanager
 from urllib.parse import quote
 
-from fastapi import FastAPI, Request
+from fastapi import FastAPI, Request, params
 from fastapi.exceptions import RequestValidationError
 from fastapi.responses import JSONResponse, RedirectResponse, Response
+from fastapi.routing import APIRoute
 from fastapi.templating import Jinja2Templates
 from sqlalchemy import text
 from sqlalchemy.exc import DataError, OperationalError
 from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.middleware.gzip import GZipMiddleware
+from starlette.routing import compile_path
 
 from . import __version__
 from .api import docs_page as api_docs_page
@@ -24,7 +27,7 @@ from .access import NotLoggedIn, Refused, may_cancel_job, may_see_structure
 from .services.errors import Archived, Duplicate, Forbidden, NotFound, TooLarge
 from .package_files import static_dir, templates_dir
 from .plots.alt import figure_alt
-from .ratelimit import TokenBuckets, caller_key
+from .ratelimit import FailureWindow, TokenBuckets, caller_key
 from .serving import BodyDeadline
 from .settings import Settings, get_settings
 from . import hazards, text_guard
@@ -132,6 +135,26 @@ def _install_error_handlers(app: FastAPI) -> None:
         return resp
 
 
+#: Answers that count as a refused upload: the file or its form was bad (malformed request, past a size or
+#: work bound, unreadable type, unreadable or unanalysable content). 401/403/404/409 are not the file's fault.
+REFUSED_UPLOAD = frozenset({400, 413, 415, 422})
+
+
+def takes_file(app: FastAPI) -> list[str]:
+    """The paths of the POST routes that take an uploaded file (a ``File()`` parameter): the uploads the
+    failure limit counts. Included routers are walked (FastAPI >= 0.165 keeps them as branches)."""
+
+    def walk(routes, prefix: str = ""):  # noqa: ANN001, ANN202
+        for r in routes:
+            if hasattr(r, "original_router"):
+                yield from walk(r.original_router.routes, prefix + (r.include_context.prefix or ""))
+            elif (isinstance(r, APIRoute) and "POST" in r.methods
+                  and any(isinstance(f.field_info, params.File) for f in r.dependant.body_params)):
+                yield prefix + r.path
+
+    return sorted(set(walk(app.routes)))
+
+
 def jsonable_errors(exc: RequestValidationError) -> list[dict]:
     return [{"loc": [str(p) for p in e.get("loc", ())], "msg": str(e.get("msg")), "type": str(e.get("type"))}
             for e in exc.errors()]
@@ -214,6 +237,33 @@ def create_app(settings: Settings | None = None) -> FastAPI:
                 response.headers["Retry-After"] = str(math.ceil(wait_s))
                 return response
         return await call_next(request)
+
+    # Refused uploads per caller (server/ratelimit.py): read from app.state at each request, so a test can put in
+    # a window with its own clock.
+    app.state.upload_failures = FailureWindow(settings.upload_failures, settings.upload_failure_window_s)
+    upload_paths: list[re.Pattern] = []
+
+    @app.middleware("http")
+    async def upload_failure_limit(request: Request, call_next):
+        if request.method != "POST":
+            return await call_next(request)
+        if not upload_paths:  # on the first POST: the routers are included after the middleware
+            upload_paths.extend(compile_path(path)[0] for path in takes_file(app))
+        if not any(pattern.match(request.url.path) for pattern in upload_paths):
+            return await call_next(request)
+        window: FailureWindow = request.app.state.upload_failures
+        key = caller_key(request)
+        wait_s = window.wait_s(key)
+        if wait_s:
+            response = _error(request, 429, f"too many refused uploads: {window.limit} in {window.window_s:g} s "
+                              f"(REMANENCE_UPLOAD_FAILURES, REMANENCE_UPLOAD_FAILURE_WINDOW_S); fix the file and try "
+                              f"again in {math.ceil(wait_s)} s", {"limit": "upload_failures", "limit_value": window.limit})
+            response.headers["Retry-After"] = str(math.ceil(wait_s))
+            return response
+        response = await call_next(request)
+        if response.status_code in REFUSED_UPLOAD:
+            window.record(key)
+        return response
 
     app.add_middleware(CookieMiddleware)  # writes the session, pre-login and device cookies (server/cookies.py)
     # Pages, JSON and text assets go compressed to browsers that ask; the CSRF token in pages is masked

@@ -77,8 +77,15 @@ class OverLimit(RemanenceError):
         self.value = value
         super().__init__(message)
 
+    def __reduce__(self):  # noqa: ANN204 - keyword-only arguments: pickled whole (from an analysis child process)
+        return _over_limit, (type(self), self.message, self.limit, self.value)
+
     def to_dict(self) -> dict:
         return {"detail": self.message, "limit": self.limit, "limit_value": self.value}
+
+
+def _over_limit(cls: type, message: str, limit: str, value: float | int) -> OverLimit:
+    return cls(message, limit=limit, value=value)
 
 
 class QuotaExceeded(OverLimit):

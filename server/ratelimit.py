@@ -18,11 +18,12 @@ from __future__ import annotations
 import hashlib
 import threading
 import time
+from collections import deque
 from dataclasses import dataclass
 
 from starlette.requests import Request
 
-__all__ = ["TokenBuckets", "caller_key"]
+__all__ = ["TokenBuckets", "FailureWindow", "caller_key"]
 
 
 @dataclass
@@ -76,6 +77,50 @@ class TokenBuckets:
             del self._buckets[k]
         while len(self._buckets) > self.max_keys:
             del self._buckets[next(iter(self._buckets))]
+
+
+class FailureWindow:
+    """Refusals counted per caller over a sliding window: past ``limit`` in ``window_s`` seconds,
+    the caller waits until the oldest one leaves the window (a sliding-window log; each key keeps at
+    most ``limit`` times, so memory is bounded by ``limit * max_keys``).
+
+    Used for uploads: refused files are not stored, so without it the same bad bytes could be sent
+    (and read, and analysed up to their budget) again and again. Successes are never recorded.
+    """
+
+    def __init__(self, limit: int, window_s: float, *, max_keys: int = 10_000, clock=time.monotonic) -> None:
+        if limit < 1 or window_s <= 0:
+            raise ValueError("limit must be at least 1 and window_s positive")
+        self.limit = limit
+        self.window_s = window_s
+        self.max_keys = max_keys
+        self._clock = clock
+        self._lock = threading.Lock()
+        self._times: dict[str, deque[float]] = {}
+
+    def wait_s(self, key: str) -> float:
+        """0.0 when ``key`` may try now, else the seconds until its oldest counted refusal expires."""
+        now = self._clock()
+        with self._lock:
+            times = self._times.get(key)
+            if times is None:
+                return 0.0
+            while times and times[0] <= now - self.window_s:
+                times.popleft()
+            if not times:
+                del self._times[key]
+                return 0.0
+            return times[0] + self.window_s - now if len(times) >= self.limit else 0.0
+
+    def record(self, key: str) -> None:
+        """Count one refusal of ``key`` now."""
+        now = self._clock()
+        with self._lock:
+            times = self._times.pop(key, None) or deque(maxlen=self.limit)
+            times.append(now)
+            self._times[key] = times  # re-inserted: least recently refused first
+            while len(self._times) > self.max_keys:
+                del self._times[next(iter(self._times))]
 
 
 def caller_key(request: Request) -> str:

@@ -92,6 +92,20 @@ SETTINGS: tuple[Setting, ...] = (
             "Seconds a client has to send a request's whole body (an upload) before it is answered 408.", float),
     Setting("keep_alive_s", "REMANENCE_KEEP_ALIVE_S",
             "Seconds an idle kept-alive connection stays open.", int),
+    Setting("analysis_cpu_s", "REMANENCE_ANALYSIS_CPU_S",
+            "CPU seconds the reading and analysis of one uploaded file may use before it is stopped (413).", float),
+    Setting("analysis_memory_mb", "REMANENCE_ANALYSIS_MEMORY_MB",
+            "Address space, in MiB, of the child process that analyses one upload (the loaded analysis code "
+            "takes about 500 MiB of it); past it the upload is refused (413).", float),
+    Setting("analysis_wall_s", "REMANENCE_ANALYSIS_WALL_S",
+            "Seconds of real time one upload's analysis may take before its child process is killed (413).", float),
+    Setting("analysis_workers", "REMANENCE_ANALYSIS_WORKERS",
+            "Child processes analysing uploads at once, per server or worker process; more uploads wait.", int),
+    Setting("upload_failures", "REMANENCE_UPLOAD_FAILURES",
+            "Refused uploads (400, 413, 415, 422) one caller may make within the window before further uploads "
+            "answer 429.", int),
+    Setting("upload_failure_window_s", "REMANENCE_UPLOAD_FAILURE_WINDOW_S",
+            "The window, in seconds, over which refused uploads are counted per caller.", float),
 )
 
 
@@ -116,6 +130,17 @@ class Settings:
     keep_alive_s: int = 5
     search_per_minute: float = 60.0
     search_burst: int = 20
+    # Budgets for one upload's analysis (server/budget.py). Sized for a 2-core group server: a
+    # well-formed file of any kind takes well under a second and 100 MiB here; the margins leave
+    # room for a large but honest file on a loaded machine.
+    analysis_cpu_s: float = 20.0
+    analysis_memory_mb: float = 2048.0
+    analysis_wall_s: float = 60.0
+    analysis_workers: int = 2
+    # Common practice for an instrument PC's token: a person fixing a file's columns retries a few
+    # times; dozens of refusals in ten minutes are a script sending the same bad bytes again.
+    upload_failures: int = 30
+    upload_failure_window_s: float = 600.0
 
     @classmethod
     def from_env(cls, environ: Mapping[str, str] | None = None, **overrides: Any) -> "Settings":

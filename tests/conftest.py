@@ -105,6 +105,9 @@ def settings(db_url, tmp_path) -> Settings:
         database_url=db_url,
         secret_key="test-secret-key-not-for-production",
         embedded_worker=False,
+        # The bad-input suites send hundreds of refused files with one token; the refused-upload limit has its own
+        # tests (tests/trust/test_upload_failures.py), with a small limit and a clock of their own.
+        upload_failures=100_000,
     ).resolved()
 
 

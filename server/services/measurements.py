@@ -20,6 +20,7 @@ from .. import access
 from ..access import Actor
 from ..analysis.pxrd import ReferenceStructure
 from ..analysis.results import jsonable
+from ..budget import AnalysisPool
 from ..errors import InputError, OverLimit
 from ..ingest.conditions import FORM_FIELDS, Conditions, form_value_as_given, parse_conditions, with_defaults
 from ..kinds import KINDS, Context, Kind
@@ -105,11 +106,25 @@ def read(kind: Kind, raw: bytes, *, filename: str | None, form: Mapping[str, Opt
 
 
 def analyse(kind: Kind, raw: bytes, *, filename: str | None, form: Mapping[str, Optional[str]], context: Context,
-            defaults: Mapping[str, Optional[float]] | None = None, parsed: Any = None) -> Analysed:
-    """Read and analyse one file (pure: no database). Raises InputError on bad input."""
-    parsed, conditions = read(kind, raw, filename=filename, form=form, defaults=defaults, parsed=parsed)
-    result = kind.analyse(parsed, conditions, context)
+            defaults: Mapping[str, Optional[float]] | None = None, parsed: Any = None,
+            budget: Optional[AnalysisPool] = None) -> Analysed:
+    """Read and analyse one file (pure: no database). Raises InputError on bad input.
+
+    ``budget``: run the read and the analysis in that pool's child process, within its CPU-time,
+    memory and wall-time budget (:mod:`server.budget`; OverLimit 413 past it). Every route that
+    takes a file passes one; without it (re-analysing stored files from the command line, a
+    stored measurement's figure) the work runs here."""
+    args = (kind.name, raw, filename, dict(form), context, dict(defaults or {}), parsed)
+    parsed, conditions, result = budget.run(_read_and_analyse, *args) if budget is not None else _read_and_analyse(*args)
     return Analysed(kind=kind, parsed=parsed, conditions=conditions, result=result)
+
+
+def _read_and_analyse(kind_name: str, raw: bytes, filename: str | None, form: dict, context: Context,
+                      defaults: dict, parsed: Any) -> tuple[Any, Conditions, Any]:
+    """The budgeted unit of work (module level, so a child process can be sent it by name)."""
+    kind = KINDS[kind_name]
+    parsed, conditions = read(kind, raw, filename=filename, form=form, defaults=defaults, parsed=parsed)
+    return parsed, conditions, kind.analyse(parsed, conditions, context)
 
 
 def same_conditions(stored: Mapping[str, Any], new: Conditions, *, given_only: bool = False) -> bool:
@@ -156,6 +171,7 @@ def upload_measurement(
     actor: str,
     allowed_kinds: Optional[Sequence[str]] = None,
     sample: Optional[Sample] = None,
+    budget: Optional[AnalysisPool] = None,
 ) -> tuple[Measurement, bool]:
     """Store and analyse an instrument file for a sample of a batch; returns (measurement, created).
 
@@ -164,6 +180,7 @@ def upload_measurement(
     to the same sample with the same conditions return the stored measurement (created False);
     with other conditions they are refused (Duplicate, 409: corrections go through
     :func:`revise_measurement`). Bytes whose only copies are archived or superseded are stored anew.
+    ``budget``: the pool the file is analysed in (:func:`analyse`); OverLimit 413 past its budget.
     """
     if batch.archived:
         raise Archived(f"batch {batch.code} is archived; restore it before adding measurements")
@@ -183,7 +200,7 @@ def upload_measurement(
             _, conditions = read(kind, raw, filename=filename, form=form, defaults=defaults)
             return _same_or_conflict(existing, conditions), False
     context = context_for(compound, session=session, kind=kind)
-    done = analyse(kind, raw, filename=filename, form=form, context=context, defaults=defaults)
+    done = analyse(kind, raw, filename=filename, form=form, context=context, defaults=defaults, budget=budget)
 
     if sample is None:
         sample = samples.ensure_default_sample(session, batch, actor=actor)  # first: it may roll back a lost race
@@ -270,6 +287,7 @@ def revise_measurement(
     actor: str,
     raw: Optional[bytes] = None,
     filename: Optional[str] = None,
+    budget: Optional[AnalysisPool] = None,
 ) -> Measurement:
     """Correct a measurement: a new measurement with the changed conditions (and optionally a
     replacement file) that ``supersedes`` the old one; the old one keeps its rows and raw file,
@@ -302,7 +320,7 @@ def revise_measurement(
     name = filename if raw is not None else old_raw.filename
     sha = hashlib.sha256(data).hexdigest()
     done = analyse(kind, data, filename=name, form=merged, context=context_for(compound, session=session, kind=kind),
-                   defaults=samples.sample_defaults(sample), parsed=stored_table(session, m, data))
+                   defaults=samples.sample_defaults(sample), parsed=stored_table(session, m, data), budget=budget)
     if sha == m.sha256 and same_conditions(m.conditions, done.conditions):
         raise InputError("the revision changes nothing: give a condition that differs from the stored one, "
                          "or a replacement file", field="conditions")

@@ -17,6 +17,7 @@ from sqlmodel import Session
 
 from .. import access
 from ..access import Actor
+from ..budget import AnalysisPool
 from ..errors import InputError
 from ..ingest.columns import BY_NAME
 from ..ingest.profiles import ProfiledRead, read_profiled
@@ -62,12 +63,13 @@ def resolve_profile(session: Session, *, profile_name: Optional[str], kind_name:
     return row, row.kind
 
 
-def _analyse_blocks(kind, read: ProfiledRead, raw: bytes, *, filename, form, context, defaults) -> list[Analysed]:  # noqa: ANN001
+def _analyse_blocks(kind, read: ProfiledRead, raw: bytes, *, filename, form, context, defaults,  # noqa: ANN001
+                    budget: Optional[AnalysisPool]) -> list[Analysed]:
     varies = read.profile.varies
     if varies and len(read.blocks) > 1 and (form.get(varies) or "").strip():
         raise InputError(f"{varies} varies between the blocks of this file; leave it out of the form", field=varies)
-    return [analyse(kind, raw, filename=filename, form=form, context=context, defaults=defaults, parsed=b.table)
-            for b in read.blocks]
+    return [analyse(kind, raw, filename=filename, form=form, context=context, defaults=defaults, parsed=b.table,
+                    budget=budget) for b in read.blocks]
 
 
 def _series_variable(varies: Optional[str]) -> Optional[str]:
@@ -88,7 +90,8 @@ def _direction(done: Sequence[Analysed]) -> Optional[str]:
 
 def upload_profiled(*, session: Session, batch: Batch, sample: Optional[Sample], profile_row: Any, raw: bytes,
                     filename: Optional[str], form: Mapping[str, Optional[str]], actor: Actor,
-                    allowed_kinds: Optional[Sequence[str]] = None) -> tuple[dict[str, Any], bool]:
+                    allowed_kinds: Optional[Sequence[str]] = None,
+                    budget: Optional[AnalysisPool] = None) -> tuple[dict[str, Any], bool]:
     """Store a file read through a profile: ``({"measurements": [...], "series": ...}, created)``.
 
     The answer's measurements are as ``actor`` may see them. The same bytes again with the same
@@ -104,7 +107,7 @@ def upload_profiled(*, session: Session, batch: Batch, sample: Optional[Sample],
     defaults = samples.sample_defaults(sample)
     read = read_profiled(raw, profile)
     done = _analyse_blocks(kind, read, raw, filename=filename, form=form, context=context_for(compound, session=session, kind=kind),
-                           defaults=defaults)
+                           defaults=defaults, budget=budget)
     if sample is None:
         sample = samples.ensure_default_sample(session, batch, actor=actor.label)
     existing = [_live_copy(session, sample.id, sha, kind.name, i) for i in range(len(done))]
@@ -212,7 +215,8 @@ def _result_part(d: Analysed) -> dict[str, Any]:
 
 def dry_run(*, session: Session, batch: Batch, sample: Optional[Sample], kind_name: str, profile_row: Any,
             raw: bytes, filename: Optional[str], form: Mapping[str, Optional[str]], actor: Actor,
-            allowed_kinds: Optional[Sequence[str]] = None, with_figure: bool = False) -> dict[str, Any]:
+            allowed_kinds: Optional[Sequence[str]] = None, with_figure: bool = False,
+            budget: Optional[AnalysisPool] = None) -> dict[str, Any]:
     """What an upload would store, read and analysed, without storing anything or writing an audit row.
 
     ``preview`` holds the first block's canonical columns and units, the head of its rows, the row
@@ -227,11 +231,12 @@ def dry_run(*, session: Session, batch: Batch, sample: Optional[Sample], kind_na
     notes: Sequence[str] = ()
     if profile_row is not None:
         read = read_profiled(raw, import_profiles.profile_of(profile_row))
-        done = _analyse_blocks(kind, read, raw, filename=filename, form=form, context=context, defaults=defaults)
+        done = _analyse_blocks(kind, read, raw, filename=filename, form=form, context=context, defaults=defaults,
+                               budget=budget)
         spans = [(b.first_line, b.last_line) for b in read.blocks]
         notes = read.notes
     else:
-        done = [analyse(kind, raw, filename=filename, form=form, context=context, defaults=defaults)]
+        done = [analyse(kind, raw, filename=filename, form=form, context=context, defaults=defaults, budget=budget)]
         spans = [(None, None)]
         notes = getattr(done[0].parsed, "notes", ())
     first = done[0]
@@ -262,7 +267,7 @@ def dry_run(*, session: Session, batch: Batch, sample: Optional[Sample], kind_na
     return body
 
 
-def preview_profile(spec: Mapping[str, Any], raw: bytes) -> dict[str, Any]:
+def preview_profile(spec: Mapping[str, Any], raw: bytes, *, budget: Optional[AnalysisPool] = None) -> dict[str, Any]:
     """A profile not yet saved tried on a file (the profile editor): checked, read, and each block analysed
     with no registry context (pure: no database, nothing stored)."""
     profile = import_profiles.check_profile(spec)
@@ -271,7 +276,7 @@ def preview_profile(spec: Mapping[str, Any], raw: bytes) -> dict[str, Any]:
     blocks = []
     figure = None
     for i, b in enumerate(read.blocks):
-        d = analyse(kind, raw, filename=None, form={}, context=Context(), parsed=b.table)
+        d = analyse(kind, raw, filename=None, form={}, context=Context(), parsed=b.table, budget=budget)
         if i == 0 and kind.figure is not None:
             figure = figure_json(kind.figure(d.parsed, d.result))
         blocks.append({"block": i, "first_line": b.first_line, "last_line": b.last_line, "rows": int(b.table.n_rows),

@@ -5,6 +5,9 @@ from __future__ import annotations
 from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse
 
+from starlette.concurrency import run_in_threadpool
+
+from ..budget import pool_for
 from ..deps import PageActor, PageWriter, SessionDep, SettingsDep
 from ..errors import InputError
 from ..ingest.columns import QUANTITIES
@@ -51,7 +54,8 @@ async def draft(request: Request, session: SessionDep, settings: SettingsDep, ac
                        start_after=form.get("start_after") or None, units_row=form.get("units_row") == "on")
         spec = import_profiles.spec_from_form(form)
         if spec["columns"]:
-            preview = profiled_uploads.preview_profile(spec, raw)
+            # In a thread: this route is async, and the budgeted analysis waits for its child process.
+            preview = await run_in_threadpool(profiled_uploads.preview_profile, spec, raw, budget=pool_for(settings))
     except InputError as exc:
         error = str(exc)
     return render(request, "pages/import_profiles.html", _context(session, form, draft=draft, preview=preview,

@@ -6,6 +6,7 @@ from typing import Annotated, Optional
 
 from fastapi import APIRouter, File, Form, Request, UploadFile
 from fastapi.responses import HTMLResponse
+from ..budget import pool_for
 from ..deps import PageActor, PageWriter, RowId, SessionDep, SettingsDep
 from .. import merit
 from ..errors import InputError
@@ -89,7 +90,7 @@ def upload(
             target = samples.get_sample_of_batch(session, batch, sample) if sample and sample != NEW_SAMPLE else None
             preview = profiled_uploads.dry_run(session=session, batch=batch, sample=target, kind_name=kind_name,
                                                profile_row=row, raw=raw, filename=file.filename, form=conditions,
-                                               actor=actor, with_figure=True)
+                                               actor=actor, with_figure=True, budget=pool_for(settings))
             preview["kind"] = kind_name
             error = None
         except (InputError, Forbidden, Archived) as exc:
@@ -107,7 +108,8 @@ def upload(
                 raise InputError("describe the new sample first, then upload a profiled file to it", field="sample")
             target = samples.get_sample_of_batch(session, batch, sample) if sample else None
             body, _ = profiled_uploads.upload_profiled(session=session, batch=batch, sample=target, profile_row=row,
-                                                       raw=raw, filename=file.filename, form=conditions, actor=actor)
+                                                       raw=raw, filename=file.filename, form=conditions, actor=actor,
+                                                       budget=pool_for(settings))
             ms = body["measurements"]
             return redirect(f"/measurements/{ms[0]['id']}" if len(ms) == 1 else f"/samples/{ms[0]['sample']}",
                             request)
@@ -120,7 +122,7 @@ def upload(
             target = samples.get_sample_of_batch(session, batch, sample) if sample else None
         m, _ = measurements.upload_measurement(
             session=session, batch=batch, sample=target, kind_name=kind, raw=raw, filename=file.filename,
-            form=conditions, actor=actor.label,
+            form=conditions, actor=actor.label, budget=pool_for(settings),
         )
     except (InputError, Forbidden, Duplicate, Archived) as exc:
         session.rollback()
@@ -188,7 +190,8 @@ def revise(
         raw = measurements.read_upload(upload, settings.max_upload_bytes) if upload is not None else None
         new = measurements.revise_measurement(session=session, measurement=m, actor=actor.label, raw=raw,
                                               filename=upload.filename if upload is not None else None,
-                                              form={k: (v or None) for k, v in form.items()})
+                                              form={k: (v or None) for k, v in form.items()},
+                                              budget=pool_for(settings))
     except (InputError, Duplicate) as exc:
         session.rollback()
         return _measurement_page(request, session, m, actor, revise_error=str(exc),

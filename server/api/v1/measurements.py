@@ -8,6 +8,7 @@ from fastapi import APIRouter, Depends, File, Form, Query, UploadFile
 from fastapi.responses import JSONResponse, Response
 from pydantic import BaseModel
 
+from ...budget import pool_for
 from ...deps import Offset, Reader, RowId, SessionDep, SettingsDep, Uploader, Writer
 from ...kinds import KINDS
 from ...models import RawFile
@@ -147,19 +148,20 @@ def store_upload(session, settings, actor, *, batch, sample, kind: Optional[str]
     profile_row, kind = profiled_uploads.resolve_profile(session, profile_name=profile, kind_name=kind,
                                                          bound=actor.profile)
     allowed = actor.kinds if actor.scope == "upload" else None
+    budget = pool_for(settings)
     if dry_run:
         return JSONResponse(profiled_uploads.dry_run(
             session=session, batch=batch, sample=sample, kind_name=kind, profile_row=profile_row, raw=raw,
-            filename=file.filename, form=form, actor=actor, allowed_kinds=allowed), status_code=200)
+            filename=file.filename, form=form, actor=actor, allowed_kinds=allowed, budget=budget), status_code=200)
     if profile_row is not None:
         body, created = profiled_uploads.upload_profiled(
             session=session, batch=batch, sample=sample, profile_row=profile_row, raw=raw, filename=file.filename,
-            form=form, actor=actor, allowed_kinds=allowed)
+            form=form, actor=actor, allowed_kinds=allowed, budget=budget)
         body["measurements"] = accounts.hide_people(body["measurements"], sees_people=actor.sees_people)
         return JSONResponse(body, status_code=201 if created else 200)
     m, created = measurements.upload_measurement(
         session=session, batch=batch, sample=sample, kind_name=kind, raw=raw, filename=file.filename, form=form,
-        actor=actor.label, allowed_kinds=actor.kinds if actor.scope == "upload" else None,
+        actor=actor.label, allowed_kinds=allowed, budget=budget,
     )
     body = accounts.hide_people(measurements.measurement_as_seen(session, m, actor), sees_people=actor.sees_people)
     return JSONResponse(body, status_code=201 if created else 200)
@@ -184,7 +186,8 @@ def revise(
     m = measurements.get_measurement(session, measurement_id)
     raw = measurements.read_upload(file, settings.max_upload_bytes) if file is not None else None
     new = measurements.revise_measurement(session=session, measurement=m, form=form, actor=actor.label, raw=raw,
-                                          filename=file.filename if file is not None else None)
+                                          filename=file.filename if file is not None else None,
+                                          budget=pool_for(settings))
     return JSONResponse(measurements.measurement_read(session, new), status_code=201)
 
 

@@ -92,6 +92,18 @@ SETTINGS: tuple[Setting, ...] = (
             "Seconds a client has to send a request's whole body (an upload) before it is answered 408.", float),
     Setting("keep_alive_s", "REMANENCE_KEEP_ALIVE_S",
             "Seconds an idle kept-alive connection stays open.", int),
+    Setting("smtp_host", "REMANENCE_SMTP_HOST",
+            "SMTP server for notification e-mail; empty (the default) sends none. Accounts choose the events and "
+            "give their address on the inbox page."),
+    Setting("smtp_port", "REMANENCE_SMTP_PORT", "Port of the SMTP server.", int),
+    Setting("smtp_from", "REMANENCE_SMTP_FROM", "From address of notification e-mail."),
+    Setting("smtp_user", "REMANENCE_SMTP_USER", "SMTP login name; empty: no login."),
+    Setting("smtp_password", "REMANENCE_SMTP_PASSWORD", "SMTP password (with REMANENCE_SMTP_USER)."),
+    Setting("smtp_starttls", "REMANENCE_SMTP_STARTTLS", "Upgrade the SMTP connection with STARTTLS before login.",
+            _bool),
+    Setting("public_url", "REMANENCE_PUBLIC_URL",
+            "The address people open the registry at (https://registry.example.org), for links in e-mail; "
+            "empty: e-mail gives paths only."),
 )
 
 
@@ -116,6 +128,13 @@ class Settings:
     keep_alive_s: int = 5
     search_per_minute: float = 60.0
     search_burst: int = 20
+    smtp_host: str = ""
+    smtp_port: int = 25
+    smtp_from: str = "remanence@localhost"
+    smtp_user: str = ""
+    smtp_password: str = ""
+    smtp_starttls: bool = False
+    public_url: str = ""
 
     @classmethod
     def from_env(cls, environ: Mapping[str, str] | None = None, **overrides: Any) -> "Settings":

@@ -15,6 +15,12 @@ The access table (a caller is a logged-in user with a role, or an API token with
 | token, scope upload    | yes  | no                       | yes (its kinds)     | no           | no    |
 | token, scope write     | yes  | yes                      | yes                 | yes          | no    |
 
+Notifications (an inbox, follows of compounds, event preferences) belong to accounts: every logged-in
+user has their own, whatever the role (a viewer may mark its notifications read and follow compounds);
+tokens have none (:func:`has_inbox`). A notification about a compound is shown only to a reader who may
+see that compound (``services/notifications.py`` asks :func:`may_see_structure` when it writes one, and
+filters with :func:`structure_visible` when it reads them).
+
 A queued or running job may be cancelled only by whoever queued it (same account or token) or
 an admin (:func:`may_cancel_job`).
 
@@ -107,6 +113,20 @@ class Actor:
         if self.scope == "upload":
             return self.kinds is None or kind is None or kind in self.kinds
         return False
+
+
+def account_actor(user) -> Actor:  # noqa: ANN001 - a models.User
+    """The actor an account is when it reads (a notification's recipient, before it logs in)."""
+    return Actor(kind="user", name=user.username, role=user.role, user_id=user.id)
+
+
+#: Why a token is refused an inbox (403 ``detail``).
+NO_INBOX = "notifications belong to accounts; a token has no inbox"
+
+
+def has_inbox(actor: Optional[Actor]) -> bool:
+    """Whether ``actor`` has an inbox of its own: a logged-in account of any role; never a token."""
+    return actor is not None and actor.kind == "user" and actor.user_id is not None
 
 
 def token_sees_embargoed(scope: Optional[str], granted: bool) -> bool:

@@ -23,14 +23,14 @@ from .api import docs_page as api_docs_page
 from .cookies import CookieMiddleware
 from .db import make_engine
 from .errors import InputError, OverLimit
-from .access import NotLoggedIn, Refused, may_cancel_job, may_see_structure
+from .access import NotLoggedIn, Refused, has_inbox, may_cancel_job, may_see_structure
 from .services.errors import Archived, Duplicate, Forbidden, NotFound, TooLarge
 from .package_files import static_dir, templates_dir
 from .plots.alt import figure_alt
 from .ratelimit import FailureWindow, TokenBuckets, caller_key
 from .serving import BodyDeadline
 from .settings import Settings, get_settings
-from . import hazards, text_guard
+from . import hazards, mail, text_guard
 from .web import format as format_filters
 from .web import admin as admin_pages
 from .web import auth as auth_pages
@@ -43,6 +43,7 @@ from .web import import_profiles as import_profile_pages
 from .web import compounds as compound_pages
 from .web import digest as digest_pages
 from .web import measurements as measurement_pages
+from .web import notifications as notification_pages
 from .web import planning as planning_pages
 from .web import samples as sample_pages
 from .web import scaffolds as scaffold_pages
@@ -193,9 +194,10 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     )
     app.state.settings = settings
     app.state.engine = engine
+    mail.attach(engine, settings)  # notification e-mail, when REMANENCE_SMTP_HOST is set
     templates = Jinja2Templates(directory=str(templates_dir()))
     templates.env.globals.update(version=__version__, static_url=static_url, plotly_bundle=PLOTLY_BUNDLE,
-                                 may_see_structure=may_see_structure, may_cancel_job=may_cancel_job,
+                                 may_see_structure=may_see_structure, may_cancel_job=may_cancel_job, has_inbox=has_inbox,
                                  form_cautions=hazards.form_cautions, hazard_defer=hazards.DEFER)
     format_filters.install(templates.env)
     templates.env.filters["figure_alt"] = figure_alt  # a figure's axes and data tables (figure_block macro)
@@ -279,7 +281,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(api_docs_page.router)
     for pages in (auth_pages, compound_pages, batch_pages, scaffold_pages, measurement_pages, sample_pages,
                   campaign_pages, admin_pages, digest_pages, compare_pages, planning_pages, comment_pages,
-                  freeze_pages, import_profile_pages):
+                  freeze_pages, import_profile_pages, notification_pages):
         app.include_router(pages.router)
     # Versioned addresses (server/web/assets.py) are cached for a year, anything else revalidated.
     app.mount("/static", VersionedStaticFiles(directory=str(static_dir())), name="static")

@@ -149,7 +149,17 @@ async def require_admin(request: Request, actor: OptionalActor) -> Actor:
     return await _require(request, actor, access.ADMIN)
 
 
+async def require_account(request: Request, actor: OptionalActor) -> Actor:
+    """A logged-in account of any role, for its own inbox, follows and preferences (CSRF on writes)."""
+    actor = require_reader(request, actor)
+    if not access.has_inbox(actor):
+        raise HTTPException(403, access.NO_INBOX)
+    await check_csrf(request, actor)
+    return actor
+
+
 Reader = Annotated[Actor, Depends(require_reader)]
+Account = Annotated[Actor, Depends(require_account)]
 Writer = Annotated[Actor, Depends(require_writer)]
 Uploader = Annotated[Actor, Depends(require_uploader)]
 Admin = Annotated[Actor, Depends(require_admin)]
@@ -181,7 +191,16 @@ async def page_admin(request: Request, actor: Annotated[Actor, Depends(page_acto
     return await _page_require(request, actor, access.ADMIN)
 
 
+async def page_account(request: Request, actor: Annotated[Actor, Depends(page_actor)]) -> Actor:
+    """A logged-in account for its inbox page and form posts (with their CSRF token)."""
+    if not access.has_inbox(actor):
+        raise access.Refused("Notifications belong to accounts; log in with yours to see your inbox.")
+    await check_csrf(request, actor)
+    return actor
+
+
 PageActor = Annotated[Actor, Depends(page_actor)]
+PageAccount = Annotated[Actor, Depends(page_account)]
 PageWriter = Annotated[Actor, Depends(page_writer)]
 PageAdmin = Annotated[Actor, Depends(page_admin)]
 

@@ -106,6 +106,18 @@ SETTINGS: tuple[Setting, ...] = (
             "answer 429.", int),
     Setting("upload_failure_window_s", "REMANENCE_UPLOAD_FAILURE_WINDOW_S",
             "The window, in seconds, over which refused uploads are counted per caller.", float),
+    Setting("smtp_host", "REMANENCE_SMTP_HOST",
+            "SMTP server for notification e-mail; empty (the default) sends none. Accounts choose the events and "
+            "give their address on the inbox page."),
+    Setting("smtp_port", "REMANENCE_SMTP_PORT", "Port of the SMTP server.", int),
+    Setting("smtp_from", "REMANENCE_SMTP_FROM", "From address of notification e-mail."),
+    Setting("smtp_user", "REMANENCE_SMTP_USER", "SMTP login name; empty: no login."),
+    Setting("smtp_password", "REMANENCE_SMTP_PASSWORD", "SMTP password (with REMANENCE_SMTP_USER)."),
+    Setting("smtp_starttls", "REMANENCE_SMTP_STARTTLS", "Upgrade the SMTP connection with STARTTLS before login.",
+            _bool),
+    Setting("public_url", "REMANENCE_PUBLIC_URL",
+            "The address people open the registry at (https://registry.example.org), for links in e-mail; "
+            "empty: e-mail gives paths only."),
 )
 
 
@@ -141,6 +153,13 @@ class Settings:
     # times; dozens of refusals in ten minutes are a script sending the same bad bytes again.
     upload_failures: int = 30
     upload_failure_window_s: float = 600.0
+    smtp_host: str = ""
+    smtp_port: int = 25
+    smtp_from: str = "remanence@localhost"
+    smtp_user: str = ""
+    smtp_password: str = ""
+    smtp_starttls: bool = False
+    public_url: str = ""
 
     @classmethod
     def from_env(cls, environ: Mapping[str, str] | None = None, **overrides: Any) -> "Settings":

@@ -52,7 +52,7 @@ from ..access import NOT_JOB_OWNER, Refused
 from ..analysis.results import jsonable
 from ..errors import InputError
 from ..models import JOB_STATES, Compound, Job, utcnow
-from ..services import audit
+from ..services import audit, notifications
 from ..services.errors import NotFound
 
 #: A job whose worker stopped heartbeating this many times is failed instead of requeued.
@@ -114,8 +114,11 @@ def _worker_actor(worker: str) -> str:
 
 
 def _audit_state(session: Session, job: Job, *, actor: str, action: str, before: str, **after: Any) -> None:
+    """Every change of a job's state is audited here; an end (done, failed) is also its owner's notification."""
     audit.record(session, actor=actor, action=action, entity="job", code=str(job.id), compound_id=job.compound_id,
                  before={"state": before}, after={"state": job.state, "kind": job.kind, **jsonable(after)})
+    if job.state in ("done", "failed"):
+        notifications.job_ended(session, job, actor=actor)
 
 
 # --------------------------------------------------------------------------- user side
@@ -403,6 +406,8 @@ def requeue_stale(engine: Bind, *, timeout_s: float, max_attempts: int = MAX_ATT
             audit.record(session, actor="worker:stale-check", action=f"job.{outcome}", entity="job", code=str(job_id),
                          compound_id=job.compound_id, before={"state": "running", "worker": worker},
                          after={"state": job.state, "attempts": attempts, "last_heartbeat": last})
+            if outcome == "failed":
+                notifications.job_ended(session, job, actor="worker:stale-check")
             out[outcome].append(job_id)
         session.commit()
     return out

@@ -356,6 +356,9 @@ def run_worker(settings: Any, *, name: Optional[str] = None, once: bool = False,
         logging.basicConfig(level=logging.INFO, format="%(asctime)s %(name)s %(levelname)s %(message)s")
     os.environ.setdefault("OMP_NUM_THREADS", "1")
     engine = make_engine(settings.database_url)
+    from .. import mail
+
+    mail.attach(engine, settings)  # a job's end e-mails its owner when SMTP is configured
     worker = Worker(engine, name=name or default_name(), handlers=handlers or _default_handlers(),
                     poll_s=poll_s, stale_timeout_s=stale_timeout_s)
     stop = threading.Event()

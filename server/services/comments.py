@@ -22,7 +22,7 @@ from ..errors import InputError
 from ..models import (COMMENT_TARGETS, Batch, Comment, CommentRead, Compound, Measurement, Sample, User,
                       utcnow)
 from ..rich_text import find_mentions, render_markdown
-from . import audit, measurements, registry, samples
+from . import audit, measurements, notifications, registry, samples
 from .errors import Forbidden, NotFound
 
 MAX_BODY = 20000
@@ -109,9 +109,17 @@ def post_comment(*, session: Session, target: Target, body: str, actor: Actor) -
     session.flush()
     audit.record(session, actor=actor.label, action="comment.create", entity="comment", code=str(comment.id),
                  compound_id=target.compound.id, after=audit.snapshot(comment))
+    _notify_mentions(session, target, comment, comment.mentions, actor=actor)
     session.commit()
     session.refresh(comment)
     return comment
+
+
+def _notify_mentions(session: Session, target: Target, comment: Comment, names: list[str], *, actor: Actor) -> None:
+    """Exactly the accounts ``names`` (newly) mentioned hear of it; an edit does not repeat old mentions."""
+    where = f"measurement {target.ref}" if target.kind == "measurement" else f"{target.kind} {target.ref}"
+    notifications.mentioned(session, names=names, compound=target.compound, where=where, url=target.page_url,
+                            body=comment.body, actor=actor.label)
 
 
 def get_comment(session: Session, comment_id: int, *, actor: Optional[Actor]) -> Comment:
@@ -137,6 +145,8 @@ def edit_comment(*, session: Session, comment: Comment, body: str, actor: Actor)
     session.add(comment)
     audit.record(session, actor=actor.label, action="comment.edit", entity="comment", code=str(comment.id),
                  compound_id=comment.compound_id, before=before, after=audit.snapshot(comment))
+    added = [n for n in comment.mentions if n not in set(before.get("mentions") or [])]
+    _notify_mentions(session, target_of(session, comment), comment, added, actor=actor)
     session.commit()
     session.refresh(comment)
     return comment

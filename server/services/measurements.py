@@ -26,7 +26,7 @@ from ..ingest.conditions import FORM_FIELDS, Conditions, form_value_as_given, pa
 from ..kinds import KINDS, Context, Kind
 from ..models import Batch, Compound, Measurement, RawFile, Sample, live_measurement, utcnow
 from ..plots import figure_json
-from . import audit, import_profiles, samples, stats, verdicts
+from . import audit, import_profiles, notifications, samples, stats, verdicts
 from .errors import Archived, Duplicate, Forbidden, NotFound, TooLarge
 
 __all__ = ["FORM_FIELDS", "upload_measurement", "revise_measurement", "reanalyse", "reanalyse_one", "set_archived",
@@ -218,11 +218,23 @@ def upload_measurement(
             raise
         return _same_or_conflict(again, done.conditions), False
     refresh_derived(session, [m], actor=actor)
-    audit.record(session, actor=actor, action="measurement.create", entity="measurement", code=str(m.id),
-                 compound_id=compound.id, after={k: v for k, v in audit.snapshot(m).items() if k != "results"})
+    record_created(session, compound, [m], actor=actor)
     session.commit()
     session.refresh(m)
     return m, True
+
+
+def record_created(session: Session, compound: Compound, stored: Sequence[Measurement], *, actor: str,
+                   supersedes: Optional[int] = None) -> None:
+    """The one place a stored measurement is announced: its ``measurement.create`` AuditEvent (results
+    left out: they are on the row) and the notification of the compound's registrant and followers."""
+    for m in stored:
+        after = {k: v for k, v in audit.snapshot(m).items() if k != "results"}
+        if supersedes is not None:
+            after["supersedes"] = supersedes
+        audit.record(session, actor=actor, action="measurement.create", entity="measurement", code=str(m.id),
+                     compound_id=compound.id, after=after)
+    notifications.measurements_stored(session, compound, stored, actor=actor)
 
 
 def _store(session: Session, *, batch: Batch, sample: Sample, done: Analysed, raw: bytes, sha: str,
@@ -345,9 +357,7 @@ def revise_measurement(
                  compound_id=compound.id, before=before,
                  after={"superseded_by": new.id, "conditions": new.conditions, "sha256": new.sha256,
                         "results": new.results})
-    audit.record(session, actor=actor, action="measurement.create", entity="measurement", code=str(new.id),
-                 compound_id=compound.id,
-                 after={**{k: v for k, v in audit.snapshot(new).items() if k != "results"}, "supersedes": m.id})
+    record_created(session, compound, [new], actor=actor, supersedes=m.id)
     session.commit()
     session.refresh(new)
     return new

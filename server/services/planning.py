@@ -15,7 +15,7 @@ from ..access import Actor, structure_visible
 from ..errors import InputError
 from ..models import Compound, CompoundPlan, CompoundStats, utcnow
 from ..models.planning import LIFE_STATES, PLAN_STATES
-from . import audit, stats
+from . import audit, notifications, stats
 
 
 def check_state(state: str, *, reason: Optional[str], current: Optional[CompoundPlan]) -> None:
@@ -59,12 +59,14 @@ def apply_changes(session: Session, compound: Compound, changes: dict[str, Any],
         raise InputError("this compound has no plan: give a state (planned or in_synthesis) first", field="state")
     if plan is None:
         plan = CompoundPlan(compound_id=compound.id)
+    assignee_before = plan.assignee or ""
     for key, value in wanted.items():
         setattr(plan, key, value.strip() if isinstance(value, str) else value)
     if plan.state != "abandoned" and "reason" not in wanted:
         plan.reason = ""
     plan.updated_at, plan.updated_by = utcnow(), actor
     session.add(plan)
+    notifications.assigned(session, compound, before=assignee_before, after=plan.assignee or "", actor=actor)
     return plan
 
 

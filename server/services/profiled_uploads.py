@@ -28,6 +28,7 @@ from ..models import SERIES_VARIABLES, Batch, Compound, Measurement, Sample
 from . import audit, import_profiles, samples, series
 from .errors import Archived, Duplicate, Forbidden
 from .measurements import (Analysed, _live_copy, _store, analyse, context_for, get_kind, measurement_as_seen,
+                           record_created,
                            refresh_derived, same_conditions)
 
 #: Rows of the parsed table shown in a preview.
@@ -127,10 +128,7 @@ def upload_profiled(*, session: Session, batch: Batch, sample: Optional[Sample],
             raise
         return _again(session, again, done, actor), False
     refresh_derived(session, stored, actor=actor.label)
-    for m in stored:
-        audit.record(session, actor=actor.label, action="measurement.create", entity="measurement", code=str(m.id),
-                     compound_id=compound.id,
-                     after={k: v for k, v in audit.snapshot(m).items() if k != "results"})
+    record_created(session, compound, stored, actor=actor.label)
     row = None
     variable = _series_variable(profile.varies)
     if len(stored) >= 2 and variable is not None:

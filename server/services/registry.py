@@ -30,7 +30,7 @@ from ..models import (
 )
 from ..access import Actor, may_see_structure, structure_visible
 from ..settings import Settings
-from . import audit, codes, planning, search, stats, verdicts
+from . import audit, codes, notifications, planning, search, stats, verdicts
 from .errors import Duplicate, NotFound
 
 
@@ -161,6 +161,7 @@ def register_compound(*, session: Session, settings: Settings, data: CompoundCre
         plan = planning.new_plan(compound, state=data.state, rationale=data.rationale, priority=data.priority,
                                  assignee=data.assignee, actor=actor)
         session.add(plan)
+        notifications.assigned(session, compound, before="", after=plan.assignee, actor=actor)
         planning.queue_estimate_of_target(session, compound, actor=actor)
     audit.record(
         session, actor=actor, action="compound.create", entity="compound", code=compound.code,

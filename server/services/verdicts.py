@@ -14,7 +14,7 @@ from ..verdict_codes import LABELS, RETIRED, effective
 from ..analysis.constants import CAL_J
 from ..models import BarrierEstimate, Batch, Compound, CompoundSideChain, Measurement, utcnow, live_measurement
 from .stats import MEASURED_METHODS
-from . import audit, pattern_runs
+from . import audit, notifications, pattern_runs
 from .series import combine_series_tc, compound_series_entries
 
 
@@ -119,7 +119,8 @@ def recompute(session: Session, compound: Compound, *, actor: str = "system:verd
     """Decide again from the current evidence and store it on the compound (the caller commits).
 
     A change of the computed code, or of its conflicts, is audited as ``verdict.change`` (old and new
-    code, the reason, the conflicts): the weekly digest reads these events.
+    code, the reason, the conflicts): the weekly digest reads these events. The compound's registrant
+    and followers are notified of a new code and of each conflict not there before.
     """
     decision = decide_for(session, compound, evidence_for(session, compound))
     old_conflicts = [c.get("message", "") for c in (compound.verdict or {}).get("conflicts") or []]
@@ -129,6 +130,8 @@ def recompute(session: Session, compound: Compound, *, actor: str = "system:verd
                      compound_id=compound.id,
                      before={"code": compound.verdict_code, "conflicts": old_conflicts},
                      after={"code": decision.code, "reason": decision.reason, "conflicts": new_conflicts})
+        notifications.verdict_changed(session, compound, old_code=compound.verdict_code, new_code=decision.code,
+                                      old_conflicts=old_conflicts, new_conflicts=new_conflicts, actor=actor)
     compound.verdict_code = decision.code
     compound.verdict = jsonable(decision.to_dict())
     compound.verdict_at = utcnow()

@@ -16,6 +16,7 @@ from fastapi.responses import HTMLResponse, RedirectResponse, Response
 
 from ..cookies import csrf_token
 from ..deps import current_actor
+from ..services import notifications
 
 
 def is_htmx(request: Request) -> bool:
@@ -42,9 +43,16 @@ def render(
            "settings": request.app.state.settings}
     ctx.update(context or {})
     name = partial if (partial and wants_fragment(request)) else template
+    if name == template:  # a whole page: its menu shows the unread count
+        ctx.setdefault("unread_count", _unread(request, ctx["actor"]))
     response = templates.TemplateResponse(request, name, ctx, status_code=status_code)
     response.headers["Vary"] = "HX-Request, HX-History-Restore-Request"
     return response
+
+
+def _unread(request: Request, actor: Any) -> int:
+    """The menu's unread badge (one count query, accounts only)."""
+    return notifications.badge_count(request.app.state.engine, actor)
 
 
 def fragment_or_redirect(request: Request, template: str, context: dict[str, Any], url: str, *,

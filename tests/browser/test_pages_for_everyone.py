@@ -43,7 +43,8 @@ def site(live):
              "new batch": f"/compounds/{code}/batches/new", "upload": f"/batches/{batch}/upload",
              "timeline": f"/compounds/{code}/timeline", "explorer": "/explorer", "outcomes": "/outcomes",
              "scaffolds": "/scaffolds", "queue": "/queue", "calibration": "/calibration", "status": "/status",
-             "compare": f"/compare?codes={code},{other}&kind=pe_loop", "digest": "/digest", "admin": "/admin"}
+             "compare": f"/compare?codes={code},{other}&kind=pe_loop", "digest": "/digest", "admin": "/admin",
+             "inbox": "/inbox"}
     pages.update({f"measurement {name}": f"/measurements/{mid}" for name, mid in ids.items()})
     return {"pages": pages, "pe_loop": ids["pe_loop"]}
 

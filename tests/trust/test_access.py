@@ -40,6 +40,11 @@ ADMIN_DETAIL = "only an admin may do this"
 # Owner-or-admin (access.may_cancel_job): the world's job was queued by the "registrar" token, so a
 # member session and another write token are refused with NOT_JOB_OWNER; an admin is not.
 OWNER_ONLY = {("post", "/api/v1/jobs/{job_id}/cancel")}
+# An account's own inbox, follows and preferences (access.has_inbox): every logged-in account, a viewer
+# too, with CSRF; no token of any scope.
+ACCOUNT_ONLY = {("post", "/api/v1/notifications/read-all"), ("post", "/api/v1/notifications/{notification_id}/read"),
+                ("put", "/api/v1/notifications/preferences"), ("put", "/api/v1/compounds/{code}/follow"),
+                ("delete", "/api/v1/compounds/{code}/follow")}
 
 PLAIN = "COc1c(OC)c(OC)c(OC)c(OC)c1OC"  # invented hexa-methoxy benzene (C12H18O6)
 SECRET = "CSc1c(SC)c(SC)c(SC)c(SC)c1SC"  # invented hexa-methylthio benzene, registered under embargo
@@ -86,7 +91,7 @@ def world(app, client, session):
                    "username": "spare-user", "token_id": spare.id, "name": "no-such-profile", "reagent_id": 1,
                    # No such comment: only its author or an admin may change one (tests/api/test_comments.py),
                    # so the matrix's positive controls aim past that rule and test the access table alone.
-                   "comment_id": 999999, "freeze_id": freeze.json()["id"]},
+                   "comment_id": 999999, "freeze_id": freeze.json()["id"], "notification_id": 999999},
         "code": code,
         "batch": batch,
         # The read token is granted the embargo (it is the positive control of the embargo tests).
@@ -129,7 +134,13 @@ def test_denied_callers_over_every_write_endpoint(app, client, world):
         expect("anonymous", 401, call(anon, method, path, params), method, path)
         expect("read token", 403, call(client, method, path, params, tokens["read"]), method, path)
         viewer, viewer_csrf = sessions["viewer"]
-        expect("viewer session", 403, call(viewer, method, path, params, {"X-CSRF-Token": viewer_csrf}), method, path)
+        if (method, path) in ACCOUNT_ONLY:
+            expect("write token", 403, call(client, method, path, params, tokens["write"]), method, path,
+                   access.NO_INBOX)
+            expect("viewer without CSRF", 403, call(viewer, method, path, params), method, path, "CSRF")
+        else:
+            expect("viewer session", 403, call(viewer, method, path, params, {"X-CSRF-Token": viewer_csrf}), method,
+                   path)
         if (method, path) not in UPLOADS:
             expect("upload token", 403, call(client, method, path, params, tokens["upload"]), method, path)
         for role in ("member", "admin"):
@@ -158,6 +169,9 @@ def test_allowed_callers_are_not_refused(app, client, world):
         callers = [("member session", sessions["member"][0], {"X-CSRF-Token": sessions["member"][1]}),
                    ("write token", client, tokens["write"]),
                    ("admin session", sessions["admin"][0], {"X-CSRF-Token": sessions["admin"][1]})]
+        if (method, path) in ACCOUNT_ONLY:  # a viewer's own inbox; no token has one (the matrix above)
+            callers = [c for c in callers if c[0] != "write token"]
+            callers.append(("viewer session", sessions["viewer"][0], {"X-CSRF-Token": sessions["viewer"][1]}))
         for who, c, headers in callers:
             r = call(c, method, path, params, headers)
             if who != "admin session" and r.status_code == 403 and r.json().get("detail") == ADMIN_DETAIL:
@@ -296,6 +310,9 @@ WEB_ADMIN = {("POST", "/compounds/{code}/verdict"), ("POST", "/status/public"), 
              ("POST", "/admin/users"), ("POST", "/admin/users/{username}/deactivate"), ("POST", "/admin/tokens"),
              ("POST", "/admin/tokens/{token_id}/revoke")}
 WEB_OWNER_ONLY = {("POST", "/jobs/{job_id}/cancel")}
+# Every account's own inbox, follows and preferences (access.has_inbox): any role; no token.
+WEB_ACCOUNT = {("GET", "/inbox"), ("POST", "/inbox/read-all"), ("POST", "/inbox/{notification_id}/read"),
+               ("POST", "/inbox/preferences"), ("POST", "/compounds/{code}/follow")}
 SECRET_LABEL = "hexakis-methylsulfanyl benzene, Q-7"  # an invented label that spells out the structure
 SECRET_NOTES = "made from hexachlorobenzene and sodium thiomethoxide"  # invented
 
@@ -327,7 +344,7 @@ def web_call(c: TestClient, method: str, path: str, params: dict, headers: dict 
 
 def test_every_web_route_is_classified(app):
     routes = set(web_routes(app))
-    classified = PUBLIC | WEB_READ | WEB_WRITE | WEB_ADMIN
+    classified = PUBLIC | WEB_READ | WEB_WRITE | WEB_ADMIN | WEB_ACCOUNT
     assert routes - classified == set(), "classify these web routes in the access matrix"
     assert classified - routes == set(), "routes named in the matrix that the app does not have"
     assert len(WEB_READ) >= 10 and len(WEB_WRITE) >= 10 and len(WEB_ADMIN) >= 5  # not iterating over nothing
@@ -347,15 +364,17 @@ def test_web_routes_follow_the_access_table(app, client, world):
     refused = lambda r: r.status_code == 403  # noqa: E731
     allowed = lambda r: r.status_code not in (401, 403) and not to_login(r)  # noqa: E731
 
-    for method, path in sorted(WEB_READ | WEB_WRITE | WEB_ADMIN):
-        need = "read" if (method, path) in WEB_READ else "write" if (method, path) in WEB_WRITE else "admin"
+    for method, path in sorted(WEB_READ | WEB_WRITE | WEB_ADMIN | WEB_ACCOUNT):
+        need = ("read" if (method, path) in WEB_READ else "write" if (method, path) in WEB_WRITE
+                else "account" if (method, path) in WEB_ACCOUNT else "admin")
         expect("anonymous", to_login, web_call(anon, method, path, p), method, path)
         callers = {"viewer": (sessions["viewer"][0], {"X-CSRF-Token": sessions["viewer"][1]}),
                    "member": (sessions["member"][0], {"X-CSRF-Token": sessions["member"][1]}),
                    "admin": (sessions["admin"][0], {"X-CSRF-Token": sessions["admin"][1]}),
                    "read token": (client, tokens["read"]), "upload token": (client, tokens["upload"]),
                    "write token": (client, tokens["write"])}
-        may = {"read": set(callers), "write": {"member", "admin", "write token"}, "admin": {"admin"}}[need]
+        may = {"read": set(callers), "write": {"member", "admin", "write token"}, "admin": {"admin"},
+               "account": {"viewer", "member", "admin"}}[need]
         if (method, path) in WEB_OWNER_ONLY:
             may = {"admin"}  # the world's job was queued by another token (access.may_cancel_job)
         for who, (c, headers) in callers.items():

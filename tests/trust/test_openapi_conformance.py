@@ -137,6 +137,18 @@ def _requests(code: str, batch: str) -> list[tuple[str, str, dict]]:
         ("GET", "/api/v1/comments/1/history", {}),
         ("POST", "/api/v1/comments/1/archive", {}),
         ("POST", "/api/v1/comments/1/restore", {}),
+        # Notifications, follows and preferences (issue 23).
+        ("PUT", f"/api/v1/compounds/{code}/follow", {}),
+        ("PUT", "/api/v1/compounds/RVZ-99999/follow", {}),  # 404
+        ("GET", "/api/v1/notifications?unread=true&limit=10", {}),
+        ("POST", "/api/v1/notifications/999/read", {}),  # 404
+        ("POST", "/api/v1/notifications/read-all", {}),
+        ("GET", "/api/v1/notifications/preferences", {}),
+        ("PUT", "/api/v1/notifications/preferences", {"json": {"email": "admin@lab.example", "events": [
+            {"event": "mention", "inbox": True, "email": True}]}}),
+        ("PUT", "/api/v1/notifications/preferences", {"json": {"email": "", "events": [
+            {"event": "mention", "email": True}]}}),  # 422: e-mail needs an address
+        ("DELETE", f"/api/v1/compounds/{code}/follow", {}),
         # Paper freezes (issue 23).
         ("POST", "/api/v1/freezes", {"json": {"name": "bowl-chains manuscript", "compounds": [code]}}),
         ("POST", "/api/v1/freezes", {"json": {"name": "bowl-chains manuscript", "compounds": [code]}}),  # 409

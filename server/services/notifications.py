@@ -1,0 +1,345 @@
+"""Notifications: each account's inbox, follows, event preferences, and optional e-mail.
+
+Each event is written where it happens, in that transaction (the caller commits):
+
+| event         | written by                                      | goes to                                   |
+|---------------|-------------------------------------------------|-------------------------------------------|
+| measurement   | ``measurements.record_created`` (every upload)  | the compound's registrant and followers   |
+| verdict       | ``verdicts.recompute`` (computed code changed)  | the compound's registrant and followers   |
+| conflict      | ``verdicts.recompute`` (a conflict not there before) | the compound's registrant and followers |
+| estimate      | ``jobs.queue`` when a job ends done or failed   | the account that queued it                |
+| mention       | ``comments.post_comment`` / ``edit_comment``    | exactly the accounts newly mentioned      |
+| assigned      | ``planning.assigned`` (registering, PATCH)      | the new assignee                          |
+
+Never to the actor of the event itself. The embargo (``server/access.py``, the one authority): a
+notification about a compound is created only for an account that may see it, and the inbox, the
+API and the unread count show one only while the reader may still see its compound. Tokens have no
+inbox (they are not accounts). E-mail (``server/mail.py``) goes after the commit, never in the way of
+the request; without REMANENCE_SMTP_HOST none is sent.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Sequence
+from email.message import EmailMessage
+from typing import Any, Optional
+
+import sqlalchemy as sa
+from sqlalchemy.exc import OperationalError
+from sqlmodel import Session, func, select
+
+from .. import access, mail
+from ..access import Actor
+from ..errors import InputError
+from ..models import Compound, CompoundFollow, Notification, NotificationPreference, NotificationRead, User, utcnow
+from ..verdict_codes import LABELS
+from .errors import Forbidden, NotFound
+
+#: The events an account can choose, in the order the preferences form lists them.
+EVENTS: dict[str, str] = {
+    "measurement": "a new measurement on a compound I registered or follow",
+    "verdict": "a verdict change (old → new) on a compound I registered or follow",
+    "conflict": "a new conflict in the verdict of a compound I registered or follow",
+    "estimate": "an estimate I queued finishing or failing",
+    "mention": "a mention of me in a comment",
+    "assigned": "a planned compound assigned to me",
+}
+#: Bounded work per request: the inbox shows at most this many at once.
+PAGE_LIMIT = 200
+TEXT_CHARS = 400
+EXCERPT_CHARS = 140
+_MAIL_KEY = "remanence_notification_mail"
+
+
+# --- writing --------------------------------------------------------------------------------------
+
+
+def who(actor_label: str) -> str:
+    """A person's name from an actor label (``user:ana`` -> ``ana``); other actors as labelled."""
+    return actor_label[5:] if actor_label.startswith("user:") else actor_label
+
+
+def _label(user: User) -> str:
+    return f"user:{user.username}"
+
+
+def notify(session: Session, *, event: str, users: Iterable[User], compound: Optional[Compound], text: str,
+           url: str, actor: str) -> list[Notification]:
+    """Add one notification per recipient who wants ``event`` (no commit). Left out: the actor
+    itself, inactive accounts, accounts that may not see ``compound``, and those who muted the event."""
+    if event not in EVENTS:
+        raise ValueError(f"unknown notification event {event!r}")
+    seen: dict[int, User] = {}
+    for u in users:
+        if u.id is None or not u.active or _label(u) == actor:
+            continue
+        if compound is not None and not access.may_see_structure(access.account_actor(u), compound):
+            continue
+        seen[u.id] = u
+    if not seen:
+        return []
+    prefs = {p.user_id: p for p in session.exec(select(NotificationPreference)
+                                                .where(NotificationPreference.user_id.in_(sorted(seen)))).all()}
+    made, letters = [], []
+    mailer = mail.mailer_for(session.get_bind())
+    for uid, u in seen.items():
+        pref = prefs.get(uid)
+        if pref is not None and event in (pref.muted or []):
+            continue
+        n = Notification(user_id=uid, event=event, compound_id=compound.id if compound is not None else None,
+                         text=text[:TEXT_CHARS], url=url, actor=actor)
+        session.add(n)
+        made.append(n)
+        if mailer is not None and pref is not None and pref.email and event in (pref.email_events or []):
+            letters.append(mailer.message(to=pref.email, subject=f"[Remanence] {text[:120]}",
+                                          body=f"{text}\n\n{mailer.link(url)}\n\n-- \nChoose which events reach you "
+                                               f"by e-mail at {mailer.link('/inbox')}\n"))
+    if letters:
+        _mail_after_commit(session, letters)
+    return made
+
+
+def _mail_after_commit(session: Session, letters: list[EmailMessage]) -> None:
+    """Queue ``letters`` for the mailer once the session commits; a rollback drops them."""
+    pending = session.info.get(_MAIL_KEY)
+    if pending is None:
+        pending = session.info[_MAIL_KEY] = []
+        sa.event.listen(session, "after_commit", _send_pending)
+        sa.event.listen(session, "after_rollback", _drop_pending)
+    pending.extend(letters)
+
+
+def _send_pending(session: Session) -> None:
+    letters, session.info[_MAIL_KEY] = session.info.get(_MAIL_KEY) or [], []
+    mailer = mail.mailer_for(session.get_bind())
+    if letters and mailer is not None:
+        mailer.send_later(letters)
+
+
+def _drop_pending(session: Session) -> None:
+    session.info[_MAIL_KEY] = []
+
+
+def account_of(session: Session, actor_label: str) -> Optional[User]:
+    """The account behind an actor label (``user:ana``); None for tokens, workers and the system."""
+    if not actor_label.startswith("user:"):
+        return None
+    return session.exec(select(User).where(User.username == actor_label[5:])).first()
+
+
+def watchers(session: Session, compound: Compound) -> list[User]:
+    """The compound's registrant and followers."""
+    users = list(session.exec(select(User).join(CompoundFollow, CompoundFollow.user_id == User.id)
+                              .where(CompoundFollow.compound_id == compound.id)).all())
+    owner = account_of(session, compound.created_by or "")
+    if owner is not None and all(u.id != owner.id for u in users):
+        users.insert(0, owner)
+    return users
+
+
+def _compound_url(compound: Compound) -> str:
+    return f"/compounds/{compound.code}"
+
+
+def measurements_stored(session: Session, compound: Compound, stored: Sequence[Any], *, actor: str) -> None:
+    """New measurements on ``compound`` (one notification per upload, however many blocks it had)."""
+    if not stored:
+        return
+    kinds = sorted({m.kind for m in stored})
+    if len(stored) == 1:
+        text = f"{who(actor)} added a {kinds[0]} measurement to {compound.code}"
+        url = f"/measurements/{stored[0].id}"
+    else:
+        text = f"{who(actor)} added {len(stored)} measurements ({', '.join(kinds)}) to {compound.code}"
+        url = _compound_url(compound)
+    notify(session, event="measurement", users=watchers(session, compound), compound=compound, text=text, url=url,
+           actor=actor)
+
+
+def verdict_changed(session: Session, compound: Compound, *, old_code: Optional[str], new_code: str,
+                    old_conflicts: Sequence[str], new_conflicts: Sequence[str], actor: str) -> None:
+    """The computed verdict changed (old -> new), or a conflict appeared that was not there before."""
+    users = None
+    if old_code != new_code:
+        users = watchers(session, compound)
+        old = LABELS.get(old_code or "", old_code or "none")
+        notify(session, event="verdict", users=users, compound=compound, actor=actor,
+               text=f"Verdict of {compound.code}: {old} → {LABELS.get(new_code, new_code)}",
+               url=_compound_url(compound) + "#verdict")
+    fresh = [c for c in new_conflicts if c not in set(old_conflicts)]
+    if fresh:
+        users = users if users is not None else watchers(session, compound)
+        more = f" (and {len(fresh) - 1} more)" if len(fresh) > 1 else ""
+        notify(session, event="conflict", users=users, compound=compound, actor=actor,
+               text=f"New conflict in the verdict of {compound.code}: {fresh[0]}{more}",
+               url=_compound_url(compound) + "#verdict")
+
+
+def job_ended(session: Session, job: Any, *, actor: str) -> None:
+    """A job ended done or failed: its owner hears of it."""
+    owner = account_of(session, job.created_by or "")
+    if owner is None or job.state not in ("done", "failed"):
+        return
+    compound = session.get(Compound, job.compound_id) if job.compound_id is not None else None
+    about = f" for {compound.code}" if compound is not None else ""
+    if job.state == "done":
+        text = f"Your {job.kind} job {job.id}{about} is done"
+    else:
+        first = (job.error or "").strip().splitlines()[0] if (job.error or "").strip() else "no message"
+        text = f"Your {job.kind} job {job.id}{about} failed: {first}"
+    notify(session, event="estimate", users=[owner], compound=compound, text=text,
+           url=_compound_url(compound) if compound is not None else "/queue", actor=actor)
+
+
+def mentioned(session: Session, *, names: Sequence[str], compound: Compound, where: str, url: str, body: str,
+              actor: str) -> None:
+    """``names`` were mentioned in a comment on ``where`` (e.g. "batch RVZ-00001-B01")."""
+    if not names:
+        return
+    users = session.exec(select(User).where(User.username.in_(sorted(set(names))))).all()
+    excerpt = " ".join(body.split())
+    if len(excerpt) > EXCERPT_CHARS:
+        excerpt = excerpt[: EXCERPT_CHARS - 1] + "…"
+    notify(session, event="mention", users=users, compound=compound, url=url, actor=actor,
+           text=f"{who(actor)} mentioned you on {where}: “{excerpt}”")
+
+
+def assigned(session: Session, compound: Compound, *, before: str, after: str, actor: str) -> None:
+    """A target's assignee changed to ``after`` (a user name)."""
+    if not after or after == before:
+        return
+    user = session.exec(select(User).where(User.username == after)).first()
+    if user is None:
+        return
+    notify(session, event="assigned", users=[user], compound=compound, actor=actor,
+           text=f"{who(actor)} assigned the planned compound {compound.code} to you", url=_compound_url(compound))
+
+
+# --- reading --------------------------------------------------------------------------------------
+
+
+def _account(actor: Optional[Actor]) -> int:
+    if not access.has_inbox(actor):
+        raise Forbidden(access.NO_INBOX)
+    return actor.user_id
+
+
+def _visible(actor: Actor, query):  # noqa: ANN001, ANN202 - a select
+    """Only the caller's own notifications, and only those whose compound the caller may see now."""
+    query = query.where(Notification.user_id == _account(actor))
+    if access.sees_embargoed(actor):
+        return query
+    return (query.outerjoin(Compound, Compound.id == Notification.compound_id)
+            .where(sa.or_(Notification.compound_id.is_(None), access.structure_visible(actor))))
+
+
+def unread_count(session: Session, actor: Optional[Actor]) -> int:
+    """The badge: a count only (index on user_id, read_at). 0 for callers without an inbox."""
+    if not access.has_inbox(actor):
+        return 0
+    return session.exec(_visible(actor, select(func.count()).select_from(Notification))
+                        .where(Notification.read_at.is_(None))).one()
+
+
+def badge_count(engine: Any, actor: Optional[Actor]) -> int:
+    """The menu's count for every page, in a session of its own; 0 when the database cannot answer
+    (an error page about that very failure still renders)."""
+    if not access.has_inbox(actor):
+        return 0
+    try:
+        with Session(engine) as session:
+            return unread_count(session, actor)
+    except OperationalError:
+        return 0
+
+
+def inbox(session: Session, actor: Actor, *, unread_only: bool = False, limit: int = 50, offset: int = 0
+          ) -> list[NotificationRead]:
+    """The caller's notifications, newest first."""
+    limit = max(1, min(limit, PAGE_LIMIT))
+    q = _visible(actor, select(Notification))
+    if unread_only:
+        q = q.where(Notification.read_at.is_(None))
+    rows = session.exec(q.order_by(Notification.created_at.desc(), Notification.id.desc())
+                        .offset(offset).limit(limit)).all()
+    ids = sorted({n.compound_id for n in rows if n.compound_id is not None})
+    codes = dict(session.exec(select(Compound.id, Compound.code).where(Compound.id.in_(ids))).all()) if ids else {}
+    return [NotificationRead(id=n.id, event=n.event, compound=codes.get(n.compound_id), text=n.text, url=n.url,
+                             created_at=n.created_at, read=n.read_at is not None) for n in rows]
+
+
+def mark_read(session: Session, actor: Actor, notification_id: int, *, read: bool = True) -> Notification:
+    """Mark one of the caller's notifications read (or unread again); NotFound for anyone else's."""
+    n = session.exec(_visible(actor, select(Notification)).where(Notification.id == notification_id)).first()
+    if n is None:
+        raise NotFound(f"no notification {notification_id}")
+    n.read_at = (n.read_at or utcnow()) if read else None
+    session.add(n)
+    session.commit()
+    session.refresh(n)
+    return n
+
+
+def mark_all_read(session: Session, actor: Actor) -> int:
+    """Mark every unread notification of the caller read (those it may see); returns how many."""
+    mine = _visible(actor, select(Notification.id)).where(Notification.read_at.is_(None))
+    done = session.execute(sa.update(Notification).where(Notification.id.in_(mine.scalar_subquery()))
+                           .values(read_at=utcnow()).execution_options(synchronize_session=False)).rowcount
+    session.commit()
+    return done
+
+
+# --- follows and preferences ------------------------------------------------------------------------
+
+
+def is_following(session: Session, actor: Optional[Actor], compound: Compound) -> bool:
+    if actor is None or actor.user_id is None:
+        return False
+    return session.get(CompoundFollow, (actor.user_id, compound.id)) is not None
+
+
+def set_following(*, session: Session, actor: Actor, compound: Compound, follow: bool) -> bool:
+    """Follow or unfollow ``compound``; only a compound the caller may see can be followed."""
+    uid = _account(actor)
+    if not access.may_see_structure(actor, compound):
+        raise NotFound(f"no compound {compound.code}")
+    row = session.get(CompoundFollow, (uid, compound.id))
+    if follow and row is None:
+        session.add(CompoundFollow(user_id=uid, compound_id=compound.id))
+    elif not follow and row is not None:
+        session.delete(row)
+    session.commit()
+    return follow
+
+
+def preferences(session: Session, actor: Actor) -> dict[str, Any]:
+    """The caller's choices: per event whether it reaches the inbox and e-mail, and the address."""
+    pref = session.get(NotificationPreference, _account(actor))
+    muted = set(pref.muted or []) if pref else set()
+    mailed = set(pref.email_events or []) if pref else set()
+    return {"email": pref.email if pref else "",
+            "events": [{"event": e, "label": label, "inbox": e not in muted, "email": e in mailed}
+                       for e, label in EVENTS.items()]}
+
+
+def set_preferences(*, session: Session, actor: Actor, inbox_events: Iterable[str], email_events: Iterable[str],
+                    email: str) -> dict[str, Any]:
+    """Store the caller's choices: the events wanted in the inbox and by e-mail, and the address."""
+    uid = _account(actor)
+    wanted, mailed = set(inbox_events), set(email_events)
+    unknown = sorted((wanted | mailed) - set(EVENTS))
+    if unknown:
+        raise InputError(f"unknown event {unknown[0]!r}; use one of {', '.join(EVENTS)}", field="events")
+    address = (email or "").strip()
+    if address and (len(address) > 254 or "@" not in address or any(c.isspace() for c in address)):
+        raise InputError("give an e-mail address such as name@example.org, or leave it empty", field="email")
+    if mailed and not address:
+        raise InputError("give an e-mail address for the events chosen for e-mail", field="email")
+    pref = session.get(NotificationPreference, uid) or NotificationPreference(user_id=uid)
+    # e-mail of an event implies it is wanted at all: it still lands in the inbox
+    pref.muted = [e for e in EVENTS if e not in wanted and e not in mailed]
+    pref.email_events = [e for e in EVENTS if e in mailed]
+    pref.email, pref.updated_at = address, utcnow()
+    session.add(pref)
+    session.commit()
+    return preferences(session, actor)

@@ -15,6 +15,7 @@ from __future__ import annotations
 from typing import Iterable, Optional
 
 from sqlalchemy import delete, func
+from sqlalchemy.exc import IntegrityError
 from sqlmodel import Session, select
 
 from .. import merit
@@ -131,7 +132,15 @@ def ensure_current(session: Session) -> int:
     were rebuilt (0 when nothing was stale, so running it again changes nothing)."""
     if stored_rule(session) == RULE and not missing(session):
         return 0
-    return refresh_all(session)
+    try:
+        return refresh_all(session)
+    except IntegrityError:
+        # another process (a second server started at the same time) recorded the rule first, so it rebuilt
+        # the same rows from the same evidence
+        session.rollback()
+        if stored_rule(session) != RULE:
+            raise
+        return 0
 
 
 def missing(session: Session) -> int:

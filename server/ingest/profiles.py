@@ -19,11 +19,12 @@ from __future__ import annotations
 
 import codecs
 import csv
-import io
+import itertools
 import re
 import warnings
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from functools import cached_property
 from typing import Any
 
 import numpy as np
@@ -431,57 +432,106 @@ def _matches_header(cells: Sequence[str], profile: Profile) -> bool:
     return all(i in found for i in range(len(sources)))
 
 
-def _blank_lines(lines: list[str], delimiter: str) -> list[int]:
-    """Indices of the blank lines (nothing but spaces and delimiters), found by one regular-expression
-    scan of the joined text rather than a Python loop over a million lines."""
-    text = "\n".join(lines)
-    if any(mark in text for mark in ("\n ", "\n\t", "\n" + delimiter)) or (lines and _blank(lines[0], delimiter)):
-        pattern = re.compile(r"^[ \t%s]*$" % re.escape(delimiter), re.MULTILINE)
-        starts = (m.start() for m in pattern.finditer(text))
-    else:  # only empty lines can be blank: plain substring search
-        starts = _empty_line_starts(text)
-    out, line, last = [], 0, 0
-    for start in starts:
-        line += text.count("\n", last, start)
-        last = start
-        out.append(line)
-    return out
+def _lines_from(text: str, pos: int = 0, end: int | None = None):  # noqa: ANN202
+    """(offset, line) of each line of ``text[pos:end]``, as ``split("\n")`` would give them, found one at a
+    time so that reading a file's head does not split its million data lines."""
+    end = len(text) if end is None else end
+    while True:
+        stop = text.find("\n", pos, end)
+        if stop == -1:
+            yield pos, text[pos:end]
+            return
+        yield pos, text[pos:stop]
+        pos = stop + 1
 
 
-def _empty_line_starts(text: str):  # noqa: ANN202
-    pos = text.find("\n\n")
-    while pos != -1:
-        yield pos + 1
-        pos = text.find("\n\n", pos + 1)
-    if text.endswith("\n"):
-        yield len(text)
+def _blank_spans(text: str, lo: int, hi: int, delimiter: str) -> tuple[list[tuple[int, int]], int]:
+    """(line index, offset) of each blank line of ``text[lo:hi]`` (nothing but spaces, tabs and delimiters),
+    found by one regular-expression scan anchored on the newlines, not a Python loop over a million lines;
+    and the number of lines."""
+    blank = r"[ \t%s]*" % re.escape(delimiter)
+    pattern = re.compile(r"\n%s(?=\n|\Z)" % blank)
+    out: list[tuple[int, int]] = []
+    first = text.find("\n", lo, hi)
+    if re.fullmatch(blank, text[lo:hi if first == -1 else first]):
+        out.append((0, lo))
+    line, last = 0, lo
+    for m in pattern.finditer(text, lo, hi):
+        line += text.count("\n", last, m.start() + 1)
+        last = m.start() + 1
+        out.append((line, last))
+    return out, line + text.count("\n", last, hi) + 1
+
+
+class _Text:
+    """``text[pos:end]`` read by pandas in chunks, without copying the whole span into a ``StringIO`` first."""
+
+    def __init__(self, text: str, pos: int, end: int) -> None:
+        self.text, self.pos, self.end = text, pos, end
+
+    def read(self, size: int = -1) -> str:
+        stop = self.end if size is None or size < 0 else min(self.end, self.pos + size)
+        out, self.pos = self.text[self.pos:stop], stop
+        return out
+
+    def __iter__(self):  # noqa: ANN204 - pandas takes an object with read and __iter__ for a file
+        return iter(self.text[self.pos:self.end].split("\n"))
+
+
+def _drop_blank_tail(text: str, lo: int, hi: int, blank) -> int:  # noqa: ANN001
+    """The end of ``text[lo:hi]`` without its trailing lines for which ``blank(line)`` holds."""
+    while hi > lo:
+        cut = text.rfind("\n", lo, hi)
+        if not blank(text[cut + 1 if cut != -1 else lo:hi]):
+            break
+        hi = max(cut, lo)
+    return hi
 
 
 @dataclass
 class _Segment:
-    start: int  # 1-based file line of lines[0]
-    lines: list[str]
+    """One block's lines: ``text[lo:hi]`` (the lines joined by newlines) and the 1-based file line of the first."""
+
+    start: int
+    text: str
+    lo: int
+    hi: int
+    known_lines: int | None = None  # the number of lines, when cutting the blocks counted them
+
+    @cached_property
+    def lines(self) -> list[str]:
+        return self.text[self.lo:self.hi].split("\n")
+
+    @property
+    def n_lines(self) -> int:
+        if self.known_lines is None:
+            self.known_lines = self.text.count("\n", self.lo, self.hi) + 1
+        return self.known_lines
 
 
-def _segments(lines: list[str], first_no: int, profile: Profile) -> list[_Segment]:
-    """Cut the table part into blocks by the profile's separator (None: one block)."""
+def _segments(text: str, lo: int, hi: int, first_no: int, profile: Profile) -> list[_Segment]:
+    """Cut the table part ``text[lo:hi]`` into blocks by the profile's separator (None: one block). A
+    blank-line separator cuts by offset; the others need the lines."""
     sep = profile.separator
     if sep is None:
-        return [_Segment(first_no, lines)]
-    cuts: list[int] = [0]
+        return [_Segment(first_no, text, lo, hi)]
     if sep == "blank_line":
-        blank = _blank_lines(lines, profile.delimiter)
         segs: list[_Segment] = []
-        begin = 0
-        for i in blank + [len(lines)]:
+        begin, begin_at = 0, lo
+        spans, n_lines = _blank_spans(text, lo, hi, profile.delimiter)
+        for i, at in spans + [(n_lines, hi + 1)]:
             if i > begin:
-                segs.append(_Segment(first_no + begin, lines[begin:i]))
-            begin = i + 1
+                segs.append(_Segment(first_no + begin, text, begin_at, at - 1, i - begin))
+            end = text.find("\n", at, hi)
+            begin, begin_at = i + 1, (hi + 1 if end == -1 else end + 1)
         return segs
+    lines = text[lo:hi].split("\n")
+    starts = list(itertools.accumulate((len(line) + 1 for line in lines), initial=lo))
+    cuts: list[int] = [0]
     if sep == "repeated_header":
         header = next((line for line in lines if _matches_header(_cells(line, profile.delimiter), profile)), None)
         if header is None:
-            return [_Segment(first_no, lines)]
+            return [_Segment(first_no, text, lo, hi)]
         at = [i for i, line in enumerate(lines) if line == header]
         for i in at[1:]:
             # The lines just above a repeated header that are not data (e.g. "Temperature: 310 K")
@@ -494,7 +544,7 @@ def _segments(lines: list[str], first_no: int, profile: Profile) -> list[_Segmen
         pattern = re.compile(sep)
         cuts.extend(i for i, line in enumerate(lines) if i > 0 and pattern.search(line))
     cuts.append(len(lines))
-    return [_Segment(first_no + a, lines[a:b]) for a, b in zip(cuts, cuts[1:]) if b > a]
+    return [_Segment(first_no + a, text, starts[a], starts[b] - 1) for a, b in zip(cuts, cuts[1:]) if b > a]
 
 
 def read_profiled(raw: bytes, profile: Profile) -> ProfiledRead:
@@ -516,42 +566,45 @@ def read_profiled(raw: bytes, profile: Profile) -> ProfiledRead:
     text, notes = _decode_for(raw, profile)
     if "\r" in text:
         text = text.replace("\r\n", "\n").replace("\r", "\n")
-    lines = text.split("\n")
-    start = 0
+    # The head is walked line by line; the table part stays one string, cut by offset (issue 14's speed).
+    head: list[tuple[int, str]] = []  # (offset, line) of the lines before the table
+    walk = _lines_from(text)
     if profile.start_after is not None:
         pattern = re.compile(profile.start_after)
-        found = next((i for i, line in enumerate(lines) if pattern.search(line)), None)
-        if found is None:
+        for at, line in walk:
+            head.append((at, line))
+            if pattern.search(line):
+                break
+        else:
             raise IngestError(f"{profile.label}: no line matches the start pattern '{profile.start_after}'",
                               field="start_after")
-        start = found + 1
-    start += profile.skip_lines
-    if start >= len(lines):
-        raise IngestError(f"{profile.label}: the file has only {len(lines)} lines; the table would start after "
-                          "them", field="skip_lines")
-    preamble = list(enumerate(lines[:start], 1))
-    body = lines[start:]
-    while body and not body[-1].strip():
-        body.pop()
+    start = len(head) + profile.skip_lines
+    head.extend(itertools.islice(walk, profile.skip_lines))
+    if len(head) < start or (head and head[-1][0] + len(head[-1][1]) >= len(text)):
+        raise IngestError(f"{profile.label}: the file has only {text.count(chr(10)) + 1} lines; the table would "
+                          "start after them", field="skip_lines")
+    preamble = [(no, line) for no, (_, line) in enumerate(head, 1)]
+    lo = head[-1][0] + len(head[-1][1]) + 1 if head else 0
+    hi = _drop_blank_tail(text, lo, len(text), lambda line: not line.strip())
 
     file_conditions = _read_conditions(preamble, profile)
     blocks: list[Block] = []
     header: tuple[list[str], list[ColumnSpec], list[int], str] | None = None
     trailing: list[tuple[int, int]] = []
-    for seg in _segments(body, start + 1, profile):
+    for seg in (_segments(text, lo, hi, start + 1, profile) if hi > lo else []):
         found = _parse_segment(seg, profile, header)
         if found is None:  # text only
             if blocks:
-                trailing.append((seg.start, seg.start + len(seg.lines) - 1))
+                trailing.append((seg.start, seg.start + seg.n_lines - 1))
             else:
                 file_conditions.update(_read_conditions(list(enumerate(seg.lines, seg.start)), profile))
             continue
-        table_header, block_lines, data_start, data = found
+        table_header, block_lines, data_start, data_at = found
         header = table_header
         own = _read_conditions(block_lines, profile)
         if not blocks:  # what the file states above its first table holds for every block
             file_conditions.update({k: v for k, v in own.items() if k != profile.varies})
-        blocks.append(_read_block(seg, profile, header, data_start, data, own, file_conditions, notes))
+        blocks.append(_read_block(seg, profile, header, data_start, data_at, own, file_conditions, notes))
     if not blocks:
         raise IngestError(f"{profile.label}: no table found after line {start}", line=start + 1)
     if trailing:
@@ -572,16 +625,29 @@ def read_profiled(raw: bytes, profile: Profile) -> ProfiledRead:
 
 
 def _parse_segment(seg: _Segment, profile: Profile, previous):  # noqa: ANN001, ANN202
-    """(header, the block's text lines, index of the first data line, data lines) or None for text only."""
+    """(header, the block's text lines, index of the first data line, the offset where the data start) or
+    None for text only. Only the lines down to the first data line are split; the data stay one string."""
     d = profile.delimiter
-    lines = seg.lines
-    first_data = next((i for i, line in enumerate(lines) if _is_data(line, profile)), None)
+    lines: list[str] = []
+    offsets: list[int] = []
+    first_data = None
+    for i, (at, line) in enumerate(_lines_from(seg.text, seg.lo, seg.hi)):
+        lines.append(line)
+        offsets.append(at)
+        if first_data is None and _is_data(line, profile):
+            first_data = i
+        if first_data is not None and i > first_data:  # one line more: a units row may start with a digit
+            break
     header_at = None
     limit = first_data if first_data is not None else len(lines)
     for i in range(limit):
         if _matches_header(_cells(lines[i], d), profile):
             header_at = i
             break
+
+    def from_line(i: int) -> int:  # the offset where line i of the segment starts
+        return offsets[i] if i < len(offsets) else seg.hi
+
     if header_at is None:
         if first_data is None:
             return None
@@ -590,11 +656,11 @@ def _parse_segment(seg: _Segment, profile: Profile, previous):  # noqa: ANN001, 
             return _missing_columns(profile, lines[near] if near is not None else "",
                                     seg.start + (near if near is not None else first_data))
         text_lines = [(seg.start + i, lines[i]) for i in range(first_data)]
-        return previous, text_lines, first_data, lines[first_data:]
+        return previous, text_lines, first_data, from_line(first_data)
     header = _columns(lines, header_at, seg.start, profile)
     data_start = header_at + 1 + (1 if profile.units_row else 0)
     text_lines = [(seg.start + i, lines[i]) for i in range(header_at)]
-    return header, text_lines, data_start, lines[data_start:]
+    return header, text_lines, data_start, from_line(data_start)
 
 
 def _missing_columns(profile: Profile, line: str, no: int):  # noqa: ANN202
@@ -684,33 +750,43 @@ def _unit_of(q: CanonicalQuantity, cm: ColumnMap, file_unit: str | None, profile
     return stated if stated is not None else given
 
 
-def _read_block(seg: _Segment, profile: Profile, header, data_start: int, data: list[str],  # noqa: ANN001
+def _read_block(seg: _Segment, profile: Profile, header, data_start: int, data_at: int,  # noqa: ANN001
                 own: dict[str, str], file_conditions: dict[str, str], notes: list[str]) -> Block:
+    """Parse one block's data, ``seg.text[data_at:seg.hi]``, handed whole to one ``pandas.read_csv``; the rows
+    are split in Python only to name the line and cell of an error."""
     cells, specs, where, _ = header
     d = profile.delimiter
     first_no = seg.start + data_start
-    while data and _blank(data[-1], d):
-        data.pop()
-    if not data:
+    text, lo = seg.text, data_at
+    hi = _drop_blank_tail(text, lo, seg.hi, lambda line: _blank(line, d))
+    if hi <= lo:
         raise IngestError(f"{profile.label}: the header row has no data rows below it", line=first_no - 1)
-    region = "\n".join(data)
-    if "\n\n" in region or ((" " in region or "\t" in region) and _BLANK_RE.search(region)):
-        # blank lines inside a block (no blank-line separator)
-        keep = [i for i, line in enumerate(data) if line.strip()]
-        data = [data[i] for i in keep]
+    inner_blank = profile.separator != "blank_line" and (
+        text.find("\n\n", lo, hi) != -1 or ((text.find(" ", lo, hi) != -1 or text.find("\t", lo, hi) != -1)
+                                             and _BLANK_RE.search(text, lo, hi)))
+    data: list[str] | None = None
+    if inner_blank:  # blank lines inside a block (no blank-line separator)
+        lines = text[lo:hi].split("\n")
+        keep = [i for i, line in enumerate(lines) if line.strip()]
+        data = [lines[i] for i in keep]
         linenos: Sequence[int] = [first_no + i for i in keep]
-        region = "\n".join(data)
-    else:
-        linenos = range(first_no, first_no + len(data))
+        text, lo = "\n".join(data), 0
+        hi, n_rows = len(text), len(data)
+    else:  # a blank-line separator already cut every blank line out
+        n_rows = seg.n_lines - data_start if hi == seg.hi else text.count("\n", lo, hi) + 1
+        linenos = range(first_no, first_no + n_rows)
+
+    def rows() -> list[str]:
+        return data if data is not None else text[lo:hi].split("\n")
 
     def cell_text(r: int, c: int) -> str:
-        row = _cells(data[r], d)
+        row = _cells(rows()[r], d)
         i = where[c]
         return row[i] if i < len(row) else ""
 
     def locate(exc: Exception) -> IngestError:
         need = max(where) + 1
-        for r, line in enumerate(data):
+        for r, line in enumerate(rows()):
             row = _cells(line, d)
             if len(row) < need:
                 return IngestError(f"{profile.label}: this row has {len(row)} fields; the header has {len(cells)}",
@@ -725,14 +801,14 @@ def _read_block(seg: _Segment, profile: Profile, header, data_start: int, data: 
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", pd.errors.ParserWarning)
-            frame = pd.read_csv(io.StringIO(region), sep=d, decimal=profile.decimal, header=None,
+            frame = pd.read_csv(_Text(text, lo, hi), sep=d, decimal=profile.decimal, header=None,
                                 usecols=where, index_col=False, dtype=np.float64, engine="c",
                                 skip_blank_lines=False, low_memory=False, names=range(max(len(cells), max(where) + 1)))
     except (ValueError, OverflowError) as exc:
         raise locate(exc) from exc
     values = frame[where].to_numpy(dtype=np.float64)
-    if values.shape[0] != len(data):
-        raise locate(ValueError(f"read {values.shape[0]} rows from {len(data)} lines"))
+    if values.shape[0] != n_rows:
+        raise locate(ValueError(f"read {values.shape[0]} rows from {n_rows} lines"))
     metadata = {**file_conditions, **own}
     table = _build(specs, values, linenos, cell_text, metadata=metadata, fmt="tsv" if d == "\t" else "csv",
                    notes=list(notes))

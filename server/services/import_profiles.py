@@ -68,6 +68,15 @@ def list_profiles(session: Session) -> list[ImportProfile]:
     return list(session.exec(query).all())
 
 
+def profile_versions(session: Session, name: str) -> list[ImportProfile]:
+    """Every version of a profile, newest first (the history the edit page shows); NotFound (404) if none."""
+    rows = list(session.exec(select(ImportProfile).where(ImportProfile.name == name)
+                             .order_by(ImportProfile.version.desc())).all())
+    if not rows:
+        raise NotFound(f"no import profile {name!r}")
+    return rows
+
+
 def profile_read(row: ImportProfile) -> dict[str, Any]:
     return {**row.spec, "id": row.id, "name": row.name, "kind": row.kind, "version": row.version,
             "created_at": row.created_at.isoformat(), "created_by": row.created_by}
@@ -175,3 +184,32 @@ def spec_from_form(form: Mapping[str, str]) -> dict[str, Any]:
     if text("separator"):
         spec["blocks"] = {"separator": text("separator"), **({"varies": text("varies")} if text("varies") else {})}
     return spec
+
+
+def form_from_spec(spec: Mapping[str, Any]) -> dict[str, str]:
+    """The editor's fields for a stored profile (the inverse of :func:`spec_from_form`), so the edit page opens
+    with the newest version filled in; a column is offered under the canonical name the profile resolves to."""
+    profile = profile_from_json(spec)
+    form: dict[str, str] = {"name": profile.name, "kind": profile.kind, "skip_lines": str(profile.skip_lines),
+                            "start_after": profile.start_after or "", "encoding": profile.encoding,
+                            "delimiter": "tab" if profile.delimiter == "\t" else profile.delimiter,
+                            "decimal": profile.decimal, "separator": profile.separator or "",
+                            "varies": profile.varies or ""}
+    if profile.units_row:
+        form["units_row"] = "on"
+    rows = [(c.source, c.quantity.name if len(c.alternatives) <= 1 else str(spec["columns"][c.source]["to"]),
+             c.unit or "") for c in profile.columns] + [(i, "ignore", "") for i in profile.ignore]
+    for i, (source, to, unit) in enumerate(rows[:EDITOR_SLOTS]):
+        form[f"source_{i}"], form[f"to_{i}"], form[f"unit_{i}"] = source, to, unit
+    for i, c in enumerate(profile.conditions[:EDITOR_SLOTS]):
+        form[f"cond_key_{i}"], form[f"cond_to_{i}"], form[f"cond_unit_{i}"] = c.source, c.to, c.unit or ""
+    return form
+
+
+def edit_from_form(*, session: Session, name: str, form: Mapping[str, str], actor: str) -> tuple[ImportProfile, bool]:
+    """Save the edit page's fields as the next version of ``name``: a key the form leaves out (no start
+    pattern, no ignored column, one table per file) goes back to its default instead of keeping the old value;
+    the description, which the page does not edit, is kept. Returns (row, created) as :func:`update_profile`."""
+    spec = spec_from_form({**form, "name": name})
+    changes = {k: spec.get(k) for k in PROFILE_KEYS if k != "description"}
+    return update_profile(session=session, name=name, changes=changes, actor=actor)

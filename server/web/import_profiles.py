@@ -21,10 +21,22 @@ from .render import redirect, render
 router = APIRouter(include_in_schema=False)
 
 
-def _context(session, form: dict, *, draft=None, preview=None, error=None) -> dict:  # noqa: ANN001
+def _context(session, form: dict, *, draft=None, preview=None, error=None, editing=None,  # noqa: ANN001
+             versions=()) -> dict:
+    """What the list/editor page shows. The mapping chosen so far is looked up by the file's column name (and
+    the header line's key), so it stays on its column when a sample file is read again or the edit page opens
+    a stored version before any file is chosen (then the rows come from the form itself)."""
+    slots = range(import_profiles.EDITOR_SLOTS)
+    mapping = {form[f"source_{i}"]: (form.get(f"to_{i}") or "", form.get(f"unit_{i}") or "")
+               for i in slots if form.get(f"source_{i}")}
+    cond_mapping = {form[f"cond_key_{i}"]: (form.get(f"cond_to_{i}") or "", form.get(f"cond_unit_{i}") or "")
+                    for i in slots if form.get(f"cond_key_{i}")}
     return {"profiles": import_profiles.list_profiles(session), "form": form, "draft": draft, "preview": preview,
             "error": error, "kinds": {k: v for k, v in KINDS.items() if v.table}, "quantities": QUANTITIES,
-            "condition_fields": CONDITION_FIELDS + TEXT_FIELDS}
+            "quantity_names": {q.name for q in QUANTITIES},
+            "condition_fields": CONDITION_FIELDS + TEXT_FIELDS, "mapping": mapping, "cond_mapping": cond_mapping,
+            "editing": editing, "versions": versions,
+            "action": f"/import-profiles/{editing.name}" if editing is not None else "/import-profiles"}
 
 
 @router.get("/import-profiles", response_class=HTMLResponse)
@@ -43,7 +55,8 @@ async def _form_and_file(request: Request, settings) -> tuple[dict, bytes]:  # n
 @router.post("/import-profiles/draft", response_class=HTMLResponse)
 async def draft(request: Request, session: SessionDep, settings: SettingsDep, actor: PageWriter):
     """Read the sample file with the settings chosen so far: its first lines, the header row's columns to map,
-    and (with a mapping) the preview of what the profile reads. Nothing is stored."""
+    and (with a mapping) the preview of what the profile reads. Nothing is stored. The edit page posts here
+    too (the dry run of an edit before it is saved)."""
     form, raw = await _form_and_file(request, settings)
     draft = preview = error = None
     try:
@@ -74,3 +87,29 @@ async def save(request: Request, session: SessionDep, settings: SettingsDep, act
         return render(request, "pages/import_profiles.html", _context(session, form, error=str(exc)),
                       partial="partials/profile_draft.html", status_code=422, actor=actor)
     return redirect("/import-profiles", request)
+
+
+@router.get("/import-profiles/{name}", response_class=HTMLResponse)
+def edit_page(request: Request, name: str, session: SessionDep, actor: PageActor):
+    """One profile: its newest version in the editor, and every earlier version (a version is never changed;
+    saving makes the next one)."""
+    versions = import_profiles.profile_versions(session, name)
+    return render(request, "pages/import_profiles.html",
+                  _context(session, import_profiles.form_from_spec(versions[0].spec), editing=versions[0],
+                           versions=versions), actor=actor)
+
+
+@router.post("/import-profiles/{name}", response_class=HTMLResponse)
+async def save_edit(request: Request, name: str, session: SessionDep, settings: SettingsDep, actor: PageWriter):
+    """Save the edit page as the next version (audited); nothing changed keeps the newest version."""
+    versions = import_profiles.profile_versions(session, name)
+    form, _ = await _form_and_file(request, settings)
+    try:
+        import_profiles.edit_from_form(session=session, name=name, form=form, actor=actor.label)
+    except (InputError, Duplicate) as exc:
+        session.rollback()
+        return render(request, "pages/import_profiles.html",
+                      _context(session, {**form, "name": name}, error=str(exc), editing=versions[0],
+                               versions=versions),
+                      partial="partials/profile_draft.html", status_code=422, actor=actor)
+    return redirect(f"/import-profiles/{name}", request)

@@ -23,6 +23,12 @@ FIELDS = measurements.FORM_FIELDS
 NEW_SAMPLE = "new"  # the sample choice that describes a new sample inline
 
 
+def _inline_sample(session, batch, new: dict[str, str], actor):  # noqa: ANN001, ANN202
+    """The sample described on the upload form, added to the session for the upload's one commit."""
+    data = SampleCreate(**{k: (v.strip() or None) for k, v in new.items() if k != "form"}, form=new["form"].strip())
+    return samples.add_sample(session=session, batch=batch, data=data, actor=actor.label)
+
+
 def _upload_context(session, batch: Batch, compound: Compound, form: dict, error: Optional[str] = None,
                     preview: Optional[dict] = None) -> dict:
     return {"batch": batch, "c": compound, "kinds": KINDS, "needed_by": needed_by(), "examples": CONDITION_EXAMPLES,
@@ -104,9 +110,10 @@ def upload(
         raw = measurements.read_upload(file, settings.max_upload_bytes)
         if profile:
             row, _ = profiled_uploads.resolve_profile(session, profile_name=profile, kind_name=None)
-            if sample == NEW_SAMPLE:
-                raise InputError("describe the new sample first, then upload a profiled file to it", field="sample")
-            target = samples.get_sample_of_batch(session, batch, sample) if sample else None
+            # A new sample described inline is added in the upload's own transaction (flushed, not committed):
+            # a refused file, or a block that cannot be read, leaves no sample and no series behind.
+            target = _inline_sample(session, batch, new, actor) if sample == NEW_SAMPLE else (
+                samples.get_sample_of_batch(session, batch, sample) if sample else None)
             body, _ = profiled_uploads.upload_profiled(session=session, batch=batch, sample=target, profile_row=row,
                                                        raw=raw, filename=file.filename, form=conditions, actor=actor,
                                                        budget=pool_for(settings))
@@ -115,9 +122,7 @@ def upload(
                             request)
         if sample == NEW_SAMPLE:
             # Described inline: added in the upload's own transaction, so a refused file leaves no sample.
-            data = SampleCreate(**{k: (v.strip() or None) for k, v in new.items() if k != "form"},
-                                form=new_form.strip())
-            target = samples.add_sample(session=session, batch=batch, data=data, actor=actor.label)
+            target = _inline_sample(session, batch, new, actor)
         else:
             target = samples.get_sample_of_batch(session, batch, sample) if sample else None
         m, _ = measurements.upload_measurement(

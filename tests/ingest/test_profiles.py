@@ -162,3 +162,55 @@ def test_a_decimal_comma_file_without_a_profile_is_refused_saying_so(raw: bytes)
     with pytest.raises(IngestError) as err:
         read_table(raw)
     assert "decimal commas" in err.value.message and err.value.line == 2
+
+
+# The reader cuts blocks by character offset and hands each block's text to pandas whole; these pin the
+# file line numbers it reports, worked out by hand from the lines written below (line 1 is "Run").
+_OFFSET_PROFILE = {"name": "offsets", "kind": "pe_loop", "delimiter": ";", "decimal": ",",
+                   "columns": {"U": {"to": "V", "unit": "V"}, "Q": {"to": "Q", "unit": "nC"},
+                               "t": {"to": "t", "unit": "ms"}},
+                   "conditions": {"Temp": {"to": "temperature", "unit": "K"}}}
+
+
+def _offset_file(rows2: list[str], newline: str = "\r\n") -> bytes:
+    lines = ["Run", "Temp: 300", "t;U;Q", "0;0,0;0,0", "1;1,5;2,0", "2;3,0;4,0", " ; ", "",
+             "Temp: 310", "t;U;Q", *rows2, ";;", ""]
+    return newline.join(lines).encode()
+
+
+@pytest.mark.parametrize("newline", ["\r\n", "\n", "\r"])
+def test_blank_line_blocks_keep_their_file_lines(newline: str) -> None:
+    profile = profile_from_json({**_OFFSET_PROFILE, "blocks": {"separator": "blank_line", "varies": "temperature"}})
+    read = read_profiled(_offset_file(["0;0,0;0,0", "1;2,5;3,0"], newline), profile)
+    assert [(b.first_line, b.last_line, b.table.first_data_line, b.table.n_rows) for b in read.blocks] == \
+        [(1, 6, 4, 3), (9, 12, 11, 2)]
+    assert [b.conditions["temperature"] for b in read.blocks] == ["300 K", "310 K"]
+    with pytest.raises(IngestError) as err:
+        read_profiled(_offset_file(["0;0,0;0,0", "1;x;3,0"], newline), profile)
+    assert err.value.line == 12 and err.value.column == "U"
+    with pytest.raises(IngestError) as err:
+        read_profiled(_offset_file(["0;0,0;0,0", "1;2,5"], newline), profile)
+    assert err.value.line == 12 and err.value.column == "Q" and "empty cell" in err.value.message
+
+
+def test_one_block_with_blank_lines_inside_keeps_their_file_lines() -> None:
+    profile = profile_from_json({**_OFFSET_PROFILE, "conditions": {}})
+    raw = "\r\n".join(["Run", "t;U;Q", "0;0,0;0,0", "", "1;1,5;2,0", "  ", "2;abc;4,0", ""]).encode()
+    with pytest.raises(IngestError) as err:
+        read_profiled(raw, profile)
+    assert err.value.line == 7 and err.value.column == "U"
+    good = read_profiled(raw.replace(b"abc", b"3,0"), profile)
+    assert good.blocks[0].table.n_rows == 3 and good.blocks[0].last_line == 7
+    assert list(good.blocks[0].table.frame["V_V"]) == [0.0, 1.5, 3.0]
+
+
+def test_repeated_header_blocks_keep_their_file_lines() -> None:
+    profile = profile_from_json({**_OFFSET_PROFILE, "blocks": {"separator": "repeated_header",
+                                                                "varies": "temperature"}})
+    lines = ["Temp: 300", "t;U;Q", "0;0,0;0,0", "1;1,0;1,0", "Temp: 310", "t;U;Q", "0;0,0;0,0", "1;nan?;1,0"]
+    with pytest.raises(IngestError) as err:
+        read_profiled("\n".join(lines).encode(), profile)
+    assert err.value.line == 8 and err.value.column == "U"
+    lines[-1] = "1;2,0;1,0"
+    read = read_profiled("\n".join(lines).encode(), profile)
+    assert [(b.first_line, b.table.first_data_line, b.table.n_rows) for b in read.blocks] == [(1, 3, 2), (5, 7, 2)]

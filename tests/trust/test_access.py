@@ -290,7 +290,7 @@ WEB_READ = {("GET", p) for p in (
     "/compounds/{code}/rates", "/scaffolds", "/measurements/{measurement_id}", "/explorer", "/outcomes",
     "/calibration", "/jobs/{job_id}/panel", "/queue", "/digest", "/digest.md", "/compare",
     "/compare.{fmt}", "/samples/{code}", "/planning", "/planning/routes/{batch_code}", "/planning/reagents",
-    "/freezes", "/freezes/{freeze_id}", "/batches/{code}", "/import-profiles")}
+    "/freezes", "/freezes/{freeze_id}", "/batches/{code}", "/import-profiles", "/import-profiles/{name}")}
 WEB_WRITE = {("GET", "/compounds/new"), ("POST", "/compounds/preview"), ("POST", "/compounds/new"),
              ("POST", "/compounds/{code}/edit"), ("POST", "/compounds/{code}/archive"),
              ("POST", "/compounds/{code}/barriers"), ("POST", "/compounds/{code}/estimate"),
@@ -305,7 +305,8 @@ WEB_WRITE = {("GET", "/compounds/new"), ("POST", "/compounds/preview"), ("POST",
              ("POST", "/samples/{code}/comments"), ("POST", "/measurements/{measurement_id}/comments"),
              ("POST", "/comments/{comment_id}/edit"), ("POST", "/comments/{comment_id}/archive"),
              ("POST", "/freezes"), ("POST", "/freezes/{freeze_id}/publication"),
-             ("POST", "/import-profiles/draft"), ("POST", "/import-profiles")}
+             ("POST", "/import-profiles/draft"), ("POST", "/import-profiles"),
+             ("POST", "/import-profiles/{name}")}
 WEB_ADMIN = {("POST", "/compounds/{code}/verdict"), ("POST", "/status/public"), ("GET", "/admin"),
              ("POST", "/admin/users"), ("POST", "/admin/users/{username}/deactivate"), ("POST", "/admin/tokens"),
              ("POST", "/admin/tokens/{token_id}/revoke")}

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 from pathlib import Path
 
 from sqlmodel import select
@@ -59,3 +60,64 @@ def test_a_wrong_mapping_is_refused_naming_the_field(client, session):
     assert r.status_code == 422
     assert "columns.Charge.unit" in soup(r.text).find(role="alert").text
     assert session.exec(select(ImportProfile)).all() == []
+
+
+def test_a_profile_is_edited_on_its_page_as_a_new_version_with_a_preview(client, session):
+    """The edit page opens the newest version filled in; the dry run previews the edit on a sample file and
+    stores nothing; saving makes version 2 (audited), and a key the form leaves out goes back to its default."""
+    from server.models import AuditEvent
+
+    csrf = login_as(client, session)
+    spec = json.loads((CORPUS / "pe_loop_marker_cp1252.profile.json").read_text())
+    r = client.post("/api/v1/import-profiles", json={**spec, "description": "room 2 tracer"},
+                    headers={"X-CSRF-Token": csrf})
+    assert r.status_code == 201, r.text
+    listed = soup(client.get("/import-profiles").text)
+    assert listed.select_one("#profiles tbody a")["href"] == "/import-profiles/tester-a"
+    page = soup(client.get("/import-profiles/tester-a").text)
+    editor = page.select_one("#profile-editor")
+    assert editor["action"] == "/import-profiles/tester-a"
+    assert editor.select_one("input[name=name]").has_attr("readonly")
+    fields = {i["name"]: i.get("value", "") for i in editor.select("input") if i.get("name")}
+    for sel in editor.select("select"):
+        chosen = sel.select_one("option[selected]")
+        fields[sel["name"]] = chosen["value"] if chosen else ""
+    assert fields["start_after"] == r"^\[Data\]" and fields["delimiter"] == ";" and fields["decimal"] == ","
+    mapped = {fields[f"source_{i}"]: (fields[f"to_{i}"], fields[f"unit_{i}"]) for i in range(4)}
+    assert mapped == {"Drive Voltage": ("V_V", "V"), "Charge": ("Q_uC", "nC"), "Time": ("t_s", "ms"),
+                      "Point": ("ignore", "")}
+    assert [td.text for td in page.select("#profile-versions tbody td:first-child")] == ["1"]
+
+    fields.pop("csrf_token")
+    edit = {**fields, "csrf_token": csrf, "varies": "", "separator": ""}  # one table per file from now on
+    raw = (CORPUS / "pe_loop_marker_cp1252.txt").read_bytes()
+    hx = {"HX-Request": "true", "X-CSRF-Token": csrf}
+    r = client.post("/import-profiles/draft", data=edit, files={"file": ("x.txt", raw)}, headers=hx)
+    assert r.status_code == 200, r.text
+    frag = soup(r.text)
+    assert "Charge (nC) \u2192 Q (uC)" in [li.text for li in frag.select("#preview ul.conversions li")]
+    # the mapping stays on its column although the file's order (Point, Time, ...) is not the profile's
+    rows = {tr.select_one("input[type=hidden]")["value"]: tr.select_one("select option[selected]")["value"]
+            for tr in frag.select("#map-columns tbody tr")}
+    assert rows == {"Point": "ignore", "Time": "t_s", "Drive Voltage": "V_V", "Charge": "Q_uC"}
+    assert len(session.exec(select(ImportProfile)).all()) == 1  # the dry run stored nothing
+
+    r = client.post("/import-profiles/tester-a", data=edit, follow_redirects=False)
+    assert r.status_code == 303 and r.headers["location"] == "/import-profiles/tester-a"
+    session.expire_all()
+    rows = session.exec(select(ImportProfile).where(ImportProfile.name == "tester-a")
+                        .order_by(ImportProfile.version)).all()
+    assert [p.version for p in rows] == [1, 2]
+    assert "blocks" in rows[0].spec and "blocks" not in rows[1].spec
+    assert rows[1].spec["description"] == "room 2 tracer" and rows[1].spec["columns"]["Charge"]["unit"] == "nC"
+    audit = session.exec(select(AuditEvent).where(AuditEvent.action == "import_profile.update")).one()
+    assert audit.before["version"] == 1 and audit.after["version"] == 2
+    page = soup(client.get("/import-profiles/tester-a").text)
+    assert [td.text for td in page.select("#profile-versions tbody td:first-child")] == ["2", "1"]
+    assert "version 3" in page.select_one("#profile-editor button:not(.secondary)").text
+
+    r = client.post("/import-profiles/tester-a", data={**edit, "unit_1": "mm"}, follow_redirects=False)
+    assert r.status_code == 422
+    assert "columns.Charge.unit" in soup(r.text).find(role="alert").text
+    assert len(session.exec(select(ImportProfile)).all()) == 2
+    assert client.get("/import-profiles/nobody").status_code == 404

@@ -57,3 +57,41 @@ def test_a_preview_error_is_shown_and_the_upload_stores_every_block(client, sess
                     files={"file": ("sweep.csv", raw)}, follow_redirects=False)
     assert r.status_code == 303 and r.headers["location"].startswith("/samples/")
     assert _count(session, Measurement) == 3 and _count(session, MeasurementSeries) == 1
+
+
+def test_a_multi_block_file_becomes_a_series_of_a_sample_described_inline(client, session):
+    """The upload form's "a new sample" with a profiled three-block file: the sample, its three measurements
+    and the series are stored in one transaction; a refused file, a bad sample field or a missing CSRF
+    token leave nothing behind, and the error names the field."""
+    from server.models import Sample
+
+    csrf, batch, raw = _setup(client, session)
+    fields = {"profile": "sweep-d", "action": "upload", "csrf_token": csrf, "sample": "new", "new_form": "film",
+              "new_thickness": "150 um", "new_electrode_area": "7.85 mm^2", "new_electrode": "gold, sputtered"}
+
+    def nothing_stored() -> bool:
+        return (_count(session, Sample), _count(session, Measurement), _count(session, MeasurementSeries)) == (0, 0, 0)
+
+    r = client.post(f"/batches/{batch}/upload", data=fields, files={"file": ("bad.csv", raw.replace(b"1", b"x", 40))})
+    assert r.status_code == 422 and "line " in soup(r.text).find(role="alert").text
+    assert nothing_stored()
+    r = client.post(f"/batches/{batch}/upload", data={**fields, "new_thickness": "-3 um"},
+                    files={"file": ("sweep.csv", raw)})
+    assert r.status_code == 422 and "thickness" in soup(r.text).find(role="alert").text
+    assert nothing_stored()
+    r = client.post(f"/batches/{batch}/upload", data={**fields, "csrf_token": "forged"},
+                    files={"file": ("sweep.csv", raw)}, follow_redirects=False)
+    assert r.status_code == 403
+    assert nothing_stored()
+
+    r = client.post(f"/batches/{batch}/upload", data=fields, files={"file": ("sweep.csv", raw)},
+                    follow_redirects=False)
+    assert r.status_code == 303, r.text
+    session.expire_all()
+    sample = session.exec(select(Sample).where(Sample.is_default == False)).one()  # noqa: E712
+    assert r.headers["location"] == f"/samples/{sample.code}"
+    assert sample.form == "film" and sample.electrode == "gold, sputtered" and abs(sample.thickness_um - 150) < 1e-9
+    series = session.exec(select(MeasurementSeries)).one()
+    assert series.sample_id == sample.id
+    assert {m.sample_id for m in session.exec(select(Measurement)).all()} == {sample.id}
+    assert _count(session, Measurement) == 3

@@ -24,7 +24,8 @@ class LimitOut(BaseModel):
 
 
 LIMIT_ERRORS = {413: {"model": LimitOut, "description": "past a bound on work; `limit` names it"}}
-QUOTA_ERRORS = {429: {"model": LimitOut, "description": "a per-account quota is used up; `limit` names it"}}
+QUOTA_ERRORS = {429: {"model": LimitOut, "description": "a per-account quota, or the caller's allowance of refused uploads, "
+                                                        "is used up for now; `limit` names it"}}
 
 AUTH_ERRORS = {
     401: {"model": ErrorOut, "description": "no or an invalid token/session"},

@@ -17,7 +17,7 @@ from typing import Any, Optional
 from sqlmodel import Session, select
 
 from .. import access
-from ..chem.identity import formula_runs
+from ..chem.identity import formula_html
 from ..errors import InputError
 from ..models import Batch, Compound, Measurement, utcnow
 from . import audit, stats, verdicts
@@ -39,9 +39,7 @@ def _latest(ms: list[Measurement], kind: str) -> Optional[Measurement]:
 
 def _formula_md(formula: str) -> str:
     """``C27H24O6.5`` -> ``C<sub>27</sub>H<sub>24</sub>O<sub>6.5</sub>``; a trailing charge as superscript."""
-    body, charge = re.match(r"(.*?)([+-]\d*)?$", formula).groups()
-    out = "".join(f"<sub>{t}</sub>" if sub else t for t, sub in formula_runs(body))
-    return out + (f"<sup>{charge}</sup>" if charge else "")
+    return formula_html(formula)
 
 
 def _ion_words(ion: str, md: bool) -> str:

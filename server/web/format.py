@@ -2,11 +2,14 @@
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Any, Optional
+
+from markupsafe import Markup
 
 from .. import verdict_codes
 import math
 
+from ..chem.identity import formula_html
 from ..precision import significant, time_unit, with_uncertainty
 
 # Suffix of a key (after the quantity) -> unit as printed. Longest suffixes first.
@@ -132,9 +135,15 @@ def summary(kind: str, results: dict[str, Any], apparent_keys: Any = None) -> st
 
 
 
+def formula(value: Optional[str]) -> Markup:
+    """A chemical formula with its counts as subscripts (``{{ c.formula | formula }}``); "" for none."""
+    return Markup(formula_html(value)) if value else Markup("")
+
+
 def install(env) -> None:  # noqa: ANN001 - a jinja2 Environment
     from ..services.accounts import shown_name, shown_text
 
+    env.filters["formula"] = formula
     env.filters["number"] = number
     env.filters["who"] = shown_name  # {{ label | who(actor) }}: names hidden from upload tokens and visitors
     env.filters["unquoted"] = shown_text  # {{ message | unquoted(actor) }}: quoted labels likewise

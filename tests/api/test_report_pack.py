@@ -95,6 +95,9 @@ def test_report_pack_parts(client, writer, stocked):
     assert page.find(id="verdict")["data-code"] == client.get(f"/api/v1/compounds/{CODE}",
                                                               headers=writer).json()["verdict"]
     assert len(page.find(id="merit").find_all("tr")) == 1 + len(stocked)
+    # the formula is presentation here: its counts are subscripts (the CSV tables keep plain text)
+    formula_cell = next(th.find_next("td") for th in page.find_all("th") if th.get_text() == "Formula")
+    assert [sub.get_text() for sub in formula_cell.find_all("sub")] and formula_cell.get_text().isalnum()
     assert pdf_pages(files["summary.pdf"]) == 1
 
 

@@ -171,6 +171,8 @@ def draw(fig: go.Figure, *, height_cm: Optional[float] = None) -> Figure:
         yl = layout[_axis_name(y, "y")]
         if yl is not None:
             ax.set_ylabel(publication_label(yl.title.text or ""))
+            if yl.range is not None and None not in tuple(yl.range) and yl.type != "log":
+                ax.set_ylim(*yl.range)  # a builder that fixes its range (room for labels under a spectrum)
             if yl.type == "log":
                 ax.set_yscale("log")
                 ax.yaxis.set_major_formatter(FormatStrFormatter("%g"))

@@ -25,6 +25,7 @@ from server.synth.ferro import leaky_capacitor, miller_loop, pund_train, raw_vq
 from server.synth.nmr import rate_table
 from server.synth.relaxation import relaxation_spectra
 from server.synth.identity import elemental_file, elemental_found, hrms_profile
+from server.synth.nmr_spectrum import Signal, jcamp_file, signals_for, spectrum
 
 from .scenario import CompoundPlan, Measurement
 
@@ -46,6 +47,7 @@ INSTRUMENTS = (
     Instrument("xrd-micro", ("crystal",), "Single-crystal diffractometer, 150 K"),
     Instrument("hrms-esi", ("hrms",), "High-resolution ESI mass spectrometer, resolving power 60 000"),
     Instrument("chns-combustion", ("elemental",), "CHNS combustion analyser"),
+    Instrument("nmr-400", ("nmr_spectrum",), "400 MHz NMR spectrometer, spectra exported as JCAMP-DX"),
 )
 INSTRUMENT_FOR = {kind: inst for inst in INSTRUMENTS for kind in inst.kinds}
 
@@ -277,6 +279,33 @@ def elemental(c: CompoundPlan, m: Measurement, rng: np.random.Generator, name: s
     return Upload("elemental", f"{name}.csv", elemental_file(found, meta), form)
 
 
+NMR_MHZ = 400.13
+NMR_SOLVENT = "CDCl3"
+#: The impure batches' side product: its phenol OH and how far downfield its other signals lie (invented).
+PHENOL_OH_PPM, SIDE_PRODUCT_OFFSET_PPM = 5.60, 0.08
+
+
+def nmr_spectrum(c: CompoundPlan, m: Measurement, rng: np.random.Generator, name: str, operator: str) -> Upload:
+    """A 1H spectrum in CDCl3 at 400 MHz and 298 K: the compound's invented signals
+    (server.synth.nmr_spectrum.signals_for), the CHCl3 residual, water and TMS; an impure batch adds
+    10 % of a mono-dealkylated side product (a phenol OH near 5.6 ppm and its chain signals 0.08 ppm
+    downfield, apart from the compound's). Noise 0.2 % of the tallest line (a signal-to-noise ratio of 500). The spectrometer writes X in Hz with CRLF line ends; some files were converted to ppm."""
+    main = signals_for(c.smiles)
+    signals = list(main)
+    if m.impure:
+        signals = [Signal(s.shift_ppm, 0.9 * s.n_H, s.neighbours, s.j_Hz) for s in main]
+        signals += [Signal(s.shift_ppm + SIDE_PRODUCT_OFFSET_PPM, 0.1 * s.n_H, s.neighbours, s.j_Hz) for s in main]
+        signals.append(Signal(PHENOL_OH_PPM, 0.1))
+    signals += [Signal(7.26, float(rng.uniform(0.3, 0.8))), Signal(1.56, float(rng.uniform(0.2, 1.0))),
+                Signal(0.0, float(rng.uniform(0.8, 1.5)))]
+    ppm, y = spectrum(signals, rng=rng, mhz=NMR_MHZ, fwhm_Hz=float(rng.uniform(1.2, 1.8)), noise_rel=0.002)
+    in_hz = rng.random() < 0.75
+    raw = jcamp_file(ppm, y, mhz=NMR_MHZ, solvent=NMR_SOLVENT, t_K=298.15, title=f"{name} 1H", in_hz=in_hz,
+                     crlf=in_hz, comments=[f"invented demo spectrum; operator {operator}"])
+    form = {"instrument": INSTRUMENT_FOR[m.kind].name, "operator": operator}
+    return Upload("nmr_spectrum", f"{name}.jdx", raw, form, content_type="chemical/x-jcamp-dx")
+
+
 WRITERS: dict[str, Callable[..., Upload]] = {
     "pe_loop": pe_loop,
     "pund": pund,
@@ -287,6 +316,7 @@ WRITERS: dict[str, Callable[..., Upload]] = {
     "crystal": crystal,
     "hrms": hrms,
     "elemental": elemental,
+    "nmr_spectrum": nmr_spectrum,
 }
 
 

@@ -53,6 +53,8 @@ class LoadReport:
     specimen_loops: int = 0  # live loops on them (beside the scenario's measurements)
     corrected: list[tuple[int, int]] = field(default_factory=list)  # (old id, correction id)
     phase_id: dict[str, int] = field(default_factory=dict)  # pxrd / saxs / shg files (seed_demo/phase_id.py)
+    identity_confirmed: list[str] = field(default_factory=list)  # batch codes confirmed
+    identity_unconfirmed: list[str] = field(default_factory=list)  # measured batches left unconfirmed
     planning: demo_planning.PlanningReport = field(default_factory=demo_planning.PlanningReport)
     seconds: float = 0.0
 
@@ -195,6 +197,7 @@ def load(settings: Settings, *, scale: float = 1.0, echo: Callable[[str], None] 
 
         _load_specimens(client, writer, upload_secrets, plan, report, batch_codes, echo)
         report.phase_id = phase_id.load(client, writer, plan, batch_codes, echo).uploads
+        _confirm_identities(client, writer, plan, report, batch_codes, echo)
         _load_barriers(client, writer, plan, report, echo)
         _queue_estimates(client, writer, plan, report, echo)
         demo_planning.snapshot_ranking(client, writer, report.planning, "all measurements")
@@ -245,6 +248,24 @@ def _load_specimens(client: TestClient, writer: dict, upload_secrets: dict, plan
             report.corrected.append((first["id"], fixed["id"]))
             report.specimen_loops += 1
     echo(f"specimens: {', '.join(report.samples)}; corrected {len(report.corrected)}")
+
+
+def _confirm_identities(client: TestClient, writer: dict, plan: scenario.Scenario, report: LoadReport,
+                        batch_codes: list, echo: Callable[[str], None]) -> None:
+    """A member's identity confirmation of every measured batch, with the note of
+    :func:`scenario.identity_note`, except the ones the scenario leaves unconfirmed."""
+    newest = plan.compounds[-1]
+    for c, b, bcode in batch_codes:
+        note = scenario.identity_note(c, b, newest_compound=c is newest)
+        if note is None:
+            if b.measurements:
+                report.identity_unconfirmed.append(bcode)
+            continue
+        _check(client.post(f"/api/v1/batches/{bcode}/identity/confirm", headers=writer, json={"note": note}), 200,
+               f"identity confirmation of {bcode}")
+        report.identity_confirmed.append(bcode)
+    echo(f"identity confirmed for {len(report.identity_confirmed)} batches; left unconfirmed: "
+         f"{', '.join(report.identity_unconfirmed) or 'none'}")
 
 
 def _load_barriers(client: TestClient, writer: dict, plan: scenario.Scenario, report: LoadReport,

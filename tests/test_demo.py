@@ -16,9 +16,10 @@ import pytest
 from fastapi.testclient import TestClient
 
 from seed_demo import load as demo_load
-from seed_demo import make_examples, scenario
+from seed_demo import instruments, make_examples, scenario
 from server.kinds import KINDS
 from server.kinds.base import EXAMPLE_SMILES
+from server.synth.nmr_spectrum import signals_for
 from server.app import create_app
 from server.settings import Settings
 from tests.factories import bearer, make_token
@@ -68,7 +69,7 @@ def _check_against_scenario(report, client, reader, plan: scenario.Scenario) -> 
     # the scenario's own files (not the described samples' loops, not seed_demo/phase_id.py's files)
     items = [m for m in everything if m["sample"] not in report.samples and m["kind"] not in report.phase_id]
     assert len(items) == plan.measurements
-    seen = {"switching": 0, "lossy": 0, "polar_xtal": 0}
+    seen = {"switching": 0, "lossy": 0, "polar_xtal": 0, "nmr": 0}
     for m in items:
         c = by_code[m["compound"]]
         seq = int(m["batch"].rsplit("-B", 1)[1])
@@ -113,7 +114,20 @@ def _check_against_scenario(report, client, reader, plan: scenario.Scenario) -> 
                 assert order["n_states"] == pytest.approx(2.0, rel=0.2), where
         elif m["kind"] == "nmr_rates":
             assert r["dg298_kcal_mol"] == pytest.approx(c.dg_kcal_mol, abs=0.3), where
+        elif m["kind"] == "nmr_spectrum":
+            # the model's lines (server.synth.nmr_spectrum.signals_for; an impure batch's side product and its OH,
+            # seed_demo/instruments.py): every signal of the sample lies within 0.1 ppm of one, and they add up to the H count
+            model = [s.shift_ppm for s in signals_for(c.smiles)]
+            side = [x + instruments.SIDE_PRODUCT_OFFSET_PPM for x in model] + [instruments.PHENOL_OH_PPM]
+            model += side if p.impure else []
+            sample = [s for s in r["signals"] if not s["assigned"]]
+            assert sample and all(min(abs(s["shift_ppm"] - x) for x in model) < 0.1 for s in sample), where
+            assert {"solvent residual", "TMS"} <= {s["assigned"] for s in r["signals"]}, where
+            assert (r["nucleus"], r["solvent"], r["spectrometer_MHz"]) == ("1H", "CDCl3", 400.13), where
+            seen["nmr"] += 1
     assert seen["switching"] > 0 and seen["lossy"] > 0
+    assert seen["nmr"] == sum(1 for c in plan.compounds for b in c.batches if b.measurements)
+    _check_identity(report, client, reader, plan, by_code)
     assert sum(1 for c in plan.compounds if c.crystal and c.crystal.head_to_tail) == seen["polar_xtal"]
 
     if not any("barriers" in line for line in report.skipped):
@@ -127,6 +141,24 @@ def _check_against_scenario(report, client, reader, plan: scenario.Scenario) -> 
             tc = coal[0]["t_K"]
             expect = (c.dh_kJ_mol * 1e3 - tc * scenario.DS_ACT_J_MOLK) / 4184.0
             assert coal[0]["dg_kcal_mol"] == pytest.approx(expect, abs=0.1), code
+
+
+def _check_identity(report, client, reader, plan: scenario.Scenario, by_code: dict) -> None:
+    """Most measured batches confirmed; the HRMS sample without its bridge S and the newest compound's last
+    batch left unconfirmed, so their compounds' verdicts list the identity criterion unmet, and only them."""
+    measured = [b for c in plan.compounds for b in c.batches if b.measurements]
+    assert report.identity_unconfirmed and len(report.identity_confirmed) + len(report.identity_unconfirmed) == \
+        len(measured) and len(report.identity_confirmed) > 0.8 * len(measured)
+    unconfirmed_compounds = {b.rsplit("-B", 1)[0] for b in report.identity_unconfirmed}
+    for code in by_code:
+        crit = {k["name"]: k for k in client.get(f"/api/v1/compounds/{code}", headers=reader).json()
+                ["verdict_evidence"]["criteria"]}.get("identity of every measured batch confirmed")
+        if crit is None or crit["state"] == "untested":
+            continue
+        assert (crit["state"] == "unmet") == (code in unconfirmed_compounds), (code, crit)
+    for bcode in report.identity_unconfirmed:
+        got = client.get(f"/api/v1/batches/{bcode}/identity", headers=reader).json()
+        assert got["identity_confirmed"] is False and got["evidence"]["nmr_spectrum"] is not None
 
 
 def _check_specimens(report, client, reader, plan: scenario.Scenario) -> None:
@@ -219,7 +251,7 @@ def test_full_demo_on_sqlite(sqlite_template, tmp_path):
     try:
         assert 55 <= len(report.compounds) <= 65
         assert 90 <= report.batches <= 115
-        assert 500 <= sum(report.measurements.values()) <= 680  # about 600, identity evidence included
+        assert 650 <= sum(report.measurements.values()) <= 800  # about 750, identity evidence included
         states = {b.state for c in plan.compounds for b in c.batches}
         assert states == {"made", "impure", "failed", "used_up"}
         assert 3 <= sum(c.embargoed for c in plan.compounds) <= 6

@@ -572,6 +572,25 @@ def formula_runs(formula: str) -> list[tuple[str, bool]]:
     return merged
 
 
+_SUBSCRIPT_DIGITS = str.maketrans("0123456789.", "₀₁₂₃₄₅₆₇₈₉.")
+
+
+def formula_html(formula: str) -> str:
+    """``C27H24O6`` -> ``C<sub>27</sub>H<sub>24</sub>O<sub>6</sub>`` (text escaped), as pages and reports print
+    it; a trailing charge as a superscript. The one presentation of a formula in HTML and Markdown."""
+    from html import escape
+
+    body, charge = re.match(r"(.*?)([+-]\d*)?$", formula).groups()
+    out = "".join(f"<sub>{escape(t)}</sub>" if sub else escape(t) for t, sub in formula_runs(body))
+    return out + (f"<sup>{escape(charge)}</sup>" if charge else "")
+
+
+def formula_unicode(formula: str) -> str:
+    """``C27H24O6`` -> ``C₂₇H₂₄O₆``: the subscripts as Unicode characters, for text that cannot carry markup
+    (a PDF page drawn as text)."""
+    return "".join(t.translate(_SUBSCRIPT_DIGITS) if sub else t for t, sub in formula_runs(formula))
+
+
 def identify(mol: Chem.Mol) -> Identity:
     """Canonical identifiers and masses of a sanitised molecule.
 

@@ -137,6 +137,10 @@ class Kind:
     column_sets: tuple[tuple[str, ...], ...] = ()  # alternatives, each a tuple of QUANTITIES names
     optional_columns: tuple[str, ...] = ()
     columns_text: str = ""  # for kinds not read as a table (CIF)
+    #: For a file that is not a table: ``reader(raw, filename)`` reads it into what ``analyse`` and
+    #: ``figure`` take (otherwise they get the raw bytes); its ``metadata`` dict, if it has one, gives
+    #: conditions as ``# key: value`` lines of a table do (the form still wins).
+    reader: Optional[Callable[[bytes, Optional[str]], Any]] = None
     needs: tuple[Need, ...] = ()
     figure: Optional[Callable[[Any, Any], go.Figure]] = None
     evidence: Optional[Callable[[Mapping[str, Any], Optional[float]], Evidence]] = None
@@ -160,7 +164,9 @@ class Kind:
         return self.analysis.METHOD
 
     def read(self, raw: bytes, filename: str | None) -> Any:
-        return read_table(raw, filename=filename) if self.table else raw
+        if self.table:
+            return read_table(raw, filename=filename)
+        return self.reader(raw, filename) if self.reader is not None else raw
 
     def columns_in_words(self, quote: str = "") -> str:
         """The accepted columns, from the canonical quantities (``quote="`"`` for Markdown)."""

@@ -165,6 +165,8 @@ def draw(fig: go.Figure, *, height_cm: Optional[float] = None) -> Figure:
         yl = layout[_axis_name(y, "y")]
         if yl is not None:
             ax.set_ylabel(publication_label(yl.title.text or ""))
+            if yl.range is not None and None not in tuple(yl.range) and yl.type != "log":
+                ax.set_ylim(*yl.range)  # a builder that fixes its range (room for labels under a spectrum)
             if yl.type == "log":
                 ax.set_yscale("log")
                 ax.yaxis.set_major_formatter(FormatStrFormatter("%g"))
@@ -180,6 +182,8 @@ def draw(fig: go.Figure, *, height_cm: Optional[float] = None) -> Figure:
             ax.tick_params(labelbottom=False)
         if xl is not None and xl.type == "log":
             ax.set_xscale("log")
+        if xl is not None and xl.autorange == "reversed":  # chemical shift: high ppm on the left
+            ax.invert_xaxis()
     for ann in layout.annotations or ():
         if ann.text and ann.xref == "paper" and ann.yref == "paper":
             boxes[rows[0]].text(ann.x if ann.x is not None else 0.5, ann.y if ann.y is not None else 0.5,
@@ -256,6 +260,12 @@ def _trace(ax: Any, tr: Any) -> list[Any]:
                              label=label if first else "_nolegend_", zorder=3)
             first = False
             out += handle
+    if "text" in mode and tr.text is not None and not isinstance(tr.text, str):
+        colour_t = _colour(tr.textfont.color if tr.textfont and isinstance(tr.textfont.color, str) else None, colour)
+        for a, b, t in zip(x, y, tr.text):
+            if a is not None and b is not None and t:
+                ax.text(float(a), float(b), publication_label(str(t)), ha="center", va="top", color=colour_t,
+                        fontsize=FONT_PT - 1, zorder=4)
     err = tr.error_y
     if err is not None and err.array is not None and err.visible is not False:
         ax.errorbar(x, y, yerr=trace_values(err.array), fmt="none", ecolor=colour, elinewidth=0.6, capsize=1.5)

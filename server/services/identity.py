@@ -1,9 +1,12 @@
-"""A batch's identity evidence (HRMS, elemental analysis) and the characterisation text for a paper's SI.
+"""A batch's identity evidence (HRMS, elemental analysis, NMR spectra) and the characterisation text for a
+paper's SI.
 
-The summary reads the batch's live ``hrms`` and ``elemental`` measurements; the paragraph prints, as
-journals do, the formula, HRMS calculated against found m/z with the ion (four decimals) and the
+The summary reads the batch's live ``hrms``, ``elemental`` and ``nmr_spectrum`` measurements; the paragraph
+prints, as journals do, the formula, the NMR signals (shift to two decimals, integral in whole atoms, with
+nucleus, frequency and solvent), HRMS calculated against found m/z with the ion (four decimals) and the
 elemental analysis calculated against found percentages (two decimals), in plain text and in Markdown
-(sub- and superscripts as HTML tags, which Markdown passes through).
+(sub- and superscripts as HTML tags, which Markdown passes through). An NMR spectrum passes or fails
+nothing: it is present, and its signal count stands beside the structure's expected count as a check.
 """
 
 from __future__ import annotations
@@ -14,7 +17,7 @@ from typing import Any, Optional
 from sqlmodel import Session, select
 
 from .. import access
-from ..chem.identity import formula_runs
+from ..chem.identity import formula_html
 from ..errors import InputError
 from ..models import Batch, Compound, Measurement, utcnow
 from . import audit, stats, verdicts
@@ -22,7 +25,7 @@ from .accounts import shown_name, shown_text
 from .errors import Archived
 from .registry import get_batch
 
-IDENTITY_KINDS = ("hrms", "elemental")
+IDENTITY_KINDS = ("hrms", "elemental", "nmr_spectrum")
 #: Evidence statuses under which a member may confirm a batch's identity without saying why.
 AGREEING = ("HRMS and elemental analysis agree", "partial evidence agrees")
 MAX_NOTE = 2000
@@ -36,9 +39,7 @@ def _latest(ms: list[Measurement], kind: str) -> Optional[Measurement]:
 
 def _formula_md(formula: str) -> str:
     """``C27H24O6.5`` -> ``C<sub>27</sub>H<sub>24</sub>O<sub>6.5</sub>``; a trailing charge as superscript."""
-    body, charge = re.match(r"(.*?)([+-]\d*)?$", formula).groups()
-    out = "".join(f"<sub>{t}</sub>" if sub else t for t, sub in formula_runs(body))
-    return out + (f"<sup>{charge}</sup>" if charge else "")
+    return formula_html(formula)
 
 
 def _ion_words(ion: str, md: bool) -> str:
@@ -59,15 +60,45 @@ def _ea_formula(res: dict[str, Any]) -> str:
     return res["formula"] + "".join(f"·{n}{f}" for n, f in parts)
 
 
+def _nucleus_words(nucleus: Optional[str], md: bool) -> str:
+    """``1H`` -> ``1H`` (Markdown ``<sup>1</sup>H``), as printed before "NMR"."""
+    m = re.fullmatch(r"\^?(\d+)([A-Z][a-z]?)", (nucleus or "1H").strip())
+    if not m:
+        return nucleus or ""
+    return f"<sup>{m.group(1)}</sup>{m.group(2)}" if md else f"{m.group(1)}{m.group(2)}"
+
+
+def nmr_line(nmr: dict[str, Any], *, markdown: bool = False) -> str:
+    """``1H NMR (400 MHz, CDCl3, 298 K): δ 4.70 (3H), 3.95 (18H), 3.42 (3H).`` from a stored ``nmr_spectrum``
+    result: the sample's signals downfield first, shifts to two decimals and integrals in whole atoms (as
+    journals print them; the fraction when no structure scaled them). Multiplicities are not analysed, so
+    none is printed."""
+    head = [f"{nmr['spectrometer_MHz']:.0f} MHz" if nmr.get("spectrometer_MHz") else "",
+            (_formula_md(nmr["solvent"]) if markdown else nmr["solvent"]) if nmr.get("solvent") else "",
+            f"{nmr['t_K']:.0f} K" if nmr.get("t_K") else ""]
+    signals = []
+    for s in nmr.get("signals") or ():
+        if s.get("assigned"):
+            continue
+        amount = (f"{s['n_H']:.0f}{(nmr.get('nucleus') or 'H').lstrip('^').lstrip('0123456789')}"
+                  if s.get("n_H") is not None else f"{100 * s['integral_rel']:.0f} %")
+        signals.append(f"{s['shift_ppm']:.2f} ({amount})")
+    inner = ", ".join(p for p in head if p)
+    return (f"{_nucleus_words(nmr.get('nucleus'), markdown)} NMR{f' ({inner})' if inner else ''}: "
+            f"δ {', '.join(signals) if signals else 'no signal of the sample'}.")
+
+
 def si_paragraph(formula: str, hrms: Optional[dict[str, Any]], elemental: Optional[dict[str, Any]], *,
-                 markdown: bool = False) -> str:
+                 markdown: bool = False, nmr: Optional[dict[str, Any]] = None) -> str:
     """The characterisation lines of a supporting-information entry.
 
-    ``hrms`` and ``elemental`` are stored results of those kinds (or None). A found value that does not
-    exist (no peak at the ion) is not printed: the line then says "not found".
+    ``hrms``, ``elemental`` and ``nmr`` are stored results of those kinds (or None). A found value that does
+    not exist (no peak at the ion) is not printed: the line then says "not found".
     """
     f = _formula_md if markdown else (lambda s: s)
     parts = [f"Formula: {f(formula)}."]
+    if nmr:
+        parts.append(nmr_line(nmr, markdown=markdown))
     if hrms:
         ion_formula = re.sub(r"[+-]$", "", hrms["ion_formula"])
         found = f"{hrms['found_mz']:.4f}" if hrms.get("found_mz") is not None else "not found"
@@ -93,8 +124,8 @@ def identity_summary(session: Session, batch: Batch, *, formula: Optional[str]) 
                                                 Measurement.kind.in_(IDENTITY_KINDS),
                                                 Measurement.archived == False)  # noqa: E712
                       .order_by(Measurement.id)).all()
-    hrms, ea = _latest(ms, "hrms"), _latest(ms, "elemental")
-    evidence: dict[str, Any] = {}
+    hrms, ea, nmr = _latest(ms, "hrms"), _latest(ms, "elemental"), _latest(ms, "nmr_spectrum")
+    evidence: dict[str, Any] = {"nmr_spectrum": _nmr_evidence(nmr, visible=formula is not None)}
     for kind, m in (("hrms", hrms), ("elemental", ea)):
         if m is None:
             evidence[kind] = None
@@ -105,17 +136,31 @@ def identity_summary(session: Session, batch: Batch, *, formula: Optional[str]) 
                     if kind == "hrms" else ("calc_formula", "solvate", "calc_pct", "found_pct", "delta_pct"))
             shown.update({k: m.results.get(k) for k in keep})
         evidence[kind] = shown
-    passes = [e["pass"] for e in evidence.values() if e is not None]
-    status = ("no identity evidence" if not passes else
+    passes = [evidence[k]["pass"] for k in ("hrms", "elemental") if evidence[k] is not None]
+    status = (("NMR spectrum only" if nmr else "no identity evidence") if not passes else
               "evidence contradicts the structure" if not all(passes) else
               "HRMS and elemental analysis agree" if len(passes) == 2 else "partial evidence agrees")
     out: dict[str, Any] = {"batch": batch.code, "status": status, "evidence": evidence,
                            "identity_confirmed": batch.identity_confirmed, "si_text": None, "si_markdown": None}
-    if formula is not None and passes:
-        h, e = (hrms.results if hrms else None), (ea.results if ea else None)
-        out["si_text"] = si_paragraph(formula, h, e)
-        out["si_markdown"] = si_paragraph(formula, h, e, markdown=True)
+    if formula is not None and (passes or nmr):
+        h, e, n = (hrms.results if hrms else None), (ea.results if ea else None), (nmr.results if nmr else None)
+        out["si_text"] = si_paragraph(formula, h, e, nmr=n)
+        out["si_markdown"] = si_paragraph(formula, h, e, markdown=True, nmr=n)
     return out
+
+
+def _nmr_evidence(m: Optional[Measurement], *, visible: bool) -> Optional[dict[str, Any]]:
+    """What the batch page shows of its newest NMR spectrum: the conditions and signal count from the file,
+    and, only for a caller who may see the structure, the expected count derived from it."""
+    if m is None:
+        return None
+    r = m.results
+    shown = {"measurement": m.id, "nucleus": r.get("nucleus"), "solvent": r.get("solvent"),
+             "spectrometer_MHz": r.get("spectrometer_MHz"), "signals_found": r.get("signals_found")}
+    if visible:
+        shown.update({"environments_expected": r.get("environments_expected"),
+                      "environments_check": r.get("environments_check")})
+    return shown
 
 
 def batch_identity(*, session: Session, code: str, actor: Optional[access.Actor]) -> dict[str, Any]:

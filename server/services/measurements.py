@@ -100,7 +100,7 @@ def read(kind: Kind, raw: bytes, *, filename: str | None, form: Mapping[str, Opt
         raise InputError("the file is empty", field="file")
     if parsed is None:
         parsed = kind.read(raw, filename)
-    metadata = parsed.metadata if kind.table else {}
+    metadata = parsed.metadata if kind.table else getattr(parsed, "metadata", {}) if kind.reader else {}
     conditions = with_defaults(parse_conditions(form, metadata), defaults or {}, source="sample")
     return parsed, conditions
 

@@ -36,6 +36,7 @@ matplotlib.use("Agg")
 import matplotlib.image as mpimg  # noqa: E402
 import matplotlib.pyplot as plt  # noqa: E402
 from jinja2 import Environment, FileSystemLoader, select_autoescape  # noqa: E402
+from markupsafe import Markup  # noqa: E402
 from sqlmodel import Session  # noqa: E402
 
 from .. import access  # noqa: E402
@@ -48,6 +49,7 @@ from ..plots import summary as summary_plots  # noqa: E402
 from ..plots import vector  # noqa: E402
 from ..precision import error_key, significant, value_text, with_uncertainty  # noqa: E402
 from ..verdict_codes import LABELS  # noqa: E402
+from ..chem.identity import formula_html, formula_unicode  # noqa: E402
 from . import barriers, figures_vector, measurements, registry, verdicts  # noqa: E402
 from .errors import Forbidden  # noqa: E402
 
@@ -153,7 +155,8 @@ def _summary_pdf(data: dict[str, Any], structure_png: Optional[bytes]) -> bytes:
             ax = fig.add_axes((0.55, 0.74, 0.38, 0.2))
             ax.imshow(mpimg.imread(io.BytesIO(structure_png), format="png"))
             ax.axis("off")
-        lines: list[tuple[str, str]] = [("h", "Identity")] + [("t", f"{k}: {v}") for k, v in data["identity"]]
+        lines: list[tuple[str, str]] = [("h", "Identity")] + [
+            ("t", f"{k}: {formula_unicode(v) if k == 'Formula' else v}") for k, v in data["identity"]]
         v = data["verdict"]
         lines += [("h", "Verdict"), ("t", v["label"])]
         if v["override"]:
@@ -190,6 +193,7 @@ def _summary_pdf(data: dict[str, Any], structure_png: Optional[bytes]) -> bytes:
 
 def _summary_html(data: dict[str, Any]) -> bytes:
     env = Environment(loader=FileSystemLoader(templates_dir()), autoescape=select_autoescape(["html"]))
+    env.filters["formula"] = lambda v: Markup(formula_html(v)) if v else ""
     return env.get_template("report/summary.html").render(**data).encode("utf-8")
 
 

@@ -2,11 +2,14 @@
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Any, Optional
+
+from markupsafe import Markup
 
 from .. import verdict_codes
 import math
 
+from ..chem.identity import formula_html
 from ..precision import error_key, significant, time_unit, trade_unit, with_uncertainty
 
 # Suffix of a key (after the quantity) -> unit as printed. Longest suffixes first.
@@ -120,9 +123,15 @@ def short_code(code: str, prefix: str) -> str:
     return code[len(prefix):] if prefix and code.startswith(prefix) and len(code) > len(prefix) else code
 
 
+def formula(value: Optional[str]) -> Markup:
+    """A chemical formula with its counts as subscripts (``{{ c.formula | formula }}``); "" for none."""
+    return Markup(formula_html(value)) if value else Markup("")
+
+
 def install(env) -> None:  # noqa: ANN001 - a jinja2 Environment
     from ..services.accounts import shown_name, shown_text
 
+    env.filters["formula"] = formula
     env.filters["number"] = number
     env.filters["unit"] = trade_unit  # {{ rk.unit | unit }}: µC cm⁻², J mol⁻¹ K⁻¹ (server/precision.py)
     env.filters["who"] = shown_name  # {{ label | who(actor) }}: names hidden from upload tokens and visitors

@@ -4,8 +4,8 @@
 instance (built below from the field types: numpy scalars, NaN, infinities, None, tuples, nested
 results, arrays) when each type still had a hand-written ``to_dict()``. The comparison is of the
 JSON text, so key order counts too (pages list results in that order). After a deliberate change of
-a result's keys, write the pins again with ``REMANENCE_REPIN=1`` and review the diff. The pxrd, saxs, shg and
-relaxation types never had a hand-written ``to_dict()``: their pins are regression snapshots of the generic
+a result's keys, write the pins again with ``REMANENCE_REPIN=1`` and review the diff. The pxrd, saxs, shg,
+relaxation and nmr_spectrum types never had a hand-written ``to_dict()``: their pins are regression snapshots of the generic
 serialiser, taken when they were added, so a change to their keys shows up here too.
 """
 
@@ -21,8 +21,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from server.analysis import (calibration, crystal, dielectric, dsc, hysteresis, kinetics, prediction, pund, pxrd,
-                             relaxation, saxs, shg, verdict, xtb)
+from server.analysis import (calibration, crystal, dielectric, dsc, hysteresis, kinetics, nmr_spectrum, prediction,
+                             pund, pxrd, relaxation, saxs, shg, verdict, xtb)
 from server.analysis.results import Flag, Result
 
 PINS = Path(__file__).with_name("result_json_pins.json")
@@ -35,6 +35,7 @@ RESULT_TYPES = (
     prediction.RegressionResult, prediction.ClassificationResult,
     pxrd.Reflection, pxrd.MeasuredPeak, pxrd.Comparison, pxrd.PxrdResult, pxrd.PatternChange, saxs.SaxsResult,
     shg.ShgResult, relaxation.Isotherm, relaxation.TemperatureFit, relaxation.RelaxationResult,
+    nmr_spectrum.NmrSignal, nmr_spectrum.NmrSpectrumResult,
 )
 # Values a type needs to exercise its own branches (e.g. a fitted calibration computes residuals).
 OVERRIDES = {

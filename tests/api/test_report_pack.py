@@ -96,6 +96,9 @@ def test_report_pack_parts(client, writer, stocked):
     assert page.find(id="verdict")["data-code"] == client.get(f"/api/v1/compounds/{CODE}",
                                                               headers=writer).json()["verdict"]
     assert len(page.find(id="merit").find_all("tr")) == 1 + len(stocked)
+    # the formula is presentation here: its counts are subscripts (the CSV tables keep plain text)
+    formula_cell = next(th.find_next("td") for th in page.find_all("th") if th.get_text() == "Formula")
+    assert [sub.get_text() for sub in formula_cell.find_all("sub")] and formula_cell.get_text().isalnum()
     assert pdf_pages(files["summary.pdf"]) == 1
     # a value with a standard error is printed as value ± error, the value to the error's last digit
     # (JCGM 100:2008, 7.2.6): the Eyring fit's ΔG‡(298 K) of the example rate table, in the table and the summary

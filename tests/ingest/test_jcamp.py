@@ -83,3 +83,47 @@ def test_wrong_count_and_unsupported_forms_are_named():
     with pytest.raises(IngestError) as exc:
         read_jcamp((HEAD + "10 100 105 ? 105 98 -3\n##END=\n").encode())
     assert exc.value.line == 16 and exc.value.column == 12
+
+
+# A file as a spectrometer's export writes it: CRLF line ends, $$ comments (on their own lines, after
+# records and after XYDATA lines), vendor records (##$...), a multi-line record value, X in Hz, and DIFDUP
+# lines each followed by the Y check. Written by hand from the standard's tables; the ordinates are
+# 100 105 105 105 98 -3 | 50 50 50 51 (10 points), at 400.13 MHz from 4001.3 Hz (10 ppm) down to 400.13 Hz.
+REAL_SHAPED = (
+    "##TITLE= bowl batch B01, 1H\r\n"
+    "##JCAMP-DX= 5.01   $$ written by the spectrometer's export\r\n"
+    "##DATA TYPE= NMR SPECTRUM\r\n"
+    "##DATA CLASS= XYDATA\r\n"
+    "##ORIGIN= lab\r\n##OWNER= lab\r\n"
+    "$$ acquisition parameters follow\r\n"
+    "##.OBSERVE FREQUENCY= 400.13\r\n"
+    "##.OBSERVE NUCLEUS= ^1H\r\n"
+    "##.SOLVENT NAME= CDCl3\r\n"
+    "##$TE= 298.2\r\n"
+    "##$RELAX=\r\n"
+    "vendor block 2.1: continuation lines belong to the record\r\n"
+    "##XUNITS= HZ\r\n##YUNITS= ARBITRARY UNITS\r\n"
+    "##XFACTOR= 0.1\r\n##YFACTOR= 2\r\n"
+    "##FIRSTX= 4001.3\r\n##LASTX= 400.13\r\n##NPOINTS= 10\r\n"
+    "##XYDATA= (X++(Y..Y))\r\n"
+    "40013A00N%Tp   $$ DIF: +5 0 0 -7, DUP T = twice\r\n"
+    "24008I8j01N3%T\r\n"  # Y check 98, then -101 -> -3, then +53 -> 50, 0, 0 (DUP T)
+    "8003E0J\r\n"  # Y check 50, +1 -> 51
+    "4001E1\r\n"  # Y check 51: the line ends the table
+    "##END=\r\n"
+)
+
+
+def test_a_real_shaped_difdup_file_with_crlf_and_comments():
+    spec = read_jcamp(REAL_SHAPED.encode())
+    assert spec.y.tolist() == [2 * v for v in (100, 105, 105, 105, 98, -3, 50, 50, 50, 51)]
+    assert spec.x[0] == pytest.approx(4001.3) and spec.x[-1] == pytest.approx(400.13) and spec.x_units == "HZ"
+    assert spec.record(".OBSERVE NUCLEUS") == "^1H" and spec.record("$TE") == "298.2"
+    assert spec.record("JCAMP-DX") == "5.01" and "DIF" in spec.forms and "DUP" in spec.forms
+
+
+def test_an_unknown_character_in_a_real_shaped_file_names_its_line():
+    bad = REAL_SHAPED.replace("8003E0J", "8003E0J#")
+    with pytest.raises(IngestError) as exc:
+        read_jcamp(bad.encode())
+    assert exc.value.line == 24 and "'#'" in str(exc.value)

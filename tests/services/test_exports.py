@@ -65,6 +65,17 @@ def test_formula_runs_mark_counts_as_subscripts_and_keep_multipliers_plain():
     assert formula_runs("C27H24O6·0.5H2O")[-4:] == [("6", True), ("·0.5H", False), ("2", True), ("O", False)]
 
 
+def test_formulas_as_presentation_carry_subscripts_as_markup_or_characters():
+    from server.chem.identity import formula_html, formula_unicode
+    from server.web.format import formula
+
+    assert formula_html("C27H24O6") == "C<sub>27</sub>H<sub>24</sub>O<sub>6</sub>"
+    assert formula_html("C27H25NaO6+") == "C<sub>27</sub>H<sub>25</sub>NaO<sub>6</sub><sup>+</sup>"
+    assert formula_html("C27H24O6·0.5H2O") == "C<sub>27</sub>H<sub>24</sub>O<sub>6</sub>·0.5H<sub>2</sub>O"
+    assert formula_unicode("C27H24O6") == "C₂₇H₂₄O₆"
+    assert str(formula("<b>")) == "&lt;b&gt;" and str(formula(None)) == ""  # text is escaped
+
+
 def test_rounded_keeps_numbers_and_their_significant_digits():
     from server.precision import rounded
 

@@ -89,12 +89,15 @@ class PaperFreezeCompound(SQLModel, table=True):
 
 
 class FreezeCreate(SQLModel):
-    """``POST /api/v1/freezes``."""
+    """``POST /api/v1/freezes``: the compounds by code, or a registry view (its link or query string)."""
 
     name: str = Field(min_length=1, max_length=200, description='e.g. "bowl-chains manuscript"')
     # Codes are letters, digits and - _ . (e.g. RVZ-00012); anything else is refused (422) before a query.
     compounds: list[Annotated[str, StringConstraints(min_length=1, max_length=60, pattern=r"^[A-Za-z0-9._-]+$")]] = \
-        Field(min_length=1, max_length=200, description="compound codes")
+        Field(default_factory=list, max_length=200, description="compound codes (or give `view`)")
+    view: str = Field(default="", max_length=4000,
+                      description="a registry view instead of codes: its link (/compounds?chain_kind=alkoxy) or query "
+                                  "string; the compounds it shows the caller now, every page of it, are frozen")
 
 
 class FreezePublication(SQLModel):

@@ -36,6 +36,7 @@ from .web import admin as admin_pages
 from .web import auth as auth_pages
 from .web import batches as batch_pages
 from .web import campaign as campaign_pages
+from .web import attachments as attachment_pages
 from .web import comments as comment_pages
 from .web import compare as compare_pages
 from .web import freezes as freeze_pages
@@ -281,6 +282,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(api_docs_page.router)
     for pages in (auth_pages, compound_pages, batch_pages, scaffold_pages, measurement_pages, sample_pages,
                   campaign_pages, admin_pages, digest_pages, compare_pages, planning_pages, comment_pages,
+                  attachment_pages,
                   freeze_pages, import_profile_pages, notification_pages):
         app.include_router(pages.router)
     # Versioned addresses (server/web/assets.py) are cached for a year, anything else revalidated.

@@ -28,6 +28,11 @@ PAGE = (1, 1_000_000)  # registry pages
 # estimate takes minutes, so more than this many waiting jobs of one account is a mistake or abuse.
 MAX_BULK_ESTIMATES = 200  # compounds one bulk-estimate request may name (413 beyond)
 MAX_ACTIVE_JOBS_PER_ACCOUNT = 100  # queued + running jobs one account or token may have (429 beyond)
+# Image attachments (issue 23, item 2): a microscope or lab camera gives 1-50 megapixels (common
+# practice, not a measured limit); a header claiming more is refused before any pixel is decoded,
+# since a few kilobytes of compressed PNG can claim gigabytes of pixels (a decompression bomb).
+MAX_IMAGE_PIXELS = 60_000_000
+THUMBNAIL_PX = 320  # the longer side of an attachment's thumbnail
 SIGNED_DIGITS = re.compile(r"[+-]?[0-9]{1,12}")  # ASCII digits only: no "1_000", no other scripts' digits
 
 

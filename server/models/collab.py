@@ -89,12 +89,15 @@ class PaperFreezeCompound(SQLModel, table=True):
 
 
 class FreezeCreate(SQLModel):
-    """``POST /api/v1/freezes``."""
+    """``POST /api/v1/freezes``: the compounds by code, or a registry view (its link or query string)."""
 
     name: str = Field(min_length=1, max_length=200, description='e.g. "bowl-chains manuscript"')
     # Codes are letters, digits and - _ . (e.g. RVZ-00012); anything else is refused (422) before a query.
     compounds: list[Annotated[str, StringConstraints(min_length=1, max_length=60, pattern=r"^[A-Za-z0-9._-]+$")]] = \
-        Field(min_length=1, max_length=200, description="compound codes")
+        Field(default_factory=list, max_length=200, description="compound codes (or give `view`)")
+    view: str = Field(default="", max_length=4000,
+                      description="a registry view instead of codes: its link (/compounds?chain_kind=alkoxy) or query "
+                                  "string; the compounds it shows the caller now, every page of it, are frozen")
 
 
 class FreezePublication(SQLModel):
@@ -103,3 +106,68 @@ class FreezePublication(SQLModel):
     dataset_doi: Optional[str] = Field(default=None, max_length=200, description="e.g. 10.5281/zenodo.1234567")
     depositions: Optional[list[dict[str, Any]]] = Field(
         default=None, max_length=200, description='[{"number": "CCDC 2345678", "measurement": 12}]')
+
+
+# --- image attachments ---------------------------------------------------------------------------
+
+#: The image types an attachment may be, by the media type they are served with.
+IMAGE_TYPES: dict[str, str] = {"PNG": "image/png", "JPEG": "image/jpeg", "TIFF": "image/tiff"}
+
+
+class Attachment(SQLModel, table=True):
+    """An image (micrograph, photo of a pellet) on a compound, batch, sample or measurement.
+
+    The original bytes are a ``rawfile`` row, stored unchanged with their SHA-256 like an instrument
+    file; the thumbnail is derived (JPEG, made on upload). The metadata are what the picture needs to be
+    read: magnification or scale bar length, crossed polarisers or not, the temperature."""
+
+    id: Optional[int] = Field(default=None, primary_key=True)
+    target: str = Field(max_length=20)  # one of COMMENT_TARGETS
+    target_id: int
+    compound_id: int = Field(foreign_key="compound.id", index=True)
+    raw_file_id: int = Field(foreign_key="rawfile.id")
+    sha256: str = Field(max_length=64)
+    image_format: str = Field(max_length=10)  # a key of IMAGE_TYPES, sniffed from the bytes
+    width_px: int
+    height_px: int
+    thumbnail: bytes = Field(sa_type=sa.LargeBinary)
+    thumb_width_px: int
+    thumb_height_px: int
+    caption: str = Field(default="", max_length=2000)
+    magnification: Optional[float] = None  # e.g. 10 for a 10x objective
+    scale_bar_um: Optional[float] = None  # the length the image's scale bar stands for
+    polariser_crossed: Optional[bool] = None  # None: not stated
+    t_K: Optional[float] = None
+    created_by: str = Field(max_length=160)
+    created_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
+
+    __table_args__ = (sa.Index("ix_attachment_target", "target", "target_id"),)
+
+
+class AttachmentRead(SQLModel):
+    id: int
+    target: str
+    ref: str = Field(description="the code (compound, batch, sample) or id (measurement) it is attached to")
+    compound: str
+    filename: str
+    sha256: str = Field(description="SHA-256 of the original bytes, stored unchanged")
+    media_type: str
+    size_bytes: int
+    width_px: int
+    height_px: int
+    thumb_width_px: int
+    thumb_height_px: int
+    caption: str
+    magnification: Optional[float]
+    scale_bar_um: Optional[float]
+    polariser_crossed: Optional[bool]
+    t_K: Optional[float]
+    created_by: str
+    created_at: datetime
+    original_url: str
+    thumbnail_url: str
+
+
+class AttachmentPage(SQLModel):
+    items: list[AttachmentRead]
+    withheld: bool = Field(description="true when the compound is embargoed and the caller may not see it")

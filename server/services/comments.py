@@ -43,16 +43,24 @@ class Target:
 
     @property
     def post_url(self) -> str:
-        return f"/{PLURALS[self.kind]}/{quote(self.ref)}/comments"
+        return self.route("comments")
+
+    def route(self, what: str) -> str:
+        """The URL of what is on this target (``comments``, ``attachments``), pages and API alike."""
+        return f"/{PLURALS[self.kind]}/{quote(self.ref)}/{what}"
 
     @property
     def page_url(self) -> str:
         """The page that shows this thread (batches are shown on their compound's page)."""
+        return self.page_at("comments")
+
+    def page_at(self, anchor: str) -> str:
+        """The page that shows what is on this target (comments, attachments), at ``anchor``."""
         if self.kind == "compound":
-            return f"/compounds/{quote(self.ref)}#comments"
+            return f"/compounds/{quote(self.ref)}#{anchor}"
         if self.kind == "batch":
-            return f"/compounds/{quote(self.compound.code)}#comments"
-        return f"/{PLURALS[self.kind]}/{quote(self.ref)}#comments"
+            return f"/compounds/{quote(self.compound.code)}#{anchor}"
+        return f"/{PLURALS[self.kind]}/{quote(self.ref)}#{anchor}"
 
 
 def resolve(session: Session, kind: str, ref: str) -> Target:

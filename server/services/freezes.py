@@ -20,6 +20,7 @@ import re
 import zipfile
 from datetime import datetime, timezone
 from typing import Any, Optional
+from urllib.parse import parse_qs, urlsplit
 
 from sqlalchemy.exc import IntegrityError
 from sqlmodel import Session, select
@@ -30,7 +31,7 @@ from ..errors import InputError
 from ..kinds import KINDS
 from ..models import (Batch, Compound, Measurement, PaperFreeze, PaperFreezeCompound, RawFile, Sample,
                       live_measurement)
-from . import audit, report_pack, verdicts
+from . import audit, report_pack, verdicts, views
 from .errors import Duplicate, Forbidden, NotFound
 
 #: Bounded work per request: compounds per freeze, measurements frozen per compound.
@@ -63,14 +64,41 @@ def _live(session: Session, compound: Compound) -> list[Measurement]:
                              .order_by(Measurement.id).limit(MAX_MEASUREMENTS + 1)).all())
 
 
-def create_freeze(*, session: Session, name: str, codes: list[str], actor: Actor) -> PaperFreeze:
-    """Freeze ``codes`` under ``name``: one transaction, one audit event."""
+def codes_of_view(session: Session, view: str, *, actor: Actor) -> list[str]:
+    """The codes of the compounds a registry view shows ``actor`` now, on every page of it, in its order.
+
+    ``view`` is the view's link (``/compounds?chain_kind=alkoxy&c_min=4``, with or without the host) or
+    its query string: views are links (``services.views``), so the link a member copies from the registry
+    is the saved view. Its filters and sort are kept, its paging is not (a freeze takes the whole view)."""
+    text = (view or "").strip()
+    query = urlsplit(text).query if "?" in text or text.startswith(("/", "http:", "https:")) else text
+    params = {k: v for k, v in parse_qs(query, keep_blank_values=False).items() if k not in ("page", "size")}
+    try:
+        q = views.parse_view(params)
+    except InputError as exc:
+        raise InputError(f"the view's {exc.field or 'query'}: {exc.message}", field="view") from None
+    result = views.query_view(session, q, actor=actor, paged=False)
+    if result.total == 0:
+        raise InputError("the view shows no compounds", field="view")
+    if result.total > MAX_COMPOUNDS:
+        raise InputError(f"the view shows {result.total} compounds; a freeze takes at most {MAX_COMPOUNDS}",
+                         field="view")
+    return [r.compound.code for r in result.rows]
+
+
+def create_freeze(*, session: Session, name: str, codes: list[str], actor: Actor, view: str = "") -> PaperFreeze:
+    """Freeze ``codes`` (or, with ``view``, the compounds that view shows ``actor`` now) under ``name``: one
+    transaction, one audit event (which keeps the view)."""
     name = (name or "").strip()
     if not name:
         raise InputError("a freeze needs a name", field="name")
     wanted = list(dict.fromkeys(c.strip() for c in codes if c and c.strip()))
+    if view.strip():
+        if wanted:
+            raise InputError("give compound codes or a view, not both", field="view")
+        wanted = codes_of_view(session, view, actor=actor)
     if not wanted:
-        raise InputError("choose at least one compound", field="compounds")
+        raise InputError("choose at least one compound, or a view", field="compounds")
     if len(wanted) > MAX_COMPOUNDS:
         raise InputError(f"at most {MAX_COMPOUNDS} compounds per freeze", field="compounds")
     if session.exec(select(PaperFreeze).where(PaperFreeze.name == name)).first():
@@ -92,7 +120,7 @@ def create_freeze(*, session: Session, name: str, codes: list[str], actor: Actor
                                         measurements=[_frozen_measurement(session, m) for m in rows]))
         counts[code] = len(rows)
     audit.record(session, actor=actor.label, action="freeze.create", entity="freeze", code=str(freeze.id),
-                 after={"name": name, "measurements": counts})
+                 after={"name": name, "measurements": counts, **({"view": view.strip()} if view.strip() else {})})
     try:
         session.commit()
     except IntegrityError:  # a concurrent freeze took the name between the check and the commit

@@ -13,7 +13,7 @@ from pydantic import ValidationError
 from ..deps import PageActor, PageWriter, SessionDep
 from ..errors import InputError
 from ..models import BATCH_STATES, BatchCreate
-from ..services import identity, registry
+from ..services import attachments, comments, identity, registry
 from .render import redirect, render
 
 router = APIRouter(include_in_schema=False)
@@ -72,7 +72,11 @@ async def batch_create(code: str, request: Request, session: SessionDep, actor: 
 @router.get("/batches/{code}", response_class=HTMLResponse)
 def batch_page(code: str, request: Request, session: SessionDep, actor: PageActor):
     return render(request, "pages/batch.html", {**identity.batch_page(session=session, code=code, actor=actor),
-                                                "error": None}, actor=actor)
+                                                "error": None, "gallery": _gallery(session, code, actor)}, actor=actor)
+
+
+def _gallery(session, code: str, actor) -> dict:  # noqa: ANN001
+    return attachments.gallery_panel(session, comments.resolve(session, "batch", code), actor=actor)
 
 
 @router.post("/batches/{code}/identity", response_class=HTMLResponse)
@@ -87,5 +91,5 @@ async def batch_identity_set(code: str, request: Request, session: SessionDep, a
     except InputError as exc:
         return render(request, "pages/batch.html",
                       {**identity.batch_page(session=session, code=code, actor=actor), "error": str(exc),
-                       "note": note}, status_code=422, actor=actor)
+                       "note": note, "gallery": _gallery(session, code, actor)}, status_code=422, actor=actor)
     return redirect(f"/batches/{quote(code)}", request)

@@ -17,7 +17,7 @@ from ..ingest.conditions import parse_quantity
 from ..jobs import queue
 from ..models import CompoundCreate, CompoundUpdate, SideChainSpec
 from ..bounds import BUILT_CHAIN_CARBONS, whole_number
-from ..services import barriers, comments, estimates, exports, freezes, notifications, planning_pages, registry, status, verdicts, views
+from ..services import attachments, barriers, comments, estimates, exports, freezes, notifications, planning_pages, registry, status, verdicts, views
 from ..services.compound_page import compound_page as compound_page_data
 from ..services.timeline import lab_timeline
 from ..services.errors import Duplicate
@@ -162,6 +162,8 @@ def compound_page(code: str, request: Request, session: SessionDep, actor: PageA
     ctx.update(kinds=KINDS, planning=planning_pages.compound_section(session, compound, actor=actor),
                thread=comments.thread_panel(session, comments.resolve(session, "compound", compound.code),
                                             actor=actor),
+               gallery=attachments.gallery_panel(session, comments.resolve(session, "compound", compound.code),
+                                                 actor=actor),
                compound_freezes=freezes.freezes_of_compound(session, compound, actor=actor),
                following=notifications.is_following(session, actor, compound))
     return render(request, "pages/compound.html", ctx, actor=actor)

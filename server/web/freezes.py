@@ -20,7 +20,8 @@ router = APIRouter(include_in_schema=False)
 def _list(request: Request, session, actor, *, error: str = "", form=None, status_code: int = 200):  # noqa: ANN001
     items = [freezes.freeze_read(session, f, actor=actor, with_diff=False) for f in freezes.list_freezes(session)]
     return render(request, "pages/freezes.html", {"freezes": items, "error": error,
-                                                  "form": form or {"name": "", "compounds": ""}},
+                                                  "form": form or {"name": "", "compounds": "",
+                                                                   "view": request.query_params.get("view", "")}},
                   actor=actor, status_code=status_code)
 
 
@@ -32,11 +33,12 @@ def freeze_list(request: Request, session: SessionDep, actor: PageActor):
 @router.post("/freezes", response_class=HTMLResponse)
 async def freeze_create(request: Request, session: SessionDep, actor: PageWriter):
     form = await request.form()
-    name, text = str(form.get("name") or ""), str(form.get("compounds") or "")
+    name, text, view = (str(form.get(k) or "") for k in ("name", "compounds", "view"))
     try:
-        freeze = freezes.create_freeze(session=session, name=name, codes=re.split(r"[\s,;]+", text), actor=actor)
+        freeze = freezes.create_freeze(session=session, name=name, codes=re.split(r"[\s,;]+", text), view=view,
+                                       actor=actor)
     except (InputError, Duplicate) as exc:
-        return _list(request, session, actor, error=str(exc), form={"name": name, "compounds": text},
+        return _list(request, session, actor, error=str(exc), form={"name": name, "compounds": text, "view": view},
                      status_code=409 if isinstance(exc, Duplicate) else 422)
     return redirect(f"/freezes/{freeze.id}", request)
 

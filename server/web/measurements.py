@@ -13,7 +13,7 @@ from ..errors import InputError
 from ..ingest.conditions import CONDITION_EXAMPLES
 from ..kinds import KINDS, needed_by
 from ..models import SAMPLE_FORMS, Batch, Compound, SampleCreate
-from ..services import comments, import_profiles, measurements, planning_pages, profiled_uploads, registry, samples
+from ..services import attachments, comments, import_profiles, measurements, planning_pages, profiled_uploads, registry, samples
 from ..services.errors import Archived, Duplicate, Forbidden
 from .render import redirect, render
 
@@ -163,6 +163,8 @@ def _measurement_page(request: Request, session, m, actor, *, revise_error: Opti
                    "apparent_keys": sorted(merit.apparent_keys(info, apparent)), "figure_error": fig_error, "revise_error": revise_error,
                    "revise_fields": REVISE_FIELDS, "examples": CONDITION_EXAMPLES,
                    "thread": comments.thread_panel(session, comments.resolve(session, "measurement", str(m.id)), actor=actor),
+                   "gallery": attachments.gallery_panel(session, comments.resolve(session, "measurement", str(m.id)),
+                                                        actor=actor),
                    "heating": planning_pages.measurement_heating(session, m, actor=actor)}, actor=actor,
                   status_code=status_code)
 

@@ -7,7 +7,7 @@ from fastapi.responses import HTMLResponse
 
 from ..deps import PageActor, SessionDep
 from ..kinds import KINDS
-from ..services import comments, samples
+from ..services import attachments, comments, samples
 from .render import render
 
 router = APIRouter(include_in_schema=False)
@@ -17,5 +17,7 @@ router = APIRouter(include_in_schema=False)
 def sample_page(code: str, request: Request, session: SessionDep, actor: PageActor):
     sample = samples.get_sample(session, code)
     return render(request, "pages/sample.html", {**samples.sample_page(session, sample), "kinds": KINDS,
-                   "thread": comments.thread_panel(session, comments.resolve(session, "sample", sample.code), actor=actor)},
+                   "thread": comments.thread_panel(session, comments.resolve(session, "sample", sample.code), actor=actor),
+                   "gallery": attachments.gallery_panel(session, comments.resolve(session, "sample", sample.code),
+                                                        actor=actor)},
                   actor=actor)

@@ -143,3 +143,56 @@ def test_pack_carries_the_frozen_record_and_the_manifest(client, session, world,
     assert f"current/{code}/manifest.json" in listed  # the compound's report pack as it is now
     moved = json.loads(z.read("differences.json"))[0]
     assert moved["differs"] and moved["largest_relative_change"] == pytest.approx(0.1, rel=1e-6)
+
+
+def test_a_freeze_from_a_view_takes_what_the_view_shows_the_caller_now(client, session, world):
+    """Item 4, "or a saved view": a view is a link (services/views.py); the freeze takes every compound it
+    shows the caller at that moment, on all its pages, and the audit event keeps the view."""
+    w = world["w"]
+    more = []
+    for smiles in ("CCOc1ccc(OCC)cc1", "CCCOc1ccc(OCCC)cc1"):  # two open compounds beside the world's two
+        more.append(client.post("/api/v1/compounds", json={"smiles": smiles}, headers=w).json()["code"])
+    # The whole registry in pages of one: the freeze still takes all four, in the view's order.
+    r = client.post("/api/v1/freezes", json={"name": "all of it", "view": "/compounds?size=1&page=2&sort=code&dir=asc"},
+                    headers=w)
+    assert r.status_code == 201, r.text
+    assert [c["compound"] for c in r.json()["compounds"]] == sorted(world["codes"] + more)
+    # A filtered view, given as a full link: only what it shows (the ethers with chains of 3 carbons).
+    r = client.post("/api/v1/freezes", json={"name": "propoxy", "view": "http://lab.example/compounds?c_min=3"},
+                    headers=w)
+    assert r.status_code == 201, r.text
+    assert [c["compound"] for c in r.json()["compounds"]] == [more[1]]
+    event = session.exec(select(AuditEvent).where(AuditEvent.action == "freeze.create")
+                         .order_by(AuditEvent.id.desc())).first()
+    assert event.after["view"] == "http://lab.example/compounds?c_min=3"
+    # The moment matters: a compound registered afterwards is not in the frozen set.
+    client.post("/api/v1/compounds", json={"smiles": "CCCCCOc1ccc(OCCCCC)cc1"}, headers=w)
+    got = client.get(f"/api/v1/freezes/{r.json()['id']}", headers=w).json()
+    assert [c["compound"] for c in got["compounds"]] == [more[1]]
+    # Views the caller cannot use are refused naming the field; nothing is stored.
+    for view, says in (("c_min=lots", "c_min"), ("c_min=90", "no compounds"), ("sort=colour", "sort")):
+        r = client.post("/api/v1/freezes", json={"name": f"bad {view}", "view": view}, headers=w)
+        assert r.status_code == 422 and r.json()["field"] == "view" and says in r.json()["detail"], r.text
+    r = client.post("/api/v1/freezes", json={"name": "both", "view": "c_min=3", "compounds": [more[0]]}, headers=w)
+    assert r.status_code == 422 and r.json()["field"] == "view"
+    assert client.post("/api/v1/freezes", json={"name": "neither"}, headers=w).status_code == 422
+    assert len(client.get("/api/v1/freezes", headers=w).json()["items"]) == 2
+
+
+def test_a_freeze_from_a_view_sees_only_what_the_caller_may(client, session, world):
+    """The view is asked as the caller: an embargoed compound is in a member's frozen view. (Every account
+    that may freeze sees embargoed compounds, access.py, so the structure filter is the only boundary; the
+    view query itself applies it through access.structure_condition, tested in tests/trust/test_embargo.py.)"""
+    csrf = login_as(client, session, role="member", name="mia")
+    r = client.post("/freezes", data={"name": "from the page", "view": "/compounds?sort=code&dir=asc",
+                                      "csrf_token": csrf}, follow_redirects=False)
+    assert r.status_code == 303, r.text
+    got = client.get(r.headers["location"].replace("/freezes/", "/api/v1/freezes/"), headers={"X-CSRF-Token": csrf})
+    assert [c["compound"] for c in got.json()["compounds"]] == sorted(world["codes"])
+    # The registry's "freeze these" link fills the form with the view.
+    from tests.factories import soup
+
+    page = soup(client.get("/compounds?c_min=1").text)
+    link = page.select_one("a.freezelink")["href"]
+    form = soup(client.get(link).text).select_one("form[action='/freezes'] input[name=view]")
+    assert form["value"] == "/compounds?c_min=1"

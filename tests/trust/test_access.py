@@ -304,6 +304,8 @@ WEB_WRITE = {("GET", "/compounds/new"), ("POST", "/compounds/preview"), ("POST",
              ("POST", "/compounds/{code}/comments"), ("POST", "/batches/{code}/comments"),
              ("POST", "/samples/{code}/comments"), ("POST", "/measurements/{measurement_id}/comments"),
              ("POST", "/comments/{comment_id}/edit"), ("POST", "/comments/{comment_id}/archive"),
+             ("POST", "/compounds/{code}/attachments"), ("POST", "/batches/{code}/attachments"),
+             ("POST", "/samples/{code}/attachments"), ("POST", "/measurements/{measurement_id}/attachments"),
              ("POST", "/freezes"), ("POST", "/freezes/{freeze_id}/publication"),
              ("POST", "/import-profiles/draft"), ("POST", "/import-profiles"),
              ("POST", "/import-profiles/{name}")}

@@ -30,6 +30,7 @@ from server.models import Compound, Job
 from server.services import measurements
 from server.synth.cif import bowl_crystal_cif
 from server.synth.dsc import dsc_trace
+from tests.api.test_attachments import micrograph
 from tests.conftest import _empty_pg
 from tests.factories import bearer, login_as, make_token
 
@@ -124,16 +125,27 @@ def _build(settings, which: str) -> tuple[dict, dict]:  # noqa: ANN001
                                 json={"body": f"**{WORLDS[which]['label']}**: {WORLDS[which]['notes']}"})
                 assert r.status_code == 201, r.text
                 comment_ids.append(r.json()["id"])
+            # Images on the same four objects, different in each world, captioned with the label (issue 23).
+            attachment_ids, attachment_shas = [], []
+            for i, (plural, ref) in enumerate((("compounds", code), ("batches", batch["code"]),
+                                               ("samples", sample), ("measurements", dsc.json()["id"]))):
+                image = micrograph("PNG", size=(64, 48), seed={"A": 10, "B": 20}[which] + i)
+                r = client.post(f"/api/v1/{plural}/{ref}/attachments", headers=w,
+                                files={"file": ("pom.png", image, "image/png")},
+                                data={"caption": WORLDS[which]["label"], "polariser": "crossed"})
+                assert r.status_code == 201, r.text
+                attachment_ids.append(r.json()["id"])
+                attachment_shas.append(r.json()["sha256"])
             # A paper freeze holding the embargoed compound beside an open one (issue 23).
             fz = client.post("/api/v1/freezes", json={"name": "bowl-chains manuscript",
                                                       "compounds": [open_codes[0], code]}, headers=w)
             assert fz.status_code == 201, fz.text
             params = {"freeze_id": fz.json()["id"], "code": code, "batch_code": batch["code"],
                       "measurement_id": dsc.json()["id"],
-                      "sample_code": sample, "comment_id": comment_ids[0],
+                      "sample_code": sample, "comment_id": comment_ids[0], "attachment_id": attachment_ids[0],
                       "job_id": row.id, "fmt": "csv", "kind": "dsc", "scaffold": "BWL-S"}
             info = {"code": code, "pe": pe.json()["id"], "dsc": dsc.json()["id"], "secret": secret,
-                    "mw": comp.mw, "formula": comp.formula, "up": up,
+                    "mw": comp.mw, "formula": comp.formula, "up": up, "attachments": attachment_shas,
                     "comments": [client.get(f"/api/v1/{p}/{r}/comments", headers=w).json()["items"][0]["body"]
                                  for p, r in (("compounds", code), ("batches", batch["code"]), ("samples", sample),
                                               ("measurements", dsc.json()["id"]))]}
@@ -150,6 +162,10 @@ def _build(settings, which: str) -> tuple[dict, dict]:  # noqa: ANN001
             for mid in (info["pe"], info["dsc"]):
                 r = client.get(f"/api/v1/measurements/{mid}/raw", headers=up)
                 answers[f"upload raw {mid}"] = str(r.status_code) + r.text
+            for aid in attachment_ids:
+                for what in ("", "/original", "/thumbnail"):
+                    r = client.get(f"/api/v1/attachments/{aid}{what}", headers=up)
+                    answers[f"upload attachment {aid}{what}"] = str(r.status_code) + r.text
     finally:
         app.state.engine.dispose()
     return answers, info
@@ -176,7 +192,7 @@ def _url(path: str, params: dict) -> str:
     url = re.sub(r"\{(\w+)(:\w+)?\}", lambda m: str(params.get(m.group(1), "1")), path)
     if path.startswith("/batches/{code}"):
         url = re.sub(r"^/batches/[^/]+", f"/batches/{params['batch_code']}", url)
-    if path.startswith("/api/v1/batches/{code}/comments"):
+    if path.startswith(("/api/v1/batches/{code}/comments", "/api/v1/batches/{code}/attachments")):
         url = url.replace(f"/batches/{params['code']}/", f"/batches/{params['batch_code']}/")
     if path.startswith("/samples/{code}"):
         url = url.replace(f"/samples/{params['code']}", f"/samples/{params['sample_code']}")
@@ -191,6 +207,7 @@ def test_no_answer_depends_on_an_embargoed_structure(settings, db_url, sqlite_te
     assert info_a["code"] == info_b["code"] and info_a["mw"] != info_b["mw"]
     assert info_a["formula"] != info_b["formula"] and info_a["secret"]["scaffold"] != info_b["secret"]["scaffold"]
     assert all(ca != cb for ca, cb in zip(info_a["comments"], info_b["comments"], strict=True))  # a member sees them
+    assert all(sa != sb for sa, sb in zip(info_a["attachments"], info_b["attachments"], strict=True))
     assert a.keys() == b.keys() and len(a) > 150, len(a)
     differ = sorted(k for k in a if a[k] != b[k])
     assert not differ, f"{len(differ)} answers depend on the embargoed structure, e.g.:\n" + "\n".join(differ[:40])

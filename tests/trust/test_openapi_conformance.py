@@ -38,6 +38,13 @@ def _semi_file() -> bytes:
     return ("\n".join(out) + "\n").encode()
 
 
+def _image(fmt: str, seed: int, claim: str | None = None, **data: str) -> dict:
+    from tests.api.test_attachments import TYPES, micrograph
+
+    name, ctype = TYPES[fmt]
+    return {"files": {"file": (name, micrograph(fmt, size=(64, 48), seed=seed), claim or ctype)}, "data": data}
+
+
 def _requests(code: str, batch: str) -> list[tuple[str, str, dict]]:
     """(method, path, httpx keyword arguments), in an order where each needs only what came before."""
     semi = _semi_file()
@@ -149,6 +156,22 @@ def _requests(code: str, batch: str) -> list[tuple[str, str, dict]]:
         ("PUT", "/api/v1/notifications/preferences", {"json": {"email": "", "events": [
             {"event": "mention", "email": True}]}}),  # 422: e-mail needs an address
         ("DELETE", f"/api/v1/compounds/{code}/follow", {}),
+        # Image attachments (issue 23): every target, a type the bytes contradict, a duplicate, the bytes.
+        ("POST", f"/api/v1/compounds/{code}/attachments", _image("PNG", 1, caption="POM", scale_bar="100 um")),
+        ("POST", f"/api/v1/compounds/{code}/attachments", _image("PNG", 1)),  # 409: attached already
+        ("POST", f"/api/v1/compounds/{code}/attachments", _image("JPEG", 2, claim="image/png")),  # 422
+        ("GET", f"/api/v1/compounds/{code}/attachments", {}),
+        ("POST", f"/api/v1/batches/{batch}/attachments", _image("JPEG", 3, polariser="crossed")),
+        ("GET", f"/api/v1/batches/{batch}/attachments", {}),
+        ("POST", f"/api/v1/samples/{batch}-S01/attachments", _image("TIFF", 4, temperature="300 K")),
+        ("GET", f"/api/v1/samples/{batch}-S01/attachments", {}),
+        ("POST", "/api/v1/measurements/1/attachments", _image("PNG", 5, magnification="10x")),
+        ("GET", "/api/v1/measurements/1/attachments", {}),
+        ("GET", "/api/v1/attachments/1", {}),
+        ("GET", "/api/v1/attachments/99", {}),  # 404
+        ("GET", "/api/v1/attachments/1/original", {}),
+        ("GET", "/api/v1/attachments/3/original", {}),  # a TIFF
+        ("GET", "/api/v1/attachments/1/thumbnail", {}),
         # Paper freezes (issue 23).
         ("POST", "/api/v1/freezes", {"json": {"name": "bowl-chains manuscript", "compounds": [code]}}),
         ("POST", "/api/v1/freezes", {"json": {"name": "bowl-chains manuscript", "compounds": [code]}}),  # 409

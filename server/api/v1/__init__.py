@@ -2,7 +2,7 @@
 
 from fastapi import APIRouter
 
-from . import admin, barriers, comments, compounds, freezes, import_profiles, jobs, measurements, notifications, outputs, planning, samples, scaffolds
+from . import admin, attachments, barriers, comments, compounds, freezes, import_profiles, jobs, measurements, notifications, outputs, planning, samples, scaffolds
 
 router = APIRouter(prefix="/api/v1")
 router.include_router(compounds.router)
@@ -16,5 +16,6 @@ router.include_router(admin.router)
 router.include_router(outputs.router)
 router.include_router(planning.router)
 router.include_router(comments.router)
+router.include_router(attachments.router)
 router.include_router(freezes.router)
 router.include_router(notifications.router)

@@ -14,9 +14,9 @@ router = APIRouter(tags=["freezes"])
 
 @router.post("/freezes", status_code=201, responses={**AUTH_ERRORS, **INPUT_ERRORS, **DUPLICATE})
 def create_freeze(data: FreezeCreate, session: SessionDep, actor: Writer) -> dict:
-    """Freeze the named compounds: every live measurement id, raw-file SHA-256, analysis version and
-    result, and each compound's verdict, as they are now."""
-    freeze = freezes.create_freeze(session=session, name=data.name, codes=data.compounds, actor=actor)
+    """Freeze the named compounds (or those a registry view shows the caller now, `view`): every live
+    measurement id, raw-file SHA-256, analysis version and result, and each compound's verdict, as they are now."""
+    freeze = freezes.create_freeze(session=session, name=data.name, codes=data.compounds, view=data.view, actor=actor)
     return accounts.hide_people(freezes.freeze_read(session, freeze, actor=actor), sees_people=actor.sees_people)
 
 

@@ -1,0 +1,186 @@
+"""Image attachments through the API (issue 23, item 2): all four targets, the type decided by the
+bytes (PNG claimed but JPEG bytes, random bytes, truncated files), the checksum of the bytes stored
+unchanged, the thumbnail's size, metadata with units, the size limit, decompression bombs, and the
+embargo on every attachment route."""
+
+from __future__ import annotations
+
+import hashlib
+import io
+import struct
+import zlib
+
+import numpy as np
+import pytest
+from PIL import Image
+from sqlmodel import select
+
+from server import bounds
+from server.models import Attachment, AuditEvent, RawFile
+from tests.factories import bearer, make_token
+from tests.trust.conftest import loop_bytes
+
+
+def micrograph(fmt: str = "PNG", size: tuple[int, int] = (640, 480), seed: int = 1, mode: str = "RGB") -> bytes:
+    """An invented polarised-light micrograph: birefringent domains (smooth colour bands) with a few %
+    camera noise, saved as ``fmt``."""
+    rng = np.random.default_rng(seed)
+    w, h = size
+    y, x = np.mgrid[0:h, 0:w]
+    bands = 0.5 + 0.5 * np.sin(x / 23.0 + 2.0 * np.sin(y / 41.0))
+    if mode == "I;16":  # a 16-bit monochrome scientific camera
+        counts = 4000 + 20000 * bands + rng.normal(0, 600, bands.shape)
+        im = Image.fromarray(counts.clip(0, 65535).astype(np.uint16))
+    else:
+        rgb = np.stack([bands, bands ** 2, 1 - bands], axis=-1) * 220 + rng.normal(0, 6, (h, w, 3))
+        im = Image.fromarray(rgb.clip(0, 255).astype(np.uint8), mode="RGB")
+    out = io.BytesIO()
+    im.save(out, format=fmt)
+    return out.getvalue()
+
+
+TYPES = {"PNG": ("m.png", "image/png"), "JPEG": ("m.jpg", "image/jpeg"), "TIFF": ("m.tif", "image/tiff")}
+
+
+def _world(client, session, *, embargoed: bool = False, smiles: str = "c1ccc2ccccc2c1") -> dict:
+    w = bearer(make_token(session, scope="write", name=f"registrar-{smiles}"))
+    r = client.post("/api/v1/compounds", json={"smiles": smiles, "embargoed": embargoed}, headers=w)
+    assert r.status_code == 201, r.text
+    code = r.json()["code"]
+    batch = client.post(f"/api/v1/compounds/{code}/batches", json={"chemist": "lab"}, headers=w).json()["code"]
+    m = client.post(f"/api/v1/batches/{batch}/measurements", data={"kind": "pe_loop"},
+                    files={"file": ("m.csv", loop_bytes(4), "text/csv")}, headers=w)
+    assert m.status_code == 201, m.text
+    return {"w": w, "refs": {"compounds": code, "batches": batch, "samples": m.json()["sample"],
+                             "measurements": str(m.json()["id"])}, "code": code}
+
+
+def _post(client, url, raw, headers, name="m.png", ctype="image/png", **data):
+    return client.post(url, files={"file": (name, raw, ctype)}, data=data, headers=headers)
+
+
+def test_every_target_takes_images_stored_unchanged_with_thumbnail(client, session):
+    world = _world(client, session)
+    for i, (plural, ref) in enumerate(world["refs"].items()):
+        fmt = ("PNG", "JPEG", "TIFF", "PNG")[i]
+        raw = micrograph(fmt, seed=i)
+        url = f"/api/v1/{plural}/{ref}/attachments"
+        assert client.get(url, headers=world["w"]).json() == {"items": [], "withheld": False}
+        r = _post(client, url, raw, world["w"], *TYPES[fmt], caption="POM, cooling", magnification="10x",
+                  scale_bar="100 µm", polariser="crossed", temperature="25 °C")
+        assert r.status_code == 201, r.text
+        a = r.json()
+        assert a["sha256"] == hashlib.sha256(raw).hexdigest() and a["size_bytes"] == len(raw)
+        assert a["media_type"] == TYPES[fmt][1] and (a["width_px"], a["height_px"]) == (640, 480)
+        assert a["magnification"] == 10 and a["scale_bar_um"] == pytest.approx(100)
+        assert a["polariser_crossed"] is True and a["t_K"] == pytest.approx(298.15)
+        # The original comes back byte for byte, its checksum in the header.
+        orig = client.get(a["original_url"], headers=world["w"])
+        assert orig.status_code == 200 and orig.content == raw
+        assert orig.headers["content-type"] == TYPES[fmt][1] and orig.headers["x-content-sha256"] == a["sha256"]
+        # The thumbnail: a JPEG whose longer side is the bound, the aspect ratio kept.
+        thumb = client.get(a["thumbnail_url"], headers=world["w"])
+        assert thumb.headers["content-type"] == "image/jpeg"
+        im = Image.open(io.BytesIO(thumb.content))
+        assert im.format == "JPEG" and im.size == (bounds.THUMBNAIL_PX, bounds.THUMBNAIL_PX * 3 // 4)
+        assert (a["thumb_width_px"], a["thumb_height_px"]) == im.size
+        listed = client.get(url, headers=world["w"]).json()["items"]
+        assert [x["id"] for x in listed] == [a["id"]] and listed[0]["ref"] == ref
+    stored = session.exec(select(RawFile).where(RawFile.content_type.like("image/%"))).all()
+    assert {hashlib.sha256(r.data).hexdigest() for r in stored} == {r.sha256 for r in stored} and len(stored) == 4
+    session.expire_all()
+    assert [e.action for e in session.exec(select(AuditEvent).where(AuditEvent.entity == "attachment"))] == \
+        ["attachment.create"] * 4
+
+
+def test_sixteen_bit_camera_tiff_gets_a_thumbnail(client, session):
+    world = _world(client, session)
+    raw = micrograph("TIFF", size=(300, 600), mode="I;16")
+    r = _post(client, f"/api/v1/compounds/{world['code']}/attachments", raw, world["w"], *TYPES["TIFF"])
+    assert r.status_code == 201, r.text
+    im = Image.open(io.BytesIO(client.get(r.json()["thumbnail_url"], headers=world["w"]).content))
+    assert im.size == (bounds.THUMBNAIL_PX // 2, bounds.THUMBNAIL_PX)
+    px = np.asarray(im.convert("L"), dtype=float)
+    assert px.max() - px.min() > 150  # stretched to 8 bits, not a black square
+
+
+def _png_claiming(width: int, height: int) -> bytes:
+    """A tiny, valid PNG whose header claims ``width`` x ``height`` pixels (IHDR rewritten, CRC redone)."""
+    raw = bytearray(micrograph("PNG", size=(8, 8)))
+    ihdr = 8  # after the signature: length (4), b"IHDR", then width, height
+    raw[ihdr + 8:ihdr + 16] = struct.pack(">II", width, height)
+    raw[ihdr + 21:ihdr + 25] = struct.pack(">I", zlib.crc32(bytes(raw[ihdr + 4:ihdr + 21])))
+    return bytes(raw)
+
+
+def test_bytes_decide_the_type_and_bad_images_store_nothing(client, session, settings):
+    world = _world(client, session)
+    url = f"/api/v1/samples/{world['refs']['samples']}/attachments"
+    png, jpeg = micrograph("PNG"), micrograph("JPEG")
+    rng = np.random.default_rng(7)
+    cases = {
+        "jpeg bytes claimed png": (jpeg, "m.png", "image/png", "claims to be PNG but its bytes are JPEG"),
+        "png bytes claimed jpeg by name": (png, "m.jpg", "application/octet-stream", "claims to be JPEG"),
+        "random bytes": (rng.bytes(5000), "m.png", "image/png", "not a PNG, JPEG or TIFF"),
+        "text claimed png": (b"x,y\n1,2\n", "m.png", "image/png", "not a PNG, JPEG or TIFF"),
+        "truncated png": (png[: len(png) // 2], "m.png", "image/png", "damaged or truncated"),
+        "truncated jpeg": (jpeg[: len(jpeg) // 2], "m.jpg", "image/jpeg", "damaged or truncated"),
+        "gif claim": (png, "m.gif", "image/gif", "PNG, JPEG or TIFF"),
+        "bomb": (_png_claiming(40000, 40000), "m.png", "image/png", "pixels"),
+        "bigger bomb than Pillow's own limit": (_png_claiming(60000, 60000), "m.png", "image/png", "pixels"),
+    }
+    for name, (raw, fname, ctype, says) in cases.items():
+        r = _post(client, url, raw, world["w"], fname, ctype)
+        assert r.status_code == 422, (name, r.status_code, r.text)
+        assert r.json()["field"] == "file" and says in r.json()["detail"], (name, r.text)
+    # Metadata that cannot be read are refused naming their field.
+    for field, value in (("scale_bar", "100"), ("scale_bar", "100 K"), ("temperature", "-5 K"),
+                         ("magnification", "lots"), ("polariser", "sideways"), ("caption", "x" * 2001)):
+        r = _post(client, url, png, world["w"], **{field: value})
+        named = r.json().get("field") or r.json().get("errors", [{}])[0].get("loc", [None])[-1]
+        assert r.status_code == 422 and named == field, (field, r.text)
+    assert session.exec(select(Attachment)).all() == []
+    assert session.exec(select(RawFile).where(RawFile.content_type.like("image/%"))).all() == []
+    # The same image twice on one target: 409 naming the first; on another target it is fine.
+    first = _post(client, url, png, world["w"])
+    assert first.status_code == 201
+    again = _post(client, url, png, world["w"])
+    assert again.status_code == 409 and again.json()["existing"] == first.json()["id"]
+    assert _post(client, f"/api/v1/compounds/{world['code']}/attachments", png, world["w"]).status_code == 201
+    assert len(session.exec(select(RawFile).where(RawFile.sha256 == first.json()["sha256"])).all()) == 1
+
+
+def test_size_limit_is_the_upload_limit(client, session, settings, monkeypatch):
+    world = _world(client, session)
+    raw = micrograph("PNG")
+    monkeypatch.setattr(type(settings), "max_upload_bytes", property(lambda self: len(raw) - 1))
+    r = _post(client, f"/api/v1/compounds/{world['code']}/attachments", raw, world["w"])
+    assert r.status_code == 413 and "REMANENCE_MAX_UPLOAD_MB" in r.text, r.text
+    assert session.exec(select(Attachment)).all() == []
+
+
+def test_embargoed_attachments_are_invisible_on_every_route(client, session):
+    world = _world(client, session, embargoed=True)
+    up = bearer(make_token(session, scope="upload", name="instrument-pc"))
+    plain = bearer(make_token(session, scope="read", name="plain-reader"))
+    granted = bearer(make_token(session, scope="read", name="granted-reader", sees_embargoed=True))
+    for i, (plural, ref) in enumerate(world["refs"].items()):
+        url = f"/api/v1/{plural}/{ref}/attachments"
+        a = _post(client, url, micrograph(seed=10 + i), world["w"], caption="six SC8H17 arms").json()
+        routes = (f"/api/v1/attachments/{a['id']}", a["original_url"], a["thumbnail_url"])
+        for who in (up, plain):
+            got = client.get(url, headers=who)
+            assert got.status_code == 200 and got.json() == {"items": [], "withheld": True}, got.text
+            for route in routes:
+                r = client.get(route, headers=who)
+                assert r.status_code == 404 and r.json() == {"detail": f"no attachment {a['id']}"}, (route, r.text)
+            # Nor may they attach (the upload token may not write at all; a read token neither).
+            assert _post(client, url, micrograph(seed=99), who).status_code == 403
+        # The control: a granted read token sees the gallery and every route.
+        assert [x["id"] for x in client.get(url, headers=granted).json()["items"]] == [a["id"]]
+        assert all(client.get(route, headers=granted).status_code == 200 for route in routes)
+    # An open compound's attachment is visible to the plain reader; the upload token sees no names.
+    open_world = _world(client, session, smiles="c1ccc2cc3ccccc3cc2c1")
+    a = _post(client, f"/api/v1/compounds/{open_world['code']}/attachments", micrograph(seed=50), world["w"]).json()
+    assert client.get(f"/api/v1/attachments/{a['id']}", headers=plain).json()["created_by"] == a["created_by"]
+    assert client.get(f"/api/v1/attachments/{a['id']}", headers=up).json()["created_by"] == "(hidden)"

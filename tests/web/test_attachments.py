@@ -1,0 +1,76 @@
+"""The image gallery on the compound, batch, sample and measurement pages (issue 23, item 2): an upload
+from the form (htmx swap or plain form and redirect), thumbnails that open the original, the metadata
+caption, a refused file keeping what was typed."""
+
+from __future__ import annotations
+
+from tests.api.test_attachments import micrograph
+from tests.factories import bearer, login_as, make_token, soup
+from tests.trust.conftest import loop_bytes
+
+
+def _world(client, session):
+    w = bearer(make_token(session, scope="write", name="registrar"))
+    code = client.post("/api/v1/compounds", json={"smiles": "c1ccc2ccccc2c1"}, headers=w).json()["code"]
+    batch = client.post(f"/api/v1/compounds/{code}/batches", json={"chemist": "lab"}, headers=w).json()["code"]
+    m = client.post(f"/api/v1/batches/{batch}/measurements", data={"kind": "pe_loop"},
+                    files={"file": ("m.csv", loop_bytes(8), "text/csv")}, headers=w).json()
+    return {f"/compounds/{code}": f"/compounds/{code}/attachments",
+            f"/batches/{batch}": f"/batches/{batch}/attachments",
+            f"/samples/{m['sample']}": f"/samples/{m['sample']}/attachments",
+            f"/measurements/{m['id']}": f"/measurements/{m['id']}/attachments"}
+
+
+def test_upload_from_every_page_shows_a_thumbnail_that_opens_the_original(client, session):
+    pages = _world(client, session)
+    csrf = login_as(client, session, role="member", name="mia")
+    for i, (page, post) in enumerate(pages.items()):
+        gallery = soup(client.get(page).text).select_one("section.attachments")
+        form = gallery.select_one("form.attachment-form")
+        assert form["action"] == post and form["hx-post"] == post and form["enctype"] == "multipart/form-data"
+        assert gallery.select("li.attachment") == []
+        raw = micrograph("PNG", seed=i)
+        r = client.post(post, files={"file": ("pom.png", raw, "image/png")},
+                        data={"caption": "fan texture on cooling", "magnification": "20x", "scale_bar": "0.05 mm",
+                              "polariser": "crossed", "temperature": "120 °C"},
+                        headers={"HX-Request": "true", "X-CSRF-Token": csrf})
+        assert r.status_code == 200, r.text
+        frag = soup(r.text)
+        assert frag.find("html") is None and frag.select_one("section.attachments")["id"] == gallery["id"]
+        item = frag.select_one("li.attachment")
+        link, img = item.select_one("figure a"), item.select_one("figure img")
+        assert link["href"].endswith("/original") and img["src"].endswith("/thumbnail")
+        assert item.select_one(".caption").text == "fan texture on cooling"
+        assert item.select_one(".meta").text == "20\u00d7 \u00b7 scale bar 50 \u00b5m \u00b7 crossed polarisers \u00b7 393.1 K"
+        # The page session reaches the bytes the gallery points at.
+        assert client.get(link["href"]).content == raw
+        assert client.get(img["src"]).headers["content-type"] == "image/jpeg"
+        # A plain form (no JavaScript): 303 back to the page's gallery.
+        r = client.post(post, files={"file": ("b.jpg", micrograph("JPEG", seed=40 + i), "image/jpeg")},
+                        data={"csrf_token": csrf}, follow_redirects=False)
+        assert r.status_code == 303 and r.headers["location"] == page + "#attachments", r.headers
+        assert len(soup(client.get(page).text).select("section.attachments li.attachment")) == 2
+        # Without the CSRF token: refused.
+        assert client.post(post, files={"file": ("c.png", raw, "image/png")},
+                           headers={"HX-Request": "true"}).status_code == 403
+
+
+def test_a_refused_image_keeps_the_form_with_the_error(client, session):
+    pages = _world(client, session)
+    csrf = login_as(client, session, role="member", name="mia")
+    post = next(iter(pages.values()))
+    r = client.post(post, files={"file": ("fake.png", micrograph("JPEG"), "image/png")},
+                    data={"caption": "cracked pellet", "scale_bar": "2 mm"},
+                    headers={"HX-Request": "true", "X-CSRF-Token": csrf})
+    assert r.status_code == 422
+    frag = soup(r.text)
+    assert "claims to be PNG but its bytes are JPEG" in frag.select_one("p.error[role=alert]").text
+    assert frag.select_one("input[name=caption]")["value"] == "cracked pellet"
+    assert frag.select("li.attachment") == []
+
+
+def test_viewers_see_the_gallery_without_the_form(client, session):
+    pages = _world(client, session)
+    login_as(client, session, role="viewer", name="vic")
+    gallery = soup(client.get(next(iter(pages))).text).select_one("section.attachments")
+    assert gallery is not None and gallery.select_one("form") is None

@@ -72,7 +72,8 @@ def test_report_pack_parts(client, writer, stocked):
     assert files[next(p for p in files if p.startswith("cif/"))].lstrip().startswith((b"data_", b"#"))
     # figures: SVG parses with its axis labels, PDF has one page; the switching figure of the two loops
     svgs = [p for p in files if p.endswith(".svg")]
-    assert "figures/switching.svg" in svgs and len(svgs) == 5 + 1  # loops, dielectric, DSC, Eyring + switching
+    assert "figures/switching.svg" in svgs and len(svgs) == 6 + 1  # loops, dielectric, DSC, Eyring, cell + switching
+    assert any(p.endswith("-crystal.svg") for p in svgs)  # the unit cell and packing
     for p in svgs:
         assert svg_texts(files[p])
         assert pdf_pages(files[p.removesuffix(".svg") + ".pdf"]) == 1

@@ -95,21 +95,46 @@ document.addEventListener("click", function (evt) {
   // After a swap, focus goes where the user's attention should: htmx itself puts it back on an element
   // with the same id (sort headers and pager links have stable ids); when it was lost instead, it moves
   // to the error in the new content, else to the swapped region (made focusable for the purpose).
+  // Both happen in htmx:afterSwap, in the same task as the swap itself, so no script or assistive
+  // technology ever sees the new content with focus on the body. (htmx:afterSettle comes a settle
+  // delay later, a timer that a busy machine stretches: placing focus there left a window in which
+  // the new table was shown and focus was nowhere.)
+  // While a region is being redrawn it carries aria-busy="true": from a request for it until the newest
+  // such request has ended (answered, aborted by a newer one, or failed) and its content has settled.
+  // The request's own loadend event ends it, which comes after htmx has handled the answer.
+  var latest = new WeakMap();
+  function settleBusy(target) {
+    var xhr = latest.get(target);
+    var inFlight = !!xhr && xhr.readyState > 0 && xhr.readyState < 4;
+    if (inFlight || target.classList.contains("htmx-settling")) { target.setAttribute("aria-busy", "true"); }
+    else { target.removeAttribute("aria-busy"); }
+  }
   var lost = false;
+  document.addEventListener("htmx:beforeRequest", function (evt) {
+    var target = evt.detail.target, xhr = evt.detail.xhr;
+    if (evt.defaultPrevented || !target || !target.setAttribute || !xhr) { return; }
+    latest.set(target, xhr);
+    target.setAttribute("aria-busy", "true");
+    xhr.addEventListener("loadend", function () { settleBusy(target); });
+  });
   document.addEventListener("htmx:beforeSwap", function (evt) {
     var active = document.activeElement;
     lost = !!(active && active !== document.body && evt.detail.target.contains(active));
   });
-  document.addEventListener("htmx:afterSettle", function (evt) {
+  document.addEventListener("htmx:afterSwap", function (evt) {
     var target = evt.detail.target;
-    reachable(target.parentNode || document);
     var active = document.activeElement;
-    if (!lost || (active && active !== document.body && document.contains(active))) { return; }
+    if (!lost || (active && active !== document.body && document.contains(active))) { lost = false; return; }
     lost = false;
     var error = target.querySelector('[role="alert"], .error');
     var goal = error || target;
     if (!goal.matches(FOCUSABLE)) { goal.setAttribute("tabindex", "-1"); }
     goal.focus({ preventScroll: false });
+  });
+  document.addEventListener("htmx:afterSettle", function (evt) {
+    var target = evt.detail.target;
+    reachable(target.parentNode || document);
+    settleBusy(target);
   });
 })();
 

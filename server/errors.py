@@ -3,6 +3,8 @@
 Every error raised from ingest, chemistry or analysis code is an :class:`InputError`
 (or a subclass) carrying a message written for a chemist, plus where the problem is:
 a form/JSON ``field``, a file ``line`` (1-based, as an editor shows it) or a ``column``.
+A ``detail`` (optional) carries a library's own words (RDKit's parse messages): part of the
+text of the error, which a page may show apart from the plain message.
 The API turns them into 422 responses; nothing is stored when one is raised.
 """
 
@@ -23,11 +25,13 @@ class InputError(RemanenceError):
         field: str | None = None,
         line: int | None = None,
         column: str | None = None,
+        detail: str | None = None,
     ) -> None:
         self.message = message
         self.field = field
         self.line = line
         self.column = column
+        self.detail = detail
         super().__init__(str(self))
 
     def __str__(self) -> str:
@@ -38,7 +42,8 @@ class InputError(RemanenceError):
             where.append(f"line {self.line}")
         if self.column is not None:
             where.append(f"column '{self.column}'")
-        return f"{', '.join(where)}: {self.message}" if where else self.message
+        text = f"{self.message} {self.detail}" if self.detail else self.message
+        return f"{', '.join(where)}: {text}" if where else text
 
     def to_dict(self) -> dict:
         out: dict = {"detail": str(self)}

@@ -164,7 +164,7 @@ def read_query(text: str, *, kind: str = "substructure") -> Query:
                 stripped, allow_dummies=False, field=field
             )
         except ChemistryError as exc:
-            raise ChemistryError(exc.message, field=field) from exc
+            raise ChemistryError(exc.message, field=field, detail=exc.detail) from exc
         return Query(mol=mol, language="smiles", text=Chem.MolToSmiles(mol))
     if not stripped:
         raise ChemistryError("No substructure given: write a SMARTS pattern or a SMILES.", field=field)
@@ -182,11 +182,10 @@ def read_query(text: str, *, kind: str = "substructure") -> Query:
         query = Query(mol=smarts_mol, language="smarts", text=stripped)
         check_query_size(query, field=field)
         return query
-    detail = f" RDKit says: {smarts_words}" if smarts_words else ""
     raise ChemistryError(
         f"'{stripped}' is neither a valid SMARTS pattern nor a valid SMILES; check brackets, "
-        f"ring-closure digits and element symbols.{detail}",
-        field=field,
+        f"ring-closure digits and element symbols.",
+        field=field, detail=f"RDKit says: {smarts_words}" if smarts_words else None,
     )
 
 

@@ -238,6 +238,17 @@ FILTERS: tuple[Filter, ...] = (
     Filter("archived", "Include archived", _bool),
 )
 FILTER_BY_NAME = {f.name: f for f in FILTERS}
+# What the filter form calls each query-string parameter, for errors that name the box to correct.
+PARAM_LABELS: dict[str, str] = {
+    **{f.name: f.label for f in FILTERS},
+    "substructure": "Substructure (SMARTS)",
+    "similar": "Similar to (SMILES)",
+    "threshold": "Tanimoto threshold",
+    "sort": "Sort",
+    "dir": "Sort direction",
+    "page": "Page",
+    "size": "Rows per page",
+}
 
 # Filters whose answer depends on a compound's structure (its scaffold, side chains, or a value computed
 # from it): for a caller who may not see embargoed structures they never match an embargoed row
@@ -351,6 +362,24 @@ def parse_view(params: Any, *, max_size: int = 500) -> ViewQuery:
     threshold = _float("threshold", (getlist("threshold") or ["0.7"])[-1])
     return ViewQuery(values=values, sort=sort, descending=direction == "desc", page=page, size=size,
                      substructure=sub, similar=sim, threshold=threshold)
+
+
+def parse_view_or_error(params: Any, *, max_size: int = 500) -> tuple[ViewQuery, Optional[InputError]]:
+    """:func:`parse_view`, or on bad input the view without the offending parameter, and the error.
+
+    A page keeps the rest of what the user asked for (and shows the bad value back in its box)
+    instead of forgetting every filter because of one typo.
+    """
+    try:
+        return parse_view(params, max_size=max_size), None
+    except InputError as exc:
+        error = exc
+    keys = params.keys() if hasattr(params, "keys") else ()
+    rest = {k: (params.getlist(k) if hasattr(params, "getlist") else params[k]) for k in keys if k != error.field}
+    try:
+        return parse_view(rest, max_size=max_size), error
+    except InputError:
+        return ViewQuery(), error
 
 
 @dataclass(frozen=True)

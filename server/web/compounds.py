@@ -39,20 +39,36 @@ def home() -> RedirectResponse:
 
 @router.get("/compounds", response_class=HTMLResponse)
 def compound_list(request: Request, session: SessionDep, actor: PageActor):
-    """The registry table: filters, sort and page live in the query string, so every view is a link."""
-    error = None
-    try:
-        q = views.parse_view(request.query_params)
-        result = views.query_view(session, q, actor=actor)
-    except InputError as exc:
-        error, q = str(exc), views.ViewQuery()
-        result = views.query_view(session, q, actor=actor)
+    """The registry table: filters, sort and page live in the query string, so every view is a link.
+
+    Bad input (a SMARTS RDKit cannot read, a number that is not one) answers 422 with the error and
+    no table: a list shown under the error would be another view than the one in the form. The form
+    keeps every value as typed, the bad one included, so it can be corrected in place."""
+    q, error = views.parse_view_or_error(request.query_params)
+    result = None
+    if error is None:
+        try:
+            result = views.query_view(session, q, actor=actor)
+        except InputError as exc:
+            error = exc
+    form = {**q.values, "substructure": q.substructure, "similar": q.similar, "threshold": q.threshold}
+    if error is not None and error.field in views.PARAM_LABELS:
+        form[error.field] = request.query_params.get(error.field, "")
     return render(
         request, "pages/compounds.html",
-        {"result": result, "q": q, "error": error, "choices": views.filter_choices(session), "sorts": views.SORTS,
-         "link": q.link()},
+        {"result": result, "q": q, "form": form, "error": _view_error(error),
+         "choices": views.filter_choices(session), "sorts": views.SORTS, "link": q.link()},
         partial="partials/compound_table.html", actor=actor, status_code=422 if error else 200,
     )
+
+
+def _view_error(error: Optional[InputError]) -> Optional[dict]:
+    """An error as the registry page shows it: the box it is about, the plain message, the library's words."""
+    if error is None:
+        return None
+    label = views.PARAM_LABELS.get(error.field or "")
+    return {"field": error.field if label else None, "label": label,
+            "message": error.message if label else str(error), "detail": error.detail if label else None}
 
 
 @router.get("/compounds/export.{fmt}")

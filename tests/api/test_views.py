@@ -120,5 +120,40 @@ def test_table_page_filters_in_place(client, session, campaign):
     shown = [tr["data-code"] for tr in doc.select("tbody tr")]
     _, ref = campaign
     assert shown == list(ref[ref.kind == "alkylthio"].sort_values("number").code)
-    bad = soup(client.get("/compounds?c_min=lots").text)
-    assert "c_min" in bad.find(role="alert").text
+    bad = soup(client.get("/compounds?c_min=lots&chain_kind=alkylthio").text)
+    alert = bad.find(role="alert")
+    assert alert["data-field"] == "c_min" and alert.text.startswith("Carbons from:")
+    # the rest of the view is kept, and no (other) list is shown under the error
+    assert bad.select_one("#filters select[name=chain_kind] option[selected]").text == "alkylthio"
+    assert bad.select("table.registry") == []
+
+
+def test_an_invalid_smarts_stays_in_its_box_with_a_plain_error_and_no_list(client, session, campaign):
+    """Issue 22 item 7: the error names the box, says what is wrong in plain words (RDKit's own
+    messages folded away), the SMARTS stays as typed, and no unfiltered list is shown under it."""
+    from tests.factories import soup
+
+    login_as(client, session)
+    url = "/compounds?substructure=c1ccc(&chain_kind=alkoxy&sort=label&dir=asc"
+    page = client.get(url)
+    assert page.status_code == 422
+    doc = soup(page.text)
+    alert = doc.find(role="alert")
+    assert alert["data-field"] == "substructure"
+    assert alert.text.startswith("Substructure (SMARTS): 'c1ccc(' is neither a valid SMARTS")
+    assert "RDKit" not in alert.text
+    assert "SMARTS Parse Error" in doc.select_one(".view-error details").text
+    assert doc.select_one("#filters input[name=substructure]")["value"] == "c1ccc("
+    assert doc.select_one("#filters select[name=chain_kind] option[selected]").text == "alkoxy"
+    assert doc.select_one("#filters input[name=sort]")["value"] == "label"
+    assert doc.select_one("#filters input[name=dir]")["value"] == "asc"
+    assert doc.select("table.registry") == [] and doc.select(".count") == []
+    # the htmx fragment: the same error, no table, and no form (the form on the page keeps the text)
+    frag = client.get(url, headers={"HX-Request": "true"})
+    assert frag.status_code == 422
+    part = soup(frag.text)
+    assert part.find("form") is None and part.select("table.registry") == []
+    assert part.find(role="alert")["data-field"] == "substructure"
+    # the API keeps RDKit's words in its one message
+    api = client.get("/api/v1/compounds?substructure=c1ccc(", headers=bearer(make_token(session, scope="read")))
+    assert api.status_code == 422 and "RDKit says" in api.json()["detail"]

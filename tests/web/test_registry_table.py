@@ -3,6 +3,7 @@ code in each row with the full code in its link, title and accessible name; head
 
 from __future__ import annotations
 
+from server.precision import trade_unit
 from server.web.format import shared_code_prefix, short_code
 from tests.factories import bearer, login_as, make_token, soup
 
@@ -31,6 +32,7 @@ def test_registry_rows_show_the_short_code_and_keep_the_full_one(client, session
         assert link["href"] == f"/compounds/{full}" and link["title"] == full and link["aria-label"] == full
     assert sorted(r["data-code"] for r in table.select("tbody tr")) == sorted(codes)
     heads = [th.get_text(" ", strip=True) for th in table.select("thead th")]
-    assert any(h.startswith("Pr") and "(µC/cm²)" in h for h in heads)
+    # Units as the trade prints them (server/precision.py: µC cm⁻², kcal mol⁻¹)
+    assert any(h.startswith("Pr") and f"({trade_unit('µC/cm²')})" in h for h in heads)
     assert any(h.startswith("ε′ peak T") and "(K)" in h for h in heads)
-    assert any(h.startswith("Barrier") and "(kcal/mol)" in h for h in heads)
+    assert any(h.startswith("Barrier") and f"({trade_unit('kcal/mol')})" in h for h in heads)

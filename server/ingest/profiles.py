@@ -765,7 +765,7 @@ def _read_block(seg: _Segment, profile: Profile, header, data_start: int, data_a
             warnings.simplefilter("ignore", pd.errors.ParserWarning)
             frame = pd.read_csv(_Text(text, lo, hi), sep=d, decimal=profile.decimal, header=None,
                                 usecols=where, index_col=False, dtype=np.float64, engine="c",
-                                skip_blank_lines=False, low_memory=False, names=range(max(len(cells), max(where) + 1)))
+                                skip_blank_lines=False, names=range(max(len(cells), max(where) + 1)))
     except (ValueError, OverflowError) as exc:
         raise locate(exc) from exc
     values = frame[where].to_numpy(dtype=np.float64)

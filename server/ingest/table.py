@@ -520,7 +520,6 @@ def _read_text(text: str, notes: list[str]) -> ParsedTable:
                 engine="c",
                 quoting=csv.QUOTE_NONE,
                 skip_blank_lines=False,
-                low_memory=False,
             )
     except (ValueError, OverflowError) as exc:  # pandas ParserError is a ValueError
         raise locate(exc) from exc

@@ -24,6 +24,7 @@ import numpy as np
 import pandas as pd
 
 from server.ingest.profiles import profile_from_json, read_profiled
+from server.ingest.table import read_table, to_csv_bytes
 from server.synth.ferro import miller_loop
 
 from .common import fmt_s, paired
@@ -43,6 +44,13 @@ def export_bytes(points_per_cycle: int) -> tuple[bytes, str]:
     region = table.to_csv(sep=";", decimal=",", index=False, lineterminator="\r\n")
     head = "Loop tracer export\r\nArea: 7,85\r\nThickness: 150 µm\r\nFrequency: 100\r\nTemperature: 324\r\n\r\n[Data]\r\n"
     return (head + region).encode("cp1252"), region
+
+
+def clean_bytes(points_per_cycle: int) -> bytes:
+    """The same loop in the clean upload format (``name (unit)`` header, ``# key: value`` metadata)."""
+    frame = miller_loop(8.0, 6.0, 12.0, 40.0, cycles=2, points_per_cycle=points_per_cycle, noise_uC_cm2=0.02,
+                        rng=np.random.default_rng(7))
+    return to_csv_bytes(frame, {"area": "0.0785 cm^2", "thickness": "150 um", "frequency": "100 Hz"})
 
 
 def main() -> None:
@@ -65,6 +73,19 @@ def main() -> None:
     ratio = t_prof.median_s / t_bare.median_s
     print(f"{len(plain)} points ({len(raw) / 1e6:.1f} MB): read_profiled {fmt_s(t_prof.median_s)}, "
           f"pandas.read_csv of the data region {fmt_s(t_bare.median_s)}, ratio {ratio:.2f} (target <= 2)")
+
+    clean = clean_bytes(ppc)
+
+    def ours():
+        return read_table(clean)
+
+    def plain():
+        return pd.read_csv(io.BytesIO(clean), comment="#")
+
+    assert ours().n_rows == len(plain()) == 2 * ppc + 1
+    t_ours, t_plain = paired(ours, plain, rounds=3 if args.quick else 5)
+    print(f"{2 * ppc + 1} points ({len(clean) / 1e6:.1f} MB): read_table {fmt_s(t_ours.median_s)}, "
+          f"pandas.read_csv of the same bytes {fmt_s(t_plain.median_s)}, ratio {t_ours.median_s / t_plain.median_s:.2f}")
 
 
 if __name__ == "__main__":

@@ -33,7 +33,7 @@ import pandas as pd
 from server.errors import IngestError
 from server.ingest.columns import BY_NAME, CanonicalQuantity, ColumnSpec, quantities_named, split_header
 from server.ingest.conditions import CONDITION_FIELDS, TEXT_FIELDS, parse_conditions
-from server.ingest.table import _build, _cell_error, _decode
+from server.ingest.table import _build, _cell_error, _decode, _drop_blank_tail, _lines_from, _Text
 from server.ingest.units import UNIT_PARSE_ERRORS, normalise_unit_text, parse_unit, ureg
 
 #: The keys a profile's JSON may carry (others are refused, so a typo is not silently ignored).
@@ -432,19 +432,6 @@ def _matches_header(cells: Sequence[str], profile: Profile) -> bool:
     return all(i in found for i in range(len(sources)))
 
 
-def _lines_from(text: str, pos: int = 0, end: int | None = None):  # noqa: ANN202
-    """(offset, line) of each line of ``text[pos:end]``, as ``split("\n")`` would give them, found one at a
-    time so that reading a file's head does not split its million data lines."""
-    end = len(text) if end is None else end
-    while True:
-        stop = text.find("\n", pos, end)
-        if stop == -1:
-            yield pos, text[pos:end]
-            return
-        yield pos, text[pos:stop]
-        pos = stop + 1
-
-
 def _blank_spans(text: str, lo: int, hi: int, delimiter: str) -> tuple[list[tuple[int, int]], int]:
     """(line index, offset) of each blank line of ``text[lo:hi]`` (nothing but spaces, tabs and delimiters),
     found by one regular-expression scan anchored on the newlines, not a Python loop over a million lines;
@@ -461,31 +448,6 @@ def _blank_spans(text: str, lo: int, hi: int, delimiter: str) -> tuple[list[tupl
         last = m.start() + 1
         out.append((line, last))
     return out, line + text.count("\n", last, hi) + 1
-
-
-class _Text:
-    """``text[pos:end]`` read by pandas in chunks, without copying the whole span into a ``StringIO`` first."""
-
-    def __init__(self, text: str, pos: int, end: int) -> None:
-        self.text, self.pos, self.end = text, pos, end
-
-    def read(self, size: int = -1) -> str:
-        stop = self.end if size is None or size < 0 else min(self.end, self.pos + size)
-        out, self.pos = self.text[self.pos:stop], stop
-        return out
-
-    def __iter__(self):  # noqa: ANN204 - pandas takes an object with read and __iter__ for a file
-        return iter(self.text[self.pos:self.end].split("\n"))
-
-
-def _drop_blank_tail(text: str, lo: int, hi: int, blank) -> int:  # noqa: ANN001
-    """The end of ``text[lo:hi]`` without its trailing lines for which ``blank(line)`` holds."""
-    while hi > lo:
-        cut = text.rfind("\n", lo, hi)
-        if not blank(text[cut + 1 if cut != -1 else lo:hi]):
-            break
-        hi = max(cut, lo)
-    return hi
 
 
 @dataclass
@@ -803,7 +765,7 @@ def _read_block(seg: _Segment, profile: Profile, header, data_start: int, data_a
             warnings.simplefilter("ignore", pd.errors.ParserWarning)
             frame = pd.read_csv(_Text(text, lo, hi), sep=d, decimal=profile.decimal, header=None,
                                 usecols=where, index_col=False, dtype=np.float64, engine="c",
-                                skip_blank_lines=False, low_memory=False, names=range(max(len(cells), max(where) + 1)))
+                                skip_blank_lines=False, names=range(max(len(cells), max(where) + 1)))
     except (ValueError, OverflowError) as exc:
         raise locate(exc) from exc
     values = frame[where].to_numpy(dtype=np.float64)

@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import csv
 import io
+import itertools
 import re
 import warnings
 import zipfile
@@ -325,12 +326,68 @@ def _sniff_delimiter(header: str, sample: Sequence[str]) -> str:
     return best
 
 
+def _lines_from(text: str, pos: int = 0, end: int | None = None):  # noqa: ANN202
+    """(offset, line) of each line of ``text[pos:end]``, as ``split("\n")`` would give them, found one at a
+    time so that reading a file's head does not split its million data lines."""
+    end = len(text) if end is None else end
+    while True:
+        stop = text.find("\n", pos, end)
+        if stop == -1:
+            yield pos, text[pos:end]
+            return
+        yield pos, text[pos:stop]
+        pos = stop + 1
+
+
+class _Text:
+    """``text[pos:end]`` read by pandas in chunks, without copying the whole span into a ``StringIO`` first."""
+
+    def __init__(self, text: str, pos: int, end: int) -> None:
+        self.text, self.pos, self.end = text, pos, end
+
+    def read(self, size: int = -1) -> str:
+        stop = self.end if size is None or size < 0 else min(self.end, self.pos + size)
+        out, self.pos = self.text[self.pos:stop], stop
+        return out
+
+    def __iter__(self):  # noqa: ANN204 - pandas takes an object with read and __iter__ for a file
+        return iter(self.text[self.pos:self.end].split("\n"))
+
+
+def _drop_blank_tail(text: str, lo: int, hi: int, blank) -> int:  # noqa: ANN001
+    """The end of ``text[lo:hi]`` without its trailing lines for which ``blank(line)`` holds."""
+    while hi > lo:
+        cut = text.rfind("\n", lo, hi)
+        if not blank(text[cut + 1 if cut != -1 else lo:hi]):
+            break
+        hi = max(cut, lo)
+    return hi
+
+
+_ASCII_SPACE = " \t\x0b\x0c\x1c\x1d\x1e\x1f"  # what str.isspace holds besides the newlines (gone by now)
+_SPACE_LINE_RE = re.compile(r"^\s+$", re.MULTILINE)
+
+
+def _has_blank_line(text: str) -> bool:
+    """Whether ``text`` (lines joined by newlines) has an empty or whitespace-only line. ASCII text without
+    any space character is settled by substring searches; only otherwise is the regular expression run."""
+    if not text or text.startswith("\n") or text.endswith("\n") or "\n\n" in text:
+        return True
+    if text.isascii() and not any(c in text for c in _ASCII_SPACE):
+        return False
+    return _SPACE_LINE_RE.search(text) is not None
+
+
 def _read_text(text: str, notes: list[str]) -> ParsedTable:
-    lines = text.replace("\r\n", "\n").replace("\r", "\n").split("\n")
+    """Read the text of a ``name (unit)`` table. The lines above the header are walked one by one; the
+    data stay one string, cut by offset and handed whole to one ``pandas.read_csv``: the rows are split
+    in Python only to name the line and cell of an error (the profiled reader's approach, issue 14)."""
+    if "\r" in text:
+        text = text.replace("\r\n", "\n").replace("\r", "\n")
     comments: list[tuple[int, str]] = []  # (line number, '#' line) before the header
-    header_idx: int | None = None
+    header: tuple[int, int, str] | None = None  # (line index, offset after the line, the line)
     forced: str | None = None  # delimiter named by an Excel "sep=;" line
-    for i, line in enumerate(lines):
+    for i, (at, line) in enumerate(_lines_from(text)):
         stripped = line.strip(" ")
         if forced is None and not comments and _SEP_LINE_RE.fullmatch(stripped):
             forced = stripped[4]
@@ -341,21 +398,22 @@ def _read_text(text: str, notes: list[str]) -> ParsedTable:
         if stripped.startswith("#") or stripped.startswith('"#'):
             comments.append((i + 1, stripped))
             continue
-        header_idx = i
+        header = (i, at + len(line), line)
         break
-    if header_idx is None:
+    if header is None:
         if any(_parse_meta_line(_comment_body(c)) for _, c in comments):
             raise IngestError("the file has metadata lines but no table: add a header row and data rows")
         if comments:
             raise IngestError("the file has only comment lines and no table")
         raise IngestError("the file is empty")
 
-    header_line = lines[header_idx].strip(" ")
+    header_idx, header_end, header_line = header
+    header_line = header_line.strip(" ")
     header_no = header_idx + 1
-    body = lines[header_idx + 1 :]
-    while body and not body[-1].strip():
-        body.pop()
-    sample = [line for line in body[: 5 * _SNIFF_ROWS] if line.strip() and not line.lstrip().startswith("#")]
+    lo = min(header_end + 1, len(text))  # the data part is text[lo:hi]
+    hi = _drop_blank_tail(text, lo, len(text), lambda line: not line.strip())
+    sample = [line for _, line in itertools.islice(_lines_from(text, lo, hi), 5 * _SNIFF_ROWS)
+              if line.strip() and not line.lstrip().startswith("#")] if hi > lo else []
     delimiter = forced or _sniff_delimiter(header_line, sample[:_SNIFF_ROWS])
     fmt = "tsv" if delimiter == "\t" else "csv"
     try:
@@ -376,36 +434,40 @@ def _read_text(text: str, notes: list[str]) -> ParsedTable:
             _add_meta(metadata, meta_lines, parsed_meta[0], parsed_meta[1], no)
 
     # A spreadsheet's trailing rows of bare separators (",,") are not data.
-    while body and not body[-1].replace(delimiter, "").strip():
-        body.pop()
-    body_text = "\n".join(body)
-    data: list[str]
-    linenos: Sequence[int]
-    # Plain string checks (C speed) instead of a multi-line regex over the whole text.
-    if "#" not in body_text and "" not in body and not any(map(str.isspace, body)):
-        # Fast path: no blank or comment line among the data, every line is a row.
-        data, linenos = body, range(header_no + 1, header_no + 1 + len(body))
-    else:
-        keep = [j for j, line in enumerate(body) if line.strip() and not line.lstrip().startswith("#")]
-        data = [body[j] for j in keep]
-        linenos = [header_no + 1 + j for j in keep]
-        body_text = "\n".join(data)
-    if not data:
+    hi = _drop_blank_tail(text, lo, hi, lambda line: not line.replace(delimiter, "").strip())
+    if hi <= lo:
         raise IngestError("the file has a header row but no data rows below it", line=header_no)
+    body_text = text[lo:hi]
+    linenos: Sequence[int]
+    if "#" not in body_text and not _has_blank_line(body_text):
+        # Fast path: no blank or comment line among the data, every line is a row.
+        n_rows = body_text.count("\n") + 1
+        linenos = range(header_no + 1, header_no + 1 + n_rows)
+    else:
+        body = body_text.split("\n")
+        keep = [j for j, line in enumerate(body) if line.strip() and not line.lstrip().startswith("#")]
+        linenos = [header_no + 1 + j for j in keep]
+        body_text, n_rows = "\n".join(body[j] for j in keep), len(keep)
+        if not keep:
+            raise IngestError("the file has a header row but no data rows below it", line=header_no)
 
     if '"' in body_text:
         body_text = body_text.replace('"', "")
-        data = body_text.split("\n")
     if delimiter == ";" and "," in body_text:
         body_text = body_text.replace(",", ".")
-        data = body_text.split("\n")
         notes.append("decimal commas read as decimal points (semicolon-separated file)")
+    split: list[list[str]] = []
+
+    def rows() -> list[str]:  # the data rows one by one, split only to name the line of an error
+        if not split:
+            split.append(body_text.split("\n"))
+        return split[0]
 
     n_fields = len(headers)
     expected = n_fields - 1
 
     def count_error() -> IngestError | None:
-        for line, no in zip(data, linenos):
+        for line, no in zip(rows(), linenos):
             got = line.count(delimiter) + 1
             if got != n_fields:
                 hint = ""
@@ -419,19 +481,19 @@ def _read_text(text: str, notes: list[str]) -> ParsedTable:
         return None
 
     # One count over the text; only when it disagrees are the lines counted one by one.
-    if body_text.count(delimiter) != expected * len(data):
+    if body_text.count(delimiter) != expected * n_rows:
         err = count_error()
         if err is not None:
             raise err
 
     def cell_text(r: int, c: int) -> str:
-        return _split_cells(data[r], delimiter)[c]
+        return _split_cells(rows()[r], delimiter)[c]
 
     def locate(exc: Exception) -> IngestError:
         err = count_error()
         if err is not None:
             return err
-        for r, line in enumerate(data):
+        for r, line in enumerate(rows()):
             for c, cell in enumerate(_split_cells(line, delimiter)):
                 column = headers[c] if c < width else f"column {c + 1}"
                 if c >= width:
@@ -449,7 +511,7 @@ def _read_text(text: str, notes: list[str]) -> ParsedTable:
             # Rows too long are found by count_error(); pandas' own warning is noise here.
             warnings.simplefilter("ignore", pd.errors.ParserWarning)
             parsed = pd.read_csv(
-                io.StringIO(body_text),
+                io.BytesIO(body_text.encode("utf-8")),  # bytes: pandas reads them without a text layer
                 sep=delimiter,
                 header=None,
                 names=list(range(n_fields)),
@@ -458,13 +520,12 @@ def _read_text(text: str, notes: list[str]) -> ParsedTable:
                 engine="c",
                 quoting=csv.QUOTE_NONE,
                 skip_blank_lines=False,
-                low_memory=False,
             )
     except (ValueError, OverflowError) as exc:  # pandas ParserError is a ValueError
         raise locate(exc) from exc
     values = parsed.to_numpy(dtype=np.float64)
-    if values.shape != (len(data), n_fields):
-        raise locate(ValueError(f"read {values.shape[0]} rows from {len(data)} lines"))
+    if values.shape != (n_rows, n_fields):
+        raise locate(ValueError(f"read {values.shape[0]} rows from {n_rows} lines"))
     if not np.isfinite(values[:, :width]).all():
         # A short row reads as NaN: report it as a short row, not as an empty cell.
         err = count_error()
@@ -658,7 +719,7 @@ def read_table(raw: bytes, *, filename: str | None = None) -> ParsedTable:
     """
     raw = bytes(raw)
     notes: list[str] = []
-    if not raw.strip():
+    if not raw or raw.isspace():  # as "not raw.strip()", without copying a large file
         raise IngestError("the file is empty")
     if raw.startswith(_ZIP_MAGIC):
         return _read_xlsx(raw, notes)

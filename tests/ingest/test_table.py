@@ -565,3 +565,25 @@ def test_large_file() -> None:
     parsed = read_table(to_csv_bytes(frame, {"area": "1 mm^2"}))
     assert parsed.n_rows == n
     np.testing.assert_array_equal(parsed.frame.to_numpy(), frame.to_numpy())
+
+
+@pytest.mark.parametrize("eol", ["\n", "\r\n", "\r"])
+@pytest.mark.parametrize("gap", ["", "  ", "\t", "\xa0", "# a note", ",,"])
+def test_error_line_counts_skipped_lines_in_the_data(eol: str, gap: str) -> None:
+    """The offset-cut reader names the file line of a bad cell below blank, whitespace-only (ASCII and
+    non-breaking space), comment and bare-separator lines, under every line ending (regression, checked
+    against the line-list reader before the change: same messages and lines)."""
+    lines = ["# area: 0.785 mm^2", "E (kV/cm),P (uC/cm^2)", "1,2", gap, "3,4", gap, "5,n/a", "7,8"]
+    raw = eol.join(lines).encode()
+    if gap == ",,":  # bare separators inside the data are a short row, not a skipped line
+        with pytest.raises(IngestError, match="this row has 3 fields but the header has 2 columns") as err:
+            read_table(raw)
+        assert err.value.line == 4
+        return
+    with pytest.raises(IngestError, match="'n/a' is not a number") as err:
+        read_table(raw)
+    assert (err.value.line, err.value.column) == (7, "P (uC/cm^2)")
+    good = eol.join(lines[:6] + ["5,6", "7,8", gap, ""]).encode()
+    table = read_table(good)
+    assert table.frame["E_kV_cm"].tolist() == [1.0, 3.0, 5.0, 7.0]
+    assert (table.first_data_line, table.metadata) == (3, {"area": "0.785 mm^2"})

@@ -127,7 +127,7 @@ def test_measurement_page_draws_the_loop_with_pr_and_ec_markers(page: Page, live
     expect(pr_row).to_have_count(1)
     pr_value = float(pr_row.locator("td").first.text_content())
     assert pr_value == pytest.approx(PR_UC_CM2, rel=0.02)
-    expect(pr_row.locator("td").nth(1)).to_contain_text("C/cm")
+    expect(pr_row.locator("td").nth(1)).to_contain_text("µC\u202fcm⁻²")  # units as the trade prints them (server/precision.py)
 
 
 def test_bad_file_shows_inline_error_and_stays(page: Page, live, login, tmp_path, browser_log):

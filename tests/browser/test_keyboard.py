@@ -29,7 +29,7 @@ FOCUSED = """() => {
 
 @pytest.fixture(scope="module")
 def site(live):
-    code = live.compound("COc1ccc(OCCCCCCCC)cc1OC", "keyboard ether")  # an invented test ether
+    code = live.compound("CCOc1ccc(OCCCCCCCC)cc1OCC", "keyboard ether")  # an invented test ether
     return {"code": code, "batch": live.batch(code, state="made")}
 
 

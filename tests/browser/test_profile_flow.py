@@ -98,7 +98,7 @@ def test_a_profile_is_written_previewed_edited_and_used_for_an_upload(page: Page
     expect(page.get_by_label("unit of Drive Voltage")).to_have_value("V")
 
     # The upload: the instrument's export as it is, read through the profile's newest version.
-    code = live.compound("CCCCCCCCCCCCCCOc1ccccc1")
+    code = live.compound("CCCCCCCCCCCCCCCOc1ccccc1")  # C15: unique among the browser tests (one live registry)
     batch = live.batch(code, state="made")
     page.goto(f"/batches/{batch}/upload")
     page.get_by_label("Import profile").select_option(name)

@@ -21,7 +21,7 @@ BROKEN = """() => [...document.querySelectorAll(
 def registry(live):
     codes = []
     for n in range(2, 8):  # invented test ethers with long labels; the first one switches
-        code = live.compound(f"COc1ccc(O{'C' * n})cc1OC", f"fit ether with a rather long label number {n}")
+        code = live.compound(f"COc1cccc(O{'C' * n})c1OC", f"fit ether with a rather long label number {n}")
         codes.append(code)
     batch = live.batch(codes[0], state="made")
     live.measurement(batch, "pe_loop", to_csv_bytes(miller_loop(10, 6.0, 50, 300), {"temperature": "300 K"}),

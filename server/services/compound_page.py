@@ -52,6 +52,41 @@ def measurements_as_seen(session: Session, compound: Compound, *, actor: Optiona
     return items
 
 
+def next_steps(compound: Compound, batches: list, sample_rows: list, n_measurements: int, *,
+               actor: Optional[Actor]) -> Optional[dict[str, Any]]:
+    """What comes after registering ``compound``: add a batch, describe a sample, upload a file.
+
+    Each step is done or not from the data (a live batch; a live described sample, not the default
+    sample an upload to the batch itself makes; a live measurement); ``current`` is the first step not
+    done. Sample and upload steps point at the newest live batch. None once a file is uploaded (the
+    compound is under way), for an archived compound, and for a caller who may not write.
+    """
+    if not access.allows(actor, access.WRITE) or compound.archived or n_measurements:
+        return None
+    live = [b for b in batches if not b.archived]
+    batch = live[-1].code if live else None
+    described = [s for s, b in sample_rows if not s.is_default and not s.archived and not b.archived]
+    steps = [
+        # Each link's label names its batch: the batch table's upload links sit on the same page.
+        {"key": "batch", "title": "Add a batch", "label": f"Add a batch of {compound.code}", "done": bool(live),
+         "href": f"/compounds/{compound.code}/batches/new",
+         "detail": f"{len(live)} live batch{'es' if len(live) != 1 else ''}" if live else
+         "record when, by whom and how much was made"},
+        {"key": "sample", "title": "Describe a sample", "label": f"Describe a sample of batch {batch}",
+         "done": bool(described),
+         "href": f"/batches/{batch}/upload?sample=new#new-sample" if batch else None,
+         "detail": (f"{described[-1].code}" + (f" and {len(described) - 1} more" if len(described) > 1 else "")
+                    if described else "form, thickness and electrode area (or upload to the batch's default sample)")},
+        {"key": "upload", "title": "Upload a file", "label": f"Upload a file to batch {batch}", "done": False,
+         "href": f"/batches/{batch}/upload" if batch else None,
+         "detail": "an instrument file; its kind is chosen on the form"},
+    ]
+    current = next(s["key"] for s in steps if not s["done"])
+    for s in steps:
+        s["current"] = s["key"] == current
+    return {"steps": steps, "batch": batch}
+
+
 def compound_page(session: Session, compound: Compound, *, actor: Optional[Actor]) -> dict[str, Any]:
     """The compound page's data, as ``actor`` may see it."""
     batch_rows = registry.batches_of(session, compound)
@@ -86,6 +121,7 @@ def compound_page(session: Session, compound: Compound, *, actor: Optional[Actor
         "t": "298.15 K", "f": "1 kHz", "t_K": DEFAULT_T_K, "f_Hz": DEFAULT_F_HZ, "rate_error": None,
         "estimates": own_estimates,
         "calibrated": barriers.calibrated_for(session, compound, own_estimates, actor=actor),
+        "next_steps": next_steps(compound, batches, sample_rows, len(items), actor=actor),
         "active_jobs": [access.job_as_seen(queue.job_read(j, session=session), withheld)
                         for j in jobs if j.state in ("queued", "running")],
     }

@@ -26,5 +26,7 @@ def test_upload_links_name_their_batch(client, session):
     for _ in range(2):
         client.post("/compounds/RVZ-00001/batches/new", data={"state": "made", "csrf_token": csrf})
     page = soup(client.get("/compounds/RVZ-00001").text)
-    names = [a["aria-label"] for a in page.select("a[href$='/upload']")]
+    names = [a["aria-label"] for a in page.select("#batches a[href$='/upload']")]
     assert names == ["Upload to batch RVZ-00001-B01", "Upload to batch RVZ-00001-B02"]
+    steps = [a["aria-label"] for a in page.select("#next-steps a")]
+    assert steps == ["Describe a sample of batch RVZ-00001-B02", "Upload a file to batch RVZ-00001-B02"]

@@ -3,7 +3,7 @@
     remanence init                         create or upgrade the database (runs the migrations)
     remanence serve [--host H] [--port P]  serve the web app and API
     remanence demo [--load-only]           fresh demo database, then serve it
-    remanence user add NAME --role R       add an account (password from a prompt or --password-stdin)
+    remanence user add NAME --role R [--display-name TEXT]  add an account (password from a prompt or --password-stdin)
     remanence user password NAME           change a password (ends the account's sessions)
     remanence token create --name N --scope S [--kinds K,...] [--embargoed] [--profile P]
                                            create an API token; prints it alone on the last line
@@ -167,7 +167,7 @@ def cmd_user_add(args: argparse.Namespace) -> int:
     try:
         with Session(engine) as session:
             user = accounts.create_user(session=session, username=args.name, password=password, role=args.role,
-                                        actor="cli")
+                                        display_name=args.display_name, actor="cli")
     except (InputError, Duplicate) as exc:
         print(f"error: {exc}", file=sys.stderr)
         return 2
@@ -408,6 +408,7 @@ def build_parser() -> argparse.ArgumentParser:
     p = user.add_parser("add", help="add an account")
     p.add_argument("name")
     p.add_argument("--role", choices=["admin", "member", "viewer"], default="member")
+    p.add_argument("--display-name", default=None, help='how the person signs records, e.g. "Dr. A. Example"')
     p.add_argument("--password-stdin", action="store_true", help="read the password from standard input")
     p.set_defaults(func=cmd_user_add)
     p = user.add_parser("password", help="change an account's password (ends its sessions)")

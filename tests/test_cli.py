@@ -35,12 +35,26 @@ def test_init_user_and_token(env, monkeypatch, capsys):
         user = s.exec(select(User).where(User.username == "lena")).one()
         assert user.role == "admin" and verify_password(user.password_hash, "a-long-password")
         assert "a-long-password" not in user.password_hash
+        assert user.display_name is None  # none given: the login name stands in
         token = s.exec(select(ApiToken)).one()
         assert token.token_hash == hash_token(secret) and secret not in token.token_hash
         assert (token.scope, token.kinds) == ("upload", ["dsc"])
     assert main(["token", "revoke", str(token.id)]) == 0
     with Session(engine) as s:
         assert s.get(ApiToken, token.id).revoked_at is not None
+    engine.dispose()
+
+
+def test_user_add_with_a_display_name(env, monkeypatch, capsys):
+    assert main(["init"]) == 0
+    monkeypatch.setattr("sys.stdin", io.StringIO("a-long-password\n"))
+    assert main(["user", "add", "aex", "--display-name", "Dr. A. Example", "--password-stdin"]) == 0
+    monkeypatch.setattr("sys.stdin", io.StringIO("a-long-password\n"))
+    assert main(["user", "add", "too-long", "--display-name", "x" * 121, "--password-stdin"]) == 2
+    assert "display names are at most 120" in capsys.readouterr().err
+    engine = make_engine(env.database_url)
+    with Session(engine) as s:
+        assert [(u.username, u.display_name) for u in s.exec(select(User)).all()] == [("aex", "Dr. A. Example")]
     engine.dispose()
 
 

@@ -21,6 +21,8 @@ class User(SQLModel, table=True):
     role: str = Field(default="member", max_length=20)
     active: bool = True
     created_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
+    # How the person signs lab records ("Dr. A. Example"); None: the login name stands in.
+    display_name: Optional[str] = Field(default=None, max_length=120)
 
 
 class ApiToken(SQLModel, table=True):

@@ -36,8 +36,22 @@ def _check_password(password: str) -> None:
         raise InputError("passwords are at most 1000 characters", field="password")
 
 
-def create_user(*, session: Session, username: str, password: str, role: str, actor: str) -> User:
+#: The longest display name (the batch form's chemist field takes 120 characters too).
+DISPLAY_NAME_MAX = 120
+
+
+def clean_display_name(text: Optional[str]) -> Optional[str]:
+    """A display name as stored: spaces trimmed and runs of them made one; empty means none."""
+    name = " ".join((text or "").split())
+    if len(name) > DISPLAY_NAME_MAX:
+        raise InputError(f"display names are at most {DISPLAY_NAME_MAX} characters", field="display_name")
+    return name or None
+
+
+def create_user(*, session: Session, username: str, password: str, role: str, actor: str,
+                display_name: Optional[str] = None) -> User:
     username = username.strip()
+    display = clean_display_name(display_name)
     if not username or len(username) > 80 or not username.replace("_", "").replace("-", "").replace(".", "").isalnum():
         raise InputError("user names are 1-80 letters, digits, '.', '-' or '_'", field="username")
     if role not in ROLES:
@@ -45,7 +59,7 @@ def create_user(*, session: Session, username: str, password: str, role: str, ac
     _check_password(password)
     if session.exec(select(User).where(User.username == username)).first():
         raise Duplicate(f"user {username!r} exists already", existing=username)
-    user = User(username=username, password_hash=hash_password(password), role=role)
+    user = User(username=username, password_hash=hash_password(password), role=role, display_name=display)
     session.add(user)
     session.flush()
     audit.record(session, actor=actor, action="user.create", entity="user", code=username, after=audit.snapshot(user))
@@ -240,6 +254,34 @@ def revoke_token(*, session: Session, token_id: int, actor: str) -> ApiToken:
     return token
 
 
+def set_display_name(*, session: Session, username: str, display_name: Optional[str], actor: str) -> User:
+    """Change (or, with an empty text, clear) an account's display name; audited."""
+    display = clean_display_name(display_name)
+    user = session.exec(select(User).where(User.username == username)).first()
+    if user is None:
+        raise NotFound(f"no user {username!r}")
+    before = {"display_name": user.display_name}
+    user.display_name = display
+    session.add(user)
+    audit.record(session, actor=actor, action="user.display_name", entity="user", code=username,
+                 before=before, after={"display_name": display})
+    session.commit()
+    session.refresh(user)
+    return user
+
+
+def account_of(session: Session, actor: Any) -> Optional[User]:
+    """The account behind ``actor``; None for a token."""
+    return session.get(User, actor.user_id) if access.has_inbox(actor) else None
+
+
+def signing_name(session: Session, actor: Any) -> str:
+    """How ``actor`` signs a record it makes (the batch form's chemist): the account's display name,
+    else its login name; a token signs with its own name."""
+    user = account_of(session, actor)
+    return (user.display_name or user.username) if user is not None else actor.name
+
+
 def set_active(*, session: Session, username: str, active: bool, actor: str) -> User:
     user = session.exec(select(User).where(User.username == username)).first()
     if user is None:
@@ -260,7 +302,7 @@ def user_read(user: User) -> dict:
     """The API shape of an account; ``locked``: strangers' guesses hold its per-account login lock now
     (see :func:`is_locked`; a known browser still gets in)."""
     db = object_session(user)
-    return {"username": user.username, "role": user.role, "active": user.active,
+    return {"username": user.username, "display_name": user.display_name, "role": user.role, "active": user.active,
             "created_at": user.created_at.isoformat(), "locked": bool(db and is_locked(db, user.username))}
 
 

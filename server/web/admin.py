@@ -34,7 +34,7 @@ async def add_user(request: Request, session: SessionDep, actor: PageAdmin):
     try:
         accounts.create_user(session=session, username=str(form.get("username", "")),
                              password=str(form.get("password", "")), role=str(form.get("role", "member")),
-                             actor=actor.label)
+                             display_name=str(form.get("display_name", "")), actor=actor.label)
     except (InputError, Duplicate) as exc:
         return _page(request, session, actor, error=str(exc), status_code=422)
     return redirect("/admin", request)
@@ -44,6 +44,19 @@ async def add_user(request: Request, session: SessionDep, actor: PageAdmin):
 async def deactivate(username: str, request: Request, session: SessionDep, actor: PageAdmin):
     try:
         accounts.set_active(session=session, username=username, active=False, actor=actor.label)
+    except NotFound as exc:
+        return _page(request, session, actor, error=str(exc), status_code=404)
+    return redirect("/admin", request)
+
+
+@router.post("/admin/users/{username}/display-name", response_class=HTMLResponse)
+async def display_name(username: str, request: Request, session: SessionDep, actor: PageAdmin):
+    form = await request.form()
+    try:
+        accounts.set_display_name(session=session, username=username, display_name=str(form.get("display_name") or ""),
+                                  actor=actor.label)
+    except InputError as exc:
+        return _page(request, session, actor, error=str(exc), status_code=422)
     except NotFound as exc:
         return _page(request, session, actor, error=str(exc), status_code=404)
     return redirect("/admin", request)

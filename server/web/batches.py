@@ -13,7 +13,7 @@ from pydantic import ValidationError
 from ..deps import PageActor, PageWriter, SessionDep
 from ..errors import InputError
 from ..models import BATCH_STATES, BatchCreate
-from ..services import attachments, comments, identity, registry
+from ..services import accounts, attachments, comments, identity, registry
 from .render import redirect, render
 
 router = APIRouter(include_in_schema=False)
@@ -49,7 +49,7 @@ def _batch_create(form: dict) -> BatchCreate:
 @router.get("/compounds/{code}/batches/new", response_class=HTMLResponse)
 def batch_new_form(code: str, request: Request, session: SessionDep, actor: PageWriter):
     compound = registry.get_compound(session, code)
-    form = {"made_on": date.today().isoformat(), "chemist": actor.name, "state": "made"}
+    form = {"made_on": date.today().isoformat(), "chemist": accounts.signing_name(session, actor), "state": "made"}
     return render(request, "pages/batch_new.html",
                   {"c": compound, "form": form, "error": None, "states": BATCH_STATES}, actor=actor)
 

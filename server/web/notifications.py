@@ -9,20 +9,21 @@ from fastapi.responses import HTMLResponse
 
 from ..deps import PageAccount, RowId, SessionDep
 from ..errors import InputError
-from ..services import notifications, registry
+from ..services import accounts, notifications, registry
 from .render import redirect, render
 
 router = APIRouter(include_in_schema=False)
 
 
 def _page(request: Request, session, actor, *, unread_only: bool = False, error: str = "",  # noqa: ANN001
-          status_code: int = 200):
+          name_error: str = "", status_code: int = 200):
     items = notifications.inbox(session, actor, unread_only=unread_only, limit=notifications.PAGE_LIMIT)
     rows = [{"n": n, "when": n.created_at.strftime("%Y-%m-%d %H:%M UTC")} for n in items]
     return render(request, "pages/inbox.html",
                   {"rows": rows, "unread_only": unread_only, "prefs": notifications.preferences(session, actor),
                    "mail_on": bool(request.app.state.settings.smtp_host), "error": error,
-                   "limit": notifications.PAGE_LIMIT},
+                   "limit": notifications.PAGE_LIMIT, "name_error": name_error,
+                   "display_name": accounts.account_of(session, actor).display_name or ""},
                   actor=actor, status_code=status_code)
 
 
@@ -54,6 +55,18 @@ async def preferences(request: Request, session: SessionDep, actor: PageAccount)
     except InputError as exc:
         return _page(request, session, actor, error=str(exc), status_code=422)
     return redirect("/inbox#preferences", request)
+
+
+@router.post("/inbox/display-name", response_class=HTMLResponse)
+async def display_name(request: Request, session: SessionDep, actor: PageAccount):
+    """The account's own display name (how it signs records); any role may set its own."""
+    form = await request.form()
+    try:
+        accounts.set_display_name(session=session, username=actor.name, display_name=str(form.get("display_name") or ""),
+                                  actor=actor.label)
+    except InputError as exc:
+        return _page(request, session, actor, name_error=str(exc), status_code=422)
+    return redirect("/inbox#my-name", request)
 
 
 @router.post("/compounds/{code}/follow", response_class=HTMLResponse)

@@ -311,11 +311,11 @@ WEB_WRITE = {("GET", "/compounds/new"), ("POST", "/compounds/preview"), ("POST",
              ("POST", "/import-profiles/{name}")}
 WEB_ADMIN = {("POST", "/compounds/{code}/verdict"), ("POST", "/status/public"), ("GET", "/admin"),
              ("POST", "/admin/users"), ("POST", "/admin/users/{username}/deactivate"), ("POST", "/admin/tokens"),
-             ("POST", "/admin/tokens/{token_id}/revoke")}
+             ("POST", "/admin/tokens/{token_id}/revoke"), ("POST", "/admin/users/{username}/display-name")}
 WEB_OWNER_ONLY = {("POST", "/jobs/{job_id}/cancel")}
 # Every account's own inbox, follows and preferences (access.has_inbox): any role; no token.
 WEB_ACCOUNT = {("GET", "/inbox"), ("POST", "/inbox/read-all"), ("POST", "/inbox/{notification_id}/read"),
-               ("POST", "/inbox/preferences"), ("POST", "/compounds/{code}/follow")}
+               ("POST", "/inbox/preferences"), ("POST", "/compounds/{code}/follow"), ("POST", "/inbox/display-name")}
 SECRET_LABEL = "hexakis-methylsulfanyl benzene, Q-7"  # an invented label that spells out the structure
 SECRET_NOTES = "made from hexachlorobenzene and sodium thiomethoxide"  # invented
 

@@ -18,6 +18,8 @@ class UserIn(BaseModel):
     username: str = Field(min_length=1, max_length=80)
     password: str = Field(min_length=8, max_length=1000)
     role: str = Field("member", description="admin, member or viewer")
+    display_name: Optional[str] = Field(None, max_length=120,
+                                        description='how the person signs records, e.g. "Dr. A. Example"')
 
 
 class TokenIn(BaseModel):
@@ -40,7 +42,7 @@ def list_users(session: SessionDep, actor: Admin) -> dict[str, Any]:
 @router.post("/users", status_code=201, responses={**AUTH_ERRORS, **INPUT_ERRORS, **DUPLICATE})
 def add_user(data: UserIn, session: SessionDep, actor: Admin) -> dict[str, Any]:
     user = accounts.create_user(session=session, username=data.username, password=data.password, role=data.role,
-                                actor=actor.label)
+                                display_name=data.display_name, actor=actor.label)
     return accounts.user_read(user)
 
 

@@ -39,7 +39,9 @@ def site(live):
                          f"loop_{t_K}K.csv")
     other = live.compound("COc1ccc(OCCCCCCCCCC)cc1OC")
     live.measurement(live.batch(other, state="made"), "pe_loop", KINDS["pe_loop"].example().raw, "loop.csv")
-    pages = {"compounds": "/compounds", "compound": f"/compounds/{code}", "new compound": "/compounds/new",
+    fresh = live.compound("COc1ccc(OCCCCCCCCCCC)cc1OC", "next steps ether")  # invented; a batch, no file yet
+    live.batch(fresh, state="made")
+    pages = {"compounds": "/compounds", "compound": f"/compounds/{code}", "compound next steps": f"/compounds/{fresh}", "new compound": "/compounds/new",
              "new batch": f"/compounds/{code}/batches/new", "upload": f"/batches/{batch}/upload",
              "timeline": f"/compounds/{code}/timeline", "explorer": "/explorer", "outcomes": "/outcomes",
              "scaffolds": "/scaffolds", "queue": "/queue", "calibration": "/calibration", "status": "/status",

@@ -78,3 +78,14 @@ def test_an_account_edits_its_own_name_and_an_admin_edits_anyones(client, anon, 
     assert client.post("/admin/users/nobody/display-name", data={"display_name": "x", "csrf_token": csrf}).status_code == 404
     audit = [e.action for e in session.exec(select(AuditEvent).where(AuditEvent.action == "user.display_name")).all()]
     assert len(audit) == 2
+
+
+def test_the_api_takes_and_answers_a_display_name(client, session):
+    login_as(client, session, role="admin", name="boss")  # an admin session: the users API is admin-only
+    csrf = csrf_of(client.get("/compounds").text)
+    r = client.post("/api/v1/users", json={"username": "api-made", "password": PASSWORD, "display_name": "Dr. B. Example"},
+                    headers={"X-CSRF-Token": csrf})
+    assert r.status_code == 201, r.text
+    assert r.json()["display_name"] == "Dr. B. Example"
+    listed = {u["username"]: u["display_name"] for u in client.get("/api/v1/users").json()["items"]}
+    assert listed == {"boss": None, "api-made": "Dr. B. Example"}

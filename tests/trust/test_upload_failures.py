@@ -110,7 +110,11 @@ def test_the_web_form_counts_per_session(client, session, clock, target):
 
 def test_every_route_that_takes_a_file_is_counted(app):
     assert takes_file(app) == ["/api/v1/batches/{batch_code}/measurements",
+                               "/api/v1/batches/{code}/attachments",  # image attachments (issue 23)
+                               "/api/v1/compounds/{code}/attachments",
+                               "/api/v1/measurements/{measurement_id}/attachments",
                                "/api/v1/measurements/{measurement_id}/revise",
+                               "/api/v1/samples/{sample_code}/attachments",
                                "/api/v1/samples/{sample_code}/measurements",
                                "/batches/{code}/upload",
                                "/measurements/{measurement_id}/revise"]

@@ -98,7 +98,7 @@ def test_add_batch_through_the_form(page: Page, live, login, browser_log):
     login("member")
     page.goto(f"/compounds/{code}")
     expect(page.locator("p.empty", has_text="No batches yet")).to_be_visible()
-    page.get_by_role("link", name="Add a batch").click()
+    page.get_by_role("link", name="Add a batch", exact=True).click()  # the batches section's button; the next-steps link is named "Add a batch of <code>"
     expect(page).to_have_url(re.compile(rf"/compounds/{code}/batches/new$"))
     expect(page.locator("aside.caution")).to_be_visible()
 

@@ -47,7 +47,7 @@ from .errors import OverLimit
 __all__ = ["Budget", "AnalysisPool", "pool_for", "close_pools"]
 
 #: Modules the forkserver imports once, so children start with the analysis code loaded.
-PRELOAD = ["server.services.measurements"]
+PRELOAD = ["server.services.measurements", "server.services.profiled_uploads"]
 
 
 @dataclass(frozen=True)

@@ -9,6 +9,7 @@ as the upload would and stores nothing, writes no audit row.
 
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 from typing import Any, Mapping, Optional, Sequence
 
@@ -20,14 +21,14 @@ from ..access import Actor
 from ..budget import AnalysisPool
 from ..errors import InputError
 from ..ingest.columns import BY_NAME
-from ..ingest.profiles import ProfiledRead, read_profiled
+from ..ingest.profiles import ProfiledRead, profile_from_json, read_profiled
 from ..ingest.units import UNIT_PARSE_ERRORS, parse_unit
 from ..plots import figure_json
 from ..kinds import Context
 from ..models import SERIES_VARIABLES, Batch, Compound, Measurement, Sample
 from . import audit, import_profiles, samples, series
 from .errors import Archived, Duplicate, Forbidden
-from .measurements import (Analysed, _live_copy, _store, analyse, context_for, get_kind, measurement_as_seen,
+from .measurements import (Analysed, _live_copy, _read_and_analyse, _store, analyse, context_for, get_kind, measurement_as_seen,
                            record_created,
                            refresh_derived, same_conditions)
 
@@ -64,13 +65,31 @@ def resolve_profile(session: Session, *, profile_name: Optional[str], kind_name:
     return row, row.kind
 
 
-def _analyse_blocks(kind, read: ProfiledRead, raw: bytes, *, filename, form, context, defaults,  # noqa: ANN001
-                    budget: Optional[AnalysisPool]) -> list[Analysed]:
+def _read_and_analyse_blocks(kind_name: str, raw: bytes, spec: dict, version: int, filename: Optional[str],
+                             form: dict, context: Context, defaults: dict) -> tuple[ProfiledRead, list[tuple]]:
+    """The budgeted unit of work of a profiled file (module level, so a child process can be sent it by
+    name): read it through the profile ``spec`` (its JSON: a built profile holds pint units, which belong to
+    this process's registry), then read each block's conditions and analyse it. The read goes back
+    without its profile, for the same reason."""
+    read = read_profiled(raw, profile_from_json(spec, version=version))
     varies = read.profile.varies
     if varies and len(read.blocks) > 1 and (form.get(varies) or "").strip():
         raise InputError(f"{varies} varies between the blocks of this file; leave it out of the form", field=varies)
-    return [analyse(kind, raw, filename=filename, form=form, context=context, defaults=defaults, parsed=b.table,
-                    budget=budget) for b in read.blocks]
+    parts = [_read_and_analyse(kind_name, raw, filename, form, context, defaults, b.table) for b in read.blocks]
+    return dataclasses.replace(read, profile=None), parts
+
+
+def _analyse_blocks(kind, spec: Mapping[str, Any], version: int, raw: bytes, *, filename, form, context,  # noqa: ANN001
+                    defaults, budget: Optional[AnalysisPool]) -> tuple[ProfiledRead, list[Analysed]]:
+    """Read ``raw`` through the profile ``spec`` (version ``version``) and analyse every block. With ``budget``,
+    the read and all the block analyses run as one task in the pool's child, within one CPU-time, memory and
+    wall-time budget (:mod:`server.budget`; OverLimit 413 naming the limit past it): a pathological export
+    cannot hold the web process while it is cut into blocks and parsed, and a file of many blocks cannot
+    multiply its budget."""
+    args = (kind.name, raw, dict(spec), version, filename, dict(form), context, dict(defaults or {}))
+    read, parts = budget.run(_read_and_analyse_blocks, *args) if budget is not None else _read_and_analyse_blocks(*args)
+    read = dataclasses.replace(read, profile=profile_from_json(spec, version=version))
+    return read, [Analysed(kind=kind, parsed=p, conditions=c, result=r) for p, c, r in parts]
 
 
 def _series_variable(varies: Optional[str]) -> Optional[str]:
@@ -106,9 +125,8 @@ def upload_profiled(*, session: Session, batch: Batch, sample: Optional[Sample],
     if sample is None:
         sample = samples.default_sample(session, batch)
     defaults = samples.sample_defaults(sample)
-    read = read_profiled(raw, profile)
-    done = _analyse_blocks(kind, read, raw, filename=filename, form=form, context=context_for(compound, session=session, kind=kind),
-                           defaults=defaults, budget=budget)
+    read, done = _analyse_blocks(kind, profile_row.spec, profile_row.version, raw, filename=filename, form=form,
+                                 context=context_for(compound, session=session, kind=kind), defaults=defaults, budget=budget)
     if sample is None:
         sample = samples.ensure_default_sample(session, batch, actor=actor.label)
     existing = [_live_copy(session, sample.id, sha, kind.name, i) for i in range(len(done))]
@@ -228,9 +246,8 @@ def dry_run(*, session: Session, batch: Batch, sample: Optional[Sample], kind_na
     context = context_for(compound, session=session, kind=kind)
     notes: Sequence[str] = ()
     if profile_row is not None:
-        read = read_profiled(raw, import_profiles.profile_of(profile_row))
-        done = _analyse_blocks(kind, read, raw, filename=filename, form=form, context=context, defaults=defaults,
-                               budget=budget)
+        read, done = _analyse_blocks(kind, profile_row.spec, profile_row.version, raw, filename=filename, form=form,
+                                     context=context, defaults=defaults, budget=budget)
         spans = [(b.first_line, b.last_line) for b in read.blocks]
         notes = read.notes
     else:
@@ -270,11 +287,11 @@ def preview_profile(spec: Mapping[str, Any], raw: bytes, *, budget: Optional[Ana
     with no registry context (pure: no database, nothing stored)."""
     profile = import_profiles.check_profile(spec)
     kind = get_kind(profile.kind)
-    read = read_profiled(raw, profile)
+    read, done = _analyse_blocks(kind, spec, 1, raw, filename=None, form={}, context=Context(), defaults={},
+                                 budget=budget)
     blocks = []
     figure = None
-    for i, b in enumerate(read.blocks):
-        d = analyse(kind, raw, filename=None, form={}, context=Context(), parsed=b.table, budget=budget)
+    for i, (b, d) in enumerate(zip(read.blocks, done)):
         if i == 0 and kind.figure is not None:
             figure = figure_json(kind.figure(d.parsed, d.result))
         blocks.append({"block": i, "first_line": b.first_line, "last_line": b.last_line, "rows": int(b.table.n_rows),

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from functools import partial
+
 from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse
 
@@ -62,12 +64,14 @@ async def draft(request: Request, session: SessionDep, settings: SettingsDep, ac
     try:
         if not raw:
             raise InputError("choose a sample file of the instrument", field="file")
-        draft = sketch(raw, encoding=form.get("encoding") or "auto", delimiter=form.get("delimiter") or ",",
+        look = partial(sketch, encoding=form.get("encoding") or "auto", delimiter=form.get("delimiter") or ",",
                        skip_lines=int(form.get("skip_lines") or 0) if (form.get("skip_lines") or "0").isdigit() else 0,
                        start_after=form.get("start_after") or None, units_row=form.get("units_row") == "on")
+        # In a thread, in the budget's child process: the first look decodes the whole file and runs the typed
+        # start pattern over it, which must not hold this (async) route or the web process.
+        draft = await run_in_threadpool(pool_for(settings).run, look, raw)
         spec = import_profiles.spec_from_form(form)
         if spec["columns"]:
-            # In a thread: this route is async, and the budgeted analysis waits for its child process.
             preview = await run_in_threadpool(profiled_uploads.preview_profile, spec, raw, budget=pool_for(settings))
     except InputError as exc:
         error = str(exc)

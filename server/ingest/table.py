@@ -354,6 +354,24 @@ class _Text:
         return iter(self.text[self.pos:self.end].split("\n"))
 
 
+class _Bytes:
+    """``data[pos:end]`` read by pandas in chunks, without copying the whole span first (a fresh copy of a
+    large file costs as much as a third of pandas' parse, in page faults)."""
+
+    mode = "rb"  # pandas reads the chunks as bytes
+
+    def __init__(self, data: bytes, pos: int, end: int) -> None:
+        self.data, self.pos, self.end = data, pos, end
+
+    def read(self, size: int = -1) -> bytes:
+        stop = self.end if size is None or size < 0 else min(self.end, self.pos + size)
+        out, self.pos = self.data[self.pos:stop], stop
+        return out
+
+    def __iter__(self):  # noqa: ANN204 - pandas takes an object with read and __iter__ for a file
+        return iter(self.data[self.pos:self.end].split(b"\n"))
+
+
 def _drop_blank_tail(text: str, lo: int, hi: int, blank) -> int:  # noqa: ANN001
     """The end of ``text[lo:hi]`` without its trailing lines for which ``blank(line)`` holds."""
     while hi > lo:
@@ -378,11 +396,80 @@ def _has_blank_line(text: str) -> bool:
     return _SPACE_LINE_RE.search(text) is not None
 
 
-def _read_text(text: str, notes: list[str]) -> ParsedTable:
+def _parse(data: bytes | _Bytes, delimiter: str, n_fields: int) -> pd.DataFrame:
+    """The data rows as float64 columns, one row per line (blank lines too), by pandas' C parser."""
+    return pd.read_csv(
+        io.BytesIO(data) if isinstance(data, bytes) else data,  # bytes: pandas reads them without a text layer
+        sep=delimiter,
+        header=None,
+        names=list(range(n_fields)),
+        index_col=False,
+        dtype=np.float64,
+        engine="c",
+        quoting=csv.QUOTE_NONE,
+        skip_blank_lines=False,
+    )
+
+
+def _plain_values(data: bytes | _Bytes, delimiter: str, n_fields: int, width: int) -> np.ndarray | None:
+    """The ``width`` named columns of ``data`` when pandas reads it with nothing to report: every line a row
+    of ``n_fields`` fields, every named cell a finite number, the nameless trailing columns empty. None
+    otherwise (the caller reads the rows again the checked way, to name the line and column).
+
+    Row ``r`` is line ``r`` of ``data``: without quoting, comments or carriage returns, and with blank lines
+    kept (``skip_blank_lines=False``), pandas' C tokenizer ends a row at each newline and nowhere else, and
+    ``data`` has no trailing newline (the caller cut the blank tail)."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", pd.errors.ParserWarning)  # pandas cut a row that is too long
+        try:
+            values = _parse(data, delimiter, n_fields).to_numpy(dtype=np.float64)
+        except (ValueError, OverflowError, pd.errors.ParserWarning):  # pandas ParserError is a ValueError
+            return None
+    if values.shape[1] != n_fields:
+        return None
+    named = values[:, :width]
+    if not np.isfinite(named).all():  # a blank line or a short row reads as NaN; so does the text 'nan'
+        return None
+    if width < n_fields and not np.isnan(values[:, width:]).all():
+        return None
+    return named
+
+
+_LINE_END_RE = re.compile(rb"\r\n?|\n")
+
+
+def _raw_span(raw: bytes, offset: int, head_breaks: int, tail_breaks: int) -> tuple[int, int]:
+    """Byte offsets in ``raw`` of the data part of a text whose CR LF and CR line ends were made LF: it
+    starts after the ``head_breaks``-th line end from ``offset`` and ends at the ``tail_breaks``-th from the
+    end (the line ends of the blank tail cut off)."""
+    a = offset
+    if head_breaks:
+        for n, m in enumerate(_LINE_END_RE.finditer(raw, offset), 1):
+            if n == head_breaks:
+                a = m.end()
+                break
+    b = len(raw)
+    for _ in range(tail_breaks):
+        b = max(raw.rfind(b"\n", a, b), raw.rfind(b"\r", a, b))
+        if b > a and raw[b] == 0x0A and raw[b - 1] == 0x0D:
+            b -= 1
+    return a, b
+
+
+def _read_text(text: str, notes: list[str], source: tuple[bytes, int] | None = None) -> ParsedTable:
     """Read the text of a ``name (unit)`` table. The lines above the header are walked one by one; the
     data stay one string, cut by offset and handed whole to one ``pandas.read_csv``: the rows are split
-    in Python only to name the line and cell of an error (the profiled reader's approach, issue 14)."""
-    if "\r" in text:
+    in Python only to name the line and cell of an error (the profiled reader's approach, issue 14).
+
+    ``source``: ``(raw, offset)`` when ``text`` is exactly ``raw[offset:]`` decoded as UTF-8; the data part
+    is then handed to pandas as the file's own bytes, without encoding it again.
+
+    The happy path is pandas alone: the data part is parsed as it is, and only when pandas refuses it or
+    the result looks wrong (a row too long or too short, a blank or comment line, a cell that is not a
+    finite number) is it read again the checked way, which skips blank and ``#`` lines, counts each row's
+    fields and names the line and column of what is wrong."""
+    crs = "\r" in text
+    if crs:
         text = text.replace("\r\n", "\n").replace("\r", "\n")
     comments: list[tuple[int, str]] = []  # (line number, '#' line) before the header
     header: tuple[int, int, str] | None = None  # (line index, offset after the line, the line)
@@ -437,6 +524,40 @@ def _read_text(text: str, notes: list[str]) -> ParsedTable:
     hi = _drop_blank_tail(text, lo, hi, lambda line: not line.replace(delimiter, "").strip())
     if hi <= lo:
         raise IngestError("the file has a header row but no data rows below it", line=header_no)
+    n_fields = len(headers)
+    data: bytes | _Bytes
+    if source is not None:
+        raw, offset = source
+        if crs:  # pandas ends a row at CR LF, CR or LF alike: only the offsets need the file's own line ends
+            a, b = _raw_span(raw, offset, text.count("\n", 0, lo), text.count("\n", hi))
+        else:
+            a, b = offset + len(text[:lo].encode("utf-8")), len(raw) - len(text[hi:].encode("utf-8"))
+        comma = delimiter == ";" and raw.find(b",", a, b) != -1
+        quoted = raw.find(b'"', a, b) != -1
+        data = raw[a:b] if comma or quoted else _Bytes(raw, a, b)
+    else:
+        data = text[lo:hi].encode("utf-8")
+        comma, quoted = delimiter == ";" and b"," in data, b'"' in data
+    if quoted:
+        data = data.replace(b'"', b"")
+    if comma:
+        data = data.replace(b",", b".")
+    values = _plain_values(data, delimiter, n_fields, width)
+    if values is not None:
+        if comma:
+            notes.append("decimal commas read as decimal points (semicolon-separated file)")
+        lines: list[list[str]] = []
+
+        def plain_cell(r: int, c: int) -> str:  # only to name the cell of an error found in _build
+            if not lines:
+                lines.append(text[lo:hi].split("\n"))
+            line = lines[0][r].replace('"', "")
+            return _split_cells(line.replace(",", ".") if comma else line, delimiter)[c]
+
+        return _build(specs, values, range(header_no + 1, header_no + 1 + len(values)), plain_cell,
+                      metadata=metadata, fmt=fmt, notes=notes)
+    del data
+
     body_text = text[lo:hi]
     linenos: Sequence[int]
     if "#" not in body_text and not _has_blank_line(body_text):
@@ -463,7 +584,6 @@ def _read_text(text: str, notes: list[str]) -> ParsedTable:
             split.append(body_text.split("\n"))
         return split[0]
 
-    n_fields = len(headers)
     expected = n_fields - 1
 
     def count_error() -> IngestError | None:
@@ -510,17 +630,7 @@ def _read_text(text: str, notes: list[str]) -> ParsedTable:
         with warnings.catch_warnings():
             # Rows too long are found by count_error(); pandas' own warning is noise here.
             warnings.simplefilter("ignore", pd.errors.ParserWarning)
-            parsed = pd.read_csv(
-                io.BytesIO(body_text.encode("utf-8")),  # bytes: pandas reads them without a text layer
-                sep=delimiter,
-                header=None,
-                names=list(range(n_fields)),
-                index_col=False,
-                dtype=np.float64,
-                engine="c",
-                quoting=csv.QUOTE_NONE,
-                skip_blank_lines=False,
-            )
+            parsed = _parse(body_text.encode("utf-8"), delimiter, n_fields)
     except (ValueError, OverflowError) as exc:  # pandas ParserError is a ValueError
         raise locate(exc) from exc
     values = parsed.to_numpy(dtype=np.float64)
@@ -733,7 +843,10 @@ def read_table(raw: bytes, *, filename: str | None = None) -> ParsedTable:
         notes.append(f"'{filename}' is named .xlsx but holds text: read as CSV/TSV")
     text, enc_notes = _decode(raw)
     notes.extend(enc_notes)
-    return _read_text(text, notes)
+    bom = 0  # UTF-8 byte-order marks _decode stripped (it leaves no note for UTF-8)
+    while raw.startswith(b"\xef\xbb\xbf", bom):
+        bom += 3
+    return _read_text(text, notes, None if enc_notes else (raw, bom))
 
 
 def _header_for(column: Any) -> str:

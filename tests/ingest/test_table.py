@@ -587,3 +587,37 @@ def test_error_line_counts_skipped_lines_in_the_data(eol: str, gap: str) -> None
     table = read_table(good)
     assert table.frame["E_kV_cm"].tolist() == [1.0, 3.0, 5.0, 7.0]
     assert (table.first_data_line, table.metadata) == (3, {"area": "0.785 mm^2"})
+
+
+@pytest.mark.parametrize("eol", ["\n", "\r\n", "\r"])
+@pytest.mark.parametrize("bom", [b"", b"\xef\xbb\xbf", b"\xef\xbb\xbf\xef\xbb\xbf"])
+def test_an_error_found_after_the_plain_parse_names_its_line(eol: str, bom: bytes) -> None:
+    """The happy path hands the file's own bytes to pandas (cut by byte offset behind UTF-8 marks and
+    non-ASCII text above the table); a value refused only after the parse still names its file line and cell."""
+    lines = ["# operator: Müller-Test", "T (°C),C (pF)", "25,1", "26,1.5", "-300.5,2", "27,2"]
+    with pytest.raises(IngestError, match="'-300.5' is below absolute zero") as err:
+        read_table(bom + eol.join(lines).encode("utf-8"))
+    assert (err.value.line, err.value.column) == (5, "T (°C)")
+    table = read_table(bom + (eol.join(lines[:4]) + eol + " " + eol * 2).encode("utf-8"))  # and a blank tail
+    assert table.frame["T_K"].tolist() == pytest.approx([298.15, 299.15])
+    assert (table.metadata, table.first_data_line) == ({"operator": "Müller-Test"}, 3)
+
+
+@pytest.mark.parametrize("rows, line, got", [(["1,2,3", "4,5"], 3, 3), (["1,2", "4,5,6"], 4, 3),
+                                              (["1,2", "4"], 4, 1), (["1,2", "4,5,"], 4, 3)])
+def test_a_row_of_the_wrong_length_is_named_whichever_way_pandas_takes_it(rows, line: int, got: int) -> None:
+    # pandas cuts a first row that is too long with a warning, refuses a later one, and fills a short row
+    # with NaN: each falls back to the checked read, which counts the fields of the line.
+    with pytest.raises(IngestError, match=f"this row has {got} fields? but the header has 2 columns") as err:
+        read_table(("# area: 1 mm^2\nE (kV/cm),P (uC/cm^2)\n" + "\n".join(rows)).encode())
+    assert err.value.line == line
+
+
+@pytest.mark.parametrize("gap", [None, "", "# a note"])
+def test_the_plain_and_the_checked_read_agree(gap) -> None:  # noqa: ANN001
+    rows = ['"1,5";"2,25"', "3;4,5e-1", "-7,125;8"]
+    if gap is not None:  # a skipped line sends the file down the checked read
+        rows.insert(1, gap)
+    table = read_table(("sep=;\nE (kV/cm);P (uC/cm^2)\n" + "\n".join(rows) + "\n\n").encode())
+    assert table.frame.to_numpy().tolist() == [[1.5, 2.25], [3.0, 0.45], [-7.125, 8.0]]
+    assert table.notes == ("decimal commas read as decimal points (semicolon-separated file)",)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from dataclasses import replace
+from typing import Optional
 
 from fastapi import APIRouter, Query, Request, Response
 from fastapi.responses import Response as RawResponse
@@ -55,7 +56,18 @@ def list_compounds(
     return CompoundPage(items=accounts.hide_people(items, sees_people=actor.sees_people), total=result.total)
 
 
-@router.get("/search", responses={**AUTH_ERRORS, **INPUT_ERRORS})
+class StructureHit(BaseModel):
+    code: str
+    similarity: Optional[float] = Field(None, description="Tanimoto similarity; only in a similarity search")
+
+
+class StructureHits(BaseModel):
+    items: list[StructureHit]
+    total: int
+
+
+@router.get("/search", response_model=StructureHits, response_model_exclude_unset=True,
+            responses={**AUTH_ERRORS, **INPUT_ERRORS})
 def search_structures(request: Request, session: SessionDep, actor: Reader) -> dict:
     """Structure search: `substructure` (SMARTS or SMILES) or `similar` (SMILES) with `threshold`
     (Tanimoto on Morgan radius-2 fingerprints), combinable with the compound filters.

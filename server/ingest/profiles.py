@@ -128,6 +128,13 @@ def _resolve_quantity(to: str, unit: str | None, field: str) -> tuple[CanonicalQ
     return ((exact_case or matches)[0],)
 
 
+def mapped_quantities(to: str, unit: str | None) -> tuple[CanonicalQuantity, ...]:
+    """What a column mapping ``{"to": to, "unit": unit}`` reads: one quantity, or several when ``to`` is a
+    symbol only the unit tells apart (``T``: time or temperature) and no unit is given (then each file's
+    header or units row decides). Raises IngestError (field ``to`` or ``unit``) as a saved profile would."""
+    return _resolve_quantity(to, unit or None, "columns")
+
+
 def _check_pattern(pattern: Any, field: str) -> str:
     if not isinstance(pattern, str) or not pattern:
         raise _fail("give a regular expression as text", field)

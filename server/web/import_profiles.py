@@ -14,7 +14,7 @@ from ..deps import PageActor, PageWriter, SessionDep, SettingsDep
 from ..errors import InputError
 from ..ingest.columns import QUANTITIES
 from ..ingest.conditions import CONDITION_FIELDS, TEXT_FIELDS
-from ..ingest.profiles import sketch
+from ..ingest.profiles import mapped_quantities, sketch
 from ..kinds import KINDS
 from ..services import import_profiles, measurements, profiled_uploads
 from ..services.errors import Duplicate
@@ -33,12 +33,38 @@ def _context(session, form: dict, *, draft=None, preview=None, error=None, editi
                for i in slots if form.get(f"source_{i}")}
     cond_mapping = {form[f"cond_key_{i}"]: (form.get(f"cond_to_{i}") or "", form.get(f"cond_unit_{i}") or "")
                     for i in slots if form.get(f"cond_key_{i}")}
+    file_units = {name: unit for _, name, unit in draft["header"]} if draft else {}
+    choices = {source: _choice(to, given or file_units.get(source) or "") for source, (to, given) in mapping.items()
+               if to and to != "ignore" and to not in _QUANTITY_NAMES}
     return {"profiles": import_profiles.list_profiles(session), "form": form, "draft": draft, "preview": preview,
+            "choices": choices,
             "error": error, "kinds": {k: v for k, v in KINDS.items() if v.table}, "quantities": QUANTITIES,
-            "quantity_names": {q.name for q in QUANTITIES},
             "condition_fields": CONDITION_FIELDS + TEXT_FIELDS, "mapping": mapping, "cond_mapping": cond_mapping,
             "editing": editing, "versions": versions,
             "action": f"/import-profiles/{editing.name}" if editing is not None else "/import-profiles"}
+
+
+_QUANTITY_NAMES = frozenset(q.name for q in QUANTITIES)
+
+
+def _described(q) -> str:  # noqa: ANN001 - a CanonicalQuantity
+    return f"{q.label} ({q.unit or 'no unit'})"
+
+
+def _choice(to: str, unit: str) -> dict:
+    """How the drop-down shows a mapping that names a symbol or alias (``T``, ``Q``), not a canonical column:
+    ``selected`` the one column it reads with this unit; else ``label`` (the option kept, in words) and ``note``
+    (why the unit does not settle it, and what to pick)."""
+    try:
+        found = mapped_quantities(to, unit)
+    except InputError as exc:
+        return {"selected": None, "label": f"{to}: not read as it stands", "note": str(exc)}
+    if len(found) == 1:
+        return {"selected": found[0].name, "label": "", "note": ""}
+    either = " or ".join(_described(q) for q in found)
+    return {"selected": None, "label": f"{to}: {either}, by each file's unit",
+            "note": f"'{to}' names more than one column: {either}. With no unit here, each file's header or units "
+                    "row decides which; pick one of them to fix it."}
 
 
 @router.get("/import-profiles", response_class=HTMLResponse)

@@ -121,3 +121,33 @@ def test_a_profile_is_edited_on_its_page_as_a_new_version_with_a_preview(client,
     assert "columns.Charge.unit" in soup(r.text).find(role="alert").text
     assert len(session.exec(select(ImportProfile)).all()) == 2
     assert client.get("/import-profiles/nobody").status_code == 404
+
+
+def test_a_mapping_by_symbol_shows_its_column_or_says_why_the_unit_does_not_settle_it(client, session):
+    """A profile written by hand maps columns by symbol (``V``, ``t``) or by one that only the unit tells apart
+    (``T``: time or temperature). The editor selects the column the symbol and unit read; where no unit is
+    given it says in words which columns the symbol may mean, and that each file's unit decides."""
+    csrf = login_as(client, session)
+    spec = json.loads((CORPUS / "pe_loop_marker_cp1252.profile.json").read_text())
+    spec["columns"]["Time"] = {"to": "T"}  # no unit: the file's header decides between time and temperature
+    r = client.post("/api/v1/import-profiles", json=spec, headers={"X-CSRF-Token": csrf})
+    assert r.status_code == 201, r.text
+    page = soup(client.get("/import-profiles/tester-a").text)
+    rows = {tr.select_one("input[type=hidden]")["value"]: tr for tr in page.select("#map-columns tbody tr")}
+    chosen = {k: tr.select_one("select option[selected]") for k, tr in rows.items()}
+    assert chosen["Drive Voltage"]["value"] == "V_V" and chosen["Charge"]["value"] == "Q_uC"
+    assert chosen["Point"]["value"] == "ignore"
+    assert all("as the profile says" not in tr.text for tr in rows.values())
+    time_row = rows["Time"]
+    assert chosen["Time"]["value"] == "T"  # kept as written, so saving the page keeps the profile's meaning
+    assert chosen["Time"].text == "T: time (s) or temperature (K), by each file's unit"
+    note = time_row.select_one("p.hint")
+    assert time_row.select_one("select")["aria-describedby"] == note["id"]
+    assert "names more than one column" in note.text and "each file's header or units row decides" in note.text
+    # With a unit, the same symbol is one column, selected as such.
+    spec["columns"]["Time"] = {"to": "T", "unit": "ms"}
+    assert client.patch("/api/v1/import-profiles/tester-a", json={"columns": spec["columns"]},
+                        headers={"X-CSRF-Token": csrf}).status_code == 201
+    page = soup(client.get("/import-profiles/tester-a").text)
+    row = next(tr for tr in page.select("#map-columns tbody tr") if tr.select_one("input")["value"] == "Time")
+    assert row.select_one("select option[selected]")["value"] == "t_s" and row.select_one("p.hint") is None

@@ -484,3 +484,18 @@ def analyse_nmr_spectrum(ppm: np.ndarray, y: np.ndarray, *, nucleus: Optional[st
         j_err_Hz=resolution / sqrt(6.0) if spectrometer_MHz else None,
         peaks_ppm=tuple(round(float(v), 4) for v in lines_ppm[::-1]), signals=tuple(signals), signals_found=found,
         environments_expected=expected, element_count=count, flags=tuple(flags))
+
+
+def integrate_regions(ppm: np.ndarray, y: np.ndarray, regions: list[tuple[float, float]]) -> list[float]:
+    """Areas (intensity x ppm) of ``regions`` ((from, to) ppm) of the spectrum, over the baseline that
+    :func:`analyse_nmr_spectrum` subtracts: a person's regions integrated as the automatic ones are."""
+    ppm, y = np.asarray(ppm, dtype=float), np.asarray(y, dtype=float)
+    order = np.argsort(ppm)
+    ppm, y = ppm[order], y[order]
+    yb = y - _baseline(y, noise_sd(y))
+    out = []
+    for lo, hi in regions:
+        sel = (ppm >= lo) & (ppm <= hi)
+        out.append(float(np.trapezoid(yb[sel], ppm[sel])) if sel.sum() > 1 else 0.0)
+    return out
+

@@ -21,7 +21,7 @@ from ..chem.identity import formula_html
 from ..errors import InputError
 from ..models import Batch, Compound, Measurement, utcnow
 from ..precision import decimals_within
-from . import audit, stats, verdicts
+from . import audit, corrections, stats, verdicts
 from .accounts import shown_name, shown_text
 from .errors import Archived
 from .registry import get_batch
@@ -159,7 +159,8 @@ def identity_summary(session: Session, batch: Batch, *, formula: Optional[str]) 
     out: dict[str, Any] = {"batch": batch.code, "status": status, "evidence": evidence,
                            "identity_confirmed": batch.identity_confirmed, "si_text": None, "si_markdown": None}
     if formula is not None and (passes or nmr):
-        h, e, n = (hrms.results if hrms else None), (ea.results if ea else None), (nmr.results if nmr else None)
+        h, e = (hrms.results if hrms else None), (ea.results if ea else None)
+        n = corrections.effective_results(nmr.results, nmr.correction) if nmr else None  # a person's peak list wins
         out["si_text"] = si_paragraph(formula, h, e, nmr=n)
         out["si_markdown"] = si_paragraph(formula, h, e, markdown=True, nmr=n)
     return out
@@ -170,8 +171,8 @@ def _nmr_evidence(m: Optional[Measurement], *, visible: bool) -> Optional[dict[s
     and, only for a caller who may see the structure, the expected count derived from it."""
     if m is None:
         return None
-    r = m.results
-    shown = {"measurement": m.id, "nucleus": r.get("nucleus"), "solvent": r.get("solvent"),
+    r = corrections.effective_results(m.results, m.correction)
+    shown = {"measurement": m.id, "edited": bool((m.correction or {}).get("results")), "nucleus": r.get("nucleus"), "solvent": r.get("solvent"),
              "spectrometer_MHz": r.get("spectrometer_MHz"), "signals_found": r.get("signals_found")}
     if visible:
         shown.update({"environments_expected": r.get("environments_expected"),

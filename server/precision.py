@@ -58,6 +58,16 @@ def with_uncertainty(value: Optional[float], err: Optional[float], digits: int =
     return f"{value_r:.{decimals}f}", f"{round(err / step) * step:.{decimals}f}"
 
 
+def decimals_within(err: Optional[float], most: int = 1) -> Optional[int]:
+    """Decimals to print a value with so its standard uncertainty ``err`` is at most one unit of the last digit
+    (the chemist's rule that only the last digit is uncertain; common practice), at most ``most``; None when
+    the uncertainty exceeds 1 (no digit after the units, nor the units themselves, is sure) or is unknown.
+    ``0.055`` -> 1, ``0.22`` -> 0, ``3.0`` -> None."""
+    if err is None or not math.isfinite(err) or err <= 0 or err > 1:
+        return None
+    return min(most, max(0, math.floor(-math.log10(err) + 1e-9)))
+
+
 def error_key(key: str, results: Mapping[str, Any]) -> Optional[str]:
     """The key of ``key``'s standard error in ``results``, by the house naming (``ea_kJ_mol`` ->
     ``ea_err_kJ_mol``, ``eps_inf`` -> ``eps_inf_err``), if present."""

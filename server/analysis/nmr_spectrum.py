@@ -14,24 +14,36 @@ The expected count is that of topologically symmetry-equivalent atoms of the obs
 protons (the exo and endo H of a bowl's CH2 bridge, whose signals stay apart while inversion is slow) as
 one environment and cannot know of accidental overlap, so "found" and "expected" may differ for a
 correct structure; the result says so in a flag.
+
+Multiplicity (:func:`multiplet`) follows the first-order rules: n equivalent neighbours split a signal into
+n + 1 lines spaced by J with the binomial (Pascal's triangle) intensities, and two different couplings
+make a doublet of doublets of four equal lines (Friebolin 2010, ch. 4, "first-order spectra"; T. D. W.
+Claridge, *High-Resolution NMR Techniques in Organic Chemistry*, 3rd ed., Elsevier 2016, ch. 2 and 4).
+A pattern is called only when the lines are resolved, equally spaced within the digital resolution and
+their intensities match the pattern; anything else is "m" with the reason, never a guess. J is the line
+spacing in Hz (ppm times the observe frequency), its uncertainty that of the difference of two positions
+each known to one data point (a rectangular distribution of one point's width, GUM 4.3.7: u = Δ/√6).
 """
 
 from __future__ import annotations
 
 import re
 from dataclasses import dataclass
+from math import comb, sqrt
 from typing import Optional
 
 import numpy as np
+from scipy.optimize import least_squares
 from scipy.signal import find_peaks, peak_widths
 
 from server.analysis.results import Flag, Result
 from server.errors import AnalysisError
 
 METHOD = ("Peak picking above 5 noise standard deviations, lines within 20 Hz grouped into signals and integrated "
-          "over their regions (Friebolin 2010); residual solvent shifts from Gottlieb et al. (1997); expected "
-          "environments from RDKit topological symmetry classes")
-VERSION = "nmr_spectrum/1.0"
+          "over their regions (Friebolin 2010); multiplicity and J by the first-order rules (n + 1 lines, Pascal "
+          "intensities; doublet of doublets; Friebolin 2010, Claridge 2016), otherwise m; residual solvent shifts "
+          "from Gottlieb et al. (1997); expected environments from RDKit topological symmetry classes")
+VERSION = "nmr_spectrum/1.1"
 
 #: A line must stand this many noise standard deviations above the baseline (common practice: a limit of
 #: detection of 3 sigma, raised to 5 because a spectrum has thousands of points and 3 sigma noise spikes).
@@ -52,6 +64,25 @@ SOLVENT_1H_PPM: dict[str, tuple[tuple[float, ...], Optional[float]]] = {
     "toluene-d8": ((2.08, 6.97, 7.01, 7.09), 0.43), "THF-d8": ((1.72, 3.58), 2.46),
 }
 SOLVENT_TOLERANCE_PPM = 0.03
+#: First-order patterns of n equivalent neighbours (n + 1 lines), named as journals print them.
+BINOMIAL_NAMES = {1: "d", 2: "t", 3: "q", 4: "quint", 5: "sext", 6: "sept"}
+#: Every multiplicity the analysis (and a person's edit) may give a signal: the first-order names, the
+#: doublet of doublets, s and m (a multiplet: not first-order, or not resolved well enough for a call).
+MULTIPLICITIES = ("s", "d", "t", "q", "quint", "sext", "sept", "dd", "m")
+#: Lines closer than this many line widths (FWHM) are not resolved well enough for a call (two equal
+#: Lorentzians show a dip from 0.58 FWHM apart; a whole width is asked for, common practice).
+RESOLVED_FWHM = 1.0
+#: A single line broader than this many times the spectrum's median line width may hide an unresolved
+#: multiplet, so it is "m", not "s" (common practice: an unresolved multiplet and a broad singlet look alike).
+BROAD_FACTOR = 2.0
+#: Line intensities may differ from the pattern's by this fraction of its value: noise of a few per cent
+#: and the roof effect of a weakly coupled pair (inner/outer about 1.2 at Δν/J = 10, the usual first-order
+#: limit; Friebolin 2010 ch. 4) stay inside; a stronger roof or a different pattern does not (common practice).
+INTENSITY_TOL = 0.25
+#: Spacings are equal when they agree within this many data points (positions are interpolated to a
+#: fraction of a point; two points leave room for noise and the pull of overlapping lines) or 3 % of J.
+SPACING_POINTS = 2.0
+SPACING_REL = 0.03
 TMS_PPM = 0.0
 
 
@@ -66,6 +97,83 @@ class NmrSignal(Result):
     integral_rel: Optional[float]  # fraction of the sample's total (solvent and TMS left out); None for those
     n_H: Optional[float]  # integral scaled so the signals sum to the formula's count of the observed element
     assigned: str = ""  # "solvent residual", "water", "TMS" or "" (the sample)
+    multiplicity: str = "m"  # one of MULTIPLICITIES
+    j_Hz: tuple[float, ...] = ()  # coupling constants from the line spacings, largest first (none for s and m)
+    pattern: str = ""  # why the pattern was called "m" (empty when a first-order pattern was found)
+
+
+@dataclass(frozen=True)
+class Multiplet:
+    """The first-order reading of one signal's lines."""
+
+    multiplicity: str
+    j_Hz: tuple[float, ...] = ()
+    reason: str = ""
+
+
+def _matches(intensities: np.ndarray, expected: np.ndarray) -> bool:
+    got = intensities / intensities.sum()
+    want = expected / expected.sum()
+    return bool(np.all(np.abs(got - want) <= INTENSITY_TOL * want))
+
+
+def multiplet(lines_Hz, heights, fwhm_Hz: float, *, resolution_Hz: float,
+              reference_fwhm_Hz: Optional[float] = None) -> Multiplet:
+    """The first-order multiplicity of one signal from its lines, or "m" with the reason.
+
+    Parameters
+    ----------
+    lines_Hz, heights : sequences
+        Line positions (Hz, any origin) and heights (overlap removed) of the signal's resolved lines.
+    fwhm_Hz : float
+        The lines' full width at half height (Hz).
+    resolution_Hz : float
+        Digital resolution: the spacing of the data points (Hz per point).
+    reference_fwhm_Hz : float, optional
+        The spectrum's typical line width: a single line much broader than it is "m", not "s".
+
+    Returns
+    -------
+    Multiplet
+        ``s``; ``d``, ``t``, ``q``, ``quint``, ``sext``, ``sept`` (n + 1 equally spaced lines with the binomial
+        intensities of n equivalent neighbours, J = span / n); ``dd`` (four equal lines, outer spacings
+        equal: J_small = those, J_large = line 3 - line 1), largest J first; otherwise ``m``.
+
+    References
+    ----------
+    H. Friebolin, *Basic One- and Two-Dimensional NMR Spectroscopy*, 5th ed., Wiley-VCH 2010, ch. 4
+    (first-order spectra, the n + 1 rule, Pascal's triangle); T. D. W. Claridge, *High-Resolution NMR
+    Techniques in Organic Chemistry*, 3rd ed., Elsevier 2016, ch. 4 (coupling trees, the doublet of doublets).
+    """
+    x = np.asarray(lines_Hz, dtype=float)
+    order = np.argsort(x)
+    x, h = x[order], np.asarray(heights, dtype=float)[order]
+    n = x.size
+    if n == 1:
+        if reference_fwhm_Hz and fwhm_Hz > BROAD_FACTOR * reference_fwhm_Hz:
+            return Multiplet("m", reason=f"one line {fwhm_Hz:.1f} Hz wide, over {BROAD_FACTOR:g} times the "
+                                         "spectrum's lines: an unresolved multiplet cannot be told from a broad singlet")
+        return Multiplet("s")
+    if np.any(h <= 0):
+        return Multiplet("m", reason="overlapping lines: their heights cannot be separated")
+    gaps = np.diff(x)
+    if gaps.min() < RESOLVED_FWHM * fwhm_Hz:
+        return Multiplet("m", reason=f"lines {gaps.min():.1f} Hz apart, closer than their width ({fwhm_Hz:.1f} Hz): "
+                                     "not resolved for a call")
+
+    def equal(a, b) -> bool:
+        return abs(a - b) <= max(SPACING_POINTS * resolution_Hz, SPACING_REL * max(a, b))
+
+    if n - 1 in BINOMIAL_NAMES and all(equal(g, gaps.mean()) for g in gaps):
+        if _matches(h, np.array([comb(n - 1, k) for k in range(n)], dtype=float)):
+            return Multiplet(BINOMIAL_NAMES[n - 1], (float((x[-1] - x[0]) / (n - 1)),))
+    if n == 4 and equal(gaps[0], gaps[2]) and _matches(h, np.ones(4)):
+        small = float((gaps[0] + gaps[2]) / 2)
+        large = float(((x[2] - x[0]) + (x[3] - x[1])) / 2)
+        return Multiplet("dd", (large, small))
+    return Multiplet("m", reason=f"{n} lines in no first-order pattern (spacings "
+                                 f"{', '.join(f'{g:.1f}' for g in gaps)} Hz, intensities "
+                                 f"{':'.join(f'{v:.2f}' for v in h / h.max())})")
 
 
 @dataclass(frozen=True)
@@ -78,6 +186,8 @@ class NmrSpectrumResult(Result):
     ppm_max: float
     points: int
     noise_rel: float  # noise standard deviation over the tallest line
+    resolution_Hz: Optional[float]  # digital resolution (Hz per point); None without a frequency
+    j_err_Hz: Optional[float]  # standard uncertainty of a J from two line positions (resolution / sqrt 6)
     peaks_ppm: tuple[float, ...]
     signals: tuple[NmrSignal, ...]
     signals_found: int  # signals of the sample (solvent, water and TMS not counted)
@@ -86,7 +196,7 @@ class NmrSpectrumResult(Result):
     flags: tuple[Flag, ...] = ()
 
     JSON_KEYS = ("nucleus", "solvent", "spectrometer_MHz", "t_K", "ppm_min", "ppm_max", "points", "noise_rel",
-                 "peaks_ppm", "signals", "signals_found", "environments_expected", "element_count",
+                 "resolution_Hz", "j_err_Hz", "peaks_ppm", "signals", "signals_found", "environments_expected", "element_count",
                  "environments_check", "flags")
 
     @property
@@ -178,6 +288,86 @@ def _solvent_key(solvent: Optional[str]) -> str:
     return aliases.get(norm, "")
 
 
+def _interpolated(ppm: np.ndarray, y: np.ndarray, idx: np.ndarray, half_points: np.ndarray) -> np.ndarray:
+    """Line positions between the data points: the vertex of the parabola fitted by least squares to each
+    maximum and the points within a quarter of its width on either side (at least one; the three-point
+    interpolation of peak pickers, widened so a finely sampled line's noise averages out; common practice)."""
+    out = ppm[idx].astype(float)
+    step = float(np.diff(ppm).mean()) if ppm.size > 1 else 0.0
+    for n, (i, hp) in enumerate(zip(idx, half_points)):
+        k = max(1, int(hp / 4))
+        lo, hi = max(0, i - k), min(y.size, i + k + 1)
+        if hi - lo < 3:
+            continue
+        t = np.arange(lo, hi) - i
+        c2, c1, _ = np.polyfit(t, y[lo:hi], 2)
+        if c2 < 0:
+            out[n] = ppm[i] + float(np.clip(-c1 / (2 * c2), -k, k)) * step
+    return out
+
+
+def _lorentzians(x_Hz: np.ndarray, centres_Hz: np.ndarray, fwhm_Hz: float) -> np.ndarray:
+    return 1.0 / (1.0 + ((x_Hz[:, None] - centres_Hz[None, :]) / (fwhm_Hz / 2.0)) ** 2)
+
+
+def _fit_lines(hz: np.ndarray, yb: np.ndarray, lines_Hz: np.ndarray, fwhm_Hz: float) -> tuple[np.ndarray, np.ndarray, float]:
+    """(positions, heights, common FWHM) of one signal's lines by least squares of a sum of Lorentzians of
+    one width over every point within three widths of the lines (started from the picked lines): partly
+    overlapping lines pull each other's maxima, the fit does not, and the noise of single points averages
+    out (Levenberg-Marquardt-type fit, scipy.optimize.least_squares)."""
+    sel = (hz >= lines_Hz.min() - 3 * fwhm_Hz) & (hz <= lines_Hz.max() + 3 * fwhm_Hz)
+    x, yv = hz[sel], yb[sel]
+    n = lines_Hz.size
+    if x.size < 2 * n + 2 or fwhm_Hz <= 0:
+        return lines_Hz, np.interp(lines_Hz, hz, yb), fwhm_Hz
+    start_amps = np.linalg.lstsq(_lorentzians(x, lines_Hz, fwhm_Hz), yv, rcond=None)[0]
+
+    def resid(p):
+        return _lorentzians(x, p[:n], p[-1]) @ p[n:2 * n] - yv
+
+    try:
+        fit = least_squares(resid, np.concatenate([lines_Hz, start_amps, [fwhm_Hz]]), method="trf",
+                            bounds=(np.concatenate([lines_Hz - fwhm_Hz, np.full(n, -np.inf), [fwhm_Hz / 4]]),
+                                    np.concatenate([lines_Hz + fwhm_Hz, np.full(n, np.inf), [fwhm_Hz * 4]])),
+                            max_nfev=200)
+    except (ValueError, np.linalg.LinAlgError):
+        return lines_Hz, start_amps, fwhm_Hz
+    order = np.argsort(fit.x[:n])
+    return fit.x[:n][order], fit.x[n:2 * n][order], float(fit.x[-1])
+
+
+def _hidden_line(hz: np.ndarray, yb: np.ndarray, sd: float, lines_Hz: np.ndarray, amps: np.ndarray,
+                 fwhm_Hz: float, j_Hz: float) -> Optional[float]:
+    """Where a line of the next larger pattern could stand, one J beyond either outer line, hidden below the
+    detection limit: the mean of the points within a quarter width there, less the tails of the found lines,
+    standing over 3 standard errors of that mean. Returns its position (Hz) or None."""
+    for pos in (lines_Hz.min() - j_Hz, lines_Hz.max() + j_Hz):
+        sel = np.abs(hz - pos) <= fwhm_Hz / 4
+        if not sel.any():
+            continue
+        rest = yb[sel] - _lorentzians(hz[sel], lines_Hz, fwhm_Hz) @ amps
+        if rest.mean() > 3 * sd / np.sqrt(sel.sum()):
+            return float(pos)
+    return None
+
+
+def _pattern(hz: np.ndarray, yb: np.ndarray, sd: float, lines_Hz: np.ndarray, fwhm_Hz: float, resolution_Hz: float,
+             reference_fwhm_Hz: float) -> Multiplet:
+    """:func:`multiplet` of one signal's lines read from the spectrum, and "m" when a line of a larger pattern
+    may hide in the noise beside it (a quartet whose outer lines are lost reads as a doublet)."""
+    if lines_Hz.size > 1:
+        lines_Hz, amps, fwhm_Hz = _fit_lines(hz, yb, lines_Hz, fwhm_Hz)
+    else:
+        amps = np.interp(lines_Hz, hz, yb)
+    pat = multiplet(lines_Hz, amps, fwhm_Hz, resolution_Hz=resolution_Hz, reference_fwhm_Hz=reference_fwhm_Hz)
+    if pat.j_Hz:
+        hidden = _hidden_line(hz, yb, sd, lines_Hz, amps, fwhm_Hz, min(pat.j_Hz))
+        if hidden is not None:
+            return Multiplet("m", reason=f"read as {pat.multiplicity}, but a line may hide in the noise "
+                                         f"{min(pat.j_Hz):.1f} Hz beyond it: the pattern cannot be called")
+    return pat
+
+
 def _groups(lines: np.ndarray, group_ppm: float) -> list[list[int]]:
     """Indices into ``lines`` (sorted by shift) grouped where neighbours are within ``group_ppm``."""
     out: list[list[int]] = []
@@ -239,7 +429,7 @@ def analyse_nmr_spectrum(ppm: np.ndarray, y: np.ndarray, *, nucleus: Optional[st
                             "spectrum is not phased or not baseline-corrected")
     half = peak_widths(yb, idx, rel_height=0.5)[0]  # in points
     step = float(np.median(np.diff(ppm)))
-    lines_ppm = ppm[idx]
+    lines_ppm = _interpolated(ppm, yb, idx, half)
     groups = _groups(lines_ppm, GROUP_HZ / mhz)
     # regions: +-REGION_WIDTHS half-widths around the outer lines, clipped halfway to the neighbours
     bounds = []
@@ -250,6 +440,11 @@ def analyse_nmr_spectrum(ppm: np.ndarray, y: np.ndarray, *, nucleus: Optional[st
         if bounds[k][1] > bounds[k + 1][0]:
             mid = (lines_ppm[groups[k][-1]] + lines_ppm[groups[k + 1][0]]) / 2.0
             bounds[k][1] = bounds[k + 1][0] = mid
+    fwhm_hz = half * step * mhz
+    ref_fwhm = float(np.median(fwhm_hz))
+    resolution = step * mhz
+    patterns = [_pattern(ppm * mhz, yb, sd, lines_ppm[g] * mhz, float(np.median(fwhm_hz[g])), resolution, ref_fwhm)
+                for g in groups]
     areas, centres, tags = [], [], []
     for g, (lo, hi) in zip(groups, bounds):
         sel = (ppm >= lo) & (ppm <= hi)
@@ -263,11 +458,13 @@ def analyse_nmr_spectrum(ppm: np.ndarray, y: np.ndarray, *, nucleus: Optional[st
     if smiles:
         expected, count = expected_environments(smiles, element)
     signals = []
-    for g, (lo, hi), area, centre, tag in zip(groups, bounds, areas, centres, tags):
+    for g, (lo, hi), area, centre, tag, pat in zip(groups, bounds, areas, centres, tags, patterns):
         rel = area / sample_total if not tag and sample_total > 0 else None
+        j = tuple(round(v, 3) for v in pat.j_Hz) if spectrometer_MHz else ()  # no J in Hz without the frequency
         signals.append(NmrSignal(shift_ppm=round(centre, 4), from_ppm=round(float(lo), 4), to_ppm=round(float(hi), 4),
                                  lines=len(g), integral_rel=rel,
-                                 n_H=rel * count if rel is not None and count else None, assigned=tag))
+                                 n_H=rel * count if rel is not None and count else None, assigned=tag,
+                                 multiplicity=pat.multiplicity, j_Hz=j, pattern=pat.reason))
     signals.sort(key=lambda s: -s.shift_ppm)  # as printed: downfield first
     found = sum(1 for s in signals if not s.assigned)
     if expected is not None and found != expected:
@@ -283,5 +480,22 @@ def analyse_nmr_spectrum(ppm: np.ndarray, y: np.ndarray, *, nucleus: Optional[st
     return NmrSpectrumResult(
         nucleus=nucleus, solvent=solvent, spectrometer_MHz=spectrometer_MHz, t_K=t_K,
         ppm_min=float(ppm[0]), ppm_max=float(ppm[-1]), points=int(ppm.size), noise_rel=sd / top,
+        resolution_Hz=resolution if spectrometer_MHz else None,
+        j_err_Hz=resolution / sqrt(6.0) if spectrometer_MHz else None,
         peaks_ppm=tuple(round(float(v), 4) for v in lines_ppm[::-1]), signals=tuple(signals), signals_found=found,
         environments_expected=expected, element_count=count, flags=tuple(flags))
+
+
+def integrate_regions(ppm: np.ndarray, y: np.ndarray, regions: list[tuple[float, float]]) -> list[float]:
+    """Areas (intensity x ppm) of ``regions`` ((from, to) ppm) of the spectrum, over the baseline that
+    :func:`analyse_nmr_spectrum` subtracts: a person's regions integrated as the automatic ones are."""
+    ppm, y = np.asarray(ppm, dtype=float), np.asarray(y, dtype=float)
+    order = np.argsort(ppm)
+    ppm, y = ppm[order], y[order]
+    yb = y - _baseline(y, noise_sd(y))
+    out = []
+    for lo, hi in regions:
+        sel = (ppm >= lo) & (ppm <= hi)
+        out.append(float(np.trapezoid(yb[sel], ppm[sel])) if sel.sum() > 1 else 0.0)
+    return out
+

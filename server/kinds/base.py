@@ -146,6 +146,10 @@ class Kind:
     evidence: Optional[Callable[[Mapping[str, Any], Optional[float]], Evidence]] = None
     stats: Optional[Callable[[Sequence[Any]], dict[str, Any]]] = None  # Measurement rows
     derive: Optional[Callable[..., None]] = None
+    #: ``correct(parsed, result, edit)``: a person's edit of the analysis checked against the file as read and
+    #: its automatic result; returns the result keys the edit replaces (InputError naming the field on bad
+    #: input). None: the kind's results are not edited by hand (``services/corrections.py`` stores edits).
+    correct: Optional[Callable[[Any, Any, Any], dict[str, Any]]] = None
     no_figure_reason: str = ""  # says why ``figure`` is None
     needs_structures: bool = False  # the analysis compares with the compound's CIFs (Context.structures)
     content_type: str = "text/plain"

@@ -75,6 +75,102 @@ def _analyse(parsed: NmrFile, c, ctx):
                                              t_K=c.temperature_K, smiles=ctx.smiles)
 
 
+#: What a person may set on a signal of the peak list, and the bounds of an edit.
+EDIT_KEYS = ("from_ppm", "to_ppm", "shift_ppm", "n_H", "multiplicity", "j_Hz", "label", "assigned")
+NOT_SAMPLE = ("", "solvent residual", "water", "TMS", "impurity")
+MAX_SIGNALS, MAX_LABEL, MAX_J_HZ = 100, 80, 40.0
+#: Couplings a multiplicity names (first-order: one J for n + 1 lines, two for a dd, none for s and m).
+J_COUNT = {"s": 0, "m": 0, "dd": 2, **{name: 1 for name in nmr_spectrum.BINOMIAL_NAMES.values()}}
+
+
+def _number(value, where: str, *, required: bool = False) -> Optional[float]:
+    if value is None or (isinstance(value, str) and not value.strip()):
+        if required:
+            raise IngestError(f"{where} is required", field=where)
+        return None
+    try:
+        out = float(str(value).strip().replace("−", "-")) if not isinstance(value, (int, float)) else float(value)
+    except ValueError:
+        raise IngestError(f"{where} = {str(value)[:30]!r} is not a number", field=where) from None
+    if not np.isfinite(out):
+        raise IngestError(f"{where} is not a finite number", field=where)
+    return out
+
+
+def _couplings(value, where: str) -> tuple[float, ...]:
+    items = value if isinstance(value, (list, tuple)) else [v for v in str(value or "").replace(";", ",").split(",")]
+    out = tuple(v for v in (_number(v, where) for v in items) if v is not None)
+    if any(not 0 < j <= MAX_J_HZ for j in out):
+        raise IngestError(f"{where}: a 1H-1H coupling is between 0 and {MAX_J_HZ:g} Hz", field=where)
+    return tuple(sorted(out, reverse=True))
+
+
+def _correct(parsed: NmrFile, result, edit) -> dict:
+    """A person's peak list (``edit``: a list of signals, each with ``from_ppm`` and ``to_ppm`` and optionally
+    ``shift_ppm``, ``n_H``, ``multiplicity``, ``j_Hz``, ``label``, ``assigned``) integrated over the stored
+    spectrum as the automatic signals are: the replaced ``signals`` (downfield first), ``signals_found`` and
+    ``environments_check``. A person's ``n_H`` stands; without one the integral is scaled to the formula."""
+    if not isinstance(edit, (list, tuple)) or not edit:
+        raise IngestError("the peak list needs at least one signal with a region (from and to, ppm)", field="signals")
+    if len(edit) > MAX_SIGNALS:
+        raise IngestError(f"at most {MAX_SIGNALS} signals", field="signals")
+    rows = []
+    for i, row in enumerate(edit):
+        where = f"signals[{i}]"
+        if not isinstance(row, dict) or set(row) - set(EDIT_KEYS):
+            raise IngestError(f"{where}: a signal has only the keys {', '.join(EDIT_KEYS)}", field=where)
+        lo, hi = sorted((_number(row.get("from_ppm"), f"{where}.from_ppm", required=True),
+                         _number(row.get("to_ppm"), f"{where}.to_ppm", required=True)))
+        if lo == hi or lo < result.ppm_min or hi > result.ppm_max:
+            raise IngestError(f"{where}: the region {lo:g} to {hi:g} ppm must be a range inside the spectrum "
+                              f"({result.ppm_min:.3f} to {result.ppm_max:.3f} ppm)", field=f"{where}.from_ppm")
+        shift = _number(row.get("shift_ppm"), f"{where}.shift_ppm")
+        if shift is not None and not lo <= shift <= hi:
+            raise IngestError(f"{where}: δ {shift:g} ppm lies outside its region", field=f"{where}.shift_ppm")
+        n_h = _number(row.get("n_H"), f"{where}.n_H")
+        if n_h is not None and not 0 <= n_h <= 1000:
+            raise IngestError(f"{where}.n_H: between 0 and 1000 atoms", field=f"{where}.n_H")
+        mult = str(row.get("multiplicity") or "m").strip()
+        if mult not in nmr_spectrum.MULTIPLICITIES:
+            raise IngestError(f"{where}.multiplicity {mult[:20]!r}: one of {', '.join(nmr_spectrum.MULTIPLICITIES)}",
+                              field=f"{where}.multiplicity")
+        j = _couplings(row.get("j_Hz"), f"{where}.j_Hz")
+        if j and len(j) != J_COUNT[mult]:
+            raise IngestError(f"{where}: a {mult} has {J_COUNT[mult]} coupling constant(s), {len(j)} given",
+                              field=f"{where}.j_Hz")
+        label = str(row.get("label") or "").strip()
+        assigned = str(row.get("assigned") or "").strip()
+        if len(label) > MAX_LABEL:
+            raise IngestError(f"{where}.label: at most {MAX_LABEL} characters", field=f"{where}.label")
+        if assigned not in NOT_SAMPLE:
+            raise IngestError(f"{where}.assigned: one of {', '.join(repr(a) for a in NOT_SAMPLE)}",
+                              field=f"{where}.assigned")
+        rows.append(dict(lo=lo, hi=hi, shift=shift if shift is not None else (lo + hi) / 2, n_H=n_h, mult=mult, j=j,
+                         label=label, assigned=assigned, where=where, i=i))
+    rows.sort(key=lambda r: r["lo"])
+    for a, b in zip(rows, rows[1:]):
+        if b["lo"] < a["hi"]:
+            first, later = sorted((a, b), key=lambda r: r["i"])
+            raise IngestError(f"{later['where']}: its region overlaps that of {first['where']}",
+                              field=f"{later['where']}.from_ppm")
+    areas = nmr_spectrum.integrate_regions(_ppm(parsed, result.spectrometer_MHz), parsed.spectrum.y,
+                                           [(r["lo"], r["hi"]) for r in rows])
+    total = sum(a for a, r in zip(areas, rows) if not r["assigned"])
+    signals = []
+    for r, area in sorted(zip(rows, areas), key=lambda p: -p[0]["shift"]):
+        rel = area / total if not r["assigned"] and total > 0 else None
+        scaled = rel * result.element_count if rel is not None and result.element_count else None
+        signals.append({"shift_ppm": round(r["shift"], 4), "from_ppm": round(r["lo"], 4), "to_ppm": round(r["hi"], 4),
+                        "lines": None, "integral_rel": rel,
+                        "n_H": r["n_H"] if r["n_H"] is not None else scaled, "assigned": r["assigned"],
+                        "multiplicity": r["mult"], "j_Hz": list(r["j"]), "pattern": "", "label": r["label"]})
+    found = sum(1 for x in signals if not x["assigned"])
+    expected = result.environments_expected
+    check = None if expected is None else ("as expected" if found == expected else
+                                           "fewer than expected" if found < expected else "more than expected")
+    return {"signals": signals, "signals_found": found, "environments_check": check}
+
+
 def _figure(parsed: NmrFile, result):
     return nmr_spectrum_figure(_ppm(parsed, result.spectrometer_MHz), parsed.spectrum.y, result)
 
@@ -106,6 +202,8 @@ KIND = Kind(
         ResultKey("ppm_max", "highest shift in file", "ppm", 3),
         ResultKey("points", "points"),
         ResultKey("noise_rel", "noise (of the tallest line)", "", 2),
+        ResultKey("resolution_Hz", "digital resolution (per point)", "Hz", 2),
+        ResultKey("j_err_Hz", "J uncertainty (from the resolution)", "Hz", 2),
         ResultKey("peaks_ppm", "peak list", "ppm", 4),
         ResultKey("signals", "signals"),
         ResultKey("shift_ppm", "δ", "ppm", 3),
@@ -115,6 +213,10 @@ KIND = Kind(
         ResultKey("integral_rel", "integral (fraction)", "", 3),
         ResultKey("n_H", "integral (atoms, scaled to the formula)", "", 3),
         ResultKey("assigned", "not the sample"),
+        ResultKey("multiplicity", "multiplicity"),
+        ResultKey("j_Hz", "J", "Hz", 3),
+        ResultKey("pattern", "why m"),
+        ResultKey("label", "assignment"),
         ResultKey("signals_found", "signals found"),
         ResultKey("environments_expected", "environments expected (topological symmetry; a check, not proof)"),
         ResultKey("element_count", "atoms of the observed element"),
@@ -122,6 +224,7 @@ KIND = Kind(
     ),
     summary_keys=("nucleus", "solvent", "signals_found", "environments_expected"),
     figure=_figure,
+    correct=_correct,
     example=_example,
     content_type="chemical/x-jcamp-dx",
 )

@@ -112,6 +112,11 @@ class Measurement(SQLModel, table=True):
     # A correction: the new measurement names the one it replaces; the old one names its successor.
     supersedes_id: Optional[int] = Field(default=None, foreign_key="measurement.id")
     superseded_by_id: Optional[int] = Field(default=None, foreign_key="measurement.id")
+    # A person's correction of the automatic analysis, stored beside it (``results`` stay as the analysis gave
+    # them): ``{"results": {key: value}, "reason", "by", "at", "analysis_version"}``, the keys the kind lets
+    # people edit (``Kind.correct``); None while the automatic analysis stands. An edit or its revert is a
+    # correction like any other: a new measurement that supersedes this one.
+    correction: Optional[dict[str, Any]] = Field(default=None, sa_type=sa.JSON)
     created_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
     analysed_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
     created_by: str = Field(default="", max_length=120)

@@ -20,7 +20,8 @@ from .. import access
 from ..chem.identity import formula_html
 from ..errors import InputError
 from ..models import Batch, Compound, Measurement, utcnow
-from . import audit, stats, verdicts
+from ..precision import decimals_within
+from . import audit, corrections, stats, verdicts
 from .accounts import shown_name, shown_text
 from .errors import Archived
 from .registry import get_batch
@@ -68,11 +69,23 @@ def _nucleus_words(nucleus: Optional[str], md: bool) -> str:
     return f"<sup>{m.group(1)}</sup>{m.group(2)}" if md else f"{m.group(1)}{m.group(2)}"
 
 
+def _coupling_words(s: dict[str, Any], j_err_Hz: Optional[float]) -> str:
+    """``d, J = 8.4 Hz``, ``dd, J = 8.4, 2.1 Hz`` or ``s``; J only with the digits the digital resolution
+    allows (:func:`server.precision.decimals_within` of the J uncertainty: to 0.1 Hz when it is at most
+    0.1 Hz, whole hertz when at most 1 Hz, not printed beyond)."""
+    words = s["multiplicity"]
+    decimals = decimals_within(j_err_Hz)
+    if s.get("j_Hz") and decimals is not None:
+        words += f", J = {', '.join(f'{j:.{decimals}f}' for j in s['j_Hz'])} Hz"
+    return words
+
+
 def nmr_line(nmr: dict[str, Any], *, markdown: bool = False) -> str:
-    """``1H NMR (400 MHz, CDCl3, 298 K): δ 4.70 (3H), 3.95 (18H), 3.42 (3H).`` from a stored ``nmr_spectrum``
-    result: the sample's signals downfield first, shifts to two decimals and integrals in whole atoms (as
-    journals print them; the fraction when no structure scaled them). Multiplicities are not analysed, so
-    none is printed."""
+    """``1H NMR (400 MHz, CDCl3, 298 K): δ 7.26 (d, J = 8.4 Hz, 2H), 3.95 (s, 18H).`` from a stored
+    ``nmr_spectrum`` result (or one with a person's edit laid over it): the sample's signals downfield first,
+    shifts to two decimals, the multiplicity and J (:func:`_coupling_words`), integrals in whole atoms (as
+    journals print them; the fraction when no structure scaled them). A result stored before multiplicities
+    were analysed prints none."""
     head = [f"{nmr['spectrometer_MHz']:.0f} MHz" if nmr.get("spectrometer_MHz") else "",
             (_formula_md(nmr["solvent"]) if markdown else nmr["solvent"]) if nmr.get("solvent") else "",
             f"{nmr['t_K']:.0f} K" if nmr.get("t_K") else ""]
@@ -81,8 +94,11 @@ def nmr_line(nmr: dict[str, Any], *, markdown: bool = False) -> str:
         if s.get("assigned"):
             continue
         amount = (f"{s['n_H']:.0f}{(nmr.get('nucleus') or 'H').lstrip('^').lstrip('0123456789')}"
-                  if s.get("n_H") is not None else f"{100 * s['integral_rel']:.0f} %")
-        signals.append(f"{s['shift_ppm']:.2f} ({amount})")
+                  if s.get("n_H") is not None else f"{100 * s['integral_rel']:.0f} %"
+                  if s.get("integral_rel") is not None else "")
+        words = [_coupling_words(s, nmr.get("j_err_Hz")) if s.get("multiplicity") else "", amount]
+        inner = ", ".join(w for w in words if w)
+        signals.append(f"{s['shift_ppm']:.2f}" + (f" ({inner})" if inner else ""))
     inner = ", ".join(p for p in head if p)
     return (f"{_nucleus_words(nmr.get('nucleus'), markdown)} NMR{f' ({inner})' if inner else ''}: "
             f"δ {', '.join(signals) if signals else 'no signal of the sample'}.")
@@ -143,7 +159,8 @@ def identity_summary(session: Session, batch: Batch, *, formula: Optional[str]) 
     out: dict[str, Any] = {"batch": batch.code, "status": status, "evidence": evidence,
                            "identity_confirmed": batch.identity_confirmed, "si_text": None, "si_markdown": None}
     if formula is not None and (passes or nmr):
-        h, e, n = (hrms.results if hrms else None), (ea.results if ea else None), (nmr.results if nmr else None)
+        h, e = (hrms.results if hrms else None), (ea.results if ea else None)
+        n = corrections.effective_results(nmr.results, nmr.correction) if nmr else None  # a person's peak list wins
         out["si_text"] = si_paragraph(formula, h, e, nmr=n)
         out["si_markdown"] = si_paragraph(formula, h, e, markdown=True, nmr=n)
     return out
@@ -154,8 +171,8 @@ def _nmr_evidence(m: Optional[Measurement], *, visible: bool) -> Optional[dict[s
     and, only for a caller who may see the structure, the expected count derived from it."""
     if m is None:
         return None
-    r = m.results
-    shown = {"measurement": m.id, "nucleus": r.get("nucleus"), "solvent": r.get("solvent"),
+    r = corrections.effective_results(m.results, m.correction)
+    shown = {"measurement": m.id, "edited": bool((m.correction or {}).get("results")), "nucleus": r.get("nucleus"), "solvent": r.get("solvent"),
              "spectrometer_MHz": r.get("spectrometer_MHz"), "signals_found": r.get("signals_found")}
     if visible:
         shown.update({"environments_expected": r.get("environments_expected"),

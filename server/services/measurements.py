@@ -239,7 +239,8 @@ def record_created(session: Session, compound: Compound, stored: Sequence[Measur
 
 def _store(session: Session, *, batch: Batch, sample: Sample, done: Analysed, raw: bytes, sha: str,
            filename: str | None, actor: str, supersedes: Optional[int] = None, profile_name: str = "",
-           profile_version: Optional[int] = None, block: int = 0) -> Measurement:
+           profile_version: Optional[int] = None, block: int = 0,
+           correction: Optional[dict[str, Any]] = None) -> Measurement:
     """Add the raw file (once per checksum) and the measurement to the session (not flushed)."""
     rawfile = session.exec(select(RawFile).where(RawFile.sha256 == sha)).first()
     if rawfile is None:
@@ -264,6 +265,7 @@ def _store(session: Session, *, batch: Batch, sample: Sample, done: Analysed, ra
         operator=c.operator or "",
         notes=c.notes or "",
         supersedes_id=supersedes,
+        correction=correction,
         created_by=actor,
         profile_name=profile_name,
         profile_version=profile_version,
@@ -280,6 +282,10 @@ def stored_table(session: Session, m: Measurement, raw: bytes) -> Any:
         return None
     return import_profiles.stored_block(session, name=m.profile_name, version=m.profile_version, block=m.block,
                                         raw=raw).table
+
+
+#: ``revise_measurement(correction=KEEP)``: the old measurement's edit goes over unchanged.
+KEEP = object()
 
 
 def newest_of(session: Session, m: Measurement) -> Measurement:
@@ -300,13 +306,17 @@ def revise_measurement(
     raw: Optional[bytes] = None,
     filename: Optional[str] = None,
     budget: Optional[AnalysisPool] = None,
+    correction: Any = KEEP,
+    action: str = "measurement.revise",
 ) -> Measurement:
     """Correct a measurement: a new measurement with the changed conditions (and optionally a
     replacement file) that ``supersedes`` the old one; the old one keeps its rows and raw file,
     gets ``superseded_by``, and drops out of lists, figures, stats and verdicts.
 
     Conditions not given keep the values typed on the old upload; the file's own lines are read
-    again, and the sample's geometry fills what neither gives.
+    again, and the sample's geometry fills what neither gives. ``correction``: a person's edit of the
+    analysis to store on the new measurement (:mod:`server.services.corrections`); by default the old
+    one's edit goes over with the same file and is dropped with a replacement file, whose analysis differs.
 
     Raises
     ------
@@ -333,7 +343,9 @@ def revise_measurement(
     sha = hashlib.sha256(data).hexdigest()
     done = analyse(kind, data, filename=name, form=merged, context=context_for(compound, session=session, kind=kind),
                    defaults=samples.sample_defaults(sample), parsed=stored_table(session, m, data), budget=budget)
-    if sha == m.sha256 and same_conditions(m.conditions, done.conditions):
+    if correction is KEEP:
+        correction = m.correction if sha == m.sha256 else None
+    if sha == m.sha256 and same_conditions(m.conditions, done.conditions) and correction == m.correction:
         raise InputError("the revision changes nothing: give a condition that differs from the stored one, "
                          "or a replacement file", field="conditions")
     if sha != m.sha256:
@@ -341,22 +353,23 @@ def revise_measurement(
         if other is not None:
             raise Duplicate(f"the replacement file is stored already for this sample as measurement {other.id}",
                             existing=other.id)
-    before = {"conditions": m.conditions, "sha256": m.sha256, "results": m.results}
+    before = {"conditions": m.conditions, "sha256": m.sha256, "results": m.results, "correction": m.correction}
     # The live-copy index allows one live row per bytes: the old row leaves it (pointing at
     # itself for the moment) before the new one is inserted, all in this one transaction.
     m.superseded_by_id = m.id
     session.add(m)
     session.flush()
     new = _store(session, batch=batch, sample=sample, done=done, raw=data, sha=sha, filename=name, actor=actor,
-                 supersedes=m.id, profile_name=m.profile_name, profile_version=m.profile_version, block=m.block)
+                 supersedes=m.id, profile_name=m.profile_name, profile_version=m.profile_version, block=m.block,
+                 correction=correction)
     session.flush()
     m.superseded_by_id = new.id
     session.add(m)
     refresh_derived(session, [m, new], actor=actor)
-    audit.record(session, actor=actor, action="measurement.revise", entity="measurement", code=str(m.id),
+    audit.record(session, actor=actor, action=action, entity="measurement", code=str(m.id),
                  compound_id=compound.id, before=before,
                  after={"superseded_by": new.id, "conditions": new.conditions, "sha256": new.sha256,
-                        "results": new.results})
+                        "results": new.results, "correction": new.correction})
     record_created(session, compound, [new], actor=actor, supersedes=m.id)
     session.commit()
     session.refresh(new)
@@ -527,6 +540,7 @@ def measurement_read(session: Session, m: Measurement) -> dict[str, Any]:
         "archived": m.archived,
         "supersedes": m.supersedes_id,
         "superseded_by": m.superseded_by_id,
+        "correction": m.correction,
         "created_at": m.created_at.isoformat(),
         "created_by": m.created_by,
         "profile": m.profile_name or None,
@@ -550,7 +564,7 @@ def measurement_as_seen(session: Session, m: Measurement, actor: Optional[Actor]
     compound = session.get(Compound, batch.compound_id)
     if access.may_see_structure(actor, compound):
         return body
-    return {**body, "results": {}, "conditions": {}, "temperature_K": None, "notes": "", "filename": "",
+    return {**body, "results": {}, "conditions": {}, "temperature_K": None, "notes": "", "filename": "", "correction": None,
             "flags": [{"code": f.get("code", ""), "message": RECEIPT_WITHHELD} for f in (m.flags or [])]}
 
 

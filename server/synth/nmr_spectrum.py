@@ -29,22 +29,41 @@ class Signal:
     n_H: float
     neighbours: int = 0  # equivalent coupled protons: a signal of neighbours + 1 lines
     j_Hz: float = 7.0
+    #: further couplings, each (equivalent protons, J in Hz): each splits every line again (a coupling
+    #: tree, Friebolin ch. 4), so Signal(s, 1, 1, 8.4, ((1, 2.1),)) is a doublet of doublets
+    also: tuple[tuple[int, float], ...] = ()
+
+    def lines_Hz(self, mhz: float) -> list[tuple[float, float]]:
+        """(position in Hz, area) of every line of the first-order multiplet; the areas sum to ``n_H``."""
+        out = [(self.shift_ppm * mhz, float(self.n_H))]
+        for n, j in ((self.neighbours, self.j_Hz),) + self.also:
+            out = [(x + (k - n / 2.0) * j, w * comb(n, k) / 2.0 ** n) for x, w in out for k in range(n + 1)]
+        return out
+
+
+def ab_lines(centre_ppm: float, delta_nu_Hz: float, j_Hz: float, n_H: float, *, mhz: float) -> list[tuple[float, float]]:
+    """(position in ppm, area) of the four lines of two strongly coupled protons (an AB system), exact:
+    D = sqrt(Δν² + J²), lines at ν₀ ± (D ± J)/2, the inner ones of relative intensity 1 + J/D and the outer
+    ones 1 - J/D (the roof effect; Friebolin, ch. 4, the AB system). ``n_H``: the area of the four lines."""
+    d = float(np.hypot(delta_nu_Hz, j_Hz))
+    centre = centre_ppm * mhz
+    inner, outer = n_H * (1 + j_Hz / d) / 4, n_H * (1 - j_Hz / d) / 4
+    return [((centre + sign * (d + j_Hz) / 2) / mhz, outer) for sign in (-1, 1)] + \
+           [((centre + sign * (d - j_Hz) / 2) / mhz, inner) for sign in (-1, 1)]
 
 
 def spectrum(signals: list[Signal], *, rng: np.random.Generator, mhz: float = 400.0, ppm_from: float = 10.5,
              ppm_to: float = -0.5, points: int = 8192, fwhm_Hz: float = 1.5,
-             noise_rel: float = 0.005) -> tuple[np.ndarray, np.ndarray]:
-    """(ppm from ``ppm_from`` down to ``ppm_to``, intensity) of ``signals``; area of a signal = its n_H."""
+             noise_rel: float = 0.005, lines: tuple[tuple[float, float], ...] = ()) -> tuple[np.ndarray, np.ndarray]:
+    """(ppm from ``ppm_from`` down to ``ppm_to``, intensity) of ``signals``; area of a signal = its n_H.
+    ``lines``: further lines as (ppm, area), e.g. :func:`ab_lines`."""
     ppm = np.linspace(ppm_from, ppm_to, points)
     hz = ppm * mhz
     gamma = fwhm_Hz / 2.0
     y = np.zeros(points)
-    for s in signals:
-        n = s.neighbours
-        for k in range(n + 1):
-            centre = s.shift_ppm * mhz + (k - n / 2.0) * s.j_Hz
-            weight = s.n_H * comb(n, k) / 2.0 ** n
-            y += weight * (gamma / np.pi) / ((hz - centre) ** 2 + gamma ** 2) * mhz  # per ppm: area = weight
+    every = [line for s in signals for line in s.lines_Hz(mhz)] + [(p * mhz, w) for p, w in lines]
+    for centre, weight in every:
+        y += weight * (gamma / np.pi) / ((hz - centre) ** 2 + gamma ** 2) * mhz  # per ppm: area = weight
     y = y + rng.normal(0.0, noise_rel * float(y.max()), points)
     return ppm, y
 

@@ -66,7 +66,10 @@ def digits_of(key: str, kind: str | None = None) -> int:
 
 
 def number(value: Any, digits: int = 4) -> str:
-    """Numbers with a sensible number of significant digits; other values as text."""
+    """Numbers with a sensible number of significant digits (a list of numbers joined by commas); other
+    values as text."""
+    if isinstance(value, (list, tuple)) and all(isinstance(v, (int, float)) for v in value):
+        return ", ".join(significant(v, digits) for v in value)
     return significant(value, digits)
 
 

@@ -13,7 +13,7 @@ from ..errors import InputError
 from ..ingest.conditions import CONDITION_EXAMPLES
 from ..kinds import KINDS, needed_by
 from ..models import SAMPLE_FORMS, Batch, Compound, SampleCreate
-from ..services import attachments, comments, import_profiles, measurements, planning_pages, profiled_uploads, registry, samples
+from ..services import accounts, attachments, comments, corrections, import_profiles, measurements, planning_pages, profiled_uploads, registry, samples
 from ..services.errors import Archived, Duplicate, Forbidden
 from .render import redirect, render
 
@@ -144,7 +144,31 @@ REVISE_FIELDS = (("area", "Electrode area", "area_cm2", "cm^2"), ("thickness", "
                  ("mass", "Mass", "mass_mg", "mg"), ("rate", "Rate", "rate_K_min", "K/min"))
 
 
-def _measurement_page(request: Request, session, m, actor, *, revise_error: Optional[str] = None, status_code=200):
+#: Empty rows the peak-list form offers for new signals (a row left empty is no signal).
+BLANK_SIGNAL_ROWS = 3
+
+
+def _peak_list(session, m, info: dict, actor, seen: bool, rows: Optional[list[dict]] = None) -> Optional[dict]:
+    """What the page shows of a kind's hand-edited results: the edit and its history, and the form's rows
+    (those posted back after an error, else the signals as they stand, then empty ones)."""
+    kind = KINDS.get(m.kind)
+    if kind is None or kind.correct is None or not seen:
+        return None
+    standing = corrections.effective_results(info["results"], info["correction"]).get("signals") or []
+    if rows is None:
+        rows = [{k: ("" if s.get(k) is None else ", ".join(f"{j:g}" for j in s[k]) if k == "j_Hz" else s[k])
+                 for k in ("from_ppm", "to_ppm", "shift_ppm", "n_H", "multiplicity", "j_Hz", "label", "assigned")}
+                for s in standing]
+        rows += [{"multiplicity": "m"} for _ in range(BLANK_SIGNAL_ROWS)]
+    edit = info["correction"] if (info["correction"] or {}).get("results") else None
+    return {"edit": edit, "by": accounts.shown_name(edit["by"], actor) if edit else "", "signals": standing,
+            "history": corrections.history(session, m, viewer=actor), "rows": rows,
+            "multiplicities": ("s", "d", "t", "q", "quint", "sext", "sept", "dd", "m"),
+            "not_sample": ("", "solvent residual", "water", "TMS", "impurity")}
+
+
+def _measurement_page(request: Request, session, m, actor, *, revise_error: Optional[str] = None, status_code=200,
+                      signals_error: Optional[str] = None, signal_rows: Optional[list[dict]] = None):
     info = measurements.measurement_as_seen(session, m, actor)
     kind = KINDS.get(m.kind)
     seen = measurements.may_download_raw(session, m, actor)
@@ -162,6 +186,7 @@ def _measurement_page(request: Request, session, m, actor, *, revise_error: Opti
                   {"m": info, "kind": kind, "figure": fig, "apparent_reason": apparent,
                    "apparent_keys": sorted(merit.apparent_keys(info, apparent)), "figure_error": fig_error, "revise_error": revise_error,
                    "revise_fields": REVISE_FIELDS, "examples": CONDITION_EXAMPLES,
+                   "peak_list": _peak_list(session, m, info, actor, seen, signal_rows), "signals_error": signals_error,
                    "thread": comments.thread_panel(session, comments.resolve(session, "measurement", str(m.id)), actor=actor),
                    "gallery": attachments.gallery_panel(session, comments.resolve(session, "measurement", str(m.id)),
                                                         actor=actor),
@@ -204,6 +229,53 @@ def revise(
         return _measurement_page(request, session, m, actor, revise_error=str(exc),
                                  status_code=409 if isinstance(exc, Duplicate) else 422)
     return redirect(f"/measurements/{new.id}", request)
+
+
+@router.post("/measurements/{measurement_id}/signals", response_class=HTMLResponse)
+def edit_signals(
+    measurement_id: RowId,
+    request: Request,
+    session: SessionDep,
+    actor: PageWriter,
+    reason: Annotated[str, Form()] = "",
+    from_ppm: Annotated[list[str], Form()] = [],  # noqa: B006 - FastAPI copies defaults
+    to_ppm: Annotated[list[str], Form()] = [],  # noqa: B006
+    shift_ppm: Annotated[list[str], Form()] = [],  # noqa: B006
+    n_H: Annotated[list[str], Form()] = [],  # noqa: B006, N803 - the result key
+    multiplicity: Annotated[list[str], Form()] = [],  # noqa: B006
+    j_Hz: Annotated[list[str], Form()] = [],  # noqa: B006, N803 - the result key
+    label: Annotated[list[str], Form()] = [],  # noqa: B006
+    assigned: Annotated[list[str], Form()] = [],  # noqa: B006
+):
+    """The peak-list form: one row per signal (a row with no region is left out), and why."""
+    m = measurements.get_measurement(session, measurement_id)
+    columns = {"from_ppm": from_ppm, "to_ppm": to_ppm, "shift_ppm": shift_ppm, "n_H": n_H,
+               "multiplicity": multiplicity, "j_Hz": j_Hz, "label": label, "assigned": assigned}
+    width = max((len(v) for v in columns.values()), default=0)
+    rows = [{k: (v[i] if i < len(v) else "") for k, v in columns.items()} for i in range(width)]
+    edit = [r for r in rows if (r["from_ppm"] or "").strip() or (r["to_ppm"] or "").strip()]
+    return _peak_list_post(request, session, m, actor, rows,
+                           lambda: corrections.correct(session=session, measurement=m, edit=edit, reason=reason,
+                                                       actor=actor.label))
+
+
+def _peak_list_post(request: Request, session, m, actor, rows: Optional[list[dict]], store):
+    """Run ``store`` (an edit or a revert): to the new measurement's peak list, or the page with the error."""
+    try:
+        new = store()
+    except (InputError, Duplicate) as exc:
+        session.rollback()
+        return _measurement_page(request, session, m, actor, signals_error=str(exc), signal_rows=rows,
+                                 status_code=409 if isinstance(exc, Duplicate) else 422)
+    return redirect(f"/measurements/{new.id}#peak-list", request)
+
+
+@router.post("/measurements/{measurement_id}/signals/revert", response_class=HTMLResponse)
+def revert_signals(measurement_id: RowId, request: Request, session: SessionDep, actor: PageWriter,
+                   reason: Annotated[str, Form()] = ""):
+    m = measurements.get_measurement(session, measurement_id)
+    return _peak_list_post(request, session, m, actor, None,
+                           lambda: corrections.revert(session=session, measurement=m, reason=reason, actor=actor.label))
 
 
 @router.post("/measurements/{measurement_id}/archive", response_class=HTMLResponse)

@@ -12,7 +12,7 @@ from ...budget import pool_for
 from ...deps import Offset, Reader, RowId, SessionDep, SettingsDep, Uploader, Writer
 from ...kinds import KINDS
 from ...models import RawFile
-from ...services import accounts, measurements, profiled_uploads, registry
+from ...services import accounts, corrections, measurements, profiled_uploads, registry
 from ...services.errors import Forbidden
 from .responses import ARCHIVED, AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND, QUOTA_ERRORS, ErrorOut, LimitOut
 
@@ -41,6 +41,7 @@ class MeasurementOut(BaseModel):
     archived: bool = False
     supersedes: Optional[int] = None
     superseded_by: Optional[int] = None
+    correction: Optional[dict[str, Any]] = None  # a person's edit of the analysis (results stay automatic)
     created_at: str
     created_by: str
     profile: Optional[str] = None
@@ -188,6 +189,38 @@ def revise(
     new = measurements.revise_measurement(session=session, measurement=m, form=form, actor=actor.label, raw=raw,
                                           filename=file.filename if file is not None else None,
                                           budget=pool_for(settings))
+    return JSONResponse(measurements.measurement_read(session, new), status_code=201)
+
+
+class SignalsEdit(BaseModel):
+    signals: list[dict[str, Any]]
+    reason: str
+
+
+class CorrectionRevert(BaseModel):
+    reason: str
+
+
+@router.post("/measurements/{measurement_id}/signals", status_code=201, response_model=MeasurementOut,
+             responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS,
+                        409: {"model": ErrorOut, "description": "corrected already (names the newest)"}})
+def edit_signals(measurement_id: RowId, body: SignalsEdit, session: SessionDep, actor: Writer):
+    """Store a person's integrated peak list of an NMR spectrum (each signal: `from_ppm`, `to_ppm`, and
+    optionally `shift_ppm`, `n_H`, `multiplicity`, `j_Hz`, `label`, `assigned`) with the `reason`: a new
+    measurement from the same file whose `correction` holds it; `results` stay the automatic analysis."""
+    m = measurements.get_measurement(session, measurement_id)
+    new = corrections.correct(session=session, measurement=m, edit=body.signals, reason=body.reason,
+                              actor=actor.label)
+    return JSONResponse(measurements.measurement_read(session, new), status_code=201)
+
+
+@router.post("/measurements/{measurement_id}/signals/revert", status_code=201, response_model=MeasurementOut,
+             responses={**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS,
+                        409: {"model": ErrorOut, "description": "corrected already (names the newest)"}})
+def revert_signals(measurement_id: RowId, body: CorrectionRevert, session: SessionDep, actor: Writer):
+    """Let the automatic peak list stand again (a correction with no edit, with the `reason`)."""
+    m = measurements.get_measurement(session, measurement_id)
+    new = corrections.revert(session=session, measurement=m, reason=body.reason, actor=actor.label)
     return JSONResponse(measurements.measurement_read(session, new), status_code=201)
 
 

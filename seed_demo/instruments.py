@@ -44,7 +44,7 @@ INSTRUMENTS = (
                "Frequency-response analyser on a cryostat, 0.1 Hz - 1 MHz"),
     Instrument("dsc-bench", ("dsc",), "Heat-flux DSC, nitrogen purge"),
     Instrument("nmr-vt-500", ("nmr_rates",), "Variable-temperature NMR; rates from line-shape fits"),
-    Instrument("xrd-micro", ("crystal",), "Single-crystal diffractometer, 150 K"),
+    Instrument("xrd-micro", ("crystal",), "Single-crystal diffractometer, 150 K cryostream (or room temperature)"),
     Instrument("hrms-esi", ("hrms",), "High-resolution ESI mass spectrometer, resolving power 60 000"),
     Instrument("chns-combustion", ("elemental",), "CHNS combustion analyser"),
     Instrument("nmr-400", ("nmr_spectrum",), "400 MHz NMR spectrometer, spectra exported as JCAMP-DX"),

@@ -234,9 +234,25 @@ def test_demo_loads_and_agrees_with_scenario(settings):
         _check_specimens(report, client, reader, plan)
         _check_phase_id(report, client, reader)
         _check_planning(report, client, reader)
+        _check_strongest_class(report, client, reader, plan)
     finally:
         client.close()
         app.state.engine.dispose()
+
+
+def _check_strongest_class(report, client, reader, plan: scenario.Scenario) -> None:
+    """The late compound (seed_demo/scenario.py, _LATE: a polar structure collected at 296 K, inside the DSC and
+    permittivity scans and below Tc, with PUND switching and no transition between) earns the strongest class
+    from the verdict rules (IEEE Std 180-1986: a spontaneous polarisation a field reverses; Scott 2008: PUND,
+    not a loop alone), computed by the server from its files, and it is loaded at every scale."""
+    late = [c for c in plan.compounds if c.crystal is not None and c.crystal.t_K > 250.0]
+    assert late, "the late compound is part of every scale"
+    for c in late:
+        v = client.get(f"/api/v1/compounds/{report.compounds[c.index]}", headers=reader).json()
+        assert v["verdict"] == "polar_switching_supported", v["verdict_evidence"]["computed"]["reason"]
+        criteria = {x["name"]: x["state"] for x in v["verdict_evidence"]["criteria"]}
+        assert criteria["switching shown by PUND"] == "met"
+        assert not [x for x in v["verdict_evidence"]["computed"]["conflicts"] if x["blocking"]]
 
 
 @pytest.mark.slow

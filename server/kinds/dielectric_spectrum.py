@@ -8,6 +8,8 @@ Arrhenius and, where curved, Vogel-Fulcher laws (:mod:`server.analysis.relaxatio
 
 from __future__ import annotations
 
+from typing import Any, Sequence
+
 from ..analysis import relaxation
 from ..errors import AnalysisError
 from ..plots.relaxation import spectrum_figure
@@ -32,6 +34,22 @@ def _analyse(parsed, c, ctx):
 
 def _figure(parsed, result):
     return spectrum_figure(list(result.spectra or ()), result)
+
+
+def _stats(ms: Sequence[Any]) -> dict[str, Any]:
+    """The latest spectrum (by measurement id) with an Arrhenius Ea: Ea and its standard error in kcal/mol,
+    the spectrum, and whether Ea is apparent (ln tau curved in 1/T, so the Arrhenius slope is a mean over
+    the range; :func:`server.analysis.relaxation.fit_temperature`). The compound page sets it beside the
+    solution Delta H++ of the NMR rates."""
+    with_ea = [m for m in ms if m.results.get("ea_kcal_mol") is not None]
+    if not with_ea:
+        return {"relax_ea_kcal_mol": None, "relax_ea_err_kcal_mol": None, "relax_ea_apparent": None,
+                "relax_ea_measurement_id": None}
+    m = with_ea[-1]
+    fit = m.results.get("arrhenius") or {}
+    return {"relax_ea_kcal_mol": m.results["ea_kcal_mol"], "relax_ea_err_kcal_mol": fit.get("ea_err_kcal_mol"),
+            "relax_ea_apparent": bool(fit.get("curved")) or "ea_kcal_mol" in (m.results.get("apparent") or ()),
+            "relax_ea_measurement_id": m.id}
 
 
 def _example() -> Example:
@@ -90,5 +108,6 @@ KIND = Kind(
     ),
     summary_keys=("ea_kJ_mol", "tau0_s"),
     figure=_figure,
+    stats=_stats,
     example=_example,
 )

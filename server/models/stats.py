@@ -60,6 +60,13 @@ class CompoundStats(SQLModel, table=True):
     dsc_t_K: Optional[float] = None
     dsc_ds_J_molK: Optional[float] = None
     dsc_n_states: Optional[float] = None
+    # the Arrhenius activation energy of dielectric relaxation (solid state; kinds/dielectric_spectrum.py) of the
+    # latest live spectrum that gives one, its standard error, whether it is apparent (ln tau curved in 1/T: a
+    # mean over the range) and that spectrum
+    relax_ea_kcal_mol: Optional[float] = None
+    relax_ea_err_kcal_mol: Optional[float] = None
+    relax_ea_apparent: Optional[bool] = None
+    relax_ea_measurement_id: Optional[int] = None
     yield_best_pct: Optional[float] = None
     purity_best_pct: Optional[float] = None
     polar_phase: Optional[bool] = None

@@ -14,7 +14,7 @@ from ..analysis.calibration import (INTERVAL_LIMIT_KCAL, MIN_PAIRS_PER_BRIDGE, C
                                     calibrate_pairs)
 from ..analysis.results import jsonable
 from ..errors import InputError
-from ..models import BarrierEstimate, Compound, Measurement, Scaffold
+from ..models import BarrierEstimate, Compound, CompoundStats, Measurement, Scaffold
 from ..plots import figure_json
 from ..plots.kinetics import calibration_figure
 from . import audit, stats, verdicts
@@ -185,23 +185,23 @@ def rates(row: BarrierEstimate, *, t_K: float, frequency_Hz: Optional[float]) ->
     return out
 
 
-def solid_against_solution(items: list[dict[str, Any]], barrier_rows: list[dict[str, Any]]) -> Optional[dict[str, Any]]:
-    """The latest live dielectric-relaxation Ea (solid) beside the latest measured ΔH‡ from an Eyring fit of
-    NMR rates (solution), with the difference Ea − ΔH‡ and its combined standard error. For one molecular
-    process Ea = ΔH‡ + RT (Eyring 1935; RT is 0.5 kcal/mol near 250 K, inside the usual errors): a larger
-    difference is a finding about the packing, not an error. None without both."""
-    solid = [m for m in items if m.get("kind") == "dielectric_spectrum" and not m.get("archived")
-             and (m.get("results") or {}).get("ea_kcal_mol") is not None]
+def solid_against_solution(stats: Optional[CompoundStats], barrier_rows: list[dict[str, Any]]) -> Optional[dict[str, Any]]:
+    """The compound's dielectric-relaxation Ea (solid; stored in ``stats`` by kinds/dielectric_spectrum.py from
+    the latest live spectrum that gives one) beside the latest measured ΔH‡ from an Eyring fit of NMR rates
+    (solution), with the difference Ea − ΔH‡ and its combined standard error. For one molecular process
+    Ea = ΔH‡ + RT (Eyring 1935; RT is 0.5 kcal/mol near 250 K, inside the usual errors): a larger difference
+    is a finding about the packing, not an error. ``apparent``: ln τ is curved in 1/T, so Ea is a mean over the
+    range. None without both."""
     solution = [b for b in barrier_rows if b.get("measured") and (b.get("results") or {}).get("dh_kcal_mol") is not None]
-    if not solid or not solution:
+    if stats is None or stats.relax_ea_kcal_mol is None or not solution:
         return None
-    m, b = solid[-1], solution[-1]
-    ea = m["results"]["ea_kcal_mol"]
-    ea_err = (m["results"].get("arrhenius") or {}).get("ea_err_kcal_mol")
+    b = solution[-1]
+    ea, ea_err = stats.relax_ea_kcal_mol, stats.relax_ea_err_kcal_mol
     dh, dh_err = b["results"]["dh_kcal_mol"], b["results"].get("dh_err_kcal_mol")
     err = (ea_err ** 2 + dh_err ** 2) ** 0.5 if ea_err is not None and dh_err is not None else None
-    return {"measurement": m["id"], "ea_kcal_mol": ea, "ea_err_kcal_mol": ea_err, "barrier": b["id"],
-            "dh_kcal_mol": dh, "dh_err_kcal_mol": dh_err, "difference_kcal_mol": ea - dh, "difference_err_kcal_mol": err}
+    return {"measurement": stats.relax_ea_measurement_id, "ea_kcal_mol": ea, "ea_err_kcal_mol": ea_err,
+            "apparent": bool(stats.relax_ea_apparent), "barrier": b["id"], "dh_kcal_mol": dh,
+            "dh_err_kcal_mol": dh_err, "difference_kcal_mol": ea - dh, "difference_err_kcal_mol": err}
 
 
 def _latest(rows: list[BarrierEstimate], methods: tuple[str, ...]) -> Optional[BarrierEstimate]:

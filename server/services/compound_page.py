@@ -11,7 +11,7 @@ from sqlmodel import Session
 from .. import access, merit
 from ..access import Actor
 from ..jobs import queue
-from ..models import Compound
+from ..models import Compound, CompoundStats
 from ..plots import figure_json, summary
 from . import barriers, estimates, measurements, phase_id, registry, samples, series, verdicts
 
@@ -117,7 +117,9 @@ def compound_page(session: Session, compound: Compound, *, actor: Optional[Actor
         "transitions": summary.transitions_table(items),
         "phase_map": phase_id.phase_map(session, compound, actor=actor),
         "barriers": barrier_list,
-        "solid_vs_solution": barriers.solid_against_solution(items, barrier_list),
+        # the measurement results behind it are withheld with the rest for a caller who may not see the compound
+        "solid_vs_solution": None if hide else barriers.solid_against_solution(
+            session.get(CompoundStats, compound.id), barrier_list),
         "t": "298.15 K", "f": "1 kHz", "t_K": DEFAULT_T_K, "f_Hz": DEFAULT_F_HZ, "rate_error": None,
         "estimates": own_estimates,
         "calibrated": barriers.calibrated_for(session, compound, own_estimates, actor=actor),

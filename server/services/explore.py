@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from collections import Counter, defaultdict
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any, Callable, Optional
 
 from sqlmodel import Session, select
@@ -15,6 +15,7 @@ from ..models import Batch, Measurement, live_measurement
 from ..plots import figure_json
 from ..plots.explorer import explorer_figure
 from ..verdict_codes import LABELS as VERDICT_LABELS, VERDICTS, strongest
+from .verdicts import qualifiers as verdict_qualifiers
 from .views import NO_BRIDGE, ChainSet, ViewQuery, ViewRow, query_view
 
 
@@ -182,6 +183,9 @@ class Cell:
     counts: dict[str, int]
     best: str
     link: str
+    # qualifier -> how many of the cell's compounds carry it (verdicts.qualifiers: "tested at one temperature
+    # only"), so a cell of one-temperature results does not read as the whole phase diagram
+    qualifiers: dict[str, int] = field(default_factory=dict)
 
     @property
     def total(self) -> int:
@@ -204,18 +208,21 @@ def outcome_map(session: Session, view: ViewQuery, *, actor: Optional[Actor], by
 
     A molecule with one kind of side chain counts in that chain's row; a molecule with several (three C2
     and three C12 alkoxy chains, say) counts in a row of its own ("C2 / C12 alkoxy, mixed"), never under
-    one of its chains. Each cell links to exactly the compounds it counts (the ``chains`` filter).
+    one of its chains. Each cell links to exactly the compounds it counts (the ``chains`` filter), and counts
+    the qualifiers of their verdicts (issue 15: "tested at one temperature only").
     """
     if by not in ("scaffold", "bridge"):
         raise InputError("columns are by scaffold or by bridge", field="by")
     rows = query_view(session, view, actor=actor, paged=False, structures_only=True).rows
     counts: dict[tuple, Counter] = defaultdict(Counter)
+    qualified: dict[tuple, Counter] = defaultdict(Counter)
     for r in rows:
         key = chain_set(r)
         if not key.types:
             continue
         column = (r.scaffold if by == "scaffold" else r.bridge) or NO_COLUMN[by]
         counts[(key, column)][r.verdict] += 1
+        qualified[(key, column)].update(verdict_qualifiers(r.compound))
     row_keys = sorted({k for k, _ in counts}, key=lambda k: k.types)
     columns = sorted({c for _, c in counts})
     cells = {}
@@ -226,5 +233,6 @@ def outcome_map(session: Session, view: ViewQuery, *, actor: Optional[Actor], by
         else:
             where = {"scaffold": column} if by == "scaffold" else {"bridge": column}
         params = {"chains": str(key), **where}
-        cells[(key, column)] = Cell(counts=dict(counter), best=best, link=view.link(**params, page=None))
+        cells[(key, column)] = Cell(counts=dict(counter), best=best, link=view.link(**params, page=None),
+                                    qualifiers=dict(sorted(qualified[(key, column)].items())))
     return OutcomeMap(rows=row_keys, columns=columns, cells=cells, by=by)

@@ -10,7 +10,7 @@ from ..analysis import verdict as rules
 from ..analysis.results import Flag, jsonable
 from ..errors import InputError
 from ..kinds import KINDS
-from ..verdict_codes import LABELS, RETIRED, effective
+from ..verdict_codes import LABELS, RETIRED, UNTESTED, effective
 from ..analysis.constants import CAL_J
 from ..models import BarrierEstimate, Batch, Compound, CompoundSideChain, Measurement, utcnow, live_measurement
 from .stats import MEASURED_METHODS
@@ -142,6 +142,15 @@ def recompute(session: Session, compound: Compound, *, actor: str = "system:verd
 def effective_code(compound: Compound) -> str:
     """The verdict that counts for ``compound``: its reviewed override, else the computed one."""
     return effective(compound.override_code, compound.verdict_code)
+
+
+def qualifiers(compound: Compound) -> tuple[str, ...]:
+    """The qualifiers of ``compound``'s computed verdict (:func:`server.analysis.verdict.verdict`, e.g. "tested at
+    one temperature only"), which limit what its class says; none while the verdict that counts is untested.
+    The outcome map counts them per cell beside the verdict classes."""
+    if effective_code(compound) == UNTESTED:
+        return ()
+    return tuple((compound.verdict or {}).get("qualifiers") or ())
 
 
 #: The same rule as :func:`effective_code`, as an SQL expression for filters, sorts and counts.

@@ -492,6 +492,9 @@ EXPORT_COLUMNS: tuple[tuple[str, Callable[[ViewRow], Any]], ...] = (
     ("barrier measured (kcal/mol)", lambda r: r.stats.barrier_measured_kcal_mol if r.stats else None),
     ("barrier computed (kcal/mol)", lambda r: r.stats.barrier_computed_kcal_mol if r.stats else None),
     ("bowl depth (A)", lambda r: r.stats.bowl_depth_A if r.stats else None),
+    ("relaxation Ea (kcal/mol)", lambda r: r.stats.relax_ea_kcal_mol if r.stats else None),
+    ("relaxation Ea error (kcal/mol)", lambda r: r.stats.relax_ea_err_kcal_mol if r.stats else None),
+    ("relaxation Ea apparent", lambda r: r.stats.relax_ea_apparent if r.stats else None),
     ("Pr largest (uC/cm^2)", lambda r: r.stats.pr_max_uC_cm2 if r.stats else None),
     ("Pr largest at T (K)", lambda r: r.stats.pr_max_t_K if r.stats else None),
     ("Pr largest at field amplitude (kV/cm)", lambda r: r.stats.pr_max_emax_kV_cm if r.stats else None),
@@ -512,6 +515,7 @@ EXPORT_DIGITS: dict[str, int] = {
     "bowl depth (A)": 3, "Pr largest (uC/cm^2)": 3, "Pr largest at T (K)": 4,
     "Pr largest at field amplitude (kV/cm)": 3, "Ec of that loop (kV/cm)": 3, "permittivity peak T (K)": 4,
     "Curie constant (K)": 3, "DSC transition T (K)": 4,
+    "relaxation Ea (kcal/mol)": 3, "relaxation Ea error (kcal/mol)": 2,
 }
 
 #: Columns holding a chemical formula: subscripts in XLSX rich text, plain in CSV (exports.table_bytes).

@@ -133,3 +133,46 @@ def test_permittivity_panels_leave_room_for_their_axis_titles(with_loss):
     # only the bottom panel carries the x title, so no x title sits between panels
     x_axes = ["xaxis"] + [f"xaxis{k}" for k in range(2, rows + 1)]
     assert [a for a in x_axes if lay[a].title.text] == [f"xaxis{rows}"]
+
+
+def test_a_small_transition_beside_a_large_melting_peak_gets_a_zoomed_panel():
+    # Issue 16: a solid-solid transition of 3 J/g (3 % of the 100 J/g melting peak, below the 10 % of
+    # plots.dsc.SMALL_PEAK_FRACTION, common practice) is drawn again in a panel zoomed on it. Peaks from
+    # server/synth/dsc.py (unit-area shapes, Hoehne, Hemminger and Flammersheim 2003, ch. 5).
+    from server.plots.dsc import SMALL_PEAK_FRACTION, small_peaks
+
+    frame = dsc_trace(
+        [{"t_K": 420.0, "dh_J_g": 100.0, "width_K": 1.5, "kind": "melting"},
+         {"t_K": 350.0, "dh_J_g": 3.0, "width_K": 4.0, "kind": "gaussian"}],
+        t_start_K=320.0, t_end_K=440.0, mass_mg=5.0, noise_mW=0.002, baseline_slope=0.002,
+        rng=np.random.default_rng(9),
+    )
+    canon = pd.DataFrame({"T_K": frame["T (K)"], "t_s": frame["t (s)"], "heat_flow_mW": frame["heat flow (mW)"]})
+    res = analyse_dsc(canon, mass_mg=5.0, endo="up")
+    assert len(res.peaks) == 2 and SMALL_PEAK_FRACTION == 0.10
+    fig = dsc_figure(res)
+    assert fig.layout.yaxis2.title.text == "heat flow (W/g), zoom" and fig.layout.xaxis2.title.text == "T (K)"
+    lo, hi = fig.layout.xaxis2.range
+    assert lo < 350.0 < hi and hi < 419.0  # the small peak inside, the melting peak outside
+    zoomed = [t for t in fig.data if t.yaxis == "y2"]
+    small = small_peaks(res.curves["peaks"])
+    assert [round(p["peak_K"]) for p in small] == [350]
+    fill = next(t for t in zoomed if t.fill == "toself")
+    assert "3" in fill.text.split(" J/g")[0]
+    ylo, yhi = fig.layout.yaxis2.range
+    peak = max(max(t.y) for t in fig.data if t.yaxis in (None, "y") and t.mode == "lines" and t.fill is None)
+    assert yhi - ylo < 0.3 * peak  # the zoom is at least three times the full scale
+    # peaks of comparable size (the 28.7 and 4.0 J/g of _dsc_result, 14 %) keep one panel
+    _, res2 = _dsc_result()
+    assert "yaxis2" not in dsc_figure(res2).to_plotly_json()["layout"]
+
+
+def test_the_zoomed_dsc_figure_redraws_as_vector():
+    from server.plots.vector import render
+
+    frame = dsc_trace([{"t_K": 420.0, "dh_J_g": 100.0, "width_K": 1.5}, {"t_K": 350.0, "dh_J_g": 3.0, "width_K": 4.0,
+                                                                           "kind": "gaussian"}],
+                      t_start_K=320.0, t_end_K=440.0, mass_mg=5.0, noise_mW=0.002, rng=np.random.default_rng(9))
+    canon = pd.DataFrame({"T_K": frame["T (K)"], "t_s": frame["t (s)"], "heat_flow_mW": frame["heat flow (mW)"]})
+    svg = render(dsc_figure(analyse_dsc(canon, mass_mg=5.0, endo="up")), "svg").decode()
+    assert svg.startswith("<?xml") and "zoom" in svg

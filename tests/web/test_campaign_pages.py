@@ -67,6 +67,28 @@ def test_outcome_map_counts_and_links(client, session, data):
     assert len(table.select("table.registry tbody tr")) == 1
 
 
+def test_outcome_map_cells_count_the_verdict_qualifiers(client, session, data):
+    # Issue 15: tables, the outcome map and the status page show the qualifiers. The C2 and C4 compounds have
+    # saturated loops at 300 K only, so each cell says "1 tested at one temperature only"; the untested C6 cell
+    # carries none. A second loop of C4 at 250 K (Pr below the 300 K one, as Landau's law has it below Tc)
+    # lifts the qualifier from its cell.
+    h, made = data
+    login_as(client, session)
+
+    def qualifiers(page):
+        return {r.th.text.strip(): [q.text for q in r.select(".qualifier")] for r in page.select("#outcome-map tbody tr")}
+
+    assert qualifiers(soup(client.get("/outcomes").text)) == {
+        "C2 alkoxy": ["1 tested at one temperature only"], "C4 alkoxy": ["1 tested at one temperature only"],
+        "C6 alkoxy": [], "C8 alkoxy": []}
+    loop = to_csv_bytes(miller_loop(10, 7, 60, 300), {"temperature": "250 K"})
+    r = client.post(f"/api/v1/batches/{made[4]}-B01/measurements", data={"kind": "pe_loop"},
+                    files={"file": ("l250.csv", loop)}, headers=h)
+    assert r.status_code == 201, r.text
+    after = qualifiers(soup(client.get("/outcomes").text))
+    assert after["C2 alkoxy"] == ["1 tested at one temperature only"] and after["C4 alkoxy"] == []
+
+
 def test_status_public_and_embargo(client, anon, session, data, app):
     h, made = data
     assert anon.get("/status", follow_redirects=False).status_code == 403  # private by default: "this page is private"

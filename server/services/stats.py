@@ -29,8 +29,9 @@ MEASURED_METHODS = ("coalescence", "eyring")  # barriers measured by dynamic NMR
 #: The rule the stored rows follow; change it whenever :func:`refresh` (or a kind's ``stats``) would
 #: fill a row differently from the same evidence, so stored rows are rebuilt once. History:
 #: ``stats/1`` took loops' numbers whatever their shape; ``stats/2`` leaves apparent loops out of
-#: every best value (``server/merit.py``: leaky and lossy loops, and loops PUND contradicts).
-RULE = "stats/2"
+#: every best value (``server/merit.py``: leaky and lossy loops, and loops PUND contradicts); ``stats/3``
+#: leaves out measurements of archived samples, batches and compounds (``models.live_measurement``).
+RULE = "stats/3"
 RULE_KEY = "stats_rule"
 
 

@@ -9,7 +9,7 @@ from sqlmodel import select
 from ..analysis import crystal
 from ..analysis.crystal_cell import cell_contents
 from ..plots.crystal import packing_figure
-from ..models import CrystalPhase
+from ..models import CrystalPhase, is_live
 from ..synth.cif import bowl_crystal
 from .base import EXAMPLE_SMILES, Evidence, Example, Kind, ResultKey
 
@@ -44,7 +44,7 @@ def _derive(session, *, compound, batch, measurement, actor):
     r = measurement.results
     row.space_group, row.space_group_number = r.get("space_group") or "", r.get("space_group_number")
     row.polar, row.centrosymmetric = r.get("polar"), r.get("centrosymmetric")
-    row.temperature_K, row.results, row.archived = r.get("temperature_K"), r, measurement.retired
+    row.temperature_K, row.results, row.archived = r.get("temperature_K"), r, not is_live(session, measurement)
     session.add(row)
 
 

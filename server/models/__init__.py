@@ -11,7 +11,7 @@ from .notifications import (CompoundFollow, Notification, NotificationPage, Noti
                             NotificationReadMark)
 from .measurements import (SAMPLE_FORMS, SERIES_VARIABLES, BarrierEstimate, CrystalPhase, ImportProfile, Measurement,
                            MeasurementSeries, RawFile, Sample, SampleCreate, SamplePreparation,
-                           live_measurement)
+                           is_live, live_measurement, live_parents, not_retired)
 from .registry import (
     BATCH_STATES,
     Batch,
@@ -42,7 +42,7 @@ __all__ = [
     "CompoundCreate", "CompoundPage", "CompoundRead", "CompoundUpdate", "CrystalPhase", "ScaffoldCreate",
     "ScaffoldRead", "SiteSetting", "SideChainRead", "SideChainSpec",
     "ImportProfile", "JOB_STATES", "Job", "LoginThrottle", "WebSession", "Measurement", "MeasurementSeries", "SAMPLE_FORMS", "SERIES_VARIABLES", "Sample", "SampleCreate", "SamplePreparation",
-    "live_measurement", "ROLES", "RawFile", "SCOPES", "Scaffold", "UTCDateTime", "User",
+    "is_live", "live_measurement", "live_parents", "not_retired", "ROLES", "RawFile", "SCOPES", "Scaffold", "UTCDateTime", "User",
     "metadata", "utcnow",
     "CompoundFollow", "Notification", "NotificationPage", "NotificationPreference", "NotificationRead",
     "NotificationReadMark",

@@ -10,6 +10,7 @@ import sqlalchemy as sa
 from pydantic import BaseModel, ConfigDict
 from sqlmodel import Field, SQLModel
 
+from .registry import Batch, Compound
 from .types import UTCDateTime, utcnow
 
 
@@ -136,13 +137,46 @@ class Measurement(SQLModel, table=True):
 
     @property
     def retired(self) -> bool:
-        """Archived or superseded: kept and readable, but out of lists, plots, stats and verdicts."""
+        """Archived or superseded itself: kept and readable, but out of lists, plots, stats and verdicts
+        (a measurement of an archived sample, batch or compound is out too: :func:`is_live`)."""
         return bool(self.archived or self.superseded_by_id is not None)
 
 
-def live_measurement() -> Any:
-    """SQL condition for measurements that count: neither archived nor superseded."""
+def not_retired() -> Any:
+    """SQL condition on the measurement row alone: neither archived nor superseded (the twin of
+    :attr:`Measurement.retired`; the partial unique index of live copies is over the same rows)."""
     return sa.and_(Measurement.archived == False, Measurement.superseded_by_id.is_(None))  # noqa: E712
+
+
+def live_measurement() -> Any:
+    """THE SQL condition for measurements that count: the measurement is neither archived nor
+    superseded, and its sample, its batch and its compound are not archived.
+
+    Archiving a batch (a mistaken or withdrawn batch) or a compound withdraws its evidence: every list,
+    count, tile, plot, verdict input, CompoundStats row and export that picks measurements asks this,
+    so such measurements stop counting everywhere at once and count again when restored. Nothing is
+    deleted. The subqueries are uncorrelated (``correlate(None)``), so the condition means the same
+    whatever the calling query joins. :func:`is_live` is its Python twin."""
+    return sa.and_(not_retired(), live_parents())
+
+
+def live_parents() -> Any:
+    """SQL condition: the measurement's sample, batch and compound are not archived (the part of
+    :func:`live_measurement` about where it was measured)."""
+    live_samples = sa.select(Sample.id).where(Sample.archived == False).correlate(None)  # noqa: E712
+    live_batches = (sa.select(Batch.id).join(Compound, Compound.id == Batch.compound_id)
+                    .where(Batch.archived == False, Compound.archived == False).correlate(None))  # noqa: E712
+    return sa.and_(Measurement.sample_id.in_(live_samples), Measurement.batch_id.in_(live_batches))
+
+
+def is_live(session: Any, m: Measurement) -> bool:
+    """Whether ``m`` counts, by the rule of :func:`live_measurement` (for rows that follow their
+    measurement: a barrier, a crystal phase; and for checks on one measurement)."""
+    if m.retired:
+        return False
+    sample, batch = session.get(Sample, m.sample_id), session.get(Batch, m.batch_id)
+    compound = session.get(Compound, batch.compound_id)
+    return not (sample.archived or batch.archived or compound.archived)
 
 
 #: The variables a series can sweep.

@@ -14,7 +14,7 @@ from ..analysis.calibration import (INTERVAL_LIMIT_KCAL, MIN_PAIRS_PER_BRIDGE, C
                                     calibrate_pairs)
 from ..analysis.results import jsonable
 from ..errors import InputError
-from ..models import BarrierEstimate, Compound, CompoundStats, Measurement, Scaffold
+from ..models import BarrierEstimate, Compound, CompoundStats, Measurement, Scaffold, is_live
 from ..plots import figure_json
 from ..plots.kinetics import calibration_figure
 from . import audit, stats, verdicts
@@ -125,7 +125,7 @@ def sync_rate_table_barrier(session: Session, *, compound: Compound, measurement
     _set_eyring(row, dict(measurement.results), measurement.analysis_version)
     c = measurement.conditions or {}
     row.spectrometer_MHz, row.nucleus, row.solvent = c.get("spectrometer_MHz"), c.get("nucleus") or "", c.get("solvent") or ""
-    row.archived = measurement.retired
+    row.archived = not is_live(session, measurement)
     session.add(row)
 
 

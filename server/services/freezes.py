@@ -30,7 +30,7 @@ from ..access import Actor
 from ..errors import InputError
 from ..kinds import KINDS
 from ..models import (Batch, Compound, Measurement, PaperFreeze, PaperFreezeCompound, RawFile, Sample,
-                      live_measurement)
+                      is_live, live_measurement)
 from . import audit, report_pack, verdicts, views
 from .errors import Duplicate, Forbidden, NotFound
 
@@ -212,7 +212,7 @@ def compare_compound(session: Session, row: PaperFreezeCompound) -> dict[str, An
     for fm in row.measurements:
         frozen_ids.add(fm["id"])
         m = session.get(Measurement, fm["id"])
-        state = "retired" if m.retired else "live"
+        state = "live" if is_live(session, m) else "retired"
         changes = result_changes(fm["kind"], fm["results"], m.results)
         version_moved = m.analysis_version != fm["analysis_version"]
         verdict_moved = m.verdict != fm["verdict"]

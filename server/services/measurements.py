@@ -24,13 +24,13 @@ from ..budget import AnalysisPool
 from ..errors import InputError, OverLimit
 from ..ingest.conditions import FORM_FIELDS, Conditions, form_value_as_given, parse_conditions, with_defaults
 from ..kinds import KINDS, Context, Kind
-from ..models import Batch, Compound, Measurement, RawFile, Sample, live_measurement, utcnow
+from ..models import Batch, Compound, Measurement, RawFile, Sample, live_measurement, live_parents, not_retired, utcnow
 from ..plots import figure_json
 from . import audit, import_profiles, notifications, samples, stats, verdicts
 from .errors import Archived, Duplicate, Forbidden, NotFound, TooLarge
 
 __all__ = ["FORM_FIELDS", "upload_measurement", "revise_measurement", "reanalyse", "reanalyse_one", "set_archived",
-           "refresh_derived"]
+           "refresh_derived", "refresh_batches"]
 
 #: The physical conditions of a measurement: the same bytes posted again with one of these
 #: different are a conflict (409), not the same measurement.
@@ -149,7 +149,7 @@ def same_conditions(stored: Mapping[str, Any], new: Conditions, *, given_only: b
 def _live_copy(session: Session, sample_id: int, sha: str, kind: str, block: int = 0) -> Optional[Measurement]:
     return session.exec(select(Measurement).where(Measurement.sample_id == sample_id, Measurement.sha256 == sha,
                                                   Measurement.kind == kind, Measurement.block == block,
-                                                  live_measurement())).first()
+                                                  not_retired())).first()  # the rows of the live-copy index
 
 
 def _same_or_conflict(existing: Measurement, conditions: Conditions) -> Measurement:
@@ -397,7 +397,8 @@ def list_measurements(
     query = select(Measurement).join(Batch, Batch.id == Measurement.batch_id).join(Compound, Compound.id == Batch.compound_id)
     count = select(func.count()).select_from(Measurement).join(Batch, Batch.id == Measurement.batch_id).join(
         Compound, Compound.id == Batch.compound_id)
-    conditions = [Measurement.archived == False]  # noqa: E712 - SQL expression
+    # live rows only (models.live_measurement), superseded ones too when asked for
+    conditions = [Measurement.archived == False, live_parents()]  # noqa: E712 - SQL expression
     if not include_superseded:
         conditions.append(Measurement.superseded_by_id.is_(None))
     if sample:
@@ -423,14 +424,16 @@ def newest(ms: Sequence[Measurement]) -> Optional[Measurement]:
     return max(ms, key=lambda m: (m.created_at, m.id)) if ms else None
 
 
-def refresh_derived(session: Session, changed: Sequence[Measurement], *, actor: str) -> None:
-    """The one path after measurements are stored, archived, restored or re-analysed.
+def refresh_derived(session: Session, changed: Sequence[Measurement], *, actor: str,
+                    compounds_too: Sequence[Compound] = ()) -> None:
+    """The one path after measurements are stored, archived, restored or re-analysed, or stop or
+    start counting because their batch or compound was archived or restored.
 
     Each kind's derived rows (``Kind.derive``: the barrier of a rate table, the crystal phase
-    of a structure) are brought in step with its measurement, then every compound touched
-    gets its verdict and its CompoundStats row recomputed. The caller commits.
+    of a structure) are brought in step with its measurement, then every compound touched (and
+    each of ``compounds_too``) gets its verdict and its CompoundStats row recomputed. The caller commits.
     """
-    compounds: dict[int, Compound] = {}
+    compounds: dict[int, Compound] = {c.id: c for c in compounds_too}
     for m in changed:
         batch = session.get(Batch, m.batch_id)
         compound = compounds.setdefault(batch.compound_id, session.get(Compound, batch.compound_id))
@@ -573,6 +576,15 @@ def may_download_raw(session: Session, m: Measurement, actor: Optional[Actor]) -
     (a crystal's CIF, an NMR table: the raw bytes carry the structure or what follows from it)."""
     batch = session.get(Batch, m.batch_id)
     return access.may_see_structure(actor, session.get(Compound, batch.compound_id))
+
+
+def refresh_batches(session: Session, compound: Compound, batch_ids: Sequence[int], *, actor: str) -> None:
+    """After batches of ``compound`` (or the compound itself) were archived or restored: their
+    measurements' derived rows, the verdict and the stats follow (:func:`refresh_derived`; the rule
+    is ``models.live_measurement``). The caller commits."""
+    ms = session.exec(select(Measurement).where(Measurement.batch_id.in_(list(batch_ids)))
+                      .order_by(Measurement.id)).all() if batch_ids else []
+    refresh_derived(session, ms, actor=actor, compounds_too=[compound])
 
 
 def set_archived(*, session: Session, measurement: Measurement, archived: bool, actor: str) -> Measurement:

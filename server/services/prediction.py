@@ -36,13 +36,14 @@ class Property:
     label: str
     unit: str
     column: str  # the CompoundStats field
+    symbol: str = ""  # what a table header calls it ("Pr", then the reference temperature and the unit)
 
 
 PROPERTIES: dict[str, Property] = {p.key: p for p in (
-    Property("tc", "Transition temperature (permittivity maximum)", "K", "t_peak_K"),
-    Property("barrier", "Inversion barrier, measured", "kcal/mol", "barrier_measured_kcal_mol"),
+    Property("tc", "Transition temperature (permittivity maximum)", "K", "t_peak_K", "Tc"),
+    Property("barrier", "Inversion barrier, measured", "kcal/mol", "barrier_measured_kcal_mol", "barrier"),
     # Pr at the reference temperature (analysis.prediction.pr_at_reference), not a maximum over temperatures.
-    Property("pr", "Pr at the reference temperature", "µC/cm²", ""),
+    Property("pr", "Pr at the reference temperature", "µC/cm²", "", "Pr"),
 )}
 
 
@@ -219,7 +220,7 @@ def ranking(session: Session, *, actor: Optional[Actor], goal: str = "tc",
             it["rank"] = i
     return {
         "goal": g.key, "goal_label": g.label, "rule": g.rule,
-        "property": g.property, "unit": prop.unit if prop else None,
+        "property": g.property, "unit": prop.unit if prop else None, "symbol": prop.symbol if prop else None,
         "reference_t_K": ref["t_K"] if g.property == "pr" else None,
         "enough_data": enough, "notes": notes,
         "model": None if reg is None else _model_summary(reg),

@@ -30,7 +30,7 @@ from ..models import (
 )
 from ..access import Actor, may_see_structure, structure_visible
 from ..settings import Settings
-from . import audit, codes, notifications, planning, search, stats, verdicts
+from . import audit, codes, measurements, notifications, planning, search, stats, verdicts
 from .errors import Duplicate, NotFound
 
 
@@ -260,7 +260,8 @@ def set_compound_archived(*, session: Session, compound: Compound, archived: boo
     audit.record(session, actor=actor, action="compound.archive" if archived else "compound.restore",
                  entity="compound", code=compound.code, compound_id=compound.id, before=before,
                  after=audit.snapshot(compound))
-    stats.refresh(session, compound)
+    # its measurements stop (or start again) counting: derived rows, verdict and stats follow
+    measurements.refresh_batches(session, compound, [b.id for b in batches_of(session, compound)], actor=actor)
     session.commit()
     session.refresh(compound)
     return compound
@@ -418,7 +419,8 @@ def set_batch_archived(*, session: Session, batch: Batch, archived: bool, actor:
     compound = session.get(Compound, batch.compound_id)
     audit.record(session, actor=actor, action="batch.archive" if archived else "batch.restore", entity="batch",
                  code=batch.code, compound_id=compound.id, before=before, after=audit.snapshot(batch))
-    stats.refresh(session, compound)
+    # the batch's measurements stop (or start again) counting: derived rows, verdict and stats follow
+    measurements.refresh_batches(session, compound, [batch.id], actor=actor)
     session.commit()
     session.refresh(batch)
     return batch

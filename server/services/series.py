@@ -19,7 +19,7 @@ from sqlmodel import Session, select
 from .. import merit
 from ..analysis import series as fits
 from ..errors import InputError
-from ..models import SERIES_VARIABLES, Batch, Compound, Measurement, MeasurementSeries, Sample
+from ..models import SERIES_VARIABLES, Batch, Compound, Measurement, MeasurementSeries, Sample, is_live
 from ..ingest.conditions import SWEEP_DIRECTIONS
 from . import audit
 from .samples import FIELD_KEYS, live_measurements, samples_of_compound
@@ -201,7 +201,7 @@ def state_series(*, session: Session, sample: Sample, variable: str, measurement
         m = found.get(i)
         if m is None or m.sample_id != sample.id:
             raise InputError(f"measurement {i} is not a measurement of sample {sample.code}", field="measurements")
-        if m.retired:
+        if not is_live(session, m):
             raise InputError(f"measurement {i} is archived or superseded; state series of live measurements",
                              field="measurements")
     kinds = {found[i].kind for i in ids}

@@ -30,8 +30,9 @@ MEASURED_METHODS = ("coalescence", "eyring")  # barriers measured by dynamic NMR
 #: fill a row differently from the same evidence, so stored rows are rebuilt once. History:
 #: ``stats/1`` took loops' numbers whatever their shape; ``stats/2`` leaves apparent loops out of
 #: every best value (``server/merit.py``: leaky and lossy loops, and loops PUND contradicts); ``stats/3`` adds
-#: the dielectric-relaxation Ea (``relax_ea_*``, kinds/dielectric_spectrum.py; migration 0027).
-RULE = "stats/3"
+#: the dielectric-relaxation Ea (``relax_ea_*``, kinds/dielectric_spectrum.py; migration 0027); ``stats/4``
+#: leaves out measurements of archived samples, batches and compounds (``models.live_measurement``).
+RULE = "stats/4"
 RULE_KEY = "stats_rule"
 
 

@@ -278,6 +278,9 @@ SORTS: dict[str, tuple[str, str, Any]] = {
 # may not see embargoed structures, embargoed rows sort as if the value were missing
 # (``access.structure_value``).
 STRUCTURAL_SORTS = frozenset({"label", "mw", "scaffold", "carbons", "barrier_computed"})
+# Columns whose values each come with a temperature of their own (the largest Pr with its loop's T, printed in
+# the cell): the header says "at T (K)" too (templates/partials/column_head.html).
+OWN_T_SORTS = frozenset({"pr"})
 
 
 @dataclass(frozen=True)

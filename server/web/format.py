@@ -133,6 +133,7 @@ def formula(value: Optional[str]) -> Markup:
 
 def install(env) -> None:  # noqa: ANN001 - a jinja2 Environment
     from ..services.accounts import shown_name, shown_text
+    from ..services.views import OWN_T_SORTS
 
     env.filters["formula"] = formula
     env.filters["number"] = number
@@ -142,6 +143,7 @@ def install(env) -> None:  # noqa: ANN001 - a jinja2 Environment
     env.filters["scalar_items"] = scalar_items
     env.filters["short_code"] = short_code
     env.globals["shared_code_prefix"] = shared_code_prefix
+    env.globals["own_t_sorts"] = OWN_T_SORTS  # registry columns whose header says "at T (K)"
     env.globals["split_key"] = split_key
     env.globals["digits_of"] = digits_of
     env.globals["with_uncertainty"] = with_uncertainty

@@ -7,6 +7,7 @@ import pytest
 from playwright.sync_api import Page, expect
 
 from server.ingest.table import to_csv_bytes
+from server.precision import trade_unit
 from server.synth.ferro import miller_loop
 
 pytestmark = pytest.mark.browser
@@ -37,6 +38,12 @@ def test_registry_fits_and_nothing_wraps(page: Page, live, login, registry, widt
     expect(page.locator("table.registry tbody tr").first).to_be_visible()
     assert page.evaluate("() => document.documentElement.scrollWidth - document.documentElement.clientWidth") <= 0
     assert page.evaluate(BROKEN) == []
+    # headers carry units and temperatures; at desk width the whole table fits its card (no inner scroll)
+    expect(page.locator("table.registry thead a#sort-pr")).to_have_accessible_name(
+        f"Pr, largest ({trade_unit('µC/cm²')}) at T (K)")
+    if width >= 1440:
+        assert page.evaluate("() => { const s = document.querySelector('table.registry')"
+                             ".closest('.scroll'); return s.scrollWidth - s.clientWidth; }") <= 0
     caption = page.locator("table.registry caption")
     expect(caption).to_contain_text(registry[0].split("-")[0] + "-")
     link = page.get_by_role("link", name=registry[0], exact=True)

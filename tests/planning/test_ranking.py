@@ -8,7 +8,8 @@ from sqlmodel import select
 
 from server.chem.scaffold import PARENT_BOWLS
 from server.models import Compound, CompoundStats
-from tests.factories import bearer, make_token
+from server.precision import trade_unit
+from tests.factories import bearer, login_as, make_token, soup
 
 BOWL_TC_K = {"CH2": 440.0, "S": 385.0}  # the demo's T_bowl (seed_demo/scenario.py), Tc = T_bowl - 9 K x n
 
@@ -120,7 +121,7 @@ def _loop(client, headers, code, t_K, pr_uC_cm2):
     return r.json()
 
 
-def test_pr_goal_is_at_the_reference_temperature_and_names_what_it_leaves_out(client, world):
+def test_pr_goal_is_at_the_reference_temperature_and_names_what_it_leaves_out(client, session, world):
     w = world["w"]
     switching = sorted(code for code, (_, s) in world["measured"].items() if s)
     # Six compounds measured at 300 K or either side of it; two only at 250 K (no Pr at 300 K there).
@@ -145,3 +146,7 @@ def test_pr_goal_is_at_the_reference_temperature_and_names_what_it_leaves_out(cl
     assert cold["model"]["n"] == 2
     bad = client.get("/api/v1/planning/ranking", params={"goal": "pr", "t_ref_K": 0}, headers=w)
     assert bad.status_code == 422 and bad.json()["field"] == "t_ref_K"
+    # the page's ranking table says in its header at which temperature the predicted Pr is, and its unit
+    login_as(client, session)
+    heads = [th.get_text(" ", strip=True) for th in soup(client.get("/planning?goal=pr").text).select("table.ranking th")]
+    assert f"Predicted Pr at 300 K ({trade_unit('µC/cm²')})" in heads

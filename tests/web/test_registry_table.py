@@ -33,6 +33,10 @@ def test_registry_rows_show_the_short_code_and_keep_the_full_one(client, session
     assert sorted(r["data-code"] for r in table.select("tbody tr")) == sorted(codes)
     heads = [th.get_text(" ", strip=True) for th in table.select("thead th")]
     # Units as the trade prints them (server/precision.py: µC cm⁻², kcal mol⁻¹)
-    assert any(h.startswith("Pr") and f"({trade_unit('µC/cm²')})" in h for h in heads)
+    # the largest Pr is a maximum over temperature: its header says each value comes with its own T
+    assert f"Pr, largest ({trade_unit('µC/cm²')}) at T (K)" in heads
+    pr_link = table.select_one("thead a#sort-pr")
+    assert pr_link.get_text(" ", strip=True) == f"Pr, largest ({trade_unit('µC/cm²')}) at T (K)"
+    assert "sort=pr" in pr_link["href"]
     assert any(h.startswith("ε′ peak T") and "(K)" in h for h in heads)
     assert any(h.startswith("Barrier") and f"({trade_unit('kcal/mol')})" in h for h in heads)

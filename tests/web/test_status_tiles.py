@@ -8,7 +8,7 @@ from sqlmodel import select
 
 from server.ingest.table import to_csv_bytes
 from server.kinds import KINDS
-from server.models import Batch, Compound, CompoundPlan, Measurement
+from server.models import Batch, Compound, CompoundPlan, Measurement, Sample
 from server.models.planning import MADE_BATCH_STATES
 from server.synth.ferro import miller_loop
 from server.verdict_codes import CODES, CONFLICTING, HITS, SHORT, UNTESTED
@@ -69,8 +69,8 @@ def _scenario(client, session) -> dict[str, str]:
     b = batch("dsc_only")
     dsc = KINDS["dsc"].example()
     _upload(client, h, b, "dsc", dsc.raw, dsc.filename)
-    # its only made batch archived: not made; its loop stays a live measurement (archiving a batch does
-    # not archive its measurements, and the verdict still reads them), so it is measured
+    # its only made batch archived: not made; its loop is kept but no longer counts (a measurement is live
+    # only with its sample, batch and compound: models.live_measurement), so it is neither measured nor switching
     b = batch("batch_archived")
     _upload(client, h, b, "pe_loop", _loop(5.0, 300), "loop.csv")
     batch("batch_archived", "failed")
@@ -83,16 +83,20 @@ def _reference(session) -> dict[str, int | str]:
     conn = session.connection()
     compounds = pd.read_sql(select(Compound.id, Compound.archived, Compound.verdict_code, Compound.override_code), conn)
     batches = pd.read_sql(select(Batch.id, Batch.compound_id, Batch.state, Batch.archived), conn)
-    ms = pd.read_sql(select(Measurement.batch_id, Measurement.archived, Measurement.superseded_by_id), conn)
+    ms = pd.read_sql(select(Measurement.batch_id, Measurement.sample_id, Measurement.archived,
+                            Measurement.superseded_by_id), conn)
+    samples = pd.read_sql(select(Sample.id, Sample.archived), conn)
     plans = pd.read_sql(select(CompoundPlan.compound_id, CompoundPlan.state), conn)
     live = compounds[~compounds["archived"].astype(bool)].copy()
     live_batches = batches[~batches["archived"].astype(bool)]
     made_ids = set(live_batches.loc[live_batches["state"].isin(MADE_BATCH_STATES), "compound_id"])
     abandoned = set(plans.loc[plans["state"] == "abandoned", "compound_id"])
     planned_ids = set(plans.loc[plans["state"].isin(["planned", "in_synthesis"]), "compound_id"]) - made_ids
+    # a measurement counts when it, its sample, its batch and its compound are live
     live_ms = ms[~ms["archived"].astype(bool) & ms["superseded_by_id"].isna()]
-    # a live measurement counts even on an archived batch, as in the verdict (models.live_measurement)
-    measured_ids = set(live_ms.merge(batches, left_on="batch_id", right_on="id")["compound_id"])
+    live_ms = live_ms[live_ms["sample_id"].isin(samples.loc[~samples["archived"].astype(bool), "id"])]
+    live_ms = live_ms.merge(live_batches, left_on="batch_id", right_on="id")
+    measured_ids = set(live_ms["compound_id"]) & set(live["id"])
     live["effective"] = live["override_code"].fillna(live["verdict_code"])
     classes = live.loc[~live["effective"].isin([UNTESTED, CONFLICTING]), "effective"]
     strongest = min(classes, key=CODES.index) if len(classes) else None
@@ -121,9 +125,9 @@ def test_status_tiles_count_distinct_live_compounds_like_a_pandas_reference(clie
     assert got["registered"] == len(SMILES) - 1  # the archived compound is not counted
     assert got["planned"] == 1
     assert got["made"] == 3  # switches, switches_too, dsc_only; the archived compound and batches do not count
-    # one compound with four loops on two batches counts once: switches, switches_too, dsc_only, batch_archived
-    assert got["measured"] == 4
-    assert got["switching"] == 3  # switches, switches_too and batch_archived (its loop still counts)
+    # one compound with four loops on two batches counts once: switches, switches_too, dsc_only
+    assert got["measured"] == 3
+    assert got["switching"] == 2  # switches and switches_too: batch_archived's loop no longer counts
     assert ref["strongest_name"] != "strongest class: none yet"
     # every tile says what it counts
     assert all(t.get("title") for t in page.select(".tile"))

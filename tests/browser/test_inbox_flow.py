@@ -42,7 +42,7 @@ def test_follow_then_notified_then_mark_all_read(page: Page, live, login):
         page.goto("/inbox")
         expect(page.locator('#inbox-list li[data-event="measurement"]')).to_have_count(1)
         expect(page.locator('#inbox-list li[data-event="mention"]')).to_have_count(1)
-        shown = page.locator("#inbox-list li").count()  # and a verdict change, if the loop changed the verdict
+        shown = page.locator("#inbox-list > li").count()  # and a verdict change, if the loop changed the verdict
         assert page.locator("#unread-count").inner_text().split()[0] == str(shown)
         assert _sideways(page) == 0, f"/inbox scrolls sideways at {width} px"
         assert not _axe(page), _axe(page)

@@ -261,6 +261,22 @@ def cmd_rematch_scaffolds(args: argparse.Namespace) -> int:
     return 0
 
 
+def cmd_prune_notifications(args: argparse.Namespace) -> int:
+    from .db import make_engine
+    from .services.notifications import prune
+
+    settings = _settings()
+    with Session(make_engine(settings.database_url)) as session:
+        done = prune(session, keep_read_days=settings.notification_keep_read_days,
+                     keep_unread_days=settings.notification_keep_unread_days, dry_run=args.dry_run, actor="cli")
+    verb = "would be removed" if args.dry_run else "removed"
+    unread_rule = (f"unread older than {settings.notification_keep_unread_days:g} days"
+                   if settings.notification_keep_unread_days > 0 else "unread kept until read")
+    print(f"{done['read']} read and {done['unread']} unread notification(s) {verb} "
+          f"(read older than {settings.notification_keep_read_days:g} days; {unread_rule})")
+    return 0
+
+
 def cmd_worker(args: argparse.Namespace) -> int:
     from .db import upgrade
     from .jobs.worker import run_worker
@@ -438,6 +454,11 @@ def build_parser() -> argparse.ArgumentParser:
                        "scaffold they are built on")
     p.add_argument("--dry-run", action="store_true", help="list the changes, write nothing")
     p.set_defaults(func=cmd_rematch_scaffolds)
+
+    p = sub.add_parser("prune-notifications", help="remove read notifications past their keeping time (and unread "
+                       "ones past the larger cap)")
+    p.add_argument("--dry-run", action="store_true", help="count them, remove nothing")
+    p.set_defaults(func=cmd_prune_notifications)
 
     sub.add_parser("rebuild-stats", help="recompute every compound's stored figures (largest Pr, counts, "
                    "barriers) from its live evidence").set_defaults(func=cmd_rebuild_stats)

@@ -68,6 +68,11 @@ def _session_seconds(request: Request) -> int:
     return int(request.app.state.settings.session_hours * 3600)
 
 
+#: Requests a page makes by itself on a timer (the menu badge's poll): they do not slide the session's
+#: expiry, so a tab left open does not keep its login alive for ever.
+UNATTENDED_PATHS = frozenset({"/inbox/badge"})
+
+
 def current(request: Request) -> Optional[sessions.LiveSession]:
     """The request's live login session (looked up once per request), or None."""
     if _CURRENT in request.scope:
@@ -77,7 +82,8 @@ def current(request: Request) -> Optional[sessions.LiveSession]:
     if raw:
         try:
             with Session(request.app.state.engine) as db:
-                live = sessions.find_live(db, raw, hours=request.app.state.settings.session_hours)
+                live = sessions.find_live(db, raw, hours=request.app.state.settings.session_hours,
+                                          slide=request.url.path not in UNATTENDED_PATHS)
         except OperationalError:
             # The database is busy or down: not logged in for this answer (the 503 page still renders),
             # and the cookie is kept for when it is back.

@@ -115,6 +115,12 @@ SETTINGS: tuple[Setting, ...] = (
     Setting("smtp_password", "REMANENCE_SMTP_PASSWORD", "SMTP password (with REMANENCE_SMTP_USER)."),
     Setting("smtp_starttls", "REMANENCE_SMTP_STARTTLS", "Upgrade the SMTP connection with STARTTLS before login.",
             _bool),
+    Setting("notification_keep_read_days", "REMANENCE_NOTIFICATION_KEEP_READ_DAYS",
+            "Days a read notification is kept after its latest event; then the hourly prune (in the worker) or "
+            "`remanence prune-notifications` removes it.", float),
+    Setting("notification_keep_unread_days", "REMANENCE_NOTIFICATION_KEEP_UNREAD_DAYS",
+            "Days an unread notification is kept after its latest event (the larger cap); 0 keeps unread ones "
+            "until they are read.", float),
     Setting("public_url", "REMANENCE_PUBLIC_URL",
             "The address people open the registry at (https://registry.example.org), for links in e-mail; "
             "empty: e-mail gives paths only."),
@@ -160,6 +166,10 @@ class Settings:
     smtp_password: str = ""
     smtp_starttls: bool = False
     public_url: str = ""
+    # A read notification is history the account has seen; a quarter covers a semester's
+    # look back. Unread ones stay for the two years of a campaign. Common practice, not a rule.
+    notification_keep_read_days: float = 90.0
+    notification_keep_unread_days: float = 730.0
 
     @classmethod
     def from_env(cls, environ: Mapping[str, str] | None = None, **overrides: Any) -> "Settings":

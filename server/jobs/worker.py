@@ -19,7 +19,9 @@ with ``"<Type>: message"`` first and the traceback below it.
 While a handler runs, a keep-alive thread refreshes the heartbeat every ``stale_timeout_s / 4``
 seconds even if the handler reports nothing (an RDKit embedding, say), so only a dead worker
 goes stale. Every worker also runs :func:`server.jobs.queue.requeue_stale` now and then, so the
-job of a killed worker is picked up again by whichever worker is alive.
+job of a killed worker is picked up again by whichever worker is alive. And every worker does the
+housekeeping (:func:`housekeeping_for`: the notification prune) when it starts and hourly after;
+a prune is one DELETE per rule, so several workers doing it is harmless.
 
 Two ways to run: :func:`start_embedded` (one thread inside ``remanence serve``, the default)
 and :func:`run_worker` (the ``remanence worker`` command; SIGTERM/SIGINT stop it cleanly).
@@ -53,6 +55,8 @@ log = logging.getLogger("remanence.jobs")
 
 #: Least time between two heartbeat writes of one job, seconds.
 HEARTBEAT_MIN_S = 0.5
+#: Time between two housekeeping runs of one worker, seconds.
+HOUSEKEEPING_S = 3600.0
 
 ProgressFn = Callable[[float, str], None]
 CancelFn = Callable[[], bool]
@@ -168,6 +172,8 @@ class Worker:
         stale_timeout_s: float = 120.0,
         max_attempts: int = queue.MAX_ATTEMPTS,
         heartbeat_min_s: float = HEARTBEAT_MIN_S,
+        housekeeping: Optional[Callable[[Engine], Any]] = None,
+        housekeeping_every_s: float = HOUSEKEEPING_S,
     ) -> None:
         if not name:
             raise ValueError("a worker needs a name")
@@ -187,6 +193,9 @@ class Worker:
         self.stale_check_s = max(self.poll_s, self.stale_timeout_s / 4)
         self.stop_event = threading.Event()
         self._next_stale_check = 0.0
+        self.housekeeping = housekeeping
+        self.housekeeping_every_s = float(housekeeping_every_s)
+        self._next_housekeeping = 0.0
         self.jobs_run = 0
 
     def check_stale(self) -> dict[str, list[int]]:
@@ -202,6 +211,9 @@ class Worker:
         """Claim and run one job; ``False`` when the queue has nothing this worker can run."""
         if time.monotonic() >= self._next_stale_check:
             self.check_stale()
+        if self.housekeeping is not None and time.monotonic() >= self._next_housekeeping:
+            self._next_housekeeping = time.monotonic() + self.housekeeping_every_s
+            self.housekeeping(self.engine)
         job = queue.claim(self.engine, worker=self.name, kinds=self.handlers)
         if job is None:
             return False
@@ -288,6 +300,18 @@ class Worker:
 # --------------------------------------------------------------------------- entry points
 
 
+def housekeeping_for(settings: Any) -> Callable[[Engine], Any]:
+    """What every worker does hourly besides jobs: prune old notifications (``services/notifications.prune``)."""
+    from ..services import notifications
+
+    def _prune(engine: Engine) -> None:
+        done = notifications.prune_with(engine, settings)
+        if done["read"] or done["unread"]:
+            log.info("notifications pruned: %(read)s read, %(unread)s unread", done)
+
+    return _prune
+
+
 def _default_handlers() -> Mapping[str, Handler]:
     from .handlers import HANDLERS
 
@@ -315,7 +339,8 @@ def start_embedded(app_or_engine: Any, settings: Any, *, handlers: Optional[Mapp
         engine = app_or_engine
     else:
         engine = app_or_engine.state.engine
-    worker = Worker(engine, name=name or f"{default_name()}:embedded", handlers=handlers or _default_handlers())
+    worker = Worker(engine, name=name or f"{default_name()}:embedded", handlers=handlers or _default_handlers(),
+                    housekeeping=housekeeping_for(settings))
     stop = threading.Event()
 
     def _target() -> None:
@@ -360,7 +385,7 @@ def run_worker(settings: Any, *, name: Optional[str] = None, once: bool = False,
 
     mail.attach(engine, settings)  # a job's end e-mails its owner when SMTP is configured
     worker = Worker(engine, name=name or default_name(), handlers=handlers or _default_handlers(),
-                    poll_s=poll_s, stale_timeout_s=stale_timeout_s)
+                    poll_s=poll_s, stale_timeout_s=stale_timeout_s, housekeeping=housekeeping_for(settings))
     stop = threading.Event()
     worker.stop_event = stop
     previous: dict[int, Any] = {}

@@ -7,8 +7,8 @@ from .audit import AuditEvent
 from .collab import (COMMENT_TARGETS, IMAGE_TYPES, Attachment, AttachmentPage, AttachmentRead, Comment, CommentIn, CommentPage, CommentRead, FreezeCreate, FreezePublication,
                      PaperFreeze, PaperFreezeCompound)
 from .jobs import JOB_STATES, Job
-from .notifications import (CompoundFollow, Notification, NotificationPage, NotificationPreference, NotificationRead,
-                            NotificationReadMark)
+from .notifications import (CompoundFollow, Notification, NotificationGroup, NotificationPage, NotificationPart,
+                            NotificationPreference, NotificationRead, NotificationReadMark)
 from .measurements import (SAMPLE_FORMS, SERIES_VARIABLES, BarrierEstimate, CrystalPhase, ImportProfile, Measurement,
                            MeasurementSeries, RawFile, Sample, SampleCreate, SamplePreparation,
                            is_live, live_measurement, live_parents, not_retired)
@@ -44,7 +44,7 @@ __all__ = [
     "ImportProfile", "JOB_STATES", "Job", "LoginThrottle", "WebSession", "Measurement", "MeasurementSeries", "SAMPLE_FORMS", "SERIES_VARIABLES", "Sample", "SampleCreate", "SamplePreparation",
     "is_live", "live_measurement", "live_parents", "not_retired", "ROLES", "RawFile", "SCOPES", "Scaffold", "UTCDateTime", "User",
     "metadata", "utcnow",
-    "CompoundFollow", "Notification", "NotificationPage", "NotificationPreference", "NotificationRead",
+    "CompoundFollow", "Notification", "NotificationGroup", "NotificationPage", "NotificationPart", "NotificationPreference", "NotificationRead",
     "NotificationReadMark",
     "LIFE_STATES", "PLAN_STATES", "PRIORITIES", "BatchPrecursor", "CompoundPlan", "RankingRead", "Reagent", "ReagentCreate", "ReagentRead", "ReagentUpdate", "RouteCopy", "RouteIn", "RouteRead", "SynthesisStep",
 ]

@@ -12,12 +12,19 @@ from .types import UTCDateTime, utcnow
 
 
 class Notification(SQLModel, table=True):
-    """One line in one account's inbox. ``compound_id`` is the embargo's unit: the inbox shows a
-    notification only while its reader may see that compound (``server/access.py``)."""
+    """One entry in one account's inbox. ``compound_id`` is the embargo's unit: the inbox shows a
+    notification only while its reader may see that compound (``server/access.py``).
 
-    # The inbox lists an account's newest first; the badge counts its unread ones.
+    An entry may stand for a burst of like events (``services/notifications.py``, grouped when they are
+    written): ``count`` things (measurements, verdict changes...) from the events listed in ``parts``,
+    the first at ``created_at`` and the latest at ``last_at``. A single event has ``count`` 1 (or the
+    measurements of its upload) and no ``parts``."""
+
+    # The inbox lists an account's entries by their latest event; the badge counts its unread ones;
+    # the prune removes old ones by their latest event.
     __table_args__ = (sa.Index("ix_notification_user_read", "user_id", "read_at"),
-                      sa.Index("ix_notification_user_created", "user_id", "created_at"))
+                      sa.Index("ix_notification_user_last", "user_id", "last_at"),
+                      sa.Index("ix_notification_last", "last_at"))
 
     id: Optional[int] = Field(default=None, primary_key=True)
     user_id: int = Field(foreign_key="user.id")
@@ -28,6 +35,10 @@ class Notification(SQLModel, table=True):
     actor: str = Field(default="", max_length=160)  # who caused it (an actor label), "" for the system
     created_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
     read_at: Optional[datetime] = Field(default=None, sa_type=UTCDateTime)
+    count: int = Field(default=1)
+    last_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
+    # the events of a group, oldest first: {"text", "url", "created_at" (ISO), "count", "actor"}
+    parts: list[dict] = Field(default_factory=list, sa_type=sa.JSON)
 
 
 class CompoundFollow(SQLModel, table=True):
@@ -49,14 +60,31 @@ class NotificationPreference(SQLModel, table=True):
     updated_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
 
 
+class NotificationPart(SQLModel):
+    text: str
+    url: str
+    created_at: datetime
+    count: int = Field(description="things this one event brought (the measurements of one upload)")
+
+
+class NotificationGroup(SQLModel):
+    first_at: datetime
+    last_at: datetime
+    events: int = Field(description="how many events the entry groups")
+    items: list[NotificationPart] = Field(description="the grouped events, oldest first")
+
+
 class NotificationRead(SQLModel):
     id: int
     event: str
     compound: Optional[str] = Field(description="the compound's code, when the event is about one")
     text: str
     url: str
-    created_at: datetime
+    created_at: datetime = Field(description="when the (first) event happened")
     read: bool
+    count: int = Field(1, description="things the entry stands for (measurements stored, verdict changes...)")
+    group: Optional[NotificationGroup] = Field(None, description="set when the entry groups a burst of like "
+                                                                 "events; null for a single event")
 
 
 class NotificationPage(SQLModel):

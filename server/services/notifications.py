@@ -11,7 +11,13 @@ Each event is written where it happens, in that transaction (the caller commits)
 | mention       | ``comments.post_comment`` / ``edit_comment``    | exactly the accounts newly mentioned      |
 | assigned      | ``planning.assigned`` (registering, PATCH)      | the new assignee                          |
 
-Never to the actor of the event itself. The embargo (``server/access.py``, the one authority): a
+Never to the actor of the event itself. A burst of like events is one entry (grouped when written,
+see :func:`notify`): the events of :data:`GROUPED` about one compound that reach one account within
+:data:`GROUP_WINDOW` of the entry's first, while it is unread, fold into it ("12 measurements on
+RVZ-00042 between 14:02 and 14:09 UTC"), its events kept in ``parts`` for the inbox to expand. Read
+entries whose latest event is older than REMANENCE_NOTIFICATION_KEEP_READ_DAYS are removed by
+:func:`prune` (the worker, hourly, and ``remanence prune-notifications``); unread ones are kept up to
+the larger cap REMANENCE_NOTIFICATION_KEEP_UNREAD_DAYS (0: kept until read). The embargo (``server/access.py``, the one authority): a
 notification about a compound is created only for an account that may see it, and the inbox, the
 API and the unread count show one only while the reader may still see its compound. Tokens have no
 inbox (they are not accounts). E-mail (``server/mail.py``) goes after the commit, never in the way of
@@ -21,6 +27,7 @@ the request; without REMANENCE_SMTP_HOST none is sent.
 from __future__ import annotations
 
 from collections.abc import Iterable, Sequence
+from datetime import datetime, timedelta
 from email.message import EmailMessage
 from typing import Any, Optional
 
@@ -31,7 +38,9 @@ from sqlmodel import Session, func, select
 from .. import access, mail
 from ..access import Actor
 from ..errors import InputError
-from ..models import Compound, CompoundFollow, Notification, NotificationPreference, NotificationRead, User, utcnow
+from ..models import (Compound, CompoundFollow, Notification, NotificationGroup, NotificationPart,
+                      NotificationPreference, NotificationRead, User, utcnow)
+from . import audit
 from ..verdict_codes import LABELS
 from .errors import Forbidden, NotFound
 
@@ -49,6 +58,19 @@ PAGE_LIMIT = 200
 TEXT_CHARS = 400
 EXCERPT_CHARS = 140
 _MAIL_KEY = "remanence_notification_mail"
+#: Events that group, with the words of a group's line (singular, plural of what ``count`` counts).
+#: Mentions and assignments are addressed to one person by another, and an estimate's end (done or
+#: failed, with its error) is the answer to one request of the reader's: those stay one entry each.
+GROUPED: dict[str, tuple[str, str]] = {
+    "measurement": ("measurement", "measurements"),
+    "verdict": ("verdict change", "verdict changes"),
+    "conflict": ("new conflict", "new conflicts"),
+}
+#: A like event joins an unread entry whose first event is at most this old (a burst: a series
+#: measured in one sitting, a batch of uploads from the instrument PC). Common practice, not a rule.
+GROUP_WINDOW = timedelta(minutes=30)
+#: Events one entry keeps for its expanded view; the next like event starts a new entry.
+GROUP_PARTS = 50
 
 
 # --- writing --------------------------------------------------------------------------------------
@@ -64,9 +86,11 @@ def _label(user: User) -> str:
 
 
 def notify(session: Session, *, event: str, users: Iterable[User], compound: Optional[Compound], text: str,
-           url: str, actor: str) -> list[Notification]:
-    """Add one notification per recipient who wants ``event`` (no commit). Left out: the actor
-    itself, inactive accounts, accounts that may not see ``compound``, and those who muted the event."""
+           url: str, actor: str, count: int = 1) -> list[Notification]:
+    """Add one notification per recipient who wants ``event`` (no commit), or fold it into the
+    recipient's open group of like events (:func:`_open_group`). ``count``: the things it brings
+    (the measurements of one upload). Left out: the actor itself, inactive accounts, accounts that
+    may not see ``compound``, and those who muted the event."""
     if event not in EVENTS:
         raise ValueError(f"unknown notification event {event!r}")
     seen: dict[int, User] = {}
@@ -86,8 +110,13 @@ def notify(session: Session, *, event: str, users: Iterable[User], compound: Opt
         pref = prefs.get(uid)
         if pref is not None and event in (pref.muted or []):
             continue
-        n = Notification(user_id=uid, event=event, compound_id=compound.id if compound is not None else None,
-                         text=text[:TEXT_CHARS], url=url, actor=actor)
+        now = utcnow()
+        n = _open_group(session, uid, event, compound, now)
+        if n is None:
+            n = Notification(user_id=uid, event=event, compound_id=compound.id if compound is not None else None,
+                             text=text[:TEXT_CHARS], url=url, actor=actor, count=count, created_at=now, last_at=now)
+        else:
+            _fold(n, compound, text=text, url=url, actor=actor, count=count, now=now)
         session.add(n)
         made.append(n)
         if mailer is not None and pref is not None and pref.email and event in (pref.email_events or []):
@@ -97,6 +126,49 @@ def notify(session: Session, *, event: str, users: Iterable[User], compound: Opt
     if letters:
         _mail_after_commit(session, letters)
     return made
+
+
+def _open_group(session: Session, user_id: int, event: str, compound: Optional[Compound], now: datetime
+                ) -> Optional[Notification]:
+    """The recipient's unread entry that a like event about ``compound`` joins, if any: same event
+    and compound, first event within :data:`GROUP_WINDOW`, fewer than :data:`GROUP_PARTS` events.
+    Locked (PostgreSQL ``FOR UPDATE``; SQLite has one writer) so two uploads at once both count."""
+    if event not in GROUPED or compound is None or compound.id is None:
+        return None
+    session.flush()  # an entry added earlier in this transaction is a group to join as well
+    q = (select(Notification)
+         .where(Notification.user_id == user_id, Notification.event == event,
+                Notification.compound_id == compound.id, Notification.read_at.is_(None),
+                Notification.created_at >= now - GROUP_WINDOW)
+         .order_by(Notification.created_at.desc(), Notification.id.desc()).limit(1).with_for_update())
+    n = session.exec(q).first()
+    if n is None or len(n.parts or []) >= GROUP_PARTS:
+        return None
+    return n
+
+
+def _part(text: str, url: str, at: datetime, count: int, actor: str) -> dict[str, Any]:
+    return {"text": text[:TEXT_CHARS], "url": url, "created_at": at.isoformat(), "count": count, "actor": actor}
+
+
+def _fold(n: Notification, compound: Compound, *, text: str, url: str, actor: str, count: int, now: datetime
+          ) -> None:
+    """Add one like event to the group ``n`` and write its line anew."""
+    parts = list(n.parts or []) or [_part(n.text, n.url, n.created_at, n.count, n.actor)]
+    parts.append(_part(text, url, now, count, actor))
+    n.parts, n.count, n.last_at = parts, n.count + count, now
+    n.text = group_text(n.event, compound.code, n.count, n.created_at, now)[:TEXT_CHARS]
+    n.url, n.actor = _compound_url(compound) + ("#verdict" if n.event in ("verdict", "conflict") else ""), actor
+
+
+def group_text(event: str, code: str, count: int, first: datetime, last: datetime) -> str:
+    """A group's line: "12 measurements on RVZ-00042 between 14:02 and 14:09 UTC" (UTC, like the inbox)."""
+    one, many = GROUPED[event]
+    same_day = first.date() == last.date()
+    start = first.strftime("%H:%M" if same_day else "%Y-%m-%d %H:%M")
+    end = last.strftime("%H:%M" if same_day else "%Y-%m-%d %H:%M")
+    when = f"at {start}" if start == end else f"between {start} and {end}"
+    return f"{count} {one if count == 1 else many} on {code} {when} UTC"
 
 
 def _mail_after_commit(session: Session, letters: list[EmailMessage]) -> None:
@@ -153,7 +225,7 @@ def measurements_stored(session: Session, compound: Compound, stored: Sequence[A
         text = f"{who(actor)} added {len(stored)} measurements ({', '.join(kinds)}) to {compound.code}"
         url = _compound_url(compound)
     notify(session, event="measurement", users=watchers(session, compound), compound=compound, text=text, url=url,
-           actor=actor)
+           actor=actor, count=len(stored))
 
 
 def verdict_changed(session: Session, compound: Compound, *, old_code: Optional[str], new_code: str,
@@ -260,12 +332,21 @@ def inbox(session: Session, actor: Actor, *, unread_only: bool = False, limit: i
     q = _visible(actor, select(Notification))
     if unread_only:
         q = q.where(Notification.read_at.is_(None))
-    rows = session.exec(q.order_by(Notification.created_at.desc(), Notification.id.desc())
+    rows = session.exec(q.order_by(Notification.last_at.desc(), Notification.id.desc())
                         .offset(offset).limit(limit)).all()
     ids = sorted({n.compound_id for n in rows if n.compound_id is not None})
     codes = dict(session.exec(select(Compound.id, Compound.code).where(Compound.id.in_(ids))).all()) if ids else {}
     return [NotificationRead(id=n.id, event=n.event, compound=codes.get(n.compound_id), text=n.text, url=n.url,
-                             created_at=n.created_at, read=n.read_at is not None) for n in rows]
+                             created_at=n.created_at, read=n.read_at is not None, count=n.count, group=_group(n))
+            for n in rows]
+
+
+def _group(n: Notification) -> Optional[NotificationGroup]:
+    if not n.parts:
+        return None
+    items = [NotificationPart(text=p["text"], url=p["url"], created_at=datetime.fromisoformat(p["created_at"]),
+                              count=p["count"]) for p in n.parts]
+    return NotificationGroup(first_at=n.created_at, last_at=n.last_at, events=len(items), items=items)
 
 
 def mark_read(session: Session, actor: Actor, notification_id: int, *, read: bool = True) -> Notification:
@@ -287,6 +368,44 @@ def mark_all_read(session: Session, actor: Actor) -> int:
                            .values(read_at=utcnow()).execution_options(synchronize_session=False)).rowcount
     session.commit()
     return done
+
+
+# --- expiry ---------------------------------------------------------------------------------------
+
+
+def prune(session: Session, *, keep_read_days: float, keep_unread_days: float, now: Optional[datetime] = None,
+          dry_run: bool = False, actor: str = "system:prune") -> dict[str, int]:
+    """Remove read entries whose latest event is older than ``keep_read_days``, and unread ones older
+    than ``keep_unread_days`` (0: unread entries are kept until read). Returns how many of each; one
+    audit row when any were removed. ``dry_run`` counts and removes nothing."""
+    if keep_read_days <= 0:
+        raise ValueError("keep_read_days must be positive")
+    now = now or utcnow()
+    rules = {"read": sa.and_(Notification.read_at.is_not(None),
+                             Notification.last_at < now - timedelta(days=keep_read_days))}
+    if keep_unread_days > 0:
+        rules["unread"] = sa.and_(Notification.read_at.is_(None),
+                                  Notification.last_at < now - timedelta(days=keep_unread_days))
+    done = {"read": 0, "unread": 0}
+    for what, cond in rules.items():
+        if dry_run:
+            done[what] = session.exec(select(func.count()).select_from(Notification).where(cond)).one()
+        else:
+            done[what] = session.execute(sa.delete(Notification).where(cond)
+                                         .execution_options(synchronize_session=False)).rowcount
+    if not dry_run:
+        if done["read"] or done["unread"]:
+            audit.record(session, actor=actor, action="notification.prune", entity="notification",
+                         after={**done, "keep_read_days": keep_read_days, "keep_unread_days": keep_unread_days})
+        session.commit()
+    return done
+
+
+def prune_with(engine: Any, settings: Any) -> dict[str, int]:
+    """:func:`prune` with the server's settings, in a session of its own (the worker's hourly call)."""
+    with Session(engine) as session:
+        return prune(session, keep_read_days=settings.notification_keep_read_days,
+                     keep_unread_days=settings.notification_keep_unread_days)
 
 
 # --- follows and preferences ------------------------------------------------------------------------

@@ -48,8 +48,9 @@ def open_session(db: Session, *, user: User, hours: float, client: str = "") -> 
     return raw, row
 
 
-def find_live(db: Session, raw: str, *, hours: float) -> Optional[LiveSession]:
-    """The live session whose id is ``raw`` (sliding its expiry), or None."""
+def find_live(db: Session, raw: str, *, hours: float, slide: bool = True) -> Optional[LiveSession]:
+    """The live session whose id is ``raw`` (sliding its expiry unless ``slide`` is false: a request
+    the page makes by itself, such as the menu badge's poll, is not the person using it), or None."""
     if not raw or len(raw) > 100:
         return None
     now = utcnow()
@@ -62,7 +63,7 @@ def find_live(db: Session, raw: str, *, hours: float) -> Optional[LiveSession]:
     row, active = found
     if not active or row.expires_at <= now:
         return None
-    slid = now - row.last_seen_at >= SLIDE_EVERY
+    slid = slide and now - row.last_seen_at >= SLIDE_EVERY
     if slid:
         db.execute(sa.update(WebSession).where(WebSession.id == row.id, WebSession.revoked_at.is_(None))
                    .values(last_seen_at=now, expires_at=now + timedelta(hours=hours)))

@@ -317,6 +317,10 @@ WEB_OWNER_ONLY = {("POST", "/jobs/{job_id}/cancel")}
 # Every account's own inbox, follows and preferences (access.has_inbox): any role; no token.
 WEB_ACCOUNT = {("GET", "/inbox"), ("POST", "/inbox/read-all"), ("POST", "/inbox/{notification_id}/read"),
                ("POST", "/inbox/preferences"), ("POST", "/compounds/{code}/follow"), ("POST", "/inbox/display-name")}
+# The menu badge alone (GET /inbox/badge, polled by every page): an account's count; for anyone without an
+# inbox (nobody logged in, a token) 204 and nothing else, so a poll from a tab whose login ended neither
+# swaps a login page into the menu nor says anything.
+WEB_BADGE = {("GET", "/inbox/badge")}
 SECRET_LABEL = "hexakis-methylsulfanyl benzene, Q-7"  # an invented label that spells out the structure
 SECRET_NOTES = "made from hexachlorobenzene and sodium thiomethoxide"  # invented
 
@@ -348,7 +352,7 @@ def web_call(c: TestClient, method: str, path: str, params: dict, headers: dict 
 
 def test_every_web_route_is_classified(app):
     routes = set(web_routes(app))
-    classified = PUBLIC | WEB_READ | WEB_WRITE | WEB_ADMIN | WEB_ACCOUNT
+    classified = PUBLIC | WEB_READ | WEB_WRITE | WEB_ADMIN | WEB_ACCOUNT | WEB_BADGE
     assert routes - classified == set(), "classify these web routes in the access matrix"
     assert classified - routes == set(), "routes named in the matrix that the app does not have"
     assert len(WEB_READ) >= 10 and len(WEB_WRITE) >= 10 and len(WEB_ADMIN) >= 5  # not iterating over nothing
@@ -386,6 +390,13 @@ def test_web_routes_follow_the_access_table(app, client, world):
         if method == "POST":
             c, _ = sessions["admin"]
             expect("admin without CSRF", refused, web_call(c, method, path, p), method, path)
+    quiet = lambda r: r.status_code == 204 and r.content == b""  # noqa: E731
+    for method, path in sorted(WEB_BADGE):
+        expect("anonymous", quiet, web_call(anon, method, path, p), method, path)
+        for who in ("read token", "upload token", "write token"):
+            expect(who, quiet, web_call(client, method, path, p, tokens[who.split()[0]]), method, path)
+        for who in ("viewer", "member", "admin"):
+            expect(who, allowed, web_call(sessions[who][0], method, path, p), method, path)
     anon.close()
     assert not failures, "access table violated on web routes:\n" + "\n".join(failures)
 

@@ -17,8 +17,7 @@ from sqlmodel import select
 
 from server import bounds
 from server.models import Attachment, AuditEvent, RawFile
-from tests.factories import bearer, make_token
-from tests.trust.conftest import loop_bytes
+from tests.factories import bearer, make_token, targets
 
 
 def micrograph(fmt: str = "PNG", size: tuple[int, int] = (640, 480), seed: int = 1, mode: str = "RGB") -> bytes:
@@ -43,16 +42,7 @@ TYPES = {"PNG": ("m.png", "image/png"), "JPEG": ("m.jpg", "image/jpeg"), "TIFF":
 
 
 def _world(client, session, *, embargoed: bool = False, smiles: str = "c1ccc2ccccc2c1") -> dict:
-    w = bearer(make_token(session, scope="write", name=f"registrar-{smiles}"))
-    r = client.post("/api/v1/compounds", json={"smiles": smiles, "embargoed": embargoed}, headers=w)
-    assert r.status_code == 201, r.text
-    code = r.json()["code"]
-    batch = client.post(f"/api/v1/compounds/{code}/batches", json={"chemist": "lab"}, headers=w).json()["code"]
-    m = client.post(f"/api/v1/batches/{batch}/measurements", data={"kind": "pe_loop"},
-                    files={"file": ("m.csv", loop_bytes(4), "text/csv")}, headers=w)
-    assert m.status_code == 201, m.text
-    return {"w": w, "refs": {"compounds": code, "batches": batch, "samples": m.json()["sample"],
-                             "measurements": str(m.json()["id"])}, "code": code}
+    return targets(client, session, embargoed=embargoed, smiles=smiles)
 
 
 def _post(client, url, raw, headers, name="m.png", ctype="image/png", **data):

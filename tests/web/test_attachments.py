@@ -5,20 +5,12 @@ caption, a refused file keeping what was typed."""
 from __future__ import annotations
 
 from tests.api.test_attachments import micrograph
-from tests.factories import bearer, login_as, make_token, soup
-from tests.trust.conftest import loop_bytes
+from tests.factories import login_as, soup, targets
 
 
 def _world(client, session):
-    w = bearer(make_token(session, scope="write", name="registrar"))
-    code = client.post("/api/v1/compounds", json={"smiles": "c1ccc2ccccc2c1"}, headers=w).json()["code"]
-    batch = client.post(f"/api/v1/compounds/{code}/batches", json={"chemist": "lab"}, headers=w).json()["code"]
-    m = client.post(f"/api/v1/batches/{batch}/measurements", data={"kind": "pe_loop"},
-                    files={"file": ("m.csv", loop_bytes(8), "text/csv")}, headers=w).json()
-    return {f"/compounds/{code}": f"/compounds/{code}/attachments",
-            f"/batches/{batch}": f"/batches/{batch}/attachments",
-            f"/samples/{m['sample']}": f"/samples/{m['sample']}/attachments",
-            f"/measurements/{m['id']}": f"/measurements/{m['id']}/attachments"}
+    t = targets(client, session, cycles=8)
+    return {f"/{plural}/{ref}": f"/{plural}/{ref}/attachments" for plural, ref in t["refs"].items()}
 
 
 def test_upload_from_every_page_shows_a_thumbnail_that_opens_the_original(client, session):

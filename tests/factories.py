@@ -48,3 +48,25 @@ def login_as(client, session: Session, role: str = "member", name: str | None = 
 
 def soup(html: str) -> BeautifulSoup:
     return BeautifulSoup(html, "html.parser")
+
+
+def targets(client, session: Session, *, embargoed: bool = False, smiles: str = "c1ccc2ccccc2c1",
+            cycles: int = 4) -> dict:
+    """A compound, its batch, and a P-E loop measurement (which makes the batch's sample), registered through
+    the API with a write token of its own: the four objects comments and attachments hang on.
+
+    Returns ``w`` (the token's header), ``code``, ``batch``, ``sample``, ``measurement`` (its id) and
+    ``refs`` ({"compounds": code, "batches": ..., "samples": ..., "measurements": "<id>"}, the API's plurals)."""
+    from tests.trust.conftest import loop_bytes
+
+    w = bearer(make_token(session, scope="write", name=f"registrar-{smiles}"))
+    r = client.post("/api/v1/compounds", json={"smiles": smiles, "embargoed": embargoed}, headers=w)
+    assert r.status_code == 201, r.text
+    code = r.json()["code"]
+    batch = client.post(f"/api/v1/compounds/{code}/batches", json={"chemist": "lab"}, headers=w).json()["code"]
+    m = client.post(f"/api/v1/batches/{batch}/measurements", data={"kind": "pe_loop"},
+                    files={"file": ("m.csv", loop_bytes(cycles), "text/csv")}, headers=w)
+    assert m.status_code == 201, m.text
+    sample, mid = m.json()["sample"], m.json()["id"]
+    return {"w": w, "code": code, "batch": batch, "sample": sample, "measurement": mid,
+            "refs": {"compounds": code, "batches": batch, "samples": sample, "measurements": str(mid)}}

@@ -4,7 +4,7 @@ from sqlmodel import SQLModel
 
 from .accounts import ROLES, SCOPES, ApiToken, LoginThrottle, User, WebSession
 from .audit import AuditEvent
-from .collab import (COMMENT_TARGETS, IMAGE_TYPES, Attachment, AttachmentPage, AttachmentRead, Comment, CommentIn, CommentPage, CommentRead, FreezeCreate, FreezePublication,
+from .collab import (COMMENT_TARGETS, IMAGE_TYPES, ArchiveIn, ArchiveStep, Attachment, AttachmentPage, AttachmentRead, Comment, CommentIn, CommentPage, CommentRead, FreezeCreate, FreezePublication,
                      PaperFreeze, PaperFreezeCompound)
 from .jobs import JOB_STATES, Job
 from .notifications import (CompoundFollow, Notification, NotificationGroup, NotificationPage, NotificationPart,
@@ -38,7 +38,7 @@ from .types import UTCDateTime, utcnow
 metadata = SQLModel.metadata
 
 __all__ = [
-    "ApiToken", "Attachment", "AttachmentPage", "AttachmentRead", "IMAGE_TYPES", "AuditEvent", "COMMENT_TARGETS", "Comment", "CommentIn", "CommentPage", "CommentRead", "FreezeCreate", "FreezePublication", "PaperFreeze", "PaperFreezeCompound", "CompoundSideChain", "CompoundStats", "IDENTITY_STATES", "BATCH_STATES", "BarrierEstimate", "Batch", "BatchCreate", "BatchRead", "CodeCounter", "Compound",
+    "ApiToken", "ArchiveIn", "ArchiveStep", "Attachment", "AttachmentPage", "AttachmentRead", "IMAGE_TYPES", "AuditEvent", "COMMENT_TARGETS", "Comment", "CommentIn", "CommentPage", "CommentRead", "FreezeCreate", "FreezePublication", "PaperFreeze", "PaperFreezeCompound", "CompoundSideChain", "CompoundStats", "IDENTITY_STATES", "BATCH_STATES", "BarrierEstimate", "Batch", "BatchCreate", "BatchRead", "CodeCounter", "Compound",
     "CompoundCreate", "CompoundPage", "CompoundRead", "CompoundUpdate", "CrystalPhase", "ScaffoldCreate",
     "ScaffoldRead", "SiteSetting", "SideChainRead", "SideChainSpec",
     "ImportProfile", "JOB_STATES", "Job", "LoginThrottle", "WebSession", "Measurement", "MeasurementSeries", "SAMPLE_FORMS", "SERIES_VARIABLES", "Sample", "SampleCreate", "SamplePreparation",

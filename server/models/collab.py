@@ -84,6 +84,9 @@ class PaperFreezeCompound(SQLModel, table=True):
     compound_id: int = Field(foreign_key="compound.id", index=True)
     verdict: dict[str, Any] = Field(default_factory=dict, sa_type=sa.JSON)
     measurements: list[dict[str, Any]] = Field(default_factory=list, sa_type=sa.JSON)
+    # The images on the compound, its batches, samples and measurements at freeze time (not archived then):
+    # id, target, ref, raw file and SHA-256, caption and metadata; copied, never updated (migration 0029).
+    attachments: list[dict[str, Any]] = Field(default_factory=list, sa_type=sa.JSON)
 
     __table_args__ = (sa.UniqueConstraint("freeze_id", "compound_id", name="uq_paperfreezecompound"),)
 
@@ -140,8 +143,18 @@ class Attachment(SQLModel, table=True):
     t_K: Optional[float] = None
     created_by: str = Field(max_length=160)
     created_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
+    # Archived like a measurement: the flag here, who, when and why in the attachment.archive /
+    # attachment.restore AuditEvents (migration 0029); the bytes stay.
+    archived: bool = False
 
     __table_args__ = (sa.Index("ix_attachment_target", "target", "target_id"),)
+
+
+class ArchiveStep(SQLModel):
+    action: str = Field(description="archive or restore")
+    at: datetime
+    by: str
+    reason: str
 
 
 class AttachmentRead(SQLModel):
@@ -166,6 +179,15 @@ class AttachmentRead(SQLModel):
     created_at: datetime
     original_url: str
     thumbnail_url: str
+    archived: bool = False
+    archive_history: list[ArchiveStep] = Field(
+        default_factory=list, description="every archive and restore, oldest first: who, when and why")
+
+
+class ArchiveIn(SQLModel):
+    """``POST /api/v1/attachments/{id}/archive`` and ``/restore``: why (kept in the audit trail)."""
+
+    reason: str = Field(min_length=1, max_length=500, description="why it is archived or restored")
 
 
 class AttachmentPage(SQLModel):

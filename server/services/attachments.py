@@ -11,6 +11,11 @@ section 2: "II*\\0" little-endian or "MM\\0*" big-endian), the type claimed must
 Pillow must decode every pixel (a truncated file fails there). A header that claims more pixels than
 ``bounds.MAX_IMAGE_PIXELS`` is refused before any pixel is decoded (a decompression bomb).
 
+Nothing is deleted: an attachment is archived (and restored) like a measurement, the ``archived`` flag
+on its row and who, when and why in its ``attachment.archive`` / ``attachment.restore`` AuditEvents
+(:func:`set_archived`, :func:`archive_history`). Archived images leave the galleries and lists unless
+asked for, and stay reachable by id with their ``archived`` label and history.
+
 The embargo is the compound's, as for comments: an embargoed compound's attachments, and those of
 its batches, samples and measurements, are invisible to callers who may not see its structure
 (``access.may_see_structure``); their bytes answer 404 like an attachment that does not exist.
@@ -28,7 +33,7 @@ from urllib.parse import quote
 
 import numpy as np
 from PIL import Image, ImageOps, UnidentifiedImageError
-from sqlalchemy.orm import defer
+from sqlalchemy.orm import defer, object_session
 from sqlmodel import Session, select
 
 from .. import access, bounds
@@ -36,7 +41,7 @@ from ..precision import significant
 from ..access import Actor
 from ..errors import InputError
 from ..ingest.conditions import parse_quantity
-from ..models import IMAGE_TYPES, Attachment, AttachmentRead, RawFile
+from ..models import IMAGE_TYPES, ArchiveStep, Attachment, AttachmentRead, AuditEvent, RawFile
 from . import audit
 from .accounts import hide_people
 from .comments import Target, target_of
@@ -46,6 +51,8 @@ from .measurements import _display_name
 #: Bounded work per request: a gallery shows its newest attachments up to this many.
 GALLERY_LIMIT = 200
 MAX_CAPTION = 2000
+MAX_REASON = 500
+ARCHIVE_ACTIONS = ("attachment.archive", "attachment.restore")
 MAX_MAGNIFICATION = 10_000.0  # past any light microscope (common practice: objectives up to 100x, eyepieces 10-25x)
 
 #: File signatures (see the module docstring for their sources).
@@ -223,30 +230,108 @@ def original(session: Session, att: Attachment) -> RawFile:
     return session.get(RawFile, att.raw_file_id)
 
 
-def attachment_read(att: Attachment, target: Target, *, filename: str, size: int,
-                    actor: Optional[Actor]) -> AttachmentRead:
+def attachment_read(att: Attachment, target: Target, *, filename: str, size: int, actor: Optional[Actor],
+                    history: Optional[list[ArchiveStep]] = None) -> AttachmentRead:
+    """The API shape; ``history`` (the archive steps) is looked up when not given."""
+    if history is None:
+        history = archive_history(object_session(att), [att.id]).get(att.id, [])
     read = AttachmentRead(
         id=att.id, target=att.target, ref=target.ref, compound=target.compound.code, filename=filename,
         sha256=att.sha256, media_type=IMAGE_TYPES[att.image_format], size_bytes=size, width_px=att.width_px,
         height_px=att.height_px, thumb_width_px=att.thumb_width_px, thumb_height_px=att.thumb_height_px,
         caption=att.caption, magnification=att.magnification, scale_bar_um=att.scale_bar_um,
         polariser_crossed=att.polariser_crossed, t_K=att.t_K, created_by=att.created_by, created_at=att.created_at,
-        original_url=f"/api/v1/attachments/{att.id}/original", thumbnail_url=f"/api/v1/attachments/{att.id}/thumbnail")
+        original_url=f"/api/v1/attachments/{att.id}/original", thumbnail_url=f"/api/v1/attachments/{att.id}/thumbnail",
+        archived=att.archived, archive_history=history)
     return hide_people(read, sees_people=actor is not None and actor.sees_people)
 
 
-def gallery(session: Session, target: Target, *, actor: Optional[Actor]) -> dict[str, Any]:
+def gallery(session: Session, target: Target, *, actor: Optional[Actor],
+            include_archived: bool = False) -> dict[str, Any]:
     """The attachments on ``target``, oldest first, as ``actor`` may see them (none, ``withheld``, for a
-    caller who may not see an embargoed compound)."""
+    caller who may not see an embargoed compound); archived ones only with ``include_archived``."""
     if not may_read(actor, target):
         return {"items": [], "withheld": True}
-    rows = session.exec(select(Attachment, RawFile.filename, RawFile.size)
-                        .join(RawFile, RawFile.id == Attachment.raw_file_id)
-                        .where(Attachment.target == target.kind, Attachment.target_id == target.row.id)
-                        .options(defer(Attachment.thumbnail))
+    query = (select(Attachment, RawFile.filename, RawFile.size).join(RawFile, RawFile.id == Attachment.raw_file_id)
+             .where(Attachment.target == target.kind, Attachment.target_id == target.row.id))
+    if not include_archived:
+        query = query.where(Attachment.archived == False)  # noqa: E712 - SQL expression
+    rows = session.exec(query.options(defer(Attachment.thumbnail))
                         .order_by(Attachment.created_at.desc(), Attachment.id.desc()).limit(GALLERY_LIMIT)).all()
-    return {"items": [attachment_read(a, target, filename=name, size=size, actor=actor)
+    histories = archive_history(session, [a.id for a, _, _ in rows])
+    return {"items": [attachment_read(a, target, filename=name, size=size, actor=actor,
+                                      history=histories.get(a.id, []))
                       for a, name, size in reversed(rows)], "withheld": False}
+
+
+def archive_history(session: Session, ids: list[int]) -> dict[int, list[ArchiveStep]]:
+    """Every archive and restore of the attachments ``ids``, oldest first, from the audit trail
+    (the one record of who, when and why)."""
+    if not ids:
+        return {}
+    events = session.exec(select(AuditEvent).where(AuditEvent.entity == "attachment",
+                                                   AuditEvent.action.in_(ARCHIVE_ACTIONS),
+                                                   AuditEvent.entity_code.in_([str(i) for i in ids]))
+                          .order_by(AuditEvent.at, AuditEvent.id)).all()
+    out: dict[int, list[ArchiveStep]] = {}
+    for e in events:
+        out.setdefault(int(e.entity_code), []).append(ArchiveStep(
+            action=e.action.split(".", 1)[1], at=e.at, by=e.actor, reason=(e.after or {}).get("reason", "")))
+    return out
+
+
+def set_archived(*, session: Session, attachment: Attachment, archived: bool, reason: Optional[str],
+                 actor: Actor) -> Attachment:
+    """Archive or restore an attachment, saying why; the flag changes, the bytes stay, and the AuditEvent
+    keeps who, when and the reason. Asking for the state it is in already changes nothing (409)."""
+    text = (reason or "").strip()
+    verb = "archived" if archived else "restored"
+    if not text:
+        raise InputError(f"say why the image is {verb}", field="reason")
+    if len(text) > MAX_REASON:
+        raise InputError(f"a reason is at most {MAX_REASON} characters", field="reason")
+    if attachment.archived == archived:
+        raise Duplicate(f"attachment {attachment.id} is {verb} already", existing=attachment.id)
+    attachment.archived = archived
+    session.add(attachment)
+    audit.record(session, actor=actor.label, action=ARCHIVE_ACTIONS[0] if archived else ARCHIVE_ACTIONS[1],
+                 entity="attachment", code=str(attachment.id), compound_id=attachment.compound_id,
+                 before={"archived": not archived}, after={"archived": archived, "reason": text})
+    session.commit()
+    session.refresh(attachment)
+    return attachment
+
+
+def live_of_compound(session: Session, compound_id: int) -> list[tuple[Attachment, Target, RawFile]]:
+    """The compound's attachments not archived, on itself and on its batches, samples and measurements
+    that are not archived, oldest first, with their originals (for the report pack and freezes)."""
+    rows = session.exec(select(Attachment).where(Attachment.compound_id == compound_id,
+                                                 Attachment.archived == False)  # noqa: E712
+                        .options(defer(Attachment.thumbnail))
+                        .order_by(Attachment.created_at, Attachment.id).limit(GALLERY_LIMIT * 10)).all()
+    out = []
+    for att in rows:
+        target = target_of(session, att)
+        if getattr(target.row, "archived", False):
+            continue
+        out.append((att, target, original(session, att)))
+    return out
+
+
+#: What a pack's manifest and a freeze record of an attachment: where it hangs, its bytes, what it shows.
+def record_of(att: Attachment, target: Target, raw: RawFile) -> dict[str, Any]:
+    return {"id": att.id, "target": att.target, "ref": target.ref, "raw_file": att.raw_file_id,
+            "sha256": att.sha256, "filename": raw.filename, "media_type": IMAGE_TYPES[att.image_format],
+            "size_bytes": raw.size, "width_px": att.width_px, "height_px": att.height_px, "caption": att.caption,
+            "magnification": att.magnification, "scale_bar_um": att.scale_bar_um,
+            "polariser_crossed": att.polariser_crossed, "t_K": att.t_K, "created_by": att.created_by,
+            "created_at": att.created_at.isoformat()}
+
+
+def pack_path(record: Mapping[str, Any]) -> str:
+    """The original's path in a pack: ``attachments/<id>-<file name>``."""
+    name = re.sub(r"[^A-Za-z0-9._-]", "_", record["filename"] or f"image.{record['media_type'].split('/')[1]}")[:80]
+    return f"attachments/{record['id']}-{name}"
 
 
 def metadata_line(a: AttachmentRead) -> str:
@@ -272,15 +357,22 @@ def page_url(target: Target) -> str:
 
 
 def gallery_panel(session: Session, target: Target, *, actor: Optional[Actor], error: str = "",
-                  form: Optional[Mapping[str, Any]] = None) -> dict[str, Any]:
-    """What the gallery partial shows: the images with their metadata line, whether the caller may add
-    one, the form's URL and (after a refusal) what was typed."""
-    data = gallery(session, target, actor=actor)
+                  form: Optional[Mapping[str, Any]] = None, archive_error: Optional[tuple[int, str]] = None
+                  ) -> dict[str, Any]:
+    """What the gallery partial shows: the images with their metadata line, the archived ones apart
+    (labelled, with who, when and why), whether the caller may add or archive one, the form's URL and
+    (after a refusal) what was typed; ``archive_error``: (attachment id, message) of a refused archive."""
+    data = gallery(session, target, actor=actor, include_archived=True)
+    items = [{"a": a, "meta": metadata_line(a), "last": a.archive_history[-1] if a.archive_history else None}
+             for a in data["items"]]
     return {"target": target.kind, "ref": target.ref, "post_url": target.route("attachments"),
-            "images": [{"a": a, "meta": metadata_line(a)} for a in data["items"]], "withheld": data["withheld"],
+            "images": [it for it in items if not it["a"].archived],
+            "archived": [it for it in items if it["a"].archived], "withheld": data["withheld"],
+            "archive_error": archive_error or (None, ""),
             "may_post": not data["withheld"] and access.allows(actor, access.WRITE), "error": error,
             "form": dict(form or {}), "dom_id": f"attachments-{target.kind}-{target.ref}"}
 
 
-__all__ = ["CheckedImage", "attach_image", "attachment_read", "check_image", "claimed_format", "gallery",
-           "gallery_panel", "get_attachment", "metadata_line", "original", "page_url", "parse_metadata", "sniff"]
+__all__ = ["CheckedImage", "archive_history", "attach_image", "attachment_read", "check_image", "claimed_format",
+           "gallery", "gallery_panel", "get_attachment", "live_of_compound", "metadata_line", "original", "pack_path",
+           "page_url", "parse_metadata", "record_of", "set_archived", "sniff"]

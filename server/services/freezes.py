@@ -6,6 +6,9 @@ into ``paperfreezecompound`` rows that nothing ever updates. Re-analysis, correc
 change the live rows only, so :func:`differences` can say, per frozen compound, what moved since:
 results re-computed (by key: frozen, current, change, relative change), analysis versions, measurements
 retired or added, and the verdict. Raw files are immutable, so the frozen bytes stay available.
+The images on the compound, its batches, samples and measurements that were not archived at freeze
+time are recorded too (id, target, raw file and SHA-256, caption and metadata): archiving one later
+changes neither the record nor the pack, and :func:`differences` lists it as archived since.
 
 Embargo: a caller who may not see an embargoed compound gets its code only (``withheld``), and its
 pack is refused, as for the compound's own report pack.
@@ -29,15 +32,16 @@ from .. import access
 from ..access import Actor
 from ..errors import InputError
 from ..kinds import KINDS
-from ..models import (Batch, Compound, Measurement, PaperFreeze, PaperFreezeCompound, RawFile, Sample,
+from ..models import (Attachment, Batch, Compound, Measurement, PaperFreeze, PaperFreezeCompound, RawFile, Sample,
                       is_live, live_measurement)
-from . import audit, report_pack, verdicts, views
+from . import attachments, audit, report_pack, verdicts, views
+from .accounts import hide_people
 from .errors import Duplicate, Forbidden, NotFound
 
 #: Bounded work per request: compounds per freeze, measurements frozen per compound.
 MAX_COMPOUNDS = 200
 MAX_MEASUREMENTS = 2000
-PACK_VERSION = "freeze-pack/1"
+PACK_VERSION = "freeze-pack/2"  # 2: frozen attachments (attachments/, "frozen_attachments")
 _DOI = re.compile(r"^10\.\d{4,9}/[^\s]+$")
 _DEPOSITION = re.compile(r"^[A-Za-z][A-Za-z -]{1,20} ?[0-9][0-9A-Za-z._-]{2,30}$")  # "CCDC 2345678", "ICSD 12345"
 #: Relative changes below this are the noise of re-running floating-point code, not a change.
@@ -110,17 +114,21 @@ def create_freeze(*, session: Session, name: str, codes: list[str], actor: Actor
     freeze = PaperFreeze(name=name, created_by=actor.label)
     session.add(freeze)
     session.flush()
-    counts = {}
+    counts, image_counts = {}, {}
     for code in wanted:
         compound = found[code]
         rows = _live(session, compound)
         if len(rows) > MAX_MEASUREMENTS:
             raise InputError(f"{code} has more than {MAX_MEASUREMENTS} live measurements", field="compounds")
+        images = [attachments.record_of(*found_image) for found_image in attachments.live_of_compound(session, compound.id)]
         session.add(PaperFreezeCompound(freeze_id=freeze.id, compound_id=compound.id, verdict=_verdict_now(compound),
-                                        measurements=[_frozen_measurement(session, m) for m in rows]))
+                                        measurements=[_frozen_measurement(session, m) for m in rows],
+                                        attachments=images))
         counts[code] = len(rows)
+        image_counts[code] = len(images)
     audit.record(session, actor=actor.label, action="freeze.create", entity="freeze", code=str(freeze.id),
-                 after={"name": name, "measurements": counts, **({"view": view.strip()} if view.strip() else {})})
+                 after={"name": name, "measurements": counts, "attachments": image_counts,
+                        **({"view": view.strip()} if view.strip() else {})})
     try:
         session.commit()
     except IntegrityError:  # a concurrent freeze took the name between the check and the commit
@@ -223,8 +231,13 @@ def compare_compound(session: Session, row: PaperFreezeCompound) -> dict[str, An
     added = [m.id for m in _live(session, compound) if m.id not in frozen_ids]
     verdict_then, verdict_now = row.verdict.get("effective"), verdicts.effective_code(compound)
     rels = [abs(c["relative"]) for it in items for c in it["changes"] if c["relative"] is not None]
+    frozen_images = [a["id"] for a in row.attachments]
+    archived_images = [a.id for a in session.exec(select(Attachment).where(Attachment.id.in_(frozen_images),
+                                                                          Attachment.archived == True))  # noqa: E712
+                       .all()] if frozen_images else []
     return {"compound": compound.code, "differs": bool(items or added or verdict_then != verdict_now),
             "measurements": items, "added": added, "frozen_count": len(row.measurements),
+            "attachments_archived_since": sorted(archived_images), "frozen_attachments": len(frozen_images),
             "verdict": {"frozen": verdict_then, "current": verdict_now},
             "largest_relative_change": max(rels) if rels else None}
 
@@ -233,7 +246,8 @@ def _compound_entry(session: Session, row: PaperFreezeCompound, actor: Optional[
     compound = session.get(Compound, row.compound_id)
     if not access.may_see_structure(actor, compound):
         return {"compound": compound.code, "withheld": True}
-    entry = {"compound": compound.code, "withheld": False, "verdict": row.verdict, "measurements": row.measurements}
+    entry = {"compound": compound.code, "withheld": False, "verdict": row.verdict, "measurements": row.measurements,
+             "attachments": hide_people(row.attachments, sees_people=actor is not None and actor.sees_people)}
     if with_diff:
         entry["differences"] = compare_compound(session, row)
     return entry
@@ -264,7 +278,8 @@ def freezes_of_compound(session: Session, compound: Compound, *, actor: Optional
 
 def freeze_pack(session: Session, freeze: PaperFreeze, *, actor: Optional[Actor]) -> bytes:
     """The freeze as one zip: ``freeze.json`` (the frozen record), ``differences.json`` (what moved
-    since), the frozen raw files byte for byte (``raw/<id>-<name>``), each compound's current report
+    since), the frozen raw files byte for byte (``raw/<id>-<name>``), the images frozen with it byte for
+    byte (``attachments/<id>-<name>``; their SHA-256, caption and metadata in ``frozen_attachments``), each compound's current report
     pack under ``current/<code>/``, and ``manifest.json`` with every file's SHA-256 and size."""
     rows = _rows(session, freeze)
     for r in rows:
@@ -281,6 +296,8 @@ def freeze_pack(session: Session, freeze: PaperFreeze, *, actor: Optional[Actor]
             raw = session.get(RawFile, fm["raw_file"])
             name = re.sub(r"[^A-Za-z0-9._-]", "_", raw.filename or fm["kind"])[:80]
             files[f"raw/{fm['id']}-{name}"] = raw.data
+        for fa in r.attachments:  # the images as frozen: their bytes are immutable rawfile rows
+            files[attachments.pack_path(fa)] = session.get(RawFile, fa["raw_file"]).data
         compound = session.get(Compound, r.compound_id)
         with zipfile.ZipFile(io.BytesIO(report_pack.report_pack(session, compound, actor=actor))) as inner:
             for info in inner.infolist():
@@ -291,6 +308,10 @@ def freeze_pack(session: Session, freeze: PaperFreeze, *, actor: Optional[Actor]
                 "frozen_measurements": [{"id": fm["id"], "compound": session.get(Compound, r.compound_id).code,
                                          "sha256": fm["sha256"], "analysis_version": fm["analysis_version"]}
                                         for r in rows for fm in r.measurements],
+                "frozen_attachments": [{**fa, "compound": session.get(Compound, r.compound_id).code,
+                                        "path": attachments.pack_path(fa)}
+                                       for r in rows for fa in hide_people(
+                                           r.attachments, sees_people=actor is not None and actor.sees_people)],
                 "files": [{"path": p, "sha256": hashlib.sha256(b).hexdigest(), "size": len(b)}
                           for p, b in sorted(files.items())]}
     buf = io.BytesIO()

@@ -11,8 +11,12 @@ Contents (paths inside the zip)::
     tables/transitions.csv         transition temperatures (dielectric peaks, DSC)
     raw/<id>-<filename>            every live measurement's raw file, byte for byte
     cif/<id>-<filename>            the crystal structures (CIF) among them
+    attachments/<id>-<filename>    every image on the compound, its batches, samples and measurements,
+                                   byte for byte as uploaded (archived ones, and those on archived
+                                   batches or measurements, left out)
     manifest.json                  every file above with its SHA-256 and size, the analysis
-                                   version of each measurement, the compound and the time
+                                   version of each measurement, each image's SHA-256, caption and
+                                   metadata, the compound and the time
 
 Numbers are printed at display precision (:mod:`server.precision`): a value with an uncertainty
 is rounded to the uncertainty's last digit (JCGM 100:2008, 7.2.6).
@@ -50,11 +54,12 @@ from ..plots import vector  # noqa: E402
 from ..precision import error_key, significant, value_text, with_uncertainty  # noqa: E402
 from ..verdict_codes import LABELS  # noqa: E402
 from ..chem.identity import formula_html, formula_unicode  # noqa: E402
-from . import barriers, figures_vector, measurements, registry, verdicts  # noqa: E402
+from . import attachments, barriers, figures_vector, measurements, registry, verdicts  # noqa: E402
+from .accounts import hide_people  # noqa: E402
 from .errors import Forbidden  # noqa: E402
 
 #: Version of the pack's layout, in the manifest (bumped when paths or columns change).
-PACK_VERSION = "report-pack/1"
+PACK_VERSION = "report-pack/2"  # 2: attachments/ and the manifest's "attachments"
 #: At most this many measurement figures are drawn into one pack (bounded work per request).
 MAX_FIGURES = 60
 
@@ -225,6 +230,13 @@ def report_pack(session: Session, compound: Compound, *, actor: Optional[Actor])
             for fmt in figures_vector.FORMATS:
                 files[f"figures/{name}.{fmt}"] = vector.render(fig, fmt)
             figures.append({"name": name, "what": what})
+    images = []
+    for att, target, raw in attachments.live_of_compound(session, compound.id):
+        record = attachments.record_of(att, target, raw)
+        record["path"] = attachments.pack_path(record)
+        files[record["path"]] = raw.data
+        images.append(record)
+    images = hide_people(images, sees_people=actor is not None and actor.sees_people)
     barrier_rows = [barriers.barrier_read(session, b) for b in barriers.list_barriers(session, compound)]
     transitions = summary_plots.transitions_table(items)
     files["tables/measurements.csv"] = measurement_table(items)
@@ -251,6 +263,7 @@ def report_pack(session: Session, compound: Compound, *, actor: Optional[Actor])
                           "method": m["method"]} for m in items],
         "barriers": [{"id": b["id"], "method": b["method"], "analysis_version": b["analysis_version"]}
                      for b in barrier_rows],
+        "attachments": images,
         "verdict": {"code": data["verdict"]["code"], "version": (data["verdict"]["computed"] or {}).get("version")},
     }
     buf = io.BytesIO()

@@ -7,8 +7,10 @@ from __future__ import annotations
 
 import hashlib
 import io
+import json
 import struct
 import zlib
+import zipfile
 
 import numpy as np
 import pytest
@@ -17,8 +19,7 @@ from sqlmodel import select
 
 from server import bounds
 from server.models import Attachment, AuditEvent, RawFile
-from tests.factories import bearer, make_token
-from tests.trust.conftest import loop_bytes
+from tests.factories import bearer, make_token, targets
 
 
 def micrograph(fmt: str = "PNG", size: tuple[int, int] = (640, 480), seed: int = 1, mode: str = "RGB") -> bytes:
@@ -43,16 +44,7 @@ TYPES = {"PNG": ("m.png", "image/png"), "JPEG": ("m.jpg", "image/jpeg"), "TIFF":
 
 
 def _world(client, session, *, embargoed: bool = False, smiles: str = "c1ccc2ccccc2c1") -> dict:
-    w = bearer(make_token(session, scope="write", name=f"registrar-{smiles}"))
-    r = client.post("/api/v1/compounds", json={"smiles": smiles, "embargoed": embargoed}, headers=w)
-    assert r.status_code == 201, r.text
-    code = r.json()["code"]
-    batch = client.post(f"/api/v1/compounds/{code}/batches", json={"chemist": "lab"}, headers=w).json()["code"]
-    m = client.post(f"/api/v1/batches/{batch}/measurements", data={"kind": "pe_loop"},
-                    files={"file": ("m.csv", loop_bytes(4), "text/csv")}, headers=w)
-    assert m.status_code == 201, m.text
-    return {"w": w, "refs": {"compounds": code, "batches": batch, "samples": m.json()["sample"],
-                             "measurements": str(m.json()["id"])}, "code": code}
+    return targets(client, session, embargoed=embargoed, smiles=smiles)
 
 
 def _post(client, url, raw, headers, name="m.png", ctype="image/png", **data):
@@ -184,3 +176,106 @@ def test_embargoed_attachments_are_invisible_on_every_route(client, session):
     a = _post(client, f"/api/v1/compounds/{open_world['code']}/attachments", micrograph(seed=50), world["w"]).json()
     assert client.get(f"/api/v1/attachments/{a['id']}", headers=plain).json()["created_by"] == a["created_by"]
     assert client.get(f"/api/v1/attachments/{a['id']}", headers=up).json()["created_by"] == "(hidden)"
+
+
+def test_archive_and_restore_keep_who_when_and_why(client, session):
+    world = _world(client, session)
+    url = f"/api/v1/compounds/{world['code']}/attachments"
+    kept = _post(client, url, micrograph(seed=60), world["w"], caption="fan texture").json()
+    raw = micrograph(seed=61)
+    a = _post(client, url, raw, world["w"], caption="blurred, wrong sample").json()
+    assert a["archived"] is False and a["archive_history"] == []
+    route = f"/api/v1/attachments/{a['id']}"
+    # The reason is required: missing, empty or blank refuses, naming the field, and changes nothing.
+    for body in ({}, {"reason": ""}, {"reason": "   "}, {"reason": "x" * 501}):
+        r = client.post(f"{route}/archive", json=body, headers=world["w"])
+        assert r.status_code == 422 and "reason" in r.text, (body, r.text)
+    assert session.get(Attachment, a["id"]).archived is False
+    r = client.post(f"{route}/archive", json={"reason": "out of focus; retaken as the next image"}, headers=world["w"])
+    assert r.status_code == 200, r.text
+    got = r.json()
+    assert got["archived"] is True and [s["action"] for s in got["archive_history"]] == ["archive"]
+    step = got["archive_history"][0]
+    assert step["reason"] == "out of focus; retaken as the next image" and step["by"] == a["created_by"]
+    # Out of the list by default; listed with its label on request; still reachable by id, bytes unchanged.
+    assert [x["id"] for x in client.get(url, headers=world["w"]).json()["items"]] == [kept["id"]]
+    listed = client.get(url, params={"include_archived": "true"}, headers=world["w"]).json()["items"]
+    assert [(x["id"], x["archived"]) for x in listed] == [(kept["id"], False), (a["id"], True)]
+    assert client.get(route, headers=world["w"]).json()["archived"] is True
+    original = client.get(a["original_url"], headers=world["w"])
+    assert original.status_code == 200 and original.content == raw
+    assert client.get(a["thumbnail_url"], headers=world["w"]).status_code == 200
+    # Archiving what is archived is refused; a restore needs its reason too, and both steps stay in the history.
+    assert client.post(f"{route}/archive", json={"reason": "again"}, headers=world["w"]).status_code == 409
+    assert client.post(f"{route}/restore", json={"reason": " "}, headers=world["w"]).status_code == 422
+    back = client.post(f"{route}/restore", json={"reason": "the only image of batch B01 at 120 °C"}, headers=world["w"])
+    assert back.status_code == 200 and back.json()["archived"] is False
+    assert [(s["action"], s["reason"]) for s in back.json()["archive_history"]] == [
+        ("archive", "out of focus; retaken as the next image"), ("restore", "the only image of batch B01 at 120 °C")]
+    assert len(client.get(url, headers=world["w"]).json()["items"]) == 2
+    assert client.post(f"{route}/restore", json={"reason": "again"}, headers=world["w"]).status_code == 409
+    # One mechanism: the flag on the row, who/when/why in the audit trail, as for measurements.
+    events = session.exec(select(AuditEvent).where(AuditEvent.entity == "attachment",
+                                                   AuditEvent.entity_code == str(a["id"]))
+                          .order_by(AuditEvent.id)).all()
+    assert [(e.action, (e.after or {}).get("reason")) for e in events] == [
+        ("attachment.create", None), ("attachment.archive", "out of focus; retaken as the next image"),
+        ("attachment.restore", "the only image of batch B01 at 120 °C")]
+    assert all(e.compound_id is not None for e in events)
+
+
+def test_archiving_an_embargoed_compounds_image_is_for_those_who_may_see_it(client, session):
+    world = _world(client, session, embargoed=True)
+    a = _post(client, f"/api/v1/compounds/{world['code']}/attachments", micrograph(seed=70), world["w"]).json()
+    granted = bearer(make_token(session, scope="read", name="granted-reader", sees_embargoed=True))
+    up = bearer(make_token(session, scope="upload", name="instrument-pc"))
+    for who in (granted, up):  # may see it but not write; may not write at all
+        r = client.post(f"/api/v1/attachments/{a['id']}/archive", json={"reason": "blurred"}, headers=who)
+        assert r.status_code == 403, r.text
+    assert session.get(Attachment, a["id"]).archived is False
+    # A member archives it with a reason that names the structure: the history is as hidden as the image.
+    client.post(f"/api/v1/attachments/{a['id']}/archive", json={"reason": "shows the SC8H17 arms badly"},
+                headers=world["w"])
+    plain = bearer(make_token(session, scope="read", name="plain-reader"))
+    for who in (plain, up):
+        listed = client.get(f"/api/v1/compounds/{world['code']}/attachments", params={"include_archived": "true"},
+                            headers=who)
+        assert listed.json() == {"items": [], "withheld": True} and "SC8H17" not in listed.text
+        assert client.get(f"/api/v1/attachments/{a['id']}", headers=who).status_code == 404
+    assert "SC8H17" in client.get(f"/api/v1/attachments/{a['id']}", headers=granted).text  # the control
+
+
+def _zip(data: bytes) -> dict[str, bytes]:
+    with zipfile.ZipFile(io.BytesIO(data)) as z:
+        return {name: z.read(name) for name in z.namelist()}
+
+
+def test_report_pack_carries_the_images_unchanged_with_checksum_and_metadata(client, session):
+    world = _world(client, session)
+    images = {}
+    for i, (plural, ref) in enumerate(world["refs"].items()):
+        fmt = ("PNG", "JPEG", "TIFF", "PNG")[i]
+        raw = micrograph(fmt, size=(80, 60), seed=80 + i)
+        a = _post(client, f"/api/v1/{plural}/{ref}/attachments", raw, world["w"], *TYPES[fmt],
+                  caption=f"on the {plural.removesuffix('es') if plural == 'batches' else plural[:-1]}", magnification="20x", polariser="crossed", temperature="350 K").json()
+        images[a["id"]] = raw
+    gone = _post(client, f"/api/v1/batches/{world['batch']}/attachments", micrograph(seed=89), world["w"]).json()
+    client.post(f"/api/v1/attachments/{gone['id']}/archive", json={"reason": "duplicate view"}, headers=world["w"])
+    r = client.get(f"/api/v1/compounds/{world['code']}/report.zip", headers=world["w"])
+    assert r.status_code == 200, r.text
+    files = _zip(r.content)
+    manifest = json.loads(files[f"{world['code']}/manifest.json"])
+    listed = {a["id"]: a for a in manifest["attachments"]}
+    assert set(listed) == set(images)  # the archived one is left out
+    for aid, raw in images.items():
+        entry = listed[aid]
+        assert files[f"{world['code']}/{entry['path']}"] == raw  # byte for byte
+        assert entry["sha256"] == hashlib.sha256(raw).hexdigest()
+        assert entry["magnification"] == 20 and entry["polariser_crossed"] is True and entry["t_K"] == 350
+        assert entry["caption"] == f"on the {entry['target']}"
+    assert {(a["target"], a["ref"]) for a in listed.values()} == {
+        ("compound", world["code"]), ("batch", world["batch"]), ("sample", world["sample"]),
+        ("measurement", str(world["measurement"]))}
+    in_files = {f["path"]: f["sha256"] for f in manifest["files"]}
+    assert all(in_files[a["path"]] == a["sha256"] for a in listed.values())
+    assert not any(p.startswith(f"attachments/{gone['id']}-") for p in in_files)

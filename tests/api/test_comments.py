@@ -8,21 +8,11 @@ from bs4 import BeautifulSoup
 from sqlmodel import select
 
 from server.models import AuditEvent, Comment
-from tests.factories import bearer, login_as, make_token, make_user
-from tests.trust.conftest import loop_bytes
+from tests.factories import bearer, login_as, make_token, make_user, targets
 
 
 def _world(client, session, *, embargoed: bool = False) -> dict:
-    w = bearer(make_token(session, scope="write", name="registrar"))
-    r = client.post("/api/v1/compounds", json={"smiles": "c1ccc2ccccc2c1", "embargoed": embargoed}, headers=w)
-    assert r.status_code == 201, r.text
-    code = r.json()["code"]
-    batch = client.post(f"/api/v1/compounds/{code}/batches", json={"chemist": "lab"}, headers=w).json()["code"]
-    m = client.post(f"/api/v1/batches/{batch}/measurements", data={"kind": "pe_loop"},
-                    files={"file": ("m.csv", loop_bytes(4), "text/csv")}, headers=w)
-    assert m.status_code == 201, m.text
-    return {"w": w, "refs": {"compounds": code, "batches": batch, "samples": m.json()["sample"],
-                             "measurements": str(m.json()["id"])}, "code": code}
+    return targets(client, session, embargoed=embargoed)
 
 
 def test_every_target_takes_a_thread(client, session):

@@ -196,3 +196,51 @@ def test_a_freeze_from_a_view_sees_only_what_the_caller_may(client, session, wor
     link = page.select_one("a.freezelink")["href"]
     form = soup(client.get(link).text).select_one("form[action='/freezes'] input[name=view]")
     assert form["value"] == "/compounds?c_min=1"
+
+
+def test_a_freeze_keeps_the_images_it_held(client, session, world):
+    """Images on the compound and its batch at freeze time go into the freeze (archived ones left out);
+    archiving one later changes neither the record nor the pack; the embargoed compound's images go to
+    nobody who may not see it."""
+    from tests.api.test_attachments import micrograph
+
+    w, (code, secret) = world["w"], world["codes"]
+    batch = f"{code}-B01"  # its one batch (codes: <compound>-Bnn)
+    shown = {}
+    for where, seed in ((f"compounds/{code}", 1), (f"batches/{batch}", 2), (f"compounds/{secret}", 3)):
+        raw = micrograph("PNG", size=(60, 40), seed=seed)
+        a = client.post(f"/api/v1/{where}/attachments", files={"file": ("pom.png", raw, "image/png")},
+                        data={"caption": f"image {seed}", "scale_bar": "50 um"}, headers=w).json()
+        shown[a["id"]] = raw
+    before = client.post(f"/api/v1/compounds/{code}/attachments", headers=w,
+                         files={"file": ("old.png", micrograph("PNG", size=(60, 40), seed=4), "image/png")}).json()
+    client.post(f"/api/v1/attachments/{before['id']}/archive", json={"reason": "wrong crystal"}, headers=w)
+    fid = client.post("/api/v1/freezes", json={"name": "with images", "compounds": [code, secret]},
+                      headers=w).json()["id"]
+    ids = sorted(shown)
+    rows = session.exec(select(PaperFreezeCompound).where(PaperFreezeCompound.freeze_id == fid)
+                        .order_by(PaperFreezeCompound.id)).all()
+    assert [sorted(a["id"] for a in r.attachments) for r in rows] == [ids[:2], ids[2:]]  # not the archived one
+    # Archived after the freeze: still frozen, bytes still in the pack, reported as archived since.
+    client.post(f"/api/v1/attachments/{ids[0]}/archive", json={"reason": "superseded by a sharper image"}, headers=w)
+    seen = client.get(f"/api/v1/freezes/{fid}", headers=w).json()
+    first = seen["compounds"][0]
+    assert sorted(a["id"] for a in first["attachments"]) == ids[:2]
+    assert first["differences"]["attachments_archived_since"] == [ids[0]]
+    assert {a["caption"] for a in first["attachments"]} == {"image 1", "image 2"}
+    assert all(a["scale_bar_um"] == pytest.approx(50) for a in first["attachments"])
+    z = zipfile.ZipFile(io.BytesIO(client.get(f"/api/v1/freezes/{fid}/pack.zip", headers=w).content))
+    manifest = json.loads(z.read("manifest.json"))
+    frozen = {a["id"]: a for a in manifest["frozen_attachments"]}
+    assert sorted(frozen) == ids
+    for aid, raw in shown.items():
+        assert z.read(frozen[aid]["path"]) == raw and frozen[aid]["sha256"] == hashlib.sha256(raw).hexdigest()
+    assert frozen[ids[2]]["compound"] == secret
+    # The current report pack inside leaves the image archived since out; the frozen copy stays.
+    assert not any(p.startswith(f"current/{code}/attachments/{ids[0]}-") for p in z.namelist())
+    assert any(p.startswith(f"current/{code}/attachments/{ids[1]}-") for p in z.namelist())
+    # Embargo: the upload token gets the secret compound's code only, and no pack at all.
+    up = bearer(make_token(session, scope="upload", name="instrument-pc"))
+    hidden = client.get(f"/api/v1/freezes/{fid}", headers=up)
+    assert hidden.json()["compounds"][1] == {"compound": secret, "withheld": True}
+    assert "image 3" not in hidden.text and client.get(f"/api/v1/freezes/{fid}/pack.zip", headers=up).status_code == 403

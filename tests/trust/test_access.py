@@ -26,6 +26,7 @@ from server.ingest.table import to_csv_bytes
 from server.models import ApiToken
 from server.services import accounts
 from server.synth.dsc import dsc_trace
+from tests.api.test_attachments import micrograph
 from tests.factories import bearer, login_as, make_token, make_user, soup
 
 from .conftest import loop_bytes
@@ -74,6 +75,9 @@ def world(app, client, session):
     m = client.post(f"/api/v1/batches/{batch}/measurements", data={"kind": "pe_loop"},
                     files={"file": ("m.csv", loop_bytes(77), "text/csv")}, headers=writer)
     assert m.status_code == 201, m.text
+    image = client.post(f"/api/v1/compounds/{code}/attachments", headers=writer,
+                        files={"file": ("pom.png", micrograph("PNG", size=(32, 24), seed=77), "image/png")})
+    assert image.status_code == 201, image.text
     freeze = client.post("/api/v1/freezes", json={"name": "matrix freeze", "compounds": [code]}, headers=writer)
     assert freeze.status_code == 201, freeze.text
     # Sacrificial targets for the admin endpoints, so the positive controls revoke nothing we use.
@@ -91,7 +95,10 @@ def world(app, client, session):
                    "username": "spare-user", "token_id": spare.id, "name": "no-such-profile", "reagent_id": 1,
                    # No such comment: only its author or an admin may change one (tests/api/test_comments.py),
                    # so the matrix's positive controls aim past that rule and test the access table alone.
-                   "comment_id": 999999, "freeze_id": freeze.json()["id"], "notification_id": 999999},
+                   "comment_id": 999999, "freeze_id": freeze.json()["id"], "notification_id": 999999,
+                   # A real image: archive and restore need a reason, so the positive controls' empty bodies
+                   # are refused with 422 after the access check and change nothing.
+                   "attachment_id": image.json()["id"]},
         "code": code,
         "batch": batch,
         # The read token is granted the embargo (it is the positive control of the embargo tests).
@@ -307,6 +314,7 @@ WEB_WRITE = {("GET", "/compounds/new"), ("POST", "/compounds/preview"), ("POST",
              ("POST", "/comments/{comment_id}/edit"), ("POST", "/comments/{comment_id}/archive"),
              ("POST", "/compounds/{code}/attachments"), ("POST", "/batches/{code}/attachments"),
              ("POST", "/samples/{code}/attachments"), ("POST", "/measurements/{measurement_id}/attachments"),
+             ("POST", "/attachments/{attachment_id}/archive"), ("POST", "/attachments/{attachment_id}/restore"),
              ("POST", "/freezes"), ("POST", "/freezes/{freeze_id}/publication"),
              ("POST", "/import-profiles/draft"), ("POST", "/import-profiles"),
              ("POST", "/import-profiles/{name}")}

@@ -136,6 +136,10 @@ def _build(settings, which: str) -> tuple[dict, dict]:  # noqa: ANN001
                 assert r.status_code == 201, r.text
                 attachment_ids.append(r.json()["id"])
                 attachment_shas.append(r.json()["sha256"])
+            # One archived with a reason that names the structure: its history is as embargoed as its bytes.
+            r = client.post(f"/api/v1/attachments/{attachment_ids[1]}/archive", headers=w,
+                            json={"reason": f"retaken: {WORLDS[which]['notes']}"})
+            assert r.status_code == 200, r.text
             # A paper freeze holding the embargoed compound beside an open one (issue 23).
             fz = client.post("/api/v1/freezes", json={"name": "bowl-chains manuscript",
                                                       "compounds": [open_codes[0], code]}, headers=w)

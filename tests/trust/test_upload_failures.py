@@ -116,5 +116,32 @@ def test_every_route_that_takes_a_file_is_counted(app):
                                "/api/v1/measurements/{measurement_id}/revise",
                                "/api/v1/samples/{sample_code}/attachments",
                                "/api/v1/samples/{sample_code}/measurements",
+                               "/batches/{code}/attachments",  # the gallery's upload form (issue 23)
                                "/batches/{code}/upload",
-                               "/measurements/{measurement_id}/revise"]
+                               "/compounds/{code}/attachments",
+                               "/measurements/{measurement_id}/attachments",
+                               "/measurements/{measurement_id}/revise",
+                               "/samples/{code}/attachments"]
+
+
+def test_the_web_attachment_form_counts_per_session(client, session, clock, target):
+    """Refused images from the gallery's form count like refused instrument files, per caller."""
+    from tests.api.test_attachments import micrograph
+
+    login_as(client, session, role="member", name="mia")
+    page = f"/batches/{target['batch']}"
+    token = csrf_of(client.get(page).text)
+
+    def post(raw: bytes, name: str = "pom.png", ctype: str = "image/png"):
+        return client.post(f"{page}/attachments", data={"csrf_token": token}, files={"file": (name, raw, ctype)},
+                           follow_redirects=False)
+
+    assert post(micrograph("PNG", size=(40, 30), seed=1)).status_code == 303  # a good image: not counted
+    for raw in (b"not an image at all", micrograph("JPEG", size=(40, 30)), micrograph("PNG", size=(40, 30))[:200]):
+        assert post(raw).status_code == 422  # no signature, JPEG bytes claimed PNG, truncated
+    r = post(micrograph("PNG", size=(40, 30), seed=2))
+    assert r.status_code == 429 and r.headers["Retry-After"] == "60"
+    # The same caller's measurement form waits too; the API attachment route counts the same way for a token.
+    assert client.post(f"/batches/{target['batch']}/upload", data={"kind": "pe_loop", "csrf_token": token},
+                       files={"file": ("loop.csv", loop_bytes(3), "text/csv")}, follow_redirects=False).status_code == 429
+    assert _upload(client, target, "pc1", loop_bytes(3)).status_code == 201  # a token is another caller

@@ -3,20 +3,14 @@ header, plain forms without JavaScript, edit and archive, who sees the form (iss
 
 from __future__ import annotations
 
-from tests.factories import bearer, login_as, make_token, make_user, soup
-from tests.trust.conftest import loop_bytes
+from tests.factories import bearer, login_as, make_token, make_user, soup, targets
 
 
 def _world(client, session, *, embargoed=False):
-    w = bearer(make_token(session, scope="write", name="registrar"))
-    code = client.post("/api/v1/compounds", json={"smiles": "c1ccc2ccccc2c1", "embargoed": embargoed},
-                       headers=w).json()["code"]
-    batch = client.post(f"/api/v1/compounds/{code}/batches", json={"chemist": "lab"}, headers=w).json()["code"]
-    m = client.post(f"/api/v1/batches/{batch}/measurements", data={"kind": "pe_loop"},
-                    files={"file": ("m.csv", loop_bytes(8), "text/csv")}, headers=w).json()
-    return {"w": w, "pages": {f"/compounds/{code}": f"/compounds/{code}/comments",
-                              f"/samples/{m['sample']}": f"/samples/{m['sample']}/comments",
-                              f"/measurements/{m['id']}": f"/measurements/{m['id']}/comments"}}
+    t = targets(client, session, embargoed=embargoed, cycles=8)
+    return {"w": t["w"], "pages": {f"/compounds/{t['code']}": f"/compounds/{t['code']}/comments",
+                                   f"/samples/{t['sample']}": f"/samples/{t['sample']}/comments",
+                                   f"/measurements/{t['measurement']}": f"/measurements/{t['measurement']}/comments"}}
 
 
 def test_htmx_post_swaps_the_thread_and_plain_forms_redirect(client, session):

@@ -1,15 +1,16 @@
-"""Image attachments: ``GET``/``POST /api/v1/{compounds|batches|samples|measurements}/{id-or-code}/attachments``,
-one attachment's metadata, its original bytes and its thumbnail."""
+"""Image attachments: ``GET``/``POST /api/v1/{compounds|batches|samples|measurements}/{id-or-code}/attachments``
+(``?include_archived=true`` lists the archived ones too), one attachment's metadata, its original bytes and its
+thumbnail, and ``POST /api/v1/attachments/{id}/archive`` / ``/restore`` with the reason."""
 
 from __future__ import annotations
 
 from typing import Annotated, Optional
 
-from fastapi import APIRouter, Depends, File, Form, UploadFile
+from fastapi import APIRouter, Depends, File, Form, Query, UploadFile
 from fastapi.responses import Response
 
 from ...deps import Reader, RowId, SessionDep, SettingsDep, Writer
-from ...models import AttachmentPage, AttachmentRead
+from ...models import ArchiveIn, AttachmentPage, AttachmentRead
 from ...services import attachments, comments, measurements
 from .responses import AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND
 
@@ -34,8 +35,12 @@ def _metadata(caption: Optional[str] = Form(None, max_length=2000),
 Metadata = Annotated[dict, Depends(_metadata)]
 
 
-def _page(session, kind: str, ref: str, actor) -> AttachmentPage:  # noqa: ANN001
-    return AttachmentPage(**attachments.gallery(session, comments.resolve(session, kind, ref), actor=actor))
+IncludeArchived = Annotated[bool, Query(description="list archived attachments too (each labelled `archived`)")]
+
+
+def _page(session, kind: str, ref: str, actor, include_archived: bool = False) -> AttachmentPage:  # noqa: ANN001
+    return AttachmentPage(**attachments.gallery(session, comments.resolve(session, kind, ref), actor=actor,
+                                                include_archived=include_archived))
 
 
 def _post(session, settings, kind: str, ref: str, file: UploadFile, form: dict, actor) -> AttachmentRead:  # noqa: ANN001
@@ -48,9 +53,11 @@ def _post(session, settings, kind: str, ref: str, file: UploadFile, form: dict, 
 
 
 @router.get("/compounds/{code}/attachments", response_model=AttachmentPage, responses=READ)
-def compound_attachments(code: str, session: SessionDep, actor: Reader) -> AttachmentPage:
-    """The compound's images, oldest first (``withheld`` for an embargoed compound the caller may not see)."""
-    return _page(session, "compound", code, actor)
+def compound_attachments(code: str, session: SessionDep, actor: Reader,
+                         include_archived: IncludeArchived = False) -> AttachmentPage:
+    """The compound's images, oldest first (``withheld`` for an embargoed compound the caller may not see);
+    archived ones only with ``include_archived``."""
+    return _page(session, "compound", code, actor, include_archived)
 
 
 @router.post("/compounds/{code}/attachments", status_code=201, response_model=AttachmentRead, responses=WRITE)
@@ -61,8 +68,9 @@ def post_compound_attachment(code: str, file: ImageFile, form: Metadata, session
 
 
 @router.get("/batches/{code}/attachments", response_model=AttachmentPage, responses=READ)
-def batch_attachments(code: str, session: SessionDep, actor: Reader) -> AttachmentPage:
-    return _page(session, "batch", code, actor)
+def batch_attachments(code: str, session: SessionDep, actor: Reader,
+                      include_archived: IncludeArchived = False) -> AttachmentPage:
+    return _page(session, "batch", code, actor, include_archived)
 
 
 @router.post("/batches/{code}/attachments", status_code=201, response_model=AttachmentRead, responses=WRITE)
@@ -72,8 +80,9 @@ def post_batch_attachment(code: str, file: ImageFile, form: Metadata, session: S
 
 
 @router.get("/samples/{sample_code}/attachments", response_model=AttachmentPage, responses=READ)
-def sample_attachments(sample_code: str, session: SessionDep, actor: Reader) -> AttachmentPage:
-    return _page(session, "sample", sample_code, actor)
+def sample_attachments(sample_code: str, session: SessionDep, actor: Reader,
+                       include_archived: IncludeArchived = False) -> AttachmentPage:
+    return _page(session, "sample", sample_code, actor, include_archived)
 
 
 @router.post("/samples/{sample_code}/attachments", status_code=201, response_model=AttachmentRead, responses=WRITE)
@@ -83,8 +92,9 @@ def post_sample_attachment(sample_code: str, file: ImageFile, form: Metadata, se
 
 
 @router.get("/measurements/{measurement_id}/attachments", response_model=AttachmentPage, responses=READ)
-def measurement_attachments(measurement_id: RowId, session: SessionDep, actor: Reader) -> AttachmentPage:
-    return _page(session, "measurement", str(measurement_id), actor)
+def measurement_attachments(measurement_id: RowId, session: SessionDep, actor: Reader,
+                            include_archived: IncludeArchived = False) -> AttachmentPage:
+    return _page(session, "measurement", str(measurement_id), actor, include_archived)
 
 
 @router.post("/measurements/{measurement_id}/attachments", status_code=201, response_model=AttachmentRead,
@@ -100,6 +110,30 @@ def get_attachment(attachment_id: RowId, session: SessionDep, actor: Reader) -> 
     att, target = attachments.get_attachment(session, attachment_id, actor=actor)
     stored = attachments.original(session, att)
     return attachments.attachment_read(att, target, filename=stored.filename, size=stored.size, actor=actor)
+
+
+ARCHIVE = {**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS,
+           409: {"description": "the attachment is archived (or restored) already"}}
+
+
+def _set_archived(session, attachment_id: int, data: ArchiveIn, archived: bool, actor) -> AttachmentRead:  # noqa: ANN001
+    att, target = attachments.get_attachment(session, attachment_id, actor=actor)
+    att = attachments.set_archived(session=session, attachment=att, archived=archived, reason=data.reason, actor=actor)
+    stored = attachments.original(session, att)
+    return attachments.attachment_read(att, target, filename=stored.filename, size=stored.size, actor=actor)
+
+
+@router.post("/attachments/{attachment_id}/archive", response_model=AttachmentRead, responses=ARCHIVE)
+def archive_attachment(attachment_id: RowId, data: ArchiveIn, session: SessionDep, actor: Writer) -> AttachmentRead:
+    """Take an image out of its gallery, saying why (kept with who and when in the audit trail); its bytes
+    stay and it stays reachable by id, labelled ``archived``."""
+    return _set_archived(session, attachment_id, data, True, actor)
+
+
+@router.post("/attachments/{attachment_id}/restore", response_model=AttachmentRead, responses=ARCHIVE)
+def restore_attachment(attachment_id: RowId, data: ArchiveIn, session: SessionDep, actor: Writer) -> AttachmentRead:
+    """Put an archived image back in its gallery, saying why."""
+    return _set_archived(session, attachment_id, data, False, actor)
 
 
 def _safe_name(name: str, fallback: str) -> str:

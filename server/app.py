@@ -195,6 +195,9 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     )
     app.state.settings = settings
     app.state.engine = engine
+    from .services.search import keep_index_in
+
+    keep_index_in(engine, settings.data_dir)  # the in-process structure index survives restarts
     mail.attach(engine, settings)  # notification e-mail, when REMANENCE_SMTP_HOST is set
     templates = Jinja2Templates(directory=str(templates_dir()))
     templates.env.globals.update(version=__version__, static_url=static_url, plotly_bundle=PLOTLY_BUNDLE,

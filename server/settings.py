@@ -37,7 +37,7 @@ class Setting:
 
 
 SETTINGS: tuple[Setting, ...] = (
-    Setting("data_dir", "REMANENCE_DATA_DIR", "Folder for the default SQLite database and the generated secret key.", Path),
+    Setting("data_dir", "REMANENCE_DATA_DIR", "Folder for the default SQLite database, the generated secret key and the structure-search index file.", Path),
     Setting(
         "database_url",
         "REMANENCE_DATABASE_URL",

@@ -21,9 +21,11 @@ from __future__ import annotations
 import logging
 import math
 import threading
+import time
 import weakref
 from collections.abc import Collection
 from dataclasses import asdict, dataclass
+from pathlib import Path
 from typing import Optional
 
 from sqlalchemy import event, func, text
@@ -31,11 +33,13 @@ from sqlalchemy.engine import Connection, Engine
 from sqlalchemy.exc import DBAPIError
 from sqlmodel import Session, select
 
-from ..chem.search import MORGAN_RADIUS, Query, QueryTooGeneral, StructureIndex, read_query
+from ..chem.search import (MORGAN_RADIUS, Query, QueryTooGeneral, StructureIndex, load_entries, read_query,
+                           save_entries)
 from ..errors import InputError
 from ..models import Compound
 
-__all__ = ["STRUCTURE_TABLE", "Hit", "backend", "search", "index_compound", "structure_index", "enable_cartridge",
+__all__ = ["STRUCTURE_TABLE", "Hit", "backend", "search", "index_compound", "structure_index", "keep_index_in",
+           "enable_cartridge",
            "CartridgeState"]
 
 log = logging.getLogger("remanence.search")
@@ -57,6 +61,13 @@ MATCH_BUDGET_S = 5.0
 _lock = threading.Lock()
 _indexes: "weakref.WeakKeyDictionary[Engine, StructureIndex]" = weakref.WeakKeyDictionary()
 _backends: "weakref.WeakKeyDictionary[Engine, str]" = weakref.WeakKeyDictionary()
+_files: "weakref.WeakKeyDictionary[Engine, Path]" = weakref.WeakKeyDictionary()
+_unsaved: "weakref.WeakKeyDictionary[Engine, int]" = weakref.WeakKeyDictionary()
+# File (in the data directory) where the in-process index keeps its entries between start-ups.
+INDEX_FILE = "structure-index.bin"
+# Structures computed since the file was last written before it is written again (about 2 s of
+# start-up work at the bench's 2 ms a molecule; a file write per registration elsewhere would cost more).
+SAVE_AFTER = 1000
 _PENDING = "remanence.search.pending"
 _HOOKED = "remanence.search.hooked"
 
@@ -117,15 +128,31 @@ def _index_for(engine: Engine) -> StructureIndex:
         return index
 
 
+def keep_index_in(engine: Engine, directory: Path | None) -> None:
+    """Keep ``engine``'s in-process index entries in ``directory`` (:data:`INDEX_FILE`) between start-ups.
+
+    The app passes its data directory. The file is keyed by stored SMILES text (see
+    ``server.chem.search.save_entries``), so it is right for any state of the table: an entry is used only
+    for the very SMILES it was computed from, and what it lacks is computed and written back.
+    """
+    with _lock:
+        if directory is None:
+            _files.pop(engine, None)
+        else:
+            _files[engine] = Path(directory) / INDEX_FILE
+
+
 def structure_index(session: Session) -> StructureIndex:
     """The engine's in-process index, brought up to date with the compound table.
 
     Compounds are never deleted and their structures never change, so the index is current
     when it holds exactly the table's ids; the check is one ``count``/``max`` query, and a
     difference (first use, another process registered, a registration rolled back) loads
-    or drops only the ids that differ.
+    or drops only the ids that differ. On first use with a file (:func:`keep_index_in`) the
+    entries are read from it instead of being computed.
     """
-    index = _index_for(_engine(session))
+    engine = _engine(session)
+    index = _index_for(engine)
     count, max_id = session.exec(select(func.count(Compound.id), func.max(Compound.id))).one()
     if count == len(index) and max_id == index.max_id():
         return index
@@ -139,10 +166,38 @@ def structure_index(session: Session) -> StructureIndex:
             chunk = missing[start:start + _CHUNK]
             yield from session.exec(select(Compound.id, Compound.smiles).where(Compound.id.in_(chunk))).all()
 
-    index.add_many(rows())
+    path = _files.get(engine)
+    known = load_entries(path) if path is not None and not held else None
+    computed = index.add_many(rows(), known=known)
+    first_file = known is not None and not known  # no usable file yet (none, damaged, or another RDKit)
+    del known  # only needed while the rows go in
     if missing:
-        log.info("structure index: %d compounds added (%d held)", len(missing), len(index))
+        log.info("structure index: %d compounds added (%d computed, %d held)", len(missing), computed, len(index))
+    if path is not None and computed:
+        with _lock:
+            unsaved = _unsaved[engine] = _unsaved.get(engine, 0) + computed
+        if unsaved >= SAVE_AFTER or first_file:
+            _save(session, index, path)
+            with _lock:
+                _unsaved[engine] = 0
     return index
+
+
+def _save(session: Session, index: StructureIndex, path: Path) -> None:
+    entries = index.entries()
+
+    def records():
+        for compound_id, smiles in session.exec(select(Compound.id, Compound.smiles)):
+            entry = entries.get(compound_id)
+            if entry is not None:
+                yield smiles, entry
+
+    try:
+        n = save_entries(path, records())
+    except OSError as exc:  # a read-only data directory costs start-up time, not searches
+        log.warning("structure index not written to %s: %s", path, exc)
+        return
+    log.info("structure index: %d entries written to %s", n, path)
 
 
 def _apply_pending(session: Session) -> None:
@@ -218,6 +273,8 @@ def search(
     include_archived: bool = False,
     include_embargoed: bool = True,
     budget_s: float = MATCH_BUDGET_S,
+    limit: int | None = None,
+    newest_first: bool = False,
 ) -> list[Hit]:
     """Compounds that contain a substructure and/or resemble a structure.
 
@@ -242,12 +299,19 @@ def search(
     budget_s : float
         Seconds of substructure matching allowed (:data:`MATCH_BUDGET_S`): checked between
         chunks of molecules in process, PostgreSQL's ``statement_timeout`` on the cartridge.
+    limit : int, optional
+        Only the first ``limit`` hits (a first page). A substructure-only search then stops
+        matching once they are certain (``StructureIndex.substructure(limit=)``; ``LIMIT`` on
+        the cartridge), so it does not wait for the whole count.
+    newest_first : bool
+        Substructure-only order by id descending (newest registration first) instead of ascending.
 
     Returns
     -------
     list of Hit
         With ``similar``: by similarity (highest first), then id. Otherwise by id
-        (registration order). Both filters given: compounds that pass both.
+        (registration order; newest first with ``newest_first``). Both filters given:
+        compounds that pass both.
 
     Raises
     ------
@@ -263,19 +327,29 @@ def search(
                          field="substructure")
     sub_q = read_query(substructure, kind="substructure") if _given(substructure) else None
     sim_q = read_query(similar, kind="similarity") if _given(similar) else None
+    if limit is not None and (isinstance(limit, bool) or not isinstance(limit, int) or limit < 1):
+        raise InputError(f"limit must be a whole number of at least 1, not {limit!r}", field="limit")
     if candidate_ids is not None:
         candidate_ids = {int(i) for i in candidate_ids}
         if not candidate_ids:
             return []
+    newest_first = newest_first and sim_q is None  # similarity keeps its own order
     if backend(session) == CARTRIDGE:
         return _search_cartridge(session, sub_q, sim_q, t, candidate_ids, include_archived, include_embargoed,
-                                 budget_s)
-    return _search_in_process(session, sub_q, sim_q, t, candidate_ids, include_archived, include_embargoed,
+                                 budget_s, limit, newest_first)
+    if limit is not None and sim_q is None:
+        return _first_in_process(session, sub_q, candidate_ids, include_archived, include_embargoed, budget_s,
+                                 limit, newest_first)
+    hits = _search_in_process(session, sub_q, sim_q, t, candidate_ids, include_archived, include_embargoed,
                               budget_s)
+    if newest_first:
+        hits.reverse()
+    return hits if limit is None else hits[:limit]
 
 
 def _search_cartridge(session, sub_q: Query | None, sim_q: Query | None, t: float, candidate_ids,
-                      include_archived: bool, include_embargoed: bool, budget_s: float) -> list[Hit]:
+                      include_archived: bool, include_embargoed: bool, budget_s: float, limit: int | None = None,
+                      newest_first: bool = False) -> list[Hit]:
     params: dict = {}
     where: list[str] = []
     sim_column = "NULL"
@@ -294,6 +368,8 @@ def _search_cartridge(session, sub_q: Query | None, sim_q: Query | None, t: floa
         where.append(f"{sim_column} >= CAST(:t AS double precision)")
         params.update(sim=sim_q.text, t=t)
         order = "similarity DESC, c.id"
+    elif newest_first:
+        order = "c.id DESC"
     if not include_archived:
         where.append("NOT c.archived")
     if not include_embargoed:
@@ -306,6 +382,9 @@ def _search_cartridge(session, sub_q: Query | None, sim_q: Query | None, t: floa
         f"FROM {STRUCTURE_TABLE} AS s JOIN compound AS c ON c.id = s.compound_id "
         f"WHERE {' AND '.join(where)} ORDER BY {order}"
     )
+    if limit is not None:
+        sql += " LIMIT :limit"
+        params["limit"] = limit
     rows = _within_budget(session, text(sql), params, budget_s)
     return [Hit(compound_id=r[0], code=r[1], similarity=None if r[2] is None else float(r[2])) for r in rows]
 
@@ -334,16 +413,25 @@ def _within_budget(session: Session, statement, params: dict, budget_s: float) -
     return rows
 
 
-def _search_in_process(session, sub_q: Query | None, sim_q: Query | None, t: float, candidate_ids,
-                       include_archived: bool, include_embargoed: bool, budget_s: float) -> list[Hit]:
+def _first_in_process(session, sub_q: Query, candidate_ids, include_archived: bool, include_embargoed: bool,
+                      budget_s: float, limit: int, newest_first: bool) -> list[Hit]:
+    """The first ``limit`` visible substructure hits: the index is asked for a few more each round (archived,
+    embargoed or not yet committed hits are left out afterwards), so a first page matches a few chunks."""
     index = structure_index(session)
-    candidates = candidate_ids
-    found: list[tuple[int, Optional[float]]] = []
-    if sub_q is not None:
-        candidates = index.substructure(sub_q.mol, candidates, budget_s=budget_s)
-        found = [(i, None) for i in candidates]
-    if sim_q is not None:
-        found = index.similar(sim_q.mol, t, candidates)
+    deadline = time.monotonic() + budget_s
+    ask = limit
+    while True:
+        ids = index.substructure(sub_q.mol, candidate_ids, budget_s=max(0.0, deadline - time.monotonic()),
+                                 limit=ask, newest_first=newest_first)
+        hits = _visible(session, [(i, None) for i in ids], include_archived, include_embargoed)
+        if len(hits) >= limit or len(ids) < ask:
+            return hits[:limit]
+        ask *= 4
+
+
+def _visible(session, found: list[tuple[int, Optional[float]]], include_archived: bool,
+             include_embargoed: bool) -> list[Hit]:
+    """``found`` (id, similarity) as hits, in the same order, without what this caller and transaction may not see."""
     ids = [i for i, _ in found]
     info: dict[int, tuple[str, bool, bool]] = {}
     for start in range(0, len(ids), _CHUNK):
@@ -363,6 +451,19 @@ def _search_in_process(session, sub_q: Query | None, sim_q: Query | None, t: flo
             continue
         hits.append(Hit(compound_id=compound_id, code=code, similarity=sim))
     return hits
+
+
+def _search_in_process(session, sub_q: Query | None, sim_q: Query | None, t: float, candidate_ids,
+                       include_archived: bool, include_embargoed: bool, budget_s: float) -> list[Hit]:
+    index = structure_index(session)
+    candidates = candidate_ids
+    found: list[tuple[int, Optional[float]]] = []
+    if sub_q is not None:
+        candidates = index.substructure(sub_q.mol, candidates, budget_s=budget_s)
+        found = [(i, None) for i in candidates]
+    if sim_q is not None:
+        found = index.similar(sim_q.mol, t, candidates)
+    return _visible(session, found, include_archived, include_embargoed)
 
 
 # --- enabling the cartridge after the migrations ------------------------------------------------

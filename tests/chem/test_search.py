@@ -16,11 +16,14 @@ from rdkit import Chem, DataStructs, rdBase
 from rdkit.Chem import rdMolDescriptors
 
 from server.chem.scaffold import PARENT_BOWLS, attach_side_chains, build_from_scaffold
+import server.chem.search as search_module
 from server.chem.search import (
     StructureIndex,
     fingerprint,
+    load_entries,
     parse_query,
     read_query,
+    save_entries,
 )
 from server.errors import ChemistryError
 
@@ -362,3 +365,85 @@ def test_searches_during_registrations_see_whole_snapshots():
     for hits in seen:
         assert hits == list(range(1, 2 * len(hits), 2))
     assert idx.substructure(benzene) == list(range(1, 301, 2))
+
+
+# --- first hits (limit) and the index's entries on disk ------------------------------------------
+
+@pytest.mark.parametrize("smarts", ["c1ccccc1", "[#34]", "[OX2][CH2][CH2]", "c1ccsc1", "[N+](=O)[O-]"])
+def test_first_hits_are_the_head_of_the_whole_answer(monkeypatch, smarts):
+    """limit= gives the first ids of the full answer, both ways, with candidates, and across segments that a
+    replacement left out of id order (brute force: HasSubstructMatch on every molecule)."""
+    monkeypatch.setattr(search_module, "SEGMENT_SIZE", 7)
+    idx = StructureIndex(threads=1)
+    idx.chunk = 3
+    idx.add_many(zip(IDS, MOLECULES))
+    idx.add(IDS[2], MOLECULES[2])  # re-added: now in the last segment, whose ids are no longer ascending
+    q = parse_query(smarts)
+    full = brute_substructure(q)
+    odd = [i for i in IDS if i % 2]
+    for limit in (1, 2, 5, 50):
+        assert idx.substructure(q, limit=limit) == full[:limit]
+        assert idx.substructure(q, limit=limit, newest_first=True) == full[::-1][:limit]
+        assert idx.substructure(q, odd, limit=limit) == brute_substructure(q, odd)[:limit]
+    assert idx.substructure(q, newest_first=True) == full[::-1]
+
+
+def test_first_hits_stop_matching_early():
+    """A first page of a group every molecule carries matches one chunk, not the whole index."""
+    idx = StructureIndex(threads=1)
+    idx.chunk = 16
+    idx.add_many((i, "c1ccccc1" + "C" * (i % 5)) for i in range(1, 3001))
+    calls = []
+    for seg in idx._snap[0]:
+        original = seg.lib
+
+        class Counting:
+            def GetMatches(self, *args, _lib=original, **kw):
+                calls.append(1)
+                return _lib.GetMatches(*args, **kw)
+
+        object.__setattr__(seg, "lib", Counting())
+    assert idx.substructure(parse_query("c1ccccc1"), limit=10) == list(range(1, 11))
+    assert len(calls) == 1
+    calls.clear()
+    assert idx.substructure(parse_query("c1ccccc1"), limit=10, newest_first=True) == list(range(3000, 2990, -1))
+    assert len(calls) == 2  # the last segment holds 3000 - 2 * 1024 = 952 ids: its last chunk only 952 % 16 = 8
+
+
+def test_entries_round_trip_through_the_file(tmp_path):
+    idx = StructureIndex()
+    idx.add_many(zip(IDS, MOLECULES))
+    entries = idx.entries()
+    path = tmp_path / "index.bin"
+    assert save_entries(path, ((MOLECULES[IDS.index(i)], e) for i, e in entries.items())) == len(MOLECULES)
+    known = load_entries(path)
+    assert set(known) == set(MOLECULES)
+    again = StructureIndex()
+    assert again.add_many(zip(IDS, MOLECULES), known=known) == 0  # nothing parsed again
+    for smarts in SMARTS_QUERIES:
+        q = parse_query(smarts)
+        assert again.substructure(q) == idx.substructure(q)
+    for smi, e in zip(MOLECULES, (entries[i] for i in IDS)):
+        smiles, pattern, morgan = known[smi]
+        assert smiles == e[0] and pattern == e[1] and morgan == e[2]
+    probe = Chem.MolFromSmiles(MOLECULES[3])
+    assert again.similar(probe, 0.3) == idx.similar(probe, 0.3)
+    assert again.add_many([(999, "CCO")], known=known) == 1  # not in the file: computed
+    assert 999 in again.substructure(parse_query("[CH3][CH2][OH]"))
+
+
+def test_a_damaged_or_foreign_file_is_ignored(tmp_path, monkeypatch):
+    idx = StructureIndex()
+    idx.add_many(zip(IDS[:5], MOLECULES[:5]))
+    path = tmp_path / "index.bin"
+    save_entries(path, ((MOLECULES[IDS.index(i)], e) for i, e in idx.entries().items()))
+    data = bytearray(path.read_bytes())
+    assert len(load_entries(path)) == 5
+    data[len(data) // 2] ^= 0xFF  # one flipped byte
+    (tmp_path / "bad.bin").write_bytes(bytes(data))
+    assert load_entries(tmp_path / "bad.bin") == {}
+    (tmp_path / "short.bin").write_bytes(b"x")
+    assert load_entries(tmp_path / "short.bin") == {}
+    assert load_entries(tmp_path / "absent.bin") == {}
+    monkeypatch.setattr(search_module, "PATTERN_FP_SIZE", 1024)  # other fingerprint settings: not this file's
+    assert load_entries(path) == {}

@@ -294,3 +294,64 @@ def test_homologues_are_told_apart_on_both_back_ends(client, writer, session):
     for h in hits:
         assert h.similarity == pytest.approx(ref[h.code], abs=1e-12)
     assert hits[1].similarity < 1.0 and hits[-1].code == by_smiles[series[12]]
+
+
+def test_the_index_is_read_back_from_the_data_directory_after_a_restart(client, writer, session, small_set,
+                                                                        tmp_path, monkeypatch):
+    """A restarted process reads the entries from the file instead of parsing and fingerprinting again;
+    a compound registered meanwhile (by another process) is computed and found; a damaged file is ignored."""
+    from server.chem import search as chem_search
+
+    engine = session.get_bind()
+    structure_search.keep_index_in(engine, tmp_path / "data")
+    computed = []
+    real_entry = chem_search._entry
+    monkeypatch.setattr(chem_search, "_entry", lambda i, smi: computed.append(i) or real_entry(i, smi))
+
+    def restart():
+        structure_search._indexes.pop(engine, None)
+        computed.clear()
+        return structure_search.structure_index(session)
+
+    try:
+        restart()
+        path = tmp_path / "data" / structure_search.INDEX_FILE
+        assert path.exists() and sorted(computed) == [c.id for c in small_set]
+        index = restart()
+        assert computed == [] and index.ids() == {c.id for c in small_set}
+        for q in QUERIES:
+            assert index.substructure(chem_search.read_query(q).mol) == brute_sub(
+                small_set, q, kekule_smiles=q == "C1=CC=CC=C1"), q
+        new = next(iter(register(client, writer, ["O=[N+]([O-])c1ccccc1"])))
+        index = restart()
+        session.expire_all()
+        assert len(computed) == 1
+        assert [h.code for h in structure_search.search(session, substructure="[N+](=O)[O-]")] == [new]
+        assert {c.id for c in stored(session)} == index.ids()
+        path.write_bytes(path.read_bytes()[:-1] + b"\0")  # damaged: every entry computed again
+        restart()
+        assert len(computed) == len(small_set) + 1
+        restart()  # and written back whole
+        assert computed == []
+    finally:
+        structure_search.keep_index_in(engine, None)
+
+
+def test_a_first_page_is_the_head_of_the_whole_answer(client, writer, session, small_set):
+    """limit= and newest_first= give the head of the full answer (brute force), archived hits left out first."""
+    benzene_ring = brute_sub(small_set, "c1ccccc1")
+    for gone_id in (benzene_ring[0], benzene_ring[-1], benzene_ring[-2]):
+        gone = next(c for c in small_set if c.id == gone_id)
+        assert client.post(f"/api/v1/compounds/{gone.code}/archive", headers=writer).status_code == 200
+    session.expire_all()
+    visible = [i for i in benzene_ring if i not in (benzene_ring[0], benzene_ring[-1], benzene_ring[-2])]
+    for limit in (1, 2, 3, 100):
+        hits = structure_search.search(session, substructure="c1ccccc1", limit=limit)
+        assert [h.compound_id for h in hits] == visible[:limit]
+        hits = structure_search.search(session, substructure="c1ccccc1", limit=limit, newest_first=True)
+        assert [h.compound_id for h in hits] == visible[::-1][:limit]
+    hits = structure_search.search(session, similar=MOLECULES[1], threshold=0.3, limit=2, newest_first=True)
+    assert [h.compound_id for h in hits] == [i for i, _ in brute_sim(small_set, MOLECULES[1], 0.3)][:2]
+    with pytest.raises(InputError) as err:
+        structure_search.search(session, substructure="c1ccccc1", limit=0)
+    assert err.value.field == "limit"

@@ -45,8 +45,10 @@ from sqlmodel import Session
 from server.verdict_codes import LABELS as VERDICT_LABELS
 from server.chem import identity, scaffold, sidechains
 from server.db import alembic_config, make_engine, upgrade
+from server import merit
+from server.models.planning import life_state
 from server.models import (
-    BarrierEstimate, Batch, Compound, CompoundSideChain, CompoundStats, CrystalPhase, Measurement, RawFile, Scaffold,
+    BarrierEstimate, Batch, Compound, CompoundSideChain, CompoundStats, CrystalPhase, Measurement, RawFile, Sample, Scaffold,
 )
 from server.services import accounts
 from server.analysis.constants import R_J_MOLK
@@ -241,10 +243,17 @@ def _stats_row(cid: int, chains: list[dict], batches: list[dict], ms: list[dict]
                purity_best_pct=max((b["purity_pct"] for b in batches if b["purity_pct"] is not None), default=None))
     kinds = sorted({m["kind"] for m in ms})
     row.update(n_measurements=len(ms), kinds="," + ",".join(kinds) + "," if kinds else "")
-    loops = [m["results"] for m in ms if m["kind"] == "pe_loop" and m["verdict"] == "switching"]
-    best = max(loops, key=lambda r: r.get("pr_uC_cm2") or 0, default=None)
+    row.update(identity_status="unconfirmed" if batches else "no batches",  # no seeded batch is confirmed
+               life_state=life_state(None, set(states)))
+    apparent = merit.apparent_reasons([{**m, "sample": m["sample_id"]} for m in ms])  # what refresh() leaves out of best values (PUND contradicting a loop)
+    loops = [m for m in ms if m["kind"] == "pe_loop" and m["id"] not in apparent and merit.is_figure_of_merit(m)]
+    best_m = max(loops, key=lambda m: m["results"].get("pr_uC_cm2") or 0, default=None)
+    best = best_m["results"] if best_m else None
     row.update(pr_max_uC_cm2=best["pr_uC_cm2"] if best else None, ec_kV_cm=best["ec_kV_cm"] if best else None,
-               ps_uC_cm2=best["ps_uC_cm2"] if best else None)
+               ps_uC_cm2=best["ps_uC_cm2"] if best else None,
+               pr_max_t_K=best_m["temperature_K"] if best_m else None,
+               pr_max_emax_kV_cm=best.get("emax_kV_cm") if best else None,
+               pr_max_measurement_id=best_m["id"] if best_m else None)
     # refresh() takes the latest dielectric (highest measurement id) that has a peak.
     diel = [m["results"] for m in sorted(ms, key=lambda m: m["id"])
             if m["kind"] == "dielectric" and m["results"].get("t_peak_K") is not None]
@@ -309,7 +318,7 @@ def registry_rows(records: list[dict[str, Any]], n_measurements: int, settings: 
         elif per_compound[i] > 0:
             per_compound[i] -= 1
             diff += 1
-    tables: dict[str, list[dict]] = {k: [] for k in ("scaffold", "compound", "batch", "rawfile", "measurement",
+    tables: dict[str, list[dict]] = {k: [] for k in ("scaffold", "compound", "batch", "sample", "rawfile", "measurement",
                                                      "barrierestimate", "crystalphase", "compoundsidechain",
                                                      "compoundstats")}
     for sid, (bowl, code) in enumerate(BOWL_CODES.items(), start=1):
@@ -351,6 +360,10 @@ def registry_rows(records: list[dict[str, Any]], n_measurements: int, settings: 
                  "state": _pick(rng, BATCH_STATE_WEIGHTS), "notes": "", "archived": False, "created_at": b_created,
                  "created_by": "bench"}
             batches.append(b)
+            # The batch's default sample (what the first upload to a batch creates), id = the batch's id.
+            tables["sample"].append({"id": batch_id, "code": f"{b['code']}-S01", "batch_id": batch_id, "seq": 1,
+                                     "form": "", "is_default": True, "archived": False, "created_at": b_created,
+                                     "created_by": "bench"})
         tables["batch"].extend(batches)
         barrier = rng.uniform(10.0, 26.0)  # kcal/mol, the range of dynamic-NMR bowl inversions
         ms, bars, phases = [], [], []
@@ -365,7 +378,7 @@ def registry_rows(records: list[dict[str, Any]], n_measurements: int, settings: 
             tables["rawfile"].append({"id": rawfile_id, "sha256": sha, "size": len(data), "filename": f"{kind}-{measurement_id}.csv",
                                       "content_type": "text/csv", "data": data, "created_at": m_created})
             results, mverdict, t_K = _measurement_results(rng, kind, barrier + rng.gauss(0, 0.2))
-            m = {"id": measurement_id, "batch_id": b["id"], "kind": kind, "raw_file_id": rawfile_id, "sha256": sha,
+            m = {"id": measurement_id, "batch_id": b["id"], "sample_id": b["id"], "kind": kind, "raw_file_id": rawfile_id, "sha256": sha,
                  "conditions": {}, "results": results, "flags": [], "verdict": mverdict,
                  "analysis_version": f"{kind}/bench", "temperature_K": t_K, "instrument": "", "operator": "bench",
                  "notes": "", "archived": False, "created_at": m_created, "analysed_at": m_created, "created_by": "bench"}
@@ -381,6 +394,7 @@ def registry_rows(records: list[dict[str, Any]], n_measurements: int, settings: 
                 phase_id += 1
                 polar = rng.random() < 0.4
                 sg, number = rng.choice(POLAR_GROUPS if polar else NONPOLAR_GROUPS)
+                results.update(space_group=sg, polar=polar)  # what the crystal analysis writes (kinds/crystal.py)
                 phases.append({"id": phase_id, "compound_id": cid, "batch_id": b["id"], "measurement_id": measurement_id,
                                "space_group": sg, "space_group_number": number, "polar": polar,
                                "centrosymmetric": not polar and sg != "P2_1", "temperature_K": 120.0, "results": {},
@@ -401,7 +415,7 @@ def registry_rows(records: list[dict[str, Any]], n_measurements: int, settings: 
 
 
 _ORDER = (("scaffold", Scaffold), ("compound", Compound), ("compoundsidechain", CompoundSideChain),
-          ("batch", Batch), ("rawfile", RawFile), ("measurement", Measurement), ("barrierestimate", BarrierEstimate),
+          ("batch", Batch), ("sample", Sample), ("rawfile", RawFile), ("measurement", Measurement), ("barrierestimate", BarrierEstimate),
           ("crystalphase", CrystalPhase), ("compoundstats", CompoundStats))
 
 

@@ -59,6 +59,12 @@ class Compound(SQLModel, table=True):
     override_by: str = Field(default="", max_length=120)
     override_at: Optional[datetime] = Field(default=None, sa_type=UTCDateTime)
 
+    # The registry's sorts read these in order, the registration number breaking ties (server/services/views.py:
+    # keyset pages seek to the last row shown instead of counting past an offset).
+    __table_args__ = (sa.Index("ix_compound_mw_number", "mw", "number"),
+                      sa.Index("ix_compound_label_number", "label", "number"),
+                      sa.Index("ix_compound_created_at_number", "created_at", "number"))
+
 
 class CodeCounter(SQLModel, table=True):
     """The last number handed out in one code series ("compound", or "batch:<compound code>").
@@ -171,6 +177,8 @@ class CompoundRead(SQLModel):
 class CompoundPage(SQLModel):
     items: list[CompoundRead]
     total: int
+    # The keyset position of the next page (pass it back as ``after=``, with the same sort), None on the last.
+    next_after: Optional[str] = None
 
 
 class BatchCreate(SQLModel):

@@ -32,8 +32,8 @@ IDENTITY_STATES: tuple[str, ...] = ("confirmed", "partly confirmed", "unconfirme
 
 class CompoundStats(SQLModel, table=True):
     compound_id: int = Field(foreign_key="compound.id", primary_key=True)
-    n_batches: int = 0
-    n_measurements: int = 0
+    n_batches: int = Field(default=0, index=True)
+    n_measurements: int = Field(default=0, index=True)
     kinds: str = Field(default="", max_length=200)  # ",pe_loop,dsc," for LIKE filters
     batch_states: str = Field(default="", max_length=200)  # ",made,failed,"
     # IDENTITY_STATES: whether the live batches' identity is confirmed (all, some, none, no batches)
@@ -44,17 +44,17 @@ class CompoundStats(SQLModel, table=True):
     chain_carbons_max: Optional[int] = None
     chain_branched: bool = False
     chain_count: int = 0
-    barrier_measured_kcal_mol: Optional[float] = None
-    barrier_computed_kcal_mol: Optional[float] = None
+    barrier_measured_kcal_mol: Optional[float] = Field(default=None, index=True)
+    barrier_computed_kcal_mol: Optional[float] = Field(default=None, index=True)
     bowl_depth_A: Optional[float] = None
     dipole_D: Optional[float] = None
-    pr_max_uC_cm2: Optional[float] = None  # the largest Pr of a live loop judged ferroelectric
+    pr_max_uC_cm2: Optional[float] = Field(default=None, index=True)  # the largest Pr of a live loop judged ferroelectric
     pr_max_t_K: Optional[float] = None  # the temperature of that loop
     pr_max_emax_kV_cm: Optional[float] = None  # its field amplitude
     pr_max_measurement_id: Optional[int] = None  # that loop (its specimen and page)
-    ec_kV_cm: Optional[float] = None
+    ec_kV_cm: Optional[float] = Field(default=None, index=True)
     ps_uC_cm2: Optional[float] = None
-    t_peak_K: Optional[float] = None
+    t_peak_K: Optional[float] = Field(default=None, index=True)
     eps_peak: Optional[float] = None
     curie_constant_K: Optional[float] = None
     dsc_t_K: Optional[float] = None

@@ -9,13 +9,17 @@ SQLAlchemy expressions, whose literals travel as bound parameters.
 
 from __future__ import annotations
 
+import base64
+import binascii
+import json
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from datetime import date, datetime, time, timedelta, timezone
 from typing import Any, Callable, Mapping, Optional, Sequence
 
 import pandas as pd
 from sqlalchemy import and_, exists, func, or_
+from sqlalchemy.sql import visitors
 from sqlalchemy.sql.elements import ColumnElement
 from sqlmodel import Session, select
 
@@ -248,6 +252,8 @@ PARAM_LABELS: dict[str, str] = {
     "dir": "Sort direction",
     "page": "Page",
     "size": "Rows per page",
+    "after": "Page position",
+    "before": "Page position",
 }
 
 # Filters whose answer depends on a compound's structure (its scaffold, side chains, or a value computed
@@ -295,6 +301,10 @@ class ViewQuery:
     substructure: Optional[str] = None
     similar: Optional[str] = None
     threshold: float = 0.7
+    # A keyset position (:class:`Cursor`): the page just after, or just before, this compound in the
+    # view's order. ``page`` then only labels the page; without a cursor, page N is found by offset.
+    after: Optional["Cursor"] = None
+    before: Optional["Cursor"] = None
 
     def link(self, **changes: Any) -> str:
         """The query string of this view with some parameters changed (None removes one)."""
@@ -328,6 +338,10 @@ class ViewQuery:
             out["dir"] = "desc" if self.descending else "asc"
         if self.page != 1:
             out["page"] = str(self.page)
+        if self.after is not None:
+            out["after"] = self.after.token
+        if self.before is not None:
+            out["before"] = self.before.token
         if self.size != 50:
             out["size"] = str(self.size)
         return out
@@ -363,8 +377,55 @@ def parse_view(params: Any, *, max_size: int = 500) -> ViewQuery:
     sub = (getlist("substructure") or [None])[-1]
     sim = (getlist("similar") or [None])[-1]
     threshold = _float("threshold", (getlist("threshold") or ["0.7"])[-1])
+    positions = {}
+    for name in ("after", "before"):
+        token = (getlist(name) or [None])[-1]
+        if token is not None:
+            positions[name] = Cursor.parse(name, token, sort=sort, descending=direction == "desc")
+    if len(positions) == 2:
+        raise InputError("a page continues after one row or before one, not both", field="before")
     return ViewQuery(values=values, sort=sort, descending=direction == "desc", page=page, size=size,
-                     substructure=sub, similar=sim, threshold=threshold)
+                     substructure=sub, similar=sim, threshold=threshold, **positions)
+
+
+@dataclass(frozen=True)
+class Cursor:
+    """Where a keyset page starts: the registration number of the row next to it, under one sort.
+
+    The token (``after=`` / ``before=`` in the query string) is opaque to callers: base64url of
+    ``{"s": sort, "d": "asc"|"desc", "n": number}``. It never carries a sort value: the server reads
+    the anchor row's value again, as the caller may see it (:func:`access.structure_value`), so a
+    token written for a member says nothing of an embargoed structure to whoever it is passed to,
+    and a token naming an embargoed compound places a viewer's page by code alone.
+    """
+
+    sort: str
+    descending: bool
+    number: int
+
+    @property
+    def token(self) -> str:
+        raw = json.dumps({"s": self.sort, "d": "desc" if self.descending else "asc", "n": self.number},
+                         separators=(",", ":")).encode()
+        return base64.urlsafe_b64encode(raw).decode().rstrip("=")
+
+    @classmethod
+    def parse(cls, name: str, token: str, *, sort: str, descending: bool) -> "Cursor":
+        bad = InputError("this page position is not one the registry wrote; start again from the first page",
+                         field=name)
+        if len(token) > 200:
+            raise bad
+        try:
+            data = json.loads(base64.urlsafe_b64decode(token + "=" * (-len(token) % 4)))
+        except (binascii.Error, ValueError, UnicodeDecodeError):
+            raise bad from None
+        if not isinstance(data, dict) or set(data) != {"s", "d", "n"} or type(data["n"]) is not int \
+                or not 1 <= data["n"] <= MAX_ROW_ID:
+            raise bad
+        if data["s"] != sort or data["d"] != ("desc" if descending else "asc"):
+            raise InputError("this page position belongs to another sort; start again from the first page",
+                             field=name)
+        return cls(sort=sort, descending=descending, number=data["n"])
 
 
 def parse_view_or_error(params: Any, *, max_size: int = 500) -> tuple[ViewQuery, Optional[InputError]]:
@@ -400,13 +461,20 @@ class ViewRow:
 
 @dataclass(frozen=True)
 class ViewResult:
+    """One page of a view. ``total`` is None when it was not counted (:func:`query_view`, ``count=False``)
+    and more rows follow; ``next_cursor`` / ``prev_cursor`` are the keyset positions of the pages beside it
+    (None where there is none, or where the view is ordered in Python and paged by offset)."""
+
     rows: list[ViewRow]
-    total: int
+    total: Optional[int]
     query: ViewQuery
+    has_next: bool = False
+    next_cursor: Optional[Cursor] = None
+    prev_cursor: Optional[Cursor] = None
 
     @property
-    def pages(self) -> int:
-        return max(1, -(-self.total // self.query.size))
+    def pages(self) -> Optional[int]:
+        return None if self.total is None else max(1, -(-self.total // self.query.size))
 
 
 def _conditions(q: ViewQuery, actor: Optional[Actor] = None) -> list[ColumnElement]:
@@ -428,15 +496,25 @@ def _conditions(q: ViewQuery, actor: Optional[Actor] = None) -> list[ColumnEleme
     return conds
 
 
-def query_view(session: Session, q: ViewQuery, *, actor: Optional[Actor], paged: bool = True,
-               structures_only: bool = False) -> ViewResult:
-    """The rows of a view as ``actor`` may see them; structure search (if asked) narrows the candidates first.
+def _joined(stmt, conds: Sequence[ColumnElement], *, needs: Sequence[Any] = ()):  # noqa: ANN001, ANN202 - a Select
+    """``stmt`` over Compound with the outer joins that ``conds`` and ``needs`` read (stats and scaffold
+    are one row per compound at most, so a join nobody reads changes no count and no order)."""
+    tables = {getattr(e, "table", e) for c in (*conds, *needs) for e in visitors.iterate(c)}
+    if CompoundStats.__table__ in tables:
+        stmt = stmt.join(CompoundStats, CompoundStats.compound_id == Compound.id, isouter=True)
+    if Scaffold.__table__ in tables:
+        stmt = stmt.join(Scaffold, Scaffold.id == Compound.scaffold_id, isouter=True)
+    return stmt.where(*conds)
 
-    A caller who may not see embargoed structures never gets an embargoed compound from a
-    structure query (``access.structure_visible``): otherwise its code in the answer would tell
-    which fragments it contains. ``structures_only`` applies the same condition to every view
-    (plots and maps of structure-derived properties).
-    """
+
+def count_view(session: Session, q: ViewQuery, *, actor: Optional[Actor], structures_only: bool = False) -> int:
+    """How many compounds the view lists (what the registry page shows once the first rows are out)."""
+    conds = _all_conditions(session, q, actor, structures_only)[0]
+    return session.exec(_joined(select(func.count()).select_from(Compound), conds)).one()
+
+
+def _all_conditions(session: Session, q: ViewQuery, actor: Optional[Actor],
+                    structures_only: bool) -> tuple[list[ColumnElement], dict[int, float]]:
     similarity: dict[int, float] = {}
     conds = _conditions(q, actor)
     if q.substructure or q.similar:
@@ -450,30 +528,147 @@ def query_view(session: Session, q: ViewQuery, *, actor: Optional[Actor], paged:
         conds.append(Compound.id.in_(ids) if ids else Compound.id == -1)
     if structures_only or q.substructure or q.similar:
         conds.append(access.structure_visible(actor))
-    base = (select(Compound, CompoundStats, Scaffold.code, Scaffold.bridge)
-            .join(CompoundStats, CompoundStats.compound_id == Compound.id, isouter=True)
-            .join(Scaffold, Scaffold.id == Compound.scaffold_id, isouter=True)
-            .where(*conds))
-    count = (select(func.count()).select_from(Compound)
-             .join(CompoundStats, CompoundStats.compound_id == Compound.id, isouter=True)
-             .join(Scaffold, Scaffold.id == Compound.scaffold_id, isouter=True)
-             .where(*conds))
-    total = session.exec(count).one()
+    return conds, similarity
+
+
+def _sort_parts(q: ViewQuery, actor: Optional[Actor]) -> tuple[Any, ColumnElement, ColumnElement, Any]:
+    """(the raw sort column, rows holding a value the actor may sort by, rows sorted as missing, the column
+    as the actor sees it). Rows of the second kind come first in the view's order, the others after them,
+    newest first: the two parts are read separately so each follows an index."""
+    raw = SORTS[q.sort][2]
+    masked = q.sort in STRUCTURAL_SORTS and not access.sees_embargoed(actor)
+    # "Has a value" as a range from the column's own extreme (an index lookup): SQLite's planner walks
+    # the sort index for a range but not for IS NOT NULL on an outer-joined table.
+    bound = select(func.max(raw) if q.descending else func.min(raw)).scalar_subquery()
+    valued = raw <= bound if q.descending else raw >= bound
+    missing = raw.is_(None)
+    if masked:
+        valued = and_(valued, Compound.embargoed == False)  # noqa: E712 - SQL expression
+        missing = or_(missing, Compound.embargoed == True)  # noqa: E712 - SQL expression
+    seen = access.structure_value(actor, raw) if q.sort in STRUCTURAL_SORTS else raw
+    return raw, valued, missing, seen
+
+
+def _keyset_numbers(session: Session, q: ViewQuery, conds: list[ColumnElement], actor: Optional[Actor],
+                    want: int) -> tuple[list[int], bool]:
+    """The registration numbers of one keyset page in view order, and whether it reached the start
+    (a ``before`` page with fewer rows than asked: the caller shows the first page instead).
+
+    Order: the sort value (descending or ascending; rows without one last), then the number, newest
+    first. Forward from ``after`` (or from the top), or backward from ``before``; ``want`` rows at most.
+    """
+    raw, valued, missing, seen = _sort_parts(q, actor)
+    cursor = q.after or q.before
+    anchor_value, anchor_valued = None, None
+    if cursor is not None:
+        found = session.exec(_joined(select(seen).select_from(Compound), [Compound.number == cursor.number],
+                                     needs=[seen])).first()
+        if found is None and not session.exec(select(Compound.id).where(Compound.number == cursor.number)).first():
+            raise InputError("the row this page continues from is gone; start again from the first page",
+                             field="after" if q.after is not None else "before")
+        anchor_value = found
+        anchor_valued = anchor_value is not None
+    n = cursor.number if cursor is not None else None
+    number = Compound.number
+
+    def fetch(extra: list[ColumnElement], order: list[Any], limit: int) -> list[int]:
+        if limit <= 0:
+            return []
+        stmt = _joined(select(number).select_from(Compound), [*conds, *extra], needs=[raw]).order_by(*order).limit(limit)
+        return list(session.exec(stmt).all())
+
+    if q.before is None:  # forward
+        out: list[int] = []
+        if cursor is None or anchor_valued:
+            extra = [valued]
+            if cursor is not None:
+                if q.descending:
+                    extra += [raw <= anchor_value, or_(raw < anchor_value, number < n)]
+                else:
+                    extra += [raw >= anchor_value, or_(raw > anchor_value, number < n)]
+            out = fetch(extra, [raw.desc() if q.descending else raw.asc(), number.desc()], want)
+        tail = [missing] + ([number < n] if cursor is not None and not anchor_valued else [])
+        out += fetch(tail, [number.desc()], want - len(out))
+        return out, False
+    back: list[int] = []  # backward from the anchor, nearest first
+    if not anchor_valued:
+        back = fetch([missing, number > n], [number.asc()], want)
+    extra = [valued]
+    if anchor_valued:
+        if q.descending:
+            extra += [raw >= anchor_value, or_(raw > anchor_value, number > n)]
+        else:
+            extra += [raw <= anchor_value, or_(raw < anchor_value, number > n)]
+    back += fetch(extra, [raw.asc() if q.descending else raw.desc(), number.asc()], want - len(back))
+    return back[::-1], len(back) < want
+
+
+def query_view(session: Session, q: ViewQuery, *, actor: Optional[Actor], paged: bool = True,
+               structures_only: bool = False, count: bool = True) -> ViewResult:
+    """The rows of a view as ``actor`` may see them; structure search (if asked) narrows the candidates first.
+
+    A caller who may not see embargoed structures never gets an embargoed compound from a
+    structure query (``access.structure_visible``): otherwise its code in the answer would tell
+    which fragments it contains. ``structures_only`` applies the same condition to every view
+    (plots and maps of structure-derived properties).
+
+    Paging (DEVELOPERS.md, "Registry lists"): the first page and every page reached through a cursor
+    (``q.after`` / ``q.before``) is read by keyset, each part of the order along its index, so its cost
+    does not grow with the registry or with the depth of the page; ``page=N`` without a cursor (an older
+    link) is found by offset over the numbers alone. The rows are then read by number. ``count=False``
+    leaves ``total`` None unless the page itself shows that nothing follows.
+    """
+    conds, similarity = _all_conditions(session, q, actor, structures_only)
+    python_order = bool(q.similar and q.sort == "code")  # most similar first, ordered below
     expr = SORTS[q.sort][2]
     if q.sort in STRUCTURAL_SORTS:
         expr = access.structure_value(actor, expr)
     order = [expr.desc().nulls_last() if q.descending else expr.asc().nulls_last(), Compound.number.desc()]
-    if q.similar and q.sort == "code" and q.descending:
+    if python_order and q.descending:
         order = [Compound.number.desc()]  # re-ordered by similarity below
-    stmt = base.order_by(*order)
-    if paged and not (q.similar and q.sort == "code"):
-        stmt = stmt.offset((q.page - 1) * q.size).limit(q.size)
-    rows = [ViewRow(c, s, code, bridge, similarity.get(c.id)) for c, s, code, bridge in session.exec(stmt).all()]
-    if q.similar and q.sort == "code":
-        rows.sort(key=lambda r: (-(r.similarity or 0.0), -r.compound.number))
+    full = (select(Compound, CompoundStats, Scaffold.code, Scaffold.bridge)
+            .join(CompoundStats, CompoundStats.compound_id == Compound.id, isouter=True)
+            .join(Scaffold, Scaffold.id == Compound.scaffold_id, isouter=True))
+    if not paged or python_order:  # every row at once (exports, plots), or ordered by similarity here
+        rows = [ViewRow(c, s, code, bridge, similarity.get(c.id))
+                for c, s, code, bridge in session.exec(full.where(*conds).order_by(*order)).all()]
+        if python_order:
+            rows.sort(key=lambda r: (-(r.similarity or 0.0), -r.compound.number))
+        total = len(rows)
         if paged:
+            has_next = len(rows) > q.page * q.size
             rows = rows[(q.page - 1) * q.size: q.page * q.size]
-    return ViewResult(rows=rows, total=total, query=q)
+            return ViewResult(rows=rows, total=total, query=q, has_next=has_next)
+        return ViewResult(rows=rows, total=total, query=q)
+    if q.after is None and q.before is None and q.page > 1:
+        stmt = _joined(select(Compound.number).select_from(Compound), conds, needs=[expr]).order_by(*order)
+        numbers = list(session.exec(stmt.offset((q.page - 1) * q.size).limit(q.size + 1)).all())
+        has_next, numbers = len(numbers) > q.size, numbers[:q.size]
+    else:
+        numbers, at_start = _keyset_numbers(session, q, conds, actor, q.size + (q.before is None))
+        if q.before is None:
+            has_next, numbers = len(numbers) > q.size, numbers[:q.size]
+        elif at_start:  # fewer rows before the anchor than a page: the first page
+            q = replace(q, page=1, before=None)
+            numbers, _ = _keyset_numbers(session, q, conds, actor, q.size + 1)
+            has_next, numbers = len(numbers) > q.size, numbers[:q.size]
+        else:
+            has_next = True
+    by_number = {c.number: (c, s, code, bridge)
+                 for c, s, code, bridge in session.exec(full.where(Compound.number.in_(numbers))).all()} \
+        if numbers else {}
+    rows = [ViewRow(*by_number[n], similarity.get(by_number[n][0].id)) for n in numbers if n in by_number]
+    if count:
+        total: Optional[int] = session.exec(_joined(select(func.count()).select_from(Compound), conds)).one()
+    elif not has_next and q.page == 1 and q.after is None and q.before is None:
+        total = len(rows)  # the whole view is on this page
+    else:
+        total = None
+    first, last = (rows[0].compound.number, rows[-1].compound.number) if rows else (None, None)
+    return ViewResult(rows=rows, total=total, query=q, has_next=has_next,
+                      next_cursor=Cursor(q.sort, q.descending, last) if rows and has_next else None,
+                      prev_cursor=Cursor(q.sort, q.descending, first)
+                      if rows and (q.page > 1 or q.after is not None) else None)
 
 
 EXPORT_COLUMNS: tuple[tuple[str, Callable[[ViewRow], Any]], ...] = (

@@ -48,7 +48,8 @@ def compound_list(request: Request, session: SessionDep, actor: PageActor):
     result = None
     if error is None:
         try:
-            result = views.query_view(session, q, actor=actor)
+            result = views.query_view(session, q, actor=actor, count=False)
+            q = result.query  # a "previous" that reached the top is the first page
         except InputError as exc:
             error = exc
     form = {**q.values, "substructure": q.substructure, "similar": q.similar, "threshold": q.threshold}
@@ -60,6 +61,23 @@ def compound_list(request: Request, session: SessionDep, actor: PageActor):
          "choices": views.filter_choices(session), "sorts": views.SORTS, "link": q.link()},
         partial="partials/compound_table.html", actor=actor, status_code=422 if error else 200,
     )
+
+
+@router.get("/compounds/count", response_class=HTMLResponse)
+def compound_count(request: Request, session: SessionDep, actor: PageActor):
+    """How many compounds a view lists: what the registry page asks for once its first rows are shown
+    (the count reads every matching row, the page only the rows it shows). The same query string as
+    the list; the answer depends on the caller exactly as the list does (views.count_view)."""
+    error = None
+    try:
+        q = views.parse_view(request.query_params)
+        total = views.count_view(session, q, actor=actor)
+    except InputError as exc:
+        q, error, total = views.ViewQuery(), exc, None
+    result = views.ViewResult(rows=[], total=total, query=q)
+    return render(request, "pages/compound_count.html",
+                  {"result": result, "oob": True, "error": _view_error(error), "link": q.link(after=None, before=None)},
+                  partial="partials/compound_count.html", actor=actor, status_code=422 if error else 200)
 
 
 def _view_error(error: Optional[InputError]) -> Optional[dict]:

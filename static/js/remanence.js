@@ -10,7 +10,8 @@ document.addEventListener("htmx:configRequest", function (evt) {
 // its change into the form and sends the form, so its request carries every filter as typed now, and
 // the form's next request (a filter typed a moment later) keeps the sort. The form's hx-sync queues
 // requests: the newest is sent, with the form's state at that moment, once the one under way is answered.
-// Editing a filter goes back to the first page. Empty fields are left out of the request, so the
+// Editing a filter goes back to the first page (no page number, no keyset position). Empty fields
+// are left out of the request, so the
 // address pushed to the history is the same short link the server writes. Without JavaScript the
 // links' own addresses serve.
 document.addEventListener("click", function (evt) {
@@ -29,7 +30,9 @@ document.addEventListener("click", function (evt) {
   document.addEventListener(type, function (evt) {
     var form = evt.target.form;
     if (!form || !form.hasAttribute("data-view-form") || evt.target.type === "hidden") { return; }
-    if (form.elements.page) { form.elements.page.value = ""; }
+    ["page", "after", "before"].forEach(function (name) {  // a new filter: its first page
+      if (form.elements[name]) { form.elements[name].value = ""; }
+    });
   }, true);  // capture: before htmx sends the form on "change"
 });
 // Typing in a search box sends the form after a pause ("typed"); any request of the form cancels a pause

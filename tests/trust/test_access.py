@@ -293,7 +293,7 @@ def test_upload_token_cannot_probe_embargoed_structures_through_the_list_filter(
 PUBLIC = {("GET", "/login"), ("POST", "/login"), ("POST", "/logout"), ("GET", "/"), ("GET", "/healthz"),
           ("GET", "/status"), ("GET", "/docs"), ("GET", "/redoc")}  # /status: public only when published (tested below both ways); /docs documents the API, no data
 WEB_READ = {("GET", p) for p in (
-    "/compounds", "/compounds/export.{fmt}", "/compounds/{code}", "/compounds/{code}/timeline",
+    "/compounds", "/compounds/count", "/compounds/export.{fmt}", "/compounds/{code}", "/compounds/{code}/timeline",
     "/compounds/{code}/rates", "/scaffolds", "/measurements/{measurement_id}", "/explorer", "/outcomes",
     "/calibration", "/jobs/{job_id}/panel", "/queue", "/digest", "/digest.md", "/compare",
     "/compare.{fmt}", "/samples/{code}", "/planning", "/planning/routes/{batch_code}", "/planning/reagents",

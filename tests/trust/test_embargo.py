@@ -50,7 +50,7 @@ VIEW_QUERIES = ("", "sort=mw", "sort=mw&dir=asc", "sort=carbons", "sort=scaffold
                 "branched=no", "main_kind=alkylthio", "main_c=8", "main_c=4", "scaffold=BWL-S", "scaffold=BWL-C",
                 "bridge=S", "bridge=CH2", "q=Q-7", "q=SC8", "substructure=CSc1ccccc1", "x=mw", "x=mw&y=carbons",
                 "barrier_source=computed&barrier_min=0")
-VIEW_ROUTES = {"/compounds", "/compounds/export.{fmt}", "/api/v1/compounds", "/api/v1/search", "/explorer",
+VIEW_ROUTES = {"/compounds", "/compounds/count", "/compounds/export.{fmt}", "/api/v1/compounds", "/api/v1/search", "/explorer",
                "/outcomes", "/explorer/plot", "/outcomes/map"}
 
 

@@ -42,18 +42,26 @@ def list_compounds(
 ) -> CompoundPage:
     """Compounds, newest first, with the same filters as the registry table (`scaffold`, `chain_kind`,
     `c_min`, `c_max`, `branched`, `batch_state`, `verdict`, `polar`, `barrier_min`, `barrier_max`,
-    `barrier_source`, `has`, `made_from`, `made_to`, `q`, `sort`, `dir`, `substructure`, `similar`)."""
+    `barrier_source`, `has`, `made_from`, `made_to`, `q`, `sort`, `dir`, `substructure`, `similar`).
+    `next_after` is the next page's keyset position: `after=<it>` (in place of `offset`) reads that page
+    at the cost of the first, however deep; `before=` pages back."""
     q = views.parse_view(request.query_params, max_size=500)
     if include_archived:
         q = replace(q, values={**q.values, "archived": True})
-    if offset % limit == 0:
+    if q.after is not None or q.before is not None:
+        result = views.query_view(session, replace(q, size=limit), actor=actor)
+        rows = result.rows
+    elif offset % limit == 0:
         result = views.query_view(session, replace(q, page=offset // limit + 1, size=limit), actor=actor)
         rows = result.rows
     else:
         result = views.query_view(session, q, actor=actor, paged=False)
         rows = result.rows[offset: offset + limit]
+        if offset + limit < len(result.rows) and rows and not (q.similar and q.sort == "code"):
+            result = replace(result, next_cursor=views.Cursor(q.sort, q.descending, rows[-1].compound.number))
     items = [registry.compound_read(session, r.compound, actor=actor) for r in rows]
-    return CompoundPage(items=accounts.hide_people(items, sees_people=actor.sees_people), total=result.total)
+    return CompoundPage(items=accounts.hide_people(items, sees_people=actor.sees_people), total=result.total,
+                        next_after=result.next_cursor.token if result.next_cursor else None)
 
 
 class StructureHit(BaseModel):

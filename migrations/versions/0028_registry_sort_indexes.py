@@ -1,7 +1,7 @@
 """Indexes for the registry's sorts, so keyset pages seek instead of sorting the table (issue 21, target 3)
 
 Revision ID: 0028
-Revises: 0026
+Revises: 0027
 Create Date: 2026-12-03 14:15:00
 """
 from typing import Sequence, Union
@@ -10,7 +10,7 @@ from alembic import op
 
 
 revision: str = '0028'
-down_revision: Union[str, None] = '0026'
+down_revision: Union[str, None] = '0027'
 branch_labels: Union[str, Sequence[str], None] = None
 depends_on: Union[str, Sequence[str], None] = None
 

@@ -1,7 +1,7 @@
 """Attachments are archived and restored (who, when, why in the audit trail); a freeze keeps the images it held (issue 23)
 
 Revision ID: 0029
-Revises: 0026
+Revises: 0028
 Create Date: 2026-12-03 14:20:00
 """
 from typing import Sequence, Union
@@ -11,7 +11,7 @@ import sqlalchemy as sa
 
 
 revision: str = '0029'
-down_revision: Union[str, None] = '0026'
+down_revision: Union[str, None] = '0028'
 branch_labels: Union[str, Sequence[str], None] = None
 depends_on: Union[str, Sequence[str], None] = None
 

@@ -2,7 +2,7 @@
 existing entries become single events (count 1, last_at = created_at, no parts)
 
 Revision ID: 0030
-Revises: 0026
+Revises: 0029
 Create Date: 2026-12-03 14:11:11.375076
 """
 from typing import Sequence, Union
@@ -14,7 +14,7 @@ import server.models.types
 
 
 revision: str = '0030'
-down_revision: Union[str, None] = '0026'
+down_revision: Union[str, None] = '0029'
 branch_labels: Union[str, Sequence[str], None] = None
 depends_on: Union[str, Sequence[str], None] = None
 

@@ -1,7 +1,7 @@
 """measurement corrections of the analysis: a person's edit stored beside the automatic results
 
 Revision ID: 0031
-Revises: 0026
+Revises: 0030
 Create Date: 2026-12-03 14:22:40
 
 ``measurement.correction`` (JSON, NULL for every existing row: the automatic analysis stands) holds an
@@ -18,7 +18,7 @@ import server.models.types
 
 
 revision: str = '0031'
-down_revision: Union[str, None] = '0026'
+down_revision: Union[str, None] = '0030'
 branch_labels: Union[str, Sequence[str], None] = None
 depends_on: Union[str, Sequence[str], None] = None
 

@@ -200,6 +200,15 @@ def structure_condition(actor: Optional[Actor], cond: ColumnElement[bool]) -> Co
     return (Compound.embargoed == False) & cond  # noqa: E712 - SQL expression
 
 
+def structure_missing(actor: Optional[Actor], missing: ColumnElement[bool]) -> ColumnElement[bool]:
+    """The rows a sort over a structure-derived column places as "no value": those without one, and
+    for an actor who may not see embargoed structures every embargoed row too (the partner of
+    :func:`structure_value` and :func:`structure_condition` for index-friendly keyset pages)."""
+    if sees_embargoed(actor):
+        return missing
+    return or_(missing, Compound.embargoed == True)  # noqa: E712 - SQL expression
+
+
 def code_or_structure_condition(actor: Optional[Actor], code_cond: ColumnElement[bool],
                                 structure_cond: ColumnElement[bool]) -> ColumnElement[bool]:
     """A text search over the code (always open) and over label/notes (withheld for embargoed rows)."""

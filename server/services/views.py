@@ -543,8 +543,8 @@ def _sort_parts(q: ViewQuery, actor: Optional[Actor]) -> tuple[Any, ColumnElemen
     valued = raw <= bound if q.descending else raw >= bound
     missing = raw.is_(None)
     if masked:
-        valued = and_(valued, Compound.embargoed == False)  # noqa: E712 - SQL expression
-        missing = or_(missing, Compound.embargoed == True)  # noqa: E712 - SQL expression
+        valued = access.structure_condition(actor, valued)
+        missing = access.structure_missing(actor, missing)
     seen = access.structure_value(actor, raw) if q.sort in STRUCTURAL_SORTS else raw
     return raw, valued, missing, seen
 

@@ -9,7 +9,6 @@ from datetime import datetime, timedelta, timezone
 from types import SimpleNamespace
 
 import pytest
-from fastapi.testclient import TestClient
 from sqlmodel import Session, select
 
 from server import access
@@ -21,17 +20,6 @@ from tests.factories import bearer, make_token, make_user, soup
 from tests.notifications.test_notifications import Person, _register, _upload
 
 T0 = datetime(2026, 12, 3, 14, 2, 0, tzinfo=timezone.utc)
-
-
-@pytest.fixture
-def alice(client, session):
-    return Person(client, session, "alice")
-
-
-@pytest.fixture
-def bob(app, session):
-    with TestClient(app) as c:
-        yield Person(c, session, "bob")
 
 
 @pytest.fixture

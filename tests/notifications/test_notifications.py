@@ -41,17 +41,6 @@ class Person:
         return r.json()
 
 
-@pytest.fixture
-def alice(client, session):
-    return Person(client, session, "alice")
-
-
-@pytest.fixture
-def bob(app, session):
-    with TestClient(app) as c:
-        yield Person(c, session, "bob")
-
-
 def _register(person: Person, **extra) -> str:
     r = person.post("/api/v1/compounds", json={"smiles": SMILES, **extra})
     assert r.status_code == 201, r.text

@@ -24,6 +24,9 @@ def registry(live):
     for n in range(2, 8):  # invented test ethers with long labels; the first one switches
         code = live.compound(f"COc1cccc(O{'C' * n})c1OC", f"fit ether with a rather long label number {n}")
         codes.append(code)
+    # an unclassified substituent is summarised by its fragment SMILES, one long word (another test's
+    # compound like this once widened the whole table past its card)
+    live.compound("COc1cccc(OCC(=O)OCC(=O)OCC(=O)OCC(=O)OCC(=O)OCC(=O)OC)c1OC", "fit ether with an ester chain")
     batch = live.batch(codes[0], state="made")
     live.measurement(batch, "pe_loop", to_csv_bytes(miller_loop(10, 6.0, 50, 300), {"temperature": "300 K"}),
                      "loop.csv")

@@ -170,6 +170,11 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     async def lifespan(app: FastAPI):
         # The embedded default: one worker thread inside the server, so a laptop needs nothing else.
         embedded = None
+        # The analysis pool's first child (and the forkserver it comes from) starts now, beside the start-up
+        # rather than in it, so the first upload's read does not wait for it (server/budget.py).
+        from .budget import pool_for
+
+        app.state.analysis_warm = pool_for(settings).warm_in_background()
         if settings.embedded_worker:
             from .jobs.worker import start_embedded
 

@@ -140,6 +140,35 @@ class AnalysisPool:
         self._idle: "queue.LifoQueue[_Child]" = queue.LifoQueue()
         self._slots = threading.BoundedSemaphore(budget.workers)
         self._closed = False
+        self._warm_lock = threading.Lock()
+        self._warmed = False
+
+    def warm(self) -> None:
+        """Start one child ahead of the first task (once per pool), so the first upload does not pay for
+        starting the forkserver, which imports the analysis modules (seconds on a loaded machine).
+
+        The child is left idle in the pool like one given back after a task. Nothing happens when every
+        slot is busy (tasks are starting children already) or the pool is closed."""
+        with self._warm_lock:
+            if self._warmed or self._closed:
+                return
+            self._warmed = True
+        if not self._slots.acquire(blocking=False):
+            return
+        try:
+            child = _Child(self._ctx, self.budget)
+            if self._closed:
+                child.kill()
+            else:
+                self._idle.put(child)
+        finally:
+            self._slots.release()
+
+    def warm_in_background(self) -> threading.Thread:
+        """:meth:`warm` in a daemon thread (the app's start-up calls this and does not wait for it)."""
+        thread = threading.Thread(target=self.warm, name="remanence-analysis-warm", daemon=True)
+        thread.start()
+        return thread
 
     def run(self, fn: Callable[..., Any], *args: Any) -> Any:
         """``fn(*args)`` in a child within the budget; its exceptions are raised here as they were.

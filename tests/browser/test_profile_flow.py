@@ -39,9 +39,20 @@ def _fits(page: Page) -> dict[int, int]:
     return wide
 
 
-def _read_file(page: Page) -> None:
-    with page.expect_response(lambda r: r.request.method == "POST" and r.url.endswith("/import-profiles/draft")):
+# A read goes through the analysis pool's child process (server/budget.py). The app warms the pool at start-up,
+# but on a machine loaded by other suites a read (decode, parse, analyse, draw) can still take some seconds; the
+# wait is long, and on the answer itself: a refused read (422) or a server error fails at once, with its text.
+READ_TIMEOUT_MS = 90_000
+
+
+def _read_file(page: Page, shows: str) -> None:
+    """Press "Read the file", wait for the draft's answer, check it is a 200, and wait for ``shows`` (a locator
+    of the part it fills) to be there."""
+    with page.expect_response(lambda r: r.request.method == "POST" and r.url.endswith("/import-profiles/draft"),
+                              timeout=READ_TIMEOUT_MS) as answer:
         page.get_by_role("button", name="Read the file / update the preview").click()
+    assert answer.value.status == 200, f"the draft answered {answer.value.status}: {answer.value.text()[:500]}"
+    expect(page.locator(shows).first).to_be_visible(timeout=READ_TIMEOUT_MS)
 
 
 def test_a_profile_is_written_previewed_edited_and_used_for_an_upload(page: Page, live, login):
@@ -56,7 +67,7 @@ def test_a_profile_is_written_previewed_edited_and_used_for_an_upload(page: Page
     editor.locator("select[name=delimiter]").select_option(";")
     editor.locator("select[name=decimal]").select_option(",")
     editor.locator("select[name=encoding]").select_option("cp1252")
-    _read_file(page)
+    _read_file(page, "#file-head")
     expect(page.locator("#file-head")).to_contain_text("[Data]")
     expect(page.locator("#preview")).to_have_count(0)  # nothing mapped yet
     for cell, to, unit in COLUMNS:
@@ -66,7 +77,7 @@ def test_a_profile_is_written_previewed_edited_and_used_for_an_upload(page: Page
     for key, to, unit in CONDITIONS:
         page.get_by_label(f"read {key} as").select_option(to)
         page.get_by_label(f"unit of {key}").fill(unit)
-    _read_file(page)
+    _read_file(page, "#preview ul.conversions")
     preview = page.locator("#preview")
     expect(preview.locator("ul.conversions")).to_contain_text("Charge (nC) \u2192 Q (uC)")
     expect(preview.locator("#preview-blocks tbody tr")).to_have_count(1)
@@ -86,7 +97,7 @@ def test_a_profile_is_written_previewed_edited_and_used_for_an_upload(page: Page
     # too, and saved as version 2.
     page.get_by_label("unit of Drive Voltage").fill("kV")
     page.locator("#profile-editor input[type=file][name=file]").set_input_files(EXPORT)
-    _read_file(page)
+    _read_file(page, "#preview ul.conversions")
     expect(page.locator("#preview ul.conversions")).to_contain_text("Drive Voltage (kV) \u2192 V (V)")
     expect(page.get_by_label("read Charge as")).to_have_value("Q_uC")  # the mapping stayed on its column
     page.get_by_label("unit of Drive Voltage").fill("V")
@@ -104,9 +115,10 @@ def test_a_profile_is_written_previewed_edited_and_used_for_an_upload(page: Page
     page.get_by_label("Import profile").select_option(name)
     page.locator('input[type="file"][name="file"]').set_input_files(EXPORT)
     page.get_by_role("button", name="Preview (stores nothing)").click()
-    expect(page.locator("#upload-preview")).to_contain_text(f"Read through profile {name} (version 2)")
+    expect(page.locator("#upload-preview")).to_contain_text(f"Read through profile {name} (version 2)",
+                                                            timeout=READ_TIMEOUT_MS)
     assert live.measurement_ids(batch) == []
     assert _fits(page) == {}, "the upload page with the profiled preview scrolls sideways"
     page.get_by_role("button", name="Upload and analyse").click()
-    expect(page).to_have_url(re.compile(r"/measurements/\d+$"))
+    expect(page).to_have_url(re.compile(r"/measurements/\d+$"), timeout=READ_TIMEOUT_MS)
     assert len(live.measurement_ids(batch)) == 1

@@ -10,6 +10,7 @@ serving. SQLite and PostgreSQL through the ``app`` fixture.
 from __future__ import annotations
 
 import dataclasses
+import os
 import time
 from operator import add  # a builtin: a fresh child answers it without importing this module
 
@@ -99,6 +100,50 @@ def test_a_tasks_own_errors_arrive_unchanged(small_pool):
 def test_apps_with_one_budget_share_one_pool(settings):
     assert pool_for(settings) is pool_for(dataclasses.replace(settings, code_prefix="XYZ"))
     assert pool_for(settings) is not pool_for(dataclasses.replace(settings, analysis_cpu_s=3.0))
+
+
+def test_a_warmed_pool_serves_its_first_task_from_the_child_it_started(small_pool):
+    """``warm`` starts one child ahead of the first task (so the first upload does not wait for the forkserver);
+    a second ``warm`` starts none, and the first task runs in that very child."""
+    small_pool.warm()
+    small_pool.warm()
+    assert small_pool._idle.qsize() == 1
+    child = small_pool._idle.queue[0]
+    assert child.process.is_alive()
+    assert small_pool.run(os.getpid) == child.process.pid
+    assert small_pool._idle.qsize() == 1
+
+
+def test_a_closed_pool_is_not_warmed():
+    pool = AnalysisPool(Budget(cpu_s=1, memory_mb=2048, wall_s=20, workers=1))
+    pool.close()
+    pool.warm()
+    assert pool._idle.qsize() == 0
+
+
+def test_the_app_warms_its_pool_at_start_up_without_waiting_for_it(settings):
+    """Start-up hands the warming to a thread of its own and goes on; the thread leaves a live child idle in the
+    app's pool. (A budget of its own, so the pool is this test's alone.)"""
+    from fastapi.testclient import TestClient
+
+    from server import budget as budgets
+    from server.app import create_app
+
+    mine = dataclasses.replace(settings, analysis_cpu_s=settings.analysis_cpu_s + 0.25)
+    app = create_app(mine)
+    try:
+        with TestClient(app) as client:
+            warming = app.state.analysis_warm
+            assert warming.daemon and warming.name == "remanence-analysis-warm"
+            warming.join(120)
+            assert not warming.is_alive()
+            pool = pool_for(mine)
+            assert pool._idle.qsize() == 1 and pool._idle.queue[0].process.is_alive()
+            assert client.get("/healthz").status_code == 200
+    finally:
+        app.state.engine.dispose()
+        with budgets._pools_lock:
+            budgets._pools.pop(budgets.Budget.of(mine)).close()
 
 
 # --- through the upload routes -------------------------------------------------------------------

@@ -4,16 +4,28 @@ and one comment's edit, archive, restore and history."""
 from __future__ import annotations
 
 from fastapi import APIRouter
+from pydantic import Field
 
 from ...deps import Reader, RowId, SessionDep, Writer
 from ...models import CommentIn, CommentPage, CommentRead
 from ...services import comments
-from .responses import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND
+from .responses import AUTH_ERRORS, INPUT_ERRORS, NOT_FOUND, Closed
 
 router = APIRouter(tags=["comments"])
 
 READ = {**AUTH_ERRORS, **NOT_FOUND}
 WRITE = {**AUTH_ERRORS, **NOT_FOUND, **INPUT_ERRORS}
+
+
+class EarlierText(Closed):
+    at: str = Field(description="when it was replaced, ISO 8601, UTC")
+    by: str
+    body: str
+
+
+class CommentHistory(Closed):
+    comment: CommentRead
+    earlier: list[EarlierText] = Field(description="every earlier text, oldest first, from the audit trail")
 
 
 def _page(session, kind: str, ref: str, actor) -> CommentPage:  # noqa: ANN001
@@ -97,7 +109,7 @@ def restore_comment(comment_id: RowId, session: SessionDep, actor: Writer) -> Co
 
 
 @router.get("/comments/{comment_id}/history", responses=READ)
-def comment_history(comment_id: RowId, session: SessionDep, actor: Reader) -> dict:
+def comment_history(comment_id: RowId, session: SessionDep, actor: Reader) -> CommentHistory:
     """The comment now and every earlier text, oldest first, from the audit trail."""
     comment, target = _one(session, comment_id, actor)
     return {"comment": comments.comment_read(comment, target).model_dump(mode="json"),

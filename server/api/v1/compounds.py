@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from dataclasses import replace
-from typing import Optional
+from typing import Any, Optional
 
 from fastapi import APIRouter, Query, Request, Response
 from fastapi.responses import Response as RawResponse
@@ -16,7 +16,7 @@ from ...models import BatchCreate, BatchRead, CompoundCreate, CompoundPage, Comp
 from ...errors import InputError
 from ...services import accounts, identity, registry, verdicts, views
 from ...services.errors import NotFound
-from .responses import ARCHIVED, AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND
+from .responses import ARCHIVED, AUTH_ERRORS, DUPLICATE, INPUT_ERRORS, NOT_FOUND, Closed
 
 router = APIRouter(tags=["compounds"])
 
@@ -173,7 +173,77 @@ def get_batch(code: str, session: SessionDep, actor: Reader) -> BatchRead:
     return registry.batch_read(session, registry.get_batch(session, code))
 
 
-@router.get("/batches/{code}/identity", responses={**AUTH_ERRORS, **NOT_FOUND})
+class NmrEvidenceOut(Closed):
+    """The batch's newest NMR spectrum; the expected count only for a caller who may see the structure."""
+
+    measurement: int
+    edited: bool = Field(description="a person's peak list stands over the automatic one")
+    nucleus: Optional[str]
+    solvent: Optional[str]
+    spectrometer_MHz: Optional[float]
+    signals_found: Optional[int]
+    environments_expected: Optional[int] = None
+    environments_check: Optional[Any] = None
+
+
+class _PassOut(Closed):
+    """An identity measurement that passes or fails: its id and ``pass``; what else it shows, only for a caller
+    who may see the structure (the calculated values reveal the formula)."""
+
+    measurement: int
+    passed: Optional[bool] = Field(alias="pass")
+
+
+class HrmsEvidenceOut(_PassOut):
+    """The newest live HRMS."""
+
+    ion: Optional[str] = None
+    ion_formula: Optional[str] = None
+    calc_mz: Optional[float] = None
+    found_mz: Optional[float] = None
+    error_ppm: Optional[float] = None
+    tolerance_ppm: Optional[float] = None
+    isotope_score: Optional[float] = None
+
+
+class ElementalEvidenceOut(_PassOut):
+    """The newest live elemental analysis."""
+
+    calc_formula: Optional[str] = None
+    solvate: Optional[str] = None
+    calc_pct: Optional[dict[str, float]] = Field(None, description="mass percent by element, calculated")
+    found_pct: Optional[dict[str, float]] = Field(None, description="mass percent by element, found")
+    delta_pct: Optional[dict[str, float]] = Field(None, description="found minus calculated, percentage points")
+
+
+class IdentityEvidenceOut(Closed):
+    nmr_spectrum: Optional[NmrEvidenceOut]
+    hrms: Optional[HrmsEvidenceOut]
+    elemental: Optional[ElementalEvidenceOut]
+
+
+class ConfirmationOut(Closed):
+    by: str
+    at: Optional[str] = Field(description="ISO 8601, UTC")
+    note: Optional[str] = Field(description="left out (null) for a caller who may not see the structure")
+
+
+class BatchIdentityOut(Closed):
+    """A batch's identity evidence, status and SI paragraph (services/identity.py ``batch_identity``)."""
+
+    batch: str
+    status: str
+    evidence: IdentityEvidenceOut
+    identity_confirmed: bool
+    si_text: Optional[str]
+    si_markdown: Optional[str]
+    confirmation: Optional[ConfirmationOut]
+
+
+IDENTITY_ANSWER = {"response_model": BatchIdentityOut, "response_model_exclude_unset": True}
+
+
+@router.get("/batches/{code}/identity", **IDENTITY_ANSWER, responses={**AUTH_ERRORS, **NOT_FOUND})
 def get_batch_identity(code: str, session: SessionDep, actor: Reader) -> dict:
     """The batch's identity evidence (latest live HRMS and elemental analysis), its status and the
     supporting-information paragraph (``si_text``, ``si_markdown``). Calculated values reveal the
@@ -187,13 +257,15 @@ class IdentityNoteIn(BaseModel):
                                   "not agree), or why it is withdrawn (always required)")
 
 
-@router.post("/batches/{code}/identity/confirm", responses={**AUTH_ERRORS, **NOT_FOUND, **ARCHIVED, **INPUT_ERRORS})
+@router.post("/batches/{code}/identity/confirm", **IDENTITY_ANSWER,
+             responses={**AUTH_ERRORS, **NOT_FOUND, **ARCHIVED, **INPUT_ERRORS})
 def confirm_batch_identity(code: str, body: IdentityNoteIn, session: SessionDep, actor: Writer) -> dict:
     """Set the batch state "identity confirmed" (audited); answers the batch's identity summary."""
     return identity.set_identity(session=session, code=code, confirmed=True, note=body.note, actor=actor)
 
 
-@router.post("/batches/{code}/identity/withdraw", responses={**AUTH_ERRORS, **NOT_FOUND, **ARCHIVED, **INPUT_ERRORS})
+@router.post("/batches/{code}/identity/withdraw", **IDENTITY_ANSWER,
+             responses={**AUTH_ERRORS, **NOT_FOUND, **ARCHIVED, **INPUT_ERRORS})
 def withdraw_batch_identity(code: str, body: IdentityNoteIn, session: SessionDep, actor: Writer) -> dict:
     """Withdraw the batch's identity confirmation, with the reason (audited)."""
     return identity.set_identity(session=session, code=code, confirmed=False, note=body.note, actor=actor)

@@ -2,7 +2,19 @@
 
 from __future__ import annotations
 
-from pydantic import BaseModel
+from pydantic import BaseModel, ConfigDict
+
+
+class Closed(BaseModel):
+    """A typed answer that names every key it has (``additionalProperties: false`` in the OpenAPI document).
+
+    A route that answers a service's dict with one of these validates the dict against it: a key the
+    service adds without adding it here fails the request (and so the tests) instead of being dropped
+    silently. Routes whose answers leave keys out for some callers (the embargo, a withheld compound) use
+    ``response_model_exclude_unset=True``, so a key the dict lacks stays absent instead of becoming null.
+    """
+
+    model_config = ConfigDict(extra="forbid")
 
 
 class ErrorOut(BaseModel):

@@ -70,3 +70,26 @@ def targets(client, session: Session, *, embargoed: bool = False, smiles: str = 
     sample, mid = m.json()["sample"], m.json()["id"]
     return {"w": w, "code": code, "batch": batch, "sample": sample, "measurement": mid,
             "refs": {"compounds": code, "batches": batch, "samples": sample, "measurements": str(mid)}}
+
+
+#: The heat-cool DSC file of the transitions tests (tests/web/test_dsc_transitions.py and
+#: tests/browser/test_dsc_transitions_fit.py): a solid-solid transition (8 J/g, at 335 K on heating, 333 K on
+#: cooling) and melting (60 J/g, onset 410 K, the freezing supercooled to an onset of 398 K), 5 mg at 10 K/min.
+DSC_HEATING = ({"t_K": 335.0, "dh_J_g": 8.0, "width_K": 4.0, "kind": "gaussian"},
+               {"t_K": 410.0, "dh_J_g": 60.0, "width_K": 1.5, "kind": "melting"})
+DSC_COOLING = ({"t_K": 333.0, "dh_J_g": 8.0, "width_K": 4.0, "kind": "gaussian"},
+               {"t_K": 398.0, "dh_J_g": 60.0, "width_K": 1.5, "kind": "melting"})
+
+
+def heat_cool_dsc_file(seed: int = 31) -> bytes:
+    """One heating and one cooling run in one file (server/synth/dsc.py, Hoehne, Hemminger and Flammersheim,
+    Differential Scanning Calorimetry, Springer 2003, ch. 5 for the peak shapes), 3 µW white noise and a
+    sloped baseline, as an instrument exports a heat-cool programme."""
+    import numpy as np
+
+    from server.ingest.table import to_csv_bytes
+    from server.synth.dsc import heat_cool_trace
+
+    frame = heat_cool_trace(DSC_HEATING, DSC_COOLING, t_low_K=300.0, t_high_K=430.0, mass_mg=5.0, noise_mW=0.003,
+                            baseline_slope=0.002, rng=np.random.default_rng(seed))
+    return to_csv_bytes(frame, {"mass": "5 mg", "endo": "up"})

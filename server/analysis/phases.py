@@ -221,9 +221,13 @@ def series_scans(loops: Sequence[LoopPoint]) -> list[Scan]:
 # ----------------------------------------------------------------------------- DSC pairing
 
 
-def _pair_dsc(peaks: Sequence[ThermalPeak]) -> list[tuple[ThermalPeak | None, ThermalPeak | None]]:
-    """Heating peaks merged within SAME_TEMPERATURE_K, each paired with the nearest unpaired cooling peak of
-    the opposite heat sign at most PAIR_MAX_HYSTERESIS_K below it (or up to SAME_TEMPERATURE_K above)."""
+def pair_dsc(peaks: Sequence[ThermalPeak]) -> list[tuple[list[ThermalPeak] | None, list[ThermalPeak] | None]]:
+    """Heating peaks merged within SAME_TEMPERATURE_K, each group paired with the nearest unpaired cooling group
+    of the opposite heat sign at most PAIR_MAX_HYSTERESIS_K below it (or up to SAME_TEMPERATURE_K above).
+
+    Returns ``(heating group, cooling group)`` pairs, either side None where a peak has no partner; the phase
+    model (:func:`build`) and the DSC measurement page's transitions table (``server/kinds/dsc.py``) both pair
+    through here, so they never disagree on which cooling peak is whose."""
     heating = sorted((p for p in peaks if p.scan == "heating"), key=lambda p: p.t_peak_K)
     cooling = sorted((p for p in peaks if p.scan != "heating"), key=lambda p: p.t_peak_K)
     groups: list[list[ThermalPeak]] = []
@@ -338,7 +342,7 @@ def build(
 
     # 1. DSC: heating/cooling pairs
     raw: list[dict[str, Any]] = []
-    for heat, cool in _pair_dsc(dsc_peaks):
+    for heat, cool in pair_dsc(dsc_peaks):
         main = heat or cool
         th = _mean(p.t_peak_K for p in heat) if heat else None
         tc = _mean(p.t_peak_K for p in cool) if cool else None

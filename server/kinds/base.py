@@ -82,6 +82,32 @@ def evidence_at_measured_temperature(results: Mapping[str, Any], temperature_K: 
 
 
 @dataclass(frozen=True)
+class Line:
+    """One line of a compact cell: a label, a value printed to ``digits`` significant digits (text passes
+    unchanged; None prints the label alone) and its unit as declared (the page prints it as the trade does)."""
+
+    label: str
+    value: Any = None
+    digits: int = 4
+    unit: str = ""
+
+
+@dataclass(frozen=True)
+class CompactTable:
+    """A list result the measurement page shows as a table at desktop widths that stacks into labelled
+    blocks on a phone, instead of a wide table that scrolls sideways (``templates/partials/compact_table.html``).
+
+    ``replaces`` is the result key whose plain table it takes the place of; ``columns`` gives (label, unit as
+    declared) per column, the first naming the rows; each row holds one cell per column, a cell its lines."""
+
+    replaces: str
+    caption: str
+    columns: tuple[tuple[str, str], ...]
+    rows: tuple[tuple[tuple[Line, ...], ...], ...]
+    note: str = ""
+
+
+@dataclass(frozen=True)
 class Example:
     """An example upload: its file name, its bytes (conditions in ``# key: value`` lines) and the
     model parameters it was generated from, so tests can check the analysis recovers them."""
@@ -153,6 +179,9 @@ class Kind:
     no_figure_reason: str = ""  # says why ``figure`` is None
     needs_structures: bool = False  # the analysis compares with the compound's CIFs (Context.structures)
     content_type: str = "text/plain"
+    #: ``compact(results)``: CompactTables that replace wide list tables on the measurement page (None: the
+    #: list results are shown as plain tables).
+    compact: Optional[Callable[[Mapping[str, Any]], tuple[CompactTable, ...]]] = None
 
     @property
     def table(self) -> bool:

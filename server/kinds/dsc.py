@@ -3,15 +3,15 @@
 from __future__ import annotations
 
 import math
-from typing import Any, Optional, Sequence
+from typing import Any, Mapping, Optional, Sequence
 
 from scipy.constants import R as R_J_MOLK  # CODATA 2018
 
 from ..analysis import dsc
-from ..analysis.phases import MELTING_DS_J_MOLK
+from ..analysis.phases import MELTING_DS_J_MOLK, PAIR_MAX_HYSTERESIS_K, ThermalPeak, pair_dsc
 from ..plots.dsc import dsc_figure
 from ..synth.dsc import dsc_trace
-from .base import EXAMPLE_SMILES, Evidence, Example, Kind, Need, ResultKey, example_csv, rng_for
+from .base import EXAMPLE_SMILES, CompactTable, Evidence, Example, Kind, Line, Need, ResultKey, example_csv, rng_for
 
 # A DSC peak above MELTING_DS_J_MOLK is taken as melting (rule and sources in server.analysis.phases).
 
@@ -56,6 +56,103 @@ def _stats(ms: Sequence[Any]) -> dict[str, Any]:
     first: dict[str, Any] = peaks[0] if peaks else {}
     return {"dsc_t_K": first.get("peak_K"), "dsc_ds_J_molK": first.get("ds_J_molK"),
             "dsc_n_states": first.get("n_states")}
+
+
+def _digits(key: str) -> int:
+    rk = KIND.result_key(key)
+    return rk.digits if rk is not None else 4
+
+
+def _label(key: str) -> str:
+    rk = KIND.result_key(key)
+    return rk.label if rk is not None else key
+
+
+def _difference_digits(dt_K: float, step_K: float = 0.1) -> int:
+    """Significant digits that print a temperature difference to ``step_K``, the last digit of the peak
+    temperatures it is taken from (four significant digits at a few hundred kelvin)."""
+    if not math.isfinite(dt_K) or dt_K == 0:
+        return 1
+    return max(1, math.floor(math.log10(abs(dt_K))) - math.floor(math.log10(step_K)) + 1)
+
+
+def _partner_lines(main: dict[str, Any], partner: list[dict[str, Any]], dh_key: str, dh_unit: str,
+                   heating_main: bool, cooled: bool) -> tuple[Line, ...]:
+    if not heating_main:
+        return (Line("on cooling; no heating peak pairs with it"),)
+    if not partner:
+        return (Line(f"none within {PAIR_MAX_HYSTERESIS_K:g} K below") if cooled else Line("no cooling scan"),)
+    lines: list[Line] = []
+    for c in partner:
+        scan = f" (scan {c.get('segment')})" if len(partner) > 1 else ""
+        dt = main["peak_K"] - c["peak_K"]
+        lines += [Line(f"peak{scan}", c["peak_K"], _digits("peak_K"), "K"),
+                  Line(_label(dh_key), c.get(dh_key), _digits(dh_key), dh_unit),
+                  Line("hysteresis", dt, _difference_digits(dt), "K")]
+    return tuple(lines)
+
+
+def _transition_row(p: dict[str, Any], partner: list[dict[str, Any]], heating_main: bool, dh_key: str,
+                    cooled: bool) -> tuple[tuple[Line, ...], ...]:
+    dh_unit = KIND.result_key(dh_key).unit
+    head = [Line("scan", p.get("segment")),
+            Line(f"{p.get('segment_direction') or 'heating'}, {'exo' if p.get('direction') == 'exo' else 'endo'}thermic")]
+    if looks_like_melting(p):
+        head.append(Line("taken as melting"))
+    dh = [Line("", p.get(dh_key), _digits(dh_key))]
+    if dh_key != "dh_J_g":
+        dh.append(Line("", p.get("dh_J_g"), _digits("dh_J_g"), "J/g"))
+    ds = [Line("", p.get("ds_J_molK"), _digits("ds_J_molK"))]
+    if p.get("n_states") is not None:
+        ds.append(Line("N", p["n_states"], _digits("n_states")))
+    t = [Line("onset", p.get("onset_K"), _digits("onset_K")), Line("peak", p["peak_K"], _digits("peak_K"))]
+    return (tuple(head), tuple(t), tuple(dh), tuple(ds),
+            _partner_lines(p, partner, dh_key, dh_unit, heating_main, cooled))
+
+
+def _transitions(results: Mapping[str, Any]) -> Optional[CompactTable]:
+    """Each heating peak with its paired cooling peak, paired by the phase model
+    (:func:`server.analysis.phases.pair_dsc`: opposite heat, at most PAIR_MAX_HYSTERESIS_K below), so the page
+    and the verdict's phase model never disagree; a cooling peak without a heating partner has a row of its own."""
+    peaks = [p for p in results.get("peaks") or [] if p.get("peak_K") is not None]
+    if not peaks:
+        return None
+    thermal = [ThermalPeak(measurement_id=0, t_peak_K=p["peak_K"], scan=p.get("segment_direction") or "heating",
+                           endothermic=p.get("direction") != "exo", onset_K=p.get("onset_K"),
+                           ds_J_molK=p.get("ds_J_molK")) for p in peaks]
+    peak_of = {id(t): p for t, p in zip(thermal, peaks)}
+    dh_key = "dh_kJ_mol" if any(p.get("dh_kJ_mol") is not None for p in peaks) else "dh_J_g"
+    cooled = any(s.get("direction") == "cooling" for s in results.get("segments") or [])
+    rows: list[tuple[dict[str, Any], list[dict[str, Any]], bool]] = []
+    for heat, cool in pair_dsc(thermal):
+        partner = [peak_of[id(t)] for t in cool or []]
+        rows += [(peak_of[id(t)], partner, True) for t in heat] if heat else [(c, [], False) for c in partner]
+    rows.sort(key=lambda r: (r[0]["peak_K"], not r[2]))
+    columns = (("Transition", ""), ("T", "K"), (_label(dh_key), KIND.result_key(dh_key).unit),
+               (_label("ds_J_molK"), KIND.result_key("ds_J_molK").unit), ("Paired cooling peak", ""))
+    return CompactTable(
+        replaces="peaks", caption="Transitions: each heating peak with its cooling partner", columns=columns,
+        rows=tuple(_transition_row(p, partner, heating, dh_key, cooled) for p, partner, heating in rows),
+        note=(f"Paired as the phase model pairs them: a cooling peak of the opposite heat at most "
+              f"{PAIR_MAX_HYSTERESIS_K:g} K below its heating peak; hysteresis is the heating minus the cooling "
+              f"peak temperature."))
+
+
+def _scans(results: Mapping[str, Any]) -> Optional[CompactTable]:
+    segments = results.get("segments") or []
+    if not segments:
+        return None
+    rows = tuple(((Line("scan", s.get("index")), Line(s.get("direction") or "")),
+                  (Line("from", s.get("t_start_K"), _digits("t_start_K")), Line("to", s.get("t_end_K"), _digits("t_end_K"))),
+                  (Line("", s.get("rate_K_min"), _digits("rate_K_min")),),
+                  (Line("", s.get("n_points")), Line("integrated over", s.get("integrated_over"))))
+                 for s in segments)
+    return CompactTable(replaces="segments", caption="Scans", rows=rows,
+                        columns=(("Scan", ""), ("T", "K"), ("rate", "K/min"), ("points", "")))
+
+
+def _compact(results: Mapping[str, Any]) -> tuple[CompactTable, ...]:
+    return tuple(t for t in (_transitions(results), _scans(results)) if t is not None)
 
 
 def _example() -> Example:
@@ -111,4 +208,5 @@ KIND = Kind(
     evidence=_evidence,
     stats=_stats,
     example=_example,
+    compact=_compact,
 )

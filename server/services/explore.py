@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from collections import Counter, defaultdict
 from dataclasses import dataclass, field
 from typing import Any, Callable, Optional
@@ -35,6 +36,17 @@ def _pure_chain_stat(name: str) -> Callable[[ViewRow], Optional[float]]:
     return lambda r: None if chain_set(r).mixed else get(r)
 
 
+def _relaxation_ea(r: ViewRow) -> Optional[float]:
+    """The solid-state activation energy of bowl inversion from dielectric relaxation (kind
+    ``dielectric_spectrum``: an Arrhenius fit of tau(T), kept in kcal/mol in CompoundStats), only where it is
+    a figure of merit: an Ea marked apparent (ln tau curved in 1/T, so the Arrhenius slope is only a mean
+    over the range; Vogel-Fulcher behaviour) or not a finite number is left out, as apparent Pr and Ec are."""
+    s = r.stats
+    if s is None or s.relax_ea_kcal_mol is None or s.relax_ea_apparent is not False:
+        return None
+    return s.relax_ea_kcal_mol if math.isfinite(s.relax_ea_kcal_mol) else None
+
+
 @dataclass(frozen=True)
 class Property:
     key: str
@@ -55,6 +67,7 @@ PROPERTIES: dict[str, Property] = {p.key: p for p in (
     Property("mw", "molar mass", "g/mol", lambda r: r.compound.mw),
     Property("barrier_measured", "barrier, measured", "kcal/mol", _stat("barrier_measured_kcal_mol")),
     Property("barrier_computed", "barrier, computed", "kcal/mol", _stat("barrier_computed_kcal_mol")),
+    Property("relax_ea", "relaxation Ea, solid", "kcal/mol", _relaxation_ea),
     Property("bowl_depth", "bowl depth", "Å", _stat("bowl_depth_A")),
     Property("dipole", "dipole moment", "D", _stat("dipole_D")),
     Property("pr", "Pr", "µC/cm²", _stat("pr_max_uC_cm2"), temperature_dependent=True),

@@ -141,3 +141,29 @@ def dsc_trace(
         noise_mW=float(noise_mW),
     )
     return frame
+
+
+def heat_cool_trace(
+    heating: Sequence[Mapping[str, float | str]],
+    cooling: Sequence[Mapping[str, float | str]],
+    *,
+    t_low_K: float,
+    t_high_K: float,
+    rng: np.random.Generator,
+    baseline_slope: float = 0.0,
+    **run: float | str,  # rate_K_min, mass_mg, baseline_mW, noise_mW, sample_interval_s, endo as for dsc_trace
+) -> pd.DataFrame:
+    """One file of a heating run from ``t_low_K`` to ``t_high_K`` and the cooling run straight back, as an
+    instrument writes a heat-cool programme: the time runs on, and the cooling baseline starts where the
+    heating one ended and slopes back. ``cooling`` lists the transitions as met on cooling (their ``t_K``
+    below the heating ones where the transition supercools; the model itself has no supercooling)."""
+    start_mW = float(run.pop("baseline_mW", 0.0))
+    heat = dsc_trace(heating, t_start_K=t_low_K, t_end_K=t_high_K, baseline_mW=start_mW,
+                     baseline_slope=baseline_slope, rng=rng, **run)
+    cool = dsc_trace(cooling, t_start_K=t_high_K, t_end_K=t_low_K, heating=False,
+                     baseline_mW=start_mW + baseline_slope * (t_high_K - t_low_K), baseline_slope=-baseline_slope,
+                     rng=rng, **run)
+    cool["t (s)"] += heat["t (s)"].iloc[-1] + float(run.get("sample_interval_s", 0.5))
+    frame = pd.concat([heat, cool.iloc[1:]], ignore_index=True)
+    frame.attrs.update(heat.attrs, heating=None, transitions_cooling=[dict(tr) for tr in cooling])
+    return frame

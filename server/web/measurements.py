@@ -184,6 +184,7 @@ def _measurement_page(request: Request, session, m, actor, *, revise_error: Opti
             fig, fig_error = None, str(exc)
     return render(request, "pages/measurement.html",
                   {"m": info, "kind": kind, "figure": fig, "apparent_reason": apparent,
+                   "compact": kind.compact(info["results"]) if kind is not None and kind.compact else (),
                    "apparent_keys": sorted(merit.apparent_keys(info, apparent)), "figure_error": fig_error, "revise_error": revise_error,
                    "revise_fields": REVISE_FIELDS, "examples": CONDITION_EXAMPLES,
                    "peak_list": _peak_list(session, m, info, actor, seen, signal_rows), "signals_error": signals_error,

@@ -11,11 +11,13 @@ from __future__ import annotations
 
 import csv
 import io
+import json
 import math
 from types import SimpleNamespace
 
 import numpy as np
 import pandas as pd
+import pytest
 
 from server.analysis.relaxation import havriliak_negami
 from server.kinds.base import example_csv
@@ -79,6 +81,34 @@ def test_relaxation_ea_is_stored_shown_and_exported(client, session):
     assert sv.find("a")["href"] == second and sv.text.startswith("Solid against solution: apparent E")
     export = next(csv.DictReader(io.StringIO(client.get("/compounds/export.csv").text)))
     assert export["relaxation Ea apparent"] == "True"
+
+
+def _explorer_points(client) -> list[tuple[float, float]]:
+    page = soup(client.get("/explorer?x=relax_ea&y=barrier_measured&group=verdict").text)
+    fig = json.loads(page.find("script", id="explorer-figure").string)
+    assert fig["layout"]["xaxis"]["title"]["text"] == "relaxation Ea, solid (kcal/mol)"
+    return [(x, y) for t in fig["data"] if t["mode"] == "markers" for x, y in zip(t["x"], t["y"])]
+
+
+def test_the_explorer_plots_the_relaxation_ea_and_leaves_an_apparent_one_out(client, session):
+    """Ea against the solution barrier (the kind's example NMR rates): plotted from the Arrhenius spectrum
+    (40 kJ/mol = 9.560 kcal/mol, the generating law), and gone once the latest spectrum is curved in 1/T
+    (Vogel-Fulcher), whose Ea is only apparent, as the explorer leaves apparent Pr and Ec out."""
+    csrf = login_as(client, session)
+    client.post("/compounds/new", data={"smiles": EXAMPLE_SMILES, "csrf_token": csrf})
+    client.post("/compounds/RVZ-00001/batches/new", data={"state": "made", "csrf_token": csrf})
+    ex = KINDS["nmr_rates"].example()
+    _upload(client, csrf, "nmr_rates", ex.filename, ex.raw)
+    assert _explorer_points(client) == []  # no spectrum yet: no Ea
+    ex = KINDS["dielectric_spectrum"].example()
+    _upload(client, csrf, "dielectric_spectrum", ex.filename, ex.raw)
+    row = _stats(session)
+    [(x, y)] = _explorer_points(client)
+    assert abs(x - EA_KCAL_MOL) < 3 * row.relax_ea_err_kcal_mol + 0.1
+    assert x == pytest.approx(row.relax_ea_kcal_mol) and y == pytest.approx(row.barrier_measured_kcal_mol)
+    _upload(client, csrf, "dielectric_spectrum", "vf.csv", _vogel_fulcher_file())
+    assert _stats(session).relax_ea_apparent is True
+    assert _explorer_points(client) == []
 
 
 def test_the_stats_of_the_kind_take_the_latest_spectrum_with_an_ea():

@@ -297,6 +297,7 @@ def test_full_demo_on_sqlite(sqlite_template, tmp_path):
         assert 3 <= sum(c.embargoed for c in plan.compounds) <= 6
         assert {c.bowl_key for c in plan.compounds} == {"CH2", "CS", "S", "Se"}
         _check_against_scenario(report, client, reader, plan)
+        _check_every_verdict_class(report, client, reader, plan)
     finally:
         client.close()
         app.state.engine.dispose()

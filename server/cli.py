@@ -261,6 +261,26 @@ def cmd_rematch_scaffolds(args: argparse.Namespace) -> int:
     return 0
 
 
+def cmd_recompute_verdicts(args: argparse.Namespace) -> int:
+    from .db import make_engine
+    from .services.verdicts import recompute_all
+
+    with Session(make_engine(_settings().database_url)) as session:
+        done = recompute_all(session=session, apply=not args.dry_run, actor="cli:recompute-verdicts")
+    for r in done:
+        if r.changed or r.restated:
+            what = f"{r.old_code} -> {r.new_code}" if r.old_code != r.new_code else (
+                f"{r.new_code} (conflicts changed)" if r.changed else
+                f"{r.new_code} (reasons restated)" if r.old_version else f"{r.new_code} (first stored)")
+            print(f"{r.code}: {what} [{r.old_version or 'no version'} -> {r.new_version}]")
+    changed, restated = sum(r.changed for r in done), sum(r.restated for r in done)
+    verb = "would change" if args.dry_run else "changed"
+    print(f"{len(done)} verdict(s) examined: {changed} {verb}, {restated} restated with the same code and "
+          f"conflicts, {len(done) - changed - restated} unchanged"
+          + (" (dry run: nothing written)" if args.dry_run else ""))
+    return 0
+
+
 def cmd_prune_notifications(args: argparse.Namespace) -> int:
     from .db import make_engine
     from .services.notifications import prune
@@ -455,6 +475,10 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--dry-run", action="store_true", help="list the changes, write nothing")
     p.set_defaults(func=cmd_rematch_scaffolds)
 
+    p = sub.add_parser("recompute-verdicts", help="re-derive every stored compound verdict under the current "
+                       "rules; changes are audited and notified as verdict changes")
+    p.add_argument("--dry-run", action="store_true", help="compare and count, write nothing")
+    p.set_defaults(func=cmd_recompute_verdicts)
     p = sub.add_parser("prune-notifications", help="remove read notifications past their keeping time (and unread "
                        "ones past the larger cap)")
     p.add_argument("--dry-run", action="store_true", help="count them, remove nothing")

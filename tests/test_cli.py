@@ -153,3 +153,69 @@ def test_init_rebuilds_stale_largest_pr_once(env, client, session, pellet, capsy
     assert main(["rebuild-stats"]) == 0 and "rebuilt the figures of 1 compound(s)" in capsys.readouterr().out
     session.expire_all()
     assert session.get(CompoundStats, cid).pr_max_uC_cm2 == pytest.approx(good["results"]["pr_uC_cm2"])
+
+
+def test_recompute_verdicts_rederives_stale_verdicts_and_a_dry_run_writes_nothing(env, client, session, capsys):
+    """A verdict stored under an older rule version stays as it was decided until its evidence changes;
+    ``recompute-verdicts`` re-derives it under the current rules, audited and notified as a verdict change
+    (old -> new, with both rule versions); ``--dry-run`` counts the same change and writes nothing."""
+    import numpy as np
+
+    from server.analysis import verdict as rules
+    from server.ingest.table import to_csv_bytes
+    from server.models import AuditEvent, Compound, CompoundFollow, Notification
+    from server.synth.ferro import miller_loop
+    from tests.factories import bearer, make_token, make_user
+
+    h = bearer(make_token(session, scope="write"))
+    for smiles in ("COc1ccc(OCCCC)cc1OC", "COc1ccc(OCCCCCC)cc1OC"):  # invented test ethers
+        assert client.post("/api/v1/compounds", json={"smiles": smiles}, headers=h).status_code == 201
+    assert client.post("/api/v1/compounds/RVZ-00001/batches", json={}, headers=h).status_code == 201
+    # Two saturated switching loops (Miller et al., J. Appl. Phys. 68, 6463 (1990)), 2 % noise of Ps, no PUND
+    for t_K, seed in ((300, 1), (320, 2)):
+        raw = to_csv_bytes(miller_loop(10, 8, 50, 300, noise_uC_cm2=0.2, rng=np.random.default_rng(seed)),
+                           {"temperature": f"{t_K} K", "frequency": "100 Hz"})
+        assert client.post("/api/v1/batches/RVZ-00001-B01/measurements", data={"kind": "pe_loop"},
+                           files={"file": (f"l{t_K}.csv", raw)}, headers=h).status_code == 201
+    fresh = client.get("/api/v1/compounds/RVZ-00001", headers=h).json()["verdict"]
+    assert fresh == "loop_switching_only"  # loops switch, no PUND: the verdict table's loop-only class
+    # The same compound as it would stand had its verdict been stored under an earlier rule version
+    stale = {"code": "untested", "label": "No conclusive evidence yet", "reason": "decided by an older rule",
+             "conflicts": [], "version": "verdict/1.0"}
+    follower = make_user(session, "fol")
+    compound = session.exec(select(Compound).where(Compound.code == "RVZ-00001")).one()
+    session.add(CompoundFollow(user_id=follower.id, compound_id=compound.id))
+    compound.verdict_code, compound.verdict = "untested", stale
+    session.add(compound)
+    session.commit()
+    n_events = len(session.exec(select(AuditEvent)).all())
+
+    assert main(["recompute-verdicts", "--dry-run"]) == 0
+    out = capsys.readouterr().out
+    assert f"RVZ-00001: untested -> loop_switching_only [verdict/1.0 -> {rules.VERSION}]" in out
+    # the second compound has no evidence and was never decided: its untested verdict is stored for the first time
+    assert "RVZ-00002: untested (first stored)" in out
+    assert "2 verdict(s) examined: 1 would change, 1 restated with the same code and conflicts, 0 unchanged" in out
+    session.expire_all()
+    compound = session.exec(select(Compound).where(Compound.code == "RVZ-00001")).one()
+    assert (compound.verdict_code, compound.verdict) == ("untested", stale)
+    assert len(session.exec(select(AuditEvent)).all()) == n_events
+    assert not session.exec(select(Notification).where(Notification.user_id == follower.id)).all()
+
+    assert main(["recompute-verdicts"]) == 0
+    assert "2 verdict(s) examined: 1 changed, 1 restated with the same code and conflicts, 0 unchanged" in \
+        capsys.readouterr().out
+    session.expire_all()
+    compound = session.exec(select(Compound).where(Compound.code == "RVZ-00001")).one()
+    assert compound.verdict_code == "loop_switching_only" and compound.verdict["version"] == rules.VERSION
+    change, = session.exec(select(AuditEvent).where(AuditEvent.action == "verdict.change",
+                                                    AuditEvent.id > n_events)).all()
+    assert change.before["code"] == "untested" and change.before["version"] == "verdict/1.0"
+    assert change.after["code"] == "loop_switching_only" and change.after["version"] == rules.VERSION
+    run, = session.exec(select(AuditEvent).where(AuditEvent.action == "verdict.recompute_all")).all()
+    assert run.after == {"version": rules.VERSION, "examined": 2, "changed": 1, "restated": 1}
+    note, = session.exec(select(Notification).where(Notification.user_id == follower.id)).all()
+    assert note.event == "verdict" and "→" in note.text
+    # nothing is stale any more: a second run changes nothing
+    assert main(["recompute-verdicts"]) == 0
+    assert "0 changed, 0 restated with the same code and conflicts, 2 unchanged" in capsys.readouterr().out

@@ -18,6 +18,7 @@ from fastapi.testclient import TestClient
 from seed_demo import load as demo_load
 from seed_demo import instruments, make_examples, scenario
 from server.kinds import KINDS
+from server.verdict_codes import CODES
 from server.kinds.base import EXAMPLE_SMILES
 from server.synth.nmr_spectrum import signals_for
 from server.app import create_app
@@ -235,6 +236,7 @@ def test_demo_loads_and_agrees_with_scenario(settings):
         _check_phase_id(report, client, reader)
         _check_planning(report, client, reader)
         _check_strongest_class(report, client, reader, plan)
+        _check_every_verdict_class(report, client, reader, plan)
     finally:
         client.close()
         app.state.engine.dispose()
@@ -255,6 +257,28 @@ def _check_strongest_class(report, client, reader, plan: scenario.Scenario) -> N
         assert not [x for x in v["verdict_evidence"]["computed"]["conflicts"] if x["blocking"]]
 
 
+def _check_every_verdict_class(report, client, reader, plan: scenario.Scenario) -> None:
+    """The demo shows every class of the verdict table (server/verdict_codes.py), at every scale: a class with no
+    compound fails here by name. The two part-measured late compounds (seed_demo/scenario.py, _LATE_STAGES) give
+    the classes no other compound reaches: saturated loops without PUND are "loop only" (Scott 2008: a loop alone
+    can come from leakage or loss), a polar structure nobody has tried to switch is "polar, not switched"
+    (IEEE Std 180-1986: ferroelectric needs the polarisation reversed by a field)."""
+    codes: dict[str, list[str]] = {}
+    for c in client.get("/api/v1/compounds", params={"limit": 500}, headers=reader).json()["items"]:
+        codes.setdefault(c["verdict"], []).append(c["code"])
+    missing = [code for code in CODES if code not in codes]
+    assert not missing, f"the demo has no compound in the verdict class(es) {missing}"
+    expected = {"loops_only": "loop_switching_only", "structure_only": "polar_unswitched"}
+    staged = [c for c in plan.compounds if (c.bowl_key, c.chains[0].tag) in scenario._LATE_STAGES and c.uniform]
+    assert len(staged) == len(expected)
+    for c in staged:
+        stage = scenario._LATE_STAGES[(c.bowl_key, c.chains[0].tag)][0]
+        v = client.get(f"/api/v1/compounds/{report.compounds[c.index]}", headers=reader).json()
+        assert v["verdict"] == expected[stage], v["verdict_evidence"]["computed"]["reason"]
+        criteria = {x["name"]: x["state"] for x in v["verdict_evidence"]["criteria"]}
+        assert criteria["switching shown by PUND"] == "untested", criteria
+
+
 @pytest.mark.slow
 def test_full_demo_on_sqlite(sqlite_template, tmp_path):
     """The whole campaign once (SQLite): counts in the ranges the README promises."""
@@ -267,12 +291,13 @@ def test_full_demo_on_sqlite(sqlite_template, tmp_path):
     try:
         assert 55 <= len(report.compounds) <= 65
         assert 90 <= report.batches <= 115
-        assert 650 <= sum(report.measurements.values()) <= 800  # about 750, identity evidence included
+        assert 650 <= sum(report.measurements.values()) <= 800  # about 785, identity evidence included
         states = {b.state for c in plan.compounds for b in c.batches}
         assert states == {"made", "impure", "failed", "used_up"}
         assert 3 <= sum(c.embargoed for c in plan.compounds) <= 6
         assert {c.bowl_key for c in plan.compounds} == {"CH2", "CS", "S", "Se"}
         _check_against_scenario(report, client, reader, plan)
+        _check_every_verdict_class(report, client, reader, plan)
     finally:
         client.close()
         app.state.engine.dispose()

@@ -24,6 +24,7 @@ from ..precision import decimals_within
 from . import audit, corrections, stats, verdicts
 from .accounts import shown_name, shown_text
 from .errors import Archived
+from .measurements import refresh_derived
 from .registry import get_batch
 
 IDENTITY_KINDS = ("hrms", "elemental", "nmr_spectrum")
@@ -210,7 +211,8 @@ def set_identity(*, session: Session, code: str, confirmed: bool, note: str,
     A member confirms on the evidence: when the stored evidence does not agree (none, or an HRMS or EA
     that fails) the note must say what the confirmation rests on; a withdrawal always gives its reason.
     Setting the state the batch already has changes nothing and writes no event. An archived batch -> 409.
-    The compound verdict is recomputed: its criterion "identity of every measured batch confirmed" follows.
+    The compound verdict and its stats are derived again (``measurements.refresh_derived``, as for any change of
+    evidence): its criterion "identity of every measured batch confirmed" follows.
     """
     batch = get_batch(session, code)
     if batch.archived:
@@ -235,8 +237,9 @@ def set_identity(*, session: Session, code: str, confirmed: bool, note: str,
     audit.record(session, actor=actor.label, action="batch.identity_confirm" if confirmed else "batch.identity_withdraw",
                  entity="batch", code=batch.code, compound_id=compound.id, before=before,
                  after={"identity_confirmed": confirmed, "note": note})
-    verdicts.recompute(session, compound, actor=actor.label)  # the verdict's identity criterion changes
-    stats.refresh(session, compound)
+    # The identity criterion is part of the verdict: the compound's verdict and figures are derived again
+    # through the one path every change of evidence takes (measurements.refresh_derived).
+    refresh_derived(session, [], actor=actor.label, compounds_too=[compound])
     session.commit()
     session.refresh(batch)
     return batch_identity(session=session, code=code, actor=actor)

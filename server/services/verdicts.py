@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from typing import Any, Optional
 
 from sqlmodel import Session, func, select
@@ -128,8 +129,10 @@ def recompute(session: Session, compound: Compound, *, actor: str = "system:verd
     if compound.id is not None and (decision.code != compound.verdict_code or new_conflicts != old_conflicts):
         audit.record(session, actor=actor, action="verdict.change", entity="compound", code=compound.code,
                      compound_id=compound.id,
-                     before={"code": compound.verdict_code, "conflicts": old_conflicts},
-                     after={"code": decision.code, "reason": decision.reason, "conflicts": new_conflicts})
+                     before={"code": compound.verdict_code, "conflicts": old_conflicts,
+                             "version": stored_version(compound)},
+                     after={"code": decision.code, "reason": decision.reason, "conflicts": new_conflicts,
+                            "version": decision.version})
         notifications.verdict_changed(session, compound, old_code=compound.verdict_code, new_code=decision.code,
                                       old_conflicts=old_conflicts, new_conflicts=new_conflicts, actor=actor)
     compound.verdict_code = decision.code
@@ -137,6 +140,58 @@ def recompute(session: Session, compound: Compound, *, actor: str = "system:verd
     compound.verdict_at = utcnow()
     session.add(compound)
     return decision
+
+
+def stored_version(compound: Compound) -> Optional[str]:
+    """The rule version (``verdict/x.y``) the stored verdict was decided under; None if none was stored."""
+    return (compound.verdict or {}).get("version")
+
+
+@dataclass(frozen=True)
+class Rederived:
+    """One compound's stored verdict against the one the current rules give (:func:`recompute_all`).
+
+    ``changed``: the code or the conflicts moved (a verdict change: audited, notified); ``restated``: same code
+    and conflicts, but the stored reasons, criteria or rule version differ and are rewritten."""
+
+    code: str
+    old_code: str
+    new_code: str
+    old_version: Optional[str]
+    new_version: str
+    changed: bool
+    restated: bool
+
+
+def recompute_all(*, session: Session, apply: bool, actor: str) -> list[Rederived]:
+    """Re-derive every compound's stored verdict under the current rules (``remanence recompute-verdicts``).
+
+    A verdict is stored when its evidence changes; a change of the rules themselves (a new
+    :data:`server.analysis.verdict.VERSION`) leaves older verdicts as they were decided. This is the deliberate
+    step that brings them in line: each compound goes through :func:`recompute`, the path every evidence change
+    uses, so a moved code or conflict is audited as ``verdict.change`` (old -> new, with both rule versions) and
+    notified like any other. One ``verdict.recompute_all`` event records the run and its counts; all commits once.
+    With ``apply`` False (a dry run) the verdicts are decided and compared, and nothing is written.
+    """
+    out: list[Rederived] = []
+    for compound in session.exec(select(Compound).order_by(Compound.number)).all():
+        before_code, before_version = compound.verdict_code, stored_version(compound)
+        before = jsonable(compound.verdict) if compound.verdict is not None else None
+        old_conflicts = [c.get("message", "") for c in (compound.verdict or {}).get("conflicts") or []]
+        if apply:
+            decision = recompute(session, compound, actor=actor)
+        else:
+            decision = decide_for(session, compound, evidence_for(session, compound))
+        after = jsonable(decision.to_dict())
+        changed = decision.code != before_code or [c.message for c in decision.conflicts] != old_conflicts
+        out.append(Rederived(compound.code, before_code, decision.code, before_version, decision.version,
+                             changed=changed, restated=not changed and after != before))
+    if apply:
+        audit.record(session, actor=actor, action="verdict.recompute_all", entity="compound",
+                     after={"version": rules.VERSION, "examined": len(out), "changed": sum(r.changed for r in out),
+                            "restated": sum(r.restated for r in out)})
+        session.commit()
+    return out
 
 
 def effective_code(compound: Compound) -> str:

@@ -113,3 +113,60 @@ def test_verdict_criterion_follows_the_identity_confirmation(client, session, ba
                        headers=w).status_code == 200
     crit, computed = criterion()
     assert crit["state"] == "met" and computed["code"] == before
+
+
+def _pund_file(seed: int, t_K: float) -> bytes:
+    """A switching PUND train (server/synth/ferro.pund_train: Pr 0.7, Ps 0.8 uC/cm^2, Ec 19 kV/cm, pulses at 88 kV/cm)
+    with 1 % noise of Pr and a background of eps_r 6, as the area and thickness of a pellet would give it."""
+    from server.kinds.base import EXAMPLE_AREA_CM2, EXAMPLE_THICKNESS_UM
+    from server.synth.ferro import pund_train
+
+    frame = pund_train(0.7, 0.8, 19.0, 88.0, eps_r_background=6.0, points=3000, noise_uC_cm2=0.007,
+                       rng=np.random.default_rng(seed), area_cm2=EXAMPLE_AREA_CM2, thickness_um=EXAMPLE_THICKNESS_UM)
+    return to_csv_bytes(frame, {"area": f"{EXAMPLE_AREA_CM2} cm^2", "thickness": f"{EXAMPLE_THICKNESS_UM:g} um",
+                                "temperature": f"{t_K:g} K"})
+
+
+def test_confirming_and_withdrawing_identity_rederive_the_stored_verdict(client, session, batch, uploader):  # noqa: F811
+    """The identity criterion is part of the verdict: confirming or withdrawing a batch's identity derives the
+    stored verdict again (measurements.refresh_derived, as an upload does), so its criterion, its conclusion and
+    its time follow at once, for each of two batches of one compound, and the stored verdict is the one the
+    rules give from scratch. PUND switching (Scott, J. Phys.: Condens. Matter 20, 021001 (2008)) on each batch."""
+    from server.analysis.results import jsonable
+    from server.models import Compound
+    from server.services import verdicts
+
+    w = _writer(session)
+    second = client.post("/api/v1/compounds/RVZ-00001/batches", json={}, headers=w).json()["code"]
+    ids = {}
+    for b, seed, t_K in ((batch, 31, 300.0), (second, 32, 310.0)):
+        r = post(client, b, "pund", _pund_file(seed, t_K), uploader, filename=f"pund-{seed}.csv")
+        assert r.status_code == 201 and r.json()["verdict"] == "switching", r.text
+        ids[b] = r.json()["id"]
+
+    def stored():
+        session.expire_all()
+        c = session.exec(select(Compound).where(Compound.code == "RVZ-00001")).one()
+        crit = {k["name"]: k for k in c.verdict["criteria"]}["identity of every measured batch confirmed"]
+        fresh = verdicts.decide_for(session, c, verdicts.evidence_for(session, c))
+        assert c.verdict["criteria"] == jsonable(fresh.to_dict())["criteria"]  # stored = derived from scratch
+        return crit["state"], sorted(crit["measurements"]), c.verdict["conclusion"]["text"], c.verdict_at
+
+    state, unmet, text, at0 = stored()
+    assert state == "unmet" and unmet == sorted(ids.values()) and "unmet: identity" in text
+    assert client.post(f"/api/v1/batches/{batch}/identity/confirm", json={"note": "1H NMR matches"},
+                       headers=w).status_code == 200
+    state, unmet, text, at1 = stored()
+    assert (state, unmet) == ("unmet", [ids[second]]) and at1 > at0
+    assert client.post(f"/api/v1/batches/{second}/identity/confirm", json={"note": "HRMS and 1H NMR match"},
+                       headers=w).status_code == 200
+    state, unmet, text, at2 = stored()
+    assert state == "met" and "unmet: identity" not in text and at2 > at1
+    assert client.post(f"/api/v1/batches/{batch}/identity/withdraw", json={"note": "EA of the dried batch fails"},
+                       headers=w).status_code == 200
+    state, unmet, text, _ = stored()
+    assert (state, unmet) == ("unmet", [ids[batch]]) and "unmet: identity" in text
+    # the page the member reads says the same
+    body = client.get("/api/v1/compounds/RVZ-00001", headers=w).json()["verdict_evidence"]
+    crit = {k["name"]: k for k in body["criteria"]}["identity of every measured batch confirmed"]
+    assert crit["state"] == "unmet" and crit["measurements"] == [ids[batch]]

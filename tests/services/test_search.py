@@ -28,7 +28,8 @@ from server.models import Compound
 from server.services import search as structure_search
 from server.services import views
 from server.settings import Settings
-from tests.chem.test_search import MOLECULES, RING_QUERIES, SMARTS_QUERIES, count_tanimoto, legacy_fp
+from tests.chem.test_search import (KIND_QUERIES, MOLECULES, RING_QUERIES, SMARTS_QUERIES, count_tanimoto,
+                                    legacy_fp)
 from tests.conftest import _empty_pg
 from tests.factories import bearer, login_as, make_token
 
@@ -192,7 +193,7 @@ def _answers(app) -> dict:
     """Every query's answer keyed by compound code (ids may differ between databases)."""
     out = {}
     with Session(app.state.engine) as s:
-        for q in SMARTS_QUERIES + RING_QUERIES + ["C1=CC=CC=C1"]:
+        for q in SMARTS_QUERIES + RING_QUERIES + KIND_QUERIES + ["C1=CC=CC=C1"]:
             out[("sub", q)] = [(h.code, None) for h in structure_search.search(s, substructure=q)]
         for smi in MOLECULES[::4] + ["COc1ccccc1"]:
             for t in (0.15, 0.4, 0.7):

@@ -56,6 +56,8 @@ from .common import Row, Section, fmt_s, paired, repeat
 # (label, query text as a chemist types it)
 SUBSTRUCTURE_QUERIES: tuple[tuple[str, str], ...] = (
     ("Se bridge [se]", "[se]"),
+    ("selenium, any [Se]", "[Se]"),
+    ("aliphatic sulfur S", "S"),
     ("S-bridged bowl core", "s1c2ccc3sc4ccc5sc6ccc1c1c2c3c4c5c61"),
     ("2-ethylhexyloxy cOCC(CC)CCCC", "cOCC(CC)CCCC"),
     ("dodecylthio cSCCCCCCCCCCCC", "cSCCCCCCCCCCCC"),
@@ -433,14 +435,18 @@ def cartridge(section: Section, lite, records: list[dict], tables: dict, n: int,
                            "the compound join; or index + code lookup); ratio > 1: the cartridge is slower.")
 
 
-def run(quick: bool = False, large: bool = False, service: bool = True) -> Section:
-    """The search benchmarks; ``service=False`` leaves out the seeded registry and the cartridge comparison."""
+def run(quick: bool = False, large: bool = False, service: bool = True, sizes: list[int] | None = None) -> Section:
+    """The search benchmarks; ``service=False`` leaves out the seeded registry and the cartridge comparison.
+
+    ``sizes`` (ascending) replaces the in-process sizes of ``quick``/``large`` (e.g. 5 000 and 10 000 on a
+    shared machine)."""
     from server.services import search as search_service
 
     section = Section("search")
-    sizes = [2_000, 5_000] if quick else [10_000, 30_000]
-    if large and not quick:
-        sizes.append(100_000)
+    if sizes is None:
+        sizes = [2_000, 5_000] if quick else [10_000, 30_000]
+        if large and not quick:
+            sizes.append(100_000)
     rounds, budget_s = (5, 3.0) if quick else (7, 5.0)
     n, m = (2_000, 10_000) if quick else (10_000, 50_000)
     if not service:
@@ -483,8 +489,10 @@ if __name__ == "__main__":  # python -m bench.bench_search [--quick] [--large] [
     parser.add_argument("--quick", action="store_true")
     parser.add_argument("--large", action="store_true")
     parser.add_argument("--no-service", action="store_true", help="in-process rows only (no seeded registry)")
+    parser.add_argument("--sizes", help="in-process sizes, comma-separated (e.g. 5000,10000)")
     args = parser.parse_args()
-    result = run(quick=args.quick, large=args.large, service=not args.no_service)
+    chosen = None if not args.sizes else sorted(int(x) for x in args.sizes.split(","))
+    result = run(quick=args.quick, large=args.large, service=not args.no_service, sizes=chosen)
     print("| benchmark | measured | baseline | ratio | target |")
     print("|---|---|---|---|---|")
     for row in result.rows:

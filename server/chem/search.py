@@ -48,6 +48,7 @@ from collections.abc import Collection, Iterable, Mapping
 from dataclasses import dataclass
 from pathlib import Path
 
+import numpy as np
 from rdkit import Chem, DataStructs, rdBase
 from rdkit.Chem import rdFingerprintGenerator, rdSubstructLibrary
 
@@ -65,6 +66,8 @@ __all__ = [
     "QueryTooGeneral",
     "check_query_size",
     "StructureIndex",
+    "element_kinds",
+    "query_kinds",
     "save_entries",
     "load_entries",
 ]
@@ -219,6 +222,111 @@ def _pattern_fp(mol: Chem.Mol) -> DataStructs.ExplicitBitVect:
     return _PATTERNS.MakeFingerprint(mol)
 
 
+# --- the element screen --------------------------------------------------------------------------
+#
+# The pattern fingerprint sets no bit that a one-atom query needs ([se], S, [#34] set only the bits every
+# molecule has), so such a query would parse and match every molecule. Beside it each molecule keeps which
+# (element, aromatic) kinds of atom it has: bit 2 Z + aromatic of 256 bits (32 bytes a molecule). A query
+# atom can only be matched by an atom of a kind its query allows, so a molecule without any allowed kind for
+# some query atom cannot contain the query: the same screening-before-matching as Barnard (1993), on atom
+# kinds. A one-atom query that asks only for the kind of atom is answered by the screen alone.
+
+ELEMENT_WORDS = 4  # 64-bit words per molecule: bits 2 Z + aromatic for Z < 128
+_ALL_KINDS = (1 << (64 * ELEMENT_WORDS)) - 1
+
+
+def _kind_bit(atomic_num: int, aromatic: bool) -> int:
+    return 1 << (2 * atomic_num + int(bool(aromatic))) if 0 <= atomic_num < 128 else 0
+
+
+def element_kinds(mol: Chem.Mol) -> int:
+    """The (element, aromatic) kinds of ``mol``'s atoms as a 256-bit integer (bit 2 Z + aromatic)."""
+    bits = 0
+    for atom in mol.GetAtoms():
+        bits |= _kind_bit(atom.GetAtomicNum(), atom.GetIsAromatic())
+    return bits
+
+
+def _kinds_words(bits: Iterable[int]) -> np.ndarray:
+    """Kind integers as an (n, :data:`ELEMENT_WORDS`) array of little-endian uint64 words."""
+    raw = b"".join(int(b).to_bytes(8 * ELEMENT_WORDS, "little") for b in bits)
+    return np.frombuffer(raw, dtype="<u8").reshape(-1, ELEMENT_WORDS).copy()
+
+
+def _words_kinds(words: np.ndarray) -> int:
+    return int.from_bytes(np.ascontiguousarray(words, dtype="<u8").tobytes(), "little")
+
+
+def _query_tree_kinds(lines: list[str]) -> tuple[int, bool]:
+    """Kinds an atom query allows (from RDKit's ``DescribeQuery`` tree) and whether the kind decides it.
+
+    Only AtomType (atomic number + 1000 if aromatic), AtomAtomicNum, AtomAnd and AtomOr nodes are read;
+    any other node (hydrogen count, charge, ring, recursion, a negation) allows every kind and makes the
+    answer undecided, so the screen never drops a molecule the matcher would keep.
+    """
+    pos = 0
+
+    def node(depth: int) -> tuple[int, bool]:
+        nonlocal pos
+        line = lines[pos]
+        pos += 1
+        words = line.strip().split()
+        children = []
+        while pos < len(lines) and (len(lines[pos]) - len(lines[pos].lstrip(" "))) // 2 > depth:
+            children.append(node(depth + 1))
+        if words in (["AtomAnd"], ["AtomOr"]) and children:
+            if words == ["AtomAnd"]:
+                allowed = _ALL_KINDS
+                for kinds, _ in children:
+                    allowed &= kinds
+            else:
+                allowed = 0
+                for kinds, _ in children:
+                    allowed |= kinds
+            return allowed, all(exact for _, exact in children)
+        if len(words) == 4 and words[2:] == ["=", "val"] and words[1].isdigit() and not children:
+            value = int(words[1])
+            if words[0] == "AtomType":
+                return _kind_bit(value % 1000, value >= 1000), True
+            if words[0] == "AtomAtomicNum":
+                return _kind_bit(value, False) | _kind_bit(value, True), True
+        return _ALL_KINDS, False
+
+    allowed, exact = node(0)
+    return (allowed, exact) if pos == len(lines) else (_ALL_KINDS, False)
+
+
+def query_kinds(query: Chem.Mol) -> tuple[list[int], bool]:
+    """Per query atom, the kinds of molecule atom that can match it; and whether the screen alone decides.
+
+    The screen decides a query of one atom, no bonds, whose query names only elements and aromaticity
+    (``[se]``, ``S``, ``[#34]``, ``[S,Se]``): a molecule contains it exactly when it has an atom of an
+    allowed kind. A plain (SMILES) atom matches by atomic number whatever its aromaticity; a dummy atom or
+    hydrogen allows every kind.
+    """
+    allowed: list[int] = []
+    exact = query.GetNumAtoms() == 1 and query.GetNumBonds() == 0
+    for atom in query.GetAtoms():
+        if atom.HasQuery():
+            kinds, decided = _query_tree_kinds([ln for ln in atom.DescribeQuery().splitlines() if ln.strip()])
+        else:
+            z = atom.GetAtomicNum()
+            kinds, decided = (_ALL_KINDS if z <= 1 else _kind_bit(z, False) | _kind_bit(z, True)), False
+        allowed.append(kinds)
+        exact = exact and decided
+    return allowed, exact
+
+
+def _screen_kinds(words: np.ndarray, allowed: list[int]) -> np.ndarray:
+    """Boolean per molecule row of ``words``: it has an atom of an allowed kind for every query atom."""
+    ok = np.ones(len(words), dtype=bool)
+    for kinds in set(allowed):
+        if kinds == _ALL_KINDS:
+            continue
+        ok &= (words & _kinds_words([kinds])[0]).any(axis=1)
+    return ok
+
+
 class QueryTooGeneral(ChemistryError):
     """A substructure query over a limit of :data:`QUERY_LIMITS` or over its matching time budget (422)."""
 
@@ -296,7 +404,9 @@ class _Segment:
     ``lib`` is an RDKit ``SubstructLibrary`` over a ``CachedTrustedSmilesMolHolder`` (RDKit
     canonical SMILES, parsed on demand without re-sanitising) and ``screen``, a ``PatternHolder``
     (the 2048-bit pattern-fingerprint screen; it is also where a copy reads the fingerprints back,
-    so they are held once). ``smiles``/``morgan`` are kept beside it so that a copy can be made
+    so they are held once). ``kinds``: per molecule the (element, aromatic) kinds of its atoms
+    (:func:`element_kinds`, one row of :data:`ELEMENT_WORDS` uint64 words), the screen read before
+    the library. ``smiles``/``morgan`` are kept beside it so that a copy can be made
     without reading molecules back. ``low``/``high``: the least and greatest id, ``ordered``: ids
     ascending, which lets a search for the first hits stop early.
     """
@@ -305,46 +415,61 @@ class _Segment:
     smiles: tuple[str, ...]
     morgan: tuple[DataStructs.ULongSparseIntVect, ...]  # count fingerprints (:func:`fingerprint`)
     screen: rdSubstructLibrary.PatternHolder
+    holder: rdSubstructLibrary.CachedTrustedSmilesMolHolder
     lib: rdSubstructLibrary.SubstructLibrary
+    kinds: np.ndarray  # (len(ids), ELEMENT_WORDS) uint64
     low: int
     high: int
     ordered: bool
 
     @classmethod
-    def build(cls, ids, smiles, patterns, morgan) -> "_Segment":
+    def build(cls, ids, smiles, patterns, morgan, kinds) -> "_Segment":
         holder = rdSubstructLibrary.CachedTrustedSmilesMolHolder()
         screen = rdSubstructLibrary.PatternHolder(PATTERN_FP_SIZE)
         for smi, fp in zip(smiles, patterns):
             holder.AddSmiles(smi)
             screen.AddFingerprint(fp)
         ids = tuple(ids)
-        return cls(ids, tuple(smiles), tuple(morgan), screen, rdSubstructLibrary.SubstructLibrary(holder, screen),
+        words = kinds if isinstance(kinds, np.ndarray) else _kinds_words(kinds)
+        return cls(ids, tuple(smiles), tuple(morgan), screen, holder,
+                   rdSubstructLibrary.SubstructLibrary(holder, screen), words.reshape(-1, ELEMENT_WORDS),
                    min(ids, default=0), max(ids, default=0), all(a < b for a, b in zip(ids, ids[1:])))
 
     def pattern(self, k: int) -> DataStructs.ExplicitBitVect:
         return self.screen.GetFingerprint(k)
 
+    def kind_bits(self, k: int) -> int:
+        return _words_kinds(self.kinds[k])
+
+    def searching(self, order: list[int]) -> rdSubstructLibrary.SubstructLibrary:
+        """A library over this segment's molecules that searches only positions ``order`` (ascending), for one
+        search: the segment's own library is shared by concurrent searches and never changed."""
+        lib = rdSubstructLibrary.SubstructLibrary(self.holder, self.screen)
+        lib.SetSearchOrder(order)
+        return lib
+
     def without(self, drop: set[int]) -> "_Segment":
         keep = [k for k, i in enumerate(self.ids) if i not in drop]
         return _Segment.build([self.ids[k] for k in keep], [self.smiles[k] for k in keep],
-                              [self.pattern(k) for k in keep], [self.morgan[k] for k in keep])
+                              [self.pattern(k) for k in keep], [self.morgan[k] for k in keep], self.kinds[keep])
 
-    def plus(self, ids, smiles, patterns, morgan) -> "_Segment":
+    def plus(self, ids, smiles, patterns, morgan, kinds) -> "_Segment":
         return _Segment.build(self.ids + tuple(ids), self.smiles + tuple(smiles),
                               [self.pattern(k) for k in range(len(self.ids))] + list(patterns),
-                              self.morgan + tuple(morgan))
+                              self.morgan + tuple(morgan), np.concatenate([self.kinds, _kinds_words(kinds)]))
 
 
 _EMPTY = ()  # a snapshot is a tuple of segments
-# One entry: canonical SMILES, pattern fingerprint, Morgan count fingerprint (what a segment holds of a molecule).
-Entry = tuple[str, DataStructs.ExplicitBitVect, DataStructs.ULongSparseIntVect]
+# One entry: canonical SMILES, pattern fingerprint, Morgan count fingerprint, atom kinds (:func:`element_kinds`):
+# what a segment holds of a molecule.
+Entry = tuple[str, DataStructs.ExplicitBitVect, DataStructs.ULongSparseIntVect, int]
 
 
 def _entry(compound_id: int, smiles: str) -> Entry:
     mol = _smiles(smiles)
     if mol is None:
         raise ChemistryError(f"compound {compound_id}: stored SMILES '{smiles}' cannot be read", field="smiles")
-    return Chem.MolToSmiles(mol), _pattern_fp(mol), fingerprint(mol)
+    return Chem.MolToSmiles(mol), _pattern_fp(mol), fingerprint(mol), element_kinds(mol)
 
 
 class StructureIndex:
@@ -428,14 +553,14 @@ class StructureIndex:
         return computed
 
     def entries(self, compound_ids: Iterable[int] | None = None) -> dict[int, Entry]:
-        """The held entries (canonical SMILES, pattern and Morgan fingerprints) of those ids that are held (all
+        """The held entries (canonical SMILES, pattern and Morgan fingerprints, atom kinds) of those ids that are held (all
         when ``compound_ids`` is None)."""
         wanted = None if compound_ids is None else set(compound_ids)
         out: dict[int, Entry] = {}
         for seg in self._snap[0]:
             for j, compound_id in enumerate(seg.ids):
                 if wanted is None or compound_id in wanted:
-                    out[compound_id] = (seg.smiles[j], seg.pattern(j), seg.morgan[j])
+                    out[compound_id] = (seg.smiles[j], seg.pattern(j), seg.morgan[j], seg.kind_bits(j))
         return out
 
     def remove(self, compound_id: int) -> None:
@@ -475,8 +600,10 @@ class StructureIndex:
     ) -> list[int]:
         """Ids of the molecules that contain ``query``, ascending (descending with ``newest_first``).
 
-        A molecule is screened out when the query's pattern-fingerprint bits are not all
-        set in its own (Barnard 1993); the rest are confirmed atom by atom (no chirality,
+        A molecule is screened out when it lacks an atom of a kind some query atom allows
+        (:func:`query_kinds`; a one-atom query on the kind of atom alone is answered there), or
+        when the query's pattern-fingerprint bits are not all set in its own (Barnard 1993);
+        the rest are confirmed atom by atom (no chirality,
         as the cartridge by default), by RDKit's ``SubstructLibrary.GetMatches`` on
         :attr:`threads` threads, :attr:`chunk` molecules at a time.
 
@@ -508,12 +635,23 @@ class StructureIndex:
                 return False
             return sign * sorted(hits, key=lambda i: sign * i)[limit - 1] < sign * edge
 
+        allowed, decided = query_kinds(q)
         for seg in sorted(segments, key=lambda sg: -sg.high if newest_first else sg.low):
             if settled(seg.high if newest_first else seg.low):
                 break
             if keep is not None and keep.isdisjoint(seg.ids):
                 continue
-            starts = range(0, len(seg.ids), self.chunk)
+            passing = _screen_kinds(seg.kinds, allowed)
+            if keep is not None:
+                passing &= np.fromiter((i in keep for i in seg.ids), dtype=bool, count=len(seg.ids))
+            order = np.flatnonzero(passing).tolist()  # positions left to match, ascending
+            if decided:  # a one-atom query on the kind of atom: the screen is the answer
+                hits.extend(seg.ids[k] for k in order)
+                continue
+            if not order:
+                continue
+            lib = seg.lib if len(order) == len(seg.ids) else seg.searching(order)
+            starts = range(0, len(order), self.chunk)
             for start in (reversed(starts) if newest_first else starts):
                 if deadline is not None and time.monotonic() > deadline:
                     raise QueryTooGeneral(
@@ -522,13 +660,13 @@ class StructureIndex:
                         "narrow the search with filters.",
                         field="substructure",
                     )
-                end = min(start + self.chunk, len(seg.ids))
-                found = seg.lib.GetMatches(q, start, end, params, numThreads=self.threads, maxResults=-1)
-                hits.extend(i for i in (seg.ids[k] for k in found) if keep is None or i in keep)
+                end = min(start + self.chunk, len(order))
+                found = lib.GetMatches(q, start, end, params, numThreads=self.threads, maxResults=-1)
+                hits.extend(seg.ids[k] for k in found)
                 if seg.ordered:
                     # Chunks of an ordered segment come in id order: the next molecule not yet checked.
                     following = (start - 1) if newest_first else end
-                    if 0 <= following < len(seg.ids) and settled(seg.ids[following]):
+                    if 0 <= following < len(order) and settled(seg.ids[order[following]]):
                         break
         result = sorted(set(hits), key=lambda i: sign * i)
         return result if limit is None else result[:limit]
@@ -569,8 +707,9 @@ class StructureIndex:
 # either is ignored (and later rewritten), never half used.
 
 _FILE_MAGIC = b"REMANENCE-STRUCTURES\n"
-_FILE_FORMAT = 1
+_FILE_FORMAT = 2  # 2: the atom kinds of the element screen follow each record's Morgan fingerprint
 _RECORD = struct.Struct("<IIII")  # lengths: stored SMILES, canonical SMILES, pattern fp, Morgan fp
+_KINDS_BYTES = 8 * ELEMENT_WORDS  # then the atom kinds, fixed size
 
 
 def _file_guard() -> bytes:
@@ -586,10 +725,11 @@ def save_entries(path: Path, records: Iterable[tuple[str, Entry]]) -> int:
     guard = _file_guard()
     parts = [_FILE_MAGIC, struct.pack("<I", len(guard)), guard]
     n = 0
-    for source, (smiles, pattern, morgan) in records:
+    for source, (smiles, pattern, morgan, kinds) in records:
         fields = (source.encode(), smiles.encode(), pattern.ToBinary(), morgan.ToBinary())
         parts.append(_RECORD.pack(*map(len, fields)))
         parts.extend(fields)
+        parts.append(int(kinds).to_bytes(_KINDS_BYTES, "little"))
         n += 1
     body = b"".join(parts)
     path.parent.mkdir(parents=True, exist_ok=True)
@@ -635,5 +775,7 @@ def load_entries(path: Path) -> dict[str, Entry]:
         at += c
         morgan = DataStructs.ULongSparseIntVect(bytes(view[at:at + d]))
         at += d
-        out[source] = (smiles, pattern, morgan)
+        kinds = int.from_bytes(view[at:at + _KINDS_BYTES], "little")
+        at += _KINDS_BYTES
+        out[source] = (smiles, pattern, morgan, kinds)
     return out

@@ -176,7 +176,8 @@ class CompoundRead(SQLModel):
 
 class CompoundPage(SQLModel):
     items: list[CompoundRead]
-    total: int
+    # None when not counted (``count=false``) and more pages follow.
+    total: Optional[int]
     # The keyset position of the next page (pass it back as ``after=``, with the same sort), None on the last.
     next_after: Optional[str] = None
 

@@ -513,18 +513,52 @@ def count_view(session: Session, q: ViewQuery, *, actor: Optional[Actor], struct
     return session.exec(_joined(select(func.count()).select_from(Compound), conds)).one()
 
 
+def _first_hits_apply(q: ViewQuery) -> bool:
+    """Whether the view's first page can be read from the first substructure hits alone: a substructure and
+    nothing else narrows it (archived rows may be asked for), ordered by code, the first page."""
+    return (bool(q.substructure) and not q.similar and q.sort == "code" and q.page == 1 and q.after is None
+            and q.before is None and set(q.values) <= {"archived"})
+
+
+def _first_hits(session: Session, q: ViewQuery, actor: Optional[Actor]) -> Optional[list[int]]:
+    """The compound ids of the view's first page and one more, from the search's first hits
+    (``search.search(limit=)``: matching stops once they are certain), or None when they cannot be trusted.
+
+    The search orders by id, the page by registration number. Numbers are allocated in the registering
+    transaction before the compound row is written (services/codes.py), so both orders agree; a registry
+    where they do not (rows loaded with numbers of their own) is caught by one indexed probe, a compound
+    beyond the hits read whose number would place it among them, and then the whole answer is used.
+    """
+    from . import search
+
+    want = q.size + 1
+    hits = search.search(session, substructure=q.substructure, include_archived=bool(q.values.get("archived")),
+                         include_embargoed=access.sees_embargoed(actor), limit=want, newest_first=q.descending)
+    ids = [h.compound_id for h in hits]
+    if len(ids) < want:
+        return ids  # the whole answer
+    edge = ids[-1]  # the last id read, in the search's order
+    low, high = session.exec(select(func.min(Compound.number), func.max(Compound.number))
+                             .where(Compound.id.in_(ids))).one()
+    stray = (Compound.id < edge) & (Compound.number > low) if q.descending else \
+        (Compound.id > edge) & (Compound.number < high)
+    return None if session.exec(select(Compound.id).where(stray).limit(1)).first() is not None else ids
+
+
 def _all_conditions(session: Session, q: ViewQuery, actor: Optional[Actor],
-                    structures_only: bool) -> tuple[list[ColumnElement], dict[int, float]]:
+                    structures_only: bool, first_page: bool = False) -> tuple[list[ColumnElement], dict[int, float]]:
     similarity: dict[int, float] = {}
     conds = _conditions(q, actor)
     if q.substructure or q.similar:
         from . import search
 
-        hits = search.search(session, substructure=q.substructure, similar=q.similar, threshold=q.threshold,
-                             include_archived=bool(q.values.get("archived")),
-                             include_embargoed=access.sees_embargoed(actor))
-        ids = [h.compound_id for h in hits]
-        similarity = {h.compound_id: h.similarity for h in hits if h.similarity is not None}
+        ids = _first_hits(session, q, actor) if first_page and _first_hits_apply(q) else None
+        if ids is None:
+            hits = search.search(session, substructure=q.substructure, similar=q.similar, threshold=q.threshold,
+                                 include_archived=bool(q.values.get("archived")),
+                                 include_embargoed=access.sees_embargoed(actor))
+            ids = [h.compound_id for h in hits]
+            similarity = {h.compound_id: h.similarity for h in hits if h.similarity is not None}
         conds.append(Compound.id.in_(ids) if ids else Compound.id == -1)
     if structures_only or q.substructure or q.similar:
         conds.append(access.structure_visible(actor))
@@ -616,9 +650,11 @@ def query_view(session: Session, q: ViewQuery, *, actor: Optional[Actor], paged:
     (``q.after`` / ``q.before``) is read by keyset, each part of the order along its index, so its cost
     does not grow with the registry or with the depth of the page; ``page=N`` without a cursor (an older
     link) is found by offset over the numbers alone. The rows are then read by number. ``count=False``
-    leaves ``total`` None unless the page itself shows that nothing follows.
+    leaves ``total`` None unless the page itself shows that nothing follows; a first page narrowed by a
+    substructure alone is then read from the search's first hits (:func:`_first_hits`), so it does not
+    wait for the whole match (:func:`count_view` counts it when asked).
     """
-    conds, similarity = _all_conditions(session, q, actor, structures_only)
+    conds, similarity = _all_conditions(session, q, actor, structures_only, first_page=paged and not count)
     python_order = bool(q.similar and q.sort == "code")  # most similar first, ordered below
     expr = SORTS[q.sort][2]
     if q.sort in STRUCTURAL_SORTS:

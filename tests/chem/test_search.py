@@ -19,9 +19,11 @@ from server.chem.scaffold import PARENT_BOWLS, attach_side_chains, build_from_sc
 import server.chem.search as search_module
 from server.chem.search import (
     StructureIndex,
+    element_kinds,
     fingerprint,
     load_entries,
     parse_query,
+    query_kinds,
     read_query,
     save_entries,
 )
@@ -424,8 +426,9 @@ def test_entries_round_trip_through_the_file(tmp_path):
         q = parse_query(smarts)
         assert again.substructure(q) == idx.substructure(q)
     for smi, e in zip(MOLECULES, (entries[i] for i in IDS)):
-        smiles, pattern, morgan = known[smi]
-        assert smiles == e[0] and pattern == e[1] and morgan == e[2]
+        smiles, pattern, morgan, kinds = known[smi]
+        assert smiles == e[0] and pattern == e[1] and morgan == e[2] and kinds == e[3]
+        assert kinds == element_kinds(Chem.MolFromSmiles(smi))
     probe = Chem.MolFromSmiles(MOLECULES[3])
     assert again.similar(probe, 0.3) == idx.similar(probe, 0.3)
     assert again.add_many([(999, "CCO")], known=known) == 1  # not in the file: computed
@@ -447,3 +450,97 @@ def test_a_damaged_or_foreign_file_is_ignored(tmp_path, monkeypatch):
     assert load_entries(tmp_path / "absent.bin") == {}
     monkeypatch.setattr(search_module, "PATTERN_FP_SIZE", 1024)  # other fingerprint settings: not this file's
     assert load_entries(path) == {}
+
+
+# --- the element screen (atom kinds before the pattern fingerprint) ----------------------------------
+
+# Beside the test set: an isotope, charges, aliphatic Se and S, a salt, aromatic O and N-H, a dummy-free P.
+KIND_EXTRAS = ["[2H]c1ccccc1", "C[Se]C", "CCSCC", "[O-]C(=O)c1ccccc1.[Na+]", "c1ccoc1", "c1cc[nH]c1",
+               "CP(C)C", "C[Se][Se]C", "BrCCCl"]
+KIND_QUERIES = ["[se]", "[Se]", "S", "s", "[#34]", "[S,Se]", "[se,s]", "[!S]", "[SH]", "[S&!s]", "[#8;R]",
+                "[O-]", "[N+]", "[nH]", "Cl", "[Cl,Br]", "C", "c", "o", "[Se;R]", "[#15]", "[2H]", "[#1]", "*",
+                "[Na+]", "CC(C)C", "[se]c", "C[Se]", "[Se][Se]", "[#16]~[#6]", "[n,o]", "O", "C1=CC=CC=C1",
+                "[$([Se]C)]"]
+
+
+@pytest.fixture(scope="module")
+def kinds_index() -> StructureIndex:
+    idx = StructureIndex()
+    idx.add_many(zip(range(1, 1 + len(MOLECULES) + len(KIND_EXTRAS)), MOLECULES + KIND_EXTRAS))
+    return idx
+
+
+@pytest.mark.parametrize("text", KIND_QUERIES)
+def test_element_screen_keeps_the_brute_force_answer(kinds_index, text):
+    # Reference: every molecule parsed from its SMILES and matched, no screen (and no rule of the screen).
+    q = read_query(text).mol
+    q.UpdatePropertyCache(strict=False)
+    everything = MOLECULES + KIND_EXTRAS
+    expected = [k for k, smi in enumerate(everything, start=1)
+                if Chem.MolFromSmiles(smi).HasSubstructMatch(q, useChirality=False)]
+    assert kinds_index.substructure(read_query(text).mol) == expected
+    assert kinds_index.substructure(read_query(text).mol, limit=3, newest_first=True) == expected[::-1][:3]
+    some = set(range(1, len(everything) + 1, 3))
+    assert kinds_index.substructure(read_query(text).mol, some) == [i for i in expected if i in some]
+
+
+@pytest.mark.parametrize("text, decided, kinds", [
+    ("[se]", True, {(34, True)}),
+    ("[Se]", True, {(34, False), (34, True)}),  # RDKit reads [Se] in SMARTS as atomic number 34
+    ("S", True, {(16, False)}),
+    ("[S,Se]", True, {(16, False), (34, False), (34, True)}),
+    ("[SH]", False, {(16, False)}),  # the hydrogen count needs the matcher
+    ("[S&!s]", False, {(16, False)}),
+    ("[!S]", False, None),  # a negation allows every kind
+    ("*", False, None),
+    ("[$([Se]C)]", False, None),  # recursion: not read
+    ("[Se;R]", False, {(34, False), (34, True)}),
+    ("C[Se]", False, {(34, False), (34, True)}),  # two atoms need the matcher; per atom the kinds still screen
+])
+def test_query_kinds_decide_only_one_atom_queries_on_the_kind_of_atom(text, decided, kinds):
+    allowed, exact = query_kinds(read_query(text).mol)
+    assert exact is decided
+    everything = (1 << 256) - 1
+    first = allowed[-1]
+    if kinds is None:
+        assert first == everything
+    else:
+        assert first == sum(1 << (2 * z + aromatic) for z, aromatic in kinds)
+
+
+def test_a_decided_query_is_not_matched_atom_by_atom_and_the_screen_narrows_the_rest(kinds_index, monkeypatch):
+    calls = []
+
+    class Counting:
+        def __init__(self, lib):
+            self.lib = lib
+
+        def GetMatches(self, q, start, end, *args, **kwargs):
+            calls.append((start, end))
+            return self.lib.GetMatches(q, start, end, *args, **kwargs)
+
+    orders = []
+    real_searching = search_module._Segment.searching
+
+    def searching(seg, order):
+        orders.append(list(order))
+        return Counting(real_searching(seg, order))
+
+    monkeypatch.setattr(search_module._Segment, "searching", searching)
+    for seg in kinds_index._snap[0]:
+        object.__setattr__(seg, "lib", Counting(seg.lib))
+    try:
+        mols = [Chem.MolFromSmiles(smi) for smi in MOLECULES + KIND_EXTRAS]
+        selenium = [k for k, m in enumerate(mols) if any(a.GetAtomicNum() == 34 for a in m.GetAtoms())]
+        aromatic_se = [k + 1 for k, m in enumerate(mols) if m.HasSubstructMatch(Chem.MolFromSmarts("[se]"))]
+        assert len(aromatic_se) >= 4 and len(selenium) > len(aromatic_se)  # Se bowls, selenophene; C[Se]C not
+        assert kinds_index.substructure(parse_query("[se]")) == aromatic_se
+        assert calls == [] and orders == []  # answered by the screen alone
+        kinds_index.substructure(parse_query("C[Se]"))
+        # Only molecules holding Se and an aliphatic carbon are matched (the parent Se bowl and selenophene have none).
+        both = [k for k in selenium if any(a.GetAtomicNum() == 6 and not a.GetIsAromatic() for a in mols[k].GetAtoms())]
+        assert 0 < len(both) < len(selenium)
+        assert orders == [both] and len(calls) == 1
+    finally:
+        for seg in kinds_index._snap[0]:
+            object.__setattr__(seg, "lib", seg.lib.lib)

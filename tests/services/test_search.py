@@ -19,16 +19,19 @@ from fastapi.testclient import TestClient
 from rdkit import Chem, DataStructs, rdBase
 from sqlmodel import Session, select
 
+from server.access import Actor
 from server.app import create_app
 from server.chem.scaffold import PARENT_BOWLS, build_from_scaffold
 from server.chem.search import fingerprint
 from server.errors import ChemistryError, InputError
 from server.models import Compound
 from server.services import search as structure_search
+from server.services import views
 from server.settings import Settings
-from tests.chem.test_search import MOLECULES, RING_QUERIES, SMARTS_QUERIES, count_tanimoto, legacy_fp
+from tests.chem.test_search import (KIND_QUERIES, MOLECULES, RING_QUERIES, SMARTS_QUERIES, count_tanimoto,
+                                    legacy_fp)
 from tests.conftest import _empty_pg
-from tests.factories import bearer, make_token
+from tests.factories import bearer, login_as, make_token
 
 # A smaller set for the per-back-end tests: 4 bowls of each bridge kind and 6 simple aromatics.
 SMALL = [m for i, m in enumerate(MOLECULES[:21]) if i % 7 in (0, 1, 3, 6)] + MOLECULES[21:27]
@@ -190,7 +193,7 @@ def _answers(app) -> dict:
     """Every query's answer keyed by compound code (ids may differ between databases)."""
     out = {}
     with Session(app.state.engine) as s:
-        for q in SMARTS_QUERIES + RING_QUERIES + ["C1=CC=CC=C1"]:
+        for q in SMARTS_QUERIES + RING_QUERIES + KIND_QUERIES + ["C1=CC=CC=C1"]:
             out[("sub", q)] = [(h.code, None) for h in structure_search.search(s, substructure=q)]
         for smi in MOLECULES[::4] + ["COc1ccccc1"]:
             for t in (0.15, 0.4, 0.7):
@@ -355,3 +358,99 @@ def test_a_first_page_is_the_head_of_the_whole_answer(client, writer, session, s
     with pytest.raises(InputError) as err:
         structure_search.search(session, substructure="c1ccccc1", limit=0)
     assert err.value.field == "limit"
+
+
+# --- the registry's first page from the first hits (services/views.py, _first_hits) ---------------------------
+
+READER = Actor(kind="token", name="dashboard-pc", scope="read")  # may not see embargoed structures
+MEMBER = Actor(kind="user", name="member1", role="member")
+
+
+def _page(session, params: dict, actor, *, count: bool):
+    result = views.query_view(session, views.parse_view(params), actor=actor, count=count)
+    token = result.next_cursor.token if result.next_cursor else None
+    return [r.compound.number for r in result.rows], result.has_next, token, result.total
+
+
+@pytest.fixture
+def spied_limits(monkeypatch):
+    """The ``limit`` of every structure search the view makes (None: the whole answer)."""
+    limits = []
+    real = structure_search.search
+
+    def spy(*args, **kwargs):
+        limits.append(kwargs.get("limit"))
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(structure_search, "search", spy)
+    return limits
+
+
+def test_a_substructure_first_page_from_the_first_hits_is_the_full_paths_page(client, writer, session, small_set,
+                                                                               spied_limits):
+    """On both back ends: the page, its order, has_next and the next cursor equal those of the whole answer,
+    for both directions, archived and embargoed hits, and callers who may or may not see embargoed structures."""
+    benzene = brute_sub(small_set, "c1ccccc1")
+    by_id = {c.id: c for c in small_set}
+    assert client.post(f"/api/v1/compounds/{by_id[benzene[-1]].code}/archive", headers=writer).status_code == 200
+    for i in (benzene[-2], benzene[1]):
+        r = client.patch(f"/api/v1/compounds/{by_id[i].code}", json={"embargoed": True}, headers=writer)
+        assert r.status_code == 200, r.text
+    session.expire_all()
+    cases = [{"substructure": "c1ccccc1"}, {"substructure": "c1ccccc1", "dir": "asc"}, {"substructure": "[#34]"},
+             {"substructure": "c1ccccc1", "archived": "1"}, {"substructure": "C1=CC=CC=C1", "dir": "asc"},
+             {"substructure": "[se]"}, {"substructure": "C#N"}]
+    first_hits = 0
+    for params in cases:
+        for size in (1, 2, 3, 5, 100):
+            for actor in (READER, MEMBER):
+                asked = {**params, "size": str(size)}
+                spied_limits.clear()
+                lazy = _page(session, asked, actor, count=False)
+                first_hits += spied_limits == [size + 1]
+                numbers, has_next, token, total = _page(session, asked, actor, count=True)
+                assert spied_limits[-1] is None  # the counted page reads the whole answer
+                assert lazy[:3] == (numbers, has_next, token), (params, size, actor)
+                assert lazy[3] == (None if has_next else total)
+    assert first_hits == len(cases) * 5 * 2  # every lazy page came from the first hits
+    # Another filter, another sort or a later page: the whole answer, as before.
+    for params in ({"substructure": "c1ccccc1", "sort": "mw"}, {"substructure": "c1ccccc1", "chain_kind": "alkoxy"},
+                   {"substructure": "c1ccccc1", "page": "2", "size": "2"}, {"similar": MOLECULES[1]}):
+        spied_limits.clear()
+        views.query_view(session, views.parse_view(params), actor=MEMBER, count=False)
+        assert spied_limits == [None], params
+
+
+def test_numbers_out_of_id_order_fall_back_to_the_whole_answer(client, writer, session, small_set, spied_limits):
+    """Rows loaded with numbers of their own (not allocated at registration): the probe sees a compound beyond
+    the first hits that belongs on the page, and the page is then read from the whole answer."""
+    benzene = brute_sub(small_set, "c1ccccc1")
+    oldest = benzene[0]
+    top = session.exec(select(sa.func.max(Compound.number))).one()
+    session.execute(sa.update(Compound).where(Compound.id == oldest).values(number=top + 100))
+    session.commit()
+    for params in ({"substructure": "c1ccccc1", "size": "2"}, {"substructure": "c1ccccc1", "size": "2", "dir": "asc"}):
+        spied_limits.clear()
+        lazy = _page(session, params, MEMBER, count=False)
+        assert spied_limits == [3, None]  # first hits tried, then the whole answer
+        assert lazy[:3] == _page(session, params, MEMBER, count=True)[:3]
+    assert _page(session, {"substructure": "c1ccccc1", "size": "2"}, MEMBER, count=False)[0][0] == top + 100
+
+
+def test_registry_page_and_api_list_show_the_first_hits_and_count_lazily(client, writer, session, small_set):
+    login_as(client, session, role="member")
+    benzene = brute_sub(small_set, "c1ccccc1")
+    page = client.get("/compounds", params={"substructure": "c1ccccc1", "size": "2"})
+    assert page.status_code == 200
+    assert "counting" in page.text and "/compounds/count?" in page.text
+    count = client.get("/compounds/count", params={"substructure": "c1ccccc1", "size": "2"})
+    assert count.status_code == 200 and f'data-total="{len(benzene)}"' in count.text
+    lazy = client.get("/api/v1/compounds", params={"substructure": "c1ccccc1", "limit": 2, "count": "false"},
+                      headers=writer).json()
+    counted = client.get("/api/v1/compounds", params={"substructure": "c1ccccc1", "limit": 2}, headers=writer).json()
+    assert lazy["total"] is None and counted["total"] == len(benzene)
+    assert [c["code"] for c in lazy["items"]] == [c["code"] for c in counted["items"]]
+    assert lazy["next_after"] == counted["next_after"]
+    whole = client.get("/api/v1/compounds", params={"substructure": "[#34]", "limit": 500, "count": "false"},
+                       headers=writer).json()
+    assert whole["total"] == len(brute_sub(small_set, "[#34]"))  # the last page counts itself

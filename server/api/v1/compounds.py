@@ -39,20 +39,23 @@ def list_compounds(
     limit: int = Query(50, ge=1, le=500),
     offset: Offset = 0,
     include_archived: bool = False,
+    count: bool = Query(True, description="false: total is null unless this page is the last; a first page "
+                        "narrowed by a substructure alone then does not wait for the whole match"),
 ) -> CompoundPage:
     """Compounds, newest first, with the same filters as the registry table (`scaffold`, `chain_kind`,
     `c_min`, `c_max`, `branched`, `batch_state`, `verdict`, `polar`, `barrier_min`, `barrier_max`,
     `barrier_source`, `has`, `made_from`, `made_to`, `q`, `sort`, `dir`, `substructure`, `similar`).
     `next_after` is the next page's keyset position: `after=<it>` (in place of `offset`) reads that page
-    at the cost of the first, however deep; `before=` pages back."""
+    at the cost of the first, however deep; `before=` pages back. `count=false` leaves `total` null
+    while more pages follow (the same query with `count=true` counts)."""
     q = views.parse_view(request.query_params, max_size=500)
     if include_archived:
         q = replace(q, values={**q.values, "archived": True})
     if q.after is not None or q.before is not None:
-        result = views.query_view(session, replace(q, size=limit), actor=actor)
+        result = views.query_view(session, replace(q, size=limit), actor=actor, count=count)
         rows = result.rows
     elif offset % limit == 0:
-        result = views.query_view(session, replace(q, page=offset // limit + 1, size=limit), actor=actor)
+        result = views.query_view(session, replace(q, page=offset // limit + 1, size=limit), actor=actor, count=count)
         rows = result.rows
     else:
         result = views.query_view(session, q, actor=actor, paged=False)

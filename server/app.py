@@ -204,6 +204,9 @@ def create_app(settings: Settings | None = None) -> FastAPI:
 
     keep_index_in(engine, settings.data_dir)  # the in-process structure index survives restarts
     mail.attach(engine, settings)  # notification e-mail, when REMANENCE_SMTP_HOST is set
+    from .services import notifications
+
+    notifications.configure(engine, settings)  # the group window of REMANENCE_NOTIFICATION_GROUP_MINUTES
     templates = Jinja2Templates(directory=str(templates_dir()))
     templates.env.globals.update(version=__version__, static_url=static_url, plotly_bundle=PLOTLY_BUNDLE,
                                  may_see_structure=may_see_structure, may_cancel_job=may_cancel_job, has_inbox=has_inbox,

@@ -1,9 +1,12 @@
-"""Notification e-mail: sent by one background thread per engine, after the transaction commits.
+"""Notification e-mail: sent by one background thread per engine.
 
 Off unless ``REMANENCE_SMTP_HOST`` is set. Sending never blocks or fails the request that caused the
-event: messages go onto a bounded queue that a daemon thread empties through :mod:`smtplib`; a
-failure (server down, refused address) is logged and the message dropped, the notification stays in
-the inbox. A full queue drops new messages with a warning rather than holding memory without end.
+event. What is due is decided in the database, not here (``services/notifications.due_letters``: an
+entry's mail is due once its group's window has closed, and one process claims it): the thread is
+*poked* after a commit that wrote mail-wanted entries and by every worker's tick, and each poke
+collects the due letters and sends them through :mod:`smtplib`. A failure (server down, refused
+address) is logged and the message dropped, the notification stays in the inbox. The queue is
+bounded, and a poke while one is already waiting is not queued twice.
 """
 
 from __future__ import annotations
@@ -14,7 +17,7 @@ import smtplib
 import threading
 import weakref
 from email.message import EmailMessage
-from typing import Any, Iterable, Optional
+from typing import Any, Callable, Iterable, Optional, Union
 
 log = logging.getLogger("remanence.mail")
 
@@ -33,9 +36,10 @@ class Mailer:
         self.user, self.password = settings.smtp_user, settings.smtp_password
         self.starttls = settings.smtp_starttls
         self.public_url = (settings.public_url or "").rstrip("/")
-        self._queue: queue.Queue[EmailMessage] = queue.Queue(QUEUE_LIMIT)
+        self._queue: queue.Queue[Union[EmailMessage, Callable[[], list[EmailMessage]]]] = queue.Queue(QUEUE_LIMIT)
         self._thread: Optional[threading.Thread] = None
         self._lock = threading.Lock()
+        self._poke_waiting = False
 
     def message(self, *, to: str, subject: str, body: str) -> EmailMessage:
         msg = EmailMessage()
@@ -52,6 +56,21 @@ class Mailer:
                 self._queue.put_nowait(msg)
             except queue.Full:
                 log.warning("mail queue full (%d): message to %s dropped", QUEUE_LIMIT, msg["To"])
+        self._start()
+
+    def poke(self, collect: Callable[[], list[EmailMessage]]) -> None:
+        """Have the thread call ``collect`` (which claims the due letters) and send what it returns;
+        no second poke is queued while one waits."""
+        with self._lock:
+            if self._poke_waiting:
+                return
+            self._poke_waiting = True
+        try:
+            self._queue.put_nowait(collect)
+        except queue.Full:
+            with self._lock:
+                self._poke_waiting = False
+            log.warning("mail queue full (%d): due letters left for the next tick", QUEUE_LIMIT)
         self._start()
 
     def wait_sent(self, timeout_s: float = 10.0) -> bool:
@@ -73,13 +92,28 @@ class Mailer:
 
     def _run(self) -> None:
         while True:
-            msg = self._queue.get()
+            item = self._queue.get()
             try:
-                self._send(msg)
-            except (OSError, smtplib.SMTPException) as exc:  # the inbox keeps it; mail is best effort
-                log.warning("notification e-mail to %s not sent: %s", msg["To"], exc)
+                if callable(item):
+                    with self._lock:
+                        self._poke_waiting = False
+                    try:
+                        letters = item()
+                    except Exception:  # noqa: BLE001 - database away: nothing was claimed, the next tick retries
+                        log.exception("due notification e-mail not collected")
+                        letters = []
+                else:
+                    letters = [item]
+                for msg in letters:
+                    self._send_logged(msg)
             finally:
                 self._queue.task_done()
+
+    def _send_logged(self, msg: EmailMessage) -> None:
+        try:
+            self._send(msg)
+        except (OSError, smtplib.SMTPException) as exc:  # the inbox keeps it; mail is best effort
+            log.warning("notification e-mail to %s not sent: %s", msg["To"], exc)
 
     def _send(self, msg: EmailMessage) -> None:
         with smtplib.SMTP(self.host, self.port, timeout=SMTP_TIMEOUT_S) as smtp:

@@ -121,10 +121,26 @@ SETTINGS: tuple[Setting, ...] = (
     Setting("notification_keep_unread_days", "REMANENCE_NOTIFICATION_KEEP_UNREAD_DAYS",
             "Days an unread notification is kept after its latest event (the larger cap); 0 keeps unread ones "
             "until they are read.", float),
+    Setting("notification_group_minutes", "REMANENCE_NOTIFICATION_GROUP_MINUTES",
+            "Minutes from the first of a burst of like events on one compound (measurements, verdict changes, "
+            "conflicts) within which later ones join its inbox entry; its e-mail goes once the window has "
+            "closed. More than 0, at most 1440.", lambda text: check_group_minutes(float(text))),
     Setting("public_url", "REMANENCE_PUBLIC_URL",
             "The address people open the registry at (https://registry.example.org), for links in e-mail; "
             "empty: e-mail gives paths only."),
 )
+
+
+#: The bounds of REMANENCE_NOTIFICATION_GROUP_MINUTES: a window of at most one day.
+GROUP_MINUTES_MAX = 1440.0
+
+
+def check_group_minutes(minutes: float) -> float:
+    """The notification group window in minutes, or ValueError unless 0 < minutes <= 1440."""
+    if not (isinstance(minutes, (int, float)) and 0 < minutes <= GROUP_MINUTES_MAX):
+        raise ValueError(f"the notification group window must be more than 0 and at most "
+                         f"{GROUP_MINUTES_MAX:g} minutes, got {minutes!r}")
+    return float(minutes)
 
 
 @dataclass(frozen=True)
@@ -170,6 +186,12 @@ class Settings:
     # look back. Unread ones stay for the two years of a campaign. Common practice, not a rule.
     notification_keep_read_days: float = 90.0
     notification_keep_unread_days: float = 730.0
+    # A series measured in one sitting, a batch of uploads from the instrument PC: half an hour holds
+    # one burst; a day at most, so that an e-mail waits no longer than that. Common practice, not a rule.
+    notification_group_minutes: float = 30.0
+
+    def __post_init__(self) -> None:
+        check_group_minutes(self.notification_group_minutes)
 
     @classmethod
     def from_env(cls, environ: Mapping[str, str] | None = None, **overrides: Any) -> "Settings":

@@ -21,7 +21,10 @@ seconds even if the handler reports nothing (an RDKit embedding, say), so only a
 goes stale. Every worker also runs :func:`server.jobs.queue.requeue_stale` now and then, so the
 job of a killed worker is picked up again by whichever worker is alive. And every worker does the
 housekeeping (:func:`housekeeping_for`: the notification prune) when it starts and hourly after;
-a prune is one DELETE per rule, so several workers doing it is harmless.
+a prune is one DELETE per rule, so several workers doing it is harmless. Every
+:data:`MAIL_CHECK_S` between jobs a worker pokes the notification mailer
+(``services/notifications.mail_due_later``), so a group's e-mail goes once its window has closed;
+the due entries are claimed in the database, so several workers never send one twice.
 
 Two ways to run: :func:`start_embedded` (one thread inside ``remanence serve``, the default)
 and :func:`run_worker` (the ``remanence worker`` command; SIGTERM/SIGINT stop it cleanly).
@@ -57,6 +60,8 @@ log = logging.getLogger("remanence.jobs")
 HEARTBEAT_MIN_S = 0.5
 #: Time between two housekeeping runs of one worker, seconds.
 HOUSEKEEPING_S = 3600.0
+#: Time between two looks for notification e-mail that has come due, seconds (between jobs).
+MAIL_CHECK_S = 20.0
 
 ProgressFn = Callable[[float, str], None]
 CancelFn = Callable[[], bool]
@@ -174,6 +179,7 @@ class Worker:
         heartbeat_min_s: float = HEARTBEAT_MIN_S,
         housekeeping: Optional[Callable[[Engine], Any]] = None,
         housekeeping_every_s: float = HOUSEKEEPING_S,
+        mail_check_s: float = MAIL_CHECK_S,
     ) -> None:
         if not name:
             raise ValueError("a worker needs a name")
@@ -196,6 +202,8 @@ class Worker:
         self.housekeeping = housekeeping
         self.housekeeping_every_s = float(housekeeping_every_s)
         self._next_housekeeping = 0.0
+        self.mail_check_s = float(mail_check_s)
+        self._next_mail_check = 0.0
         self.jobs_run = 0
 
     def check_stale(self) -> dict[str, list[int]]:
@@ -214,6 +222,11 @@ class Worker:
         if self.housekeeping is not None and time.monotonic() >= self._next_housekeeping:
             self._next_housekeeping = time.monotonic() + self.housekeeping_every_s
             self.housekeeping(self.engine)
+        if time.monotonic() >= self._next_mail_check:
+            self._next_mail_check = time.monotonic() + self.mail_check_s
+            from ..services import notifications
+
+            notifications.mail_due_later(self.engine)  # the mailer's thread claims and sends; never blocks here
         job = queue.claim(self.engine, worker=self.name, kinds=self.handlers)
         if job is None:
             return False
@@ -335,6 +348,9 @@ def start_embedded(app_or_engine: Any, settings: Any, *, handlers: Optional[Mapp
 
         engine = make_engine(settings.database_url)
         own_engine = True
+        from ..services import notifications
+
+        notifications.configure(engine, settings)
     elif isinstance(app_or_engine, Engine):
         engine = app_or_engine
     else:
@@ -384,6 +400,9 @@ def run_worker(settings: Any, *, name: Optional[str] = None, once: bool = False,
     from .. import mail
 
     mail.attach(engine, settings)  # a job's end e-mails its owner when SMTP is configured
+    from ..services import notifications
+
+    notifications.configure(engine, settings)
     worker = Worker(engine, name=name or default_name(), handlers=handlers or _default_handlers(),
                     poll_s=poll_s, stale_timeout_s=stale_timeout_s, housekeeping=housekeeping_for(settings))
     stop = threading.Event()

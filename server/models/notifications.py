@@ -24,7 +24,8 @@ class Notification(SQLModel, table=True):
     # the prune removes old ones by their latest event.
     __table_args__ = (sa.Index("ix_notification_user_read", "user_id", "read_at"),
                       sa.Index("ix_notification_user_last", "user_id", "last_at"),
-                      sa.Index("ix_notification_last", "last_at"))
+                      sa.Index("ix_notification_last", "last_at"),
+                      sa.Index("ix_notification_mail_due", "mail_due_at"))
 
     id: Optional[int] = Field(default=None, primary_key=True)
     user_id: int = Field(foreign_key="user.id")
@@ -39,6 +40,11 @@ class Notification(SQLModel, table=True):
     last_at: datetime = Field(default_factory=utcnow, sa_type=UTCDateTime)
     # the events of a group, oldest first: {"text", "url", "created_at" (ISO), "count", "actor"}
     parts: list[dict] = Field(default_factory=list, sa_type=sa.JSON)
+    # E-mail of the entry (migration 0036): due once its group's window has closed (at once for an
+    # event that never groups), None when its reader chose no e-mail for it; ``mailed_at`` is set when
+    # one process claims it for sending, and a claimed entry is never joined again.
+    mail_due_at: Optional[datetime] = Field(default=None, sa_type=UTCDateTime)
+    mailed_at: Optional[datetime] = Field(default=None, sa_type=UTCDateTime)
 
 
 class CompoundFollow(SQLModel, table=True):

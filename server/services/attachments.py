@@ -34,7 +34,7 @@ from urllib.parse import quote
 import numpy as np
 from PIL import Image, ImageOps, UnidentifiedImageError
 from sqlalchemy.orm import defer, object_session
-from sqlmodel import Session, select
+from sqlmodel import Session, func, select
 
 from .. import access, bounds
 from ..precision import significant
@@ -318,6 +318,11 @@ def live_of_compound(session: Session, compound_id: int) -> list[tuple[Attachmen
     return out
 
 
+def count_of_compound(session: Session, compound_id: int) -> int:
+    """How many images hang on the compound and its batches, samples and measurements, archived or not."""
+    return session.exec(select(func.count(Attachment.id)).where(Attachment.compound_id == compound_id)).one()
+
+
 #: What a pack's manifest and a freeze record of an attachment: where it hangs, its bytes, what it shows.
 def record_of(att: Attachment, target: Target, raw: RawFile) -> dict[str, Any]:
     return {"id": att.id, "target": att.target, "ref": target.ref, "raw_file": att.raw_file_id,
@@ -334,7 +339,7 @@ def pack_path(record: Mapping[str, Any]) -> str:
     return f"attachments/{record['id']}-{name}"
 
 
-def metadata_line(a: AttachmentRead) -> str:
+def metadata_line(a: "AttachmentRead | Attachment") -> str:
     """The caption's second line: magnification, scale bar, polarisers, temperature (what is stated)."""
     parts = []
     if a.magnification is not None:
@@ -374,5 +379,5 @@ def gallery_panel(session: Session, target: Target, *, actor: Optional[Actor], e
 
 
 __all__ = ["CheckedImage", "archive_history", "attach_image", "attachment_read", "check_image", "claimed_format",
-           "gallery", "gallery_panel", "get_attachment", "live_of_compound", "metadata_line", "original", "pack_path",
+           "count_of_compound", "gallery", "gallery_panel", "get_attachment", "live_of_compound", "metadata_line", "original", "pack_path",
            "page_url", "parse_metadata", "record_of", "set_archived", "sniff"]

@@ -13,19 +13,30 @@ Each event is written where it happens, in that transaction (the caller commits)
 
 Never to the actor of the event itself. A burst of like events is one entry (grouped when written,
 see :func:`notify`): the events of :data:`GROUPED` about one compound that reach one account within
-:data:`GROUP_WINDOW` of the entry's first, while it is unread, fold into it ("12 measurements on
+:func:`group_window` (REMANENCE_NOTIFICATION_GROUP_MINUTES) of the entry's first, while it is unread, fold into it ("12 measurements on
 RVZ-00042 between 14:02 and 14:09 UTC"), its events kept in ``parts`` for the inbox to expand. Read
 entries whose latest event is older than REMANENCE_NOTIFICATION_KEEP_READ_DAYS are removed by
 :func:`prune` (the worker, hourly, and ``remanence prune-notifications``); unread ones are kept up to
 the larger cap REMANENCE_NOTIFICATION_KEEP_UNREAD_DAYS (0: kept until read). The embargo (``server/access.py``, the one authority): a
 notification about a compound is created only for an account that may see it, and the inbox, the
 API and the unread count show one only while the reader may still see its compound. Tokens have no
-inbox (they are not accounts). E-mail (``server/mail.py``) goes after the commit, never in the way of
-the request; without REMANENCE_SMTP_HOST none is sent.
+inbox (they are not accounts).
+
+E-mail follows the groups: one message per entry, listing each of its events, sent once the entry's
+window has closed (``mail_due_at``, set when a reader who chose e-mail for the event gets the entry; at
+once for events that never group) and never twice. :func:`due_letters` claims the due entries
+atomically in the database (``FOR UPDATE SKIP LOCKED`` on PostgreSQL, one ``UPDATE ... RETURNING`` on
+SQLite's single writer, as jobs are claimed in ``server/jobs/queue.py``) by setting ``mailed_at``, so
+several app and worker processes each send a disjoint share; a claimed entry is never joined again, so
+no event goes unmailed. It runs in the mailer's thread (``server/mail.py``), poked after a commit that
+wrote mail-wanted entries and by every worker's tick (:func:`mail_due_later`), never in the way of the
+request. The preferences and the embargo are checked again when the letter is written. Without
+REMANENCE_SMTP_HOST none is sent (and no entry is marked due).
 """
 
 from __future__ import annotations
 
+import weakref
 from collections.abc import Iterable, Sequence
 from datetime import datetime, timedelta
 from email.message import EmailMessage
@@ -38,6 +49,7 @@ from sqlmodel import Session, func, select
 from .. import access, mail
 from ..access import Actor
 from ..errors import InputError
+from ..settings import Settings, check_group_minutes
 from ..models import (Compound, CompoundFollow, Notification, NotificationGroup, NotificationPart,
                       NotificationPreference, NotificationRead, User, utcnow)
 from . import audit
@@ -66,14 +78,33 @@ GROUPED: dict[str, tuple[str, str]] = {
     "verdict": ("verdict change", "verdict changes"),
     "conflict": ("new conflict", "new conflicts"),
 }
-#: A like event joins an unread entry whose first event is at most this old (a burst: a series
-#: measured in one sitting, a batch of uploads from the instrument PC). Common practice, not a rule.
-GROUP_WINDOW = timedelta(minutes=30)
+#: Entries whose e-mail one call of :func:`due_letters` claims at most (bounded work per tick).
+MAIL_BATCH = 100
+_WINDOWS: "weakref.WeakKeyDictionary[Any, timedelta]" = weakref.WeakKeyDictionary()
 #: Events one entry keeps for its expanded view; the next like event starts a new entry.
 GROUP_PARTS = 50
 
 
 # --- writing --------------------------------------------------------------------------------------
+
+
+def configure(engine: Any, settings: Any) -> None:
+    """Give ``engine`` the group window of ``settings`` (create_app and the worker call this)."""
+    _WINDOWS[engine] = timedelta(minutes=check_group_minutes(settings.notification_group_minutes))
+
+
+def group_window(bind: Any) -> timedelta:
+    """How long after an entry's first event a like event still joins it (and its e-mail waits):
+    REMANENCE_NOTIFICATION_GROUP_MINUTES as configured for ``bind``, else the setting's default."""
+    try:
+        window = _WINDOWS.get(bind)
+    except TypeError:  # not weak-referenceable (a Connection as bind)
+        window = None
+    return window if window is not None else timedelta(minutes=Settings.notification_group_minutes)
+
+
+def _groups(event: str, compound: Optional[Compound]) -> bool:
+    return event in GROUPED and compound is not None and compound.id is not None
 
 
 def who(actor_label: str) -> str:
@@ -104,42 +135,51 @@ def notify(session: Session, *, event: str, users: Iterable[User], compound: Opt
         return []
     prefs = {p.user_id: p for p in session.exec(select(NotificationPreference)
                                                 .where(NotificationPreference.user_id.in_(sorted(seen)))).all()}
-    made, letters = [], []
-    mailer = mail.mailer_for(session.get_bind())
+    made, mailing = [], False
+    window = group_window(session.get_bind())
+    mail_on = mail.mailer_for(session.get_bind()) is not None
     for uid, u in seen.items():
         pref = prefs.get(uid)
         if pref is not None and event in (pref.muted or []):
             continue
+        wants_mail = mail_on and _wants_mail(pref, event)
         now = utcnow()
-        n = _open_group(session, uid, event, compound, now)
+        n = _open_group(session, uid, event, compound, now, window)
         if n is None:
             n = Notification(user_id=uid, event=event, compound_id=compound.id if compound is not None else None,
                              text=text[:TEXT_CHARS], url=url, actor=actor, count=count, created_at=now, last_at=now)
+            if wants_mail:  # a group's letter waits for its window to close; a lone event's goes now
+                n.mail_due_at = now + window if _groups(event, compound) else now
         else:
             _fold(n, compound, text=text, url=url, actor=actor, count=count, now=now)
+            if wants_mail and n.mail_due_at is None:  # e-mail chosen while the group was open
+                n.mail_due_at = n.created_at + window
         session.add(n)
         made.append(n)
-        if mailer is not None and pref is not None and pref.email and event in (pref.email_events or []):
-            letters.append(mailer.message(to=pref.email, subject=f"[Remanence] {text[:120]}",
-                                          body=f"{text}\n\n{mailer.link(url)}\n\n-- \nChoose which events reach you "
-                                               f"by e-mail at {mailer.link('/inbox')}\n"))
-    if letters:
-        _mail_after_commit(session, letters)
+        mailing = mailing or wants_mail
+    if mailing:
+        _mail_after_commit(session)
     return made
 
 
-def _open_group(session: Session, user_id: int, event: str, compound: Optional[Compound], now: datetime
-                ) -> Optional[Notification]:
+def _wants_mail(pref: Optional[NotificationPreference], event: str) -> bool:
+    return pref is not None and bool(pref.email) and event in (pref.email_events or [])
+
+
+def _open_group(session: Session, user_id: int, event: str, compound: Optional[Compound], now: datetime,
+                window: timedelta) -> Optional[Notification]:
     """The recipient's unread entry that a like event about ``compound`` joins, if any: same event
-    and compound, first event within :data:`GROUP_WINDOW`, fewer than :data:`GROUP_PARTS` events.
-    Locked (PostgreSQL ``FOR UPDATE``; SQLite has one writer) so two uploads at once both count."""
-    if event not in GROUPED or compound is None or compound.id is None:
+    and compound, first event within ``window``, fewer than :data:`GROUP_PARTS` events, its e-mail
+    not yet claimed. Locked (PostgreSQL ``FOR UPDATE``; SQLite has one writer) so two uploads at once
+    both count, and so a claim of its e-mail (:func:`due_letters`) waits for the event to join or
+    makes it start a new entry."""
+    if not _groups(event, compound):
         return None
     session.flush()  # an entry added earlier in this transaction is a group to join as well
     q = (select(Notification)
          .where(Notification.user_id == user_id, Notification.event == event,
                 Notification.compound_id == compound.id, Notification.read_at.is_(None),
-                Notification.created_at >= now - GROUP_WINDOW)
+                Notification.mailed_at.is_(None), Notification.created_at >= now - window)
          .order_by(Notification.created_at.desc(), Notification.id.desc()).limit(1).with_for_update())
     n = session.exec(q).first()
     if n is None or len(n.parts or []) >= GROUP_PARTS:
@@ -171,25 +211,93 @@ def group_text(event: str, code: str, count: int, first: datetime, last: datetim
     return f"{count} {one if count == 1 else many} on {code} {when} UTC"
 
 
-def _mail_after_commit(session: Session, letters: list[EmailMessage]) -> None:
-    """Queue ``letters`` for the mailer once the session commits; a rollback drops them."""
-    pending = session.info.get(_MAIL_KEY)
-    if pending is None:
-        pending = session.info[_MAIL_KEY] = []
-        sa.event.listen(session, "after_commit", _send_pending)
-        sa.event.listen(session, "after_rollback", _drop_pending)
-    pending.extend(letters)
+def _mail_after_commit(session: Session) -> None:
+    """Poke the mailer once the session commits (its due letters go then); a rollback pokes nothing."""
+    if _MAIL_KEY not in session.info:
+        sa.event.listen(session, "after_commit", _poke_after_commit)
+        sa.event.listen(session, "after_rollback", _drop_poke)
+    session.info[_MAIL_KEY] = True
 
 
-def _send_pending(session: Session) -> None:
-    letters, session.info[_MAIL_KEY] = session.info.get(_MAIL_KEY) or [], []
-    mailer = mail.mailer_for(session.get_bind())
-    if letters and mailer is not None:
-        mailer.send_later(letters)
+def _poke_after_commit(session: Session) -> None:
+    if session.info.get(_MAIL_KEY):
+        session.info[_MAIL_KEY] = False
+        mail_due_later(session.get_bind())
 
 
-def _drop_pending(session: Session) -> None:
-    session.info[_MAIL_KEY] = []
+def _drop_poke(session: Session) -> None:
+    session.info[_MAIL_KEY] = False
+
+
+def mail_due_later(engine: Any) -> None:
+    """Have the mailer's thread send the letters due now (:func:`due_letters`); nothing when e-mail is off.
+    Every worker calls this on its tick (``server/jobs/worker.py``), so a group whose window closed is
+    mailed without a new event."""
+    mailer = mail.mailer_for(engine)
+    if mailer is not None:
+        mailer.poke(lambda: due_letters(engine, mailer))
+
+
+def _claim_mail(session: Session, now: datetime, limit: int) -> list[int]:
+    """Mark up to ``limit`` entries whose e-mail is due and unclaimed as claimed (``mailed_at``), atomically:
+    PostgreSQL skips rows another process holds (a claim, or an event joining); SQLite has one writer."""
+    due = (select(Notification.id).where(Notification.mail_due_at <= now, Notification.mailed_at.is_(None))
+           .order_by(Notification.mail_due_at, Notification.id).limit(limit))
+    if session.get_bind().dialect.name == "postgresql":
+        ids = list(session.exec(due.with_for_update(skip_locked=True)).all())
+        if ids:
+            session.execute(sa.update(Notification).where(Notification.id.in_(ids)).values(mailed_at=now)
+                            .execution_options(synchronize_session=False))
+        return ids
+    return list(session.execute(
+        sa.update(Notification).where(Notification.id.in_(due.scalar_subquery()), Notification.mailed_at.is_(None))
+        .values(mailed_at=now).returning(Notification.id).execution_options(synchronize_session=False)
+    ).scalars().all())
+
+
+def due_letters(engine: Any, mailer: Any, *, now: Optional[datetime] = None, limit: int = MAIL_BATCH
+                ) -> list[EmailMessage]:
+    """Claim the entries whose e-mail is due (their group's window closed) and write one letter each,
+    listing every event of the entry. Claimed and committed before anything is sent, so no other
+    process sends them again; a reader who meanwhile turned the e-mail off, left, or may no longer see
+    the compound gets none."""
+    now = now or utcnow()
+    with Session(engine) as session:
+        ids = _claim_mail(session, now, limit)
+        if not ids:
+            session.rollback()
+            return []
+        rows = session.exec(select(Notification).where(Notification.id.in_(ids)).order_by(Notification.id)).all()
+        uids = sorted({n.user_id for n in rows})
+        users = {u.id: u for u in session.exec(select(User).where(User.id.in_(uids))).all()}
+        prefs = {p.user_id: p for p in session.exec(select(NotificationPreference)
+                                                    .where(NotificationPreference.user_id.in_(uids))).all()}
+        cids = sorted({n.compound_id for n in rows if n.compound_id is not None})
+        compounds = {c.id: c for c in session.exec(select(Compound).where(Compound.id.in_(cids))).all()} if cids else {}
+        letters = []
+        for n in rows:
+            u, pref = users.get(n.user_id), prefs.get(n.user_id)
+            compound = compounds.get(n.compound_id)
+            if u is None or not u.active or not _wants_mail(pref, n.event):
+                continue
+            if compound is not None and not access.may_see_structure(access.account_actor(u), compound):
+                continue
+            letters.append(letter(mailer, n, to=pref.email))
+        session.commit()
+    return letters
+
+
+def letter(mailer: Any, n: Notification, *, to: str) -> EmailMessage:
+    """One entry's e-mail: its line as the subject, then each of its events with its time and link."""
+    lines = [n.text, ""]
+    if n.parts:
+        lines += [f"- {datetime.fromisoformat(p['created_at']):%Y-%m-%d %H:%M} UTC  {p['text']}\n"
+                  f"  {mailer.link(p['url'])}" for p in n.parts]
+        lines += ["", f"All of them: {mailer.link(n.url)}"]
+    else:
+        lines.append(mailer.link(n.url))
+    lines += ["", "-- ", f"Choose which events reach you by e-mail at {mailer.link('/inbox')}", ""]
+    return mailer.message(to=to, subject=f"[Remanence] {n.text[:120]}", body="\n".join(lines))
 
 
 def account_of(session: Session, actor_label: str) -> Optional[User]:

@@ -4,7 +4,9 @@ needs about it, in one zip.
 Contents (paths inside the zip)::
 
     summary.html, summary.pdf      one page: structure, identity, verdict with its reasons,
-                                   barriers, transitions, figures of merit
+                                   barriers, transitions, figures of merit, and the images (file
+                                   name, where it hangs, caption, magnification or scale bar,
+                                   polarisers, temperature, pixels, SHA-256; thumbnails in the HTML)
     figures/<name>.svg|.pdf        every measurement figure and the compound-level figures
     tables/measurements.csv        figures of merit per measurement (units in the headers)
     tables/barriers.csv            barriers, values rounded to their uncertainty
@@ -13,7 +15,9 @@ Contents (paths inside the zip)::
     cif/<id>-<filename>            the crystal structures (CIF) among them
     attachments/<id>-<filename>    every image on the compound, its batches, samples and measurements,
                                    byte for byte as uploaded (archived ones, and those on archived
-                                   batches or measurements, left out)
+                                   batches or measurements, left out; the summary says how many)
+    attachments/thumbnails/<id>.jpg
+                                   the thumbnail made on upload of each of them (the HTML shows it)
     manifest.json                  every file above with its SHA-256 and size, the analysis
                                    version of each measurement, each image's SHA-256, caption and
                                    metadata, the compound and the time
@@ -59,7 +63,7 @@ from .accounts import hide_people  # noqa: E402
 from .errors import Forbidden  # noqa: E402
 
 #: Version of the pack's layout, in the manifest (bumped when paths or columns change).
-PACK_VERSION = "report-pack/2"  # 2: attachments/ and the manifest's "attachments"
+PACK_VERSION = "report-pack/3"  # 2: attachments/ and the manifest's "attachments"; 3: thumbnails, images in the summary
 #: At most this many measurement figures are drawn into one pack (bounded work per request).
 MAX_FIGURES = 60
 
@@ -178,6 +182,15 @@ def _summary_pdf(data: dict[str, Any], structure_png: Optional[bytes]) -> bytes:
                   for b in data["barriers"]] or [("t", "none")]
         lines.append(("h", "Transitions"))
         lines += [("t", f"{t['source']}: {significant(t['t_K'], 5)} K") for t in data["transitions"]] or [("t", "none")]
+        lines.append(("h", "Images"))
+        for im in data["images"]:
+            lines.append(("t", f"{im['filename']} on the {im['on']}" + (f": {im['caption']}" if im["caption"] else "")))
+            lines.append(("t", "; ".join(x for x in (im["meta"], im["pixels"]) if x)))
+            lines.append(("s", f"SHA-256 {im['sha256']}"))
+        if not data["images"]:
+            lines.append(("t", "none"))
+        if data["archived_images"]:
+            lines.append(("t", _archived_note(data["archived_images"])))
         y = 0.92
         for style, text in lines:
             if y < 0.04:
@@ -186,14 +199,41 @@ def _summary_pdf(data: dict[str, Any], structure_png: Optional[bytes]) -> bytes:
             if style == "h":
                 y -= 0.012
             wrapped = text if len(text) < 95 or style == "h" else text[:92] + "…"
-            fig.text(0.07, y, wrapped, fontsize=10 if style == "h" else 8, weight="bold" if style == "h" else "normal",
-                     va="top")
-            y -= 0.022 if style == "h" else 0.017
+            fig.text(0.07 if style != "s" else 0.09, y, wrapped, fontsize={"h": 10, "t": 8, "s": 6.5}[style],
+                     weight="bold" if style == "h" else "normal", va="top",
+                     family="monospace" if style == "s" else None)
+            y -= {"h": 0.022, "t": 0.017, "s": 0.013}[style]
         fig.text(0.07, 0.015, f"Remanence report pack, {data['generated']}", fontsize=6, color="#555555")
         buf = io.BytesIO()
         fig.savefig(buf, format="pdf", metadata={"Creator": "Remanence"})
         plt.close(fig)
     return buf.getvalue()
+
+
+def _archived_note(n: int) -> str:
+    return f"{n} archived image{'' if n == 1 else 's'} left out"
+
+
+def _images(session: Session, compound: Compound, files: dict[str, bytes], *, sees_people: bool
+            ) -> tuple[list[dict[str, Any]], list[dict[str, Any]], int]:
+    """The compound's live images into ``files`` (originals byte for byte, and their thumbnails): their
+    manifest records, their summary rows, and how many archived ones were left out."""
+    records, rows = [], []
+    live = attachments.live_of_compound(session, compound.id)
+    for att, target, raw in live:
+        record = attachments.record_of(att, target, raw)
+        record["path"] = attachments.pack_path(record)
+        record["thumbnail_path"] = f"attachments/thumbnails/{att.id}.jpg"
+        files[record["path"]] = raw.data
+        files[record["thumbnail_path"]] = att.thumbnail
+        records.append(record)
+        rows.append({"id": att.id, "filename": raw.filename or record["path"].split("/", 1)[1],
+                     "on": f"{att.target} {target.ref}", "caption": att.caption or "",
+                     "meta": attachments.metadata_line(att), "pixels": f"{att.width_px} × {att.height_px} px",
+                     "media_type": record["media_type"], "sha256": att.sha256, "path": record["path"],
+                     "thumbnail": record["thumbnail_path"], "thumb_w": att.thumb_width_px, "thumb_h": att.thumb_height_px})
+    archived = attachments.count_of_compound(session, compound.id) - len(live)
+    return hide_people(records, sees_people=sees_people), rows, max(archived, 0)
 
 
 def _summary_html(data: dict[str, Any]) -> bytes:
@@ -230,13 +270,8 @@ def report_pack(session: Session, compound: Compound, *, actor: Optional[Actor])
             for fmt in figures_vector.FORMATS:
                 files[f"figures/{name}.{fmt}"] = vector.render(fig, fmt)
             figures.append({"name": name, "what": what})
-    images = []
-    for att, target, raw in attachments.live_of_compound(session, compound.id):
-        record = attachments.record_of(att, target, raw)
-        record["path"] = attachments.pack_path(record)
-        files[record["path"]] = raw.data
-        images.append(record)
-    images = hide_people(images, sees_people=actor is not None and actor.sees_people)
+    images, image_rows, archived_images = _images(session, compound, files,
+                                                  sees_people=actor is not None and actor.sees_people)
     barrier_rows = [barriers.barrier_read(session, b) for b in barriers.list_barriers(session, compound)]
     transitions = summary_plots.transitions_table(items)
     files["tables/measurements.csv"] = measurement_table(items)
@@ -251,6 +286,8 @@ def report_pack(session: Session, compound: Compound, *, actor: Optional[Actor])
         "barriers": [dict(zip(("value", "err"), with_uncertainty(b["dg_kcal_mol"], b["dg_err_kcal_mol"])),
                           method=b["method"]) for b in barrier_rows],
         "transitions": transitions, "figures": figures, "generated": generated,
+        "images": image_rows, "archived_images": archived_images,
+        "archived_note": _archived_note(archived_images) if archived_images else "",
         "structure_svg": registry.structure_svg(compound) if c.smiles else "",
     }
     files["summary.html"] = _summary_html(data)

@@ -8,12 +8,14 @@ from __future__ import annotations
 import hashlib
 import io
 import json
+import re
 import struct
 import zlib
 import zipfile
 
 import numpy as np
 import pytest
+from bs4 import BeautifulSoup
 from PIL import Image
 from sqlmodel import select
 
@@ -279,3 +281,70 @@ def test_report_pack_carries_the_images_unchanged_with_checksum_and_metadata(cli
     in_files = {f["path"]: f["sha256"] for f in manifest["files"]}
     assert all(in_files[a["path"]] == a["sha256"] for a in listed.values())
     assert not any(p.startswith(f"attachments/{gone['id']}-") for p in in_files)
+
+
+_PDF_ESCAPES = {b"n": b"\n", b"r": b"\r", b"t": b"\t", b"b": b"\b", b"f": b"\f", b"(": b"(", b")": b")",
+                b"\\": b"\\"}
+
+
+def _pdf_lines(pdf: bytes) -> list[str]:
+    """The text lines of a matplotlib PDF (ISO 32000-1: content streams inflated, each ``[...] TJ`` array's
+    literal strings joined; matplotlib's TrueType fonts (pdf.fonttype 42) take two-byte codes that are the
+    characters' code points, so each line decodes as UTF-16BE)."""
+    lines = []
+    for m in re.finditer(rb"stream\r?\n(.*?)\r?\nendstream", pdf, flags=re.S):
+        try:
+            content = zlib.decompress(m.group(1))
+        except zlib.error:
+            continue
+        for arr in re.finditer(rb"\[(.*?)\]\s*TJ", content, flags=re.S):
+            raw = b"".join(re.findall(rb"\(((?:\\.|[^\\)])*)\)", arr.group(1), flags=re.S))
+            raw = re.sub(rb"\\([0-7]{1,3}|.)", lambda e: bytes([int(e.group(1), 8)]) if e.group(1).isdigit()
+                         else _PDF_ESCAPES.get(e.group(1), e.group(1)), raw, flags=re.S)
+            lines.append(raw.decode("utf-16-be", errors="replace"))
+    return lines
+
+
+def test_report_summary_lists_the_images_with_thumbnails_and_checksums(client, session):
+    world = _world(client, session)
+    shown = {}
+    for i, (plural, ref, meta) in enumerate((
+            ("compounds", world["code"], {"magnification": "20x", "polariser": "crossed", "temperature": "350 K"}),
+            ("batches", world["batch"], {"scale_bar": "50 µm", "polariser": "parallel", "temperature": "25 °C"}))):
+        raw = micrograph(("PNG", "TIFF")[i], size=(120, 90), seed=90 + i)
+        a = _post(client, f"/api/v1/{plural}/{ref}/attachments", raw, world["w"], *TYPES[("PNG", "TIFF")[i]],
+                  caption=f"pellet {i + 1} under the microscope", **meta)
+        assert a.status_code == 201, a.text
+        shown[a.json()["id"]] = (raw, a.json())
+    gone = _post(client, f"/api/v1/compounds/{world['code']}/attachments", micrograph(seed=99), world["w"],
+                 "blurred.png", "image/png").json()
+    client.post(f"/api/v1/attachments/{gone['id']}/archive", json={"reason": "out of focus"}, headers=world["w"])
+    r = client.get(f"/api/v1/compounds/{world['code']}/report.zip", headers=world["w"])
+    assert r.status_code == 200, r.text
+    files = {k.split("/", 1)[1]: v for k, v in _zip(r.content).items()}
+    manifest = json.loads(files["manifest.json"])
+    in_files = {f["path"]: f["sha256"] for f in manifest["files"]}
+    html = BeautifulSoup(files["summary.html"], "html.parser")
+    rows = {int(tr["data-id"]): tr for tr in html.select("#images tr[data-id]")}
+    pdf = _pdf_lines(files["summary.pdf"])
+    assert set(rows) == set(shown)  # the archived image is not listed ...
+    assert html.select_one("#archived-images").get_text(strip=True) == "1 archived image left out"  # ... but counted
+    expected_meta = {0: "20× · crossed polarisers · 350 K", 1: "scale bar 50 µm · polarisers not crossed · 298.1 K"}
+    for i, (aid, (raw, a)) in enumerate(shown.items()):
+        cells = [td.get_text(" ", strip=True) for td in rows[aid].select("td")]
+        sha = hashlib.sha256(raw).hexdigest()
+        assert cells[1:] == [("m.png", "m.tif")[i], ("compound " + world["code"], "batch " + world["batch"])[i],
+                             f"pellet {i + 1} under the microscope", expected_meta[i],
+                             f"120 × 90 px, {('image/png', 'image/tiff')[i]}", sha]
+        # the thumbnail the row shows is in the pack (a JPEG, listed with its checksum) and links to the original
+        img = rows[aid].select_one("img")
+        thumb = files[img["src"]]
+        assert Image.open(io.BytesIO(thumb)).format == "JPEG" and in_files[img["src"]] == hashlib.sha256(thumb).hexdigest()
+        assert (int(img["width"]), int(img["height"])) == Image.open(io.BytesIO(thumb)).size
+        assert files[rows[aid].select_one("a")["href"]] == raw
+        # the PDF page lists it too: file, where, caption, what it shows, pixels, then its checksum
+        at = pdf.index(f"{('m.png', 'm.tif')[i]} on the {cells[2]}: pellet {i + 1} under the microscope")
+        assert pdf[at + 1:at + 3] == [f"{expected_meta[i]}; 120 × 90 px", f"SHA-256 {sha}"]
+    assert "1 archived image left out" in pdf
+    assert not any(hashlib.sha256(micrograph(seed=99)).hexdigest() in line for line in pdf)
+    assert not any(p.startswith(f"attachments/thumbnails/{gone['id']}.") for p in files)

@@ -19,22 +19,6 @@ from server.services import notifications
 from tests.factories import bearer, make_token, make_user, soup
 from tests.notifications.test_notifications import Person, _register, _upload
 
-T0 = datetime(2026, 12, 3, 14, 2, 0, tzinfo=timezone.utc)
-
-
-@pytest.fixture
-def clock(monkeypatch):
-    """The notifications' clock: each reading 40 s after the one before, from 14:02 UTC."""
-    state = {"now": T0, "step": timedelta(seconds=40)}
-
-    def now() -> datetime:
-        state["now"] += state["step"]
-        return state["now"]
-
-    monkeypatch.setattr(notifications, "utcnow", now)
-    return state
-
-
 def test_twelve_uploads_are_one_grouped_entry_read_as_one(alice, bob, clock, session):
     code = _register(alice)
     for i in range(12):
@@ -68,7 +52,8 @@ def test_twelve_uploads_are_one_grouped_entry_read_as_one(alice, bob, clock, ses
 def test_a_burst_ends_with_the_window_and_mentions_never_group(alice, bob, clock, session):
     code = _register(alice)
     _upload(bob, code, 50)
-    clock["step"] = notifications.GROUP_WINDOW + timedelta(minutes=1)  # the next event is past the window
+    # the next event is past the window
+    clock["step"] = notifications.group_window(session.get_bind()) + timedelta(minutes=1)
     _upload(bob, code, 51)
     clock["step"] = timedelta(seconds=5)
     measured = [i for i in alice.inbox()["items"] if i["event"] == "measurement"]

@@ -79,8 +79,10 @@ def _analyse(parsed: NmrFile, c, ctx):
 EDIT_KEYS = ("from_ppm", "to_ppm", "shift_ppm", "n_H", "multiplicity", "j_Hz", "label", "assigned")
 NOT_SAMPLE = ("", "solvent residual", "water", "TMS", "impurity")
 MAX_SIGNALS, MAX_LABEL, MAX_J_HZ = 100, 80, 40.0
-#: Couplings a multiplicity names (first-order: one J for n + 1 lines, two for a dd, none for s and m).
-J_COUNT = {"s": 0, "m": 0, "dd": 2, **{name: 1 for name in nmr_spectrum.BINOMIAL_NAMES.values()}}
+#: Couplings a multiplicity names (first-order: one J for n + 1 lines, two for a tree such as dd or dt, none
+#: for s and m).
+J_COUNT = {"s": 0, "m": 0, **{name: 1 for name in nmr_spectrum.BINOMIAL_NAMES.values()},
+           **{name: 2 for name, _, _ in nmr_spectrum.TREES}}
 
 
 def _number(value, where: str, *, required: bool = False) -> Optional[float]:

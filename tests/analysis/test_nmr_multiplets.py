@@ -130,3 +130,81 @@ def test_patterns_that_are_not_first_order_are_m():
                                            (0.004, 1)])
 def test_decimals_follow_the_uncertainty(err, decimals):
     assert decimals_within(err) == decimals
+
+
+# Two distinct couplings (Friebolin 2010 ch. 4; Pretsch et al. 2009 ch. 5: named largest J first). The J are
+# of real-world size (from memory, common textbook values): a trans-vinyl H with 15.6 Hz and a CH2 (dt), an
+# axial cyclohexane H with two axial-axial (11.5 Hz) and one axial-equatorial neighbour (td), an H between two
+# CH2 (tt), the =CH of a crotyl group (dq, 15.5 and 6.9 Hz) and a CH of CH3-CH-H with a long-range 2.5 Hz (qd).
+TREES = [("dd", Signal(7.50, 1, 1, 8.4, ((1, 2.1),)), (8.4, 2.1)),
+         ("dt", Signal(5.80, 1, 1, 15.6, ((2, 6.8),)), (15.6, 6.8)),
+         ("td", Signal(3.20, 1, 2, 11.5, ((1, 4.2),)), (11.5, 4.2)),
+         ("tt", Signal(2.10, 1, 2, 12.2, ((2, 3.6),)), (12.2, 3.6)),
+         ("dq", Signal(6.95, 1, 1, 15.5, ((3, 6.9),)), (15.5, 6.9)),
+         ("qd", Signal(4.55, 1, 3, 7.0, ((1, 2.5),)), (7.0, 2.5)),
+         # interleaved: J_large < 2 J_small, the two triplets' lines alternate (1:1:2:2:1:1 read out of order)
+         ("dt", Signal(1.80, 1, 1, 7.0, ((2, 5.0),)), (7.0, 5.0))]
+
+
+@pytest.mark.parametrize("points", [65536, 32768])
+def test_two_coupling_trees_are_named_with_both_j(points):
+    # 1 % noise of the tallest point, 1 Hz lines, five noise draws: each tree is named with both J, largest
+    # first, within 0.1 Hz; a draw where a noise spike joins the lines may read "m", never a wrong name
+    right = 0
+    for seed in range(1, 6):
+        r = _analyse([s for _, s, _ in TREES], seed=seed, noise=0.01, fwhm=1.0, points=points)
+        for name, sig, j in TREES:
+            got = next(s for s in r.signals if abs(s.shift_ppm - sig.shift_ppm) < 0.01)
+            assert got.multiplicity in (name, "m"), (name, got)
+            if got.multiplicity == name:
+                right += 1
+                assert got.j_Hz == pytest.approx(j, abs=0.1)
+                assert got.lines == len(sig.lines_Hz(400.0))
+    assert right >= 0.9 * 5 * len(TREES)
+
+
+def test_a_dt_and_a_td_print_as_the_literature_does():
+    r = _analyse([TREES[1][1], TREES[2][1]], seed=4, noise=0.01, fwhm=1.0)
+    line = nmr_line(r.to_dict())
+    assert "5.80 (dt, J = 15.6, 6.8 Hz, 50 %)" in line and "3.20 (td, J = 11.5, 4.2 Hz, 50 %)" in line
+
+
+@pytest.mark.parametrize("name, n_large, j_large, n_small, j_small", [
+    ("dt", 1, 15.6, 2, 6.8), ("td", 2, 11.5, 1, 4.2), ("tt", 2, 12.2, 2, 3.6), ("dq", 1, 15.5, 3, 6.9),
+    ("qd", 3, 7.0, 1, 2.5), ("dd", 1, 10.0, 1, 5.0)])
+def test_trees_from_their_stick_lines_with_a_few_percent_intensity_noise(name, n_large, j_large, n_small, j_small):
+    from server.analysis.nmr_spectrum import tree_lines
+
+    rng = np.random.default_rng(31)
+    pos, w, _, _ = tree_lines(n_large, j_large, n_small, j_small, merge_Hz=0.9)
+    for _ in range(20):
+        got = multiplet(pos + rng.normal(0, 0.03, pos.size), w * (1 + rng.normal(0, 0.04, w.size)), 0.9,
+                        resolution_Hz=0.1)
+        assert got.multiplicity == name and got.j_Hz == pytest.approx((j_large, j_small), abs=0.1)
+
+
+def test_the_convolution_of_two_pascal_rows():
+    # a dt is a 1:2:1 triplet in each half of a doublet; a tt the row (1 2 1) convolved with itself, 9 lines
+    from server.analysis.nmr_spectrum import tree_lines
+
+    pos, w, _, _ = tree_lines(1, 15.0, 2, 5.0)
+    assert list(w) == [1, 2, 1, 1, 2, 1] and list(pos) == [-12.5, -7.5, -2.5, 2.5, 7.5, 12.5]
+    _, w, _, _ = tree_lines(2, 12.0, 2, 3.0)
+    assert list(w) == [1, 2, 1, 2, 4, 2, 1, 2, 1]
+    # J_large = 2 J_small: the middle lines of a dt coincide and stand as one of intensity 2
+    pos, w, _, _ = tree_lines(1, 10.0, 2, 5.0, merge_Hz=0.5)
+    assert list(w) == [1, 2, 2, 2, 1] and list(pos) == [-10, -5, 0, 5, 10]
+
+
+def test_overlapping_and_second_order_patterns_stay_m():
+    # a 2H triplet (6.6 Hz) and a 1H doublet (8.0 Hz) 4 Hz apart: their lines partly coincide, in no tree
+    overlap = [Signal(3.50, 2, 2, 6.6), Signal(3.51, 1, 1, 8.0)]
+    # a dt whose lines lean towards a partner (a roof from 0.5 to 1.5 across the pattern, far past the first-
+    # order limit): the second-order look of a pair with Δν/J near 1 (Friebolin ch. 4)
+    dt = Signal(6.00, 1, 1, 15.6, ((2, 6.8),)).lines_Hz(400.0)
+    lean = [(x / 400.0, w * (0.5 + (x - dt[0][0]) / (dt[-1][0] - dt[0][0]))) for x, w in dt]
+    for seed in (1, 2, 3):
+        r = _analyse(overlap, seed=seed, noise=0.01, fwhm=1.0, lines=lean)
+        for at in (3.505, 6.00):
+            got = next(s for s in r.signals if abs(s.shift_ppm - at) < 0.02)
+            assert got.multiplicity == "m" and got.j_Hz == () and got.pattern, (at, got)

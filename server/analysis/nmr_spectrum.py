@@ -108,6 +108,10 @@ class NmrSignal(Result):
     multiplicity: str = "m"  # one of MULTIPLICITIES
     j_Hz: tuple[float, ...] = ()  # coupling constants from the line spacings, largest first (none for s and m)
     pattern: str = ""  # why the pattern was called "m" (empty when a first-order pattern was found)
+    #: the signal's extent: its outermost lines, downfield and upfield (a single line: its half-height
+    #: points); a multiplet (m) is printed as this range, high to low (ACS guidelines, common practice)
+    high_ppm: Optional[float] = None
+    low_ppm: Optional[float] = None
 
 
 @dataclass(frozen=True)
@@ -542,10 +546,13 @@ def analyse_nmr_spectrum(ppm: np.ndarray, y: np.ndarray, *, nucleus: Optional[st
     for g, (lo, hi), area, centre, tag, pat in zip(groups, bounds, areas, centres, tags, patterns):
         rel = area / sample_total if not tag and sample_total > 0 else None
         j = tuple(round(v, 3) for v in pat.j_Hz) if spectrometer_MHz else ()  # no J in Hz without the frequency
+        half_ppm = float(max(half[g])) * step / 2.0 if len(g) == 1 else 0.0
         signals.append(NmrSignal(shift_ppm=round(centre, 4), from_ppm=round(float(lo), 4), to_ppm=round(float(hi), 4),
                                  lines=len(g), integral_rel=rel,
                                  n_H=rel * count if rel is not None and count else None, assigned=tag,
-                                 multiplicity=pat.multiplicity, j_Hz=j, pattern=pat.reason))
+                                 multiplicity=pat.multiplicity, j_Hz=j, pattern=pat.reason,
+                                 high_ppm=round(float(lines_ppm[g[-1]]) + half_ppm, 4),
+                                 low_ppm=round(float(lines_ppm[g[0]]) - half_ppm, 4)))
     signals.sort(key=lambda s: -s.shift_ppm)  # as printed: downfield first
     found = sum(1 for s in signals if not s.assigned)
     if expected is not None and found != expected:

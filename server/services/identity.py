@@ -80,10 +80,23 @@ def _coupling_words(s: dict[str, Any], j_err_Hz: Optional[float]) -> str:
     return words
 
 
+def _shift_words(s: dict[str, Any]) -> str:
+    """A signal's δ as printed: a multiplet (m) as the range of its lines, high to low with an en dash
+    (``7.35–7.28``; ACS Guide to Scholarly Communication / author guidelines, common practice), every
+    other multiplicity at its centre (``7.26``), two decimals. An m whose range is one value at two
+    decimals, or stored before ranges were kept, prints its centre."""
+    high, low = s.get("high_ppm"), s.get("low_ppm")
+    if s.get("multiplicity") == "m" and high is not None and low is not None:
+        a, b = f"{max(high, low):.2f}", f"{min(high, low):.2f}"
+        if a != b:
+            return f"{a}–{b}"
+    return f"{s['shift_ppm']:.2f}"
+
+
 def nmr_line(nmr: dict[str, Any], *, markdown: bool = False) -> str:
     """``1H NMR (400 MHz, CDCl3, 298 K): δ 7.26 (d, J = 8.4 Hz, 2H), 3.95 (s, 18H).`` from a stored
     ``nmr_spectrum`` result (or one with a person's edit laid over it): the sample's signals downfield first,
-    shifts to two decimals, the multiplicity and J (:func:`_coupling_words`), integrals in whole atoms (as
+    shifts to two decimals (an m as its range, :func:`_shift_words`), the multiplicity and J (:func:`_coupling_words`), integrals in whole atoms (as
     journals print them; the fraction when no structure scaled them). A result stored before multiplicities
     were analysed prints none."""
     head = [f"{nmr['spectrometer_MHz']:.0f} MHz" if nmr.get("spectrometer_MHz") else "",
@@ -98,7 +111,7 @@ def nmr_line(nmr: dict[str, Any], *, markdown: bool = False) -> str:
                   if s.get("integral_rel") is not None else "")
         words = [_coupling_words(s, nmr.get("j_err_Hz")) if s.get("multiplicity") else "", amount]
         inner = ", ".join(w for w in words if w)
-        signals.append(f"{s['shift_ppm']:.2f}" + (f" ({inner})" if inner else ""))
+        signals.append(_shift_words(s) + (f" ({inner})" if inner else ""))
     inner = ", ".join(p for p in head if p)
     return (f"{_nucleus_words(nmr.get('nucleus'), markdown)} NMR{f' ({inner})' if inner else ''}: "
             f"δ {', '.join(signals) if signals else 'no signal of the sample'}.")

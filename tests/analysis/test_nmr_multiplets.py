@@ -208,3 +208,29 @@ def test_overlapping_and_second_order_patterns_stay_m():
         for at in (3.505, 6.00):
             got = next(s for s in r.signals if abs(s.shift_ppm - at) < 0.02)
             assert got.multiplicity == "m" and got.j_Hz == () and got.pattern, (at, got)
+
+
+def test_a_multiplet_prints_as_its_range_high_to_low_the_others_at_their_centre():
+    # ACS author guidelines (common practice): "7.35–7.28 (m, 2H)", first-order patterns at their centre.
+    # The second-order-looking dt of the test above spans ±(15.6/2 + 6.8) Hz = ±0.0365 ppm at 400 MHz.
+    dt = Signal(6.0035, 1, 1, 15.6, ((2, 6.8),)).lines_Hz(400.0)
+    lean = [(x / 400.0, w * (0.5 + (x - dt[0][0]) / (dt[-1][0] - dt[0][0]))) for x, w in dt]
+    r = _analyse([Signal(2.05, 1), Signal(1.26, 3, 2, 7.1)], seed=2, noise=0.003, fwhm=1.0, lines=lean)
+    m = next(s for s in r.signals if abs(s.shift_ppm - 6.0) < 0.02)
+    assert m.multiplicity == "m"
+    assert (m.high_ppm, m.low_ppm) == pytest.approx((6.0035 + 0.0365, 6.0035 - 0.0365), abs=0.001)
+    line = nmr_line(r.to_dict())
+    assert line.startswith("1H NMR (400 MHz, CDCl3): δ 6.04–5.97 (m, 20 %), 2.05 (s, ")  # areas 1 : 1 : 3
+    assert "), 1.26 (t, J = 7.1 Hz, 60 %)." in line
+
+
+def test_range_digits_and_results_stored_before_ranges():
+    base = {"nucleus": "1H", "j_err_Hz": 0.03, "signals": []}
+    row = {"shift_ppm": 3.4012, "multiplicity": "m", "n_H": 4.0, "assigned": "", "j_Hz": []}
+    ranged = {**base, "signals": [{**row, "high_ppm": 3.4311, "low_ppm": 3.3702}]}
+    assert nmr_line(ranged) == "1H NMR: δ 3.43–3.37 (m, 4H)."
+    narrow = {**base, "signals": [{**row, "high_ppm": 3.4031, "low_ppm": 3.3982}]}  # one value at 2 decimals
+    assert nmr_line(narrow) == "1H NMR: δ 3.40 (m, 4H)."
+    assert nmr_line({**base, "signals": [row]}) == "1H NMR: δ 3.40 (m, 4H)."  # stored before: the centre
+    doublet = {**base, "signals": [{**row, "multiplicity": "d", "j_Hz": [8.43], "high_ppm": 3.41, "low_ppm": 3.39}]}
+    assert nmr_line(doublet) == "1H NMR: δ 3.40 (d, J = 8.4 Hz, 4H)."

@@ -208,7 +208,7 @@ def multiplet(lines_Hz, heights, fwhm_Hz: float, *, resolution_Hz: float,
     resolution_Hz : float
         Digital resolution: the spacing of the data points (Hz per point).
     reference_fwhm_Hz : float, optional
-        The spectrum's typical line width: a single line much broader than it is "m", not "s".
+        The typical width of the spectrum's other lines: a single line much broader than it is "m", not "s".
 
     Returns
     -------
@@ -526,10 +526,16 @@ def analyse_nmr_spectrum(ppm: np.ndarray, y: np.ndarray, *, nucleus: Optional[st
             mid = (lines_ppm[groups[k][-1]] + lines_ppm[groups[k + 1][0]]) / 2.0
             bounds[k][1] = bounds[k + 1][0] = mid
     fwhm_hz = half * step * mhz
-    ref_fwhm = float(np.median(fwhm_hz))
     resolution = step * mhz
-    patterns = [_pattern(ppm * mhz, yb, sd, lines_ppm[g] * mhz, float(np.median(fwhm_hz[g])), resolution, ref_fwhm)
-                for g in groups]
+
+    def reference_fwhm(g: list[int]) -> float:
+        """The typical width of the other signals' lines: a signal's own broad line must not set the scale
+        it is judged by (with two signals a median over all lines could never call one of them broad)."""
+        others = np.delete(fwhm_hz, g)
+        return float(np.median(others if others.size else fwhm_hz))
+
+    patterns = [_pattern(ppm * mhz, yb, sd, lines_ppm[g] * mhz, float(np.median(fwhm_hz[g])), resolution,
+                         reference_fwhm(g)) for g in groups]
     areas, centres, tags = [], [], []
     for g, (lo, hi) in zip(groups, bounds):
         sel = (ppm >= lo) & (ppm <= hi)

@@ -93,6 +93,20 @@ def _shift_words(s: dict[str, Any]) -> str:
     return f"{s['shift_ppm']:.2f}"
 
 
+def nmr_resolution_note(nmr: dict[str, Any]) -> str:
+    """What the J digits of :func:`nmr_line` rest on, said beside the listing: the digital resolution
+    (spectral width over the number of points), the standard uncertainty of a J from two line positions
+    (resolution / sqrt 6, :mod:`server.analysis.nmr_spectrum`) and the digits it allows."""
+    res, err = nmr.get("resolution_Hz"), nmr.get("j_err_Hz")
+    if res is None or err is None:
+        return "No spectrometer frequency is known: no J is given in hertz."
+    decimals = decimals_within(err)
+    digits = ("so J is printed to 0.1 Hz" if decimals == 1 else "so J is printed in whole hertz" if decimals == 0
+              else "too coarse for J to be printed")
+    return (f"Digital resolution {res:.2g} Hz per point ({nmr.get('points')} points); a J from two line "
+            f"positions is known to {err:.2g} Hz, {digits}.")
+
+
 def nmr_line(nmr: dict[str, Any], *, markdown: bool = False) -> str:
     """``1H NMR (400 MHz, CDCl3, 298 K): δ 7.26 (d, J = 8.4 Hz, 2H), 3.95 (s, 18H).`` from a stored
     ``nmr_spectrum`` result (or one with a person's edit laid over it): the sample's signals downfield first,
@@ -170,12 +184,14 @@ def identity_summary(session: Session, batch: Batch, *, formula: Optional[str]) 
               "evidence contradicts the structure" if not all(passes) else
               "HRMS and elemental analysis agree" if len(passes) == 2 else "partial evidence agrees")
     out: dict[str, Any] = {"batch": batch.code, "status": status, "evidence": evidence,
-                           "identity_confirmed": batch.identity_confirmed, "si_text": None, "si_markdown": None}
+                           "identity_confirmed": batch.identity_confirmed, "si_text": None, "si_markdown": None,
+                           "si_nmr_note": None}
     if formula is not None and (passes or nmr):
         h, e = (hrms.results if hrms else None), (ea.results if ea else None)
         n = corrections.effective_results(nmr.results, nmr.correction) if nmr else None  # a person's peak list wins
         out["si_text"] = si_paragraph(formula, h, e, nmr=n)
         out["si_markdown"] = si_paragraph(formula, h, e, markdown=True, nmr=n)
+        out["si_nmr_note"] = nmr_resolution_note(n) if n else None
     return out
 
 

@@ -289,7 +289,9 @@ def nmr_spectrum(c: CompoundPlan, m: Measurement, rng: np.random.Generator, name
     """A 1H spectrum in CDCl3 at 400 MHz and 298 K: the compound's invented signals
     (server.synth.nmr_spectrum.signals_for), the CHCl3 residual, water and TMS; an impure batch adds
     10 % of a mono-dealkylated side product (a phenol OH near 5.6 ppm and its chain signals 0.08 ppm
-    downfield, apart from the compound's). Noise 0.2 % of the tallest line (a signal-to-noise ratio of 500). The spectrometer writes X in Hz with CRLF line ends; some files were converted to ppm."""
+    downfield, apart from the compound's). Noise 0.2 % of the tallest line (a signal-to-noise ratio of 500).
+    32 k points over 13 ppm (server.synth.nmr_spectrum.POINTS: 0.16 Hz per point, so J prints to 0.1 Hz).
+    The spectrometer writes X in Hz with CRLF line ends; some files were converted to ppm."""
     main = signals_for(c.smiles)
     signals = list(main)
     if m.impure:

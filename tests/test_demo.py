@@ -20,6 +20,7 @@ from seed_demo import instruments, make_examples, scenario
 from server.kinds import KINDS
 from server.verdict_codes import CODES
 from server.kinds.base import EXAMPLE_SMILES
+from server.precision import decimals_within
 from server.synth.nmr_spectrum import signals_for
 from server.app import create_app
 from server.settings import Settings
@@ -125,6 +126,9 @@ def _check_against_scenario(report, client, reader, plan: scenario.Scenario) -> 
             assert sample and all(min(abs(s["shift_ppm"] - x) for x in model) < 0.1 for s in sample), where
             assert {"solvent residual", "TMS"} <= {s["assigned"] for s in r["signals"]}, where
             assert (r["nucleus"], r["solvent"], r["spectrometer_MHz"]) == ("1H", "CDCl3", 400.13), where
+            # 32 k points over 13 ppm at 400.13 MHz: 0.16 Hz per point, u(J) = 0.065 Hz, J printed to 0.1 Hz
+            assert r["resolution_Hz"] == pytest.approx(13.0 * 400.13 / 32767, rel=1e-3), where
+            assert decimals_within(r["j_err_Hz"]) == 1, where
             seen["nmr"] += 1
     assert seen["switching"] > 0 and seen["lossy"] > 0
     assert seen["nmr"] == sum(1 for c in plan.compounds for b in c.batches if b.measurements)
@@ -160,6 +164,7 @@ def _check_identity(report, client, reader, plan: scenario.Scenario, by_code: di
     for bcode in report.identity_unconfirmed:
         got = client.get(f"/api/v1/batches/{bcode}/identity", headers=reader).json()
         assert got["identity_confirmed"] is False and got["evidence"]["nmr_spectrum"] is not None
+        assert "so J is printed to 0.1 Hz" in got["si_nmr_note"], got["si_nmr_note"]
 
 
 def _check_specimens(report, client, reader, plan: scenario.Scenario) -> None:

@@ -17,8 +17,11 @@ correct structure; the result says so in a flag.
 
 Multiplicity (:func:`multiplet`) follows the first-order rules: n equivalent neighbours split a signal into
 n + 1 lines spaced by J with the binomial (Pascal's triangle) intensities, and two different couplings
-make a doublet of doublets of four equal lines (Friebolin 2010, ch. 4, "first-order spectra"; T. D. W.
-Claridge, *High-Resolution NMR Techniques in Organic Chemistry*, 3rd ed., Elsevier 2016, ch. 2 and 4).
+to n1 and n2 protons make a tree of (n1 + 1)(n2 + 1) lines whose intensities are the convolution of the two
+Pascal rows (a doublet of doublets, dt, td, tt, dq, qd, ...; Friebolin 2010, ch. 4, "first-order spectra";
+T. D. W. Claridge, *High-Resolution NMR Techniques in Organic Chemistry*, 3rd ed., Elsevier 2016, ch. 2 and
+4; named largest J first as in E. Pretsch et al., *Structure Determination of Organic Compounds*, 4th ed.,
+Springer 2009; recalled from memory).
 A pattern is called only when the lines are resolved, equally spaced within the digital resolution and
 their intensities match the pattern; anything else is "m" with the reason, never a guess. J is the line
 spacing in Hz (ppm times the observe frequency), its uncertainty that of the difference of two positions
@@ -41,9 +44,9 @@ from server.errors import AnalysisError
 
 METHOD = ("Peak picking above 5 noise standard deviations, lines within 20 Hz grouped into signals and integrated "
           "over their regions (Friebolin 2010); multiplicity and J by the first-order rules (n + 1 lines, Pascal "
-          "intensities; doublet of doublets; Friebolin 2010, Claridge 2016), otherwise m; residual solvent shifts "
+          "intensities; two-coupling trees dd, dt, td, tt, dq, qd, ...; Friebolin 2010, Claridge 2016), otherwise m; residual solvent shifts "
           "from Gottlieb et al. (1997); expected environments from RDKit topological symmetry classes")
-VERSION = "nmr_spectrum/1.1"
+VERSION = "nmr_spectrum/1.2"
 
 #: A line must stand this many noise standard deviations above the baseline (common practice: a limit of
 #: detection of 3 sigma, raised to 5 because a spectrum has thousands of points and 3 sigma noise spikes).
@@ -67,8 +70,13 @@ SOLVENT_TOLERANCE_PPM = 0.03
 #: First-order patterns of n equivalent neighbours (n + 1 lines), named as journals print them.
 BINOMIAL_NAMES = {1: "d", 2: "t", 3: "q", 4: "quint", 5: "sext", 6: "sept"}
 #: Every multiplicity the analysis (and a person's edit) may give a signal: the first-order names, the
-#: doublet of doublets, s and m (a multiplet: not first-order, or not resolved well enough for a call).
-MULTIPLICITIES = ("s", "d", "t", "q", "quint", "sext", "sept", "dd", "m")
+#: two-coupling trees, s and m (a multiplet: not first-order, or not resolved well enough for a call).
+#: Two distinct couplings, each to 1-3 equivalent protons: a coupling tree of (n1 + 1) x (n2 + 1) lines named
+#: by its splittings in order of falling J ("dt": a doublet of the larger J, each line a triplet of the
+#: smaller), as journals print them (Friebolin 2010 ch. 4; Pretsch et al., *Structure Determination of
+#: Organic Compounds*, 4th ed. 2009, ch. 5; recalled from memory). (name, n_large, n_small).
+TREES = tuple((BINOMIAL_NAMES[a] + BINOMIAL_NAMES[b], a, b) for a in (1, 2, 3) for b in (1, 2, 3))
+MULTIPLICITIES = ("s", "d", "t", "q", "quint", "sext", "sept") + tuple(t[0] for t in TREES) + ("m",)
 #: Lines closer than this many line widths (FWHM) are not resolved well enough for a call (two equal
 #: Lorentzians show a dip from 0.58 FWHM apart; a whole width is asked for, common practice).
 RESOLVED_FWHM = 1.0
@@ -100,6 +108,10 @@ class NmrSignal(Result):
     multiplicity: str = "m"  # one of MULTIPLICITIES
     j_Hz: tuple[float, ...] = ()  # coupling constants from the line spacings, largest first (none for s and m)
     pattern: str = ""  # why the pattern was called "m" (empty when a first-order pattern was found)
+    #: the signal's extent: its outermost lines, downfield and upfield (a single line: its half-height
+    #: points); a multiplet (m) is printed as this range, high to low (ACS guidelines, common practice)
+    high_ppm: Optional[float] = None
+    low_ppm: Optional[float] = None
 
 
 @dataclass(frozen=True)
@@ -117,6 +129,72 @@ def _matches(intensities: np.ndarray, expected: np.ndarray) -> bool:
     return bool(np.all(np.abs(got - want) <= INTENSITY_TOL * want))
 
 
+def tree_lines(n_large: int, j_large_Hz: float, n_small: int, j_small_Hz: float, *,
+               merge_Hz: float = 0.0) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The first-order coupling tree of one proton coupled to ``n_large`` equivalent protons by
+    ``j_large_Hz`` and to ``n_small`` others by ``j_small_Hz``: each coupling splits every line into n + 1
+    lines of the binomial intensities, so the tree is the convolution of the two Pascal rows (Friebolin
+    2010, ch. 4, coupling trees). Lines closer than ``merge_Hz`` stand as one (their intensities added, the
+    position their weighted mean), as an unresolved coincidence appears in a spectrum.
+
+    Returns (positions about the centre in Hz, intensities, and each line's coefficients of J_large and
+    J_small in its position), sorted by position.
+    """
+    a, b = np.meshgrid(np.arange(n_large + 1), np.arange(n_small + 1), indexing="ij")
+    cl, cs = (a - n_large / 2.0).ravel(), (b - n_small / 2.0).ravel()
+    w = np.array([comb(n_large, i) * comb(n_small, k) for i, k in zip(a.ravel(), b.ravel())], dtype=float)
+    pos = cl * j_large_Hz + cs * j_small_Hz
+    order = np.argsort(pos, kind="stable")
+    pos, w, cl, cs = pos[order], w[order], cl[order], cs[order]
+    groups: list[list[int]] = []
+    for i in range(pos.size):
+        if groups and pos[i] - pos[groups[-1][-1]] < merge_Hz:
+            groups[-1].append(i)
+        else:
+            groups.append([i])
+    out = [(float(np.average(pos[g], weights=w[g])), float(w[g].sum()), float(np.average(cl[g], weights=w[g])),
+            float(np.average(cs[g], weights=w[g]))) for g in groups]
+    return tuple(np.array(col) for col in zip(*out))  # type: ignore[return-value]
+
+
+def _trees(x: np.ndarray, h: np.ndarray, *, merge_Hz: float, tol_Hz: float) -> list[Multiplet]:
+    """Every two-coupling tree (:data:`TREES`) that the lines ``x`` (Hz, sorted) with heights ``h`` fit.
+
+    The outermost line's neighbour lies one J_small away and one of the other lines one J_large away, so
+    J_small starts from the first spacing and J_large from each distance to the first line. For each start
+    the tree's lines are laid over the observed ones in order; the centre and both J are then refined by
+    linear least squares (each position is centre + c_L J_large + c_S J_small), and the tree fits when it
+    has as many lines as observed, every position agrees within ``tol_Hz``, J_large exceeds J_small by more
+    than that (otherwise the lines are one binomial pattern) and the intensities match the convolved
+    Pascal rows within :data:`INTENSITY_TOL`.
+    """
+    n = x.size
+    found: dict[str, Multiplet] = {}
+    j_small0 = float(x[1] - x[0])
+    for name, n_large, n_small in TREES:
+        if (n_large + 1) * (n_small + 1) < n or name in found:
+            continue
+        for k in range(1, n):
+            j_large0 = float(x[k] - x[0])
+            if j_large0 <= j_small0 + tol_Hz:
+                continue
+            pos, _, cl, cs = tree_lines(n_large, j_large0, n_small, j_small0, merge_Hz=merge_Hz)
+            if pos.size != n:
+                continue
+            design = np.column_stack([np.ones(n), cl, cs])
+            if np.linalg.matrix_rank(design) < 3:
+                continue
+            centre, j_large, j_small = np.linalg.lstsq(design, x, rcond=None)[0]
+            if not 0 < j_small < j_large - tol_Hz:
+                continue
+            pos, w, _, _ = tree_lines(n_large, j_large, n_small, j_small, merge_Hz=merge_Hz)
+            if pos.size != n or np.max(np.abs(x - centre - pos)) > tol_Hz or not _matches(h, w):
+                continue
+            found[name] = Multiplet(name, (float(j_large), float(j_small)))
+            break
+    return list(found.values())
+
+
 def multiplet(lines_Hz, heights, fwhm_Hz: float, *, resolution_Hz: float,
               reference_fwhm_Hz: Optional[float] = None) -> Multiplet:
     """The first-order multiplicity of one signal from its lines, or "m" with the reason.
@@ -130,20 +208,24 @@ def multiplet(lines_Hz, heights, fwhm_Hz: float, *, resolution_Hz: float,
     resolution_Hz : float
         Digital resolution: the spacing of the data points (Hz per point).
     reference_fwhm_Hz : float, optional
-        The spectrum's typical line width: a single line much broader than it is "m", not "s".
+        The typical width of the spectrum's other lines: a single line much broader than it is "m", not "s".
 
     Returns
     -------
     Multiplet
         ``s``; ``d``, ``t``, ``q``, ``quint``, ``sext``, ``sept`` (n + 1 equally spaced lines with the binomial
-        intensities of n equivalent neighbours, J = span / n); ``dd`` (four equal lines, outer spacings
-        equal: J_small = those, J_large = line 3 - line 1), largest J first; otherwise ``m``.
+        intensities of n equivalent neighbours, J = span / n); a two-coupling tree of :data:`TREES`
+        (``dd``, ``dt``, ``td``, ``tt``, ``dq``, ``qd``, ...: the convolution of two Pascal rows, lines that
+        coincide merged, :func:`tree_lines`), J largest first; ``m`` when no pattern or more than one fits.
 
     References
     ----------
     H. Friebolin, *Basic One- and Two-Dimensional NMR Spectroscopy*, 5th ed., Wiley-VCH 2010, ch. 4
     (first-order spectra, the n + 1 rule, Pascal's triangle); T. D. W. Claridge, *High-Resolution NMR
-    Techniques in Organic Chemistry*, 3rd ed., Elsevier 2016, ch. 4 (coupling trees, the doublet of doublets).
+    Techniques in Organic Chemistry*, 3rd ed., Elsevier 2016, ch. 4 (coupling trees, the doublet of doublets);
+    E. Pretsch, P. Bühlmann and M. Badertscher, *Structure Determination of Organic Compounds*, 4th ed.,
+    Springer 2009, ch. 5 (first-order multiplets named by their splittings, largest J first). Recalled from
+    memory.
     """
     x = np.asarray(lines_Hz, dtype=float)
     order = np.argsort(x)
@@ -167,10 +249,13 @@ def multiplet(lines_Hz, heights, fwhm_Hz: float, *, resolution_Hz: float,
     if n - 1 in BINOMIAL_NAMES and all(equal(g, gaps.mean()) for g in gaps):
         if _matches(h, np.array([comb(n - 1, k) for k in range(n)], dtype=float)):
             return Multiplet(BINOMIAL_NAMES[n - 1], (float((x[-1] - x[0]) / (n - 1)),))
-    if n == 4 and equal(gaps[0], gaps[2]) and _matches(h, np.ones(4)):
-        small = float((gaps[0] + gaps[2]) / 2)
-        large = float(((x[2] - x[0]) + (x[3] - x[1])) / 2)
-        return Multiplet("dd", (large, small))
+    trees = _trees(x, h, merge_Hz=RESOLVED_FWHM * fwhm_Hz,
+                   tol_Hz=max(SPACING_POINTS * resolution_Hz, SPACING_REL * float(gaps[0])))
+    if len({t.multiplicity for t in trees}) == 1:
+        return trees[0]
+    if trees:
+        return Multiplet("m", reason=f"{n} lines fit both {' and '.join(sorted({t.multiplicity for t in trees}))}: "
+                                     "the pattern cannot be called")
     return Multiplet("m", reason=f"{n} lines in no first-order pattern (spacings "
                                  f"{', '.join(f'{g:.1f}' for g in gaps)} Hz, intensities "
                                  f"{':'.join(f'{v:.2f}' for v in h / h.max())})")
@@ -441,10 +526,16 @@ def analyse_nmr_spectrum(ppm: np.ndarray, y: np.ndarray, *, nucleus: Optional[st
             mid = (lines_ppm[groups[k][-1]] + lines_ppm[groups[k + 1][0]]) / 2.0
             bounds[k][1] = bounds[k + 1][0] = mid
     fwhm_hz = half * step * mhz
-    ref_fwhm = float(np.median(fwhm_hz))
     resolution = step * mhz
-    patterns = [_pattern(ppm * mhz, yb, sd, lines_ppm[g] * mhz, float(np.median(fwhm_hz[g])), resolution, ref_fwhm)
-                for g in groups]
+
+    def reference_fwhm(g: list[int]) -> float:
+        """The typical width of the other signals' lines: a signal's own broad line must not set the scale
+        it is judged by (with two signals a median over all lines could never call one of them broad)."""
+        others = np.delete(fwhm_hz, g)
+        return float(np.median(others if others.size else fwhm_hz))
+
+    patterns = [_pattern(ppm * mhz, yb, sd, lines_ppm[g] * mhz, float(np.median(fwhm_hz[g])), resolution,
+                         reference_fwhm(g)) for g in groups]
     areas, centres, tags = [], [], []
     for g, (lo, hi) in zip(groups, bounds):
         sel = (ppm >= lo) & (ppm <= hi)
@@ -461,10 +552,13 @@ def analyse_nmr_spectrum(ppm: np.ndarray, y: np.ndarray, *, nucleus: Optional[st
     for g, (lo, hi), area, centre, tag, pat in zip(groups, bounds, areas, centres, tags, patterns):
         rel = area / sample_total if not tag and sample_total > 0 else None
         j = tuple(round(v, 3) for v in pat.j_Hz) if spectrometer_MHz else ()  # no J in Hz without the frequency
+        half_ppm = float(max(half[g])) * step / 2.0 if len(g) == 1 else 0.0
         signals.append(NmrSignal(shift_ppm=round(centre, 4), from_ppm=round(float(lo), 4), to_ppm=round(float(hi), 4),
                                  lines=len(g), integral_rel=rel,
                                  n_H=rel * count if rel is not None and count else None, assigned=tag,
-                                 multiplicity=pat.multiplicity, j_Hz=j, pattern=pat.reason))
+                                 multiplicity=pat.multiplicity, j_Hz=j, pattern=pat.reason,
+                                 high_ppm=round(float(lines_ppm[g[-1]]) + half_ppm, 4),
+                                 low_ppm=round(float(lines_ppm[g[0]]) - half_ppm, 4)))
     signals.sort(key=lambda s: -s.shift_ppm)  # as printed: downfield first
     found = sum(1 for s in signals if not s.assigned)
     if expected is not None and found != expected:

@@ -79,8 +79,10 @@ def _analyse(parsed: NmrFile, c, ctx):
 EDIT_KEYS = ("from_ppm", "to_ppm", "shift_ppm", "n_H", "multiplicity", "j_Hz", "label", "assigned")
 NOT_SAMPLE = ("", "solvent residual", "water", "TMS", "impurity")
 MAX_SIGNALS, MAX_LABEL, MAX_J_HZ = 100, 80, 40.0
-#: Couplings a multiplicity names (first-order: one J for n + 1 lines, two for a dd, none for s and m).
-J_COUNT = {"s": 0, "m": 0, "dd": 2, **{name: 1 for name in nmr_spectrum.BINOMIAL_NAMES.values()}}
+#: Couplings a multiplicity names (first-order: one J for n + 1 lines, two for a tree such as dd or dt, none
+#: for s and m).
+J_COUNT = {"s": 0, "m": 0, **{name: 1 for name in nmr_spectrum.BINOMIAL_NAMES.values()},
+           **{name: 2 for name, _, _ in nmr_spectrum.TREES}}
 
 
 def _number(value, where: str, *, required: bool = False) -> Optional[float]:
@@ -109,7 +111,8 @@ def _correct(parsed: NmrFile, result, edit) -> dict:
     """A person's peak list (``edit``: a list of signals, each with ``from_ppm`` and ``to_ppm`` and optionally
     ``shift_ppm``, ``n_H``, ``multiplicity``, ``j_Hz``, ``label``, ``assigned``) integrated over the stored
     spectrum as the automatic signals are: the replaced ``signals`` (downfield first), ``signals_found`` and
-    ``environments_check``. A person's ``n_H`` stands; without one the integral is scaled to the formula."""
+    ``environments_check``. A signal's extent (``high_ppm``, ``low_ppm``: the range an m is printed as) is
+    that of the stored peak list's lines inside its region, the region itself when none lies there. A person's ``n_H`` stands; without one the integral is scaled to the formula."""
     if not isinstance(edit, (list, tuple)) or not edit:
         raise IngestError("the peak list needs at least one signal with a region (from and to, ppm)", field="signals")
     if len(edit) > MAX_SIGNALS:
@@ -160,10 +163,13 @@ def _correct(parsed: NmrFile, result, edit) -> dict:
     for r, area in sorted(zip(rows, areas), key=lambda p: -p[0]["shift"]):
         rel = area / total if not r["assigned"] and total > 0 else None
         scaled = rel * result.element_count if rel is not None and result.element_count else None
+        inside = [p for p in result.peaks_ppm if r["lo"] <= p <= r["hi"]]  # the stored lines in the region
         signals.append({"shift_ppm": round(r["shift"], 4), "from_ppm": round(r["lo"], 4), "to_ppm": round(r["hi"], 4),
                         "lines": None, "integral_rel": rel,
                         "n_H": r["n_H"] if r["n_H"] is not None else scaled, "assigned": r["assigned"],
-                        "multiplicity": r["mult"], "j_Hz": list(r["j"]), "pattern": "", "label": r["label"]})
+                        "multiplicity": r["mult"], "j_Hz": list(r["j"]), "pattern": "", "label": r["label"],
+                        "high_ppm": round(max(inside), 4) if inside else round(r["hi"], 4),
+                        "low_ppm": round(min(inside), 4) if inside else round(r["lo"], 4)})
     found = sum(1 for x in signals if not x["assigned"])
     expected = result.environments_expected
     check = None if expected is None else ("as expected" if found == expected else
@@ -216,6 +222,8 @@ KIND = Kind(
         ResultKey("multiplicity", "multiplicity"),
         ResultKey("j_Hz", "J", "Hz", 3),
         ResultKey("pattern", "why m"),
+        ResultKey("high_ppm", "extent from (outermost line)", "ppm", 3),
+        ResultKey("low_ppm", "extent to (outermost line)", "ppm", 3),
         ResultKey("label", "assignment"),
         ResultKey("signals_found", "signals found"),
         ResultKey("environments_expected", "environments expected (topological symmetry; a check, not proof)"),

@@ -81,10 +81,37 @@ def _coupling_words(s: dict[str, Any], j_err_Hz: Optional[float]) -> str:
     return words
 
 
+def _shift_words(s: dict[str, Any]) -> str:
+    """A signal's δ as printed: a multiplet (m) as the range of its lines, high to low with an en dash
+    (``7.35–7.28``; ACS Guide to Scholarly Communication / author guidelines, common practice), every
+    other multiplicity at its centre (``7.26``), two decimals. An m whose range is one value at two
+    decimals, or stored before ranges were kept, prints its centre."""
+    high, low = s.get("high_ppm"), s.get("low_ppm")
+    if s.get("multiplicity") == "m" and high is not None and low is not None:
+        a, b = f"{max(high, low):.2f}", f"{min(high, low):.2f}"
+        if a != b:
+            return f"{a}–{b}"
+    return f"{s['shift_ppm']:.2f}"
+
+
+def nmr_resolution_note(nmr: dict[str, Any]) -> str:
+    """What the J digits of :func:`nmr_line` rest on, said beside the listing: the digital resolution
+    (spectral width over the number of points), the standard uncertainty of a J from two line positions
+    (resolution / sqrt 6, :mod:`server.analysis.nmr_spectrum`) and the digits it allows."""
+    res, err = nmr.get("resolution_Hz"), nmr.get("j_err_Hz")
+    if res is None or err is None:
+        return "No spectrometer frequency is known: no J is given in hertz."
+    decimals = decimals_within(err)
+    digits = ("so J is printed to 0.1 Hz" if decimals == 1 else "so J is printed in whole hertz" if decimals == 0
+              else "too coarse for J to be printed")
+    return (f"Digital resolution {res:.2g} Hz per point ({nmr.get('points')} points); a J from two line "
+            f"positions is known to {err:.2g} Hz, {digits}.")
+
+
 def nmr_line(nmr: dict[str, Any], *, markdown: bool = False) -> str:
     """``1H NMR (400 MHz, CDCl3, 298 K): δ 7.26 (d, J = 8.4 Hz, 2H), 3.95 (s, 18H).`` from a stored
     ``nmr_spectrum`` result (or one with a person's edit laid over it): the sample's signals downfield first,
-    shifts to two decimals, the multiplicity and J (:func:`_coupling_words`), integrals in whole atoms (as
+    shifts to two decimals (an m as its range, :func:`_shift_words`), the multiplicity and J (:func:`_coupling_words`), integrals in whole atoms (as
     journals print them; the fraction when no structure scaled them). A result stored before multiplicities
     were analysed prints none."""
     head = [f"{nmr['spectrometer_MHz']:.0f} MHz" if nmr.get("spectrometer_MHz") else "",
@@ -99,7 +126,7 @@ def nmr_line(nmr: dict[str, Any], *, markdown: bool = False) -> str:
                   if s.get("integral_rel") is not None else "")
         words = [_coupling_words(s, nmr.get("j_err_Hz")) if s.get("multiplicity") else "", amount]
         inner = ", ".join(w for w in words if w)
-        signals.append(f"{s['shift_ppm']:.2f}" + (f" ({inner})" if inner else ""))
+        signals.append(_shift_words(s) + (f" ({inner})" if inner else ""))
     inner = ", ".join(p for p in head if p)
     return (f"{_nucleus_words(nmr.get('nucleus'), markdown)} NMR{f' ({inner})' if inner else ''}: "
             f"δ {', '.join(signals) if signals else 'no signal of the sample'}.")
@@ -158,12 +185,14 @@ def identity_summary(session: Session, batch: Batch, *, formula: Optional[str]) 
               "evidence contradicts the structure" if not all(passes) else
               "HRMS and elemental analysis agree" if len(passes) == 2 else "partial evidence agrees")
     out: dict[str, Any] = {"batch": batch.code, "status": status, "evidence": evidence,
-                           "identity_confirmed": batch.identity_confirmed, "si_text": None, "si_markdown": None}
+                           "identity_confirmed": batch.identity_confirmed, "si_text": None, "si_markdown": None,
+                           "si_nmr_note": None}
     if formula is not None and (passes or nmr):
         h, e = (hrms.results if hrms else None), (ea.results if ea else None)
         n = corrections.effective_results(nmr.results, nmr.correction) if nmr else None  # a person's peak list wins
         out["si_text"] = si_paragraph(formula, h, e, nmr=n)
         out["si_markdown"] = si_paragraph(formula, h, e, markdown=True, nmr=n)
+        out["si_nmr_note"] = nmr_resolution_note(n) if n else None
     return out
 
 

@@ -88,7 +88,8 @@ def test_an_edit_is_a_correction_beside_the_automatic_analysis(client, session, 
     ({"signals": [EDIT[0], {**EDIT[1], "from_ppm": 4.10}], "reason": "x"}, "signals[1].from_ppm"),  # overlap
     ({"signals": EDIT, "reason": "  "}, "reason"),
     ({"signals": [{**EDIT[0], "j_Hz": [7.1, 2.0]}], "reason": "x"}, "signals[0].j_Hz"),  # a q has one J
-    ({"signals": [{**EDIT[0], "multiplicity": "dt"}], "reason": "x"}, "signals[0].multiplicity"),
+    ({"signals": [{**EDIT[0], "multiplicity": "ddt"}], "reason": "x"}, "signals[0].multiplicity"),  # 3 J: not named
+    ({"signals": [{**EDIT[0], "multiplicity": "dt"}], "reason": "x"}, "signals[0].j_Hz"),  # a dt has two J
     ({"signals": [{**EDIT[0], "to_ppm": 40.0}], "reason": "x"}, "signals[0].from_ppm"),  # outside the spectrum
     ({"signals": [{**EDIT[0], "n_H": "two"}], "reason": "x"}, "signals[0].n_H"),
     ({"signals": [], "reason": "x"}, "signals"),
@@ -149,3 +150,16 @@ def test_an_embargoed_compound_s_edit_is_withheld_from_an_upload_token(client, s
     assert seen["correction"] is None and seen["results"] == {}
     assert client.post(f"/api/v1/measurements/{r.json()['id']}/signals/revert", json={"reason": "x"},
                        headers=uploader).status_code == 403
+
+
+def test_a_person_s_multiplet_prints_as_the_range_of_the_lines_in_its_region(client, session, writer, uploader):  # noqa: F811
+    # the quartet called m by hand: its stored lines lie at 4.12 ± 1.5 x 7.1 Hz (± 0.0266 ppm at 400.13 MHz)
+    code, old = _spectrum(client, writer, uploader)
+    edit = [{**EDIT[0], "multiplicity": "m", "j_Hz": []}, EDIT[1], EDIT[2]]
+    r = client.post(f"/api/v1/measurements/{old['id']}/signals", json={"signals": edit, "reason": "overlap"},
+                    headers=writer)
+    assert r.status_code == 201, r.text
+    m = r.json()["correction"]["results"]["signals"][0]
+    assert (m["high_ppm"], m["low_ppm"]) == pytest.approx((4.12 + 0.0266, 4.12 - 0.0266), abs=0.001)
+    si = client.get(f"/api/v1/batches/{code}/identity", headers=writer).json()
+    assert "δ 4.15–4.09 (m, 2H), 2.05 (s, 3H), 1.26 (t, J = 7.1 Hz, 3H)." in si["si_text"]

@@ -74,6 +74,9 @@ def test_identity_summary_si_line_and_batch_page(client, session, batch, uploade
     page = soup(client.get(f"/batches/{batch}").text)
     row = page.select_one("#identity-evidence tr[data-kind=nmr_spectrum]")
     assert row is not None and "1 signals" in row.text and "1 environments" in row.text
+    # the listing states the digital resolution its J digits rest on: 13 ppm x 500.13 MHz / 32767 = 0.198 Hz
+    note = page.select_one("#si-nmr-note").text
+    assert note == got["si_nmr_note"] and "0.2 Hz per point (32768 points)" in note and "to 0.1 Hz" in note
 
 
 def test_an_embargoed_compound_shows_no_expected_count(client, session, uploader):  # noqa: F811

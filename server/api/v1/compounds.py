@@ -240,6 +240,8 @@ class BatchIdentityOut(Closed):
     identity_confirmed: bool
     si_text: Optional[str]
     si_markdown: Optional[str]
+    si_nmr_note: Optional[str] = Field(
+        None, description="the NMR spectrum's digital resolution behind the J digits of the SI line")
     confirmation: Optional[ConfirmationOut]
 
 

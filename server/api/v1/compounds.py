@@ -240,6 +240,7 @@ class BatchIdentityOut(Closed):
     identity_confirmed: bool
     si_text: Optional[str]
     si_markdown: Optional[str]
+    si_nmr_note: Optional[str] = None  # the NMR spectrum's digital resolution and the J digits it allows
     confirmation: Optional[ConfirmationOut]
 
 

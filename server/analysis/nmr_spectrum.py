@@ -21,11 +21,17 @@ to n1 and n2 protons make a tree of (n1 + 1)(n2 + 1) lines whose intensities are
 Pascal rows (a doublet of doublets, dt, td, tt, dq, qd, ...; Friebolin 2010, ch. 4, "first-order spectra";
 T. D. W. Claridge, *High-Resolution NMR Techniques in Organic Chemistry*, 3rd ed., Elsevier 2016, ch. 2 and
 4; named largest J first as in E. Pretsch et al., *Structure Determination of Organic Compounds*, 4th ed.,
-Springer 2009; recalled from memory).
+Springer 2009; recalled from memory). Three different couplings make the next level of the same tree
+(ddd, ddt, dtd, tdd, dtt, tdt, ttd, ttt), read by the same rules: T. R. Hoye, P. R. Hanson and J. R. Vos,
+"A Practical Guide to First-Order Multiplet Analysis in 1H NMR Spectroscopy", J. Org. Chem. 59, 4096-4103
+(1994), recalled from memory.
 A pattern is called only when the lines are resolved, equally spaced within the digital resolution and
 their intensities match the pattern; anything else is "m" with the reason, never a guess. J is the line
-spacing in Hz (ppm times the observe frequency), its uncertainty that of the difference of two positions
-each known to one data point (a rectangular distribution of one point's width, GUM 4.3.7: u = Δ/√6).
+spacing in Hz (ppm times the observe frequency). Its standard uncertainty (per signal, ``j_err_Hz``) combines
+in quadrature (GUM, JCGM 100:2008, 5.1.2) that of the line positions from the Lorentzian fit's covariance
+(:func:`_fit_lines`, propagated linearly to each J) with the digital resolution's: the difference of two
+positions each known to one data point (a rectangular distribution of one point's width, GUM 4.3.7:
+u = Δ/√6; the spectrum's ``j_err_Hz``, which alone stands for a J a person enters).
 """
 
 from __future__ import annotations
@@ -44,9 +50,11 @@ from server.errors import AnalysisError
 
 METHOD = ("Peak picking above 5 noise standard deviations, lines within 20 Hz grouped into signals and integrated "
           "over their regions (Friebolin 2010); multiplicity and J by the first-order rules (n + 1 lines, Pascal "
-          "intensities; two-coupling trees dd, dt, td, tt, dq, qd, ...; Friebolin 2010, Claridge 2016), otherwise m; residual solvent shifts "
+          "intensities; two-coupling trees dd, dt, td, tt, dq, qd, ... and three-coupling trees ddd, ddt, dtd, ...; Friebolin 2010, "
+          "Claridge 2016, Hoye et al. 1994), otherwise m; J uncertainty from the Lorentzian line fit's covariance "
+          "combined with the digital resolution; residual solvent shifts "
           "from Gottlieb et al. (1997); expected environments from RDKit topological symmetry classes")
-VERSION = "nmr_spectrum/1.2"
+VERSION = "nmr_spectrum/1.3"
 
 #: A line must stand this many noise standard deviations above the baseline (common practice: a limit of
 #: detection of 3 sigma, raised to 5 because a spectrum has thousands of points and 3 sigma noise spikes).
@@ -76,7 +84,15 @@ BINOMIAL_NAMES = {1: "d", 2: "t", 3: "q", 4: "quint", 5: "sext", 6: "sept"}
 #: smaller), as journals print them (Friebolin 2010 ch. 4; Pretsch et al., *Structure Determination of
 #: Organic Compounds*, 4th ed. 2009, ch. 5; recalled from memory). (name, n_large, n_small).
 TREES = tuple((BINOMIAL_NAMES[a] + BINOMIAL_NAMES[b], a, b) for a in (1, 2, 3) for b in (1, 2, 3))
-MULTIPLICITIES = ("s", "d", "t", "q", "quint", "sext", "sept") + tuple(t[0] for t in TREES) + ("m",)
+#: Three distinct couplings, each to one or two equivalent protons (ddd, ddt, dtd, tdd, dtt, tdt, ttd, ttt):
+#: the same tree one level deeper, named largest J first ("ddt": doublets of the two larger J, triplets of the
+#: smallest; T. R. Hoye, P. R. Hanson and J. R. Vos, "A Practical Guide to First-Order Multiplet Analysis in 1H
+#: NMR Spectroscopy", J. Org. Chem. 59, 4096-4103 (1994); Friebolin 2010 ch. 4; recalled from memory).
+#: (name, n_1, n_2, n_3) in order of falling J.
+TREES3 = tuple((BINOMIAL_NAMES[a] + BINOMIAL_NAMES[b] + BINOMIAL_NAMES[c], a, b, c)
+               for a in (1, 2) for b in (1, 2) for c in (1, 2))
+MULTIPLICITIES = (("s", "d", "t", "q", "quint", "sext", "sept") + tuple(t[0] for t in TREES)
+                  + tuple(t[0] for t in TREES3) + ("m",))
 #: Lines closer than this many line widths (FWHM) are not resolved well enough for a call (two equal
 #: Lorentzians show a dip from 0.58 FWHM apart; a whole width is asked for, common practice).
 RESOLVED_FWHM = 1.0
@@ -107,6 +123,9 @@ class NmrSignal(Result):
     assigned: str = ""  # "solvent residual", "water", "TMS" or "" (the sample)
     multiplicity: str = "m"  # one of MULTIPLICITIES
     j_Hz: tuple[float, ...] = ()  # coupling constants from the line spacings, largest first (none for s and m)
+    #: each J's standard uncertainty: that of the line fit (:func:`_fit_lines`) and the digital resolution's
+    #: (resolution / sqrt 6) combined in quadrature (GUM 5.1.2); empty without J
+    j_err_Hz: tuple[float, ...] = ()
     pattern: str = ""  # why the pattern was called "m" (empty when a first-order pattern was found)
     #: the signal's extent: its outermost lines, downfield and upfield (a single line: its half-height
     #: points); a multiplet (m) is printed as this range, high to low (ACS guidelines, common practice)
@@ -121,6 +140,8 @@ class Multiplet:
     multiplicity: str
     j_Hz: tuple[float, ...] = ()
     reason: str = ""
+    #: standard uncertainty of each J from the line positions' covariance (empty when none was given)
+    j_err_Hz: tuple[float, ...] = ()
 
 
 def _matches(intensities: np.ndarray, expected: np.ndarray) -> bool:
@@ -129,74 +150,101 @@ def _matches(intensities: np.ndarray, expected: np.ndarray) -> bool:
     return bool(np.all(np.abs(got - want) <= INTENSITY_TOL * want))
 
 
-def tree_lines(n_large: int, j_large_Hz: float, n_small: int, j_small_Hz: float, *,
-               merge_Hz: float = 0.0) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """The first-order coupling tree of one proton coupled to ``n_large`` equivalent protons by
-    ``j_large_Hz`` and to ``n_small`` others by ``j_small_Hz``: each coupling splits every line into n + 1
-    lines of the binomial intensities, so the tree is the convolution of the two Pascal rows (Friebolin
-    2010, ch. 4, coupling trees). Lines closer than ``merge_Hz`` stand as one (their intensities added, the
-    position their weighted mean), as an unresolved coincidence appears in a spectrum.
+def coupling_tree(couplings, *, merge_Hz: float = 0.0) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The first-order coupling tree of one proton coupled to ``n_i`` equivalent protons by ``J_i`` for each
+    ``(n_i, J_i)`` of ``couplings``: each coupling splits every line into n + 1 lines of the binomial
+    intensities, so the tree is the convolution of the Pascal rows (Friebolin 2010, ch. 4, coupling trees;
+    Hoye, Hanson and Vos, J. Org. Chem. 59, 4096 (1994)). Lines closer than ``merge_Hz`` stand as one (their
+    intensities added, the position their weighted mean), as an unresolved coincidence appears in a spectrum.
 
-    Returns (positions about the centre in Hz, intensities, and each line's coefficients of J_large and
-    J_small in its position), sorted by position.
+    Returns (positions about the centre in Hz, intensities, and each line's coefficients of the J in its
+    position, one column per coupling), sorted by position.
     """
-    a, b = np.meshgrid(np.arange(n_large + 1), np.arange(n_small + 1), indexing="ij")
-    cl, cs = (a - n_large / 2.0).ravel(), (b - n_small / 2.0).ravel()
-    w = np.array([comb(n_large, i) * comb(n_small, k) for i, k in zip(a.ravel(), b.ravel())], dtype=float)
-    pos = cl * j_large_Hz + cs * j_small_Hz
+    ns = [int(n) for n, _ in couplings]
+    js = np.array([float(j) for _, j in couplings])
+    grids = np.meshgrid(*[np.arange(n + 1) for n in ns], indexing="ij")
+    coef = np.column_stack([(g - n / 2.0).ravel() for g, n in zip(grids, ns)])
+    w = np.ones(coef.shape[0])
+    for g, n in zip(grids, ns):
+        w = w * np.array([comb(n, int(i)) for i in g.ravel()], dtype=float)
+    pos = coef @ js
     order = np.argsort(pos, kind="stable")
-    pos, w, cl, cs = pos[order], w[order], cl[order], cs[order]
+    pos, w, coef = pos[order], w[order], coef[order]
     groups: list[list[int]] = []
     for i in range(pos.size):
         if groups and pos[i] - pos[groups[-1][-1]] < merge_Hz:
             groups[-1].append(i)
         else:
             groups.append([i])
-    out = [(float(np.average(pos[g], weights=w[g])), float(w[g].sum()), float(np.average(cl[g], weights=w[g])),
-            float(np.average(cs[g], weights=w[g]))) for g in groups]
-    return tuple(np.array(col) for col in zip(*out))  # type: ignore[return-value]
+    return (np.array([np.average(pos[g], weights=w[g]) for g in groups]), np.array([w[g].sum() for g in groups]),
+            np.array([np.average(coef[g], axis=0, weights=w[g]) for g in groups]))
 
 
-def _trees(x: np.ndarray, h: np.ndarray, *, merge_Hz: float, tol_Hz: float) -> list[Multiplet]:
-    """Every two-coupling tree (:data:`TREES`) that the lines ``x`` (Hz, sorted) with heights ``h`` fit.
+def tree_lines(n_large: int, j_large_Hz: float, n_small: int, j_small_Hz: float, *,
+               merge_Hz: float = 0.0) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The two-coupling tree of :func:`coupling_tree`: (positions about the centre in Hz, intensities, and each
+    line's coefficients of J_large and of J_small in its position), sorted by position."""
+    pos, w, coef = coupling_tree(((n_large, j_large_Hz), (n_small, j_small_Hz)), merge_Hz=merge_Hz)
+    return pos, w, coef[:, 0], coef[:, 1]
 
-    The outermost line's neighbour lies one J_small away and one of the other lines one J_large away, so
-    J_small starts from the first spacing and J_large from each distance to the first line. For each start
-    the tree's lines are laid over the observed ones in order; the centre and both J are then refined by
-    linear least squares (each position is centre + c_L J_large + c_S J_small), and the tree fits when it
-    has as many lines as observed, every position agrees within ``tol_Hz``, J_large exceeds J_small by more
-    than that (otherwise the lines are one binomial pattern) and the intensities match the convolved
-    Pascal rows within :data:`INTENSITY_TOL`.
+
+def _j_errors(projection: np.ndarray, cov_Hz2: Optional[np.ndarray]) -> tuple[float, ...]:
+    """Standard uncertainties of J = projection @ positions from the positions' covariance (linear propagation,
+    GUM 5.2 with correlations); empty without a covariance."""
+    if cov_Hz2 is None:
+        return ()
+    var = np.einsum("ij,jk,ik->i", projection, cov_Hz2, projection)
+    return tuple(float(np.sqrt(max(v, 0.0))) for v in var)
+
+
+def _trees(x: np.ndarray, h: np.ndarray, *, merge_Hz: float, tol_Hz: float,
+           cov_Hz2: Optional[np.ndarray] = None) -> list[Multiplet]:
+    """Every two- and three-coupling tree (:data:`TREES`, :data:`TREES3`) that the lines ``x`` (Hz, sorted) with
+    heights ``h`` fit.
+
+    The outermost line's nearest neighbour lies one J_smallest away and other lines one of each larger J
+    away, so the smallest J starts from the first spacing and each larger J from a distance to the first
+    line (every ordered choice of them). For each start the tree's lines are laid over the observed ones in
+    order; the centre and the J are then refined by linear least squares (each position is centre + Σ c_i
+    J_i), and the tree fits when it has as many lines as observed, every position agrees within ``tol_Hz``,
+    each J exceeds the next smaller by more than that (otherwise the lines are a simpler pattern) and the
+    intensities match the convolved Pascal rows within :data:`INTENSITY_TOL` (Hoye, Hanson and Vos 1994:
+    a first-order multiplet is called from its line positions and intensities, never from a count alone).
     """
+    from itertools import combinations
+
     n = x.size
     found: dict[str, Multiplet] = {}
     j_small0 = float(x[1] - x[0])
-    for name, n_large, n_small in TREES:
-        if (n_large + 1) * (n_small + 1) < n or name in found:
+    shapes = [(t[0], t[1:]) for t in TREES] + [(t[0], t[1:]) for t in TREES3]
+    for name, ns in shapes:
+        if int(np.prod([k + 1 for k in ns])) < n or name in found:
             continue
-        for k in range(1, n):
-            j_large0 = float(x[k] - x[0])
-            if j_large0 <= j_small0 + tol_Hz:
+        for ks in combinations(range(1, n), len(ns) - 1):
+            starts = [float(x[k] - x[0]) for k in reversed(ks)] + [j_small0]
+            if any(a <= b + tol_Hz for a, b in zip(starts, starts[1:])):
                 continue
-            pos, _, cl, cs = tree_lines(n_large, j_large0, n_small, j_small0, merge_Hz=merge_Hz)
+            pos, _, coef = coupling_tree(tuple(zip(ns, starts)), merge_Hz=merge_Hz)
             if pos.size != n:
                 continue
-            design = np.column_stack([np.ones(n), cl, cs])
-            if np.linalg.matrix_rank(design) < 3:
+            design = np.column_stack([np.ones(n), coef])
+            if np.linalg.matrix_rank(design) < design.shape[1]:
                 continue
-            centre, j_large, j_small = np.linalg.lstsq(design, x, rcond=None)[0]
-            if not 0 < j_small < j_large - tol_Hz:
+            projection = np.linalg.pinv(design)
+            sol = projection @ x
+            js = sol[1:]
+            if js[-1] <= 0 or any(a <= b + tol_Hz for a, b in zip(js, js[1:])):
                 continue
-            pos, w, _, _ = tree_lines(n_large, j_large, n_small, j_small, merge_Hz=merge_Hz)
-            if pos.size != n or np.max(np.abs(x - centre - pos)) > tol_Hz or not _matches(h, w):
+            pos, w, _ = coupling_tree(tuple(zip(ns, js)), merge_Hz=merge_Hz)
+            if pos.size != n or np.max(np.abs(x - sol[0] - pos)) > tol_Hz or not _matches(h, w):
                 continue
-            found[name] = Multiplet(name, (float(j_large), float(j_small)))
+            found[name] = Multiplet(name, tuple(float(j) for j in js), j_err_Hz=_j_errors(projection[1:], cov_Hz2))
             break
     return list(found.values())
 
 
 def multiplet(lines_Hz, heights, fwhm_Hz: float, *, resolution_Hz: float,
-              reference_fwhm_Hz: Optional[float] = None) -> Multiplet:
+              reference_fwhm_Hz: Optional[float] = None, cov_Hz2=None) -> Multiplet:
     """The first-order multiplicity of one signal from its lines, or "m" with the reason.
 
     Parameters
@@ -209,6 +257,9 @@ def multiplet(lines_Hz, heights, fwhm_Hz: float, *, resolution_Hz: float,
         Digital resolution: the spacing of the data points (Hz per point).
     reference_fwhm_Hz : float, optional
         The typical width of the spectrum's other lines: a single line much broader than it is "m", not "s".
+    cov_Hz2 : array, optional
+        Covariance matrix (Hz²) of ``lines_Hz`` (from the least-squares fit of the lines): each J's standard
+        uncertainty follows by linear propagation (``j_err_Hz``); without it ``j_err_Hz`` is empty.
 
     Returns
     -------
@@ -216,7 +267,8 @@ def multiplet(lines_Hz, heights, fwhm_Hz: float, *, resolution_Hz: float,
         ``s``; ``d``, ``t``, ``q``, ``quint``, ``sext``, ``sept`` (n + 1 equally spaced lines with the binomial
         intensities of n equivalent neighbours, J = span / n); a two-coupling tree of :data:`TREES`
         (``dd``, ``dt``, ``td``, ``tt``, ``dq``, ``qd``, ...: the convolution of two Pascal rows, lines that
-        coincide merged, :func:`tree_lines`), J largest first; ``m`` when no pattern or more than one fits.
+        coincide merged, :func:`tree_lines`) or a three-coupling tree of :data:`TREES3` (``ddd``, ``ddt``,
+        ``dtd``, ...), J largest first; ``m`` when no pattern or more than one fits.
 
     References
     ----------
@@ -224,12 +276,14 @@ def multiplet(lines_Hz, heights, fwhm_Hz: float, *, resolution_Hz: float,
     (first-order spectra, the n + 1 rule, Pascal's triangle); T. D. W. Claridge, *High-Resolution NMR
     Techniques in Organic Chemistry*, 3rd ed., Elsevier 2016, ch. 4 (coupling trees, the doublet of doublets);
     E. Pretsch, P. Bühlmann and M. Badertscher, *Structure Determination of Organic Compounds*, 4th ed.,
-    Springer 2009, ch. 5 (first-order multiplets named by their splittings, largest J first). Recalled from
-    memory.
+    Springer 2009, ch. 5 (first-order multiplets named by their splittings, largest J first); T. R. Hoye,
+    P. R. Hanson and J. R. Vos, J. Org. Chem. 59, 4096-4103 (1994) (first-order multiplet analysis of
+    three-coupling patterns such as ddd and ddt). Recalled from memory.
     """
     x = np.asarray(lines_Hz, dtype=float)
     order = np.argsort(x)
     x, h = x[order], np.asarray(heights, dtype=float)[order]
+    cov = None if cov_Hz2 is None else np.asarray(cov_Hz2, dtype=float)[np.ix_(order, order)]
     n = x.size
     if n == 1:
         if reference_fwhm_Hz and fwhm_Hz > BROAD_FACTOR * reference_fwhm_Hz:
@@ -248,9 +302,11 @@ def multiplet(lines_Hz, heights, fwhm_Hz: float, *, resolution_Hz: float,
 
     if n - 1 in BINOMIAL_NAMES and all(equal(g, gaps.mean()) for g in gaps):
         if _matches(h, np.array([comb(n - 1, k) for k in range(n)], dtype=float)):
-            return Multiplet(BINOMIAL_NAMES[n - 1], (float((x[-1] - x[0]) / (n - 1)),))
+            span = np.zeros((1, n))
+            span[0, 0], span[0, -1] = -1.0 / (n - 1), 1.0 / (n - 1)
+            return Multiplet(BINOMIAL_NAMES[n - 1], (float((x[-1] - x[0]) / (n - 1)),), j_err_Hz=_j_errors(span, cov))
     trees = _trees(x, h, merge_Hz=RESOLVED_FWHM * fwhm_Hz,
-                   tol_Hz=max(SPACING_POINTS * resolution_Hz, SPACING_REL * float(gaps[0])))
+                   tol_Hz=max(SPACING_POINTS * resolution_Hz, SPACING_REL * float(gaps[0])), cov_Hz2=cov)
     if len({t.multiplicity for t in trees}) == 1:
         return trees[0]
     if trees:
@@ -395,16 +451,24 @@ def _lorentzians(x_Hz: np.ndarray, centres_Hz: np.ndarray, fwhm_Hz: float) -> np
     return 1.0 / (1.0 + ((x_Hz[:, None] - centres_Hz[None, :]) / (fwhm_Hz / 2.0)) ** 2)
 
 
-def _fit_lines(hz: np.ndarray, yb: np.ndarray, lines_Hz: np.ndarray, fwhm_Hz: float) -> tuple[np.ndarray, np.ndarray, float]:
-    """(positions, heights, common FWHM) of one signal's lines by least squares of a sum of Lorentzians of
-    one width over every point within three widths of the lines (started from the picked lines): partly
-    overlapping lines pull each other's maxima, the fit does not, and the noise of single points averages
-    out (Levenberg-Marquardt-type fit, scipy.optimize.least_squares)."""
+def _fit_lines(hz: np.ndarray, yb: np.ndarray, lines_Hz: np.ndarray,
+               fwhm_Hz: float) -> tuple[np.ndarray, np.ndarray, float, Optional[np.ndarray]]:
+    """(positions, heights, common FWHM, covariance of the positions in Hz²) of one signal's lines by least
+    squares of a sum of Lorentzians of one width over every point within three widths of the lines (started
+    from the picked lines): partly overlapping lines pull each other's maxima, the fit does not, and the
+    noise of single points averages out (Levenberg-Marquardt-type fit, scipy.optimize.least_squares).
+
+    The covariance is the least-squares one, s² (JᵀJ)⁻¹ with J the Jacobian at the solution and s² the
+    residual variance (W. H. Press et al., *Numerical Recipes*, 3rd ed., Cambridge 2007, 15.5; GUM
+    annex H.3 for a fitted line): it assumes independent noise from point to point, as in a spectrum that is
+    not zero-filled; zero-filling and apodisation correlate neighbouring points and make it an
+    underestimate (common practice; the digital resolution is combined with it for the printed digits).
+    None when the fit failed, a line sits on its bound or the normal matrix is singular."""
     sel = (hz >= lines_Hz.min() - 3 * fwhm_Hz) & (hz <= lines_Hz.max() + 3 * fwhm_Hz)
     x, yv = hz[sel], yb[sel]
     n = lines_Hz.size
     if x.size < 2 * n + 2 or fwhm_Hz <= 0:
-        return lines_Hz, np.interp(lines_Hz, hz, yb), fwhm_Hz
+        return lines_Hz, np.interp(lines_Hz, hz, yb), fwhm_Hz, None
     start_amps = np.linalg.lstsq(_lorentzians(x, lines_Hz, fwhm_Hz), yv, rcond=None)[0]
 
     def resid(p):
@@ -416,9 +480,16 @@ def _fit_lines(hz: np.ndarray, yb: np.ndarray, lines_Hz: np.ndarray, fwhm_Hz: fl
                                     np.concatenate([lines_Hz + fwhm_Hz, np.full(n, np.inf), [fwhm_Hz * 4]])),
                             max_nfev=200)
     except (ValueError, np.linalg.LinAlgError):
-        return lines_Hz, start_amps, fwhm_Hz
+        return lines_Hz, start_amps, fwhm_Hz, None
     order = np.argsort(fit.x[:n])
-    return fit.x[:n][order], fit.x[n:2 * n][order], float(fit.x[-1])
+    cov = None
+    if not np.any(fit.active_mask[:n]) and x.size > fit.x.size:
+        s2 = 2.0 * float(fit.cost) / (x.size - fit.x.size)
+        try:
+            cov = s2 * np.linalg.inv(fit.jac.T @ fit.jac)[:n, :n][np.ix_(order, order)]
+        except np.linalg.LinAlgError:
+            cov = None
+    return fit.x[:n][order], fit.x[n:2 * n][order], float(fit.x[-1]), cov
 
 
 def _hidden_line(hz: np.ndarray, yb: np.ndarray, sd: float, lines_Hz: np.ndarray, amps: np.ndarray,
@@ -440,11 +511,18 @@ def _pattern(hz: np.ndarray, yb: np.ndarray, sd: float, lines_Hz: np.ndarray, fw
              reference_fwhm_Hz: float) -> Multiplet:
     """:func:`multiplet` of one signal's lines read from the spectrum, and "m" when a line of a larger pattern
     may hide in the noise beside it (a quartet whose outer lines are lost reads as a doublet)."""
+    cov = None
     if lines_Hz.size > 1:
-        lines_Hz, amps, fwhm_Hz = _fit_lines(hz, yb, lines_Hz, fwhm_Hz)
+        lines_Hz, amps, fwhm_Hz, cov = _fit_lines(hz, yb, lines_Hz, fwhm_Hz)
     else:
         amps = np.interp(lines_Hz, hz, yb)
-    pat = multiplet(lines_Hz, amps, fwhm_Hz, resolution_Hz=resolution_Hz, reference_fwhm_Hz=reference_fwhm_Hz)
+    pat = multiplet(lines_Hz, amps, fwhm_Hz, resolution_Hz=resolution_Hz, reference_fwhm_Hz=reference_fwhm_Hz,
+                    cov_Hz2=cov)
+    if pat.j_Hz and reference_fwhm_Hz and fwhm_Hz > BROAD_FACTOR * reference_fwhm_Hz:
+        # each line of the pattern may itself be an unresolved multiplet (a ddt whose small triplet splitting
+        # is under the line width reads as a dd of broad lines): as for a broad single line, no call
+        return Multiplet("m", reason=f"read as {pat.multiplicity}, but its lines are {fwhm_Hz:.1f} Hz wide, over "
+                                     f"{BROAD_FACTOR:g} times the spectrum's: a further coupling may be unresolved")
     if pat.j_Hz:
         hidden = _hidden_line(hz, yb, sd, lines_Hz, amps, fwhm_Hz, min(pat.j_Hz))
         if hidden is not None:
@@ -552,11 +630,13 @@ def analyse_nmr_spectrum(ppm: np.ndarray, y: np.ndarray, *, nucleus: Optional[st
     for g, (lo, hi), area, centre, tag, pat in zip(groups, bounds, areas, centres, tags, patterns):
         rel = area / sample_total if not tag and sample_total > 0 else None
         j = tuple(round(v, 3) for v in pat.j_Hz) if spectrometer_MHz else ()  # no J in Hz without the frequency
+        u_res = resolution / sqrt(6.0)
+        j_err = tuple(round(float(np.hypot(u, u_res)), 4) for u in (pat.j_err_Hz or (0.0,) * len(j)))[:len(j)]
         half_ppm = float(max(half[g])) * step / 2.0 if len(g) == 1 else 0.0
         signals.append(NmrSignal(shift_ppm=round(centre, 4), from_ppm=round(float(lo), 4), to_ppm=round(float(hi), 4),
                                  lines=len(g), integral_rel=rel,
                                  n_H=rel * count if rel is not None and count else None, assigned=tag,
-                                 multiplicity=pat.multiplicity, j_Hz=j, pattern=pat.reason,
+                                 multiplicity=pat.multiplicity, j_Hz=j, j_err_Hz=j_err, pattern=pat.reason,
                                  high_ppm=round(float(lines_ppm[g[-1]]) + half_ppm, 4),
                                  low_ppm=round(float(lines_ppm[g[0]]) - half_ppm, 4)))
     signals.sort(key=lambda s: -s.shift_ppm)  # as printed: downfield first

@@ -79,10 +79,10 @@ def _analyse(parsed: NmrFile, c, ctx):
 EDIT_KEYS = ("from_ppm", "to_ppm", "shift_ppm", "n_H", "multiplicity", "j_Hz", "label", "assigned")
 NOT_SAMPLE = ("", "solvent residual", "water", "TMS", "impurity")
 MAX_SIGNALS, MAX_LABEL, MAX_J_HZ = 100, 80, 40.0
-#: Couplings a multiplicity names (first-order: one J for n + 1 lines, two for a tree such as dd or dt, none
-#: for s and m).
+#: Couplings a multiplicity names (first-order: one J for n + 1 lines, two for a tree such as dd or dt, three
+#: for ddd, ddt, ..., none for s and m).
 J_COUNT = {"s": 0, "m": 0, **{name: 1 for name in nmr_spectrum.BINOMIAL_NAMES.values()},
-           **{name: 2 for name, _, _ in nmr_spectrum.TREES}}
+           **{name: 2 for name, _, _ in nmr_spectrum.TREES}, **{t[0]: 3 for t in nmr_spectrum.TREES3}}
 
 
 def _number(value, where: str, *, required: bool = False) -> Optional[float]:
@@ -209,7 +209,7 @@ KIND = Kind(
         ResultKey("points", "points"),
         ResultKey("noise_rel", "noise (of the tallest line)", "", 2),
         ResultKey("resolution_Hz", "digital resolution (per point)", "Hz", 2),
-        ResultKey("j_err_Hz", "J uncertainty (from the resolution)", "Hz", 2),
+        ResultKey("j_err_Hz", "J uncertainty (spectrum: the resolution's; signal: line fit and resolution)", "Hz", 2),
         ResultKey("peaks_ppm", "peak list", "ppm", 4),
         ResultKey("signals", "signals"),
         ResultKey("shift_ppm", "δ", "ppm", 3),

@@ -70,12 +70,22 @@ def _nucleus_words(nucleus: Optional[str], md: bool) -> str:
     return f"<sup>{m.group(1)}</sup>{m.group(2)}" if md else f"{m.group(1)}{m.group(2)}"
 
 
+def _j_uncertainty(s: dict[str, Any], j_err_Hz: Optional[float]) -> Optional[float]:
+    """The J uncertainty a signal's digits follow: the larger of the spectrum's (digital resolution) and the
+    signal's own (line fit and resolution, the largest of its J; absent for a J a person entered or a
+    result stored before it was kept)."""
+    own = [float(u) for u in (s.get("j_err_Hz") or ()) if u is not None]
+    known = [u for u in (j_err_Hz, max(own) if own else None) if u is not None]
+    return max(known) if known else None
+
+
 def _coupling_words(s: dict[str, Any], j_err_Hz: Optional[float]) -> str:
-    """``d, J = 8.4 Hz``, ``dd, J = 8.4, 2.1 Hz`` or ``s``; J only with the digits the digital resolution
-    allows (:func:`server.precision.decimals_within` of the J uncertainty: to 0.1 Hz when it is at most
-    0.1 Hz, whole hertz when at most 1 Hz, not printed beyond)."""
+    """``d, J = 8.4 Hz``, ``dd, J = 8.4, 2.1 Hz`` or ``s``; J only with the digits its uncertainty allows
+    (:func:`server.precision.decimals_within` of :func:`_j_uncertainty`, the larger of the resolution's and
+    the line fit's: to 0.1 Hz when it is at most 0.1 Hz, whole hertz when at most 1 Hz, not printed beyond),
+    every J of a signal with the same digits, as journals print them."""
     words = s["multiplicity"]
-    decimals = decimals_within(j_err_Hz)
+    decimals = decimals_within(_j_uncertainty(s, j_err_Hz))
     if s.get("j_Hz") and decimals is not None:
         words += f", J = {', '.join(f'{j:.{decimals}f}' for j in s['j_Hz'])} Hz"
     return words
@@ -104,8 +114,12 @@ def nmr_resolution_note(nmr: dict[str, Any]) -> str:
     decimals = decimals_within(err)
     digits = ("so J is printed to 0.1 Hz" if decimals == 1 else "so J is printed in whole hertz" if decimals == 0
               else "too coarse for J to be printed")
+    fewer = [s for s in nmr.get("signals") or () if not s.get("assigned") and s.get("j_Hz")
+             and decimals_within(_j_uncertainty(s, err)) != decimals]
+    noisy = (f" The line fit leaves J less sure for {len(fewer)} signal{'s' if len(fewer) > 1 else ''}: "
+             "printed with fewer digits." if fewer else "")
     return (f"Digital resolution {res:.2g} Hz per point ({nmr.get('points')} points); a J from two line "
-            f"positions is known to {err:.2g} Hz, {digits}.")
+            f"positions is known to {err:.2g} Hz, {digits}.{noisy}")
 
 
 def nmr_line(nmr: dict[str, Any], *, markdown: bool = False) -> str:

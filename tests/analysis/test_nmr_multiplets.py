@@ -250,3 +250,109 @@ def test_the_resolution_note_says_what_the_j_digits_rest_on():
     assert nmr_resolution_note(coarse).endswith("known to 0.26 Hz, so J is printed in whole hertz.")
     assert "too coarse" in nmr_resolution_note({"resolution_Hz": 4.0, "j_err_Hz": 1.6, "points": 2048})
     assert nmr_resolution_note({"resolution_Hz": None, "j_err_Hz": None}).startswith("No spectrometer frequency")
+
+
+# The J uncertainty from the line fit. A noisy dd (3 % noise of the tallest point, 1.2 Hz lines): the fit's
+# covariance, propagated to each J and combined with the resolution's 0.032 Hz, must cover the model's J.
+# The check outside the project is the normal distribution: 95 % of draws fall within 2 standard
+# uncertainties, so at least 80 % of 20 must (a binomial tail of about 1e-3 if the uncertainty were right).
+NOISY_DD = [Signal(7.50, 1, 1, 8.4, ((1, 2.1),)), Signal(3.80, 1)]
+
+
+def test_the_stated_j_uncertainty_covers_the_true_j_under_noise():
+    within = within_resolution_only = called = 0
+    for seed in range(100, 120):
+        r = _analyse(NOISY_DD, seed=seed, noise=0.03, fwhm=1.2)
+        dd = next(s for s in r.signals if abs(s.shift_ppm - 7.50) < 0.01)
+        if dd.multiplicity != "dd":
+            continue
+        called += 1
+        assert len(dd.j_err_Hz) == 2 and all(u > r.j_err_Hz for u in dd.j_err_Hz)  # the fit adds to the resolution
+        within += all(abs(j - t) <= 2 * u for j, t, u in zip(dd.j_Hz, (8.4, 2.1), dd.j_err_Hz))
+        within_resolution_only += all(abs(j - t) <= 2 * r.j_err_Hz for j, t in zip(dd.j_Hz, (8.4, 2.1)))
+    assert called >= 16
+    assert within >= 0.8 * called
+    # the resolution alone claims too much at this noise: it covers the J less often
+    assert within_resolution_only < within
+
+
+def test_noisy_lines_print_j_with_the_digits_the_fit_allows_a_clean_spectrum_with_0_1_hz():
+    clean = _analyse(EA, seed=3, noise=0.002, smiles="CC(=O)OCC")
+    q = _sample(clean)[0]
+    assert q.j_err_Hz[0] < 0.1 and "4.12 (q, J = 7.1 Hz, 2H)" in nmr_line(clean.to_dict())
+    # 24 000 points over 13 ppm (0.22 Hz per point: the resolution alone allows 0.1 Hz, u = 0.089 Hz), a
+    # doublet under 6 % noise on 2.5 Hz lines: the line fit adds enough that J prints in whole hertz
+    d = [Signal(7.50, 1, 1, 8.4), Signal(3.80, 1)]
+    for seed in range(200, 205):
+        noisy = _analyse(d, seed=seed, noise=0.06, fwhm=2.5, points=24000)
+        got = next(s for s in noisy.signals if abs(s.shift_ppm - 7.50) < 0.01)
+        if got.multiplicity != "d":
+            continue
+        assert decimals_within(noisy.j_err_Hz) == 1 and 0.1 < got.j_err_Hz[0] <= 1.0
+        assert abs(got.j_Hz[0] - 8.4) <= 2 * got.j_err_Hz[0]
+        assert "7.50 (d, J = 8 Hz" in nmr_line(noisy.to_dict()), nmr_line(noisy.to_dict())
+        assert "less sure for 1 signal" in nmr_resolution_note(noisy.to_dict())
+        # a J a person entered has no fit: the resolution's uncertainty alone sets its digits
+        edited = {**noisy.to_dict(), "signals": [{**got.to_dict(), "j_Hz": [8.4], "j_err_Hz": []}]}
+        assert "(d, J = 8.4 Hz" in nmr_line(edited)
+        break
+    else:
+        pytest.fail("no draw gave a doublet")
+
+
+# Three distinct couplings (T. R. Hoye, P. R. Hanson and J. R. Vos, J. Org. Chem. 59, 4096 (1994); Friebolin
+# 2010 ch. 4; named largest J first; recalled from memory). Real-world J (common textbook values, from
+# memory): a ddd of an H with a trans (10.2 Hz), a cis-type (6.5 Hz) and a long-range (2.1 Hz) neighbour; a
+# ddt of a vinyl H (trans 15.8, 6.5 to one H and 2.5 Hz allylic to a CH2); a dtd (13.5 Hz geminal-size
+# coupling, 4.2 Hz to two equivalent H, 1.8 Hz long-range).
+TREES_3 = [("ddd", Signal(5.50, 1, 1, 10.2, ((1, 6.5), (1, 2.1))), (10.2, 6.5, 2.1)),
+           ("ddt", Signal(4.50, 1, 1, 15.8, ((1, 6.5), (2, 2.5))), (15.8, 6.5, 2.5)),
+           ("dtd", Signal(6.50, 1, 1, 13.5, ((2, 4.2), (1, 1.8))), (13.5, 4.2, 1.8))]
+
+
+def test_three_coupling_trees_are_named_with_three_j():
+    # 0.5 % noise of a 1H singlet (a signal-to-noise of 200, a routine 1H spectrum), 1 Hz lines, eight draws:
+    # the weakest line of a ddt is 1/16 of the proton; each tree is named with its J within 0.15 Hz
+    right = 0
+    for seed in range(1, 9):
+        r = _analyse([s for _, s, _ in TREES_3] + [Signal(3.80, 1)], seed=seed, noise=0.005, fwhm=1.0, points=32768)
+        for name, sig, j in TREES_3:
+            got = next(s for s in r.signals if abs(s.shift_ppm - sig.shift_ppm) < 0.01)
+            assert got.multiplicity in (name, "m"), (name, got)
+            if got.multiplicity == name:
+                right += 1
+                assert got.j_Hz == pytest.approx(j, abs=0.15) and len(got.j_err_Hz) == 3
+                assert all(abs(a - b) <= 3 * u for a, b, u in zip(got.j_Hz, j, got.j_err_Hz))
+    assert right >= 0.85 * 8 * len(TREES_3)
+    line = nmr_line(r.to_dict())
+    assert "5.50 (ddd, J = 10.2, 6.5, 2.1 Hz" in line or "5.50 (m" in line, line
+
+
+def test_an_unresolved_third_coupling_stays_m_never_a_dd():
+    # a ddt whose triplet splitting (1.2 Hz) is under the 1 Hz lines' resolution limit: each dd line is a
+    # broad unresolved triplet, so the pattern is m, not a dd of broad lines; and a ddd leaning towards a
+    # partner (a roof from 0.5 to 1.5, second order) is m too
+    ddd = Signal(6.2, 1, 1, 10.2, ((1, 6.5), (1, 2.1))).lines_Hz(400.0)
+    lean = [(x / 400.0, w * (0.5 + (x - ddd[0][0]) / (ddd[-1][0] - ddd[0][0]))) for x, w in ddd]
+    for seed in (1, 2, 3, 4):
+        r = _analyse([Signal(3.00, 1, 1, 15.8, ((1, 6.5), (2, 1.2))), Signal(3.80, 1)], seed=seed, noise=0.005,
+                     fwhm=1.0, points=32768, lines=lean)
+        for at in (3.00, 6.20):
+            got = next(s for s in r.signals if abs(s.shift_ppm - at) < 0.02)
+            assert got.multiplicity == "m" and got.j_Hz == () and got.pattern, (at, got)
+
+
+@pytest.mark.parametrize("name", [t[0] for t in __import__("server.analysis.nmr_spectrum", fromlist=["TREES3"]).TREES3])
+def test_three_coupling_trees_from_their_stick_lines(name):
+    from server.analysis.nmr_spectrum import TREES3, coupling_tree
+
+    ns = next(t[1:] for t in TREES3 if t[0] == name)
+    rng = np.random.default_rng(41)
+    pos, w, _ = coupling_tree(tuple(zip(ns, (12.0, 5.3, 1.9))), merge_Hz=0.9)
+    for _ in range(10):
+        got = multiplet(pos + rng.normal(0, 0.03, pos.size), w * (1 + rng.normal(0, 0.04, w.size)), 0.9,
+                        resolution_Hz=0.1)
+        assert got.multiplicity == name and got.j_Hz == pytest.approx((12.0, 5.3, 1.9), abs=0.1)
+    # a ddd is eight equal lines: with the same positions but 1:3:3:1-like heights it is no first-order tree
+    if name == "ddd":
+        assert multiplet(pos, [1, 3, 3, 1, 1, 3, 3, 1], 0.9, resolution_Hz=0.1).multiplicity == "m"

@@ -88,7 +88,8 @@ def test_an_edit_is_a_correction_beside_the_automatic_analysis(client, session, 
     ({"signals": [EDIT[0], {**EDIT[1], "from_ppm": 4.10}], "reason": "x"}, "signals[1].from_ppm"),  # overlap
     ({"signals": EDIT, "reason": "  "}, "reason"),
     ({"signals": [{**EDIT[0], "j_Hz": [7.1, 2.0]}], "reason": "x"}, "signals[0].j_Hz"),  # a q has one J
-    ({"signals": [{**EDIT[0], "multiplicity": "ddt"}], "reason": "x"}, "signals[0].multiplicity"),  # 3 J: not named
+    ({"signals": [{**EDIT[0], "multiplicity": "dddd"}], "reason": "x"}, "signals[0].multiplicity"),  # 4 J: not named
+    ({"signals": [{**EDIT[0], "multiplicity": "ddt"}], "reason": "x"}, "signals[0].j_Hz"),  # a ddt has three J
     ({"signals": [{**EDIT[0], "multiplicity": "dt"}], "reason": "x"}, "signals[0].j_Hz"),  # a dt has two J
     ({"signals": [{**EDIT[0], "to_ppm": 40.0}], "reason": "x"}, "signals[0].from_ppm"),  # outside the spectrum
     ({"signals": [{**EDIT[0], "n_H": "two"}], "reason": "x"}, "signals[0].n_H"),

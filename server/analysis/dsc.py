@@ -86,6 +86,7 @@ class DscPeak(Result):
     dh_err_J_g: float | None = None
     dh_err_kJ_mol: float | None = None
     ds_err_J_molK: float | None = None
+    n_states_err: float | None = None
 
 
 @dataclass(frozen=True)
@@ -282,7 +283,8 @@ def analyse_dsc(
       the anchor values come from a straight line through 7 samples at each end. A
       sigmoidal baseline (for a heat-capacity step across the peak) enters the uncertainty only.
     * Uncertainty of dH (``dh_err_J_g``, ``dh_err_kJ_mol``; ``ds_err_J_molK`` = dh_err/T_peak, the error of
-      T_peak, a tenth of a kelvin in some hundreds, being negligible): two parts added in quadrature.
+      T_peak, a tenth of a kelvin in some hundreds, being negligible; ``n_states_err`` = N dS_err / R):
+      two parts added in quadrature.
       (i) Baseline choice: the peak is integrated again with the limits moved by half its FWHM
       (both out, both in, both left, both right) and over a sigmoidal baseline, which runs from the
       pre-transition line to the post-transition line in proportion to the fraction transformed, iterated
@@ -594,18 +596,19 @@ def _analyse_segment(
                 Flag("no_onset", f"Segment {seg}: no leading edge to draw an onset tangent near {T[pk]:.1f} K.")
             )
         dh_err = _dh_uncertainty(T, y, x, s, e, pk, width_K, noise, left_lim, right_lim)
-        dh_mol = ds = nst = ds_err = None
+        dh_mol = ds = nst = ds_err = nst_err = None
         if molar_mass is not None:
             dh_mol = dh * molar_mass  # J/mol
             ds = transition_entropy_J_molK(dh_mol, float(T[pk]))
             ds_err = dh_err * molar_mass / float(T[pk])
             nst = boltzmann_states(ds)
+            nst_err = nst * ds_err / R_J_MOLK  # dN = N d|dS| / R
             if nst > MAX_ORIENTATIONAL_STATES:
                 flags.append(Flag("entropy_too_large_for_orientations",
                                   f"Segment {seg}: |dS| = {abs(ds):.0f} J/(mol K) at {T[pk]:.1f} K is too large for an "
                                   f"orientational count (N would be {nst:.0f} > {MAX_ORIENTATIONAL_STATES:g}); N is "
                                   "not reported"))
-                nst = None
+                nst = nst_err = None
         peaks.append(
             DscPeak(
                 segment=seg,
@@ -623,6 +626,7 @@ def _analyse_segment(
                 dh_err_J_g=dh_err,
                 dh_err_kJ_mol=dh_err * molar_mass / 1e3 if molar_mass is not None else None,
                 ds_err_J_molK=ds_err,
+                n_states_err=nst_err,
             )
         )
         curves.append(

@@ -105,7 +105,7 @@ def _transition_row(p: dict[str, Any], partner: list[dict[str, Any]], heating_ma
         dh.append(Line("", p.get("dh_J_g"), _digits("dh_J_g"), "J/g", p.get("dh_err_J_g")))
     ds = [Line("", p.get("ds_J_molK"), _digits("ds_J_molK"), err=p.get("ds_err_J_molK"))]
     if p.get("n_states") is not None:
-        ds.append(Line("N", p["n_states"], _digits("n_states")))
+        ds.append(Line("N", p["n_states"], _digits("n_states"), err=p.get("n_states_err")))
     t = [Line("onset", p.get("onset_K"), _digits("onset_K")), Line("peak", p["peak_K"], _digits("peak_K"))]
     return (tuple(head), tuple(t), tuple(dh), tuple(ds),
             _partner_lines(p, partner, dh_key, dh_unit, heating_main, cooled))
@@ -201,6 +201,7 @@ KIND = Kind(
         ResultKey("dh_err_J_g", "ΔH uncertainty", "J/g", 2),
         ResultKey("dh_err_kJ_mol", "ΔH uncertainty", "kJ/mol", 2),
         ResultKey("ds_err_J_molK", "ΔS uncertainty", "J/(mol K)", 2),
+        ResultKey("n_states_err", "N uncertainty", "", 2),
         ResultKey("n_states", "N in ΔS = R ln N (orientational states)", "", 3),
         ResultKey("index", "scan"),
         ResultKey("t_start_K", "from", "K", 4),

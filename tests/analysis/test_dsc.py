@@ -18,6 +18,7 @@ import pandas as pd
 import pytest
 
 from server.analysis.dsc import METHOD, VERSION, analyse_dsc, boltzmann_states, transition_entropy_J_molK
+from server.analysis.constants import R_J_MOLK
 from server.errors import AnalysisError
 from server.ingest.conditions import parse_conditions
 from server.ingest.table import read_table, to_csv_bytes
@@ -317,6 +318,8 @@ def test_dh_uncertainty_propagates_to_molar_values_and_entropy():
     p = _noisy_step_run(0.03, 7)
     assert p.dh_err_kJ_mol == pytest.approx(p.dh_err_J_g * UNC_M_G_MOL / 1e3, rel=1e-12)
     assert p.ds_err_J_molK == pytest.approx(p.dh_err_kJ_mol * 1e3 / p.peak_K, rel=1e-12)  # dS = dH/T
+    # N = exp(|dS|/R): dN = N ddS / R; 6 J/g x 444.48 g/mol / 400 K = 6.7 J/(mol K), N about 2.2
+    assert p.n_states_err == pytest.approx(p.n_states * p.ds_err_J_molK / R_J_MOLK, rel=1e-12)
     d = p.to_dict()
     assert {"dh_err_J_g", "dh_err_kJ_mol", "ds_err_J_molK"} <= d.keys()
 
@@ -327,6 +330,6 @@ def test_dh_uncertainty_without_molar_mass_and_on_a_clean_trace():
     exponential tail left below the return level (RETURN_REL), a bias the limit moves barely see."""
     res = analyse_dsc(canonical(indium_run(noise_mW=0.0005)), mass_mg=6.0, rate_K_min=10.0)
     [p] = res.peaks
-    assert p.dh_err_kJ_mol is None and p.ds_err_J_molK is None
+    assert p.dh_err_kJ_mol is None and p.ds_err_J_molK is None and p.n_states_err is None
     assert 0 < p.dh_err_J_g < 0.005 * IN_DH_J_G
     assert abs(p.dh_J_g - IN_DH_J_G) < 0.002 * IN_DH_J_G

@@ -137,7 +137,7 @@ def _transitions(results: Mapping[str, Any]) -> Optional[CompactTable]:
         note=(f"Paired as the phase model pairs them: a cooling peak of the opposite heat at most "
               f"{PAIR_MAX_HYSTERESIS_K:g} K below its heating peak; hysteresis is the heating minus the cooling "
               f"peak temperature. ΔH and ΔS are given ± their standard uncertainty: the spread over baseline "
-              f"choices and the noise of the trace, calibration and sample mass not included."))
+              f"choices, the noise of the trace and its sampling; calibration and sample mass not included."))
 
 
 def _scans(results: Mapping[str, Any]) -> Optional[CompactTable]:

@@ -646,6 +646,7 @@ def _analyse_segment(
                 "peak_K": float(T[pk]),
                 "peak_W_g": float(y[pk]),
                 "dh_J_g": dh,
+                "dh_err_J_g": dh_err,
                 "onset": onset_info,
             }
         )

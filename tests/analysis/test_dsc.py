@@ -345,3 +345,18 @@ def test_dh_uncertainty_includes_the_sampling_of_a_sharp_melting_peak():
     [p] = analyse_dsc(canonical(frame), mass_mg=5.0, rate_K_min=10.0).peaks
     assert abs(p.dh_J_g - 90.0) > 0.0005 * 90.0  # the sampling error is there
     assert abs(p.dh_J_g - 90.0) <= p.dh_err_J_g < 0.005 * 90.0
+
+
+def test_figure_labels_print_dh_to_its_uncertainty():
+    """The figure's peak labels print ΔH ± u with the digits following u (server.precision.value_text)."""
+    from server.plots.dsc import dsc_figure
+
+    frame = dsc_trace([{"t_K": 400.0, "dh_J_g": 6.0, "width_K": 4.0, "kind": "gaussian"}], t_start_K=360.0,
+                      t_end_K=440.0, mass_mg=5.0, noise_mW=0.004, rng=np.random.default_rng(4), sample_interval_s=1.0)
+    res = analyse_dsc(canonical(frame), mass_mg=5.0, rate_K_min=10.0)
+    [p] = res.peaks
+    from server.precision import with_uncertainty
+
+    value, err = with_uncertainty(p.dh_J_g, p.dh_err_J_g)
+    names = [t.name for t in dsc_figure(res).data if t.name and t.name.startswith("ΔH")]
+    assert names == [f"ΔH = {value} ± {err} J/g"]

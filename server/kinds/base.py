@@ -84,12 +84,16 @@ def evidence_at_measured_temperature(results: Mapping[str, Any], temperature_K: 
 @dataclass(frozen=True)
 class Line:
     """One line of a compact cell: a label, a value printed to ``digits`` significant digits (text passes
-    unchanged; None prints the label alone) and its unit as declared (the page prints it as the trade does)."""
+    unchanged; None prints the label alone), its standard uncertainty if known, and its unit as declared (the page
+    prints it as the trade does)."""
 
     label: str
     value: Any = None
     digits: int = 4
     unit: str = ""
+    #: The value's standard uncertainty, same unit: printed as ``value ± err``, the digits following it
+    #: (:func:`server.precision.with_uncertainty`); None keeps ``digits`` significant digits.
+    err: Any = None
 
 
 @dataclass(frozen=True)

@@ -10,6 +10,7 @@ from scipy.constants import R as R_J_MOLK  # CODATA 2018
 from ..analysis import dsc
 from ..analysis.phases import MELTING_DS_J_MOLK, PAIR_MAX_HYSTERESIS_K, ThermalPeak, pair_dsc
 from ..plots.dsc import dsc_figure
+from ..precision import error_key
 from ..synth.dsc import dsc_trace
 from .base import EXAMPLE_SMILES, CompactTable, Evidence, Example, Kind, Line, Need, ResultKey, example_csv, rng_for
 
@@ -87,7 +88,7 @@ def _partner_lines(main: dict[str, Any], partner: list[dict[str, Any]], dh_key: 
         scan = f" (scan {c.get('segment')})" if len(partner) > 1 else ""
         dt = main["peak_K"] - c["peak_K"]
         lines += [Line(f"peak{scan}", c["peak_K"], _digits("peak_K"), "K"),
-                  Line(_label(dh_key), c.get(dh_key), _digits(dh_key), dh_unit),
+                  Line(_label(dh_key), c.get(dh_key), _digits(dh_key), dh_unit, c.get(error_key(dh_key, c) or "")),
                   Line("hysteresis", dt, _difference_digits(dt), "K")]
     return tuple(lines)
 
@@ -99,12 +100,12 @@ def _transition_row(p: dict[str, Any], partner: list[dict[str, Any]], heating_ma
             Line(f"{p.get('segment_direction') or 'heating'}, {'exo' if p.get('direction') == 'exo' else 'endo'}thermic")]
     if looks_like_melting(p):
         head.append(Line("taken as melting"))
-    dh = [Line("", p.get(dh_key), _digits(dh_key))]
+    dh = [Line("", p.get(dh_key), _digits(dh_key), err=p.get(error_key(dh_key, p) or ""))]
     if dh_key != "dh_J_g":
-        dh.append(Line("", p.get("dh_J_g"), _digits("dh_J_g"), "J/g"))
-    ds = [Line("", p.get("ds_J_molK"), _digits("ds_J_molK"))]
+        dh.append(Line("", p.get("dh_J_g"), _digits("dh_J_g"), "J/g", p.get("dh_err_J_g")))
+    ds = [Line("", p.get("ds_J_molK"), _digits("ds_J_molK"), err=p.get("ds_err_J_molK"))]
     if p.get("n_states") is not None:
-        ds.append(Line("N", p["n_states"], _digits("n_states")))
+        ds.append(Line("N", p["n_states"], _digits("n_states"), err=p.get("n_states_err")))
     t = [Line("onset", p.get("onset_K"), _digits("onset_K")), Line("peak", p["peak_K"], _digits("peak_K"))]
     return (tuple(head), tuple(t), tuple(dh), tuple(ds),
             _partner_lines(p, partner, dh_key, dh_unit, heating_main, cooled))
@@ -135,7 +136,8 @@ def _transitions(results: Mapping[str, Any]) -> Optional[CompactTable]:
         rows=tuple(_transition_row(p, partner, heating, dh_key, cooled) for p, partner, heating in rows),
         note=(f"Paired as the phase model pairs them: a cooling peak of the opposite heat at most "
               f"{PAIR_MAX_HYSTERESIS_K:g} K below its heating peak; hysteresis is the heating minus the cooling "
-              f"peak temperature."))
+              f"peak temperature. ΔH and ΔS are given ± their standard uncertainty: the spread over baseline "
+              f"choices, the noise of the trace and its sampling; calibration and sample mass not included."))
 
 
 def _scans(results: Mapping[str, Any]) -> Optional[CompactTable]:
@@ -196,6 +198,10 @@ KIND = Kind(
         ResultKey("dh_J_g", "ΔH", "J/g", 3),
         ResultKey("dh_kJ_mol", "ΔH", "kJ/mol", 3),
         ResultKey("ds_J_molK", "ΔS", "J/(mol K)", 3),
+        ResultKey("dh_err_J_g", "ΔH uncertainty", "J/g", 2),
+        ResultKey("dh_err_kJ_mol", "ΔH uncertainty", "kJ/mol", 2),
+        ResultKey("ds_err_J_molK", "ΔS uncertainty", "J/(mol K)", 2),
+        ResultKey("n_states_err", "N uncertainty", "", 2),
         ResultKey("n_states", "N in ΔS = R ln N (orientational states)", "", 3),
         ResultKey("index", "scan"),
         ResultKey("t_start_K", "from", "K", 4),

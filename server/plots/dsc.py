@@ -9,6 +9,7 @@ from plotly.subplots import make_subplots
 
 from server.analysis.dsc import DscResult, analyse_dsc
 from server.plots import PALETTE, SERIES, base_layout, stacked_panels
+from server.precision import value_text
 
 X_T = "T (K)"
 Y_HF = "heat flow (W/g), endo up"
@@ -68,7 +69,8 @@ def dsc_figure(result: DscResult, frame: pd.DataFrame | None = None, *, title: s
         colour = SERIES[pk["segment"] % len(SERIES)]
         tw, sig, base = np.asarray(pk["t_K"]), np.asarray(pk["heat_flow_W_g"]), np.asarray(pk["baseline_W_g"])
         dh = pk["dh_J_g"]
-        text = f"ΔH = {dh:.4g} J/g ({'endo' if dh > 0 else 'exo'})<br>peak {pk['peak_K']:.2f} K"
+        dh_text = value_text(dh, pk.get("dh_err_J_g"), 3)  # digits follow the uncertainty (server/precision.py)
+        text = f"ΔH = {dh_text} J/g ({'endo' if dh > 0 else 'exo'})<br>peak {pk['peak_K']:.2f} K"
         onset = pk["onset"]
         if onset is not None:
             text += f"<br>onset {onset['t_K']:.2f} K"
@@ -76,7 +78,7 @@ def dsc_figure(result: DscResult, frame: pd.DataFrame | None = None, *, title: s
             go.Scatter(
                 x=np.concatenate([tw, tw[::-1]]), y=np.concatenate([sig, base[::-1]]),
                 fill="toself", fillcolor=_rgba(colour, 0.25), line=dict(width=0), mode="lines",
-                name=f"ΔH = {dh:.3g} J/g", legendgroup=f"peak{j}", hoveron="fills", text=text,
+                name=f"ΔH = {dh_text} J/g", legendgroup=f"peak{j}", hoveron="fills", text=text,
                 hoverinfo="text",
             )
         )
@@ -177,8 +179,10 @@ def _with_zoom(full: go.Figure, curves: dict, small: list[dict]) -> go.Figure:
         tw, sig, base = np.asarray(pk["t_K"]), np.asarray(pk["heat_flow_W_g"]), np.asarray(pk["baseline_W_g"])
         fig.add_trace(go.Scatter(x=np.concatenate([tw, tw[::-1]]), y=np.concatenate([sig, base[::-1]]),
                                  fill="toself", fillcolor=_rgba(colour, 0.25), line=dict(width=0), mode="lines",
-                                 name=f"ΔH = {pk['dh_J_g']:.3g} J/g (zoom)", showlegend=False, hoveron="fills",
-                                 text=f"ΔH = {pk['dh_J_g']:.4g} J/g<br>peak {pk['peak_K']:.2f} K", hoverinfo="text"),
+                                 name=f"ΔH = {value_text(pk['dh_J_g'], pk.get('dh_err_J_g'), 3)} J/g (zoom)",
+                                 showlegend=False, hoveron="fills", hoverinfo="text",
+                                 text=f"ΔH = {value_text(pk['dh_J_g'], pk.get('dh_err_J_g'), 3)} J/g<br>"
+                                      f"peak {pk['peak_K']:.2f} K"),
                       row=2, col=1)
         fig.add_trace(go.Scatter(x=tw, y=base, mode="lines", name="baseline (zoom)", showlegend=False,
                                  line=dict(color=PALETTE["black"], width=1, dash="dash"), hoverinfo="skip"),

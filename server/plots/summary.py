@@ -51,7 +51,8 @@ def switching_by_series(series: Sequence[tuple[str, Sequence[Mapping[str, Any]]]
 
 
 def transitions_table(rows: Iterable[Mapping[str, Any]]) -> list[dict[str, Any]]:
-    """Transition temperatures found by dielectric peaks and DSC, for the compound summary."""
+    """Transition temperatures found by dielectric peaks and DSC, for the compound summary; ``err`` is the
+    value's standard uncertainty where the analysis gives one (DSC enthalpies), else absent."""
     out: list[dict[str, Any]] = []
     for r in rows:
         if r["kind"] == "dielectric" and r["results"].get("t_peak_K") is not None:
@@ -60,5 +61,6 @@ def transitions_table(rows: Iterable[Mapping[str, Any]]) -> list[dict[str, Any]]
         if r["kind"] == "dsc":
             for p in r["results"].get("peaks") or []:
                 out.append({"measurement": r["id"], "source": f"DSC {p.get('direction', '')}",
-                            "t_K": p.get("peak_K"), "value": p.get("dh_J_g"), "unit": "J/g"})
+                            "t_K": p.get("peak_K"), "value": p.get("dh_J_g"), "err": p.get("dh_err_J_g"),
+                            "unit": "J/g"})
     return sorted(out, key=lambda d: (d["t_K"] is None, d["t_K"]))

@@ -125,9 +125,15 @@ def barrier_table(rows: list[dict[str, Any]]) -> bytes:
 
 
 def transition_table(rows: list[dict[str, Any]]) -> bytes:
-    return _csv(["measurement", "source", "T (K)", "value", "value unit"],
-                [[r["measurement"], r["source"], significant(r["t_K"], 5), significant(r["value"], 4), r["unit"]]
-                 for r in rows])
+    """The transitions as CSV: a value with an uncertainty (a DSC enthalpy) to the uncertainty's last digit
+    and the uncertainty beside it (:func:`server.precision.with_uncertainty`), else four significant digits."""
+    def value(r: dict[str, Any]) -> list[str]:
+        if r.get("err") and r.get("value") is not None:
+            return list(with_uncertainty(r["value"], r["err"]))
+        return [significant(r["value"], 4), ""]
+
+    return _csv(["measurement", "source", "T (K)", "value", "value uncertainty", "value unit"],
+                [[r["measurement"], r["source"], significant(r["t_K"], 5), *value(r), r["unit"]] for r in rows])
 
 
 def _summary_line(kind_name: str, results: dict[str, Any]) -> str:

@@ -57,6 +57,13 @@ def _shape_per_K(u: np.ndarray, kind: str, width_K: float) -> np.ndarray:
     raise ValueError(f"kind must be 'melting', 'gaussian' or 'lambda', got {kind!r}")
 
 
+def _fraction(u: np.ndarray, g: np.ndarray) -> np.ndarray:
+    """The fraction transformed along the scan: the cumulative area of the unit-area shape ``g`` over ``u``
+    (samples in scan order, so ``u`` increases), 0 before the transition and 1 after it."""
+    area = np.concatenate(([0.0], np.cumsum(0.5 * (g[1:] + g[:-1]) * np.diff(u))))
+    return area / area[-1] if area[-1] > 0 else area
+
+
 def dsc_trace(
     transitions: Sequence[Mapping[str, float | str]],
     *,
@@ -79,7 +86,9 @@ def dsc_trace(
     transitions : sequence of mappings
         Each with ``t_K`` (onset for "melting", centre for "gaussian", peak for "lambda"),
         ``dh_J_g`` (enthalpy of the transition as crossed on heating, J/g; > 0 endothermic),
-        ``width_K`` and ``kind`` (module docstring; default "melting").
+        ``width_K`` and ``kind`` (module docstring; default "melting"); optional ``step_mW``, the change of
+        the baseline across the transition (a heat-capacity step, mW), which follows the fraction
+        transformed, so the true enthalpy is the area above that sigmoidal baseline.
     t_start_K, t_end_K : float
         Start and end of the scan; t_end_K > t_start_K on heating, < on cooling.
     rate_K_min : float
@@ -118,12 +127,18 @@ def dsc_trace(
     t_s = np.arange(0.0, duration_s + 0.5 * sample_interval_s, sample_interval_s)
     T = t_start_K + direction * beta_K_s * t_s
     phi_W_g = np.zeros_like(T)
+    steps_mW = np.zeros_like(T)
     for tr in transitions:
         kind = str(tr.get("kind", "melting"))
         u = direction * (T - float(tr["t_K"]))
         # Crossed on cooling, the transition runs backwards and gives its heat back.
-        phi_W_g += direction * float(tr["dh_J_g"]) * beta_K_s * _shape_per_K(u, kind, float(tr["width_K"]))
-    hf_mW = phi_W_g * mass_mg + baseline_mW + baseline_slope * (T - t_start_K)
+        g = _shape_per_K(u, kind, float(tr["width_K"]))
+        phi_W_g += direction * float(tr["dh_J_g"]) * beta_K_s * g
+        if tr.get("step_mW"):
+            # The heat capacity changes with the fraction transformed, so the baseline steps as the
+            # cumulative area of the peak (Hoehne et al. 2003, ch. 5, the sigmoidal baseline).
+            steps_mW += float(tr["step_mW"]) * _fraction(u, g)
+    hf_mW = phi_W_g * mass_mg + baseline_mW + baseline_slope * (T - t_start_K) + steps_mW
     if noise_mW > 0:
         hf_mW = hf_mW + noise_mW * rng.standard_normal(len(T))
     if endo == "down":

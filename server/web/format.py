@@ -106,6 +106,28 @@ def scalar_items(results: dict[str, Any], kind: str | None = None,
     return out
 
 
+def list_table(rows: list[dict[str, Any]], kind: str | None = None) -> tuple[list[tuple[str, str]], list[list[tuple[str, str]]]]:
+    """A list result (e.g. DSC peaks) as ``(headers, body)``: headers (label, unit), cells (value text, error text).
+    A column's standard error beside it in the rows (:func:`server.precision.error_key`) is folded into it, the
+    value printed to the error's last digit (:func:`server.precision.with_uncertainty`), as :func:`scalar_items`
+    does for single values."""
+    keys = list(rows[0].keys()) if rows else []
+    errors = {e for row in rows for k in row if (e := error_key(k, row))}
+    shown = [k for k in keys if k not in errors]
+    headers = [split_key(k, kind) for k in shown]
+    body = []
+    for row in rows:
+        cells = []
+        for k in shown:
+            value, err = row.get(k), row.get(error_key(k, row) or "")
+            if _finite(value) and _finite(err) and err > 0:
+                cells.append(with_uncertainty(float(value), float(err)))
+            else:
+                cells.append((number(value, digits_of(k, kind)), ""))
+        body.append(cells)
+    return headers, body
+
+
 def summary(kind: str, results: dict[str, Any], apparent_keys: Any = None) -> str:
     """The one-line summary of a measurement (:meth:`server.kinds.base.Kind.summary_text`): its kind's
     summary keys, labelled, values with an uncertainty as value ± error, units as the trade prints them."""
@@ -147,6 +169,7 @@ def install(env) -> None:  # noqa: ANN001 - a jinja2 Environment
     env.globals["split_key"] = split_key
     env.globals["digits_of"] = digits_of
     env.globals["with_uncertainty"] = with_uncertainty
+    env.globals["list_table"] = list_table
     env.globals["measurement_summary"] = summary
     # The verdict vocabulary (server.verdict_codes): rows in strength order, sentence and short labels.
     env.globals["verdicts"] = verdict_codes.VERDICTS

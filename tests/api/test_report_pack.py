@@ -91,6 +91,11 @@ def test_report_pack_parts(client, writer, stocked):
     assert len(value.split(".")[-1] if "." in value else "") == len(err.split(".")[-1] if "." in err else "")
     transitions = list(csv.DictReader(io.StringIO(files["tables/transitions.csv"].decode())))
     assert {t["source"] for t in transitions} & {"dielectric peak"}
+    # a DSC enthalpy carries its standard uncertainty, the value printed to its last digit (server/precision.py)
+    dsc_rows = [t for t in transitions if t["source"].startswith("DSC")]
+    assert dsc_rows and all(t["value uncertainty"] for t in dsc_rows)
+    for t in dsc_rows:
+        assert len(t["value"].partition(".")[2]) == len(t["value uncertainty"].partition(".")[2])
     # the one-page summary
     page = BeautifulSoup(files["summary.html"], "html.parser")
     assert page.h1.get_text().startswith(CODE) and page.find("svg")  # the structure drawing

@@ -88,3 +88,34 @@ def test_a_heating_run_alone_and_no_molar_mass():
     [row] = peaks.rows
     assert row[2][0].value == 8.0 and [ln.label for ln in row[4]] == ["no cooling scan"]
     assert scans.replaces == "segments" and scans.rows[0][1][1].value == 430.0
+
+
+def test_enthalpy_and_entropy_digits_follow_their_uncertainty(client, session):
+    """ΔH and ΔS print as value ± u with the value rounded to u's last digit and u to two significant digits
+    (JCGM 100:2008, 7.2.6, through server.precision.with_uncertainty), in the compact table and in the table of
+    every value, where the uncertainty columns fold into their values; the stored results keep full precision."""
+    csrf = login_as(client, session)
+    client.post("/compounds/new", data={"smiles": SMILES, "csrf_token": csrf})
+    client.post("/compounds/RVZ-00001/batches/new", data={"state": "made", "csrf_token": csrf})
+    r = client.post("/batches/RVZ-00001-B01/upload", data={"kind": "dsc", "csrf_token": csrf},
+                    files={"file": ("heat-cool.csv", heat_cool_dsc_file())}, follow_redirects=False)
+    page = soup(client.get(r.headers["location"]).text)
+    m = session.exec(select(Measurement)).one()
+    heating = sorted((p for p in m.results["peaks"] if p["segment_direction"] == "heating"), key=lambda p: p["peak_K"])
+    rows = page.find("table", id="compact-peaks").tbody.find_all("tr")
+    for row, p in zip(rows, heating):
+        _, dh_cell, ds_cell, _ = row.find_all("td")
+        for cell, key, err_key in ((dh_cell, "dh_kJ_mol", "dh_err_kJ_mol"), (ds_cell, "ds_J_molK", "ds_err_J_molK")):
+            line = cell.select(".line")[0]
+            value, err = line.find(class_="num").text, line.find(class_="err").text
+            assert p[err_key] > 0
+            assert err.startswith("± ")
+            err_digits = err[2:].replace(".", "").lstrip("0")
+            assert len(err_digits) == 2  # two significant digits in the uncertainty
+            decimals = len(err[2:].partition(".")[2])
+            assert len(value.partition(".")[2]) == decimals  # the value ends on the uncertainty's last digit
+            assert float(value) == pytest.approx(p[key], abs=10 ** -decimals)
+    every = page.find("details", id="all-peaks").find("table")
+    heads = [th.text for th in every.thead.find_all("th")]
+    assert not any("uncertainty" in h for h in heads) and "ΔS (J\u202fmol⁻¹\u202fK⁻¹)" in heads
+    assert every.find(class_="err") is not None

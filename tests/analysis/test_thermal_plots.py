@@ -11,6 +11,7 @@ from server.analysis.dsc import analyse_dsc
 from server.plots import SERIES
 from server.plots.dielectric import frequency_label, permittivity_figure
 from server.plots.dsc import dsc_figure
+from server.precision import value_text
 from server.synth.dielectric import curie_weiss_scan
 from server.synth.dsc import dsc_trace
 
@@ -89,7 +90,10 @@ def test_dsc_figure_axes_areas_and_hover():
     fills = [t for t in fig.data if t.fill == "toself"]
     assert len(fills) == len(res.peaks) == 2
     for t, p in zip(fills, res.peaks, strict=True):
-        assert f"{p.dh_J_g:.4g} J/g" in t.text
+        # the label gives ΔH with its uncertainty, digits following it (JCGM 100:2008 7.2.6)
+        assert p.dh_err_J_g is not None and p.dh_err_J_g > 0
+        assert f"ΔH = {value_text(p.dh_J_g, p.dh_err_J_g, 3)} J/g" in t.text
+        assert "±" in t.text
     # Plotted endo up although the file was endo down: the melting peak points up.
     trace = fig.data[0]
     assert max(trace.y) > abs(min(trace.y))
